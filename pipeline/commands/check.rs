@@ -1,0 +1,79 @@
+//! `tabcard check <manifest>`: validate the manifest and the data, print fingerprints, the data
+//! summary and the run plan.
+
+use std::fmt::Write;
+use std::path::Path;
+
+use crate::error::Result;
+use crate::experiment::{open, Experiment};
+use crate::plan;
+use crate::text::terminal_safe;
+
+pub fn run(manifest_path: &Path) -> Result<String> {
+    let exp = open(manifest_path)?;
+    Ok(report(&exp))
+}
+
+fn num(x: f64) -> String {
+    crate::format::sig(x, 4)
+}
+
+pub fn report(exp: &Experiment) -> String {
+    let m = &exp.manifest;
+    let mut out = String::new();
+    let plan = plan::build(m, &exp.fingerprint);
+    let _ = writeln!(out, "experiment   {}", terminal_safe(&m.experiment.name));
+    let _ = writeln!(out, "manifest     {}", exp.manifest_path.display());
+    let _ = writeln!(out, "fingerprint  {}", exp.fingerprint);
+    let _ = writeln!(out, "  manifest   sha256 {} (canonical, defaults filled)", exp.manifest_sha256);
+    let _ = writeln!(out, "  data file  sha256 {} ({} bytes)", exp.data.file_sha256, exp.data.bytes);
+    let _ = writeln!(out, "  data rows  sha256 {} (schema and values)", exp.data.content_sha256);
+    let _ = writeln!(out, "  tool       tabcard {}", crate::experiment::TOOL_VERSION);
+    if exp.data.outside_manifest_folder {
+        let _ = writeln!(out, "note: the data file lies outside the manifest's folder: {}", terminal_safe(&exp.data.resolved_path));
+    }
+    let s = &exp.summary;
+    let _ = writeln!(out, "\ndata         {} ({} rows, {} columns)", exp.data_path.display(), s.rows, s.columns.len());
+    let _ = writeln!(out, "split        train {} / validation {} / test {} (seed {}, {})",
+        exp.splits.train.len(), exp.splits.validation.len(), exp.splits.test.len(), m.split.seed,
+        if m.split.stratify && m.data.task != crate::manifest::Task::Regression { "stratified" } else { "random" });
+    let _ = writeln!(out, "\n{:<28} {:<9} {:<8} {:>8}  summary", "column", "role", "type", "missing");
+    for c in &s.columns {
+        let detail = match &c.numeric {
+            Some(n) => format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std)),
+            None => {
+                let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", terminal_safe(&l.level), l.count)).collect();
+                format!("{} levels: {}", c.distinct, top.join(", "))
+            }
+        };
+        let kind = if c.categorical && c.kind != "string" { format!("{}*", c.kind) } else { c.kind.clone() };
+        let _ = writeln!(out, "{:<28} {:<9} {:<8} {:>7.1}%  {}", terminal_safe(&c.name), c.role, kind, 100.0 * c.missing_share, detail);
+    }
+    let _ = writeln!(out, "\ntarget       {} ({})", terminal_safe(&s.target.name), m.data.task.as_str());
+    for l in &s.target.classes {
+        let _ = writeln!(out, "  {:<24} {:>8} rows ({:.1}%)", terminal_safe(&l.level), l.count, 100.0 * l.count as f64 / s.rows as f64);
+    }
+    if let Some(d) = &s.target.distribution {
+        let _ = writeln!(out, "  min {} / q25 {} / median {} / q75 {} / max {}", num(d.min), num(d.q25), num(d.median), num(d.q75), num(d.max));
+    }
+    if !s.warnings.is_empty() {
+        let _ = writeln!(out, "\nwarnings");
+        for w in &s.warnings {
+            let _ = writeln!(out, "  - {}", terminal_safe(w));
+        }
+    }
+    let grid_points = plan.configs.iter().filter(|c| !c.baseline).count();
+    let _ = writeln!(out, "\nplan         {} runs = {} configuration(s) x {} seed(s){}",
+        plan.runs.len(), grid_points, m.sweep.seeds.len(),
+        if m.selection.baseline { format!(" + linear baseline x {} seed(s)", m.sweep.seeds.len()) } else { String::new() });
+    for (key, values) in &m.sweep.grid {
+        let vals: Vec<String> = values.iter().map(|v| v.to_string()).collect();
+        let _ = writeln!(out, "  {key} in [{}]", vals.join(", "));
+    }
+    let _ = writeln!(out, "selection    validation {} ({})", m.selection.metric,
+        match crate::metrics::registry::direction(m.data.task, &m.selection.metric) {
+            Some(crate::metrics::registry::Direction::Maximise) => "higher is better",
+            _ => "lower is better",
+        });
+    out
+}

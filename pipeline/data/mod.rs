@@ -1,0 +1,9 @@
+//! Tabular data: reading Parquet, typed columns and their content hash, column roles and the
+//! target, the data summary, the seeded split, and preprocessing.
+
+pub mod parquet;
+pub mod prep;
+pub mod roles;
+pub mod split;
+pub mod summary;
+pub mod table;

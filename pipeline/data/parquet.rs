@@ -1,0 +1,248 @@
+//! Reading a Parquet file into a [`Table`] with the `parquet` crate's Arrow reader. Supported column
+//! types: floats, integers, booleans, strings and dictionary-encoded strings, all with nulls; any
+//! other type is an error naming the column and its type. One of the two places that touch the
+//! outside world (the other is `store.rs`).
+
+use arrow::array::{Array, ArrayRef, AsArray};
+use arrow::datatypes::*;
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+use std::collections::HashMap;
+use std::path::Path;
+
+use super::table::{Column, ColumnValues, Table, NULL_CODE};
+use crate::error::{Error, Result};
+
+/// One column being filled batch by batch.
+struct Builder {
+    name: String,
+    source_type: String,
+    values: ColumnValues,
+    valid: Vec<bool>,
+    has_null: bool,
+    level_index: HashMap<String, u32>,
+}
+
+fn supported(dt: &DataType) -> bool {
+    use DataType::*;
+    match dt {
+        Float16 | Float32 | Float64 | Int8 | Int16 | Int32 | Int64 | UInt8 | UInt16 | UInt32 | UInt64 | Boolean
+        | Utf8 | LargeUtf8 | Utf8View => true,
+        Dictionary(_, value) => matches!(value.as_ref(), Utf8 | LargeUtf8 | Utf8View),
+        _ => false,
+    }
+}
+
+fn empty_values(dt: &DataType) -> ColumnValues {
+    use DataType::*;
+    match dt {
+        Float16 | Float32 | Float64 => ColumnValues::Float(Vec::new()),
+        Int8 | Int16 | Int32 | Int64 | UInt8 | UInt16 | UInt32 | UInt64 => ColumnValues::Int(Vec::new()),
+        Boolean => ColumnValues::Bool(Vec::new()),
+        _ => ColumnValues::Text { codes: Vec::new(), levels: Vec::new() },
+    }
+}
+
+impl Builder {
+    fn push_text(&mut self, value: Option<&str>) {
+        let ColumnValues::Text { codes, levels } = &mut self.values else { return };
+        match value {
+            None => codes.push(NULL_CODE),
+            Some(s) => {
+                let code = match self.level_index.get(s) {
+                    Some(&c) => c,
+                    None => {
+                        let c = levels.len() as u32;
+                        levels.push(s.to_string());
+                        self.level_index.insert(s.to_string(), c);
+                        c
+                    }
+                };
+                codes.push(code);
+            }
+        }
+    }
+
+    fn append(&mut self, array: &ArrayRef, file: &Path) -> Result<()> {
+        let n = array.len();
+        let nulls = array.logical_nulls();
+        let is_valid = |i: usize| nulls.as_ref().is_none_or(|b| b.is_valid(i));
+        for i in 0..n {
+            let v = is_valid(i);
+            self.has_null |= !v;
+            self.valid.push(v);
+        }
+        macro_rules! floats {
+            ($t:ty) => {{
+                let a = array.as_primitive::<$t>();
+                if let ColumnValues::Float(out) = &mut self.values {
+                    out.extend((0..n).map(|i| if is_valid(i) { f64::from(a.value(i)) } else { 0.0 }));
+                }
+            }};
+        }
+        macro_rules! ints {
+            ($t:ty) => {{
+                let a = array.as_primitive::<$t>();
+                if let ColumnValues::Int(out) = &mut self.values {
+                    for i in 0..n {
+                        let x = if is_valid(i) {
+                            i64::try_from(a.value(i)).map_err(|_| {
+                                Error::data(file, Some(&self.name), format!("row {}: value {} does not fit a 64-bit signed integer", self.valid.len() - n + i, a.value(i)))
+                            })?
+                        } else {
+                            0
+                        };
+                        out.push(x);
+                    }
+                }
+            }};
+        }
+        match array.data_type() {
+            DataType::Float16 => {
+                let a = array.as_primitive::<Float16Type>();
+                if let ColumnValues::Float(out) = &mut self.values {
+                    out.extend((0..n).map(|i| if is_valid(i) { f64::from(a.value(i).to_f32()) } else { 0.0 }));
+                }
+            }
+            DataType::Float32 => floats!(Float32Type),
+            DataType::Float64 => floats!(Float64Type),
+            DataType::Int8 => ints!(Int8Type),
+            DataType::Int16 => ints!(Int16Type),
+            DataType::Int32 => ints!(Int32Type),
+            DataType::Int64 => ints!(Int64Type),
+            DataType::UInt8 => ints!(UInt8Type),
+            DataType::UInt16 => ints!(UInt16Type),
+            DataType::UInt32 => ints!(UInt32Type),
+            DataType::UInt64 => ints!(UInt64Type),
+            DataType::Boolean => {
+                let a = array.as_boolean();
+                if let ColumnValues::Bool(out) = &mut self.values {
+                    out.extend((0..n).map(|i| is_valid(i) && a.value(i)));
+                }
+            }
+            DataType::Utf8 => {
+                let a = array.as_string::<i32>();
+                for i in 0..n {
+                    self.push_text(is_valid(i).then(|| a.value(i)));
+                }
+            }
+            DataType::LargeUtf8 => {
+                let a = array.as_string::<i64>();
+                for i in 0..n {
+                    self.push_text(is_valid(i).then(|| a.value(i)));
+                }
+            }
+            DataType::Utf8View => {
+                let a = array.as_string_view();
+                for i in 0..n {
+                    self.push_text(is_valid(i).then(|| a.value(i)));
+                }
+            }
+            DataType::Dictionary(_, _) => {
+                let plain = arrow::compute::cast(array, &DataType::Utf8)
+                    .map_err(|e| Error::data(file, Some(&self.name), format!("cannot decode dictionary strings: {e}")))?;
+                let a = plain.as_string::<i32>();
+                for i in 0..n {
+                    self.push_text(is_valid(i).then(|| a.value(i)));
+                }
+            }
+            other => {
+                return Err(Error::data(file, Some(&self.name), format!("unsupported type {other}")));
+            }
+        }
+        Ok(())
+    }
+
+    fn finish(self) -> Column {
+        Column {
+            name: self.name,
+            source_type: self.source_type,
+            values: self.values,
+            valid: self.has_null.then_some(self.valid),
+        }
+    }
+}
+
+/// Reads every column of a Parquet file.
+pub fn read_table(path: &Path) -> Result<Table> {
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    let not_parquet = |e: parquet::errors::ParquetError| {
+        Error::data(path, None, format!("not a readable Parquet file: {e}"))
+    };
+    let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(not_parquet)?;
+    let schema = builder.schema().clone();
+    let mut columns = Vec::with_capacity(schema.fields().len());
+    for field in schema.fields() {
+        if !supported(field.data_type()) {
+            return Err(Error::data(
+                path,
+                Some(field.name()),
+                format!(
+                    "has type {}, which tabcard cannot use; supported: floats, integers, booleans, strings, dictionary-encoded strings",
+                    field.data_type()
+                ),
+            ));
+        }
+        columns.push(Builder {
+            name: field.name().clone(),
+            source_type: field.data_type().to_string(),
+            values: empty_values(field.data_type()),
+            valid: Vec::new(),
+            has_null: false,
+            level_index: HashMap::new(),
+        });
+    }
+    let mut seen = std::collections::HashSet::new();
+    if let Some(dup) = columns.iter().find(|c| !seen.insert(c.name.clone())) {
+        return Err(Error::data(path, Some(&dup.name), "appears more than once in the schema"));
+    }
+    let reader = builder.with_batch_size(65_536).build().map_err(not_parquet)?;
+    let mut rows = 0usize;
+    for batch in reader {
+        let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
+        for (builder, array) in columns.iter_mut().zip(batch.columns()) {
+            builder.append(array, path)?;
+        }
+        rows += batch.num_rows();
+    }
+    Ok(Table { rows, columns: columns.into_iter().map(Builder::finish).collect() })
+}
+
+/// How a Parquet file is written: compression and rows per row group.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WriteOptions {
+    pub snappy: bool,
+    pub row_group_rows: usize,
+}
+
+impl Default for WriteOptions {
+    fn default() -> Self {
+        WriteOptions { snappy: true, row_group_rows: 1 << 20 }
+    }
+}
+
+/// Encodes named Arrow arrays of equal length as a Parquet file in memory.
+pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result<Vec<u8>> {
+    use arrow::record_batch::RecordBatch;
+    use parquet::arrow::ArrowWriter;
+    use parquet::basic::Compression;
+    use parquet::file::properties::WriterProperties;
+    use std::sync::Arc;
+
+    let engine = |e: String| Error::Engine(format!("writing Parquet: {e}"));
+    let fields: Vec<Field> = columns
+        .iter()
+        .map(|(name, a)| Field::new(name, a.data_type().clone(), a.null_count() > 0))
+        .collect();
+    let schema = Arc::new(Schema::new(fields));
+    let batch = RecordBatch::try_new(schema.clone(), columns.into_iter().map(|(_, a)| a).collect())
+        .map_err(|e| engine(e.to_string()))?;
+    let props = WriterProperties::builder()
+        .set_compression(if options.snappy { Compression::SNAPPY } else { Compression::UNCOMPRESSED })
+        .set_max_row_group_row_count(Some(options.row_group_rows.max(1)))
+        .build();
+    let mut out = Vec::new();
+    let mut writer = ArrowWriter::try_new(&mut out, schema, Some(props)).map_err(|e| engine(e.to_string()))?;
+    writer.write(&batch).map_err(|e| engine(e.to_string()))?;
+    writer.close().map_err(|e| engine(e.to_string()))?;
+    Ok(out)
+}

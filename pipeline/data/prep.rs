@@ -1,0 +1,235 @@
+//! Preprocessing fitted on training rows only: median imputation plus a missing-indicator for
+//! numeric columns, standardisation (a zero-variance column gets scale 1), and one-hot encoding of
+//! categories with a bucket for levels unseen in training (missing categories take the most
+//! frequent level plus an indicator). The fitted [`Preprocessor`] is plain data, stored with each
+//! model, so scoring new rows later applies exactly the same transformation.
+
+use serde::{Deserialize, Serialize};
+use std::collections::{BTreeMap, HashMap};
+use std::path::Path;
+
+use super::roles::Feature;
+use super::table::{Column, ColumnValues, Table};
+use crate::error::{Error, Result};
+use crate::metrics::bootstrap::quantile_sorted;
+
+/// A dense row-major f32 matrix.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Matrix {
+    pub rows: usize,
+    pub cols: usize,
+    pub data: Vec<f32>,
+}
+
+impl Matrix {
+    pub fn zeros(rows: usize, cols: usize) -> Self {
+        Matrix { rows, cols, data: vec![0.0; rows * cols] }
+    }
+
+    pub fn row(&self, r: usize) -> &[f32] {
+        &self.data[r * self.cols..(r + 1) * self.cols]
+    }
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "encoding", rename_all = "snake_case")]
+pub enum InputEncoding {
+    Numeric {
+        name: String,
+        /// Median of the training values, used for missing values.
+        impute: f64,
+        mean: f64,
+        scale: f64,
+        /// Whether a missing-indicator column follows the standardised value.
+        indicator: bool,
+        train_min: f64,
+        train_max: f64,
+    },
+    Categorical {
+        name: String,
+        /// Training levels, most frequent first; one output each, then the unseen bucket.
+        levels: Vec<String>,
+        /// Index into `levels` used for missing values (the most frequent level).
+        impute: usize,
+        indicator: bool,
+    },
+}
+
+impl InputEncoding {
+    pub fn name(&self) -> &str {
+        match self {
+            InputEncoding::Numeric { name, .. } | InputEncoding::Categorical { name, .. } => name,
+        }
+    }
+
+    fn width(&self) -> usize {
+        match self {
+            InputEncoding::Numeric { indicator, .. } => 1 + *indicator as usize,
+            InputEncoding::Categorical { levels, indicator, .. } => levels.len() + 1 + *indicator as usize,
+        }
+    }
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Preprocessor {
+    pub inputs: Vec<InputEncoding>,
+    /// Names of the matrix columns, e.g. `income`, `income:missing`, `region=north`, `region=<unseen>`.
+    pub output_names: Vec<String>,
+}
+
+/// What a transformation met that training did not.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct TransformReport {
+    /// Rows per column whose category was not seen in training.
+    pub unseen_levels: BTreeMap<String, usize>,
+    /// Rows with at least one numeric value outside the training range.
+    pub out_of_range_rows: usize,
+    pub out_of_range: Vec<bool>,
+}
+
+fn observed(col: &Column, rows: &[usize]) -> Vec<f64> {
+    rows.iter().filter_map(|&r| col.number(r)).collect()
+}
+
+impl Preprocessor {
+    /// Fits the encodings on the training rows `rows` of `table`.
+    pub fn fit(table: &Table, features: &[Feature], rows: &[usize], file: &Path) -> Result<Self> {
+        let mut inputs = Vec::with_capacity(features.len());
+        for f in features {
+            let col = table.column(&f.name).ok_or_else(|| Error::data(file, Some(&f.name), "is missing"))?;
+            let has_missing = rows.iter().any(|&r| !col.is_valid(r));
+            if f.categorical {
+                let mut counts: BTreeMap<String, usize> = BTreeMap::new();
+                for &r in rows {
+                    if let Some(l) = col.label(r) {
+                        *counts.entry(l).or_default() += 1;
+                    }
+                }
+                if counts.is_empty() {
+                    return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
+                }
+                let mut levels: Vec<(String, usize)> = counts.into_iter().collect();
+                levels.sort_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
+                inputs.push(InputEncoding::Categorical {
+                    name: f.name.clone(),
+                    levels: levels.into_iter().map(|(l, _)| l).collect(),
+                    impute: 0,
+                    indicator: has_missing,
+                });
+            } else {
+                if col.is_text() {
+                    return Err(Error::data(file, Some(&f.name), "is text but was expected to be numeric"));
+                }
+                let mut values = observed(col, rows);
+                if values.is_empty() {
+                    return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
+                }
+                let n = values.len() as f64;
+                let mean = values.iter().sum::<f64>() / n;
+                let var = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n;
+                values.sort_by(f64::total_cmp);
+                let std = var.sqrt();
+                inputs.push(InputEncoding::Numeric {
+                    name: f.name.clone(),
+                    impute: quantile_sorted(&values, 0.5),
+                    mean,
+                    scale: if std > 0.0 && std.is_finite() { std } else { 1.0 },
+                    indicator: has_missing,
+                    train_min: values[0],
+                    train_max: values[values.len() - 1],
+                });
+            }
+        }
+        let mut output_names = Vec::new();
+        for enc in &inputs {
+            match enc {
+                InputEncoding::Numeric { name, indicator, .. } => {
+                    output_names.push(name.clone());
+                    if *indicator {
+                        output_names.push(format!("{name}:missing"));
+                    }
+                }
+                InputEncoding::Categorical { name, levels, indicator, .. } => {
+                    output_names.extend(levels.iter().map(|l| format!("{name}={l}")));
+                    output_names.push(format!("{name}=<unseen>"));
+                    if *indicator {
+                        output_names.push(format!("{name}:missing"));
+                    }
+                }
+            }
+        }
+        Ok(Preprocessor { inputs, output_names })
+    }
+
+    pub fn width(&self) -> usize {
+        self.inputs.iter().map(InputEncoding::width).sum()
+    }
+
+    /// Encodes rows `rows` of `table` (any table with the training columns, by name).
+    pub fn transform(&self, table: &Table, rows: &[usize], file: &Path) -> Result<(Matrix, TransformReport)> {
+        let width = self.width();
+        let mut m = Matrix::zeros(rows.len(), width);
+        let mut report = TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() };
+        let mut offset = 0;
+        for enc in &self.inputs {
+            let name = enc.name();
+            let col = table.column(name).ok_or_else(|| Error::data(file, Some(name), "is missing: the model was trained with it"))?;
+            match enc {
+                InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
+                    if col.is_text() {
+                        return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on numbers", col.source_type)));
+                    }
+                    for (i, &r) in rows.iter().enumerate() {
+                        let (value, missing) = match col.number(r) {
+                            Some(v) if v.is_finite() => (v, false),
+                            Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
+                            None => (*impute, true),
+                        };
+                        if !missing && (value < *train_min || value > *train_max) {
+                            report.out_of_range[i] = true;
+                        }
+                        m.data[i * width + offset] = ((value - mean) / scale) as f32;
+                        if *indicator {
+                            m.data[i * width + offset + 1] = missing as u8 as f32;
+                        }
+                    }
+                }
+                InputEncoding::Categorical { levels, impute, indicator, .. } => {
+                    let index: HashMap<&str, usize> = levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect();
+                    let unseen_slot = levels.len();
+                    // Text columns map codes once; other columns render each value as a label.
+                    let code_slots: Option<Vec<usize>> = match &col.values {
+                        ColumnValues::Text { levels: own, .. } => {
+                            Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(unseen_slot)).collect())
+                        }
+                        _ => None,
+                    };
+                    let mut unseen = 0usize;
+                    for (i, &r) in rows.iter().enumerate() {
+                        let slot = if !col.is_valid(r) {
+                            if *indicator {
+                                m.data[i * width + offset + levels.len() + 1] = 1.0;
+                            }
+                            *impute
+                        } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
+                            slots[codes[r] as usize]
+                        } else {
+                            let label = col.label(r).unwrap_or_default();
+                            index.get(label.as_str()).copied().unwrap_or(unseen_slot)
+                        };
+                        if slot == unseen_slot {
+                            unseen += 1;
+                        }
+                        m.data[i * width + offset + slot] = 1.0;
+                    }
+                    if unseen > 0 {
+                        report.unseen_levels.insert(name.to_string(), unseen);
+                    }
+                }
+            }
+            offset += enc.width();
+        }
+        report.out_of_range_rows = report.out_of_range.iter().filter(|&&x| x).count();
+        Ok((m, report))
+    }
+}

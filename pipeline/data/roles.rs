@@ -1,0 +1,211 @@
+//! What each column is for (target, feature, id, group, dropped), decided from the manifest and
+//! checked against the table: missing columns, an unusable target, empty, all-null or non-finite
+//! features are errors naming the file and the column.
+
+use std::path::Path;
+
+use super::table::{ColumnValues, Table};
+use crate::error::{Error, Result};
+use crate::manifest::locate::nearest;
+use crate::manifest::{Manifest, Task};
+
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Feature {
+    pub name: String,
+    pub categorical: bool,
+}
+
+/// The encoded target: class indices into sorted labels, or numeric values.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Target {
+    /// `labels[0]` is the negative class of a binary task and `labels[1]` the positive one.
+    Classes { labels: Vec<String>, rows: Vec<usize> },
+    Values(Vec<f64>),
+}
+
+impl Target {
+    pub fn class_count(&self) -> usize {
+        match self {
+            Target::Classes { labels, .. } => labels.len(),
+            Target::Values(_) => 0,
+        }
+    }
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Roles {
+    pub target: String,
+    pub features: Vec<Feature>,
+    pub ids: Vec<String>,
+    pub groups: Vec<String>,
+    pub dropped: Vec<String>,
+}
+
+impl Roles {
+    pub fn role_of(&self, column: &str) -> &'static str {
+        if column == self.target {
+            "target"
+        } else if self.features.iter().any(|f| f.name == column) {
+            "feature"
+        } else if self.ids.iter().any(|c| c == column) {
+            "id"
+        } else if self.groups.iter().any(|c| c == column) {
+            "group"
+        } else {
+            "not used"
+        }
+    }
+}
+
+fn require_column(table: &Table, file: &Path, name: &str, key: &str) -> Result<()> {
+    if table.column(name).is_some() {
+        return Ok(());
+    }
+    let hint = nearest(name, table.columns.iter().map(|c| c.name.as_str()))
+        .map(|n| format!(" (did you mean `{n}`?)"))
+        .unwrap_or_default();
+    Err(Error::data(file, Some(name), format!("named by {key} but not in the file{hint}")))
+}
+
+/// Resolves column roles and encodes the target.
+pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Target)> {
+    if table.rows == 0 {
+        return Err(Error::data(file, None, "has no rows"));
+    }
+    let d = &m.data;
+    require_column(table, file, &d.target, "data.target")?;
+    for (list, key) in [(&d.features, "data.features"), (&d.drop, "data.drop"), (&d.ids, "data.ids"), (&d.categorical, "data.categorical"), (&d.group_columns, "data.group_columns")] {
+        for name in list {
+            require_column(table, file, name, key)?;
+        }
+    }
+    let excluded = |name: &str| {
+        name == d.target || d.drop.iter().any(|c| c == name) || d.ids.iter().any(|c| c == name) || d.group_columns.iter().any(|c| c == name)
+    };
+    let feature_names: Vec<String> = if d.features.is_empty() {
+        table.columns.iter().map(|c| c.name.clone()).filter(|n| !excluded(n)).collect()
+    } else {
+        d.features.clone()
+    };
+    if feature_names.is_empty() {
+        return Err(Error::data(file, None, "no feature columns remain after removing the target, ids, groups and dropped columns"));
+    }
+    let mut features = Vec::with_capacity(feature_names.len());
+    for name in feature_names {
+        // Present: checked above or taken from the table itself.
+        let Some(col) = table.column(&name) else { continue };
+        if col.null_count() == col.len() {
+            return Err(Error::data(file, Some(&name), "has no values (every row is null); drop it or fill it"));
+        }
+        if let ColumnValues::Float(values) = &col.values {
+            if let Some(row) = (0..values.len()).find(|&r| col.is_valid(r) && !values[r].is_finite()) {
+                return Err(Error::data(
+                    file,
+                    Some(&name),
+                    format!("row {row} holds {}; tabcard needs finite numbers (store missing values as nulls)", values[row]),
+                ));
+            }
+        }
+        let categorical = col.is_text() || d.categorical.contains(&name);
+        features.push(Feature { name, categorical });
+    }
+    let roles = Roles {
+        target: d.target.clone(),
+        features,
+        ids: d.ids.clone(),
+        groups: d.group_columns.clone(),
+        dropped: table.columns.iter().map(|c| c.name.clone()).filter(|n| d.drop.contains(n)).collect(),
+    };
+    let target = encode_target(m, table, file)?;
+    Ok((roles, target))
+}
+
+fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
+    let name = m.data.target.as_str();
+    let err = |msg: String| Error::data(file, Some(name), msg);
+    let Some(col) = table.column(name) else { return Err(err("is missing".into())) };
+    let nulls = col.null_count();
+    if nulls == col.len() {
+        return Err(err("is the target but every value is null".into()));
+    }
+    if nulls > 0 {
+        let first = (0..col.len()).find(|&r| !col.is_valid(r)).unwrap_or(0);
+        return Err(err(format!("is the target but has {nulls} missing values (first at row {first}); drop or label those rows")));
+    }
+    match m.data.task {
+        Task::Regression => {
+            let values: Vec<f64> = match &col.values {
+                ColumnValues::Float(v) => v.clone(),
+                ColumnValues::Int(v) => v.iter().map(|&x| x as f64).collect(),
+                _ => return Err(err(format!("has type {} but a regression target must be numeric", col.source_type))),
+            };
+            if let Some(row) = values.iter().position(|x| !x.is_finite()) {
+                return Err(err(format!("row {row} holds {}; a regression target must be finite", values[row])));
+            }
+            if values.iter().all(|&x| x == values[0]) {
+                return Err(err(format!("is constant ({}); there is nothing to predict", values[0])));
+            }
+            Ok(Target::Values(values))
+        }
+        task => {
+            if let ColumnValues::Float(_) = col.values {
+                return Err(err(format!(
+                    "has type {} but a class label must be a string, integer or boolean (or use task = \"regression\")",
+                    col.source_type
+                )));
+            }
+            // Distinct labels in their natural order: numeric for integers, false < true, text sorted.
+            let mut distinct: Vec<(i128, String)> = Vec::new();
+            let key_of = |row: usize| -> (i128, String) {
+                match &col.values {
+                    ColumnValues::Int(v) => (v[row] as i128, v[row].to_string()),
+                    ColumnValues::Bool(v) => (v[row] as i128, v[row].to_string()),
+                    _ => (0, col.label(row).unwrap_or_default()),
+                }
+            };
+            let mut seen = std::collections::HashMap::new();
+            for row in 0..col.len() {
+                let key = key_of(row);
+                if !seen.contains_key(&key) {
+                    seen.insert(key.clone(), 0usize);
+                    distinct.push(key);
+                }
+            }
+            distinct.sort();
+            let mut labels: Vec<String> = distinct.iter().map(|(_, s)| s.clone()).collect();
+            if labels.len() == 1 {
+                return Err(err(format!("is constant (every row is `{}`); there is nothing to predict", labels[0])));
+            }
+            if task == Task::Binary {
+                if labels.len() != 2 {
+                    return Err(err(format!("has {} distinct values but task = \"binary\" needs exactly 2 (use \"multiclass\")", labels.len())));
+                }
+                if let Some(pos) = &m.data.positive_label {
+                    match labels.iter().position(|l| l == pos) {
+                        Some(0) => labels.swap(0, 1),
+                        Some(_) => {}
+                        None => return Err(err(format!("has no value `{pos}` named by data.positive_label; its values are {labels:?}"))),
+                    }
+                }
+            } else if labels.len() == 2 {
+                return Err(err("has 2 distinct values; use task = \"binary\"".into()));
+            }
+            let index: std::collections::HashMap<(i128, String), usize> = distinct
+                .iter()
+                .map(|k| (k.clone(), labels.iter().position(|l| *l == k.1).unwrap_or(0)))
+                .collect();
+            let rows: Vec<usize> = (0..col.len()).map(|r| index[&key_of(r)]).collect();
+            let mut counts = vec![0usize; labels.len()];
+            for &c in &rows {
+                counts[c] += 1;
+            }
+            if let Some(c) = counts.iter().position(|&n| n < 2) {
+                return Err(err(format!(
+                    "class `{}` has a single row; every class needs at least 2 rows to appear in training and evaluation",
+                    labels[c]
+                )));
+            }
+            Ok(Target::Classes { labels, rows })
+        }
+    }
+}

@@ -1,0 +1,183 @@
+//! The data summary shown by `check` and in the card: per-column type, missing values, numeric
+//! statistics or category levels, the target's balance or distribution, and data warnings.
+
+use serde::{Deserialize, Serialize};
+
+use super::roles::{Roles, Target};
+use super::table::{Column, ColumnValues, Table};
+use crate::metrics::bootstrap::quantile_sorted;
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NumericStats {
+    pub min: f64,
+    pub max: f64,
+    pub mean: f64,
+    pub std: f64,
+    pub q25: f64,
+    pub median: f64,
+    pub q75: f64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LevelCount {
+    pub level: String,
+    pub count: usize,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ColumnSummary {
+    pub name: String,
+    pub kind: String,
+    pub source_type: String,
+    pub role: String,
+    pub categorical: bool,
+    pub missing: usize,
+    pub missing_share: f64,
+    pub distinct: usize,
+    pub numeric: Option<NumericStats>,
+    /// The most frequent levels (at most 5), for categorical columns.
+    pub top_levels: Vec<LevelCount>,
+    /// Levels with fewer than `RARE_LEVEL_ROWS` rows.
+    pub rare_levels: usize,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TargetSummary {
+    pub name: String,
+    /// Rows per class (classification), in label order.
+    pub classes: Vec<LevelCount>,
+    /// Distribution of a regression target.
+    pub distribution: Option<NumericStats>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DataSummary {
+    pub rows: usize,
+    pub columns: Vec<ColumnSummary>,
+    pub target: TargetSummary,
+    pub warnings: Vec<String>,
+}
+
+/// A level seen in fewer rows than this is "rare" (common practice: too few rows to learn an
+/// effect from).
+pub const RARE_LEVEL_ROWS: usize = 10;
+/// A column with more than this share missing is flagged (common practice).
+pub const MOSTLY_MISSING_SHARE: f64 = 0.5;
+
+pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
+    if values.is_empty() {
+        return None;
+    }
+    values.sort_by(f64::total_cmp);
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let var = if values.len() > 1 { values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0) } else { 0.0 };
+    Some(NumericStats {
+        min: values[0],
+        max: values[values.len() - 1],
+        mean,
+        std: var.sqrt(),
+        q25: quantile_sorted(&values, 0.25),
+        median: quantile_sorted(&values, 0.5),
+        q75: quantile_sorted(&values, 0.75),
+    })
+}
+
+/// Level counts of a column read as categories, most frequent first (ties by label).
+pub fn level_counts(col: &Column) -> Vec<LevelCount> {
+    let mut counts: std::collections::BTreeMap<String, usize> = Default::default();
+    if let ColumnValues::Text { codes, levels } = &col.values {
+        let mut by_code = vec![0usize; levels.len()];
+        for (row, &c) in codes.iter().enumerate() {
+            if col.is_valid(row) {
+                by_code[c as usize] += 1;
+            }
+        }
+        for (l, n) in levels.iter().zip(by_code) {
+            if n > 0 {
+                counts.insert(l.clone(), n);
+            }
+        }
+    } else {
+        for row in 0..col.len() {
+            if let Some(l) = col.label(row) {
+                *counts.entry(l).or_default() += 1;
+            }
+        }
+    }
+    let mut v: Vec<LevelCount> = counts.into_iter().map(|(level, count)| LevelCount { level, count }).collect();
+    v.sort_by(|a, b| b.count.cmp(&a.count).then_with(|| a.level.cmp(&b.level)));
+    v
+}
+
+fn summarise_column(col: &Column, rows: usize, roles: &Roles, categorical: bool) -> ColumnSummary {
+    let missing = col.null_count();
+    let (numeric, top_levels, distinct, rare_levels) = if categorical || col.is_text() {
+        let levels = level_counts(col);
+        let rare = levels.iter().filter(|l| l.count < RARE_LEVEL_ROWS).count();
+        (None, levels.iter().take(5).cloned().collect(), levels.len(), rare)
+    } else {
+        let values: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
+        let mut sorted = values.clone();
+        sorted.sort_by(f64::total_cmp);
+        sorted.dedup();
+        (numeric_stats(values), Vec::new(), sorted.len(), 0)
+    };
+    ColumnSummary {
+        name: col.name.clone(),
+        kind: col.kind_name().to_string(),
+        source_type: col.source_type.clone(),
+        role: roles.role_of(&col.name).to_string(),
+        categorical: categorical || col.is_text(),
+        missing,
+        missing_share: if rows == 0 { 0.0 } else { missing as f64 / rows as f64 },
+        distinct,
+        numeric,
+        top_levels,
+        rare_levels,
+    }
+}
+
+/// Summarises every column, the target, and the warnings a reviewer should see.
+pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
+    let columns: Vec<ColumnSummary> = table
+        .columns
+        .iter()
+        .map(|c| {
+            let categorical = roles.features.iter().any(|f| f.name == c.name && f.categorical);
+            summarise_column(c, table.rows, roles, categorical)
+        })
+        .collect();
+    let mut warnings = Vec::new();
+    for c in columns.iter().filter(|c| c.role == "feature") {
+        if c.distinct <= 1 {
+            warnings.push(format!("feature `{}` is constant: it carries no information", c.name));
+        }
+        if c.distinct == table.rows && table.rows > 20 && (c.kind == "integer" || c.kind == "string") {
+            warnings.push(format!("feature `{}` is unique per row, like an identifier: consider listing it in data.ids", c.name));
+        }
+        if c.missing_share > MOSTLY_MISSING_SHARE {
+            warnings.push(format!(
+                "feature `{}` is missing in {:.1}% of rows (more than {:.0}%, common practice)",
+                c.name,
+                100.0 * c.missing_share,
+                100.0 * MOSTLY_MISSING_SHARE
+            ));
+        }
+    }
+    let target_summary = match target {
+        Target::Classes { labels, rows } => {
+            let mut counts = vec![0usize; labels.len()];
+            for &c in rows {
+                counts[c] += 1;
+            }
+            TargetSummary {
+                name: roles.target.clone(),
+                classes: labels.iter().zip(counts).map(|(l, n)| LevelCount { level: l.clone(), count: n }).collect(),
+                distribution: None,
+            }
+        }
+        Target::Values(v) => TargetSummary { name: roles.target.clone(), classes: Vec::new(), distribution: numeric_stats(v.clone()) },
+    };
+    DataSummary { rows: table.rows, columns, target: target_summary, warnings }
+}

@@ -1,0 +1,117 @@
+//! The crate's typed errors: every failure a user can cause names the file, and the key or column,
+//! and the line where it is known. Library code returns these; only `main.rs` turns them into text
+//! and exit codes.
+
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+/// A problem in an experiment manifest, located as precisely as the parser allows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ManifestError {
+    pub file: PathBuf,
+    /// Dotted key, e.g. `model.dropout`, when the problem belongs to one key.
+    pub key: Option<String>,
+    /// 1-based line and column of the key or value, when known.
+    pub line: Option<usize>,
+    pub column: Option<usize>,
+    pub message: String,
+    /// A suggestion such as the nearest valid key name.
+    pub hint: Option<String>,
+}
+
+impl fmt::Display for ManifestError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}", self.file.display())?;
+        if let Some(line) = self.line {
+            write!(f, ":{line}")?;
+            if let Some(column) = self.column {
+                write!(f, ":{column}")?;
+            }
+        }
+        write!(f, ": ")?;
+        if let Some(key) = &self.key {
+            write!(f, "key `{key}`: ")?;
+        }
+        write!(f, "{}", self.message)?;
+        if let Some(hint) = &self.hint {
+            write!(f, " ({hint})")?;
+        }
+        Ok(())
+    }
+}
+
+/// Every error the library reports.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    #[error("{0}")]
+    Manifest(Box<ManifestError>),
+
+    /// A problem with a data file, optionally tied to one column.
+    #[error("{}: {}{message}", file.display(), column.as_ref().map(|c| format!("column `{c}`: ")).unwrap_or_default())]
+    Data {
+        file: PathBuf,
+        column: Option<String>,
+        message: String,
+    },
+
+    #[error("{}: cannot {action}: {source}", path.display())]
+    Io {
+        path: PathBuf,
+        action: &'static str,
+        #[source]
+        source: std::io::Error,
+    },
+
+    /// A results folder that is missing pieces, was tampered with, or comes from another version.
+    #[error("{}: {message}", path.display())]
+    Store { path: PathBuf, message: String },
+
+    /// A failure inside the numerical engine (a bug or an unsupported shape, never user input).
+    #[error("training engine: {0}")]
+    Engine(String),
+
+    /// The command line asked for something that cannot be done.
+    #[error("{0}")]
+    Usage(String),
+}
+
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+impl Error {
+    pub fn io(path: impl AsRef<Path>, action: &'static str, source: std::io::Error) -> Self {
+        Error::Io { path: path.as_ref().to_path_buf(), action, source }
+    }
+
+    pub fn data(file: impl AsRef<Path>, column: Option<&str>, message: impl Into<String>) -> Self {
+        Error::Data {
+            file: file.as_ref().to_path_buf(),
+            column: column.map(str::to_string),
+            message: message.into(),
+        }
+    }
+
+    pub fn store(path: impl AsRef<Path>, message: impl Into<String>) -> Self {
+        Error::Store { path: path.as_ref().to_path_buf(), message: message.into() }
+    }
+
+    /// Exit status for scripts: 2 bad input, 3 results store, 4 engine, 1 anything else.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) => 2,
+            Error::Store { .. } | Error::Io { .. } => 3,
+            Error::Engine(_) => 4,
+        }
+    }
+}
+
+impl From<ManifestError> for Error {
+    fn from(e: ManifestError) -> Self {
+        Error::Manifest(Box::new(e))
+    }
+}
+
+impl From<candle_core::Error> for Error {
+    fn from(e: candle_core::Error) -> Self {
+        Error::Engine(e.to_string())
+    }
+}

@@ -1,0 +1,101 @@
+//! An experiment resolved from its manifest and its data: the canonical manifest and its hash, both
+//! data fingerprints, the experiment fingerprint that names everything it produces, column roles,
+//! the encoded target, the data summary and the split.
+
+use std::path::{Path, PathBuf};
+
+use crate::data::parquet::read_table;
+use crate::data::roles::{resolve, Roles, Target};
+use crate::data::split::{split, Splits};
+use crate::data::summary::{summarise, DataSummary};
+use crate::data::table::Table;
+use crate::error::Result;
+use crate::fingerprint::{experiment_fingerprint, file_sha256};
+use crate::manifest::{self, LoadedManifest, Manifest};
+
+pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// The data file's identity.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct DataFingerprints {
+    /// The path as the manifest gives it.
+    pub path: String,
+    /// SHA-256 of the file's bytes.
+    pub file_sha256: String,
+    /// SHA-256 of the schema and values in row order, independent of the file's encoding.
+    pub content_sha256: String,
+    pub bytes: u64,
+    /// Whether the path leaves the manifest's folder (through `..`, an absolute path or a symlink).
+    pub outside_manifest_folder: bool,
+    /// The fully resolved location, for the provenance record.
+    pub resolved_path: String,
+}
+
+pub struct Experiment {
+    pub manifest_path: PathBuf,
+    pub manifest: Manifest,
+    pub manifest_sha256: String,
+    pub data_path: PathBuf,
+    pub data: DataFingerprints,
+    pub fingerprint: String,
+    pub table: Table,
+    pub roles: Roles,
+    pub target: Target,
+    pub summary: DataSummary,
+    pub splits: Splits,
+}
+
+impl Experiment {
+    /// The first 16 hex digits of the fingerprint: the results folder's name.
+    pub fn short_id(&self) -> &str {
+        &self.fingerprint[..16]
+    }
+}
+
+fn outside(manifest_path: &Path, data_path: &Path) -> (bool, String) {
+    let folder = manifest_path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    match (folder.canonicalize(), data_path.canonicalize()) {
+        (Ok(f), Ok(d)) => (!d.starts_with(&f), d.display().to_string()),
+        _ => (true, data_path.display().to_string()),
+    }
+}
+
+/// Loads a manifest and its data and resolves everything the runs need.
+pub fn open(manifest_path: &Path) -> Result<Experiment> {
+    let loaded = manifest::load(manifest_path)?;
+    open_loaded(loaded)
+}
+
+pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
+    let data_path = loaded.data_path();
+    let file_hash = file_sha256(&data_path)?;
+    let bytes = std::fs::metadata(&data_path).map(|m| m.len()).unwrap_or(0);
+    let table = read_table(&data_path)?;
+    let (roles, target) = resolve(&loaded.manifest, &table, &data_path)?;
+    let summary = summarise(&table, &roles, &target);
+    let splits = split(&target, &loaded.manifest.split, &data_path)?;
+    let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
+    let content = table.content_hash();
+    let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
+    let (outside_manifest_folder, resolved_path) = outside(&loaded.path, &data_path);
+    Ok(Experiment {
+        manifest_path: loaded.path,
+        data: DataFingerprints {
+            path: loaded.manifest.data.path.clone(),
+            file_sha256: file_hash,
+            content_sha256: content,
+            bytes,
+            outside_manifest_folder,
+            resolved_path,
+        },
+        manifest: loaded.manifest,
+        manifest_sha256,
+        data_path,
+        fingerprint,
+        table,
+        roles,
+        target,
+        summary,
+        splits,
+    })
+}

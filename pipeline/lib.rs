@@ -1,0 +1,21 @@
+//! tabcard: seeded, fingerprinted multilayer-perceptron experiments on tabular data, with model
+//! cards a reviewer can read and an auditor can rerun bit-for-bit.
+//!
+//! Data flows one way: manifest + Parquet -> [`experiment::Experiment`] -> [`plan::Plan`] -> runs
+//! -> results store -> card. Everything below `commands` is a library usable without a terminal.
+
+pub mod commands;
+pub mod data;
+pub mod demo;
+pub mod error;
+pub mod experiment;
+pub mod fingerprint;
+pub mod format;
+pub mod manifest;
+pub mod metrics;
+pub mod plan;
+pub mod rng;
+pub mod store;
+pub mod text;
+
+pub use error::{Error, Result};

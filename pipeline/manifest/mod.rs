@@ -1,0 +1,171 @@
+//! The experiment manifest: loading a TOML file into a validated, fully resolved [`Manifest`] with
+//! errors that point at file, key, line and column, and its canonical form and hash.
+
+pub mod grid;
+pub mod locate;
+pub mod schema;
+pub mod validate;
+
+use std::path::{Path, PathBuf};
+use toml::de::DeTable;
+
+pub use schema::*;
+
+use crate::error::{Error, ManifestError, Result};
+use crate::fingerprint::sha256_hex;
+use crate::metrics::registry;
+use locate::{key_at, line_col, nearest, span_of, KeyPath};
+use validate::Problem;
+
+/// A manifest loaded from disk, with where it came from.
+#[derive(Debug, Clone)]
+pub struct LoadedManifest {
+    pub path: PathBuf,
+    pub manifest: Manifest,
+}
+
+impl LoadedManifest {
+    /// The data file's path, resolved against the manifest's folder.
+    pub fn data_path(&self) -> PathBuf {
+        let base = self.path.parent().unwrap_or(Path::new("."));
+        base.join(&self.manifest.data.path)
+    }
+}
+
+/// Reads, parses, validates and resolves a manifest file.
+pub fn load(path: &Path) -> Result<LoadedManifest> {
+    let source = std::fs::read_to_string(path).map_err(|e| Error::io(path, "read the manifest", e))?;
+    let manifest = parse(path, &source)?;
+    Ok(LoadedManifest { path: path.to_path_buf(), manifest })
+}
+
+/// Parses and resolves manifest text; `path` is only used in error messages.
+pub fn parse(path: &Path, source: &str) -> Result<Manifest> {
+    let document = DeTable::parse(source).map_err(|e| syntax_error(path, source, &e))?;
+    let mut manifest: Manifest = toml::from_str(source).map_err(|e| schema_error(path, source, document.get_ref(), &e))?;
+    let located = |p: Problem| locate_problem(path, source, document.get_ref(), p);
+    if let Some(p) = validate::validate(&manifest).into_iter().next() {
+        return Err(located(p).into());
+    }
+    if let Some(p) = grid::normalise(&mut manifest).into_iter().next() {
+        return Err(located(p).into());
+    }
+    let runs = planned_run_count(&manifest);
+    if runs > manifest.sweep.max_runs {
+        return Err(located(Problem {
+            key: KeyPath::parse_dotted("sweep.grid"),
+            index: None,
+            message: format!(
+                "the grid ({} configurations) x {} seeds{} expands to {runs} runs, above sweep.max_runs = {}",
+                grid::point_count(&manifest),
+                manifest.sweep.seeds.len(),
+                if manifest.selection.baseline { " plus the baseline" } else { "" },
+                manifest.sweep.max_runs
+            ),
+            hint: Some("shrink the grid, or raise sweep.max_runs if this many runs is intended".into()),
+        })
+        .into());
+    }
+    if let Err(p) = grid::expand(&manifest) {
+        return Err(located(p).into());
+    }
+    if manifest.selection.metric.is_empty() {
+        manifest.selection.metric = registry::default_selection_metric(manifest.data.task).to_string();
+    }
+    Ok(manifest)
+}
+
+/// Grid points x seeds, plus the baseline's seeds.
+pub fn planned_run_count(m: &Manifest) -> usize {
+    let seeds = m.sweep.seeds.len();
+    grid::point_count(m).saturating_mul(seeds).saturating_add(if m.selection.baseline { seeds } else { 0 })
+}
+
+/// The canonical form: the resolved manifest as JSON with fixed key order (struct fields in schema
+/// order, maps sorted) and shortest round-trip floats. Comments, whitespace, key order and
+/// spelling of equal values in the TOML do not reach it; every change of meaning does.
+pub fn canonical_json(m: &Manifest) -> String {
+    // Serialising plain structs of strings, numbers and lists into a String cannot fail.
+    serde_json::to_string_pretty(m).unwrap_or_default() + "\n"
+}
+
+/// SHA-256 of the canonical form.
+pub fn canonical_hash(m: &Manifest) -> String {
+    sha256_hex(canonical_json(m).as_bytes())
+}
+
+fn syntax_error(path: &Path, source: &str, e: &toml::de::Error) -> Error {
+    let (line, column) = e.span().map(|s| line_col(source, s.start)).unzip();
+    ManifestError {
+        file: path.to_path_buf(),
+        key: None,
+        line,
+        column,
+        message: format!("malformed TOML: {}", e.message().trim()),
+        hint: None,
+    }
+    .into()
+}
+
+/// Text between the first pair of backticks after `marker`.
+fn quoted_after<'a>(message: &'a str, marker: &str) -> Option<&'a str> {
+    let rest = &message[message.find(marker)? + marker.len()..];
+    let start = rest.find('`')? + 1;
+    let len = rest[start..].find('`')?;
+    Some(&rest[start..start + len])
+}
+
+/// The backticked names listed after "expected one of".
+fn expected_names(message: &str) -> Vec<&str> {
+    match message.find("expected one of") {
+        Some(i) => message[i..].split('`').skip(1).step_by(2).collect(),
+        None => Vec::new(),
+    }
+}
+
+fn schema_error(path: &Path, source: &str, document: &DeTable<'_>, e: &toml::de::Error) -> Error {
+    let raw = e.message().trim().to_string();
+    let span = e.span();
+    let (line, column) = span.clone().map(|s| line_col(source, s.start)).unzip();
+    let located_key = span.and_then(|s| key_at(document, s.start));
+    let mut key = located_key.map(|(k, _)| k.to_string());
+    let mut hint = None;
+    let message = if let Some(field) = quoted_after(&raw, "unknown field") {
+        let expected = expected_names(&raw);
+        hint = nearest(field, expected.iter().copied()).map(|n| format!("did you mean `{n}`?"));
+        if hint.is_none() && !expected.is_empty() {
+            hint = Some(format!("valid keys here: {}", expected.join(", ")));
+        }
+        format!("unknown key `{field}`")
+    } else if let Some(variant) = quoted_after(&raw, "unknown variant") {
+        let expected = expected_names(&raw);
+        hint = nearest(variant, expected.iter().copied())
+            .map(|n| format!("did you mean `{n}`?"))
+            .or_else(|| Some(format!("one of {}", expected.join(", "))));
+        format!("unknown value `{variant}`")
+    } else if let Some(field) = quoted_after(&raw, "missing field") {
+        let table = key.take().unwrap_or_default();
+        key = Some(if table.is_empty() { field.to_string() } else { format!("{table}.{field}") });
+        "is required but missing".to_string()
+    } else {
+        raw
+    };
+    ManifestError { file: path.to_path_buf(), key, line, column, message, hint }.into()
+}
+
+fn locate_problem(path: &Path, source: &str, document: &DeTable<'_>, p: Problem) -> ManifestError {
+    // Point at the value (or the key when the value is absent, as for a default), falling back to
+    // the parent table, so that the line is right even for keys left at their defaults.
+    let mut span = span_of(document, &p.key, p.index);
+    let mut parent = p.key.clone();
+    while span.is_none() && parent.0.len() > 1 {
+        parent.0.pop();
+        span = span_of(document, &parent, None);
+    }
+    let (line, column) = span.map(|s| line_col(source, s.start)).unzip();
+    let key = match p.index {
+        Some(i) => format!("{}[{i}]", p.key),
+        None => p.key.to_string(),
+    };
+    ManifestError { file: path.to_path_buf(), key: Some(key), line, column, message: p.message, hint: p.hint }
+}

@@ -1,0 +1,400 @@
+//! The experiment manifest's schema: every section and key, its type and its documented default.
+//! Parsing rejects unknown keys; value ranges and cross-key rules live in `validate.rs`.
+
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// One experiment, fully resolved (defaults filled in).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Manifest {
+    pub experiment: ExperimentInfo,
+    pub data: DataSpec,
+    #[serde(default)]
+    pub split: SplitSpec,
+    #[serde(default)]
+    pub model: ModelSpec,
+    #[serde(default)]
+    pub training: TrainingSpec,
+    #[serde(default)]
+    pub selection: SelectionSpec,
+    #[serde(default)]
+    pub sweep: SweepSpec,
+}
+
+/// Who owns the experiment and what the model is for.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ExperimentInfo {
+    pub name: String,
+    #[serde(default)]
+    pub description: String,
+    #[serde(default)]
+    pub intended_use: String,
+    #[serde(default)]
+    pub out_of_scope: String,
+    #[serde(default)]
+    pub owner: String,
+    /// Whether the model's outputs feed decisions about people (credit, insurance, health,
+    /// employment). Defaults to true: the card then carries the cautions such use requires.
+    #[serde(default = "yes")]
+    pub affects_people: bool,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Task {
+    Binary,
+    Multiclass,
+    Regression,
+}
+
+impl Task {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Task::Binary => "binary",
+            Task::Multiclass => "multiclass",
+            Task::Regression => "regression",
+        }
+    }
+}
+
+/// Where the data is and how its columns are used.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DataSpec {
+    /// Parquet file, relative to the manifest's folder.
+    pub path: String,
+    pub target: String,
+    pub task: Task,
+    /// Columns to use as features; empty means every column not named as target, id or dropped.
+    #[serde(default)]
+    pub features: Vec<String>,
+    #[serde(default)]
+    pub drop: Vec<String>,
+    /// Numeric columns to treat as categories (string and dictionary columns always are).
+    #[serde(default)]
+    pub categorical: Vec<String>,
+    /// Row identifiers: never features, carried through to predictions.
+    #[serde(default)]
+    pub ids: Vec<String>,
+    /// For a binary task with a string target: the label that counts as positive.
+    #[serde(default)]
+    pub positive_label: Option<String>,
+    /// Columns describing groups of people, for per-group metrics; not used as features.
+    #[serde(default)]
+    pub group_columns: Vec<String>,
+}
+
+/// How rows are split into training, validation and test sets.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SplitSpec {
+    #[serde(default = "default_fraction")]
+    pub validation: f64,
+    #[serde(default = "default_fraction")]
+    pub test: f64,
+    /// Keep class shares equal across splits (classification only).
+    #[serde(default = "yes")]
+    pub stratify: bool,
+    #[serde(default)]
+    pub seed: u64,
+}
+
+impl Default for SplitSpec {
+    fn default() -> Self {
+        SplitSpec { validation: 0.2, test: 0.2, stratify: true, seed: 0 }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Activation {
+    Relu,
+    Sigmoid,
+    Tanh,
+    Gelu,
+    Identity,
+}
+
+impl Activation {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Activation::Relu => "relu",
+            Activation::Sigmoid => "sigmoid",
+            Activation::Tanh => "tanh",
+            Activation::Gelu => "gelu",
+            Activation::Identity => "identity",
+        }
+    }
+}
+
+/// The network's architecture and its architectural regularizers.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ModelSpec {
+    /// Widths of the hidden layers, input side first.
+    #[serde(default = "default_hidden")]
+    pub hidden: Vec<usize>,
+    #[serde(default = "default_activation")]
+    pub activation: Activation,
+    /// Hidden layers after the first become residual blocks x + f(x); widths must match.
+    #[serde(default)]
+    pub residual: bool,
+    #[serde(default)]
+    pub batch_norm: bool,
+    /// Probability of dropping a hidden unit while training (inverted dropout).
+    #[serde(default)]
+    pub dropout: f64,
+    /// Standard deviation of Gaussian noise added to standardised inputs while training.
+    #[serde(default)]
+    pub input_noise: f64,
+}
+
+impl Default for ModelSpec {
+    fn default() -> Self {
+        ModelSpec {
+            hidden: default_hidden(),
+            activation: default_activation(),
+            residual: false,
+            batch_norm: false,
+            dropout: 0.0,
+            input_noise: 0.0,
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Optimizer {
+    Sgd,
+    Adam,
+    Adamw,
+}
+
+impl Optimizer {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Optimizer::Sgd => "sgd",
+            Optimizer::Adam => "adam",
+            Optimizer::Adamw => "adamw",
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Schedule {
+    Constant,
+    Step,
+    Cosine,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum RegressionLoss {
+    Mse,
+    Huber,
+}
+
+/// Optimisation settings and the training-time regularizers.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TrainingSpec {
+    #[serde(default = "default_optimizer")]
+    pub optimizer: Optimizer,
+    #[serde(default = "default_learning_rate")]
+    pub learning_rate: f64,
+    /// Decoupled weight decay (AdamW; plain decay for SGD): w <- w - lr * weight_decay * w.
+    #[serde(default)]
+    pub weight_decay: f64,
+    /// Coupled L2 penalty: adds l2_penalty / 2 * ||W||^2 to the loss, so it passes through the
+    /// optimizer's moment estimates.
+    #[serde(default)]
+    pub l2_penalty: f64,
+    #[serde(default = "default_momentum")]
+    pub momentum: f64,
+    #[serde(default)]
+    pub nesterov: bool,
+    #[serde(default = "default_beta1")]
+    pub beta1: f64,
+    #[serde(default = "default_beta2")]
+    pub beta2: f64,
+    #[serde(default = "default_epsilon")]
+    pub epsilon: f64,
+    #[serde(default = "default_epochs")]
+    pub epochs: usize,
+    #[serde(default = "default_batch_size")]
+    pub batch_size: usize,
+    #[serde(default = "default_schedule")]
+    pub schedule: Schedule,
+    /// Epochs of linear warm-up before the schedule starts.
+    #[serde(default)]
+    pub warmup_epochs: usize,
+    /// Step schedule: multiply the rate by `step_gamma` every `step_epochs` epochs.
+    #[serde(default = "default_step_epochs")]
+    pub step_epochs: usize,
+    #[serde(default = "default_step_gamma")]
+    pub step_gamma: f64,
+    /// Clip the global gradient norm to this value; 0 turns clipping off.
+    #[serde(default)]
+    pub clip_norm: f64,
+    /// Regression only: mean squared error or Huber.
+    #[serde(default = "default_regression_loss")]
+    pub loss: RegressionLoss,
+    #[serde(default = "default_huber_delta")]
+    pub huber_delta: f64,
+    #[serde(default)]
+    pub early_stopping: EarlyStopping,
+}
+
+impl Default for TrainingSpec {
+    fn default() -> Self {
+        TrainingSpec {
+            optimizer: default_optimizer(),
+            learning_rate: default_learning_rate(),
+            weight_decay: 0.0,
+            l2_penalty: 0.0,
+            momentum: default_momentum(),
+            nesterov: false,
+            beta1: default_beta1(),
+            beta2: default_beta2(),
+            epsilon: default_epsilon(),
+            epochs: default_epochs(),
+            batch_size: default_batch_size(),
+            schedule: default_schedule(),
+            warmup_epochs: 0,
+            step_epochs: default_step_epochs(),
+            step_gamma: default_step_gamma(),
+            clip_norm: 0.0,
+            loss: default_regression_loss(),
+            huber_delta: default_huber_delta(),
+            early_stopping: EarlyStopping::default(),
+        }
+    }
+}
+
+/// Stop when the validation loss has not improved by `min_delta` for `patience` epochs, and keep the
+/// best epoch's weights.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EarlyStopping {
+    #[serde(default = "yes")]
+    pub enabled: bool,
+    #[serde(default = "default_patience")]
+    pub patience: usize,
+    #[serde(default)]
+    pub min_delta: f64,
+}
+
+impl Default for EarlyStopping {
+    fn default() -> Self {
+        EarlyStopping { enabled: true, patience: default_patience(), min_delta: 0.0 }
+    }
+}
+
+/// How the best configuration is chosen.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SelectionSpec {
+    /// Validation metric to select on; empty picks the task's default (binary: roc_auc,
+    /// multiclass: log_loss, regression: rmse). Its direction follows from the metric.
+    #[serde(default)]
+    pub metric: String,
+    /// Train a linear baseline (no hidden layer) on the same seeds.
+    #[serde(default = "yes")]
+    pub baseline: bool,
+    /// Bootstrap resamples for the test-metric confidence intervals.
+    #[serde(default = "default_bootstrap")]
+    pub bootstrap: usize,
+}
+
+impl Default for SelectionSpec {
+    fn default() -> Self {
+        SelectionSpec { metric: String::new(), baseline: true, bootstrap: default_bootstrap() }
+    }
+}
+
+/// The grid of configurations and the seeds each is trained with.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SweepSpec {
+    #[serde(default = "default_seeds")]
+    pub seeds: Vec<u64>,
+    /// Dotted keys (`model.dropout`) to the list of values to try; the grid is their product.
+    #[serde(default)]
+    pub grid: BTreeMap<String, Vec<serde_json::Value>>,
+    /// Refuse a plan with more runs than this.
+    #[serde(default = "default_max_runs")]
+    pub max_runs: usize,
+}
+
+impl Default for SweepSpec {
+    fn default() -> Self {
+        SweepSpec { seeds: default_seeds(), grid: BTreeMap::new(), max_runs: default_max_runs() }
+    }
+}
+
+fn yes() -> bool {
+    true
+}
+fn default_fraction() -> f64 {
+    0.2
+}
+fn default_hidden() -> Vec<usize> {
+    vec![64, 64]
+}
+fn default_activation() -> Activation {
+    Activation::Relu
+}
+fn default_optimizer() -> Optimizer {
+    Optimizer::Adamw
+}
+fn default_learning_rate() -> f64 {
+    1e-3
+}
+fn default_momentum() -> f64 {
+    0.9
+}
+fn default_beta1() -> f64 {
+    0.9
+}
+fn default_beta2() -> f64 {
+    0.999
+}
+fn default_epsilon() -> f64 {
+    1e-8
+}
+fn default_epochs() -> usize {
+    100
+}
+fn default_batch_size() -> usize {
+    256
+}
+fn default_schedule() -> Schedule {
+    Schedule::Constant
+}
+fn default_step_epochs() -> usize {
+    10
+}
+fn default_step_gamma() -> f64 {
+    0.5
+}
+fn default_regression_loss() -> RegressionLoss {
+    RegressionLoss::Mse
+}
+fn default_huber_delta() -> f64 {
+    1.0
+}
+fn default_patience() -> usize {
+    10
+}
+fn default_bootstrap() -> usize {
+    1000
+}
+fn default_seeds() -> Vec<u64> {
+    vec![1, 2, 3]
+}
+fn default_max_runs() -> usize {
+    500
+}

@@ -1,0 +1,186 @@
+//! Value ranges and cross-key rules of a parsed manifest. Each problem names its key path; the
+//! loader turns that path into a line and column.
+
+use super::locate::KeyPath;
+use super::schema::*;
+use crate::metrics::registry;
+
+/// One problem found in a manifest.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Problem {
+    pub key: KeyPath,
+    /// Element of an array value the problem belongs to, if any.
+    pub index: Option<usize>,
+    pub message: String,
+    pub hint: Option<String>,
+}
+
+struct Collector(Vec<Problem>);
+
+impl Collector {
+    fn check(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
+        if !ok {
+            self.0.push(Problem { key: KeyPath::parse_dotted(key), index: None, message: message(), hint: None });
+        }
+    }
+
+    fn hint(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String, hint: &str) {
+        if !ok {
+            self.0.push(Problem {
+                key: KeyPath::parse_dotted(key),
+                index: None,
+                message: message(),
+                hint: Some(hint.to_string()),
+            });
+        }
+    }
+}
+
+/// Checks the parts of a manifest a sweep can vary: model and training settings.
+pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingSpec) -> Vec<Problem> {
+    let mut c = Collector(Vec::new());
+    c.hint(!model.hidden.is_empty(), "model.hidden", || "must list at least one hidden width".into(),
+        "the linear baseline without hidden layers is trained automatically; see selection.baseline");
+    if let Some(i) = model.hidden.iter().position(|&w| w == 0 || w > 65_536) {
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("model.hidden"),
+            index: Some(i),
+            message: format!("width {} must be between 1 and 65536", model.hidden[i]),
+            hint: None,
+        });
+    }
+    c.check((0.0..1.0).contains(&model.dropout), "model.dropout", || {
+        format!("must be in [0, 1), got {}", model.dropout)
+    });
+    c.check(model.input_noise.is_finite() && model.input_noise >= 0.0, "model.input_noise", || {
+        format!("must be a finite standard deviation >= 0, got {}", model.input_noise)
+    });
+    if model.residual {
+        if model.hidden.len() < 2 {
+            c.check(false, "model.residual", || {
+                "needs at least two hidden layers: the first projects the inputs, later equal-width layers become residual blocks".into()
+            });
+        } else if let Some(i) = (1..model.hidden.len()).find(|&i| model.hidden[i] != model.hidden[i - 1]) {
+            c.check(false, "model.residual", || {
+                format!(
+                    "hidden widths {:?} differ at layer {} ({} -> {}); a residual block x + f(x) needs equal widths",
+                    model.hidden, i + 1, model.hidden[i - 1], model.hidden[i]
+                )
+            });
+        }
+    }
+
+    let t = training;
+    c.check(t.learning_rate.is_finite() && t.learning_rate > 0.0, "training.learning_rate", || {
+        format!("must be a positive number, got {}", t.learning_rate)
+    });
+    c.check(t.weight_decay.is_finite() && t.weight_decay >= 0.0, "training.weight_decay", || {
+        format!("must be >= 0, got {}", t.weight_decay)
+    });
+    c.check(t.l2_penalty.is_finite() && t.l2_penalty >= 0.0, "training.l2_penalty", || {
+        format!("must be >= 0, got {}", t.l2_penalty)
+    });
+    c.hint(!(t.optimizer == Optimizer::Adam && t.weight_decay > 0.0), "training.weight_decay", || {
+        "adam applies no decoupled weight decay".into()
+    }, "use optimizer = \"adamw\" for decoupled decay, or l2_penalty for a coupled penalty");
+    c.check((0.0..1.0).contains(&t.momentum), "training.momentum", || format!("must be in [0, 1), got {}", t.momentum));
+    c.check(!t.nesterov || (t.optimizer == Optimizer::Sgd && t.momentum > 0.0), "training.nesterov", || {
+        "Nesterov momentum needs optimizer = \"sgd\" and momentum > 0".into()
+    });
+    c.check((0.0..1.0).contains(&t.beta1), "training.beta1", || format!("must be in [0, 1), got {}", t.beta1));
+    c.check((0.0..1.0).contains(&t.beta2), "training.beta2", || format!("must be in [0, 1), got {}", t.beta2));
+    c.check(t.epsilon.is_finite() && t.epsilon > 0.0, "training.epsilon", || format!("must be > 0, got {}", t.epsilon));
+    c.check((1..=100_000).contains(&t.epochs), "training.epochs", || format!("must be between 1 and 100000, got {}", t.epochs));
+    c.check((1..=1_000_000).contains(&t.batch_size), "training.batch_size", || {
+        format!("must be between 1 and 1000000, got {}", t.batch_size)
+    });
+    c.check(t.warmup_epochs < t.epochs, "training.warmup_epochs", || {
+        format!("must be smaller than epochs ({}), got {}", t.epochs, t.warmup_epochs)
+    });
+    c.check(t.step_epochs >= 1, "training.step_epochs", || "must be at least 1".into());
+    c.check(t.step_gamma > 0.0 && t.step_gamma <= 1.0, "training.step_gamma", || {
+        format!("must be in (0, 1], got {}", t.step_gamma)
+    });
+    c.check(t.clip_norm.is_finite() && t.clip_norm >= 0.0, "training.clip_norm", || {
+        format!("must be >= 0 (0 turns clipping off), got {}", t.clip_norm)
+    });
+    c.check(t.huber_delta.is_finite() && t.huber_delta > 0.0, "training.huber_delta", || {
+        format!("must be > 0, got {}", t.huber_delta)
+    });
+    c.check(!(t.loss == RegressionLoss::Huber && task != Task::Regression), "training.loss", || {
+        format!("\"huber\" is a regression loss, but data.task is \"{}\"", task.as_str())
+    });
+    c.check(!t.early_stopping.enabled || t.early_stopping.patience >= 1, "training.early_stopping.patience", || {
+        "must be at least 1 when early stopping is enabled".into()
+    });
+    c.check(t.early_stopping.min_delta.is_finite() && t.early_stopping.min_delta >= 0.0, "training.early_stopping.min_delta", || {
+        format!("must be >= 0, got {}", t.early_stopping.min_delta)
+    });
+    c.0
+}
+
+/// Checks a whole manifest except the grid's values (see `grid.rs`).
+pub fn validate(m: &Manifest) -> Vec<Problem> {
+    let mut c = Collector(Vec::new());
+    c.check(!m.experiment.name.trim().is_empty(), "experiment.name", || "must not be empty".into());
+    c.check(!m.data.path.trim().is_empty(), "data.path", || "must name a Parquet file".into());
+    c.check(!m.data.target.trim().is_empty(), "data.target", || "must name the target column".into());
+    for (list, key) in [(&m.data.features, "data.features"), (&m.data.drop, "data.drop"), (&m.data.ids, "data.ids"), (&m.data.categorical, "data.categorical"), (&m.data.group_columns, "data.group_columns")] {
+        if let Some(i) = list.iter().position(|c| c == &m.data.target) {
+            if key != "data.categorical" {
+                c.0.push(Problem {
+                    key: KeyPath::parse_dotted(key),
+                    index: Some(i),
+                    message: format!("lists the target column `{}`", m.data.target),
+                    hint: None,
+                });
+            }
+        }
+        let mut seen = std::collections::BTreeSet::new();
+        if let Some(i) = list.iter().position(|c| !seen.insert(c)) {
+            c.0.push(Problem { key: KeyPath::parse_dotted(key), index: Some(i), message: format!("lists `{}` twice", list[i]), hint: None });
+        }
+    }
+    if let Some(i) = m.data.features.iter().position(|f| m.data.drop.contains(f) || m.data.ids.contains(f)) {
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("data.features"),
+            index: Some(i),
+            message: format!("`{}` is also listed in data.drop or data.ids", m.data.features[i]),
+            hint: None,
+        });
+    }
+    c.check(m.data.positive_label.is_none() || m.data.task == Task::Binary, "data.positive_label", || {
+        "only applies to task = \"binary\"".into()
+    });
+
+    let s = &m.split;
+    c.check(s.validation > 0.0 && s.validation < 1.0, "split.validation", || format!("must be in (0, 1), got {}", s.validation));
+    c.check(s.test > 0.0 && s.test < 1.0, "split.test", || format!("must be in (0, 1), got {}", s.test));
+    c.check(s.validation + s.test < 1.0, "split.test", || {
+        format!("validation + test = {} must be below 1 so rows remain for training", s.validation + s.test)
+    });
+
+    c.0.extend(validate_run_settings(m.data.task, &m.model, &m.training));
+
+    if !m.selection.metric.is_empty() && registry::direction(m.data.task, &m.selection.metric).is_none() {
+        let names = registry::names(m.data.task);
+        let hint = super::locate::nearest(&m.selection.metric, names.iter().copied())
+            .map(|n| format!("did you mean `{n}`?"))
+            .unwrap_or_else(|| format!("one of {}", names.join(", ")));
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("selection.metric"),
+            index: None,
+            message: format!("`{}` is not a {} metric", m.selection.metric, m.data.task.as_str()),
+            hint: Some(hint),
+        });
+    }
+    c.check(m.selection.bootstrap <= 100_000, "selection.bootstrap", || format!("must be at most 100000, got {}", m.selection.bootstrap));
+
+    c.check(!m.sweep.seeds.is_empty(), "sweep.seeds", || "must list at least one seed: the plan would have no runs".into());
+    let mut seen = std::collections::BTreeSet::new();
+    if let Some(i) = m.sweep.seeds.iter().position(|s| !seen.insert(*s)) {
+        c.0.push(Problem { key: KeyPath::parse_dotted("sweep.seeds"), index: Some(i), message: format!("seed {} is listed twice", m.sweep.seeds[i]), hint: None });
+    }
+    c.check(m.sweep.max_runs >= 1, "sweep.max_runs", || "must be at least 1".into());
+    c.0
+}

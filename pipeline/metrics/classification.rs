@@ -1,0 +1,219 @@
+//! Classification metrics. Probabilities are row-major `n x k` (k >= 2; a binary model's rows are
+//! `[1 - p, p]`); labels are class indices. The predicted class is the arg-max, first index winning
+//! ties, so a binary prediction is positive when p > 0.5.
+
+use super::MetricSet;
+
+/// Per-class precision, recall, F1 and support; a zero denominator gives 0 (as scikit-learn's
+/// `zero_division=0`).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ClassReport {
+    pub precision: f64,
+    pub recall: f64,
+    pub f1: f64,
+    pub support: usize,
+}
+
+pub fn argmax(row: &[f64]) -> usize {
+    let mut best = 0;
+    for (i, &v) in row.iter().enumerate() {
+        if v > row[best] {
+            best = i;
+        }
+    }
+    best
+}
+
+pub fn predicted_classes(probs: &[f64], k: usize) -> Vec<usize> {
+    probs.chunks_exact(k).map(argmax).collect()
+}
+
+/// `matrix[true][predicted]`.
+pub fn confusion_matrix(labels: &[usize], predicted: &[usize], k: usize) -> Vec<Vec<usize>> {
+    let mut m = vec![vec![0usize; k]; k];
+    for (&t, &p) in labels.iter().zip(predicted) {
+        m[t][p] += 1;
+    }
+    m
+}
+
+pub fn accuracy(labels: &[usize], predicted: &[usize]) -> Option<f64> {
+    if labels.is_empty() {
+        return None;
+    }
+    let hits = labels.iter().zip(predicted).filter(|(t, p)| t == p).count();
+    Some(hits as f64 / labels.len() as f64)
+}
+
+/// Mean recall over the classes present in `labels`.
+pub fn balanced_accuracy(labels: &[usize], predicted: &[usize], k: usize) -> Option<f64> {
+    let m = confusion_matrix(labels, predicted, k);
+    let recalls: Vec<f64> = (0..k)
+        .filter_map(|c| {
+            let support: usize = m[c].iter().sum();
+            (support > 0).then(|| m[c][c] as f64 / support as f64)
+        })
+        .collect();
+    (!recalls.is_empty()).then(|| recalls.iter().sum::<f64>() / recalls.len() as f64)
+}
+
+pub fn per_class(labels: &[usize], predicted: &[usize], k: usize) -> Vec<ClassReport> {
+    let m = confusion_matrix(labels, predicted, k);
+    let ratio = |a: usize, b: usize| if b == 0 { 0.0 } else { a as f64 / b as f64 };
+    (0..k)
+        .map(|c| {
+            let tp = m[c][c];
+            let support: usize = m[c].iter().sum();
+            let predicted_c: usize = (0..k).map(|t| m[t][c]).sum();
+            let precision = ratio(tp, predicted_c);
+            let recall = ratio(tp, support);
+            let f1 = if precision + recall == 0.0 { 0.0 } else { 2.0 * precision * recall / (precision + recall) };
+            ClassReport { precision, recall, f1, support }
+        })
+        .collect()
+}
+
+/// Mean negative log-likelihood; probabilities are clipped to [eps, 1 - eps] with eps the f64
+/// machine epsilon and each row renormalised, as scikit-learn's `log_loss` does.
+pub fn log_loss(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
+    if labels.is_empty() {
+        return None;
+    }
+    let eps = f64::EPSILON;
+    let mut total = 0.0;
+    for (row, &y) in probs.chunks_exact(k).zip(labels) {
+        let clipped: Vec<f64> = row.iter().map(|p| p.clamp(eps, 1.0 - eps)).collect();
+        let sum: f64 = clipped.iter().sum();
+        total -= (clipped[y] / sum).ln();
+    }
+    Some(total / labels.len() as f64)
+}
+
+/// Brier score: for two classes the mean of (p - y)^2 on the positive class; for more, the mean
+/// over rows of the squared distance between the probability vector and the one-hot label.
+pub fn brier(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
+    if labels.is_empty() {
+        return None;
+    }
+    let total: f64 = if k == 2 {
+        probs.chunks_exact(2).zip(labels).map(|(r, &y)| (r[1] - (y == 1) as u8 as f64).powi(2)).sum()
+    } else {
+        probs
+            .chunks_exact(k)
+            .zip(labels)
+            .map(|(r, &y)| r.iter().enumerate().map(|(c, p)| (p - (c == y) as u8 as f64).powi(2)).sum::<f64>())
+            .sum()
+    };
+    Some(total / labels.len() as f64)
+}
+
+/// Ranks 1..n of `scores`, tied scores sharing their average rank.
+fn average_ranks(scores: &[f64]) -> Vec<f64> {
+    let mut order: Vec<usize> = (0..scores.len()).collect();
+    order.sort_by(|&a, &b| scores[a].total_cmp(&scores[b]));
+    let mut ranks = vec![0.0; scores.len()];
+    let mut i = 0;
+    while i < order.len() {
+        let mut j = i;
+        while j + 1 < order.len() && scores[order[j + 1]] == scores[order[i]] {
+            j += 1;
+        }
+        let rank = (i + j) as f64 / 2.0 + 1.0;
+        for &idx in &order[i..=j] {
+            ranks[idx] = rank;
+        }
+        i = j + 1;
+    }
+    ranks
+}
+
+/// ROC AUC as the Mann-Whitney U statistic over (positive, negative) pairs, ties counting one half.
+/// `None` when either class is absent.
+pub fn roc_auc(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
+    let n_pos = is_positive.iter().filter(|&&p| p).count();
+    let n_neg = is_positive.len() - n_pos;
+    if n_pos == 0 || n_neg == 0 {
+        return None;
+    }
+    let ranks = average_ranks(scores);
+    let rank_sum: f64 = ranks.iter().zip(is_positive).filter(|(_, &p)| p).map(|(r, _)| r).sum();
+    let u = rank_sum - (n_pos * (n_pos + 1)) as f64 / 2.0;
+    Some(u / (n_pos as f64 * n_neg as f64))
+}
+
+/// Average precision: sum over distinct thresholds (descending) of (R_i - R_{i-1}) * P_i, the
+/// step-wise area under the precision-recall curve (scikit-learn's `average_precision_score`).
+pub fn average_precision(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
+    let n_pos = is_positive.iter().filter(|&&p| p).count();
+    if n_pos == 0 {
+        return None;
+    }
+    let mut order: Vec<usize> = (0..scores.len()).collect();
+    order.sort_by(|&a, &b| scores[b].total_cmp(&scores[a]));
+    let (mut tp, mut fp, mut last_recall, mut ap) = (0usize, 0usize, 0.0, 0.0);
+    let mut i = 0;
+    while i < order.len() {
+        let threshold = scores[order[i]];
+        while i < order.len() && scores[order[i]] == threshold {
+            if is_positive[order[i]] {
+                tp += 1;
+            } else {
+                fp += 1;
+            }
+            i += 1;
+        }
+        let recall = tp as f64 / n_pos as f64;
+        let precision = tp as f64 / (tp + fp) as f64;
+        ap += (recall - last_recall) * precision;
+        last_recall = recall;
+    }
+    Some(ap)
+}
+
+/// One-vs-rest ROC AUC per class, averaged over the classes where it is defined (macro).
+pub fn macro_ovr_auc(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
+    let aucs: Vec<f64> = (0..k)
+        .filter_map(|c| {
+            let is_c: Vec<bool> = labels.iter().map(|&y| y == c).collect();
+            let scores: Vec<f64> = probs.chunks_exact(k).map(|r| r[c]).collect();
+            roc_auc(&is_c, &scores)
+        })
+        .collect();
+    (!aucs.is_empty()).then(|| aucs.iter().sum::<f64>() / aucs.len() as f64)
+}
+
+/// Every scalar classification metric, by the names in `registry`.
+pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
+    let predicted = predicted_classes(probs, k);
+    let mut m = MetricSet::new();
+    m.insert("accuracy".into(), accuracy(labels, &predicted));
+    m.insert("balanced_accuracy".into(), balanced_accuracy(labels, &predicted, k));
+    m.insert("log_loss".into(), log_loss(labels, probs, k));
+    m.insert("brier".into(), brier(labels, probs, k));
+    m.insert("ece".into(), super::calibration::expected_calibration_error(labels, probs, k, 10));
+    if k == 2 {
+        let is_pos: Vec<bool> = labels.iter().map(|&y| y == 1).collect();
+        let scores: Vec<f64> = probs.chunks_exact(2).map(|r| r[1]).collect();
+        m.insert("roc_auc".into(), roc_auc(&is_pos, &scores));
+        m.insert("pr_auc".into(), average_precision(&is_pos, &scores));
+    } else {
+        m.insert("roc_auc".into(), macro_ovr_auc(labels, probs, k));
+    }
+    m
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn single_class_auc_is_undefined_not_a_panic() {
+        assert_eq!(roc_auc(&[true, true], &[0.1, 0.9]), None);
+        assert_eq!(average_precision(&[false, false], &[0.1, 0.9]), None);
+    }
+
+    #[test]
+    fn constant_scores_give_auc_one_half() {
+        assert_eq!(roc_auc(&[true, false, true, false], &[0.3; 4]), Some(0.5));
+    }
+}

@@ -1,0 +1,95 @@
+//! The run plan: the grid's configurations (plus the linear baseline) times the seeds, each run
+//! named by a hash of the experiment fingerprint, its resolved configuration and its seed.
+
+use serde::{Deserialize, Serialize};
+use serde_json::Value;
+use std::collections::BTreeMap;
+
+use crate::fingerprint::sha256_hex;
+use crate::manifest::grid::expand;
+use crate::manifest::{Activation, Manifest, ModelSpec, TrainingSpec};
+
+/// The settings one run trains with: everything a grid can vary, resolved.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunConfig {
+    pub model: ModelSpec,
+    pub training: TrainingSpec,
+}
+
+impl RunConfig {
+    pub fn canonical_json(&self) -> String {
+        serde_json::to_string(self).unwrap_or_default()
+    }
+}
+
+/// One configuration of the plan: a grid point or the baseline.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlannedConfig {
+    /// First 12 hex digits of SHA-256 of the canonical configuration.
+    pub id: String,
+    pub baseline: bool,
+    /// Grid values of this configuration (empty for the baseline and without a grid).
+    pub overrides: BTreeMap<String, Value>,
+    pub config: RunConfig,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunSpec {
+    /// First 16 hex digits of SHA-256 over (experiment fingerprint, configuration, seed).
+    pub id: String,
+    pub config_id: String,
+    pub seed: u64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Plan {
+    pub configs: Vec<PlannedConfig>,
+    pub runs: Vec<RunSpec>,
+}
+
+impl Plan {
+    pub fn config(&self, id: &str) -> Option<&PlannedConfig> {
+        self.configs.iter().find(|c| c.id == id)
+    }
+}
+
+/// The linear baseline: no hidden layer, no architectural regularizer, same training settings.
+pub fn baseline_config(manifest: &Manifest) -> RunConfig {
+    RunConfig {
+        model: ModelSpec {
+            hidden: Vec::new(),
+            activation: Activation::Identity,
+            residual: false,
+            batch_norm: false,
+            dropout: 0.0,
+            input_noise: 0.0,
+        },
+        training: manifest.training.clone(),
+    }
+}
+
+fn planned(config: RunConfig, baseline: bool, overrides: BTreeMap<String, Value>) -> PlannedConfig {
+    let id = sha256_hex(config.canonical_json().as_bytes())[..12].to_string();
+    PlannedConfig { id, baseline, overrides, config }
+}
+
+/// Expands a validated manifest into its plan. The manifest loader has already checked the grid,
+/// so expansion errors cannot occur here; a point that fails to apply is skipped defensively.
+pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> Plan {
+    let mut configs: Vec<PlannedConfig> = expand(manifest)
+        .unwrap_or_default()
+        .into_iter()
+        .map(|p| planned(RunConfig { model: p.model, training: p.training }, false, p.overrides))
+        .collect();
+    if manifest.selection.baseline {
+        configs.push(planned(baseline_config(manifest), true, BTreeMap::new()));
+    }
+    let mut runs = Vec::new();
+    for c in &configs {
+        for &seed in &manifest.sweep.seeds {
+            let material = format!("{experiment_fingerprint}\n{}\n{seed}", c.config.canonical_json());
+            runs.push(RunSpec { id: sha256_hex(material.as_bytes())[..16].to_string(), config_id: c.id.clone(), seed });
+        }
+    }
+    Plan { configs, runs }
+}
