@@ -99,3 +99,67 @@ pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
         splits,
     })
 }
+
+/// What `experiment.json` records about an experiment.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ExperimentRecord {
+    pub fingerprint: String,
+    pub name: String,
+    pub manifest_path: String,
+    pub manifest_sha256: String,
+    pub data: DataFingerprints,
+    pub task: crate::manifest::Task,
+    /// Class labels in index order (binary: negative, positive); empty for regression.
+    pub class_labels: Vec<String>,
+    pub features: Vec<crate::data::roles::Feature>,
+    pub ids: Vec<String>,
+    pub groups: Vec<String>,
+    pub split_rows: [usize; 3],
+    /// SHA-256 of the three row lists, so a rerun can show its split is the same.
+    pub split_sha256: String,
+    pub tool_version: String,
+}
+
+impl Experiment {
+    pub fn record(&self) -> ExperimentRecord {
+        let split_text = serde_json::to_string(&self.splits).unwrap_or_default();
+        ExperimentRecord {
+            fingerprint: self.fingerprint.clone(),
+            name: self.manifest.experiment.name.clone(),
+            manifest_path: self.manifest_path.display().to_string(),
+            manifest_sha256: self.manifest_sha256.clone(),
+            data: self.data.clone(),
+            task: self.manifest.data.task,
+            class_labels: match &self.target {
+                Target::Classes { labels, .. } => labels.clone(),
+                Target::Values(_) => Vec::new(),
+            },
+            features: self.roles.features.clone(),
+            ids: self.roles.ids.clone(),
+            groups: self.roles.groups.clone(),
+            split_rows: [self.splits.train.len(), self.splits.validation.len(), self.splits.test.len()],
+            split_sha256: crate::fingerprint::sha256_hex(split_text.as_bytes()),
+            tool_version: TOOL_VERSION.to_string(),
+        }
+    }
+
+    /// Targets of the given rows, aligned with a matrix of those rows.
+    pub fn labels(&self, rows: &[usize]) -> crate::train::Labels {
+        match &self.target {
+            Target::Classes { labels, rows: classes } => crate::train::Labels::Classes {
+                rows: rows.iter().map(|&r| classes[r]).collect(),
+                classes: labels.len(),
+            },
+            Target::Values(v) => crate::train::Labels::Values(rows.iter().map(|&r| v[r]).collect()),
+        }
+    }
+
+    pub fn head(&self) -> crate::train::Head {
+        crate::train::Head {
+            task: self.manifest.data.task,
+            classes: self.target.class_count(),
+            loss: self.manifest.training.loss,
+            huber_delta: self.manifest.training.huber_delta,
+        }
+    }
+}

@@ -4,6 +4,7 @@
 //! Data flows one way: manifest + Parquet -> [`experiment::Experiment`] -> [`plan::Plan`] -> runs
 //! -> results store -> card. Everything below `commands` is a library usable without a terminal.
 
+pub mod card;
 pub mod commands;
 pub mod data;
 pub mod demo;
@@ -13,9 +14,16 @@ pub mod fingerprint;
 pub mod format;
 pub mod manifest;
 pub mod metrics;
+pub mod model;
+pub mod nn;
+pub mod numerics;
 pub mod plan;
+pub mod provenance;
+pub mod selection;
 pub mod rng;
 pub mod store;
+pub mod sweep;
 pub mod text;
+pub mod train;
 
 pub use error::{Error, Result};

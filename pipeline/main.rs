@@ -1,11 +1,13 @@
 //! The `tabcard` command line: parse arguments, run one command, print its report, map errors to
-//! exit codes. The only place that talks to the terminal.
+//! exit codes. The only place that talks to the terminal (including the progress bar).
 
 use clap::{Parser, Subcommand};
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 use tabcard::commands;
+use tabcard::sweep::Event;
 
 #[derive(Parser)]
 #[command(name = "tabcard", version, about = "Seeded MLP experiments on tabular data, with model cards an auditor can rerun bit-for-bit")]
@@ -18,6 +20,16 @@ struct Cli {
 enum Command {
     /// Validate a manifest and its data; print fingerprints, data summary and run plan.
     Check { manifest: PathBuf },
+    /// Train every pending run of an experiment, select and test the best configuration, write the card.
+    Train {
+        manifest: PathBuf,
+        /// Folder holding one results folder per experiment fingerprint, and the ledger.
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+        /// Runs trained at once (each run is single-threaded); default: available cores.
+        #[arg(long)]
+        jobs: Option<usize>,
+    },
     /// Write the invented demo tables (lease defaults, greenhouse yield) as Parquet.
     DemoData {
         #[arg(default_value = "data-demo")]
@@ -27,16 +39,52 @@ enum Command {
     },
 }
 
+fn progress_display() -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
+    let bar = if std::io::stderr().is_terminal() { indicatif::ProgressBar::new(0) } else { indicatif::ProgressBar::hidden() };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} runs  {msg}  eta {eta}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let failed = std::sync::atomic::AtomicUsize::new(0);
+    let handle = bar.clone();
+    let on_event = move |event: Event| match event {
+        Event::Planned { pending, reused } => {
+            handle.set_length(pending as u64);
+            handle.set_message(format!("{reused} reused"));
+        }
+        Event::Finished { outcome, .. } => {
+            if !outcome.is_completed() {
+                let n = failed.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+                handle.set_message(format!("{n} failed"));
+            }
+            handle.inc(1);
+        }
+    };
+    (bar, on_event)
+}
+
 fn main() -> ExitCode {
+    tabcard::numerics::pin_single_threaded_kernels();
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { manifest } => commands::check::run(&manifest),
-        Command::DemoData { folder, seed } => commands::demo::run(&folder, seed),
+        Command::Check { manifest } => commands::check::run(&manifest).map(|r| (r, 0)),
+        Command::Train { manifest, results, jobs } => {
+            let jobs = jobs.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+            let (bar, on_event) = progress_display();
+            let options = commands::train::TrainOptions { results_root: results, jobs };
+            let outcome = commands::train::run(&manifest, &options, &on_event);
+            bar.finish_and_clear();
+            outcome.map(|o| (o.report, if o.failed_runs > 0 { 5 } else { 0 }))
+        }
+        Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, 0)),
     };
     match result {
-        Ok(report) => {
+        Ok((report, code)) => {
             print!("{report}");
-            ExitCode::SUCCESS
+            if code != 0 {
+                eprintln!("error: some runs failed or diverged (see above)");
+            }
+            ExitCode::from(code)
         }
         Err(e) => {
             eprintln!("error: {}", tabcard::text::terminal_safe(&e.to_string()));

@@ -3,3 +3,4 @@
 
 pub mod check;
 pub mod demo;
+pub mod train;

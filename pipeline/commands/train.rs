@@ -1,0 +1,190 @@
+//! `tabcard train <manifest>`: resolve the experiment, train every pending run of its plan in
+//! parallel, select and test the best configuration, write the card, append to the ledger.
+
+use std::fmt::Write;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use crate::data::prep::Preprocessor;
+use crate::error::{Error, Result};
+use crate::experiment::{open, Experiment};
+use crate::format::fixed;
+use crate::plan::{self, Plan};
+use crate::selection::{evaluate_test, select, Selection};
+use crate::store::ledger::{self, LedgerEntry};
+use crate::store::run::{read_run, StoredRun};
+use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
+use crate::sweep::{self, Event, SweepInputs};
+use crate::train::RunData;
+
+pub struct TrainOptions {
+    pub results_root: PathBuf,
+    pub jobs: usize,
+}
+
+/// What a train invocation did, for the caller's report and exit status.
+pub struct TrainOutcome {
+    pub report: String,
+    pub results: PathBuf,
+    pub failed_runs: usize,
+}
+
+/// Writes the experiment-level files; an existing folder must hold the same canonical manifest.
+fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: &Preprocessor) -> Result<()> {
+    let canonical = crate::manifest::canonical_json(&exp.manifest);
+    if layout.format().exists() {
+        layout.check_format()?;
+        let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
+        if stored != canonical {
+            return Err(Error::store(layout.manifest(), "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain"));
+        }
+    } else {
+        crate::store::create_dir(&layout.root)?;
+    }
+    write_json(&layout.format(), &FormatRecord::current())?;
+    write_atomic(&layout.manifest(), canonical.as_bytes())?;
+    let source = std::fs::read(&exp.manifest_path).map_err(|e| Error::io(&exp.manifest_path, "read the manifest", e))?;
+    write_atomic(&layout.manifest_source(), &source)?;
+    write_json(&layout.experiment(), &exp.record())?;
+    write_json(&layout.data_summary(), &exp.summary)?;
+    write_json(&layout.plan(), plan)?;
+    write_json(&layout.preprocessor(), preprocessor)
+}
+
+pub fn load_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
+    let mut out = Vec::new();
+    for spec in &plan.runs {
+        if let Some(r) = read_run(layout, &spec.id)? {
+            out.push(r);
+        }
+    }
+    Ok(out)
+}
+
+pub fn config_label(summary_overrides: &std::collections::BTreeMap<String, serde_json::Value>, baseline: bool) -> String {
+    if baseline {
+        return "linear baseline".into();
+    }
+    if summary_overrides.is_empty() {
+        return "base configuration".into();
+    }
+    summary_overrides
+        .iter()
+        .map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v))
+        .collect::<Vec<_>>()
+        .join(" ")
+}
+
+fn table(selection: &Selection) -> String {
+    let mut out = String::new();
+    let m = &selection.metric;
+    let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}", "configuration", "params", "seeds", format!("validation {m}"), "train-val gap");
+    for c in &selection.configs {
+        let v = c.validation.get(m).map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
+        let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
+        let mark = if c.config_id == selection.selected_config { " *" } else { "" };
+        let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
+        let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}", crate::text::terminal_safe(&config_label(&c.overrides, c.baseline)), c.parameter_count, seeds, v, g);
+    }
+    let t = &selection.test;
+    let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
+    for (name, value) in &t.metrics {
+        let Some(v) = value else { continue };
+        let ci = t.intervals.get(name).map(|i| format!("  95% CI [{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_default();
+        let _ = writeln!(out, "  {name:<18} {}{ci}", fixed(*v, 4));
+    }
+    out
+}
+
+pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
+    let started = Instant::now();
+    let exp = open(manifest_path)?;
+    let m = &exp.manifest;
+    let layout = Layout::new(options.results_root.join(exp.short_id()));
+    let plan = plan::build(m, &exp.fingerprint);
+    let preprocessor = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path)?;
+    prepare_folder(&exp, &layout, &plan, &preprocessor)?;
+
+    let (train_x, _) = preprocessor.transform(&exp.table, &exp.splits.train, &exp.data_path)?;
+    let (validation_x, _) = preprocessor.transform(&exp.table, &exp.splits.validation, &exp.data_path)?;
+    let train_y = exp.labels(&exp.splits.train);
+    let validation_y = exp.labels(&exp.splits.validation);
+    let environment = crate::numerics::current();
+    let inputs = SweepInputs {
+        layout: &layout,
+        plan: &plan,
+        head: exp.head(),
+        data: RunData { train_x: &train_x, train_y: &train_y, validation_x: &validation_x, validation_y: &validation_y },
+        validation_rows: &exp.splits.validation,
+        preprocessor: &preprocessor,
+        selection_metric: &m.selection.metric,
+        environment: &environment,
+        jobs: options.jobs,
+    };
+    let report = sweep::run(&inputs, on_event)?;
+    let nothing_new = report.trained.is_empty() && layout.selection().exists();
+
+    let selection: Selection = if nothing_new {
+        read_json(&layout.selection())?
+    } else {
+        let runs = load_runs(&layout, &plan)?;
+        let (configs, selected_config, selected_run) = select(m.data.task, &plan, &runs, &m.selection.metric)?;
+        let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
+        let test_y = exp.labels(&exp.splits.test);
+        let test = evaluate_test(&runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed)?;
+        let selection = Selection {
+            metric: m.selection.metric.clone(),
+            higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
+            configs,
+            selected_config,
+            selected_run,
+            baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
+            test,
+        };
+        write_json(&layout.selection(), &selection)?;
+        let seconds: Vec<(String, f64)> = runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect();
+        write_json(&layout.timing(), &serde_json::json!({
+            "trained_at": crate::provenance::now_rfc3339(),
+            "jobs": options.jobs,
+            "wall_seconds": started.elapsed().as_secs_f64(),
+            "run_seconds": seconds.into_iter().collect::<std::collections::BTreeMap<_, _>>(),
+        }))?;
+        crate::card::write_card(&layout, None)?;
+        selection
+    };
+
+    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
+    let selected_value = selection.test.metrics.get(&selection.metric).copied().flatten();
+    ledger::append(&options.results_root, &LedgerEntry {
+        time: crate::provenance::now_rfc3339(),
+        experiment: m.experiment.name.clone(),
+        fingerprint: exp.fingerprint.clone(),
+        results: layout.root.display().to_string(),
+        git_commit,
+        git_dirty,
+        runs_planned: plan.runs.len(),
+        runs_trained: report.trained.len(),
+        runs_reused: report.reused.len(),
+        runs_failed: report.failed.len(),
+        selected_run: Some(selection.selected_run.clone()),
+        selection_metric: selection.metric.clone(),
+        selected_value,
+        tool_version: crate::experiment::TOOL_VERSION.to_string(),
+    })?;
+
+    let mut out = String::new();
+    let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&m.experiment.name), exp.fingerprint);
+    if nothing_new {
+        let _ = writeln!(out, "nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len());
+    } else {
+        let _ = writeln!(out, "runs: {} trained, {} reused, {} failed, {} planned ({} workers)", report.trained.len(), report.reused.len(), report.failed.len(), plan.runs.len(), options.jobs);
+    }
+    for (id, why) in &report.failed {
+        let _ = writeln!(out, "  run {id} {why}");
+    }
+    let _ = writeln!(out);
+    out.push_str(&table(&selection));
+    let _ = writeln!(out, "\nresults  {}", layout.root.display());
+    let _ = writeln!(out, "card     {}", layout.card().display());
+    Ok(TrainOutcome { report: out, results: layout.root, failed_runs: report.failed.len() })
+}

@@ -1,0 +1,39 @@
+//! A stored model ready to score rows: its configuration, head, preprocessor and weights, loaded
+//! from a run folder.
+
+use candle_core::DType;
+
+use crate::data::prep::{Matrix, Preprocessor};
+use crate::error::Result;
+use crate::nn::mlp::Mlp;
+use crate::plan::RunConfig;
+use crate::rng::{Purpose, Stream};
+use crate::store::run::StoredRun;
+use crate::train::{raw_outputs, Head, TargetScaling};
+
+pub struct ScoringModel {
+    pub head: Head,
+    pub config: RunConfig,
+    pub preprocessor: Preprocessor,
+    pub scaling: Option<TargetScaling>,
+    network: Mlp,
+}
+
+impl ScoringModel {
+    pub fn from_stored(run: &StoredRun) -> Result<Self> {
+        let config = run.config()?;
+        let preprocessor = run.preprocessor()?;
+        let head = run.record.head;
+        // The initial values are overwritten by the stored tensors; the stream only fills shapes.
+        let mut network = Mlp::new(&config.model, preprocessor.width(), head.outputs(), &mut Stream::new(0, Purpose::Init), DType::F32)?;
+        network.load(&run.tensors()?)?;
+        Ok(ScoringModel { head, config, preprocessor, scaling: run.record.target_scaling, network })
+    }
+
+    /// Class probabilities (k per row) or predictions for every row of `x`.
+    pub fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
+        crate::numerics::pin_single_threaded_kernels();
+        let raw = raw_outputs(&mut self.network, x)?;
+        Ok(self.head.predictions(&raw, self.scaling))
+    }
+}

@@ -1,0 +1,116 @@
+//! What the bits of a trained model depend on, and keeping each run's arithmetic single-threaded.
+//!
+//! candle's CPU matrix multiply (the `gemm` crate) picks its kernel at run time from the CPU's
+//! features and derives its k-blocking from the cache sizes, and exp/log/tanh come from the
+//! platform's libm. So identical bits are promised for identical inputs on the same *numerics
+//! fingerprint* (recorded with every run), not across different CPUs.
+
+use serde::{Deserialize, Serialize};
+use std::sync::Once;
+
+/// Candle's version as locked in Cargo.lock (kept in step by a test).
+pub const CANDLE_VERSION: &str = "0.11.1";
+
+static PIN: Once = Once::new();
+
+/// Makes candle's kernels single-threaded (matrix multiply and its element-wise pool read these
+/// variables), so that parallelism comes only from running several runs at once. Called by the
+/// binary before any thread starts and by the trainer; idempotent.
+pub fn pin_single_threaded_kernels() {
+    PIN.call_once(|| {
+        // SAFETY-relevant note: std's environment functions take a process-wide lock, and this runs
+        // once, before the first candle kernel reads the variables.
+        std::env::set_var("RAYON_NUM_THREADS", "1");
+        std::env::set_var("CANDLE_NUM_THREADS", "1");
+    });
+}
+
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct NumericsFingerprint {
+    pub tool_version: String,
+    pub candle_version: String,
+    pub target_arch: String,
+    pub target_os: String,
+    /// CPU features that select kernels in gemm and in the compiler's code (x86: sse4.1, avx,
+    /// avx2, fma, avx512f ...), as detected at run time.
+    pub cpu_features: Vec<String>,
+    /// Data-cache sizes in bytes (L1d, L2, L3) as the OS reports them; gemm's blocking uses them.
+    pub cache_bytes: Vec<u64>,
+    pub libc: String,
+    /// Threads each run computes with (always 1).
+    pub threads_per_run: usize,
+}
+
+fn cpu_features() -> Vec<String> {
+    #[allow(unused_mut)]
+    let mut out: Vec<String> = Vec::new();
+    #[cfg(target_arch = "x86_64")]
+    {
+        macro_rules! probe {
+            ($($f:tt),*) => {$(
+                if std::is_x86_feature_detected!($f) { out.push($f.to_string()); }
+            )*};
+        }
+        probe!("sse4.1", "sse4.2", "avx", "avx2", "fma", "f16c", "avx512f", "avx512bw", "avx512dq", "avx512vl", "sha");
+    }
+    #[cfg(target_arch = "aarch64")]
+    {
+        macro_rules! probe {
+            ($($f:tt),*) => {$(
+                if std::arch::is_aarch64_feature_detected!($f) { out.push($f.to_string()); }
+            )*};
+        }
+        probe!("neon", "fp16", "sve");
+    }
+    out
+}
+
+fn cache_sizes() -> Vec<u64> {
+    let mut out = Vec::new();
+    for index in 0..8 {
+        let base = format!("/sys/devices/system/cpu/cpu0/cache/index{index}");
+        let Ok(kind) = std::fs::read_to_string(format!("{base}/type")) else { break };
+        if kind.trim() == "Instruction" {
+            continue;
+        }
+        if let Ok(size) = std::fs::read_to_string(format!("{base}/size")) {
+            let s = size.trim();
+            let (digits, unit) = s.split_at(s.find(|c: char| !c.is_ascii_digit()).unwrap_or(s.len()));
+            let n: u64 = digits.parse().unwrap_or(0);
+            out.push(match unit {
+                "K" => n * 1024,
+                "M" => n * 1024 * 1024,
+                _ => n,
+            });
+        }
+    }
+    out
+}
+
+fn libc_version() -> String {
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    {
+        extern "C" {
+            fn gnu_get_libc_version() -> *const std::ffi::c_char;
+        }
+        // SAFETY: glibc returns a pointer to a static NUL-terminated string.
+        let v = unsafe { std::ffi::CStr::from_ptr(gnu_get_libc_version()) };
+        return format!("glibc {}", v.to_string_lossy());
+    }
+    #[allow(unreachable_code)]
+    std::env::consts::OS.to_string()
+}
+
+/// The numerics fingerprint of this process.
+pub fn current() -> NumericsFingerprint {
+    NumericsFingerprint {
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        candle_version: CANDLE_VERSION.to_string(),
+        target_arch: std::env::consts::ARCH.to_string(),
+        target_os: std::env::consts::OS.to_string(),
+        cpu_features: cpu_features(),
+        cache_bytes: cache_sizes(),
+        libc: libc_version(),
+        threads_per_run: 1,
+    }
+}

@@ -1,0 +1,55 @@
+//! Where an experiment came from: the git commit of the manifest's repository and whether it had
+//! uncommitted changes, and the current UTC time.
+
+use std::path::Path;
+use std::process::Command;
+
+/// (commit, dirty) of the repository holding `path`, or `None` outside git or without git.
+pub fn git_state(path: &Path) -> (Option<String>, Option<bool>) {
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let run = |args: &[&str]| {
+        Command::new("git").arg("-C").arg(dir).args(args).output().ok().filter(|o| o.status.success())
+    };
+    let commit = run(&["rev-parse", "HEAD"]).map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string());
+    let dirty = commit.as_ref().and_then(|_| run(&["status", "--porcelain", "--untracked-files=no"])).map(|o| !o.stdout.is_empty());
+    (commit, dirty)
+}
+
+/// Days since 1970-01-01 to a civil (year, month, day), after Howard Hinnant's `civil_from_days`.
+fn civil_from_days(days: i64) -> (i64, u32, u32) {
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = (doy - (153 * mp + 2) / 5 + 1) as u32;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 } as u32;
+    (yoe + era * 400 + (m <= 2) as i64, m, d)
+}
+
+/// RFC 3339 UTC timestamp of a Unix time in seconds.
+pub fn rfc3339(unix_seconds: i64) -> String {
+    let (y, m, d) = civil_from_days(unix_seconds.div_euclid(86_400));
+    let s = unix_seconds.rem_euclid(86_400);
+    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", s / 3600, (s / 60) % 60, s % 60)
+}
+
+pub fn now_rfc3339() -> String {
+    let secs = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0);
+    rfc3339(secs)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unix_times_format_as_rfc3339() {
+        assert_eq!(rfc3339(0), "1970-01-01T00:00:00Z");
+        // 2000-02-29 is a leap day; 951782400 is its midnight (from memory, checked by arithmetic:
+        // 30 years of 365 days + 7 leap days = 10957 days to 2000-01-01, + 59 days).
+        assert_eq!(rfc3339(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(rfc3339(1_800_000_000), "2027-01-15T08:00:00Z");
+    }
+}

@@ -1,0 +1,218 @@
+//! Aggregation across seeds and model selection: per configuration the mean and standard deviation
+//! of every validation metric and the train-validation gap; the best configuration by the
+//! manifest's metric; and one evaluation of the selected configuration on the test split, with
+//! seeded bootstrap intervals for the selected run's test metrics.
+
+use serde::{Deserialize, Serialize};
+use serde_json::Value;
+use std::collections::BTreeMap;
+
+use crate::data::prep::Matrix;
+use crate::error::{Error, Result};
+use crate::metrics::bootstrap::{percentile_interval, Interval};
+use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
+use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
+use crate::metrics::registry::{better, direction, Direction};
+use crate::metrics::MetricSet;
+use crate::model::ScoringModel;
+use crate::plan::Plan;
+use crate::store::run::StoredRun;
+use crate::train::Labels;
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Spread {
+    pub mean: f64,
+    /// Sample standard deviation across seeds (0 for a single seed).
+    pub sd: f64,
+    pub n: usize,
+}
+
+pub fn spread(values: &[f64]) -> Option<Spread> {
+    if values.is_empty() {
+        return None;
+    }
+    let n = values.len();
+    let mean = values.iter().sum::<f64>() / n as f64;
+    let sd = if n > 1 { (values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64).sqrt() } else { 0.0 };
+    Some(Spread { mean, sd, n })
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ConfigSummary {
+    pub config_id: String,
+    pub baseline: bool,
+    pub overrides: BTreeMap<String, Value>,
+    pub parameter_count: usize,
+    pub runs_completed: usize,
+    pub runs_failed: usize,
+    pub validation: BTreeMap<String, Spread>,
+    pub train: BTreeMap<String, Spread>,
+    /// Training minus validation value of the selection metric, per seed, aggregated.
+    pub gap: Option<Spread>,
+    pub best_epoch: Option<Spread>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TestEvaluation {
+    pub run_id: String,
+    pub seed: u64,
+    pub rows: usize,
+    pub metrics: MetricSet,
+    pub intervals: BTreeMap<String, Interval>,
+    /// Test metrics of every seed of the selected configuration, aggregated.
+    pub across_seeds: BTreeMap<String, Spread>,
+    pub reliability: Vec<ReliabilityBin>,
+    pub confusion: Vec<Vec<usize>>,
+    pub per_class: Vec<ClassReport>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Selection {
+    pub metric: String,
+    pub higher_is_better: bool,
+    pub configs: Vec<ConfigSummary>,
+    pub selected_config: String,
+    pub selected_run: String,
+    pub baseline_config: Option<String>,
+    pub test: TestEvaluation,
+}
+
+fn collect(runs: &[&StoredRun], pick: impl Fn(&StoredRun) -> &MetricSet) -> BTreeMap<String, Spread> {
+    let mut by_name: BTreeMap<String, Vec<f64>> = BTreeMap::new();
+    for r in runs {
+        for (k, v) in pick(r) {
+            if let Some(v) = v {
+                by_name.entry(k.clone()).or_default().push(*v);
+            }
+        }
+    }
+    by_name.into_iter().filter_map(|(k, v)| spread(&v).map(|s| (k, s))).collect()
+}
+
+/// Summaries per configuration, in plan order.
+pub fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSummary> {
+    plan.configs
+        .iter()
+        .map(|c| {
+            let mine: Vec<&StoredRun> = runs.iter().filter(|r| r.record.config_id == c.id).collect();
+            let done: Vec<&StoredRun> = mine.iter().copied().filter(|r| r.record.outcome.is_completed()).collect();
+            let gaps: Vec<f64> = done
+                .iter()
+                .filter_map(|r| Some(r.record.train.get(metric).copied().flatten()? - r.record.validation.get(metric).copied().flatten()?))
+                .collect();
+            let epochs: Vec<f64> = done.iter().map(|r| r.record.best_epoch as f64).collect();
+            ConfigSummary {
+                config_id: c.id.clone(),
+                baseline: c.baseline,
+                overrides: c.overrides.clone(),
+                parameter_count: done.first().map(|r| r.record.parameter_count).unwrap_or(0),
+                runs_completed: done.len(),
+                runs_failed: mine.len() - done.len(),
+                validation: collect(&done, |r| &r.record.validation),
+                train: collect(&done, |r| &r.record.train),
+                gap: spread(&gaps),
+                best_epoch: spread(&epochs),
+            }
+        })
+        .collect()
+}
+
+/// Selects the best non-baseline configuration by mean validation metric (first in plan order on
+/// ties) and, within it, the seed with the best validation value.
+pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metric: &str) -> Result<(Vec<ConfigSummary>, String, String)> {
+    let dir = direction(task, metric).unwrap_or(Direction::Maximise);
+    let configs = summarise(plan, runs, metric);
+    let mut best: Option<(&ConfigSummary, f64)> = None;
+    for c in configs.iter().filter(|c| !c.baseline) {
+        if let Some(s) = c.validation.get(metric) {
+            if best.is_none_or(|(_, b)| better(dir, s.mean, b)) {
+                best = Some((c, s.mean));
+            }
+        }
+    }
+    let (chosen, _) = best.ok_or_else(|| Error::Engine(format!("no configuration finished a run with a defined validation {metric}")))?;
+    let mut best_run: Option<(&StoredRun, f64)> = None;
+    for r in runs.iter().filter(|r| r.record.config_id == chosen.config_id && r.record.outcome.is_completed()) {
+        if let Some(v) = r.record.validation.get(metric).copied().flatten() {
+            if best_run.is_none_or(|(_, b)| better(dir, v, b)) {
+                best_run = Some((r, v));
+            }
+        }
+    }
+    let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::Engine("the selected configuration has no usable run".into()))?;
+    Ok((configs.clone(), chosen.config_id.clone(), run_id))
+}
+
+/// Scores the test rows with every seed of the selected configuration; bootstrap intervals for
+/// the selected run, seeded by `bootstrap_seed`.
+pub fn evaluate_test(
+    runs: &[StoredRun],
+    selected_config: &str,
+    selected_run: &str,
+    test_x: &Matrix,
+    test_y: &Labels,
+    bootstrap: usize,
+    bootstrap_seed: u64,
+) -> Result<TestEvaluation> {
+    let mut per_seed: Vec<MetricSet> = Vec::new();
+    let mut selected: Option<(u64, Vec<f64>, ScoringModel)> = None;
+    for r in runs.iter().filter(|r| r.record.config_id == selected_config && r.record.outcome.is_completed()) {
+        let mut model = ScoringModel::from_stored(r)?;
+        let outputs = model.score(test_x)?;
+        per_seed.push(model.head.metrics(&outputs, test_y));
+        if r.record.run_id == selected_run {
+            selected = Some((r.record.seed, outputs, model));
+        }
+    }
+    let (seed, outputs, model) = selected.ok_or_else(|| Error::Engine(format!("selected run {selected_run} is not stored")))?;
+    let head = model.head;
+    let metrics = head.metrics(&outputs, test_y);
+    let k = head.values_per_row();
+    let mut intervals = BTreeMap::new();
+    for name in metrics.keys() {
+        let interval = percentile_interval(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
+            let sub_out: Vec<f64> = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
+            let sub_y = match test_y {
+                Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
+                Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
+            };
+            head.metrics(&sub_out, &sub_y).get(name).copied().flatten()
+        });
+        if let Some(i) = interval {
+            intervals.insert(name.clone(), i);
+        }
+    }
+    let mut by_name: BTreeMap<String, Vec<f64>> = BTreeMap::new();
+    for m in &per_seed {
+        for (k, v) in m {
+            if let Some(v) = v {
+                by_name.entry(k.clone()).or_default().push(*v);
+            }
+        }
+    }
+    let (reliability, confusion, per_class_report) = match test_y {
+        Labels::Classes { rows, classes } => {
+            let predicted = predicted_classes(&outputs, *classes);
+            let reliability = if *classes == 2 {
+                let is_pos: Vec<bool> = rows.iter().map(|&y| y == 1).collect();
+                let p: Vec<f64> = outputs.chunks_exact(2).map(|r| r[1]).collect();
+                reliability_bins(&is_pos, &p, 10)
+            } else {
+                Vec::new()
+            };
+            (reliability, confusion_matrix(rows, &predicted, *classes), per_class(rows, &predicted, *classes))
+        }
+        Labels::Values(_) => (Vec::new(), Vec::new(), Vec::new()),
+    };
+    Ok(TestEvaluation {
+        run_id: selected_run.to_string(),
+        seed,
+        rows: test_y.len(),
+        metrics,
+        intervals,
+        across_seeds: by_name.into_iter().filter_map(|(k, v)| spread(&v).map(|s| (k, s))).collect(),
+        reliability,
+        confusion,
+        per_class: per_class_report,
+    })
+}

@@ -1,0 +1,51 @@
+//! The append-only ledger at the results root: one JSON line per `train` invocation.
+
+use serde::{Deserialize, Serialize};
+use std::io::Write;
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LedgerEntry {
+    pub time: String,
+    pub experiment: String,
+    pub fingerprint: String,
+    pub results: String,
+    pub git_commit: Option<String>,
+    pub git_dirty: Option<bool>,
+    pub runs_planned: usize,
+    pub runs_trained: usize,
+    pub runs_reused: usize,
+    pub runs_failed: usize,
+    pub selected_run: Option<String>,
+    pub selection_metric: String,
+    pub selected_value: Option<f64>,
+    pub tool_version: String,
+}
+
+pub const FILE: &str = "ledger.jsonl";
+
+/// Appends one line with a single write on a file opened for appending.
+pub fn append(results_root: &Path, entry: &LedgerEntry) -> Result<()> {
+    let path = results_root.join(FILE);
+    let mut line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))?;
+    line.push('\n');
+    let mut f = std::fs::OpenOptions::new().create(true).append(true).open(&path).map_err(|e| Error::io(&path, "open the ledger", e))?;
+    f.write_all(line.as_bytes()).map_err(|e| Error::io(&path, "append to the ledger", e))?;
+    f.sync_all().map_err(|e| Error::io(&path, "sync the ledger", e))
+}
+
+pub fn read(results_root: &Path) -> Result<Vec<LedgerEntry>> {
+    let path = results_root.join(FILE);
+    let text = match std::fs::read_to_string(&path) {
+        Ok(t) => t,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Vec::new()),
+        Err(e) => return Err(Error::io(&path, "read the ledger", e)),
+    };
+    text.lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty())
+        .map(|(i, l)| serde_json::from_str(l).map_err(|e| Error::store(&path, format!("line {}: {e}", i + 1))))
+        .collect()
+}

@@ -1,0 +1,115 @@
+//! The only writer: atomic file writes (temp file in the same folder, fsync, rename), the results
+//! layout, and the ledger. Nothing half-written is ever visible under a final name.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use crate::error::{Error, Result};
+
+fn temp_name(path: &Path) -> PathBuf {
+    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    static COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    path.with_file_name(format!(".{name}.tmp-{}-{n}", std::process::id()))
+}
+
+/// Writes `bytes` to `path` atomically: a reader sees the old file, or the whole new one.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let tmp = temp_name(path);
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    if let Err(e) = result {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(Error::io(path, "write", e));
+    }
+    Ok(())
+}
+
+pub mod ledger;
+pub mod run;
+pub mod weights;
+
+/// The version of the results layout this tool writes and reads.
+pub const FORMAT_VERSION: u32 = 1;
+
+/// Pretty JSON with stable key order (struct order, sorted maps), newline-terminated.
+pub fn to_json<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
+    let mut bytes = serde_json::to_vec_pretty(value).map_err(|e| Error::Engine(format!("serialising JSON: {e}")))?;
+    bytes.push(b'\n');
+    Ok(bytes)
+}
+
+pub fn write_json<T: serde::Serialize>(path: &Path, value: &T) -> Result<()> {
+    write_atomic(path, &to_json(value)?)
+}
+
+pub fn read_json<T: serde::de::DeserializeOwned>(path: &Path) -> Result<T> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "read", e))?;
+    serde_json::from_slice(&bytes).map_err(|e| Error::store(path, format!("unreadable or tampered JSON: {e}")))
+}
+
+pub fn create_dir(path: &Path) -> Result<()> {
+    std::fs::create_dir_all(path).map_err(|e| Error::io(path, "create the folder", e))
+}
+
+/// Identifies a results folder and the tool that wrote it.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct FormatRecord {
+    pub format: String,
+    pub version: u32,
+    pub tool_version: String,
+}
+
+impl FormatRecord {
+    pub fn current() -> Self {
+        FormatRecord { format: "tabcard-results".into(), version: FORMAT_VERSION, tool_version: env!("CARGO_PKG_VERSION").into() }
+    }
+}
+
+/// The files of one experiment's results folder.
+#[derive(Debug, Clone)]
+pub struct Layout {
+    pub root: PathBuf,
+}
+
+impl Layout {
+    pub fn new(root: impl Into<PathBuf>) -> Self {
+        Layout { root: root.into() }
+    }
+    pub fn format(&self) -> PathBuf { self.root.join("format.json") }
+    pub fn manifest(&self) -> PathBuf { self.root.join("manifest.json") }
+    pub fn manifest_source(&self) -> PathBuf { self.root.join("manifest.source.toml") }
+    pub fn experiment(&self) -> PathBuf { self.root.join("experiment.json") }
+    pub fn data_summary(&self) -> PathBuf { self.root.join("data-summary.json") }
+    pub fn plan(&self) -> PathBuf { self.root.join("plan.json") }
+    pub fn preprocessor(&self) -> PathBuf { self.root.join("preprocessor.json") }
+    pub fn selection(&self) -> PathBuf { self.root.join("selection.json") }
+    pub fn timing(&self) -> PathBuf { self.root.join("timing.json") }
+    pub fn card(&self) -> PathBuf { self.root.join("card.md") }
+    pub fn figures(&self) -> PathBuf { self.root.join("figures") }
+    pub fn runs(&self) -> PathBuf { self.root.join("runs") }
+    pub fn run(&self, id: &str) -> PathBuf { self.runs().join(id) }
+
+    /// Checks that the folder was written by a tool that uses this layout.
+    pub fn check_format(&self) -> Result<FormatRecord> {
+        let path = self.format();
+        if !path.exists() {
+            return Err(Error::store(&self.root, "is not a tabcard results folder (no format.json)"));
+        }
+        let record: FormatRecord = read_json(&path)?;
+        if record.format != "tabcard-results" {
+            return Err(Error::store(&path, format!("unknown format `{}`", record.format)));
+        }
+        if record.version != FORMAT_VERSION {
+            return Err(Error::store(&path, format!(
+                "results layout version {} written by tabcard {}; this tabcard {} reads version {FORMAT_VERSION}",
+                record.version, record.tool_version, env!("CARGO_PKG_VERSION")
+            )));
+        }
+        Ok(record)
+    }
+}

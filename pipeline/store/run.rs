@@ -1,0 +1,247 @@
+//! One run's folder: written complete under a temporary name and renamed into place in one step,
+//! so a run folder under its final name is always whole; read back with every file's SHA-256
+//! checked against the run's own index (`run.json`).
+
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use super::{read_json, to_json, weights, Layout};
+use crate::data::prep::Preprocessor;
+use crate::error::{Error, Result};
+use crate::fingerprint::sha256_hex;
+use crate::metrics::MetricSet;
+use crate::nn::mlp::NamedTensor;
+use crate::numerics::NumericsFingerprint;
+use crate::plan::RunConfig;
+use crate::train::{EpochRecord, Head, Outcome, TargetScaling};
+
+/// The summary of one run (`metrics.json`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunRecord {
+    pub run_id: String,
+    pub config_id: String,
+    pub seed: u64,
+    pub baseline: bool,
+    pub outcome: Outcome,
+    pub best_epoch: usize,
+    pub epochs_run: usize,
+    pub stopped_early: bool,
+    pub parameter_count: usize,
+    pub head: Head,
+    pub target_scaling: Option<TargetScaling>,
+    pub train: MetricSet,
+    pub validation: MetricSet,
+    pub weights_sha256: String,
+    pub tensor_sha256: BTreeMap<String, String>,
+}
+
+/// Everything a finished run leaves behind.
+pub struct RunArtifacts<'a> {
+    pub record: RunRecord,
+    pub config: &'a RunConfig,
+    pub preprocessor: &'a Preprocessor,
+    pub tensors: &'a [NamedTensor],
+    pub history: &'a [EpochRecord],
+    /// (table row, values) for each validation row.
+    pub validation_rows: &'a [usize],
+    pub validation_outputs: &'a [f64],
+    pub environment: &'a NumericsFingerprint,
+    pub seconds: f64,
+}
+
+/// The file index of a run folder (`run.json`): every file but timing, with its SHA-256.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunIndex {
+    pub run_id: String,
+    pub files: BTreeMap<String, String>,
+}
+
+pub const METRICS: &str = "metrics.json";
+pub const CONFIG: &str = "config.json";
+pub const WEIGHTS: &str = "weights.safetensors";
+pub const PREPROCESSOR: &str = "preprocessor.json";
+pub const HISTORY: &str = "history.csv";
+pub const VALIDATION_PREDICTIONS: &str = "validation-predictions.csv";
+pub const ENVIRONMENT: &str = "environment.json";
+pub const TIMING: &str = "timing.json";
+pub const INDEX: &str = "run.json";
+
+fn opt(x: Option<f64>) -> String {
+    x.map(|v| format!("{v:?}")).unwrap_or_default()
+}
+
+pub fn history_csv(history: &[EpochRecord]) -> String {
+    let mut s = String::from("epoch,train_loss,validation_loss,validation_metric,learning_rate\n");
+    for h in history {
+        s.push_str(&format!("{},{:?},{:?},{},{:?}\n", h.epoch, h.train_loss, h.validation_loss, opt(h.validation_metric), h.learning_rate));
+    }
+    s
+}
+
+pub fn parse_history_csv(text: &str, path: &Path) -> Result<Vec<EpochRecord>> {
+    let bad = |line: usize| Error::store(path, format!("line {line} is not a history row"));
+    let mut out = Vec::new();
+    for (i, line) in text.lines().enumerate().skip(1) {
+        let f: Vec<&str> = line.split(',').collect();
+        if f.len() != 5 {
+            return Err(bad(i + 1));
+        }
+        let num = |s: &str| s.parse::<f64>().map_err(|_| bad(i + 1));
+        out.push(EpochRecord {
+            epoch: f[0].parse().map_err(|_| bad(i + 1))?,
+            train_loss: num(f[1])?,
+            validation_loss: num(f[2])?,
+            validation_metric: if f[3].is_empty() { None } else { Some(num(f[3])?) },
+            learning_rate: num(f[4])?,
+        });
+    }
+    Ok(out)
+}
+
+pub fn predictions_csv(rows: &[usize], outputs: &[f64], per_row: usize) -> String {
+    let mut s = String::from("row");
+    for c in 0..per_row {
+        s.push_str(&format!(",output_{c}"));
+    }
+    s.push('\n');
+    for (r, chunk) in rows.iter().zip(outputs.chunks_exact(per_row.max(1))) {
+        s.push_str(&r.to_string());
+        for v in chunk {
+            s.push_str(&format!(",{v:?}"));
+        }
+        s.push('\n');
+    }
+    s
+}
+
+fn partial_dir(layout: &Layout, id: &str) -> PathBuf {
+    static COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    layout.runs().join(format!(".partial-{id}-{}-{n}", std::process::id()))
+}
+
+fn write_file(dir: &Path, name: &str, bytes: &[u8]) -> std::io::Result<()> {
+    let mut f = std::fs::File::create(dir.join(name))?;
+    f.write_all(bytes)?;
+    f.sync_all()
+}
+
+/// Writes a run folder: all files into a private temporary folder, then one rename.
+pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
+    let id = &a.record.run_id;
+    let per_row = a.record.head.values_per_row();
+    let mut files: Vec<(&str, Vec<u8>)> = vec![
+        (METRICS, to_json(&a.record)?),
+        (CONFIG, to_json(a.config)?),
+        (PREPROCESSOR, to_json(a.preprocessor)?),
+        (HISTORY, history_csv(a.history).into_bytes()),
+        (ENVIRONMENT, to_json(a.environment)?),
+    ];
+    if !a.tensors.is_empty() {
+        files.push((WEIGHTS, weights::encode(a.tensors)?));
+        files.push((VALIDATION_PREDICTIONS, predictions_csv(a.validation_rows, a.validation_outputs, per_row).into_bytes()));
+    }
+    let index = RunIndex {
+        run_id: id.clone(),
+        files: files.iter().map(|(n, b)| (n.to_string(), sha256_hex(b))).collect(),
+    };
+    files.push((INDEX, to_json(&index)?));
+    files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds }))?));
+
+    let tmp = partial_dir(layout, id);
+    let final_dir = layout.run(id);
+    let result = (|| -> std::io::Result<()> {
+        std::fs::create_dir_all(&tmp)?;
+        for (name, bytes) in &files {
+            write_file(&tmp, name, bytes)?;
+        }
+        std::fs::File::open(&tmp)?.sync_all()?;
+        match std::fs::rename(&tmp, &final_dir) {
+            Ok(()) => Ok(()),
+            // Another process finished the same run first; its content is the same by construction.
+            Err(_) if final_dir.join(INDEX).exists() => {
+                std::fs::remove_dir_all(&tmp)?;
+                Ok(())
+            }
+            Err(e) => Err(e),
+        }?;
+        std::fs::File::open(layout.runs())?.sync_all()
+    })();
+    if let Err(e) = result {
+        let _ = std::fs::remove_dir_all(&tmp);
+        return Err(Error::io(&final_dir, "write the run folder", e));
+    }
+    Ok(())
+}
+
+/// A run read back from disk, integrity-checked.
+pub struct StoredRun {
+    pub dir: PathBuf,
+    pub record: RunRecord,
+}
+
+/// `None` when the run has no folder yet; an error when its folder fails the integrity check.
+pub fn read_run(layout: &Layout, id: &str) -> Result<Option<StoredRun>> {
+    let dir = layout.run(id);
+    if !dir.exists() {
+        return Ok(None);
+    }
+    let index: RunIndex = read_json(&dir.join(INDEX))?;
+    if index.run_id != id {
+        return Err(Error::store(&dir, format!("run.json names run {}, not {id}", index.run_id)));
+    }
+    for (name, digest) in &index.files {
+        let path = dir.join(name);
+        let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, "read", e))?;
+        let actual = sha256_hex(&bytes);
+        if &actual != digest {
+            return Err(Error::store(&path, format!(
+                "fails its integrity check: SHA-256 {actual}, run.json records {digest}; the file was changed after training (delete the run folder to retrain it)"
+            )));
+        }
+    }
+    let record: RunRecord = read_json(&dir.join(METRICS))?;
+    Ok(Some(StoredRun { dir, record }))
+}
+
+impl StoredRun {
+    pub fn tensors(&self) -> Result<Vec<NamedTensor>> {
+        let path = self.dir.join(WEIGHTS);
+        let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, "read", e))?;
+        weights::decode(&bytes, &path)
+    }
+
+    pub fn config(&self) -> Result<RunConfig> {
+        read_json(&self.dir.join(CONFIG))
+    }
+
+    pub fn preprocessor(&self) -> Result<Preprocessor> {
+        read_json(&self.dir.join(PREPROCESSOR))
+    }
+
+    pub fn history(&self) -> Result<Vec<EpochRecord>> {
+        let path = self.dir.join(HISTORY);
+        let text = std::fs::read_to_string(&path).map_err(|e| Error::io(&path, "read", e))?;
+        parse_history_csv(&text, &path)
+    }
+
+    pub fn seconds(&self) -> f64 {
+        read_json::<serde_json::Value>(&self.dir.join(TIMING)).ok().and_then(|v| v["seconds"].as_f64()).unwrap_or(0.0)
+    }
+}
+
+/// Removes temporary run folders left by processes that no longer exist (killed mid-write).
+pub fn sweep_stale_partials(layout: &Layout) {
+    let Ok(entries) = std::fs::read_dir(layout.runs()) else { return };
+    for entry in entries.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        let Some(rest) = name.strip_prefix(".partial-") else { continue };
+        let pid = rest.split('-').nth(1).and_then(|p| p.parse::<u32>().ok());
+        let alive = pid.is_some_and(|p| p == std::process::id() || Path::new(&format!("/proc/{p}")).exists());
+        if !alive {
+            let _ = std::fs::remove_dir_all(entry.path());
+        }
+    }
+}

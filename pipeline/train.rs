@@ -1,0 +1,411 @@
+//! One seeded run, a pure function: (configuration, seed, matrices) -> [`RunResult`]. Mini-batch
+//! training with the configured optimizer, schedule, clipping and regularizers; early stopping on
+//! validation loss that restores the best epoch's weights; divergence detection. Every random draw
+//! comes from a stream derived from (seed, purpose); the arithmetic is single-threaded.
+
+use candle_core::{DType, Device, Tensor};
+use serde::{Deserialize, Serialize};
+
+use crate::data::prep::Matrix;
+use crate::error::{Error, Result};
+use crate::manifest::{RegressionLoss, Task};
+use crate::metrics::{classification, regression, MetricSet};
+use crate::nn::layers::tensor_from;
+use crate::nn::loss;
+use crate::nn::mlp::{Mlp, Mode, NamedTensor};
+use crate::nn::optim::{learning_rate, Optimizer};
+use crate::plan::RunConfig;
+use crate::rng::{Purpose, Stream};
+
+/// Targets aligned with the rows of a matrix.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Labels {
+    Classes { rows: Vec<usize>, classes: usize },
+    Values(Vec<f64>),
+}
+
+impl Labels {
+    pub fn len(&self) -> usize {
+        match self {
+            Labels::Classes { rows, .. } => rows.len(),
+            Labels::Values(v) => v.len(),
+        }
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+}
+
+/// The matrices one run trains and validates on.
+pub struct RunData<'a> {
+    pub train_x: &'a Matrix,
+    pub train_y: &'a Labels,
+    pub validation_x: &'a Matrix,
+    pub validation_y: &'a Labels,
+}
+
+/// Regression targets are standardised with the training rows' mean and standard deviation.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct TargetScaling {
+    pub mean: f64,
+    pub std: f64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct EpochRecord {
+    pub epoch: usize,
+    /// Mean training loss over the epoch's batches (with dropout and noise active).
+    pub train_loss: f64,
+    /// Validation loss in evaluation mode.
+    pub validation_loss: f64,
+    /// The selection metric on the validation rows.
+    pub validation_metric: Option<f64>,
+    pub learning_rate: f64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "status", rename_all = "snake_case")]
+pub enum Outcome {
+    Completed,
+    Diverged { epoch: usize, detail: String },
+    /// The engine failed (an error, not a numerical divergence).
+    Failed { detail: String },
+}
+
+impl Outcome {
+    pub fn is_completed(&self) -> bool {
+        matches!(self, Outcome::Completed)
+    }
+
+    pub fn describe(&self) -> String {
+        match self {
+            Outcome::Completed => "completed".into(),
+            Outcome::Diverged { epoch, detail } => format!("diverged in epoch {epoch}: {detail}"),
+            Outcome::Failed { detail } => format!("failed: {detail}"),
+        }
+    }
+}
+
+pub struct RunResult {
+    pub outcome: Outcome,
+    pub tensors: Vec<NamedTensor>,
+    pub history: Vec<EpochRecord>,
+    /// Epoch (1-based) whose weights were kept.
+    pub best_epoch: usize,
+    pub stopped_early: bool,
+    pub parameter_count: usize,
+    pub target_scaling: Option<TargetScaling>,
+    pub train_metrics: MetricSet,
+    pub validation_metrics: MetricSet,
+    /// Per validation row: class probabilities (row-major, k per row) or the prediction.
+    pub validation_outputs: Vec<f64>,
+}
+
+/// What a task's network outputs and how its outputs become predictions.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Head {
+    pub task: Task,
+    pub classes: usize,
+    pub loss: RegressionLoss,
+    pub huber_delta: f64,
+}
+
+impl Head {
+    pub fn outputs(&self) -> usize {
+        match self.task {
+            Task::Binary | Task::Regression => 1,
+            Task::Multiclass => self.classes,
+        }
+    }
+
+    /// Values per row of [`Head::predictions`]: class probabilities, or one prediction.
+    pub fn values_per_row(&self) -> usize {
+        match self.task {
+            Task::Regression => 1,
+            _ => self.classes,
+        }
+    }
+}
+
+fn softplus(x: f64) -> f64 {
+    // log(1 + e^x) without overflow.
+    if x > 0.0 { x + libm::log1p(libm::exp(-x)) } else { libm::log1p(libm::exp(x)) }
+}
+
+impl Head {
+    /// Mean loss of raw network outputs, computed on the host in f64 with `libm`.
+    pub fn host_loss(&self, raw: &[f32], labels: &Labels, scaling: Option<TargetScaling>) -> f64 {
+        let n = labels.len().max(1) as f64;
+        match (self.task, labels) {
+            (Task::Binary, Labels::Classes { rows, .. }) => {
+                raw.iter().zip(rows).map(|(&z, &y)| {
+                    let z = z as f64;
+                    z.max(0.0) - z * y as f64 + softplus(-z.abs())
+                }).sum::<f64>() / n
+            }
+            (Task::Multiclass, Labels::Classes { rows, classes }) => {
+                raw.chunks_exact(*classes).zip(rows).map(|(r, &y)| {
+                    let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
+                    let lse = max + libm::log(r.iter().map(|&v| libm::exp(v as f64 - max)).sum::<f64>());
+                    lse - r[y] as f64
+                }).sum::<f64>() / n
+            }
+            (Task::Regression, Labels::Values(v)) => {
+                let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+                raw.iter().zip(v).map(|(&p, &y)| {
+                    let r = p as f64 - (y - s.mean) / s.std;
+                    match self.loss {
+                        RegressionLoss::Mse => r * r,
+                        RegressionLoss::Huber => {
+                            let a = r.abs();
+                            if a <= self.huber_delta { 0.5 * r * r } else { self.huber_delta * (a - 0.5 * self.huber_delta) }
+                        }
+                    }
+                }).sum::<f64>() / n
+            }
+            _ => f64::NAN,
+        }
+    }
+
+    /// Probabilities (binary: `[1 - p, p]`; multiclass: softmax) or de-standardised predictions.
+    pub fn predictions(&self, raw: &[f32], scaling: Option<TargetScaling>) -> Vec<f64> {
+        match self.task {
+            Task::Binary => raw.iter().flat_map(|&z| {
+                let p = 1.0 / (1.0 + libm::exp(-(z as f64)));
+                [1.0 - p, p]
+            }).collect(),
+            Task::Multiclass => raw.chunks_exact(self.classes).flat_map(|r| {
+                let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
+                let e: Vec<f64> = r.iter().map(|&v| libm::exp(v as f64 - max)).collect();
+                let sum: f64 = e.iter().sum();
+                e.into_iter().map(move |x| x / sum)
+            }).collect(),
+            Task::Regression => {
+                let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+                raw.iter().map(|&p| p as f64 * s.std + s.mean).collect()
+            }
+        }
+    }
+
+    pub fn metrics(&self, outputs: &[f64], labels: &Labels) -> MetricSet {
+        match labels {
+            Labels::Classes { rows, classes } => classification::scalar_metrics(rows, outputs, *classes),
+            Labels::Values(v) => regression::scalar_metrics(v, outputs),
+        }
+    }
+}
+
+/// Raw network outputs for every row of `x`, in evaluation mode, in blocks of 4096 rows.
+pub fn raw_outputs(model: &mut Mlp, x: &Matrix) -> Result<Vec<f32>> {
+    let mut out = Vec::with_capacity(x.rows * model.outputs);
+    let block = 4096;
+    let dtype = model_dtype(model);
+    for start in (0..x.rows).step_by(block) {
+        let end = (start + block).min(x.rows);
+        let values = x.data[start * x.cols..end * x.cols].to_vec();
+        let input = tensor_from(values, (end - start, x.cols), dtype)?;
+        let y = model.forward(&input, &mut Mode::Eval)?;
+        out.extend(y.to_dtype(DType::F32)?.flatten_all()?.to_vec1::<f32>()?);
+    }
+    Ok(out)
+}
+
+fn model_dtype(model: &Mlp) -> DType {
+    model.parameters().first().map(|(_, v, _)| v.dtype()).unwrap_or(DType::F32)
+}
+
+fn batch_targets(labels: &Labels, idx: &[usize], scaling: Option<TargetScaling>, head: &Head) -> Result<Tensor> {
+    let dev = Device::Cpu;
+    Ok(match (labels, head.task) {
+        (Labels::Classes { rows, .. }, Task::Multiclass) => {
+            Tensor::from_vec(idx.iter().map(|&i| rows[i] as u32).collect::<Vec<u32>>(), idx.len(), &dev)?
+        }
+        (Labels::Classes { rows, .. }, _) => {
+            tensor_from(idx.iter().map(|&i| rows[i] as f32).collect(), (idx.len(), 1), DType::F32)?
+        }
+        (Labels::Values(v), _) => {
+            let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+            tensor_from(idx.iter().map(|&i| ((v[i] - s.mean) / s.std) as f32).collect(), (idx.len(), 1), DType::F32)?
+        }
+    })
+}
+
+/// The selection metric of validation outputs, for the history.
+fn metric_of(head: &Head, outputs: &[f64], labels: &Labels, name: &str) -> Option<f64> {
+    head.metrics(outputs, labels).get(name).copied().flatten()
+}
+
+/// Trains one run. `selection_metric` is recorded per epoch; early stopping watches the loss.
+pub fn train(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str) -> Result<RunResult> {
+    train_with_dtype(head, config, seed, data, selection_metric, DType::F32)
+}
+
+/// As [`train`], in a chosen precision (f64 serves gradient and convergence tests).
+pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str, dtype: DType) -> Result<RunResult> {
+    crate::numerics::pin_single_threaded_kernels();
+    let t = &config.training;
+    let n = data.train_x.rows;
+    if n == 0 || data.validation_x.rows == 0 {
+        return Err(Error::Engine("a run needs training and validation rows".into()));
+    }
+    let scaling = match data.train_y {
+        Labels::Values(v) => {
+            let mean = v.iter().sum::<f64>() / v.len() as f64;
+            let var = v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / v.len() as f64;
+            Some(TargetScaling { mean, std: if var > 0.0 { var.sqrt() } else { 1.0 } })
+        }
+        Labels::Classes { .. } => None,
+    };
+    let mut init = Stream::new(seed, Purpose::Init);
+    let mut shuffle = Stream::new(seed, Purpose::Shuffle);
+    let mut dropout_stream = Stream::new(seed, Purpose::Dropout);
+    let mut noise_stream = Stream::new(seed, Purpose::InputNoise);
+    let mut model = Mlp::new(&config.model, data.train_x.cols, head.outputs(), &mut init, dtype)?;
+    let parameter_count = model.parameter_count();
+    let mut optimizer = Optimizer::new(t, model.parameters().len());
+
+    let batch = t.batch_size.min(n);
+    let steps_per_epoch = n.div_ceil(batch);
+    let mut order: Vec<usize> = (0..n).collect();
+    let mut history = Vec::with_capacity(t.epochs);
+    let mut best: Option<(f64, usize, Vec<NamedTensor>)> = None;
+    let mut since_best = 0usize;
+    let mut stopped_early = false;
+    let mut step = 0usize;
+    let mut outcome = Outcome::Completed;
+    let mut batch_x = Vec::with_capacity(batch * data.train_x.cols);
+
+    'epochs: for epoch in 1..=t.epochs {
+        shuffle.shuffle(&mut order);
+        let mut loss_sum = 0.0;
+        let mut loss_batches = 0usize;
+        let mut lr = t.learning_rate;
+        for chunk in order.chunks(batch) {
+            // A batch of one row has no batch statistics; it is skipped when batch norm is on.
+            if config.model.batch_norm && chunk.len() < 2 {
+                continue;
+            }
+            lr = learning_rate(t, step, steps_per_epoch);
+            step += 1;
+            batch_x.clear();
+            for &r in chunk {
+                batch_x.extend_from_slice(data.train_x.row(r));
+            }
+            let x = tensor_from(batch_x.clone(), (chunk.len(), data.train_x.cols), dtype)?;
+            let y = batch_targets(data.train_y, chunk, scaling, &head)?;
+            let y = if head.task == Task::Multiclass { y } else { y.to_dtype(dtype)? };
+            let raw = model.forward(&x, &mut Mode::Train { dropout: &mut dropout_stream, noise: &mut noise_stream })?;
+            let mut objective = match head.task {
+                Task::Binary => loss::binary_cross_entropy(&raw, &y)?,
+                Task::Multiclass => loss::softmax_cross_entropy(&raw, &y)?,
+                Task::Regression => match t.loss {
+                    RegressionLoss::Mse => loss::mean_squared_error(&raw, &y)?,
+                    RegressionLoss::Huber => loss::huber(&raw, &y, t.huber_delta)?,
+                },
+            };
+            let data_loss = objective.to_dtype(DType::F64)?.to_scalar::<f64>()?;
+            if !data_loss.is_finite() {
+                outcome = Outcome::Diverged { epoch, detail: format!("training loss became {data_loss} at step {step}") };
+                break 'epochs;
+            }
+            loss_sum += data_loss;
+            loss_batches += 1;
+            if t.l2_penalty > 0.0 {
+                for (_, var, decays) in model.parameters() {
+                    if decays {
+                        objective = (objective + (var.as_tensor().sqr()?.sum_all()? * (0.5 * t.l2_penalty))?)?;
+                    }
+                }
+            }
+            let grads = objective.backward()?;
+            let parameters = model.parameters();
+            let mut grad_scale = 1.0;
+            if t.clip_norm > 0.0 {
+                let mut sq = 0.0;
+                for (_, var, _) in &parameters {
+                    if let Some(g) = grads.get(var.as_tensor()) {
+                        sq += g.sqr()?.sum_all()?.to_dtype(DType::F64)?.to_scalar::<f64>()?;
+                    }
+                }
+                let norm = sq.sqrt();
+                if !norm.is_finite() {
+                    outcome = Outcome::Diverged { epoch, detail: format!("gradient norm became {norm} at step {step}") };
+                    break 'epochs;
+                }
+                if norm > t.clip_norm {
+                    grad_scale = t.clip_norm / norm;
+                }
+            }
+            optimizer.step(&parameters, &grads, lr, grad_scale)?;
+        }
+        let raw_val = raw_outputs(&mut model, data.validation_x)?;
+        let validation_loss = head.host_loss(&raw_val, data.validation_y, scaling);
+        if !validation_loss.is_finite() {
+            outcome = Outcome::Diverged { epoch, detail: format!("validation loss became {validation_loss}") };
+            break;
+        }
+        let outputs = head.predictions(&raw_val, scaling);
+        history.push(EpochRecord {
+            epoch,
+            train_loss: loss_sum / loss_batches.max(1) as f64,
+            validation_loss,
+            validation_metric: metric_of(&head, &outputs, data.validation_y, selection_metric),
+            learning_rate: lr,
+        });
+        let es = &t.early_stopping;
+        let improved = best.as_ref().is_none_or(|(b, _, _)| validation_loss < b - es.min_delta);
+        if improved {
+            best = Some((validation_loss, epoch, if es.enabled { model.named_tensors()? } else { Vec::new() }));
+            since_best = 0;
+        } else {
+            since_best += 1;
+            if es.enabled && since_best >= es.patience {
+                stopped_early = true;
+                break;
+            }
+        }
+    }
+
+    if let Outcome::Diverged { .. } = outcome {
+        return Ok(RunResult {
+            outcome,
+            tensors: Vec::new(),
+            history,
+            best_epoch: 0,
+            stopped_early: false,
+            parameter_count,
+            target_scaling: scaling,
+            train_metrics: MetricSet::new(),
+            validation_metrics: MetricSet::new(),
+            validation_outputs: Vec::new(),
+        });
+    }
+    let best_epoch = match (&best, t.early_stopping.enabled) {
+        (Some((_, e, tensors)), true) => {
+            model.load(tensors)?;
+            *e
+        }
+        _ => history.len(),
+    };
+    let raw_train = raw_outputs(&mut model, data.train_x)?;
+    let raw_val = raw_outputs(&mut model, data.validation_x)?;
+    let train_outputs = head.predictions(&raw_train, scaling);
+    let validation_outputs = head.predictions(&raw_val, scaling);
+    let mut train_metrics = head.metrics(&train_outputs, data.train_y);
+    train_metrics.insert("loss".into(), Some(head.host_loss(&raw_train, data.train_y, scaling)));
+    let mut validation_metrics = head.metrics(&validation_outputs, data.validation_y);
+    validation_metrics.insert("loss".into(), Some(head.host_loss(&raw_val, data.validation_y, scaling)));
+    Ok(RunResult {
+        outcome,
+        tensors: model.named_tensors()?,
+        history,
+        best_epoch,
+        stopped_early,
+        parameter_count,
+        target_scaling: scaling,
+        train_metrics,
+        validation_metrics,
+        validation_outputs,
+    })
+}
