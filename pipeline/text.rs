@@ -1,21 +1,27 @@
 //! Making untrusted text (column names, category levels, manifest strings) safe to show: in a
 //! terminal (no control characters, bounded length) and in markdown (no links, HTML or structure).
 
-/// Replaces control characters with visible escapes and shortens very long strings.
+/// Replaces control and bidirectional-override characters with visible escapes.
 pub fn terminal_safe(s: &str) -> String {
-    const MAX: usize = 120;
     let mut out = String::new();
-    for (i, c) in s.chars().enumerate() {
-        if i == MAX {
-            out.push('…');
-            break;
-        }
+    for c in s.chars() {
         if c.is_control() || matches!(c, '\u{200b}'..='\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}') {
             out.extend(c.escape_unicode());
         } else {
             out.push(c);
         }
     }
+    out
+}
+
+/// [`terminal_safe`], shortened to `max` characters, for table cells.
+pub fn terminal_cell(s: &str, max: usize) -> String {
+    let safe = terminal_safe(s);
+    if safe.chars().count() <= max {
+        return safe;
+    }
+    let mut out: String = safe.chars().take(max.saturating_sub(1)).collect();
+    out.push('…');
     out
 }
 

@@ -42,12 +42,12 @@ pub fn report(exp: &Experiment) -> String {
         let detail = match &c.numeric {
             Some(n) => format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std)),
             None => {
-                let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", terminal_safe(&l.level), l.count)).collect();
+                let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", crate::text::terminal_cell(&l.level, 24), l.count)).collect();
                 format!("{} levels: {}", c.distinct, top.join(", "))
             }
         };
         let kind = if c.categorical && c.kind != "string" { format!("{}*", c.kind) } else { c.kind.clone() };
-        let _ = writeln!(out, "{:<28} {:<9} {:<8} {:>7.1}%  {}", terminal_safe(&c.name), c.role, kind, 100.0 * c.missing_share, detail);
+        let _ = writeln!(out, "{:<28} {:<9} {:<8} {:>7.1}%  {}", crate::text::terminal_cell(&c.name, 28), c.role, kind, 100.0 * c.missing_share, detail);
     }
     let _ = writeln!(out, "\ntarget       {} ({})", terminal_safe(&s.target.name), m.data.task.as_str());
     for l in &s.target.classes {

@@ -53,22 +53,25 @@ fn floor_char_boundary(s: &str, mut i: usize) -> usize {
     i
 }
 
-/// The deepest key whose key or value span contains `offset`, with the span of that key.
+/// The deepest key whose key span, or whose (non-table) value span, contains `offset`. Tables are
+/// searched whether or not their own span covers the offset, because a `[section]` table's span
+/// does not always include its body.
 pub fn key_at(table: &DeTable<'_>, offset: usize) -> Option<(KeyPath, Range<usize>)> {
     fn walk(table: &DeTable<'_>, offset: usize, prefix: &KeyPath) -> Option<(KeyPath, Range<usize>)> {
         for (key, value) in table.iter() {
             let path = prefix.child(key.get_ref());
-            let key_span = key.span();
-            if key_span.contains(&offset) {
-                return Some((path, key_span));
-            }
-            let value_span = value.span();
-            if value_span.contains(&offset) || (value_span.is_empty() && value_span.start == offset) {
-                if let DeValue::Table(inner) = value.get_ref() {
-                    if let Some(found) = walk(inner, offset, &path) {
-                        return Some(found);
-                    }
+            if let DeValue::Table(inner) = value.get_ref() {
+                if let Some(found) = walk(inner, offset, &path) {
+                    return Some(found);
                 }
+            }
+        }
+        for (key, value) in table.iter() {
+            let path = prefix.child(key.get_ref());
+            let key_span = key.span();
+            let value_span = value.span();
+            let is_table = matches!(value.get_ref(), DeValue::Table(_));
+            if key_span.contains(&offset) || (!is_table && value_span.contains(&offset)) {
                 return Some((path, key_span));
             }
         }
@@ -117,8 +120,8 @@ pub fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) ->
     candidates
         .into_iter()
         .map(|c| (edit_distance(word, c), c))
-        .filter(|(d, c)| *d <= (c.len().max(word.len()) / 3).max(2))
-        .min_by_key(|(d, _)| *d)
+        .filter(|(d, c)| *d <= (c.len().max(word.len()) / 3).max(2) && *d < c.len().max(word.len()))
+        .min_by_key(|(d, c)| (*d, !(c.starts_with(word) || word.starts_with(*c))))
         .map(|(_, c)| c)
 }
 

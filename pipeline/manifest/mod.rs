@@ -41,7 +41,10 @@ pub fn load(path: &Path) -> Result<LoadedManifest> {
 
 /// Parses and resolves manifest text; `path` is only used in error messages.
 pub fn parse(path: &Path, source: &str) -> Result<Manifest> {
-    let document = DeTable::parse(source).map_err(|e| syntax_error(path, source, &e))?;
+    let document = DeTable::parse(source).map_err(|e| {
+        let (partial, _) = DeTable::parse_recoverable(source);
+        syntax_error(path, source, partial.get_ref(), &e)
+    })?;
     let mut manifest: Manifest = toml::from_str(source).map_err(|e| schema_error(path, source, document.get_ref(), &e))?;
     let located = |p: Problem| locate_problem(path, source, document.get_ref(), p);
     if let Some(p) = validate::validate(&manifest).into_iter().next() {
@@ -94,14 +97,17 @@ pub fn canonical_hash(m: &Manifest) -> String {
     sha256_hex(canonical_json(m).as_bytes())
 }
 
-fn syntax_error(path: &Path, source: &str, e: &toml::de::Error) -> Error {
+fn syntax_error(path: &Path, source: &str, partial: &DeTable<'_>, e: &toml::de::Error) -> Error {
     let (line, column) = e.span().map(|s| line_col(source, s.start)).unzip();
     ManifestError {
         file: path.to_path_buf(),
-        key: None,
+        key: e.span().and_then(|s| key_at(partial, s.start)).map(|(k, _)| k.to_string()),
         line,
         column,
-        message: format!("malformed TOML: {}", e.message().trim()),
+        message: match e.span().and_then(|s| source.get(s)) {
+            Some(text) if e.message().trim() == "duplicate key" => format!("malformed TOML: duplicate key `{}`", text.trim()),
+            _ => format!("malformed TOML: {}", e.message().trim()),
+        },
         hint: None,
     }
     .into()

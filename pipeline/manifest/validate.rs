@@ -50,10 +50,10 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
         });
     }
     c.check((0.0..1.0).contains(&model.dropout), "model.dropout", || {
-        format!("must be in [0, 1), got {}", model.dropout)
+        format!("must be in [0, 1), got {:?}", model.dropout)
     });
     c.check(model.input_noise.is_finite() && model.input_noise >= 0.0, "model.input_noise", || {
-        format!("must be a finite standard deviation >= 0, got {}", model.input_noise)
+        format!("must be a finite standard deviation >= 0, got {:?}", model.input_noise)
     });
     if model.residual {
         if model.hidden.len() < 2 {
@@ -72,7 +72,7 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
 
     let t = training;
     c.check(t.learning_rate.is_finite() && t.learning_rate > 0.0, "training.learning_rate", || {
-        format!("must be a positive number, got {}", t.learning_rate)
+        format!("must be a positive number, got {:?}", t.learning_rate)
     });
     c.check(t.weight_decay.is_finite() && t.weight_decay >= 0.0, "training.weight_decay", || {
         format!("must be >= 0, got {}", t.weight_decay)
@@ -154,10 +154,10 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     });
 
     let s = &m.split;
-    c.check(s.validation > 0.0 && s.validation < 1.0, "split.validation", || format!("must be in (0, 1), got {}", s.validation));
-    c.check(s.test > 0.0 && s.test < 1.0, "split.test", || format!("must be in (0, 1), got {}", s.test));
+    c.check(s.validation > 0.0 && s.validation < 1.0, "split.validation", || format!("must be in (0, 1), got {:?}", s.validation));
+    c.check(s.test > 0.0 && s.test < 1.0, "split.test", || format!("must be in (0, 1), got {:?}", s.test));
     c.check(s.validation + s.test < 1.0, "split.test", || {
-        format!("validation + test = {} must be below 1 so rows remain for training", s.validation + s.test)
+        format!("validation + test = {:?} must be below 1 so rows remain for training", s.validation + s.test)
     });
 
     c.0.extend(validate_run_settings(m.data.task, &m.model, &m.training));

@@ -43,14 +43,16 @@ pub fn expected_calibration_error(labels: &[usize], probs: &[f64], k: usize, bin
 }
 
 /// Observed positive share against mean predicted probability in `bins` equal-width bins on the
-/// positive-class probability (the "uniform" strategy of scikit-learn's `calibration_curve`);
-/// empty bins are left out.
+/// positive-class probability, binned as the "uniform" strategy of scikit-learn's
+/// `calibration_curve` does: bins closed on the right, a value's bin being the number of interior
+/// edges `j / bins` (computed as `j * (1 / bins)`) strictly below it. Empty bins are left out.
 pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -> Vec<ReliabilityBin> {
     let mut count = vec![0usize; bins];
     let mut predicted = vec![0.0; bins];
     let mut observed = vec![0.0; bins];
+    let step = 1.0 / bins as f64;
     for (&y, &p) in is_positive.iter().zip(p_positive) {
-        let b = bin_of(p, bins);
+        let b = (1..bins).filter(|&j| (j as f64 * step) < p).count();
         count[b] += 1;
         predicted[b] += p;
         observed[b] += y as u8 as f64;

@@ -1,0 +1,76 @@
+//! Helpers shared by the integration tests: Parquet files from Arrow arrays, manifests in a
+//! temporary folder, and running the real `tabcard` binary.
+#![allow(dead_code)]
+
+use arrow::array::ArrayRef;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+use tabcard::data::parquet::{encode, WriteOptions};
+
+pub fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_tabcard"))
+}
+
+pub fn run_in(dir: &Path, args: &[&str]) -> Output {
+    bin().current_dir(dir).args(args).output().expect("run tabcard")
+}
+
+pub fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+pub fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+pub fn write_parquet(path: &Path, columns: Vec<(&str, ArrayRef)>) {
+    let bytes = encode(columns.into_iter().map(|(n, a)| (n.to_string(), a)).collect(), WriteOptions::default()).unwrap();
+    std::fs::write(path, bytes).unwrap();
+}
+
+pub fn repo_path(rel: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
+}
+
+/// A small binary manifest for `data.parquet` in the same folder, with extra TOML appended.
+pub fn manifest(extra: &str) -> String {
+    format!(
+        "[experiment]\nname = \"test\"\n\n[data]\npath = \"data.parquet\"\ntarget = \"y\"\ntask = \"binary\"\n{extra}"
+    )
+}
+
+/// A folder with the invented lease data (first `rows` rows) and a small experiment manifest
+/// whose grid and epochs are sized for tests.
+pub fn small_lease_experiment(dir: &Path, rows: usize, grid: &str) -> PathBuf {
+    let columns = tabcard::demo::lease_defaults(rows, 7);
+    let bytes = encode(columns, WriteOptions::default()).unwrap();
+    std::fs::write(dir.join("leases.parquet"), bytes).unwrap();
+    let text = format!(
+        r#"[experiment]
+name = "small-lease"
+
+[data]
+path = "leases.parquet"
+target = "defaulted_12m"
+task = "binary"
+ids = ["application_id"]
+
+[model]
+hidden = [16]
+
+[training]
+epochs = 6
+batch_size = 64
+
+[selection]
+bootstrap = 200
+
+[sweep]
+seeds = [1, 2]
+{grid}
+"#
+    );
+    let path = dir.join("small.toml");
+    std::fs::write(&path, text).unwrap();
+    path
+}
