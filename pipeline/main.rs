@@ -30,6 +30,13 @@ enum Command {
         #[arg(long)]
         jobs: Option<usize>,
     },
+    /// Re-render the model card of a results folder from stored results (no retraining).
+    Card {
+        results_folder: PathBuf,
+        /// Folder of tera templates overriding the built-in ones file by file (card.md.tera, cautions.md.tera).
+        #[arg(long)]
+        templates: Option<PathBuf>,
+    },
     /// Write the invented demo tables (lease defaults, greenhouse yield) as Parquet.
     DemoData {
         #[arg(default_value = "data-demo")]
@@ -76,6 +83,7 @@ fn main() -> ExitCode {
             bar.finish_and_clear();
             outcome.map(|o| (o.report, if o.failed_runs > 0 { 5 } else { 0 }))
         }
+        Command::Card { results_folder, templates } => commands::card::run(&results_folder, templates.as_deref()).map(|r| (r, 0)),
         Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, 0)),
     };
     match result {

@@ -64,6 +64,22 @@ pub struct TestEvaluation {
     pub reliability: Vec<ReliabilityBin>,
     pub confusion: Vec<Vec<usize>>,
     pub per_class: Vec<ClassReport>,
+    /// Test metrics of the selected run per level of each group column named in the manifest.
+    pub groups: Vec<GroupMetrics>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct GroupMetrics {
+    pub column: String,
+    pub level: String,
+    pub rows: usize,
+    pub metrics: MetricSet,
+}
+
+/// A group column's label for each test row (`None` for nulls).
+pub struct GroupColumn {
+    pub name: String,
+    pub labels: Vec<Option<String>>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -145,6 +161,7 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
 
 /// Scores the test rows with every seed of the selected configuration; bootstrap intervals for
 /// the selected run, seeded by `bootstrap_seed`.
+#[allow(clippy::too_many_arguments)]
 pub fn evaluate_test(
     runs: &[StoredRun],
     selected_config: &str,
@@ -153,6 +170,7 @@ pub fn evaluate_test(
     test_y: &Labels,
     bootstrap: usize,
     bootstrap_seed: u64,
+    group_columns: &[GroupColumn],
 ) -> Result<TestEvaluation> {
     let mut per_seed: Vec<MetricSet> = Vec::new();
     let mut selected: Option<(u64, Vec<f64>, ScoringModel)> = None;
@@ -168,14 +186,29 @@ pub fn evaluate_test(
     let head = model.head;
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
+    let subset = |idx: &[usize]| -> (Vec<f64>, Labels) {
+        let sub_out: Vec<f64> = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
+        let sub_y = match test_y {
+            Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
+            Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
+        };
+        (sub_out, sub_y)
+    };
+    let mut groups = Vec::new();
+    for g in group_columns {
+        let mut levels: BTreeMap<String, Vec<usize>> = BTreeMap::new();
+        for (i, l) in g.labels.iter().enumerate() {
+            levels.entry(l.clone().unwrap_or_else(|| "(missing)".into())).or_default().push(i);
+        }
+        for (level, idx) in levels {
+            let (o, y) = subset(&idx);
+            groups.push(GroupMetrics { column: g.name.clone(), level, rows: idx.len(), metrics: head.metrics(&o, &y) });
+        }
+    }
     let mut intervals = BTreeMap::new();
     for name in metrics.keys() {
         let interval = percentile_interval(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-            let sub_out: Vec<f64> = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
-            let sub_y = match test_y {
-                Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
-                Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
-            };
+            let (sub_out, sub_y) = subset(idx);
             head.metrics(&sub_out, &sub_y).get(name).copied().flatten()
         });
         if let Some(i) = interval {
@@ -214,5 +247,6 @@ pub fn evaluate_test(
         reliability,
         confusion,
         per_class: per_class_report,
+        groups,
     })
 }

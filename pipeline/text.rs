@@ -42,12 +42,14 @@ pub fn markdown_safe(s: &str) -> String {
             '&' => out.push_str("&amp;"),
             '"' => out.push_str("&quot;"),
             '|' => out.push_str("&#124;"),
-            '\\' | '`' | '*' | '_' | '[' | ']' | '(' | ')' | '#' | '!' | '~' | '{' | '}' | '+' | '-' | '.' | '=' | ':' => {
+            '\\' | '`' | '*' | '_' | '[' | ']' | '(' | ')' | '#' | '!' | '~' | '{' | '}' => {
                 out.push('\\');
                 out.push(c);
             }
+            '\n' => out.push_str("\\\\n"),
+            '\r' => out.push_str("\\\\r"),
             c if c.is_control() || matches!(c, '\u{200b}'..='\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}') => {
-                out.push_str(&format!("&#x{:x};", c as u32).replace("&#xa;", "\\n").replace("&#xd;", "\\r"));
+                out.push_str(&format!("U+{:04X}", c as u32));
             }
             c => out.push(c),
         }

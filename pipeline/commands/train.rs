@@ -131,7 +131,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         let (configs, selected_config, selected_run) = select(m.data.task, &plan, &runs, &m.selection.metric)?;
         let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
         let test_y = exp.labels(&exp.splits.test);
-        let test = evaluate_test(&runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed)?;
+        let groups: Vec<crate::selection::GroupColumn> = exp.roles.groups.iter().filter_map(|name| {
+            let col = exp.table.column(name)?;
+            Some(crate::selection::GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
+        }).collect();
+        let test = evaluate_test(&runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups)?;
         let selection = Selection {
             metric: m.selection.metric.clone(),
             higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
@@ -143,8 +147,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         };
         write_json(&layout.selection(), &selection)?;
         let seconds: Vec<(String, f64)> = runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect();
+        let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
         write_json(&layout.timing(), &serde_json::json!({
             "trained_at": crate::provenance::now_rfc3339(),
+            "git_commit": git_commit,
+            "git_dirty": git_dirty,
             "jobs": options.jobs,
             "wall_seconds": started.elapsed().as_secs_f64(),
             "run_seconds": seconds.into_iter().collect::<std::collections::BTreeMap<_, _>>(),

@@ -1,0 +1,97 @@
+//! The model card: every section present with real figures once rendered by a CommonMark renderer
+//! (pulldown-cmark), SVG figures that parse as XML and hold the plotted series, byte-identical
+//! re-rendering with `tabcard card`, user templates, and hostile text rendered harmlessly.
+
+mod common;
+
+use arrow::array::{ArrayRef, BooleanArray, Float64Array, StringArray};
+use common::*;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+fn trained(dir: &Path, manifest: &Path) -> PathBuf {
+    let out = bin().current_dir(dir).args(["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]).output().unwrap();
+    assert!(out.status.success(), "{}", stderr(&out));
+    std::fs::read_dir(dir.join("results")).unwrap().map(|e| e.unwrap().path()).find(|p| p.is_dir()).unwrap()
+}
+
+fn html(markdown: &str) -> String {
+    let mut out = String::new();
+    pulldown_cmark::html::push_html(&mut out, pulldown_cmark::Parser::new_ext(markdown, pulldown_cmark::Options::ENABLE_TABLES));
+    out
+}
+
+#[test]
+fn the_card_has_every_section_figures_and_is_reproducible() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 2500, "[sweep.grid]\n\"model.dropout\" = [0.0, 0.1, 0.3]\n");
+    let folder = trained(dir.path(), &manifest);
+    let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
+    let page = html(&card);
+    for heading in ["At a glance", "Purpose and ownership", "Cautions for decisions about people", "Data", "Capacity and regularization",
+        "Validation results (mean ± standard deviation across seeds)", "Test results", "Known limitations", "Provenance and reproduction"] {
+        assert!(page.contains(&format!("<h2>{heading}")), "missing section {heading}");
+    }
+    for needle in ["linear baseline", "weight decay (decoupled)", "dropout", "early stopping", "parameters", "95% bootstrap interval",
+        "Fairness across groups of people has not been assessed", "<table>", "Confusion matrix"] {
+        assert!(page.contains(needle), "card lacks {needle}");
+    }
+    let figures = ["learning-curves.svg", "grid-model-dropout.svg", "reliability.svg"];
+    for f in figures {
+        assert!(page.contains(&format!("src=\"figures/{f}\"")), "card does not show {f}");
+        let svg = std::fs::read_to_string(folder.join("figures").join(f)).unwrap();
+        let doc = roxmltree::Document::parse(&svg).unwrap_or_else(|e| panic!("{f} is not XML: {e}"));
+        let series: Vec<&str> = doc.descendants().filter(|n| n.attribute("class") == Some("series")).filter_map(|n| n.attribute("data-series")).collect();
+        assert!(!series.is_empty(), "{f} has no series");
+        let points = doc.descendants().filter(|n| n.attribute("class") == Some("series")).filter_map(|n| n.attribute("points")).map(|p| p.split(' ').count()).max().unwrap();
+        assert!(points >= 2, "{f}: a series with {points} points");
+        if f == "learning-curves.svg" {
+            assert!(series.contains(&"seed 1 train") && series.contains(&"seed 2 validation"), "{series:?}");
+        }
+    }
+
+    let before: Vec<(String, Vec<u8>)> = ["card.md", "figures/learning-curves.svg", "figures/reliability.svg"].iter().map(|f| (f.to_string(), std::fs::read(folder.join(f)).unwrap())).collect();
+    std::fs::remove_file(folder.join("card.md")).unwrap();
+    let out = run_in(dir.path(), &["card", folder.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    for (f, bytes) in before {
+        assert!(std::fs::read(folder.join(&f)).unwrap() == bytes, "{f} changed when re-rendered");
+    }
+
+    let templates = dir.path().join("templates");
+    std::fs::create_dir(&templates).unwrap();
+    std::fs::write(templates.join("card.md.tera"), "# Our own layout for {{ name }}\n{{ headline }}\n").unwrap();
+    let out = run_in(dir.path(), &["card", folder.to_str().unwrap(), "--templates", templates.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let custom = std::fs::read_to_string(folder.join("card.md")).unwrap();
+    assert!(custom.starts_with("# Our own layout for small-lease\ntest roc_auc "), "{custom}");
+}
+
+#[test]
+fn hostile_names_and_levels_render_harmlessly() {
+    let dir = tempfile::tempdir().unwrap();
+    let n = 600;
+    let evil_column = "[click me](http://evil.example) <img src=x onerror=alert(1)>|\n# Approved by compliance";
+    let evil_level = "<script>alert(1)</script> **bold** ![x](y)\u{202e}";
+    let columns: Vec<(&str, ArrayRef)> = vec![
+        (evil_column, Arc::new(Float64Array::from((0..n).map(|i| (i % 17) as f64).collect::<Vec<_>>())) as ArrayRef),
+        ("kind", Arc::new(StringArray::from((0..n).map(|i| if i % 3 == 0 { evil_level } else { "plain" }).collect::<Vec<_>>()))),
+        ("y", Arc::new(BooleanArray::from((0..n).map(|i| (i % 17) > 8 || i % 5 == 0).collect::<Vec<_>>()))),
+    ];
+    write_parquet(&dir.path().join("data.parquet"), columns);
+    let text = manifest("\n[experiment.x]\n").replace("\n[experiment.x]\n", "")
+        .replace("name = \"test\"", "name = \"test\"\ndescription = \"<b>trusted</b> [link](http://x)\\n## Fake section\"")
+        + "\n[model]\nhidden = [4]\n\n[training]\nepochs = 3\n\n[sweep]\nseeds = [1]\n\n[selection]\nbootstrap = 50\n";
+    std::fs::write(dir.path().join("m.toml"), text).unwrap();
+    let check = run_in(dir.path(), &["check", "m.toml"]);
+    assert!(check.status.success(), "{}", stderr(&check));
+    assert!(!stdout(&check).contains('\u{202e}') && !stdout(&check).contains("\n# Approved"), "terminal output carries control text");
+    let folder = trained(dir.path(), &dir.path().join("m.toml"));
+    let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
+    let page = html(&card);
+    for bad in ["<script", "<img src=x", "<b>", "href=\"http://evil", "href=\"http://x", "<h1>Approved", "<h2>Fake", "\u{202e}"] {
+        assert!(!page.contains(bad), "rendered card contains {bad:?}");
+    }
+    assert!(!card.lines().any(|l| l.starts_with("# Approved") || l.starts_with("## Fake")), "injected a heading");
+    assert!(page.contains("click me"), "the column name must still be shown, as text");
+}
