@@ -93,10 +93,11 @@ pub struct Selection {
     pub test: TestEvaluation,
 }
 
-fn collect(runs: &[&StoredRun], pick: impl Fn(&StoredRun) -> &MetricSet) -> BTreeMap<String, Spread> {
+/// Mean and spread of each metric over several metric sets (undefined values left out).
+fn spreads<'a>(sets: impl IntoIterator<Item = &'a MetricSet>) -> BTreeMap<String, Spread> {
     let mut by_name: BTreeMap<String, Vec<f64>> = BTreeMap::new();
-    for r in runs {
-        for (k, v) in pick(r) {
+    for set in sets {
+        for (k, v) in set {
             if let Some(v) = v {
                 by_name.entry(k.clone()).or_default().push(*v);
             }
@@ -124,8 +125,8 @@ pub fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSum
                 parameter_count: done.first().map(|r| r.record.parameter_count).unwrap_or(0),
                 runs_completed: done.len(),
                 runs_failed: mine.len() - done.len(),
-                validation: collect(&done, |r| &r.record.validation),
-                train: collect(&done, |r| &r.record.train),
+                validation: spreads(done.iter().map(|r| &r.record.validation)),
+                train: spreads(done.iter().map(|r| &r.record.train)),
                 gap: spread(&gaps),
                 best_epoch: spread(&epochs),
             }
@@ -215,14 +216,6 @@ pub fn evaluate_test(
             intervals.insert(name.clone(), i);
         }
     }
-    let mut by_name: BTreeMap<String, Vec<f64>> = BTreeMap::new();
-    for m in &per_seed {
-        for (k, v) in m {
-            if let Some(v) = v {
-                by_name.entry(k.clone()).or_default().push(*v);
-            }
-        }
-    }
     let (reliability, confusion, per_class_report) = match test_y {
         Labels::Classes { rows, classes } => {
             let predicted = predicted_classes(&outputs, *classes);
@@ -243,7 +236,7 @@ pub fn evaluate_test(
         rows: test_y.len(),
         metrics,
         intervals,
-        across_seeds: by_name.into_iter().filter_map(|(k, v)| spread(&v).map(|s| (k, s))).collect(),
+        across_seeds: spreads(&per_seed),
         reliability,
         confusion,
         per_class: per_class_report,

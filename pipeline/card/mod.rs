@@ -150,7 +150,7 @@ fn figure_name(key: &str) -> String {
 }
 
 /// Builds the figures: (file name, alt text, svg).
-fn figures(manifest: &Manifest, plan: &Plan, selection: &Selection, selected_runs: &[StoredRun]) -> Result<Vec<(String, String, String)>> {
+fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Vec<(String, String, String)>> {
     let mut out = Vec::new();
     let mut series = Vec::new();
     for r in selected_runs {
@@ -196,7 +196,6 @@ fn figures(manifest: &Manifest, plan: &Plan, selection: &Selection, selected_run
         };
         out.push((figure_name(key), format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}"), chart.render()));
     }
-    let _ = plan;
     if !selection.test.reliability.is_empty() {
         let points: Vec<(f64, f64)> = selection.test.reliability.iter().map(|b| (b.mean_predicted, b.observed)).collect();
         let chart = Chart {
@@ -217,8 +216,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Vec<(String, String, String)>)
     let (manifest, record, summary, plan, selection, timing) = load(layout)?;
     let m = &selection.metric;
     let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
-    let selected_runs: Vec<StoredRun> = runs.iter().filter(|r| r.record.config_id == selection.selected_config && r.record.outcome.is_completed())
-        .filter_map(|r| read_run(layout, &r.record.run_id).ok().flatten()).collect();
+    let selected_runs: Vec<&StoredRun> = runs.iter().filter(|r| r.record.config_id == selection.selected_config && r.record.outcome.is_completed()).collect();
     let selected_cfg = plan.config(&selection.selected_config).ok_or_else(|| Error::store(layout.plan(), "does not list the selected configuration"))?;
     let selected_summary = selection.configs.iter().find(|c| c.config_id == selection.selected_config);
     let baseline_summary = selection.configs.iter().find(|c| c.baseline);
@@ -322,7 +320,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Vec<(String, String, String)>)
         failed_runs: selection.configs.iter().map(|c| c.runs_failed).sum(),
     };
     let limitations: Vec<Limitation> = derive(&evidence).into_iter().map(|l| Limitation { finding: md(&l.finding), threshold: md(&l.threshold), ..l }).collect();
-    let figs = figures(&manifest, &plan, &selection, &selected_runs)?;
+    let figs = figures(&manifest, &selection, &selected_runs)?;
     let text = |v: &Value| v.as_str().map(str::to_string);
     let context = CardContext {
         name: md(&manifest.experiment.name),
