@@ -71,7 +71,7 @@ fn progress_display() -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
 }
 
 fn main() -> ExitCode {
-    tabcard::numerics::pin_single_threaded_kernels();
+    tabcard::numerics::prepare_process();
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Check { manifest } => commands::check::run(&manifest).map(|r| (r, 0)),

@@ -32,7 +32,7 @@ impl ScoringModel {
 
     /// Class probabilities (k per row) or predictions for every row of `x`.
     pub fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
-        crate::numerics::pin_single_threaded_kernels();
+        crate::numerics::prepare_process();
         let raw = raw_outputs(&mut self.network, x)?;
         Ok(self.head.predictions(&raw, self.scaling))
     }

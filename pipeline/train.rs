@@ -243,7 +243,7 @@ pub fn train(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, sele
 
 /// As [`train`], in a chosen precision (f64 serves gradient and convergence tests).
 pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str, dtype: DType) -> Result<RunResult> {
-    crate::numerics::pin_single_threaded_kernels();
+    crate::numerics::prepare_process();
     let t = &config.training;
     let n = data.train_x.rows;
     if n == 0 || data.validation_x.rows == 0 {

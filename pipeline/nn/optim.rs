@@ -8,78 +8,91 @@
 //!
 //! Decay and penalty apply to weight matrices only, never to biases or batch-norm parameters.
 
-use candle_core::{backprop::GradStore, Tensor, Var};
+//!
+//! The update runs on the host in f64, one fused pass per parameter (w, moments and gradient
+//! element by element), then the rounded weights are written back: a few tens of candle
+//! operations per step would otherwise cost more than the update itself. Only IEEE-exact
+//! operations (+, *, /, sqrt) are used, so the update is the same on every platform.
+
+use candle_core::{backprop::GradStore, DType, Tensor, Var};
 
 use crate::error::Result;
 use crate::manifest::{Optimizer as Kind, Schedule, TrainingSpec};
 
-struct Slot {
-    first: Option<Tensor>,
-    second: Option<Tensor>,
-}
-
 pub struct Optimizer {
     kind: Kind,
     spec: TrainingSpec,
-    slots: Vec<Slot>,
+    /// Per parameter: first moment (or SGD velocity) and second moment.
+    first: Vec<Vec<f64>>,
+    second: Vec<Vec<f64>>,
     steps: u64,
+}
+
+fn host_values(t: &Tensor) -> Result<Vec<f64>> {
+    let flat = t.flatten_all()?;
+    Ok(match t.dtype() {
+        DType::F32 => flat.to_vec1::<f32>()?.into_iter().map(f64::from).collect(),
+        _ => flat.to_dtype(DType::F64)?.to_vec1::<f64>()?,
+    })
 }
 
 impl Optimizer {
     pub fn new(spec: &TrainingSpec, parameters: usize) -> Self {
-        Optimizer {
-            kind: spec.optimizer,
-            spec: spec.clone(),
-            slots: (0..parameters).map(|_| Slot { first: None, second: None }).collect(),
-            steps: 0,
-        }
+        Optimizer { kind: spec.optimizer, spec: spec.clone(), first: vec![Vec::new(); parameters], second: vec![Vec::new(); parameters], steps: 0 }
     }
 
-    /// One update of every parameter (in the same order as at construction) at rate `lr`.
+    /// One update of every parameter (in the same order as at construction) at rate `lr`, with
+    /// gradients multiplied by `grad_scale` (clipping).
     pub fn step(&mut self, parameters: &[(String, &Var, bool)], grads: &GradStore, lr: f64, grad_scale: f64) -> Result<()> {
         self.steps += 1;
-        let t = self.steps as i32;
         let s = &self.spec;
-        for ((_, var, decays), slot) in parameters.iter().zip(&mut self.slots) {
+        let t = self.steps as i32;
+        let bias1 = 1.0 - s.beta1.powi(t);
+        let bias2 = 1.0 - s.beta2.powi(t);
+        for (i, (_, var, decays)) in parameters.iter().enumerate() {
             let Some(g) = grads.get(var.as_tensor()) else { continue };
-            let g = if grad_scale != 1.0 { (g * grad_scale)? } else { g.clone() };
-            let mut w = var.as_tensor().clone();
-            if *decays && s.weight_decay > 0.0 && self.kind != Kind::Adam {
-                w = (w * (1.0 - lr * s.weight_decay))?;
-            }
-            let w = match self.kind {
+            let g = host_values(g)?;
+            let mut w = host_values(var.as_tensor())?;
+            let decay = if *decays && s.weight_decay > 0.0 && self.kind != Kind::Adam { 1.0 - lr * s.weight_decay } else { 1.0 };
+            let m = &mut self.first[i];
+            let v = &mut self.second[i];
+            match self.kind {
                 Kind::Sgd => {
-                    if s.momentum > 0.0 {
-                        let v = match &slot.first {
-                            Some(v) => ((v * s.momentum)? + &g)?,
-                            None => g.clone(),
-                        };
-                        let update = if s.nesterov { (&g + (&v * s.momentum)?)? } else { v.clone() };
-                        slot.first = Some(v);
-                        (w - (update * lr)?)?
-                    } else {
-                        (w - (g * lr)?)?
+                    if s.momentum > 0.0 && m.is_empty() {
+                        *m = vec![0.0; w.len()];
+                    }
+                    for j in 0..w.len() {
+                        let gj = g[j] * grad_scale;
+                        w[j] *= decay;
+                        if s.momentum > 0.0 {
+                            // PyTorch's convention: the first step's velocity is the gradient itself.
+                            m[j] = if self.steps == 1 { gj } else { s.momentum * m[j] + gj };
+                            let update = if s.nesterov { gj + s.momentum * m[j] } else { m[j] };
+                            w[j] -= lr * update;
+                        } else {
+                            w[j] -= lr * gj;
+                        }
                     }
                 }
                 Kind::Adam | Kind::Adamw => {
-                    let m = match &slot.first {
-                        Some(m) => ((m * s.beta1)? + (&g * (1.0 - s.beta1))?)?,
-                        None => (&g * (1.0 - s.beta1))?,
-                    };
-                    let v = match &slot.second {
-                        Some(v) => ((v * s.beta2)? + (g.sqr()? * (1.0 - s.beta2))?)?,
-                        None => (g.sqr()? * (1.0 - s.beta2))?,
-                    };
-                    let m_hat_scale = 1.0 / (1.0 - s.beta1.powi(t));
-                    let v_hat_scale = 1.0 / (1.0 - s.beta2.powi(t));
-                    let denom = ((&v * v_hat_scale)?.sqrt()? + s.epsilon)?;
-                    let update = (&m * (lr * m_hat_scale))?.div(&denom)?;
-                    slot.first = Some(m);
-                    slot.second = Some(v);
-                    (w - update)?
+                    if m.is_empty() {
+                        *m = vec![0.0; w.len()];
+                        *v = vec![0.0; w.len()];
+                    }
+                    for j in 0..w.len() {
+                        let gj = g[j] * grad_scale;
+                        w[j] *= decay;
+                        m[j] = s.beta1 * m[j] + (1.0 - s.beta1) * gj;
+                        v[j] = s.beta2 * v[j] + (1.0 - s.beta2) * gj * gj;
+                        w[j] -= lr * (m[j] / bias1) / ((v[j] / bias2).sqrt() + s.epsilon);
+                    }
                 }
+            }
+            let updated = match var.dtype() {
+                DType::F32 => Tensor::from_vec(w.into_iter().map(|x| x as f32).collect::<Vec<f32>>(), var.dims(), &candle_core::Device::Cpu)?,
+                dtype => Tensor::from_vec(w, var.dims(), &candle_core::Device::Cpu)?.to_dtype(dtype)?,
             };
-            var.set(&w)?;
+            var.set(&updated)?;
         }
         Ok(())
     }
