@@ -68,6 +68,11 @@ pub fn open(manifest_path: &Path) -> Result<Experiment> {
 
 pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
     let data_path = loaded.data_path();
+    open_with_data(loaded, data_path)
+}
+
+/// As [`open_loaded`], with the data file given explicitly (verification of stored results).
+pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Experiment> {
     let file_hash = file_sha256(&data_path)?;
     let bytes = std::fs::metadata(&data_path).map(|m| m.len()).unwrap_or(0);
     let table = read_table(&data_path)?;

@@ -18,6 +18,7 @@ pub mod model;
 pub mod nn;
 pub mod numerics;
 pub mod plan;
+pub mod prepared;
 pub mod provenance;
 pub mod selection;
 pub mod rng;

@@ -30,6 +30,38 @@ enum Command {
         #[arg(long)]
         jobs: Option<usize>,
     },
+    /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
+    Verify {
+        /// A results folder, or a manifest whose results live under --results.
+        target: PathBuf,
+        /// Retrain every run, not only the selected configuration's.
+        #[arg(long)]
+        all: bool,
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+        #[arg(long)]
+        jobs: Option<usize>,
+        /// Data file to use instead of the recorded path (it must match the recorded fingerprints).
+        #[arg(long)]
+        data: Option<PathBuf>,
+    },
+    /// Score a Parquet file with a stored model (a run folder, or a results folder's selected run).
+    Predict {
+        model: PathBuf,
+        input: PathBuf,
+        #[arg(long)]
+        out: PathBuf,
+        /// Copy input columns that are neither features nor ids into the output.
+        #[arg(long)]
+        keep_extra: bool,
+    },
+    /// Show what changed between two results folders: manifest keys, data, metrics.
+    Compare { a: PathBuf, b: PathBuf },
+    /// List every recorded train invocation and whether it was verified.
+    History {
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+    },
     /// Re-render the model card of a results folder from stored results (no retraining).
     Card {
         results_folder: PathBuf,
@@ -70,27 +102,42 @@ fn progress_display() -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
     (bar, on_event)
 }
 
+fn default_jobs() -> usize {
+    std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
+}
+
 fn main() -> ExitCode {
     tabcard::numerics::prepare_process();
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Check { manifest } => commands::check::run(&manifest).map(|r| (r, 0)),
         Command::Train { manifest, results, jobs } => {
-            let jobs = jobs.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+            let jobs = jobs.unwrap_or_else(default_jobs);
             let (bar, on_event) = progress_display();
             let options = commands::train::TrainOptions { results_root: results, jobs };
             let outcome = commands::train::run(&manifest, &options, &on_event);
             bar.finish_and_clear();
             outcome.map(|o| (o.report, if o.failed_runs > 0 { 5 } else { 0 }))
         }
+        Command::Verify { target, all, results, jobs, data } => {
+            let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
+            commands::verify::run(&target, &options).map(|o| (o.report, if o.identical { 0 } else { 6 }))
+        }
+        Command::Predict { model, input, out, keep_extra } => {
+            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra }).map(|r| (r, 0))
+        }
+        Command::Compare { a, b } => commands::compare::run(&a, &b).map(|r| (r, 0)),
+        Command::History { results } => commands::history::run(&results).map(|r| (r, 0)),
         Command::Card { results_folder, templates } => commands::card::run(&results_folder, templates.as_deref()).map(|r| (r, 0)),
         Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, 0)),
     };
     match result {
         Ok((report, code)) => {
             print!("{report}");
-            if code != 0 {
-                eprintln!("error: some runs failed or diverged (see above)");
+            match code {
+                5 => eprintln!("error: some runs failed or diverged (see above)"),
+                6 => eprintln!("error: verification found differences (see above)"),
+                _ => {}
             }
             ExitCode::from(code)
         }

@@ -41,45 +41,85 @@ pub struct SweepReport {
     pub failed: Vec<(String, String)>,
 }
 
-fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
+/// What training one run produced, before it is stored.
+pub struct TrainedRun {
+    pub record: RunRecord,
+    pub tensors: Vec<crate::nn::mlp::NamedTensor>,
+    pub history: Vec<crate::train::EpochRecord>,
+    pub validation_outputs: Vec<f64>,
+    pub seconds: f64,
+}
+
+/// Trains one run of the plan and builds its record (an engine error becomes a failed outcome).
+pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun> {
     let planned = inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))?;
     let started = Instant::now();
     let result = train(inputs.head, &planned.config, spec.seed, &inputs.data, inputs.selection_metric);
     let seconds = started.elapsed().as_secs_f64();
-    let (record_fields, tensors, history, outputs) = match result {
-        Ok(r) => ((r.outcome, r.best_epoch, r.history.len(), r.stopped_early, r.parameter_count, r.target_scaling, r.train_metrics, r.validation_metrics), r.tensors, r.history, r.validation_outputs),
-        Err(e) => ((Outcome::Failed { detail: e.to_string() }, 0, 0, false, 0, None, Default::default(), Default::default()), Vec::new(), Vec::new(), Vec::new()),
-    };
-    let (outcome, best_epoch, epochs_run, stopped_early, parameter_count, target_scaling, train_metrics, validation_metrics) = record_fields;
-    let record = RunRecord {
+    let mut record = RunRecord {
         run_id: spec.id.clone(),
         config_id: spec.config_id.clone(),
         seed: spec.seed,
         baseline: planned.baseline,
-        outcome: outcome.clone(),
-        best_epoch,
-        epochs_run,
-        stopped_early,
-        parameter_count,
+        outcome: Outcome::Completed,
+        best_epoch: 0,
+        epochs_run: 0,
+        stopped_early: false,
+        parameter_count: 0,
         head: inputs.head,
-        target_scaling,
-        train: train_metrics,
-        validation: validation_metrics,
-        weights_sha256: if tensors.is_empty() { String::new() } else { weights_digest(&tensors) },
-        tensor_sha256: tensor_digests(&tensors),
+        target_scaling: None,
+        train: Default::default(),
+        validation: Default::default(),
+        weights_sha256: String::new(),
+        tensor_sha256: Default::default(),
     };
+    let r = match result {
+        Ok(r) => r,
+        Err(e) => {
+            record.outcome = Outcome::Failed { detail: e.to_string() };
+            return Ok(TrainedRun { record, tensors: Vec::new(), history: Vec::new(), validation_outputs: Vec::new(), seconds });
+        }
+    };
+    record.outcome = r.outcome;
+    record.best_epoch = r.best_epoch;
+    record.epochs_run = r.history.len();
+    record.stopped_early = r.stopped_early;
+    record.parameter_count = r.parameter_count;
+    record.target_scaling = r.target_scaling;
+    record.train = r.train_metrics;
+    record.validation = r.validation_metrics;
+    if !r.tensors.is_empty() {
+        record.weights_sha256 = weights_digest(&r.tensors);
+        record.tensor_sha256 = tensor_digests(&r.tensors);
+    }
+    Ok(TrainedRun { record, tensors: r.tensors, history: r.history, validation_outputs: r.validation_outputs, seconds })
+}
+
+fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
+    let planned = inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))?;
+    let t = train_run(inputs, spec)?;
+    let outcome = t.record.outcome.clone();
     write_run(inputs.layout, &RunArtifacts {
-        record,
+        record: t.record,
         config: &planned.config,
         preprocessor: inputs.preprocessor,
-        tensors: &tensors,
-        history: &history,
+        tensors: &t.tensors,
+        history: &t.history,
         validation_rows: inputs.validation_rows,
-        validation_outputs: &outputs,
+        validation_outputs: &t.validation_outputs,
         environment: inputs.environment,
-        seconds,
+        seconds: t.seconds,
     })?;
     Ok(outcome)
+}
+
+/// Runs `f` on a pool of `jobs` workers.
+pub fn in_pool<R: Send>(jobs: usize, f: impl FnOnce() -> R + Send) -> Result<R> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(jobs.max(1))
+        .build()
+        .map_err(|e| Error::Engine(format!("cannot start {jobs} workers: {e}")))?;
+    Ok(pool.install(f))
 }
 
 /// Trains every run of the plan that has no complete folder yet.
@@ -103,11 +143,7 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
     if pending.is_empty() {
         return Ok(report);
     }
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(inputs.jobs.max(1))
-        .build()
-        .map_err(|e| Error::Engine(format!("cannot start {} workers: {e}", inputs.jobs)))?;
-    let results: Vec<(String, Result<Outcome>)> = pool.install(|| {
+    let results: Vec<(String, Result<Outcome>)> = in_pool(inputs.jobs, || {
         pending
             .par_iter()
             .map(|spec| {
@@ -118,7 +154,7 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
                 (spec.id.clone(), r)
             })
             .collect()
-    });
+    })?;
     for (id, r) in results {
         let outcome = r?;
         if !outcome.is_completed() {

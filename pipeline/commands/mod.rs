@@ -3,5 +3,9 @@
 
 pub mod card;
 pub mod check;
+pub mod compare;
 pub mod demo;
+pub mod history;
+pub mod predict;
 pub mod train;
+pub mod verify;

@@ -6,16 +6,16 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use crate::data::prep::Preprocessor;
+use crate::prepared::Prepared;
 use crate::error::{Error, Result};
 use crate::experiment::{open, Experiment};
 use crate::format::fixed;
-use crate::plan::{self, Plan};
+use crate::plan::Plan;
 use crate::selection::{evaluate_test, select, Selection};
 use crate::store::ledger::{self, LedgerEntry};
 use crate::store::run::{read_run, StoredRun};
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
 use crate::sweep::{self, Event, SweepInputs};
-use crate::train::RunData;
 
 pub struct TrainOptions {
     pub results_root: PathBuf,
@@ -98,25 +98,19 @@ fn table(selection: &Selection) -> String {
 
 pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
     let started = Instant::now();
-    let exp = open(manifest_path)?;
+    let prepared = Prepared::new(open(manifest_path)?)?;
+    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
-    let plan = plan::build(m, &exp.fingerprint);
-    let preprocessor = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path)?;
-    prepare_folder(&exp, &layout, &plan, &preprocessor)?;
-
-    let (train_x, _) = preprocessor.transform(&exp.table, &exp.splits.train, &exp.data_path)?;
-    let (validation_x, _) = preprocessor.transform(&exp.table, &exp.splits.validation, &exp.data_path)?;
-    let train_y = exp.labels(&exp.splits.train);
-    let validation_y = exp.labels(&exp.splits.validation);
+    prepare_folder(exp, &layout, plan, preprocessor)?;
     let environment = crate::numerics::current();
     let inputs = SweepInputs {
         layout: &layout,
-        plan: &plan,
+        plan,
         head: exp.head(),
-        data: RunData { train_x: &train_x, train_y: &train_y, validation_x: &validation_x, validation_y: &validation_y },
+        data: prepared.run_data(),
         validation_rows: &exp.splits.validation,
-        preprocessor: &preprocessor,
+        preprocessor,
         selection_metric: &m.selection.metric,
         environment: &environment,
         jobs: options.jobs,
@@ -127,8 +121,8 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let selection: Selection = if nothing_new {
         read_json(&layout.selection())?
     } else {
-        let runs = load_runs(&layout, &plan)?;
-        let (configs, selected_config, selected_run) = select(m.data.task, &plan, &runs, &m.selection.metric)?;
+        let runs = load_runs(&layout, plan)?;
+        let (configs, selected_config, selected_run) = select(m.data.task, plan, &runs, &m.selection.metric)?;
         let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
         let test_y = exp.labels(&exp.splits.test);
         let groups: Vec<crate::selection::GroupColumn> = exp.roles.groups.iter().filter_map(|name| {

@@ -28,24 +28,50 @@ pub const FILE: &str = "ledger.jsonl";
 
 /// Appends one line with a single write on a file opened for appending.
 pub fn append(results_root: &Path, entry: &LedgerEntry) -> Result<()> {
-    let path = results_root.join(FILE);
-    let mut line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))?;
-    line.push('\n');
-    let mut f = std::fs::OpenOptions::new().create(true).append(true).open(&path).map_err(|e| Error::io(&path, "open the ledger", e))?;
-    f.write_all(line.as_bytes()).map_err(|e| Error::io(&path, "append to the ledger", e))?;
-    f.sync_all().map_err(|e| Error::io(&path, "sync the ledger", e))
+    let line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))? + "\n";
+    append_line(&results_root.join(FILE), line)
 }
 
 pub fn read(results_root: &Path) -> Result<Vec<LedgerEntry>> {
-    let path = results_root.join(FILE);
-    let text = match std::fs::read_to_string(&path) {
+    read_lines(&results_root.join(FILE))
+}
+
+/// One `verify` invocation, appended to `verifications.jsonl` beside the ledger.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct VerificationEntry {
+    pub time: String,
+    pub fingerprint: String,
+    pub results: String,
+    pub runs_checked: usize,
+    pub identical: bool,
+}
+
+pub const VERIFICATIONS: &str = "verifications.jsonl";
+
+fn append_line(path: &Path, line: String) -> Result<()> {
+    let mut f = std::fs::OpenOptions::new().create(true).append(true).open(path).map_err(|e| Error::io(path, "open for appending", e))?;
+    f.write_all(line.as_bytes()).map_err(|e| Error::io(path, "append to", e))?;
+    f.sync_all().map_err(|e| Error::io(path, "sync", e))
+}
+
+pub fn append_verification(results_root: &Path, entry: &VerificationEntry) -> Result<()> {
+    let line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))? + "\n";
+    append_line(&results_root.join(VERIFICATIONS), line)
+}
+
+pub fn read_verifications(results_root: &Path) -> Result<Vec<VerificationEntry>> {
+    read_lines(&results_root.join(VERIFICATIONS))
+}
+
+fn read_lines<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Vec<T>> {
+    let text = match std::fs::read_to_string(path) {
         Ok(t) => t,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Vec::new()),
-        Err(e) => return Err(Error::io(&path, "read the ledger", e)),
+        Err(e) => return Err(Error::io(path, "read", e)),
     };
     text.lines()
         .enumerate()
         .filter(|(_, l)| !l.trim().is_empty())
-        .map(|(i, l)| serde_json::from_str(l).map_err(|e| Error::store(&path, format!("line {}: {e}", i + 1))))
+        .map(|(i, l)| serde_json::from_str(l).map_err(|e| Error::store(path, format!("line {}: {e}", i + 1))))
         .collect()
 }

@@ -1,0 +1,36 @@
+//! `tabcard history [--results DIR]`: the ledger: every train invocation with its time,
+//! experiment, fingerprint, git commit, selected metric, and whether it has been verified.
+
+use std::fmt::Write;
+use std::path::Path;
+
+use crate::error::Result;
+use crate::format::fixed;
+use crate::store::ledger::{read, read_verifications};
+use crate::text::terminal_cell;
+
+pub fn run(results_root: &Path) -> Result<String> {
+    let entries = read(results_root)?;
+    let verifications = read_verifications(results_root)?;
+    let mut out = String::new();
+    if entries.is_empty() {
+        let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
+        return Ok(out);
+    }
+    let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}", "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric", "verified");
+    for e in &entries {
+        let commit = match (&e.git_commit, e.git_dirty) {
+            (Some(c), Some(true)) => format!("{}+", &c[..8.min(c.len())]),
+            (Some(c), _) => c[..8.min(c.len())].to_string(),
+            _ => "-".into(),
+        };
+        let metric = e.selected_value.map(|v| format!("{} {}", e.selection_metric, fixed(v, 4))).unwrap_or_else(|| "-".into());
+        let verified = match verifications.iter().rev().find(|v| v.fingerprint == e.fingerprint) {
+            Some(v) if v.identical => format!("yes ({})", v.time),
+            Some(v) => format!("FAILED ({})", v.time),
+            None => "no".into(),
+        };
+        let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}", e.time, terminal_cell(&e.experiment, 28), &e.fingerprint[..16], commit, e.runs_trained, e.runs_reused, metric, verified);
+    }
+    Ok(out)
+}

@@ -1,0 +1,145 @@
+//! `tabcard predict <run or results folder> <input.parquet> --out <predictions.parquet>`: score new
+//! rows with a stored model: the input schema is checked against the training schema, unseen
+//! category levels go to the unseen bucket and are counted, numbers outside the training range
+//! are flagged, and probabilities or predictions are written with the id columns.
+
+use arrow::array::{ArrayRef, BooleanArray, Float64Array, Int64Array, StringArray};
+use std::fmt::Write;
+use std::path::Path;
+use std::sync::Arc;
+
+use crate::data::parquet::{encode, read_table, WriteOptions};
+use crate::data::prep::InputEncoding;
+use crate::data::summary::DataSummary;
+use crate::data::table::{Column, ColumnValues, Table};
+use crate::error::{Error, Result};
+use crate::experiment::ExperimentRecord;
+use crate::manifest::Task;
+use crate::model::ScoringModel;
+use crate::selection::Selection;
+use crate::store::run::{read_run, INDEX};
+use crate::store::{read_json, write_atomic, Layout};
+use crate::text::terminal_safe;
+
+pub struct PredictOptions {
+    /// Copy input columns that are neither features nor ids into the output.
+    pub keep_extra: bool,
+}
+
+/// (experiment folder, run id) for a run folder or an experiment's results folder.
+fn locate(target: &Path) -> Result<(Layout, String)> {
+    if target.join(INDEX).exists() {
+        let id = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let root = target.parent().and_then(Path::parent).ok_or_else(|| Error::store(target, "is not inside a results folder"))?;
+        return Ok((Layout::new(root), id));
+    }
+    let layout = Layout::new(target);
+    layout.check_format()?;
+    let selection: Selection = read_json(&layout.selection())?;
+    Ok((layout, selection.selected_run))
+}
+
+fn numeric_kind(c: &Column) -> bool {
+    !matches!(c.values, ColumnValues::Text { .. })
+}
+
+/// Every training feature must be present with a compatible type.
+fn check_schema(table: &Table, summary: &DataSummary, inputs: &[InputEncoding], file: &Path) -> Result<()> {
+    let missing: Vec<&str> = inputs.iter().map(InputEncoding::name).filter(|n| table.column(n).is_none()).collect();
+    if !missing.is_empty() {
+        return Err(Error::data(file, Some(missing[0]), format!(
+            "is missing: the model was trained with it (missing: {})", missing.iter().map(|m| format!("`{}`", terminal_safe(m))).collect::<Vec<_>>().join(", ")
+        )));
+    }
+    for enc in inputs {
+        let name = enc.name();
+        let Some(col) = table.column(name) else { continue };
+        let trained = summary.columns.iter().find(|c| c.name == name).map(|c| c.kind.as_str()).unwrap_or("");
+        let ok = match enc {
+            InputEncoding::Numeric { .. } => numeric_kind(col),
+            InputEncoding::Categorical { .. } => (trained == "string") == col.is_text(),
+        };
+        if !ok {
+            return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on a {trained} column", col.source_type)));
+        }
+    }
+    Ok(())
+}
+
+fn passthrough(col: &Column) -> ArrayRef {
+    let n = col.len();
+    match &col.values {
+        ColumnValues::Float(v) => Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
+        ColumnValues::Int(v) => Arc::new(Int64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
+        ColumnValues::Bool(v) => Arc::new(BooleanArray::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
+        ColumnValues::Text { .. } => Arc::new(StringArray::from((0..n).map(|r| col.label(r)).collect::<Vec<_>>())),
+    }
+}
+
+/// Scores `input` and returns the output columns and the summary.
+pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(Vec<(String, ArrayRef)>, String)> {
+    let (layout, run_id) = locate(target)?;
+    let record: ExperimentRecord = read_json(&layout.experiment())?;
+    let summary: DataSummary = read_json(&layout.data_summary())?;
+    let run = read_run(&layout, &run_id)?.ok_or_else(|| Error::store(layout.run(&run_id), "is missing"))?;
+    if !run.record.outcome.is_completed() {
+        return Err(Error::store(&run.dir, format!("holds no model: the run {}", run.record.outcome.describe())));
+    }
+    let mut model = ScoringModel::from_stored(&run)?;
+    let table = read_table(input)?;
+    if table.rows == 0 {
+        return Err(Error::data(input, None, "has no rows"));
+    }
+    check_schema(&table, &summary, &model.preprocessor.inputs, input)?;
+    let rows: Vec<usize> = (0..table.rows).collect();
+    let (x, report) = model.preprocessor.transform(&table, &rows, input)?;
+    let outputs = model.score(&x)?;
+    let mut columns: Vec<(String, ArrayRef)> = Vec::new();
+    for id in &record.ids {
+        if let Some(col) = table.column(id) {
+            columns.push((id.clone(), passthrough(col)));
+        }
+    }
+    let k = model.head.values_per_row();
+    match record.task {
+        Task::Regression => columns.push(("prediction".into(), Arc::new(Float64Array::from(outputs.clone())))),
+        _ => {
+            for (c, label) in record.class_labels.iter().enumerate() {
+                if record.task == Task::Binary && c == 0 {
+                    continue;
+                }
+                columns.push((format!("p_{label}"), Arc::new(Float64Array::from(outputs.chunks_exact(k).map(|r| r[c]).collect::<Vec<_>>()))));
+            }
+            let predicted: Vec<String> = outputs.chunks_exact(k).map(|r| record.class_labels[crate::metrics::classification::argmax(r)].clone()).collect();
+            columns.push(("predicted".into(), Arc::new(StringArray::from(predicted))));
+        }
+    }
+    columns.push(("outside_training_range".into(), Arc::new(BooleanArray::from(report.out_of_range.clone()))));
+    if options.keep_extra {
+        let used: Vec<&str> = model.preprocessor.inputs.iter().map(InputEncoding::name).chain(record.ids.iter().map(String::as_str)).collect();
+        for col in table.columns.iter().filter(|c| !used.contains(&c.name.as_str())) {
+            if columns.iter().any(|(n, _)| *n == col.name) {
+                return Err(Error::data(input, Some(&col.name), "clashes with an output column name"));
+            }
+            columns.push((col.name.clone(), passthrough(col)));
+        }
+    }
+    let mut out = String::new();
+    let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
+    let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
+    if report.unseen_levels.is_empty() {
+        let _ = writeln!(out, "unseen    no category levels unseen in training");
+    }
+    for (col, n) in &report.unseen_levels {
+        let _ = writeln!(out, "unseen    {} rows of `{}` hold a level unseen in training (scored as the unseen bucket)", n, terminal_safe(col));
+    }
+    Ok((columns, out))
+}
+
+pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions) -> Result<String> {
+    let (columns, mut report) = score(target, input, options)?;
+    let bytes = encode(columns, WriteOptions::default())?;
+    write_atomic(output, &bytes)?;
+    let _ = writeln!(report, "wrote     {}", output.display());
+    Ok(report)
+}

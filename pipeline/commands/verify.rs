@@ -1,0 +1,214 @@
+//! `tabcard verify <results folder | manifest>`: rerun an experiment from what its results folder
+//! records and compare every weight tensor (SHA-256), every history row and every metric with the
+//! stored ones. Data, manifest and stored files are checked first; the environment is compared
+//! with the one recorded, because that is the first question an auditor asks.
+
+use std::collections::BTreeSet;
+use std::fmt::Write;
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::experiment::{open, open_with_data, ExperimentRecord};
+use crate::fingerprint::{file_sha256, sha256_hex};
+use crate::manifest::{LoadedManifest, Manifest};
+use crate::numerics::NumericsFingerprint;
+use crate::plan::Plan;
+use crate::prepared::Prepared;
+use crate::selection::Selection;
+use crate::store::run::{read_run, StoredRun, ENVIRONMENT};
+use crate::store::weights::tensor_digests;
+use crate::store::{read_json, Layout};
+use crate::sweep::{in_pool, train_run, SweepInputs, TrainedRun};
+
+pub struct VerifyOptions {
+    pub all: bool,
+    pub jobs: usize,
+    /// Use this data file instead of the recorded path (it must still match the fingerprints).
+    pub data: Option<PathBuf>,
+    pub results_root: PathBuf,
+}
+
+pub struct VerifyOutcome {
+    pub report: String,
+    pub identical: bool,
+}
+
+/// The results folder a verify target names: the folder itself, or a manifest's folder under the
+/// results root.
+fn results_folder(target: &Path, results_root: &Path) -> Result<PathBuf> {
+    if target.extension().is_some_and(|e| e == "toml") {
+        let exp = open(target)?;
+        let folder = results_root.join(exp.short_id());
+        if !folder.exists() {
+            return Err(Error::store(&folder, format!("no results for experiment {} (train it first)", exp.fingerprint)));
+        }
+        return Ok(folder);
+    }
+    Ok(target.to_path_buf())
+}
+
+/// The first difference between a retrained run and its stored record, if any.
+fn compare_run(stored: &StoredRun, fresh: &TrainedRun) -> Result<Vec<String>> {
+    let mut diffs = Vec::new();
+    let r = &stored.record;
+    if r.outcome != fresh.record.outcome {
+        diffs.push(format!("outcome: stored {}, rerun {}", r.outcome.describe(), fresh.record.outcome.describe()));
+    }
+    if !r.tensor_sha256.is_empty() {
+        let on_disk = tensor_digests(&stored.tensors()?);
+        if let Some(name) = r.tensor_sha256.keys().find(|k| on_disk.get(*k) != r.tensor_sha256.get(*k)) {
+            diffs.push(format!("stored weights file: tensor `{name}` does not match its recorded SHA-256 (weights.safetensors was altered)"));
+        }
+    }
+    let names: BTreeSet<&String> = r.tensor_sha256.keys().chain(fresh.record.tensor_sha256.keys()).collect();
+    if let Some(name) = names.into_iter().find(|k| r.tensor_sha256.get(*k) != fresh.record.tensor_sha256.get(*k)) {
+        diffs.push(format!(
+            "first differing tensor `{name}`: recorded SHA-256 {}, rerun {}",
+            r.tensor_sha256.get(name).map(String::as_str).unwrap_or("(absent)"),
+            fresh.record.tensor_sha256.get(name).map(String::as_str).unwrap_or("(absent)")
+        ));
+    }
+    let history = stored.history()?;
+    let first = history.iter().zip(&fresh.history).position(|(a, b)| a != b).or_else(|| (history.len() != fresh.history.len()).then(|| history.len().min(fresh.history.len())));
+    if let Some(i) = first {
+        diffs.push(format!("history differs from epoch {} on ({} stored epochs, {} rerun)", i + 1, history.len(), fresh.history.len()));
+    }
+    for (split, a, b) in [("training", &r.train, &fresh.record.train), ("validation", &r.validation, &fresh.record.validation)] {
+        if let Some((k, v)) = a.iter().find(|(k, v)| b.get(*k) != Some(v)) {
+            diffs.push(format!("{split} {k}: stored {v:?}, rerun {:?}", b.get(k).copied().flatten()));
+        }
+    }
+    Ok(diffs)
+}
+
+fn environment_differences(recorded: &NumericsFingerprint, now: &NumericsFingerprint) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut field = |name: &str, a: String, b: String| {
+        if a != b {
+            out.push(format!("{name}: recorded {a}, now {b}"));
+        }
+    };
+    field("tool version", recorded.tool_version.clone(), now.tool_version.clone());
+    field("candle version", recorded.candle_version.clone(), now.candle_version.clone());
+    field("target", format!("{} {}", recorded.target_arch, recorded.target_os), format!("{} {}", now.target_arch, now.target_os));
+    field("CPU features", recorded.cpu_features.join(" "), now.cpu_features.join(" "));
+    field("cache sizes", format!("{:?}", recorded.cache_bytes), format!("{:?}", now.cache_bytes));
+    field("C library", recorded.libc.clone(), now.libc.clone());
+    out
+}
+
+pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
+    let folder = results_folder(target, &options.results_root)?;
+    let layout = Layout::new(&folder);
+    layout.check_format()?;
+    let record: ExperimentRecord = read_json(&layout.experiment())?;
+    let manifest_text = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
+    let manifest_hash = sha256_hex(manifest_text.as_bytes());
+    if manifest_hash != record.manifest_sha256 {
+        return Err(Error::store(layout.manifest(), format!(
+            "was edited after training: its SHA-256 is {manifest_hash}, experiment.json records {}", record.manifest_sha256
+        )));
+    }
+    let manifest: Manifest = serde_json::from_str(&manifest_text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
+    let manifest_path = PathBuf::from(&record.manifest_path);
+    let data_path = match &options.data {
+        Some(p) => p.clone(),
+        None => {
+            let beside = manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path);
+            if beside.exists() { beside } else { PathBuf::from(&record.data.resolved_path) }
+        }
+    };
+    let file_hash = file_sha256(&data_path)?;
+    if file_hash != record.data.file_sha256 {
+        return Err(Error::data(&data_path, None, format!(
+            "has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256
+        )));
+    }
+    let exp = open_with_data(LoadedManifest { path: manifest_path, manifest }, data_path.clone())?;
+    if exp.data.content_sha256 != record.data.content_sha256 {
+        return Err(Error::data(&data_path, None, format!("content hash {} differs from the recorded {}", exp.data.content_sha256, record.data.content_sha256)));
+    }
+    let prepared = Prepared::with_fingerprint(exp, &record.fingerprint)?;
+    let stored_plan: Plan = read_json(&layout.plan())?;
+    if stored_plan != prepared.plan {
+        return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));
+    }
+    let stored_prep: crate::data::prep::Preprocessor = read_json(&layout.preprocessor())?;
+    if stored_prep != prepared.preprocessor {
+        return Err(Error::store(layout.preprocessor(), "differs from the preprocessor refitted on the training rows"));
+    }
+    let selection: Selection = read_json(&layout.selection())?;
+    let specs: Vec<_> = prepared.plan.runs.iter().filter(|r| options.all || r.config_id == selection.selected_config).collect();
+
+    let now = crate::numerics::current();
+    let inputs = SweepInputs {
+        layout: &layout,
+        plan: &prepared.plan,
+        head: prepared.exp.head(),
+        data: prepared.run_data(),
+        validation_rows: &prepared.exp.splits.validation,
+        preprocessor: &prepared.preprocessor,
+        selection_metric: &prepared.exp.manifest.selection.metric,
+        environment: &now,
+        jobs: options.jobs,
+    };
+    let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(options.jobs, || {
+        specs
+            .par_iter()
+            .map(|spec| {
+                let verdict = (|| {
+                    let stored = read_run(&layout, &spec.id)?.ok_or_else(|| Error::store(layout.run(&spec.id), "is missing"))?;
+                    let fresh = train_run(&inputs, spec)?;
+                    compare_run(&stored, &fresh)
+                })();
+                (spec.id.clone(), spec.seed, verdict)
+            })
+            .collect()
+    })?;
+
+    let mut out = String::new();
+    let mut identical = true;
+    let _ = writeln!(out, "verifying {} ({})", layout.root.display(), record.fingerprint);
+    let _ = writeln!(out, "data      {} matches: file SHA-256 {}, content SHA-256 {}", data_path.display(), record.data.file_sha256, record.data.content_sha256);
+    let _ = writeln!(out, "manifest  matches its recorded SHA-256 {}", record.manifest_sha256);
+    let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| read_json(&layout.run(&s.id).join(ENVIRONMENT)).ok());
+    match recorded_env.map(|r| environment_differences(&r, &now)) {
+        Some(d) if d.is_empty() => { let _ = writeln!(out, "environment  same numerics fingerprint as recorded"); }
+        Some(d) => {
+            let _ = writeln!(out, "environment  DIFFERS from the recorded one (bit-identity is promised only on the same numerics fingerprint):");
+            for line in d {
+                let _ = writeln!(out, "  {line}");
+            }
+        }
+        None => { let _ = writeln!(out, "environment  no recorded environment to compare"); }
+    }
+    let _ = writeln!(out, "\nruns ({}):", if options.all { "all" } else { "selected configuration" });
+    for (id, seed, verdict) in &verdicts {
+        match verdict {
+            Ok(d) if d.is_empty() => { let _ = writeln!(out, "  {id} seed {seed}: identical (weights, history, metrics)"); }
+            Ok(d) => {
+                identical = false;
+                let _ = writeln!(out, "  {id} seed {seed}: DIFFERS");
+                for line in d {
+                    let _ = writeln!(out, "    {line}");
+                }
+            }
+            Err(e) => {
+                identical = false;
+                let _ = writeln!(out, "  {id} seed {seed}: CANNOT VERIFY: {e}");
+            }
+        }
+    }
+    let _ = writeln!(out, "\nverdict   {}", if identical { "verified: every run reproduced bit for bit" } else { "NOT verified" });
+    let root = layout.root.parent().unwrap_or(Path::new("."));
+    crate::store::ledger::append_verification(root, &crate::store::ledger::VerificationEntry {
+        time: crate::provenance::now_rfc3339(),
+        fingerprint: record.fingerprint.clone(),
+        results: layout.root.display().to_string(),
+        runs_checked: verdicts.len(),
+        identical,
+    })?;
+    Ok(VerifyOutcome { report: out, identical })
+}

@@ -1,0 +1,41 @@
+//! An experiment made ready to train or to retrain: its plan, the preprocessor fitted on the
+//! training rows, and the training and validation matrices that every run shares read-only.
+
+use crate::data::prep::{Matrix, Preprocessor};
+use crate::error::Result;
+use crate::experiment::Experiment;
+use crate::plan::{self, Plan};
+use crate::train::{Labels, RunData};
+
+pub struct Prepared {
+    pub exp: Experiment,
+    pub plan: Plan,
+    pub preprocessor: Preprocessor,
+    pub train_x: Matrix,
+    pub validation_x: Matrix,
+    pub train_y: Labels,
+    pub validation_y: Labels,
+}
+
+impl Prepared {
+    pub fn new(exp: Experiment) -> Result<Self> {
+        let fingerprint = exp.fingerprint.clone();
+        Self::with_fingerprint(exp, &fingerprint)
+    }
+
+    /// With the plan's run ids derived from a recorded experiment fingerprint (verification under
+    /// another tool version keeps the stored run ids).
+    pub fn with_fingerprint(exp: Experiment, fingerprint: &str) -> Result<Self> {
+        let plan = plan::build(&exp.manifest, fingerprint);
+        let preprocessor = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path)?;
+        let (train_x, _) = preprocessor.transform(&exp.table, &exp.splits.train, &exp.data_path)?;
+        let (validation_x, _) = preprocessor.transform(&exp.table, &exp.splits.validation, &exp.data_path)?;
+        let train_y = exp.labels(&exp.splits.train);
+        let validation_y = exp.labels(&exp.splits.validation);
+        Ok(Prepared { exp, plan, preprocessor, train_x, validation_x, train_y, validation_y })
+    }
+
+    pub fn run_data(&self) -> RunData<'_> {
+        RunData { train_x: &self.train_x, train_y: &self.train_y, validation_x: &self.validation_x, validation_y: &self.validation_y }
+    }
+}
