@@ -164,11 +164,72 @@ impl Builder {
 
 /// Reads every column of a Parquet file.
 pub fn read_table(path: &Path) -> Result<Table> {
-    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    read_from(bytes::Bytes::from(bytes), path)
+}
+
+/// Reads a Parquet file held in memory; `name` is only used in error messages.
+pub fn read_table_from_bytes(bytes: Vec<u8>, name: &Path) -> Result<Table> {
+    read_from(bytes::Bytes::from(bytes), name)
+}
+
+/// Checks every dictionary page's declared value count against its size before the Arrow reader
+/// trusts it: the parquet crate allocates the declared count up front, so a hostile header could
+/// otherwise ask for gigabytes. Data pages are skipped without decompressing them.
+fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file: R, path: &Path) -> Result<()> {
+    use parquet::basic::Type as Physical;
+    use parquet::column::page::Page;
+    use parquet::file::reader::{FileReader, SerializedFileReader};
+    let corrupt = |e: parquet::errors::ParquetError| Error::data(path, None, format!("corrupt Parquet page: {e}"));
+    let reader = SerializedFileReader::new(file).map_err(corrupt)?;
+    for g in 0..reader.num_row_groups() {
+        let group = reader.get_row_group(g).map_err(corrupt)?;
+        for c in 0..group.num_columns() {
+            let meta = group.metadata().column(c);
+            // Minimum encoded bits per value (PLAIN): a length prefix for byte arrays.
+            let min_bits: u64 = match meta.column_type() {
+                Physical::BOOLEAN => 1,
+                Physical::INT32 | Physical::FLOAT => 32,
+                Physical::INT64 | Physical::DOUBLE => 64,
+                Physical::INT96 => 96,
+                Physical::BYTE_ARRAY => 32,
+                Physical::FIXED_LEN_BYTE_ARRAY => 8 * meta.column_descr().type_length().max(1) as u64,
+            };
+            let mut pages = group.get_column_page_reader(c).map_err(corrupt)?;
+            while let Some(peek) = pages.peek_next_page().map_err(corrupt)? {
+                if !peek.is_dict {
+                    break;
+                }
+                if let Some(Page::DictionaryPage { buf, num_values, .. }) = pages.get_next_page().map_err(corrupt)? {
+                    if num_values as u64 * min_bits > 8 * buf.len() as u64 {
+                        return Err(Error::data(path, Some(meta.column_path().string().as_str()), format!(
+                            "corrupt Parquet dictionary page in row group {g}: {num_values} values declared in {} bytes", buf.len()
+                        )));
+                    }
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
+fn read_from<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path: &Path) -> Result<Table> {
     let not_parquet = |e: parquet::errors::ParquetError| {
         Error::data(path, None, format!("not a readable Parquet file: {e}"))
     };
-    let builder = ParquetRecordBatchReaderBuilder::try_new(file).map_err(not_parquet)?;
+    let builder = ParquetRecordBatchReaderBuilder::try_new(file.clone()).map_err(not_parquet)?;
+    // The parquet crate asserts (panics) on negative column offsets or sizes; reject them first.
+    for (g, group) in builder.metadata().row_groups().iter().enumerate() {
+        for column in group.columns() {
+            let start = column.dictionary_page_offset().unwrap_or(column.data_page_offset());
+            if start < 0 || column.compressed_size() < 0 {
+                return Err(Error::data(path, Some(column.column_path().string().as_str()), format!(
+                    "corrupt Parquet metadata in row group {g}: negative column offset or size"
+                )));
+            }
+        }
+    }
+    check_dictionary_pages(file, path)?;
     let schema = builder.schema().clone();
     let mut columns = Vec::with_capacity(schema.fields().len());
     for field in schema.fields() {
@@ -196,14 +257,26 @@ pub fn read_table(path: &Path) -> Result<Table> {
         return Err(Error::data(path, Some(&dup.name), "appears more than once in the schema"));
     }
     let reader = builder.with_batch_size(65_536).build().map_err(not_parquet)?;
-    let mut rows = 0usize;
-    for batch in reader {
-        let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
-        for (builder, array) in columns.iter_mut().zip(batch.columns()) {
-            builder.append(array, path)?;
+    // Decoding hostile pages can still hit an assertion inside the parquet crate; such a panic is
+    // caught here and reported as a corrupt file, never allowed to end the process.
+    let decoded = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| -> Result<(usize, Vec<Builder>)> {
+        let mut rows = 0usize;
+        for batch in reader {
+            let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
+            for (builder, array) in columns.iter_mut().zip(batch.columns()) {
+                builder.append(array, path)?;
+            }
+            rows += batch.num_rows();
         }
-        rows += batch.num_rows();
-    }
+        Ok((rows, columns))
+    }));
+    let (rows, columns) = match decoded {
+        Ok(result) => result?,
+        Err(panic) => {
+            let detail = panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
+            return Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")));
+        }
+    };
     Ok(Table { rows, columns: columns.into_iter().map(Builder::finish).collect() })
 }
 

@@ -2,7 +2,7 @@
 //! reference configuration: 32 float inputs, hidden 256-256, ReLU, AdamW (lr 1e-3, wd 1e-2),
 //! batch 256, on synthetic data from a fixed seed (100,000 rows by default).
 //!
-//! Run: `cargo run --release --example train_throughput -- [rows] [epochs] [dropout] [batch_norm]`
+//! Run: `cargo run --release --example train_throughput -- [rows] [epochs] [dropout] [bn]`
 
 use std::time::Instant;
 
