@@ -195,17 +195,13 @@ fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file:
                 Physical::BYTE_ARRAY => 32,
                 Physical::FIXED_LEN_BYTE_ARRAY => 8 * meta.column_descr().type_length().max(1) as u64,
             };
+            // A dictionary page, when present, is a chunk's first page.
             let mut pages = group.get_column_page_reader(c).map_err(corrupt)?;
-            while let Some(peek) = pages.peek_next_page().map_err(corrupt)? {
-                if !peek.is_dict {
-                    break;
-                }
-                if let Some(Page::DictionaryPage { buf, num_values, .. }) = pages.get_next_page().map_err(corrupt)? {
-                    if num_values as u64 * min_bits > 8 * buf.len() as u64 {
-                        return Err(Error::data(path, Some(meta.column_path().string().as_str()), format!(
-                            "corrupt Parquet dictionary page in row group {g}: {num_values} values declared in {} bytes", buf.len()
-                        )));
-                    }
+            if let Some(Page::DictionaryPage { buf, num_values, .. }) = pages.get_next_page().map_err(corrupt)? {
+                if num_values as u64 * min_bits > 8 * buf.len() as u64 {
+                    return Err(Error::data(path, Some(meta.column_path().string().as_str()), format!(
+                        "corrupt Parquet dictionary page in row group {g}: {num_values} values declared in {} bytes", buf.len()
+                    )));
                 }
             }
         }
@@ -213,7 +209,19 @@ fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file:
     Ok(())
 }
 
+/// Reads a table; a panic inside the parquet crate on hostile input is caught here and reported
+/// as a corrupt file, never allowed to end the process.
 fn read_from<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path: &Path) -> Result<Table> {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode(file, path))) {
+        Ok(result) => result,
+        Err(panic) => {
+            let detail = panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
+            Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")))
+        }
+    }
+}
+
+fn decode<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path: &Path) -> Result<Table> {
     let not_parquet = |e: parquet::errors::ParquetError| {
         Error::data(path, None, format!("not a readable Parquet file: {e}"))
     };
@@ -257,26 +265,14 @@ fn read_from<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, p
         return Err(Error::data(path, Some(&dup.name), "appears more than once in the schema"));
     }
     let reader = builder.with_batch_size(65_536).build().map_err(not_parquet)?;
-    // Decoding hostile pages can still hit an assertion inside the parquet crate; such a panic is
-    // caught here and reported as a corrupt file, never allowed to end the process.
-    let decoded = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| -> Result<(usize, Vec<Builder>)> {
-        let mut rows = 0usize;
-        for batch in reader {
-            let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
-            for (builder, array) in columns.iter_mut().zip(batch.columns()) {
-                builder.append(array, path)?;
-            }
-            rows += batch.num_rows();
+    let mut rows = 0usize;
+    for batch in reader {
+        let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
+        for (builder, array) in columns.iter_mut().zip(batch.columns()) {
+            builder.append(array, path)?;
         }
-        Ok((rows, columns))
-    }));
-    let (rows, columns) = match decoded {
-        Ok(result) => result?,
-        Err(panic) => {
-            let detail = panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
-            return Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")));
-        }
-    };
+        rows += batch.num_rows();
+    }
     Ok(Table { rows, columns: columns.into_iter().map(Builder::finish).collect() })
 }
 
