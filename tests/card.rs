@@ -12,7 +12,7 @@ use std::sync::Arc;
 fn trained(dir: &Path, manifest: &Path) -> PathBuf {
     let out = bin().current_dir(dir).args(["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]).output().unwrap();
     assert!(out.status.success(), "{}", stderr(&out));
-    std::fs::read_dir(dir.join("results")).unwrap().map(|e| e.unwrap().path()).find(|p| p.is_dir()).unwrap()
+    experiment_folder(&dir.join("results")).unwrap()
 }
 
 fn html(markdown: &str) -> String {

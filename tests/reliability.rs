@@ -10,10 +10,6 @@ use std::time::{Duration, Instant};
 use tabcard::store::run::read_run;
 use tabcard::store::Layout;
 
-fn experiment_folder(results: &Path) -> Option<PathBuf> {
-    std::fs::read_dir(results).ok()?.map(|e| e.unwrap().path()).find(|p| p.is_dir())
-}
-
 /// Every run folder under its final name passes its integrity check, and every JSON file parses.
 fn assert_store_consistent(folder: &Path) {
     let layout = Layout::new(folder);

@@ -36,10 +36,6 @@ fn snapshot(root: &Path) -> BTreeMap<String, Vec<u8>> {
     out
 }
 
-fn experiment_folder(results: &Path) -> PathBuf {
-    std::fs::read_dir(results).unwrap().map(|e| e.unwrap().path()).find(|p| p.is_dir()).unwrap()
-}
-
 fn train(dir: &Path, manifest: &Path, results: &str, jobs: &str, rayon: &str) -> std::process::Output {
     bin().current_dir(dir)
         .args(["train", manifest.to_str().unwrap(), "--results", results, "--jobs", jobs])
@@ -58,7 +54,7 @@ fn worker_count_and_thread_settings_do_not_change_the_results() {
     assert!(one.status.success(), "{}", stderr(&one));
     let two = train(dir.path(), &manifest, "two", "2", "2");
     assert!(two.status.success(), "{}", stderr(&two));
-    let (a, b) = (experiment_folder(&dir.path().join("one")), experiment_folder(&dir.path().join("two")));
+    let (a, b) = (experiment_folder(&dir.path().join("one")).unwrap(), experiment_folder(&dir.path().join("two")).unwrap());
     assert_eq!(a.file_name(), b.file_name(), "same experiment fingerprint");
     let (sa, sb) = (snapshot(&a), snapshot(&b));
     assert_eq!(sa.keys().collect::<Vec<_>>(), sb.keys().collect::<Vec<_>>());
@@ -97,7 +93,7 @@ fn a_killed_sweep_resumes_without_redoing_or_changing_finished_runs() {
 
     let reference = train(dir.path(), &manifest, "reference", "2", "1");
     assert!(reference.status.success(), "{}", stderr(&reference));
-    let expected = snapshot(&experiment_folder(&dir.path().join("reference")));
+    let expected = snapshot(&experiment_folder(&dir.path().join("reference")).unwrap());
 
     let mut child = bin().current_dir(dir.path())
         .args(["train", manifest.to_str().unwrap(), "--results", "killed", "--jobs", "1"])

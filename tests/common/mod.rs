@@ -74,3 +74,8 @@ seeds = [1, 2]
     std::fs::write(&path, text).unwrap();
     path
 }
+
+/// The one experiment folder under a results root, if it exists yet.
+pub fn experiment_folder(results: &Path) -> Option<PathBuf> {
+    std::fs::read_dir(results).ok()?.map(|e| e.unwrap().path()).find(|p| p.is_dir())
+}
