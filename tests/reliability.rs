@@ -6,7 +6,7 @@ mod common;
 
 use common::*;
 use std::path::{Path, PathBuf};
-use std::time::{Duration, Instant};
+use std::time::Duration;
 use tabcard::store::run::read_run;
 use tabcard::store::Layout;
 

@@ -6,7 +6,7 @@ mod common;
 
 use common::*;
 use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::time::{Duration, Instant};
 
 /// Every file under `root` (relative path -> bytes), without timing files and with the card's

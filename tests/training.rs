@@ -61,7 +61,7 @@ fn gradient_check(model_spec: ModelSpec, task: Task, classes: usize, loss_kind: 
         Task::Binary => tensor_from(vec![0.0, 1.0, 1.0, 0.0, 1.0, 0.0], (n, 1), DType::F64).unwrap(),
         Task::Regression => tensor_from(vec![2.5, -1.0, 0.3, 4.0, -3.0, 0.1], (n, 1), DType::F64).unwrap(),
     };
-    let mut loss_of = |model: &mut Mlp| -> Tensor {
+    let loss_of = |model: &mut Mlp| -> Tensor {
         let mut d1 = Stream::new(1, Purpose::Dropout);
         let mut d2 = Stream::new(1, Purpose::InputNoise);
         let raw = model.forward(&x, &mut Mode::Train { dropout: &mut d1, noise: &mut d2 }).unwrap();
