@@ -49,6 +49,8 @@ fn keep_freed_memory() {}
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct NumericsFingerprint {
     pub tool_version: String,
+    /// The git commit tabcard was built from (`+changes` when the tree had uncommitted edits).
+    pub tool_commit: String,
     pub candle_version: String,
     pub target_arch: String,
     pub target_os: String,
@@ -126,6 +128,7 @@ fn libc_version() -> String {
 pub fn current() -> NumericsFingerprint {
     NumericsFingerprint {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        tool_commit: env!("TABCARD_SOURCE_COMMIT").to_string(),
         candle_version: CANDLE_VERSION.to_string(),
         target_arch: std::env::consts::ARCH.to_string(),
         target_os: std::env::consts::OS.to_string(),

@@ -387,7 +387,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Vec<(String, String, String)>)
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         environment: vec![
-            Row { cells: vec!["tabcard".into(), md(&environment.tool_version)] },
+            Row { cells: vec!["tabcard".into(), md(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))] },
             Row { cells: vec!["candle".into(), md(&environment.candle_version)] },
             Row { cells: vec!["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))] },
             Row { cells: vec!["CPU features".into(), md(&environment.cpu_features.join(" "))] },
