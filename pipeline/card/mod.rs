@@ -153,10 +153,10 @@ fn figure_name(key: &str) -> String {
 fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Vec<(String, String, String)>> {
     let mut out = Vec::new();
     let mut series = Vec::new();
-    for r in selected_runs {
+    for (colour, r) in selected_runs.iter().enumerate() {
         let h = r.history()?;
-        series.push(Series { name: format!("seed {} train", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.train_loss)).collect(), errors: None, dashed: false });
-        series.push(Series { name: format!("seed {} validation", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.validation_loss)).collect(), errors: None, dashed: true });
+        series.push(Series { name: format!("seed {} train", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.train_loss)).collect(), errors: None, dashed: false, colour });
+        series.push(Series { name: format!("seed {} validation", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.validation_loss)).collect(), errors: None, dashed: true, colour });
     }
     let chart = Chart { title: "Learning curves, selected configuration".into(), x_label: "epoch".into(), y_label: "loss".into(), series, x_categories: None, diagonal: false, fixed_unit_axes: false };
     out.push(("learning-curves.svg".into(), "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration".into(), chart.render()));
@@ -181,9 +181,9 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
             }
         }
         let mut series = Vec::new();
-        for (label, (val, sd, train)) in lines {
-            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false });
-            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true });
+        for (colour, (label, (val, sd, train))) in lines.into_iter().enumerate() {
+            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false, colour });
+            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true, colour });
         }
         let chart = Chart {
             title: format!("{m} across {key}"),
@@ -202,7 +202,7 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
             title: "Reliability diagram, selected run, test split".into(),
             x_label: "mean predicted probability".into(),
             y_label: "observed share of positives".into(),
-            series: vec![Series { name: "selected run".into(), points, errors: None, dashed: false }],
+            series: vec![Series { name: "selected run".into(), points, errors: None, dashed: false, colour: 0 }],
             x_categories: None,
             diagonal: true,
             fixed_unit_axes: true,

@@ -12,6 +12,8 @@ pub struct Series {
     /// Half-widths of error bars, one per point.
     pub errors: Option<Vec<f64>>,
     pub dashed: bool,
+    /// Palette index; a train and a validation series of the same seed share one colour.
+    pub colour: usize,
 }
 
 pub struct Chart {
@@ -27,10 +29,10 @@ pub struct Chart {
 }
 
 const PALETTE: [&str; 8] = ["#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#8c564b", "#17becf", "#7f7f7f"];
-const W: f64 = 640.0;
+const W: f64 = 700.0;
 const H: f64 = 400.0;
 const LEFT: f64 = 70.0;
-const RIGHT: f64 = 170.0;
+const RIGHT: f64 = 230.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 55.0;
 
@@ -41,6 +43,19 @@ fn xml(s: &str) -> String {
 
 fn f(x: f64) -> String {
     format!("{x:.2}")
+}
+
+/// Tick positions at a 1, 2 or 5 x 10^k step covering [lo, hi].
+fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    let raw = (hi - lo) / 6.0;
+    if !(raw.is_finite() && raw > 0.0) {
+        return vec![lo];
+    }
+    let magnitude = 10f64.powf(raw.log10().floor());
+    let step = [1.0, 2.0, 5.0, 10.0].iter().map(|m| m * magnitude).find(|s| *s >= raw).unwrap_or(10.0 * magnitude);
+    let first = (lo / step).ceil() as i64;
+    let last = (hi / step).floor() as i64;
+    (first..=last).map(|i| i as f64 * step).collect()
 }
 
 fn nice_range(lo: f64, hi: f64) -> (f64, f64) {
@@ -85,8 +100,7 @@ impl Chart {
         let _ = writeln!(s, r##"<rect x="0" y="0" width="{W}" height="{H}" fill="#ffffff"/>"##);
         let _ = writeln!(s, r#"<text x="{}" y="22" font-size="14" font-weight="bold">{}</text>"#, f(LEFT), xml(&self.title));
         let _ = writeln!(s, r##"<rect x="{}" y="{}" width="{}" height="{}" fill="none" stroke="#444444"/>"##, f(LEFT), f(TOP), f(W - LEFT - RIGHT), f(H - TOP - BOTTOM));
-        for i in 0..=4 {
-            let y = y0 + (y1 - y0) * i as f64 / 4.0;
+        for y in nice_ticks(y0, y1) {
             let _ = writeln!(s, r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#dddddd"/><text x="{}" y="{}" text-anchor="end">{}</text>"##,
                 f(LEFT), f(sy(y)), f(W - RIGHT), f(sy(y)), f(LEFT - 6.0), f(sy(y) + 4.0), xml(&crate::format::sig(y, 3)));
         }
@@ -97,8 +111,7 @@ impl Chart {
                 }
             }
             None => {
-                for i in 0..=4 {
-                    let x = x0 + (x1 - x0) * i as f64 / 4.0;
+                for x in nice_ticks(x0, x1) {
                     let _ = writeln!(s, r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#, f(sx(x)), f(H - BOTTOM + 18.0), xml(&crate::format::sig(x, 3)));
                 }
             }
@@ -109,7 +122,7 @@ impl Chart {
             let _ = writeln!(s, r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#999999" stroke-dasharray="3 3"/>"##, f(sx(0.0)), f(sy(0.0)), f(sx(1.0)), f(sy(1.0)));
         }
         for (i, series) in self.series.iter().enumerate() {
-            let colour = PALETTE[i % PALETTE.len()];
+            let colour = PALETTE[series.colour % PALETTE.len()];
             let dash = if series.dashed { r#" stroke-dasharray="6 4""# } else { "" };
             let pts: Vec<String> = series.points.iter().filter(|p| p.0.is_finite() && p.1.is_finite()).map(|p| format!("{},{}", f(sx(p.0)), f(sy(p.1)))).collect();
             let _ = writeln!(s, r#"<polyline class="series" data-series="{}" points="{}" fill="none" stroke="{colour}" stroke-width="1.8"{dash}/>"#, xml(&series.name), pts.join(" "));
