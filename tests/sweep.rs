@@ -132,3 +132,25 @@ fn a_killed_sweep_resumes_without_redoing_or_changing_finished_runs() {
     }
     assert_eq!(snapshot(&folder), expected, "resumed results differ from an uninterrupted sweep");
 }
+
+#[test]
+fn a_diverging_run_is_recorded_and_the_others_go_on() {
+    let dir = tempfile::tempdir().unwrap();
+    let grid = "[sweep.grid]\n\"training.learning_rate\" = [0.01, 1e30]\n";
+    let manifest = small_lease_experiment(dir.path(), 2000, grid);
+    let text = std::fs::read_to_string(&manifest).unwrap().replace("[training]", "[training]\noptimizer = \"sgd\"").replace("seeds = [1, 2]", "seeds = [1]");
+    std::fs::write(&manifest, text).unwrap();
+    let out = train(dir.path(), &manifest, "results", "2", "1");
+    assert_eq!(out.status.code(), Some(5), "{}", stderr(&out));
+    let report = stdout(&out);
+    assert!(report.contains("runs: 3 trained, 0 reused, 1 failed, 3 planned"), "{report}");
+    assert!(report.contains("diverged in epoch 1: training loss became NaN"), "{report}");
+    assert!(stderr(&out).contains("some runs failed or diverged"));
+    let folder = experiment_folder(&dir.path().join("results")).unwrap();
+    let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
+    assert!(card.contains("Some runs failed or diverged"), "the card must state the failed run");
+    // A rerun keeps the recorded divergence instead of retrying it, and still says so.
+    let again = train(dir.path(), &manifest, "results", "2", "1");
+    assert_eq!(again.status.code(), Some(5));
+    assert!(stdout(&again).contains("nothing to train"), "{}", stdout(&again));
+}
