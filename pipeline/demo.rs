@@ -19,9 +19,13 @@
 //!
 //! **Greenhouse yield** (regression): a fictional growers' cooperative predicts weekly tomato yield
 //! per bed (kg) from light, temperature, humidity, irrigation, nutrient strength and variety:
-//! `yield = 4 + 6 (1 - exp(-light / 6)) - 0.08 (temp - t_opt(variety))^2 + 0.9 ln(1 + irrigation / 20)
-//! - 0.05 |humidity - 70| + 0.6 ec - 0.12 ec^2 + week effect + N(0, 0.6^2)`, where the optimal
-//! temperature depends on the variety (an interaction).
+//!
+//! ```text
+//! yield = 4 + 6 (1 - exp(-light / 6)) - 0.08 (temp - t_opt(variety))^2 + 0.9 ln(1 + irrigation / 20)
+//!         - 0.05 |humidity - 70| + 0.6 ec - 0.12 ec^2 + week effect + N(0, 0.6^2)
+//! ```
+//!
+//! where the optimal temperature depends on the variety (an interaction).
 
 use arrow::array::{ArrayRef, BooleanArray, DictionaryArray, Float64Array, Int32Array, Int64Array, StringArray};
 use arrow::datatypes::Int32Type;
@@ -103,7 +107,6 @@ pub fn lease_defaults(rows: usize, seed: u64) -> Vec<(String, ArrayRef)> {
             + if credit_missing { 0.5 } else { -0.018 * (cr - 680.0) }
             + 0.45 * lp as f64 - 0.7 * col.min(1.5) + 1.5 * xor - 0.75 + eq_effect + rg_effect;
         z_parts.push(z);
-        id.last_mut().map(|_| ());
         age.push((a * 10.0).round() / 10.0);
         revenue.push((!revenue_missing).then_some((rev * 10.0).round() / 10.0));
         lease.push((l * 10.0).round() / 10.0);

@@ -27,6 +27,9 @@ use crate::text::markdown_safe as md;
 use limitations::{derive, Evidence, Limitation};
 use plots::{Chart, Series};
 
+/// Rendered figures: (file name, alt text, SVG).
+type Figures = Vec<(String, String, String)>;
+
 const TEMPLATES: &[(&str, &str)] = &[
     ("card.md.tera", include_str!("../../templates/card.md.tera")),
     ("cautions.md.tera", include_str!("../../templates/cautions.md.tera")),
@@ -150,7 +153,7 @@ fn figure_name(key: &str) -> String {
 }
 
 /// Builds the figures: (file name, alt text, svg).
-fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Vec<(String, String, String)>> {
+fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Figures> {
     let mut out = Vec::new();
     let mut series = Vec::new();
     for (colour, r) in selected_runs.iter().enumerate() {
@@ -164,7 +167,9 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
     let m = &selection.metric;
     for (key, values) in &manifest.sweep.grid {
         let others: Vec<&String> = manifest.sweep.grid.keys().filter(|k| *k != key).collect();
-        let mut lines: BTreeMap<String, (Vec<(f64, f64)>, Vec<f64>, Vec<(f64, f64)>)> = BTreeMap::new();
+        // Per line of the chart: validation points, their seed sd, training points.
+        type Line = (Vec<(f64, f64)>, Vec<f64>, Vec<(f64, f64)>);
+        let mut lines: BTreeMap<String, Line> = BTreeMap::new();
         for c in selection.configs.iter().filter(|c| !c.baseline) {
             let Some(v) = c.overrides.get(key) else { continue };
             let Some(x) = values.iter().position(|g| g == v) else { continue };
@@ -212,7 +217,7 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
     Ok(out)
 }
 
-fn build(layout: &Layout) -> Result<(CardContext, Vec<(String, String, String)>)> {
+fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
     let (manifest, record, summary, plan, selection, timing) = load(layout)?;
     let m = &selection.metric;
     let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
@@ -370,7 +375,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Vec<(String, String, String)>)
         regularizer_rows,
         optimizer: format!("{} (learning rate {}{}{})", training.optimizer.as_str(), sig(training.learning_rate, 4),
             if training.optimizer == crate::manifest::Optimizer::Sgd { format!(", momentum {}{}", sig(training.momentum, 3), if training.nesterov { ", Nesterov" } else { "" }) } else { format!(", betas {} / {}", sig(training.beta1, 4), sig(training.beta2, 4)) },
-            format!(", batch size {}", training.batch_size)),
+            format_args!(", batch size {}", training.batch_size)),
         schedule: format!("{:?} with {} warm-up epoch(s)", training.schedule, training.warmup_epochs).to_lowercase(),
         epochs: format!("at most {}; best epoch per seed {}", training.epochs, spread_text(selected_summary.and_then(|s| s.best_epoch.as_ref()))),
         grid_rows,

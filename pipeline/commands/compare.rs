@@ -77,7 +77,7 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
     let _ = writeln!(out, "\nselected configurations, validation (mean ± sd across seeds) and test:");
     let (ca, cb) = (selected(&sa.selection), selected(&sb.selection));
     let metrics: std::collections::BTreeSet<&String> = ca.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default().into_iter().chain(cb.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default()).collect();
-    let _ = writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  {}", "metric", "A", "B", "B - A", "judgement");
+    let _ = writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  judgement", "metric", "A", "B", "B - A");
     for m in metrics {
         let (Some(x), Some(y)) = (ca.and_then(|c| c.validation.get(m)), cb.and_then(|c| c.validation.get(m))) else { continue };
         let delta = y.mean - x.mean;

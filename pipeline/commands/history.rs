@@ -17,7 +17,7 @@ pub fn run(results_root: &Path) -> Result<String> {
         let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
         return Ok(out);
     }
-    let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}", "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric", "verified");
+    let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} verified", "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric");
     for e in &entries {
         let commit = match (&e.git_commit, e.git_dirty) {
             (Some(c), Some(true)) => format!("{}+", &c[..8.min(c.len())]),
