@@ -11,6 +11,11 @@ use std::sync::Once;
 /// Candle's version as locked in Cargo.lock (kept in step by a test).
 pub const CANDLE_VERSION: &str = "0.11.1";
 
+/// The crate features that select numerical kernels, as this build compiles them: candle-core with
+/// its default (CPU) features and gemm without its `x86-v4` (AVX-512) kernels, so gemm picks among
+/// its scalar, FMA and AVX2 paths at run time.
+pub const KERNEL_FEATURES: &str = "candle-core default features; gemm 0.19 default features (no x86-v4)";
+
 static PIN: Once = Once::new();
 
 /// Prepares the process for training, once: candle's kernels single-threaded (its matrix multiply
@@ -52,6 +57,7 @@ pub struct NumericsFingerprint {
     /// The git commit tabcard was built from (`+changes` when the tree had uncommitted edits).
     pub tool_commit: String,
     pub candle_version: String,
+    pub kernel_features: String,
     pub target_arch: String,
     pub target_os: String,
     /// CPU features that select kernels in gemm and in the compiler's code (x86: sse4.1, avx,
@@ -130,11 +136,22 @@ pub fn current() -> NumericsFingerprint {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         tool_commit: env!("TABCARD_SOURCE_COMMIT").to_string(),
         candle_version: CANDLE_VERSION.to_string(),
+        kernel_features: KERNEL_FEATURES.to_string(),
         target_arch: std::env::consts::ARCH.to_string(),
         target_os: std::env::consts::OS.to_string(),
         cpu_features: cpu_features(),
         cache_bytes: cache_sizes(),
         libc: libc_version(),
         threads_per_run: 1,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn recorded_candle_version_matches_the_lock_file() {
+        let lock = include_str!("../Cargo.lock");
+        let entry = lock.split("[[package]]").find(|p| p.contains("name = \"candle-core\"")).unwrap();
+        assert!(entry.contains(&format!("version = \"{}\"", super::CANDLE_VERSION)), "{entry}");
     }
 }

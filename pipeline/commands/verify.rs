@@ -93,6 +93,7 @@ fn environment_differences(recorded: &NumericsFingerprint, now: &NumericsFingerp
     field("tool version", recorded.tool_version.clone(), now.tool_version.clone());
     field("tool source commit", recorded.tool_commit.clone(), now.tool_commit.clone());
     field("candle version", recorded.candle_version.clone(), now.candle_version.clone());
+    field("kernel features", recorded.kernel_features.clone(), now.kernel_features.clone());
     field("target", format!("{} {}", recorded.target_arch, recorded.target_os), format!("{} {}", now.target_arch, now.target_os));
     field("CPU features", recorded.cpu_features.join(" "), now.cpu_features.join(" "));
     field("cache sizes", format!("{:?}", recorded.cache_bytes), format!("{:?}", now.cache_bytes));
