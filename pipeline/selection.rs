@@ -157,7 +157,8 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
         }
     }
     let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::Engine("the selected configuration has no usable run".into()))?;
-    Ok((configs.clone(), chosen.config_id.clone(), run_id))
+    let chosen_id = chosen.config_id.clone();
+    Ok((configs, chosen_id, run_id))
 }
 
 /// Scores the test rows with every seed of the selected configuration; bootstrap intervals for

@@ -41,6 +41,10 @@ pub struct SweepReport {
     pub failed: Vec<(String, String)>,
 }
 
+fn planned_config<'a>(inputs: &'a SweepInputs<'_>, spec: &RunSpec) -> Result<&'a crate::plan::PlannedConfig> {
+    inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))
+}
+
 /// What training one run produced, before it is stored.
 pub struct TrainedRun {
     pub record: RunRecord,
@@ -52,7 +56,7 @@ pub struct TrainedRun {
 
 /// Trains one run of the plan and builds its record (an engine error becomes a failed outcome).
 pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun> {
-    let planned = inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))?;
+    let planned = planned_config(inputs, spec)?;
     let started = Instant::now();
     let result = train(inputs.head, &planned.config, spec.seed, &inputs.data, inputs.selection_metric);
     let seconds = started.elapsed().as_secs_f64();
@@ -96,7 +100,7 @@ pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun>
 }
 
 fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
-    let planned = inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))?;
+    let planned = planned_config(inputs, spec)?;
     let t = train_run(inputs, spec)?;
     let outcome = t.record.outcome.clone();
     write_run(inputs.layout, &RunArtifacts {

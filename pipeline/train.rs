@@ -52,6 +52,11 @@ pub struct TargetScaling {
     pub std: f64,
 }
 
+impl TargetScaling {
+    /// No scaling (classification heads, or a missing record).
+    pub const IDENTITY: TargetScaling = TargetScaling { mean: 0.0, std: 1.0 };
+}
+
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct EpochRecord {
     pub epoch: usize,
@@ -111,6 +116,11 @@ pub struct Head {
     pub huber_delta: f64,
 }
 
+fn softplus(x: f64) -> f64 {
+    // log(1 + e^x) without overflow.
+    if x > 0.0 { x + libm::log1p(libm::exp(-x)) } else { libm::log1p(libm::exp(x)) }
+}
+
 impl Head {
     pub fn outputs(&self) -> usize {
         match self.task {
@@ -126,14 +136,7 @@ impl Head {
             _ => self.classes,
         }
     }
-}
 
-fn softplus(x: f64) -> f64 {
-    // log(1 + e^x) without overflow.
-    if x > 0.0 { x + libm::log1p(libm::exp(-x)) } else { libm::log1p(libm::exp(x)) }
-}
-
-impl Head {
     /// Mean loss of raw network outputs, computed on the host in f64 with `libm`.
     pub fn host_loss(&self, raw: &[f32], labels: &Labels, scaling: Option<TargetScaling>) -> f64 {
         let n = labels.len().max(1) as f64;
@@ -152,7 +155,7 @@ impl Head {
                 }).sum::<f64>() / n
             }
             (Task::Regression, Labels::Values(v)) => {
-                let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+                let s = scaling.unwrap_or(TargetScaling::IDENTITY);
                 raw.iter().zip(v).map(|(&p, &y)| {
                     let r = p as f64 - (y - s.mean) / s.std;
                     match self.loss {
@@ -182,7 +185,7 @@ impl Head {
                 e.into_iter().map(move |x| x / sum)
             }).collect(),
             Task::Regression => {
-                let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+                let s = scaling.unwrap_or(TargetScaling::IDENTITY);
                 raw.iter().map(|&p| p as f64 * s.std + s.mean).collect()
             }
         }
@@ -225,7 +228,7 @@ fn batch_targets(labels: &Labels, idx: &[usize], scaling: Option<TargetScaling>,
             tensor_from(idx.iter().map(|&i| rows[i] as f32).collect(), (idx.len(), 1), DType::F32)?
         }
         (Labels::Values(v), _) => {
-            let s = scaling.unwrap_or(TargetScaling { mean: 0.0, std: 1.0 });
+            let s = scaling.unwrap_or(TargetScaling::IDENTITY);
             tensor_from(idx.iter().map(|&i| ((v[i] - s.mean) / s.std) as f32).collect(), (idx.len(), 1), DType::F32)?
         }
     })
