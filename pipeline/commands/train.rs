@@ -41,14 +41,15 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     } else {
         crate::store::create_dir(&layout.root)?;
     }
-    write_json(&layout.format(), &FormatRecord::current())?;
     write_atomic(&layout.manifest(), canonical.as_bytes())?;
     let source = std::fs::read(&exp.manifest_path).map_err(|e| Error::io(&exp.manifest_path, "read the manifest", e))?;
     write_atomic(&layout.manifest_source(), &source)?;
     write_json(&layout.experiment(), &exp.record())?;
     write_json(&layout.data_summary(), &exp.summary)?;
     write_json(&layout.plan(), plan)?;
-    write_json(&layout.preprocessor(), preprocessor)
+    write_json(&layout.preprocessor(), preprocessor)?;
+    // format.json last: its presence tells a concurrent `train` that the other files are whole.
+    write_json(&layout.format(), &FormatRecord::current())
 }
 
 pub fn load_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
