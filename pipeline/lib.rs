@@ -21,6 +21,8 @@ pub mod plan;
 pub mod prepared;
 pub mod provenance;
 pub mod selection;
+pub mod shard;
+pub mod slurm;
 pub mod rng;
 pub mod store;
 pub mod sweep;

@@ -29,6 +29,41 @@ enum Command {
         /// Runs trained at once (each run is single-threaded); default: available cores.
         #[arg(long)]
         jobs: Option<usize>,
+        /// Train only shard K of N of the run list (0 <= K < N, run i belongs to shard i mod N), e.g. one task of a job array.
+        #[arg(long, value_name = "K/N")]
+        shard: Option<tabcard::shard::Shard>,
+    },
+    /// Write a SLURM job array that trains the experiment shard by shard on a cluster, plus the merge job; --submit hands both to sbatch.
+    Slurm {
+        manifest: PathBuf,
+        /// Results root on a file system every node shares (written into the scripts as an absolute path).
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+        /// CPUs per array task; each task trains that many runs at once.
+        #[arg(long, default_value_t = 2)]
+        cpus_per_task: usize,
+        /// Runs packed into one array task (default: --cpus-per-task); more tasks are capped by the cluster's MaxArraySize.
+        #[arg(long)]
+        runs_per_task: Option<usize>,
+        /// Memory per task, as sbatch --mem takes it.
+        #[arg(long, default_value = "4G")]
+        mem: String,
+        /// Time limit per task, as sbatch --time takes it (default: the partition's).
+        #[arg(long)]
+        time: Option<String>,
+        #[arg(long)]
+        partition: Option<String>,
+        #[arg(long)]
+        account: Option<String>,
+        /// An environment module to load in each task (repeatable, in order).
+        #[arg(long = "module", value_name = "MODULE")]
+        modules: Vec<String>,
+        /// The tabcard executable the tasks run (default: this one).
+        #[arg(long)]
+        executable: Option<PathBuf>,
+        /// Submit the array and the dependent merge job with sbatch.
+        #[arg(long)]
+        submit: bool,
     },
     /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
     Verify {
@@ -111,10 +146,10 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Check { manifest } => commands::check::run(&manifest).map(|r| (r, 0)),
-        Command::Train { manifest, results, jobs } => {
+        Command::Train { manifest, results, jobs, shard } => {
             let jobs = jobs.unwrap_or_else(default_jobs);
             let (bar, on_event) = progress_display();
-            let options = commands::train::TrainOptions { results_root: results, jobs };
+            let options = commands::train::TrainOptions { results_root: results, jobs, shard };
             let outcome = commands::train::run(&manifest, &options, &on_event);
             bar.finish_and_clear();
             outcome.map(|o| (o.report, if o.failed_runs > 0 { 5 } else { 0 }))
@@ -125,6 +160,11 @@ fn main() -> ExitCode {
         }
         Command::Predict { model, input, out, keep_extra } => {
             commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra }).map(|r| (r, 0))
+        }
+        Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
+            let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };
+            let options = commands::slurm::SlurmOptions { results_root: results, resources, runs_per_task, executable, submit };
+            commands::slurm::run(&manifest, &options).map(|r| (r, 0))
         }
         Command::Compare { a, b } => commands::compare::run(&a, &b).map(|r| (r, 0)),
         Command::History { results } => commands::history::run(&results).map(|r| (r, 0)),

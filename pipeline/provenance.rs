@@ -53,3 +53,11 @@ mod tests {
         assert_eq!(rfc3339(1_800_000_000), "2027-01-15T08:00:00Z");
     }
 }
+
+/// This machine's host name (Linux: the kernel's), reduced to characters safe in a file name;
+/// `unknown-host` when it cannot be read.
+pub fn host_name() -> String {
+    let raw = std::fs::read_to_string("/proc/sys/kernel/hostname").ok().or_else(|| std::env::var("HOSTNAME").ok()).unwrap_or_default();
+    let safe: String = raw.trim().chars().filter(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_')).collect();
+    if safe.is_empty() { "unknown-host".into() } else { safe }
+}

@@ -11,6 +11,7 @@ use crate::numerics::NumericsFingerprint;
 use crate::plan::{Plan, RunSpec};
 use crate::store::run::{read_run, sweep_stale_partials, write_run, RunArtifacts, RunRecord};
 use crate::store::weights::{tensor_digests, weights_digest};
+use crate::shard::Shard;
 use crate::store::Layout;
 use crate::train::{train, Head, Outcome, RunData};
 
@@ -31,6 +32,8 @@ pub struct SweepInputs<'a> {
     pub selection_metric: &'a str,
     pub environment: &'a NumericsFingerprint,
     pub jobs: usize,
+    /// Only this part of the plan's run list (the whole plan when `None`).
+    pub shard: Option<Shard>,
 }
 
 #[derive(Debug, Default)]
@@ -126,13 +129,14 @@ pub fn in_pool<R: Send>(jobs: usize, f: impl FnOnce() -> R + Send) -> Result<R> 
     Ok(pool.install(f))
 }
 
-/// Trains every run of the plan that has no complete folder yet.
+/// Trains every run of the plan (or of its shard) that has no complete folder yet.
 pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<SweepReport> {
     crate::store::create_dir(&inputs.layout.runs())?;
     sweep_stale_partials(inputs.layout);
     let mut report = SweepReport::default();
     let mut pending = Vec::new();
-    for spec in &inputs.plan.runs {
+    let in_shard = |i: usize| inputs.shard.is_none_or(|s| s.contains(i));
+    for (_, spec) in inputs.plan.runs.iter().enumerate().filter(|(i, _)| in_shard(*i)) {
         match read_run(inputs.layout, &spec.id)? {
             Some(stored) => {
                 if !stored.record.outcome.is_completed() {

@@ -154,3 +154,42 @@ fn a_diverging_run_is_recorded_and_the_others_go_on() {
     assert_eq!(again.status.code(), Some(5));
     assert!(stdout(&again).contains("nothing to train"), "{}", stdout(&again));
 }
+
+#[test]
+fn shards_trained_apart_then_merged_equal_one_local_sweep() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 2000, GRID);
+    let local = train(dir.path(), &manifest, "local", "2", "1");
+    assert!(local.status.success(), "{}", stderr(&local));
+
+    // Three shards in three processes, as three array tasks would run them.
+    let mut sizes = Vec::new();
+    for k in 0..3 {
+        let shard = format!("{k}/3");
+        let out = bin().current_dir(dir.path())
+            .args(["train", manifest.to_str().unwrap(), "--results", "sharded", "--jobs", "1", "--shard", &shard])
+            .output()
+            .unwrap();
+        assert!(out.status.success(), "{}", stderr(&out));
+        let text = stdout(&out);
+        assert!(text.contains(&format!("shard {shard}: 2 of 6 planned runs; 2 trained, 0 reused, 0 failed")), "{text}");
+        sizes.push(finished_runs(&experiment_folder(&dir.path().join("sharded")).unwrap().join("runs")).len());
+    }
+    assert_eq!(sizes, [2, 4, 6], "each shard adds its own runs and none of another's");
+    let folder = experiment_folder(&dir.path().join("sharded")).unwrap();
+    assert!(!folder.join("selection.json").exists() && !folder.join("card.md").exists(), "a shard neither selects nor writes the card");
+    assert!(!dir.path().join("sharded/ledger.jsonl").exists(), "a shard writes no ledger line");
+
+    let merge = train(dir.path(), &manifest, "sharded", "2", "1");
+    assert!(merge.status.success(), "{}", stderr(&merge));
+    assert!(stdout(&merge).contains("runs: 0 trained, 6 reused, 0 failed, 6 planned"), "{}", stdout(&merge));
+    let (a, b) = (snapshot(&experiment_folder(&dir.path().join("local")).unwrap()), snapshot(&folder));
+    assert_eq!(a.keys().collect::<Vec<_>>(), b.keys().collect::<Vec<_>>());
+    for (name, bytes) in &a {
+        assert!(bytes == &b[name], "{name} differs between the sharded and the local sweep");
+    }
+
+    let bad = bin().current_dir(dir.path()).args(["train", manifest.to_str().unwrap(), "--shard", "3/3"]).output().unwrap();
+    assert_eq!(bad.status.code(), Some(2), "{}", stderr(&bad));
+    assert!(stderr(&bad).contains("--shard"), "{}", stderr(&bad));
+}

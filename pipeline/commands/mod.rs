@@ -7,5 +7,6 @@ pub mod compare;
 pub mod demo;
 pub mod history;
 pub mod predict;
+pub mod slurm;
 pub mod train;
 pub mod verify;

@@ -12,6 +12,7 @@ use crate::experiment::{open, Experiment};
 use crate::format::fixed;
 use crate::plan::Plan;
 use crate::selection::{evaluate_test, select, Selection};
+use crate::shard::Shard;
 use crate::store::ledger::{self, LedgerEntry};
 use crate::store::run::{read_run, StoredRun};
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
@@ -20,6 +21,9 @@ use crate::sweep::{self, Event, SweepInputs};
 pub struct TrainOptions {
     pub results_root: PathBuf,
     pub jobs: usize,
+    /// Train only this shard of the run list and stop there: no selection, card or ledger line
+    /// until a run without a shard finds every run stored.
+    pub shard: Option<Shard>,
 }
 
 /// What a train invocation did, for the caller's report and exit status.
@@ -97,6 +101,27 @@ fn table(selection: &Selection) -> String {
     out
 }
 
+/// The report of a sharded invocation: what this shard did, and what completes the experiment.
+fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::SweepReport, layout: &Layout, jobs: usize) -> TrainOutcome {
+    let mut out = String::new();
+    let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
+    let _ = writeln!(
+        out,
+        "shard {shard}: {} of {} planned runs; {} trained, {} reused, {} failed ({jobs} workers)",
+        shard.size(plan.runs.len()),
+        plan.runs.len(),
+        report.trained.len(),
+        report.reused.len(),
+        report.failed.len()
+    );
+    for (id, why) in &report.failed {
+        let _ = writeln!(out, "  run {id} {why}");
+    }
+    let _ = writeln!(out, "when every shard has finished, `tabcard train` without --shard selects, tests and writes the card");
+    let _ = writeln!(out, "results  {}", layout.root.display());
+    TrainOutcome { report: out, results: layout.root.clone(), failed_runs: report.failed.len() }
+}
+
 pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
     let started = Instant::now();
     let prepared = Prepared::new(open(manifest_path)?)?;
@@ -115,8 +140,12 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         selection_metric: &m.selection.metric,
         environment: &environment,
         jobs: options.jobs,
+        shard: options.shard,
     };
     let report = sweep::run(&inputs, on_event)?;
+    if let Some(shard) = options.shard {
+        return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));
+    }
     let nothing_new = report.trained.is_empty() && layout.selection().exists();
 
     let selection: Selection = if nothing_new {

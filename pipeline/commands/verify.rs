@@ -155,6 +155,7 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
         selection_metric: &prepared.exp.manifest.selection.metric,
         environment: &now,
         jobs: options.jobs,
+        shard: None,
     };
     let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(options.jobs, || {
         specs

@@ -119,7 +119,7 @@ pub fn predictions_csv(rows: &[usize], outputs: &[f64], per_row: usize) -> Strin
 fn partial_dir(layout: &Layout, id: &str) -> PathBuf {
     static COUNTER: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
     let n = COUNTER.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-    layout.runs().join(format!(".partial-{id}-{}-{n}", std::process::id()))
+    layout.runs().join(format!(".partial-{id}-{}-{n}@{}", std::process::id(), crate::provenance::host_name()))
 }
 
 fn write_file(dir: &Path, name: &str, bytes: &[u8]) -> std::io::Result<()> {
@@ -232,15 +232,25 @@ impl StoredRun {
     }
 }
 
-/// Removes temporary run folders left by processes that no longer exist (killed mid-write).
+/// Removes temporary run folders left by processes that no longer exist (killed mid-write). On a
+/// shared results folder other hosts' processes cannot be seen, so their partial folders are
+/// removed only once untouched for an hour (a partial folder lives for the seconds it takes to
+/// write a finished run's files).
 pub fn sweep_stale_partials(layout: &Layout) {
     let Ok(entries) = std::fs::read_dir(layout.runs()) else { return };
+    let this_host = crate::provenance::host_name();
     for entry in entries.flatten() {
         let name = entry.file_name().to_string_lossy().into_owned();
         let Some(rest) = name.strip_prefix(".partial-") else { continue };
-        let pid = rest.split('-').nth(1).and_then(|p| p.parse::<u32>().ok());
-        let alive = pid.is_some_and(|p| p == std::process::id() || Path::new(&format!("/proc/{p}")).exists());
-        if !alive {
+        let (local, host) = rest.split_once('@').unwrap_or((rest, ""));
+        let stale = if host == this_host {
+            let pid = local.split('-').nth(1).and_then(|p| p.parse::<u32>().ok());
+            !pid.is_some_and(|p| p == std::process::id() || Path::new(&format!("/proc/{p}")).exists())
+        } else {
+            let age = entry.metadata().and_then(|m| m.modified()).ok().and_then(|t| t.elapsed().ok());
+            age.is_some_and(|a| a > std::time::Duration::from_secs(3600))
+        };
+        if stale {
             let _ = std::fs::remove_dir_all(entry.path());
         }
     }
