@@ -12,9 +12,10 @@ use std::sync::Once;
 pub const CANDLE_VERSION: &str = "0.11.1";
 
 /// The crate features that select numerical kernels, as this build compiles them: candle-core with
-/// its default (CPU) features and gemm without its `x86-v4` (AVX-512) kernels, so gemm picks among
-/// its scalar, FMA and AVX2 paths at run time.
-pub const KERNEL_FEATURES: &str = "candle-core default features; gemm 0.19 default features (no x86-v4)";
+/// its default (CPU) features and gemm with its `x86-v4` (AVX-512) kernels, so gemm picks among
+/// its scalar, FMA/AVX2 and AVX-512 paths at run time from the CPU's features. The training
+/// engine (`nn/engine.rs`) and candle's evaluation both multiply through this gemm.
+pub const KERNEL_FEATURES: &str = "candle-core default features; gemm 0.19 with x86-v4 (AVX-512 kernels where the CPU has avx512f); training engine nn/engine.rs v1";
 
 static PIN: Once = Once::new();
 

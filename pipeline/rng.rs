@@ -59,6 +59,13 @@ impl Stream {
         self.rng.next_u64()
     }
 
+    /// The next `out.len()` 32-bit draws, the same values as that many [`Stream::next_u32`] calls.
+    pub fn fill_u32(&mut self, out: &mut [u32]) {
+        for v in out {
+            *v = self.rng.next_u32();
+        }
+    }
+
     /// Uniform on [0, 1) with 53 random bits.
     pub fn uniform(&mut self) -> f64 {
         (self.next_u64() >> 11) as f64 * (1.0 / (1u64 << 53) as f64)

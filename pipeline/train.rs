@@ -3,17 +3,19 @@
 //! validation loss that restores the best epoch's weights; divergence detection. Every random draw
 //! comes from a stream derived from (seed, purpose); the arithmetic is single-threaded.
 
-use candle_core::{DType, Device, Tensor};
+use candle_core::DType;
 use serde::{Deserialize, Serialize};
 
 use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
 use crate::manifest::{RegressionLoss, Task};
 use crate::metrics::{classification, regression, MetricSet};
+use crate::nn::engine::Engine;
 use crate::nn::layers::tensor_from;
-use crate::nn::loss;
+use crate::nn::loss::{objective_and_gradient, Objective};
 use crate::nn::mlp::{Mlp, Mode, NamedTensor};
 use crate::nn::optim::{learning_rate, Optimizer};
+use crate::nn::scalar::Real;
 use crate::plan::RunConfig;
 use crate::rng::{Purpose, Stream};
 
@@ -218,22 +220,6 @@ fn model_dtype(model: &Mlp) -> DType {
     model.parameters().first().map(|(_, v, _)| v.dtype()).unwrap_or(DType::F32)
 }
 
-fn batch_targets(labels: &Labels, idx: &[usize], scaling: Option<TargetScaling>, head: &Head) -> Result<Tensor> {
-    let dev = Device::Cpu;
-    Ok(match (labels, head.task) {
-        (Labels::Classes { rows, .. }, Task::Multiclass) => {
-            Tensor::from_vec(idx.iter().map(|&i| rows[i] as u32).collect::<Vec<u32>>(), idx.len(), &dev)?
-        }
-        (Labels::Classes { rows, .. }, _) => {
-            tensor_from(idx.iter().map(|&i| rows[i] as f32).collect(), (idx.len(), 1), DType::F32)?
-        }
-        (Labels::Values(v), _) => {
-            let s = scaling.unwrap_or(TargetScaling::IDENTITY);
-            tensor_from(idx.iter().map(|&i| ((v[i] - s.mean) / s.std) as f32).collect(), (idx.len(), 1), DType::F32)?
-        }
-    })
-}
-
 /// The selection metric of validation outputs, for the history.
 fn metric_of(head: &Head, outputs: &[f64], labels: &Labels, name: &str) -> Option<f64> {
     head.metrics(outputs, labels).get(name).copied().flatten()
@@ -246,6 +232,38 @@ pub fn train(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, sele
 
 /// As [`train`], in a chosen precision (f64 serves gradient and convergence tests).
 pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str, dtype: DType) -> Result<RunResult> {
+    match dtype {
+        DType::F32 => train_in::<f32>(head, config, seed, data, selection_metric),
+        DType::F64 => train_in::<f64>(head, config, seed, data, selection_metric),
+        other => Err(Error::Engine(format!("training in {other:?} is not supported (f32 or f64)"))),
+    }
+}
+
+/// The objective the engine minimises for this head.
+fn objective(head: &Head, training: &crate::manifest::TrainingSpec) -> Objective {
+    match head.task {
+        Task::Binary => Objective::BinaryCrossEntropy,
+        Task::Multiclass => Objective::SoftmaxCrossEntropy { classes: head.classes },
+        Task::Regression => match training.loss {
+            RegressionLoss::Mse => Objective::MeanSquaredError,
+            RegressionLoss::Huber => Objective::Huber { delta: training.huber_delta },
+        },
+    }
+}
+
+/// Each row's training target as the objective reads it: 0/1, a class index, or the
+/// standardised value.
+fn row_targets(labels: &Labels, scaling: Option<TargetScaling>) -> Vec<f64> {
+    match labels {
+        Labels::Classes { rows, .. } => rows.iter().map(|&c| c as f64).collect(),
+        Labels::Values(v) => {
+            let s = scaling.unwrap_or(TargetScaling::IDENTITY);
+            v.iter().map(|&y| (y - s.mean) / s.std).collect()
+        }
+    }
+}
+
+fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str) -> Result<RunResult> {
     crate::numerics::prepare_process();
     let t = &config.training;
     let n = data.train_x.rows;
@@ -264,11 +282,15 @@ pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunDat
     let mut shuffle = Stream::new(seed, Purpose::Shuffle);
     let mut dropout_stream = Stream::new(seed, Purpose::Dropout);
     let mut noise_stream = Stream::new(seed, Purpose::InputNoise);
-    let mut model = Mlp::new(&config.model, data.train_x.cols, head.outputs(), &mut init, dtype)?;
+    let mut model = Mlp::new(&config.model, data.train_x.cols, head.outputs(), &mut init, T::DTYPE)?;
     let parameter_count = model.parameter_count();
-    let mut optimizer = Optimizer::new(t, model.parameters().len());
 
     let batch = t.batch_size.min(n);
+    let mut engine = Engine::<T>::from_model(&model, batch)?;
+    let mut optimizer = Optimizer::new(t, engine.slot_count());
+    let objective = objective(&head, t);
+    let targets = row_targets(data.train_y, scaling);
+    let mut batch_targets = Vec::with_capacity(batch);
     let steps_per_epoch = n.div_ceil(batch);
     let mut order: Vec<usize> = (0..n).collect();
     let mut history = Vec::with_capacity(t.epochs);
@@ -277,7 +299,6 @@ pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunDat
     let mut stopped_early = false;
     let mut step = 0usize;
     let mut outcome = Outcome::Completed;
-    let mut batch_x = Vec::with_capacity(batch * data.train_x.cols);
 
     'epochs: for epoch in 1..=t.epochs {
         shuffle.shuffle(&mut order);
@@ -291,47 +312,21 @@ pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunDat
             }
             lr = learning_rate(t, step, steps_per_epoch);
             step += 1;
-            batch_x.clear();
-            for &r in chunk {
-                batch_x.extend_from_slice(data.train_x.row(r));
-            }
-            let x = tensor_from(batch_x.clone(), (chunk.len(), data.train_x.cols), dtype)?;
-            let y = batch_targets(data.train_y, chunk, scaling, &head)?;
-            let y = if head.task == Task::Multiclass { y } else { y.to_dtype(dtype)? };
-            let raw = model.forward(&x, &mut Mode::Train { dropout: &mut dropout_stream, noise: &mut noise_stream })?;
-            let mut objective = match head.task {
-                Task::Binary => loss::binary_cross_entropy(&raw, &y)?,
-                Task::Multiclass => loss::softmax_cross_entropy(&raw, &y)?,
-                Task::Regression => match t.loss {
-                    RegressionLoss::Mse => loss::mean_squared_error(&raw, &y)?,
-                    RegressionLoss::Huber => loss::huber(&raw, &y, t.huber_delta)?,
-                },
-            };
-            let data_loss = objective.to_dtype(DType::F64)?.to_scalar::<f64>()?;
+            engine.forward(data.train_x, chunk, &mut dropout_stream, &mut noise_stream);
+            batch_targets.clear();
+            batch_targets.extend(chunk.iter().map(|&r| targets[r]));
+            let (logits, grad) = engine.logits_and_gradient();
+            let data_loss = objective_and_gradient(objective, logits, &batch_targets, grad);
             if !data_loss.is_finite() {
                 outcome = Outcome::Diverged { epoch, detail: format!("training loss became {data_loss} at step {step}") };
                 break 'epochs;
             }
             loss_sum += data_loss;
             loss_batches += 1;
-            if t.l2_penalty > 0.0 {
-                for (_, var, decays) in model.parameters() {
-                    if decays {
-                        objective = (objective + (var.as_tensor().sqr()?.sum_all()? * (0.5 * t.l2_penalty))?)?;
-                    }
-                }
-            }
-            let grads = objective.backward()?;
-            let parameters = model.parameters();
+            engine.backward(t.l2_penalty);
             let mut grad_scale = 1.0;
             if t.clip_norm > 0.0 {
-                let mut sq = 0.0;
-                for (_, var, _) in &parameters {
-                    if let Some(g) = grads.get(var.as_tensor()) {
-                        sq += g.sqr()?.sum_all()?.to_dtype(DType::F64)?.to_scalar::<f64>()?;
-                    }
-                }
-                let norm = sq.sqrt();
+                let norm = engine.gradient_norm();
                 if !norm.is_finite() {
                     outcome = Outcome::Diverged { epoch, detail: format!("gradient norm became {norm} at step {step}") };
                     break 'epochs;
@@ -340,9 +335,11 @@ pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunDat
                     grad_scale = t.clip_norm / norm;
                 }
             }
-            optimizer.step(&parameters, &grads, lr, grad_scale)?;
+            let update = optimizer.begin_step(lr, grad_scale);
+            engine.update(&mut optimizer, &update);
         }
-        let raw_val = raw_outputs(&mut model, data.validation_x)?;
+        model.set_host_values(&engine.values())?;
+    let raw_val = raw_outputs(&mut model, data.validation_x)?;
         let validation_loss = head.host_loss(&raw_val, data.validation_y, scaling);
         if !validation_loss.is_finite() {
             outcome = Outcome::Diverged { epoch, detail: format!("validation loss became {validation_loss}") };

@@ -1,12 +1,13 @@
 //! The training engine against facts of the trade and published results: XOR, finite-difference
-//! gradients, inverted dropout, batch normalisation, input noise as Tikhonov regularisation
+//! gradients, the hand-written engine against candle's autograd, inverted dropout, batch normalisation, input noise as Tikhonov regularisation
 //! (Bishop 1995), weight decay, divergence, and bit-identical reruns.
 
 use candle_core::{DType, Tensor};
 use tabcard::data::prep::Matrix;
 use tabcard::manifest::{Activation, ModelSpec, Optimizer, RegressionLoss, Schedule, Task, TrainingSpec};
 use tabcard::nn::layers::{dropout, tensor_from, BatchNorm, BN_EPS};
-use tabcard::nn::loss;
+use tabcard::nn::engine::Engine;
+use tabcard::nn::loss::{self, objective_and_gradient, Objective};
 use tabcard::nn::mlp::{Mlp, Mode};
 use tabcard::plan::RunConfig;
 use tabcard::rng::{Purpose, Stream};
@@ -42,9 +43,11 @@ fn xor_needs_a_hidden_layer() {
         let r = train(head(Task::Binary, 2), &linear, seed, &data, "accuracy").unwrap();
         assert!(r.validation_metrics["accuracy"].unwrap() <= 0.75, "linear model fitted XOR");
     }
+    // With 8 ReLU units most seeds fit XOR exactly; a seed can stall in a local minimum of the
+    // cross-entropy (why sweeps run several seeds: common practice), so 4 of 5 must fit.
     let mlp = RunConfig { model: spec(vec![8], Activation::Relu), training: xor_training() };
-    let r = train(head(Task::Binary, 2), &mlp, 1, &data, "accuracy").unwrap();
-    assert_eq!(r.validation_metrics["accuracy"], Some(1.0));
+    let fitted = (1..=5).filter(|&seed| train(head(Task::Binary, 2), &mlp, seed, &data, "accuracy").unwrap().validation_metrics["accuracy"] == Some(1.0)).count();
+    assert!(fitted >= 4, "only {fitted} of 5 seeds fitted XOR with a hidden layer");
 }
 
 /// Central finite differences (step 1e-6 in f64) against autograd for every parameter element;
@@ -104,6 +107,73 @@ fn gradients_of_every_layer_and_loss_match_finite_differences() {
     gradient_check(ModelSpec { batch_norm: true, ..spec(vec![4, 4], Activation::Tanh) }, Task::Regression, 1, "mse");
     gradient_check(ModelSpec { residual: true, ..spec(vec![4, 4, 4], Activation::Tanh) }, Task::Regression, 1, "huber");
     gradient_check(spec(vec![5], Activation::Gelu), Task::Multiclass, 3, "softmax");
+}
+
+/// The hand-written engine (tabcard::nn::engine) against candle's autograd, which the test above
+/// checks against finite differences: same model, same batch, same dropout and noise streams;
+/// loss, logits and every parameter's gradient agree within 1e-10 relative in f64 (rounding
+/// differs: the engine fuses bias, batch norm and the loss on the host).
+fn engine_matches_autograd(model_spec: ModelSpec, task: Task, classes: usize, objective: Objective) {
+    let (n, d) = (7, 3);
+    let mut s = Stream::new(5, Purpose::InputNoise);
+    let xs: Vec<f32> = (0..n * d).map(|_| s.normal() as f32).collect();
+    let matrix = Matrix { rows: n, cols: d, data: xs.clone() };
+    let x = tensor_from(xs, (n, d), DType::F64).unwrap();
+    let outputs = if task == Task::Multiclass { classes } else { 1 };
+    let mut model = Mlp::new(&model_spec, d, outputs, &mut Stream::new(9, Purpose::Init), DType::F64).unwrap();
+    let targets: Vec<f64> = match task {
+        Task::Multiclass => vec![0.0, 1.0, 2.0, 1.0, 0.0, 2.0, 1.0],
+        Task::Binary => vec![0.0, 1.0, 1.0, 0.0, 1.0, 0.0, 1.0],
+        Task::Regression => vec![2.5, -1.0, 0.3, 4.0, -3.0, 0.1, 0.7],
+    };
+    let mut engine = Engine::<f64>::from_model(&model, n).unwrap();
+    let rows: Vec<usize> = (0..n).collect();
+    engine.forward(&matrix, &rows, &mut Stream::new(1, Purpose::Dropout), &mut Stream::new(1, Purpose::InputNoise));
+    let (logits, grad) = engine.logits_and_gradient();
+    let engine_logits = logits.to_vec();
+    let engine_loss = objective_and_gradient(objective, logits, &targets, grad);
+    engine.backward(0.0);
+
+    let raw = model.forward(&x, &mut Mode::Train { dropout: &mut Stream::new(1, Purpose::Dropout), noise: &mut Stream::new(1, Purpose::InputNoise) }).unwrap();
+    let dev = candle_core::Device::Cpu;
+    let loss = match objective {
+        Objective::BinaryCrossEntropy => loss::binary_cross_entropy(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap()),
+        Objective::SoftmaxCrossEntropy { .. } => loss::softmax_cross_entropy(&raw, &Tensor::from_vec(targets.iter().map(|&t| t as u32).collect::<Vec<_>>(), n, &dev).unwrap()),
+        Objective::MeanSquaredError => loss::mean_squared_error(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap()),
+        Objective::Huber { delta } => loss::huber(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap(), delta),
+    }
+    .unwrap();
+    // Relative 1e-10, with an absolute floor of 1e-12 for values that are zero analytically (a
+    // bias followed by batch norm) and come out as rounding noise near 1e-16 either way.
+    let close = |a: f64, b: f64, what: &str| assert!((a - b).abs() <= (1e-10 * a.abs().max(b.abs())).max(1e-12), "{what}: engine {a} vs autograd {b} ({model_spec:?})");
+    close(engine_loss, loss.to_scalar::<f64>().unwrap(), "loss");
+    for (a, b) in engine_logits.iter().zip(raw.flatten_all().unwrap().to_vec1::<f64>().unwrap()) {
+        close(*a, b, "logit");
+    }
+    let grads = loss.backward().unwrap();
+    let by_name: std::collections::BTreeMap<String, Vec<f64>> = engine.gradients().into_iter().collect();
+    let parameters = model.parameters();
+    assert_eq!(by_name.len(), parameters.len());
+    for (name, var, _) in parameters {
+        let autograd = grads.get(var.as_tensor()).unwrap().flatten_all().unwrap().to_vec1::<f64>().unwrap();
+        let mine = &by_name[&name];
+        assert_eq!(mine.len(), autograd.len(), "{name}");
+        for (i, (a, b)) in mine.iter().zip(&autograd).enumerate() {
+            close(*a, *b, &format!("{name}[{i}]"));
+        }
+    }
+}
+
+#[test]
+fn the_training_engine_computes_autograds_gradients() {
+    engine_matches_autograd(spec(vec![], Activation::Identity), Task::Binary, 2, Objective::BinaryCrossEntropy);
+    for act in [Activation::Relu, Activation::Sigmoid, Activation::Tanh, Activation::Gelu] {
+        engine_matches_autograd(spec(vec![5, 4], act), Task::Binary, 2, Objective::BinaryCrossEntropy);
+    }
+    engine_matches_autograd(ModelSpec { batch_norm: true, ..spec(vec![4, 4], Activation::Tanh) }, Task::Regression, 1, Objective::MeanSquaredError);
+    engine_matches_autograd(ModelSpec { batch_norm: true, dropout: 0.3, ..spec(vec![6, 6], Activation::Relu) }, Task::Binary, 2, Objective::BinaryCrossEntropy);
+    engine_matches_autograd(ModelSpec { residual: true, input_noise: 0.2, ..spec(vec![4, 4, 4], Activation::Tanh) }, Task::Regression, 1, Objective::Huber { delta: 0.7 });
+    engine_matches_autograd(ModelSpec { dropout: 0.5, ..spec(vec![5], Activation::Gelu) }, Task::Multiclass, 3, Objective::SoftmaxCrossEntropy { classes: 3 });
 }
 
 #[test]

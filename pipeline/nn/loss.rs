@@ -32,3 +32,62 @@ pub fn huber(predicted: &Tensor, targets: &Tensor, delta: f64) -> Result<Tensor>
     let loss = ((q.sqr()? * 0.5)? + (abs.sub(&q)? * delta)?)?;
     Ok(loss.mean_all()?)
 }
+
+/// The training objective on the host, for the engine: mean loss over the batch in f64 (with
+/// `libm`) and its gradient with respect to the logits.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Objective {
+    /// Targets 0 or 1; one logit per row.
+    BinaryCrossEntropy,
+    /// Targets are class indices; `classes` logits per row.
+    SoftmaxCrossEntropy { classes: usize },
+    MeanSquaredError,
+    Huber { delta: f64 },
+}
+
+/// Mean loss of `logits` (rows x outputs) against `targets` (one per row), writing d loss / d
+/// logit into `grad`. The same definitions as the candle losses above, computed in f64.
+pub fn objective_and_gradient<T: crate::nn::scalar::Real>(objective: Objective, logits: &[T], targets: &[f64], grad: &mut [T]) -> f64 {
+    let n = targets.len().max(1) as f64;
+    let mut total = 0.0;
+    match objective {
+        Objective::BinaryCrossEntropy => {
+            for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
+                let z = z.to_f64();
+                total += z.max(0.0) - z * y + libm::log1p(libm::exp(-z.abs()));
+                let p = if z >= 0.0 { 1.0 / (1.0 + libm::exp(-z)) } else { let e = libm::exp(z); e / (1.0 + e) };
+                *g = T::from_f64((p - y) / n);
+            }
+        }
+        Objective::SoftmaxCrossEntropy { classes } => {
+            for ((row, &y), grow) in logits.chunks_exact(classes).zip(targets).zip(grad.chunks_exact_mut(classes)) {
+                let max = row.iter().fold(f64::NEG_INFINITY, |m, v| m.max(v.to_f64()));
+                let sum: f64 = row.iter().map(|v| libm::exp(v.to_f64() - max)).sum();
+                let lse = max + libm::log(sum);
+                let label = y as usize;
+                total += lse - row[label].to_f64();
+                for (k, (g, v)) in grow.iter_mut().zip(row).enumerate() {
+                    let p = libm::exp(v.to_f64() - lse);
+                    *g = T::from_f64((p - if k == label { 1.0 } else { 0.0 }) / n);
+                }
+            }
+        }
+        Objective::MeanSquaredError => {
+            for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
+                let r = z.to_f64() - y;
+                total += r * r;
+                *g = T::from_f64(2.0 * r / n);
+            }
+        }
+        Objective::Huber { delta } => {
+            for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
+                let r = z.to_f64() - y;
+                let a = r.abs();
+                let q = a.min(delta);
+                total += 0.5 * q * q + delta * (a - q);
+                *g = T::from_f64(r.clamp(-delta, delta) / n);
+            }
+        }
+    }
+    total / n
+}

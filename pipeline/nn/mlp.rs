@@ -38,6 +38,12 @@ pub struct NamedTensor {
     pub values: Vec<f32>,
 }
 
+/// Whether hidden layer `i`, fed `width_in` values, adds its input to its output: residual
+/// blocks need equal widths and never start at the first layer.
+pub fn has_residual(spec: &ModelSpec, i: usize, width_in: usize) -> bool {
+    spec.residual && i > 0 && spec.hidden.get(i) == Some(&width_in)
+}
+
 impl Mlp {
     /// A freshly initialised network; initial values come from `init` in layer order.
     pub fn new(spec: &ModelSpec, inputs: usize, outputs: usize, init: &mut Stream, dtype: DType) -> Result<Self> {
@@ -47,7 +53,7 @@ impl Mlp {
             hidden.push(Hidden {
                 linear: Linear::new(width, w, spec.activation, init, dtype)?,
                 batch_norm: if spec.batch_norm { Some(BatchNorm::new(w, dtype)?) } else { None },
-                residual: spec.residual && i > 0 && w == width,
+                residual: has_residual(spec, i, width),
             });
             width = w;
         }
@@ -117,6 +123,55 @@ impl Mlp {
         }
         out.sort_by(|a, b| a.name.cmp(&b.name));
         Ok(out)
+    }
+
+    /// Every parameter and buffer (names as in [`Mlp::named_tensors`]) as flat host values in
+    /// the model's own precision `T`.
+    pub fn host_values<T: candle_core::WithDType>(&self) -> Result<Vec<(String, Vec<T>)>> {
+        let mut out = Vec::new();
+        for (name, var, _) in self.parameters() {
+            out.push((name, var.as_tensor().flatten_all()?.to_vec1::<T>()?));
+        }
+        for (i, layer) in self.hidden.iter().enumerate() {
+            if let Some(bn) = &layer.batch_norm {
+                out.push((format!("layer{i:02}.bn.running_mean"), bn.running_mean.flatten_all()?.to_vec1::<T>()?));
+                out.push((format!("layer{i:02}.bn.running_var"), bn.running_var.flatten_all()?.to_vec1::<T>()?));
+            }
+        }
+        Ok(out)
+    }
+
+    /// Overwrites parameters and buffers with host values in the model's precision (the inverse
+    /// of [`Mlp::host_values`]; every name must be known and every length right).
+    pub fn set_host_values<T: candle_core::WithDType>(&mut self, values: &[(String, Vec<T>)]) -> Result<()> {
+        let to_tensor = |v: &[T], dims: &[usize]| -> Result<Tensor> {
+            if v.len() != dims.iter().product::<usize>() {
+                return Err(Error::Engine(format!("{} values for a tensor of shape {dims:?}", v.len())));
+            }
+            Ok(Tensor::from_slice(v, dims, &candle_core::Device::Cpu)?)
+        };
+        let parameters: Vec<(String, Var)> = self.parameters().into_iter().map(|(n, v, _)| (n, v.clone())).collect();
+        for (name, v) in values {
+            if let Some((_, var)) = parameters.iter().find(|(n, _)| n == name) {
+                var.set(&to_tensor(v, var.dims())?)?;
+                continue;
+            }
+            let buffer = name.strip_prefix("layer").and_then(|rest| {
+                let (index, field) = rest.split_once(".bn.")?;
+                let layer = self.hidden.get_mut(index.parse::<usize>().ok()?)?.batch_norm.as_mut()?;
+                match field {
+                    "running_mean" => Some(&mut layer.running_mean),
+                    "running_var" => Some(&mut layer.running_var),
+                    _ => None,
+                }
+            });
+            let Some(buffer) = buffer else {
+                return Err(Error::Engine(format!("the model has no tensor `{name}`")));
+            };
+            let dims = buffer.dims().to_vec();
+            *buffer = to_tensor(v, &dims)?;
+        }
+        Ok(())
     }
 
     /// Overwrites every tensor with stored values (the inverse of [`Mlp::named_tensors`]).

@@ -1,8 +1,12 @@
-//! The network on candle: layers, the MLP built from a model configuration, losses, optimizers and
-//! learning-rate schedules. Every random draw comes from a `rng::Stream` passed in; nothing here
-//! uses candle's own (thread-local) random functions.
+//! The network: the MLP on candle (layers, model configuration, evaluation, stored tensors), the
+//! hand-written training engine over `gemm`, losses, optimizers and learning-rate schedules.
+//! Every random draw comes from a `rng::Stream` passed in; nothing here uses candle's own
+//! (thread-local) random functions.
 
+pub mod engine;
 pub mod layers;
 pub mod loss;
+pub mod matmul;
 pub mod mlp;
 pub mod optim;
+pub mod scalar;

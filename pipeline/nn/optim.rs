@@ -7,94 +7,89 @@
 //!   gradient l2 W passes through the moment estimates.
 //!
 //! Decay and penalty apply to weight matrices only, never to biases or batch-norm parameters.
-
 //!
-//! The update runs on the host in f64, one fused pass per parameter (w, moments and gradient
-//! element by element), then the rounded weights are written back: a few tens of candle
-//! operations per step would otherwise cost more than the update itself. Only IEEE-exact
-//! operations (+, *, /, sqrt) are used, so the update is the same on every platform.
+//! The update runs in f64, one fused pass per parameter (weight, moments and gradient element
+//! by element), rounding the weight back to its precision. Only IEEE-exact operations
+//! (+, *, /, sqrt) are used, so the update is the same on every platform.
 
-use candle_core::{backprop::GradStore, DType, Tensor, Var};
-
-use crate::error::Result;
+use super::scalar::Real;
 use crate::manifest::{Optimizer as Kind, Schedule, TrainingSpec};
 
 pub struct Optimizer {
     kind: Kind,
     spec: TrainingSpec,
-    /// Per parameter: first moment (or SGD velocity) and second moment.
+    /// Per parameter slot: first moment (or SGD velocity) and second moment.
     first: Vec<Vec<f64>>,
     second: Vec<Vec<f64>>,
     steps: u64,
 }
 
-fn host_values(t: &Tensor) -> Result<Vec<f64>> {
-    let flat = t.flatten_all()?;
-    Ok(match t.dtype() {
-        DType::F32 => flat.to_vec1::<f32>()?.into_iter().map(f64::from).collect(),
-        _ => flat.to_dtype(DType::F64)?.to_vec1::<f64>()?,
-    })
+/// The constants of one update step, shared by every parameter.
+#[derive(Debug, Clone, Copy)]
+pub struct Step {
+    lr: f64,
+    grad_scale: f64,
+    bias1: f64,
+    bias2: f64,
+    first: bool,
 }
 
 impl Optimizer {
-    pub fn new(spec: &TrainingSpec, parameters: usize) -> Self {
-        Optimizer { kind: spec.optimizer, spec: spec.clone(), first: vec![Vec::new(); parameters], second: vec![Vec::new(); parameters], steps: 0 }
+    /// An optimizer for `slots` parameter tensors, addressed by slot index in [`Optimizer::update`].
+    pub fn new(spec: &TrainingSpec, slots: usize) -> Self {
+        Optimizer { kind: spec.optimizer, spec: spec.clone(), first: vec![Vec::new(); slots], second: vec![Vec::new(); slots], steps: 0 }
     }
 
-    /// One update of every parameter (in the same order as at construction) at rate `lr`, with
-    /// gradients multiplied by `grad_scale` (clipping).
-    pub fn step(&mut self, parameters: &[(String, &Var, bool)], grads: &GradStore, lr: f64, grad_scale: f64) -> Result<()> {
+    /// Counts a new step at rate `lr`, with gradients multiplied by `grad_scale` (clipping).
+    pub fn begin_step(&mut self, lr: f64, grad_scale: f64) -> Step {
         self.steps += 1;
-        let s = &self.spec;
         let t = self.steps as i32;
-        let bias1 = 1.0 - s.beta1.powi(t);
-        let bias2 = 1.0 - s.beta2.powi(t);
-        for (i, (_, var, decays)) in parameters.iter().enumerate() {
-            let Some(g) = grads.get(var.as_tensor()) else { continue };
-            let g = host_values(g)?;
-            let mut w = host_values(var.as_tensor())?;
-            let decay = if *decays && s.weight_decay > 0.0 && self.kind != Kind::Adam { 1.0 - lr * s.weight_decay } else { 1.0 };
-            let m = &mut self.first[i];
-            let v = &mut self.second[i];
-            match self.kind {
-                Kind::Sgd => {
-                    if s.momentum > 0.0 && m.is_empty() {
-                        *m = vec![0.0; w.len()];
-                    }
-                    for j in 0..w.len() {
-                        let gj = g[j] * grad_scale;
-                        w[j] *= decay;
-                        if s.momentum > 0.0 {
-                            // PyTorch's convention: the first step's velocity is the gradient itself.
-                            m[j] = if self.steps == 1 { gj } else { s.momentum * m[j] + gj };
-                            let update = if s.nesterov { gj + s.momentum * m[j] } else { m[j] };
-                            w[j] -= lr * update;
-                        } else {
-                            w[j] -= lr * gj;
-                        }
-                    }
+        Step { lr, grad_scale, bias1: 1.0 - self.spec.beta1.powi(t), bias2: 1.0 - self.spec.beta2.powi(t), first: self.steps == 1 }
+    }
+
+    /// Updates the parameter in `slot` in place from its gradient; `decays` says whether weight
+    /// decay applies to it.
+    pub fn update<T: Real>(&mut self, step: &Step, slot: usize, w: &mut [T], g: &[T], decays: bool) {
+        let s = &self.spec;
+        let lr = step.lr;
+        let scale = step.grad_scale;
+        let decay = if decays && s.weight_decay > 0.0 && self.kind != Kind::Adam { 1.0 - lr * s.weight_decay } else { 1.0 };
+        let m = &mut self.first[slot];
+        let v = &mut self.second[slot];
+        match self.kind {
+            Kind::Sgd => {
+                if s.momentum > 0.0 && m.is_empty() {
+                    *m = vec![0.0; w.len()];
                 }
-                Kind::Adam | Kind::Adamw => {
-                    if m.is_empty() {
-                        *m = vec![0.0; w.len()];
-                        *v = vec![0.0; w.len()];
+                if s.momentum > 0.0 {
+                    for ((wj, &gj), mj) in w.iter_mut().zip(g).zip(m.iter_mut()) {
+                        let gj = gj.to_f64() * scale;
+                        // PyTorch's convention: the first step's velocity is the gradient itself.
+                        *mj = if step.first { gj } else { s.momentum * *mj + gj };
+                        let update = if s.nesterov { gj + s.momentum * *mj } else { *mj };
+                        *wj = T::from_f64(wj.to_f64() * decay - lr * update);
                     }
-                    for j in 0..w.len() {
-                        let gj = g[j] * grad_scale;
-                        w[j] *= decay;
-                        m[j] = s.beta1 * m[j] + (1.0 - s.beta1) * gj;
-                        v[j] = s.beta2 * v[j] + (1.0 - s.beta2) * gj * gj;
-                        w[j] -= lr * (m[j] / bias1) / ((v[j] / bias2).sqrt() + s.epsilon);
+                } else {
+                    for (wj, &gj) in w.iter_mut().zip(g) {
+                        *wj = T::from_f64(wj.to_f64() * decay - lr * (gj.to_f64() * scale));
                     }
                 }
             }
-            let updated = match var.dtype() {
-                DType::F32 => Tensor::from_vec(w.into_iter().map(|x| x as f32).collect::<Vec<f32>>(), var.dims(), &candle_core::Device::Cpu)?,
-                dtype => Tensor::from_vec(w, var.dims(), &candle_core::Device::Cpu)?.to_dtype(dtype)?,
-            };
-            var.set(&updated)?;
+            Kind::Adam | Kind::Adamw => {
+                if m.is_empty() {
+                    *m = vec![0.0; w.len()];
+                    *v = vec![0.0; w.len()];
+                }
+                let (b1, b2, eps) = (s.beta1, s.beta2, s.epsilon);
+                let (c1, c2) = (step.bias1, step.bias2);
+                for ((wj, &gj), (mj, vj)) in w.iter_mut().zip(g).zip(m.iter_mut().zip(v.iter_mut())) {
+                    let gj = gj.to_f64() * scale;
+                    *mj = b1 * *mj + (1.0 - b1) * gj;
+                    *vj = b2 * *vj + (1.0 - b2) * gj * gj;
+                    *wj = T::from_f64(wj.to_f64() * decay - lr * (*mj / c1) / ((*vj / c2).sqrt() + eps));
+                }
+            }
         }
-        Ok(())
     }
 }
 

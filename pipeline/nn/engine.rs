@@ -1,0 +1,450 @@
+//! The training engine: a network's parameters, gradients and per-layer activations in host
+//! buffers sized once per run, with the training-mode forward pass and the backward pass written
+//! out by hand over `gemm` (bias and batch-norm statistics fused into single passes, dropout and
+//! activation derivatives applied in place). A training step allocates nothing and computes
+//! single-threaded. candle holds the model for evaluation and scoring: the engine starts from a
+//! candle [`Mlp`]'s values and writes its values back into it. `tests/training.rs` checks the
+//! engine's gradients against candle's autograd and against finite differences.
+
+use super::layers::{BN_EPS, BN_MOMENTUM};
+use super::matmul::{matmul, View};
+use super::mlp::{has_residual, Mlp};
+use super::optim::{Optimizer, Step};
+use super::scalar::Real;
+use crate::data::prep::Matrix;
+use crate::error::{Error, Result};
+use crate::manifest::Activation;
+use crate::rng::Stream;
+
+/// Batch normalisation's parameters, running statistics and per-batch state.
+struct Norm<T> {
+    gamma: Vec<T>,
+    beta: Vec<T>,
+    running_mean: Vec<T>,
+    running_var: Vec<T>,
+    grad_gamma: Vec<T>,
+    grad_beta: Vec<T>,
+    /// (x - mean) / sqrt(var + eps) of the last batch, rows x width.
+    normalised: Vec<T>,
+    mean: Vec<T>,
+    inv_std: Vec<T>,
+}
+
+/// One affine layer with what follows it: batch norm, activation, dropout, residual (hidden
+/// layers), or nothing (the head).
+struct Dense<T> {
+    name: String,
+    inputs: usize,
+    outputs: usize,
+    hidden: bool,
+    residual: bool,
+    /// (inputs, outputs), row-major, as candle's `Linear` stores it.
+    weight: Vec<T>,
+    bias: Vec<T>,
+    norm: Option<Norm<T>>,
+    grad_weight: Vec<T>,
+    grad_bias: Vec<T>,
+    /// The activation's input (after batch norm) of the last batch; its gradient after backward.
+    pre: Vec<T>,
+    /// The activation's output, kept when its derivative is cheapest from it (sigmoid, tanh).
+    act: Vec<T>,
+    /// Inverted-dropout multipliers (0 or 1 / (1 - p)) of the last batch.
+    mask: Vec<T>,
+    /// The layer's output: the next layer's input, or the logits.
+    out: Vec<T>,
+}
+
+pub struct Engine<T> {
+    activation: Activation,
+    dropout: f64,
+    input_noise: f64,
+    inputs: usize,
+    capacity: usize,
+    /// Hidden layers in order, then the head.
+    layers: Vec<Dense<T>>,
+    input: Vec<T>,
+    grad_out: Vec<T>,
+    grad_in: Vec<T>,
+    /// Raw 32-bit draws for one layer's dropout mask.
+    draws: Vec<u32>,
+    rows: usize,
+}
+
+fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) -> Result<Vec<T>> {
+    let i = values.iter().position(|(n, _)| n == name).ok_or_else(|| Error::Engine(format!("the model has no tensor `{name}`")))?;
+    let (_, v) = values.swap_remove(i);
+    if v.len() != len {
+        return Err(Error::Engine(format!("tensor `{name}` has {} values, the engine expects {len}", v.len())));
+    }
+    Ok(v)
+}
+
+impl<T: Real> Engine<T> {
+    /// An engine holding `model`'s current values, for batches of up to `capacity` rows.
+    pub fn from_model(model: &Mlp, capacity: usize) -> Result<Self> {
+        let spec = &model.spec;
+        let mut values = model.host_values::<T>()?;
+        let zeros = |n: usize| vec![T::zero(); n];
+        let mut layers = Vec::with_capacity(spec.hidden.len() + 1);
+        let mut width = model.inputs;
+        let keeps_act = matches!(spec.activation, Activation::Sigmoid | Activation::Tanh);
+        for (i, &w) in spec.hidden.iter().enumerate() {
+            let name = format!("layer{i:02}");
+            let norm = if spec.batch_norm {
+                Some(Norm {
+                    gamma: take(&mut values, &format!("{name}.bn.gamma"), w)?,
+                    beta: take(&mut values, &format!("{name}.bn.beta"), w)?,
+                    running_mean: take(&mut values, &format!("{name}.bn.running_mean"), w)?,
+                    running_var: take(&mut values, &format!("{name}.bn.running_var"), w)?,
+                    grad_gamma: zeros(w),
+                    grad_beta: zeros(w),
+                    normalised: zeros(capacity * w),
+                    mean: zeros(w),
+                    inv_std: zeros(w),
+                })
+            } else {
+                None
+            };
+            layers.push(Dense {
+                weight: take(&mut values, &format!("{name}.weight"), width * w)?,
+                bias: take(&mut values, &format!("{name}.bias"), w)?,
+                name,
+                inputs: width,
+                outputs: w,
+                hidden: true,
+                residual: has_residual(spec, i, width),
+                norm,
+                grad_weight: zeros(width * w),
+                grad_bias: zeros(w),
+                pre: zeros(capacity * w),
+                act: if keeps_act { zeros(capacity * w) } else { Vec::new() },
+                mask: if spec.dropout > 0.0 { zeros(capacity * w) } else { Vec::new() },
+                out: zeros(capacity * w),
+            });
+            width = w;
+        }
+        let outputs = model.outputs;
+        layers.push(Dense {
+            name: "output".into(),
+            weight: take(&mut values, "output.weight", width * outputs)?,
+            bias: take(&mut values, "output.bias", outputs)?,
+            inputs: width,
+            outputs,
+            hidden: false,
+            residual: false,
+            norm: None,
+            grad_weight: zeros(width * outputs),
+            grad_bias: zeros(outputs),
+            pre: Vec::new(),
+            act: Vec::new(),
+            mask: Vec::new(),
+            out: zeros(capacity * outputs),
+        });
+        let widest = layers.iter().map(|l| l.outputs.max(l.inputs)).max().unwrap_or(1);
+        Ok(Engine {
+            activation: spec.activation,
+            dropout: spec.dropout,
+            input_noise: spec.input_noise,
+            inputs: model.inputs,
+            capacity,
+            layers,
+            input: zeros(capacity * model.inputs),
+            grad_out: zeros(capacity * widest),
+            grad_in: zeros(capacity * widest),
+            draws: if spec.dropout > 0.0 { vec![0; capacity * widest] } else { Vec::new() },
+            rows: 0,
+        })
+    }
+
+    /// Parameter slots for the optimizer: weight, bias, gamma, beta per layer.
+    pub fn slot_count(&self) -> usize {
+        4 * self.layers.len()
+    }
+
+    /// Every parameter and running statistic under the model's names, for [`Mlp::set_host_values`].
+    pub fn values(&self) -> Vec<(String, Vec<T>)> {
+        let mut out = Vec::new();
+        for l in &self.layers {
+            out.push((format!("{}.weight", l.name), l.weight.clone()));
+            out.push((format!("{}.bias", l.name), l.bias.clone()));
+            if let Some(n) = &l.norm {
+                out.push((format!("{}.bn.gamma", l.name), n.gamma.clone()));
+                out.push((format!("{}.bn.beta", l.name), n.beta.clone()));
+                out.push((format!("{}.bn.running_mean", l.name), n.running_mean.clone()));
+                out.push((format!("{}.bn.running_var", l.name), n.running_var.clone()));
+            }
+        }
+        out
+    }
+
+    /// Every parameter's gradient from the last backward pass, under the model's names.
+    pub fn gradients(&self) -> Vec<(String, Vec<T>)> {
+        let mut out = Vec::new();
+        for l in &self.layers {
+            out.push((format!("{}.weight", l.name), l.grad_weight.clone()));
+            out.push((format!("{}.bias", l.name), l.grad_bias.clone()));
+            if let Some(n) = &l.norm {
+                out.push((format!("{}.bn.gamma", l.name), n.grad_gamma.clone()));
+                out.push((format!("{}.bn.beta", l.name), n.grad_beta.clone()));
+            }
+        }
+        out
+    }
+
+    /// Forward pass in training mode over rows `rows` of `x`: input noise, batch statistics
+    /// (updating the running ones), dropout; masks and noise drawn row by row, unit by unit.
+    pub fn forward(&mut self, x: &Matrix, rows: &[usize], dropout: &mut Stream, noise: &mut Stream) {
+        let b = rows.len();
+        assert!(b <= self.capacity && x.cols == self.inputs, "batch of {b}x{} for an engine of {}x{}", x.cols, self.capacity, self.inputs);
+        self.rows = b;
+        let d = self.inputs;
+        for (dst, &r) in self.input.chunks_exact_mut(d).zip(rows) {
+            for (v, &s) in dst.iter_mut().zip(x.row(r)) {
+                *v = T::from_f64(f64::from(s));
+            }
+        }
+        if self.input_noise > 0.0 {
+            let sigma = self.input_noise;
+            for v in &mut self.input[..b * d] {
+                *v += T::from_f64(f64::from((sigma * noise.normal()) as f32));
+            }
+        }
+        for l in 0..self.layers.len() {
+            let (before, rest) = self.layers.split_at_mut(l);
+            let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
+            let layer = &mut rest[0];
+            let (n_in, n_out) = (layer.inputs, layer.outputs);
+            let target = if layer.hidden { &mut layer.pre } else { &mut layer.out };
+            for row in target[..b * n_out].chunks_exact_mut(n_out) {
+                row.copy_from_slice(&layer.bias);
+            }
+            matmul(&mut target[..b * n_out], View::new(&input[..b * n_in], b, n_in), View::new(&layer.weight, n_in, n_out), true);
+            if !layer.hidden {
+                continue;
+            }
+            if let Some(norm) = &mut layer.norm {
+                normalise(norm, &mut layer.pre[..b * n_out], b, n_out);
+            }
+            activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
+            if self.dropout > 0.0 {
+                let keep = (1.0 - self.dropout) as f32;
+                let scale = T::from_f64(f64::from(1.0 / keep));
+                let mask = &mut layer.mask[..b * n_out];
+                let draws = &mut self.draws[..b * n_out];
+                dropout.fill_u32(draws);
+                // The same decision as `uniform_f32() < keep`, (u >> 8) 2^-24 < keep, in integers:
+                // keep 2^24 is exact, so u >> 8 < ceil(keep 2^24).
+                let threshold = (f64::from(keep) * f64::from(1u32 << 24)).ceil() as u32;
+                for (m, &u) in mask.iter_mut().zip(draws.iter()) {
+                    *m = if (u >> 8) < threshold { scale } else { T::zero() };
+                }
+                for (o, &m) in layer.out[..b * n_out].iter_mut().zip(mask.iter()) {
+                    *o *= m;
+                }
+            }
+            if layer.residual {
+                for (o, &i) in layer.out[..b * n_out].iter_mut().zip(&input[..b * n_in]) {
+                    *o += i;
+                }
+            }
+        }
+    }
+
+    /// The last batch's logits, rows x outputs, and the buffer their gradient goes into.
+    pub fn logits_and_gradient(&mut self) -> (&[T], &mut [T]) {
+        let b = self.rows;
+        let head = self.layers.last().map(|l| (l.outputs, &l.out[..])).unwrap_or((0, &[]));
+        (&head.1[..b * head.0], &mut self.grad_out[..b * head.0])
+    }
+
+    /// Backward pass from the logits' gradient (set through [`Engine::logits_and_gradient`]):
+    /// every parameter's gradient, plus `l2` times each weight matrix (the coupled penalty).
+    pub fn backward(&mut self, l2: f64) {
+        let b = self.rows;
+        let l2 = T::from_f64(l2);
+        for l in (0..self.layers.len()).rev() {
+            let (before, rest) = self.layers.split_at_mut(l);
+            let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
+            let layer = &mut rest[0];
+            let (n_in, n_out) = (layer.inputs, layer.outputs);
+            let grad_out = &self.grad_out[..b * n_out];
+            let grad_z: &[T] = if layer.hidden {
+                let pre = &mut layer.pre[..b * n_out];
+                derivative(self.activation, pre, &layer.act, grad_out, if layer.mask.is_empty() { None } else { Some(&layer.mask[..b * n_out]) });
+                if let Some(norm) = &mut layer.norm {
+                    normalise_backward(norm, pre, b, n_out);
+                }
+                pre
+            } else {
+                grad_out
+            };
+            matmul(&mut layer.grad_weight, View::new(&input[..b * n_in], b, n_in).t(), View::new(grad_z, b, n_out), false);
+            if l2 != T::zero() {
+                for (g, &w) in layer.grad_weight.iter_mut().zip(&layer.weight) {
+                    *g += l2 * w;
+                }
+            }
+            column_sums(grad_z, n_out, &mut layer.grad_bias);
+            if l > 0 {
+                matmul(&mut self.grad_in[..b * n_in], View::new(grad_z, b, n_out), View::new(&layer.weight, n_in, n_out).t(), false);
+                if layer.residual {
+                    for (g, &o) in self.grad_in[..b * n_in].iter_mut().zip(grad_out) {
+                        *g += o;
+                    }
+                }
+                std::mem::swap(&mut self.grad_out, &mut self.grad_in);
+            }
+        }
+    }
+
+    /// The Euclidean norm of every parameter's gradient, accumulated in f64.
+    pub fn gradient_norm(&self) -> f64 {
+        let sq = |v: &[T]| v.iter().map(|g| g.to_f64() * g.to_f64()).sum::<f64>();
+        let mut total = 0.0;
+        for l in &self.layers {
+            total += sq(&l.grad_weight) + sq(&l.grad_bias);
+            if let Some(n) = &l.norm {
+                total += sq(&n.grad_gamma) + sq(&n.grad_beta);
+            }
+        }
+        total.sqrt()
+    }
+
+    /// One optimizer update of every parameter; weight decay applies to weight matrices only.
+    pub fn update(&mut self, optimizer: &mut Optimizer, step: &Step) {
+        for (i, l) in self.layers.iter_mut().enumerate() {
+            optimizer.update(step, 4 * i, &mut l.weight, &l.grad_weight, true);
+            optimizer.update(step, 4 * i + 1, &mut l.bias, &l.grad_bias, false);
+            if let Some(n) = &mut l.norm {
+                optimizer.update(step, 4 * i + 2, &mut n.gamma, &n.grad_gamma, false);
+                optimizer.update(step, 4 * i + 3, &mut n.beta, &n.grad_beta, false);
+            }
+        }
+    }
+}
+
+/// Sums of each column of a rows x `cols` matrix, row by row.
+fn column_sums<T: Real>(m: &[T], cols: usize, out: &mut [T]) {
+    out.fill(T::zero());
+    for row in m.chunks_exact(cols) {
+        for (s, &v) in out.iter_mut().zip(row) {
+            *s += v;
+        }
+    }
+}
+
+/// Batch statistics of `z` (rows x cols) in place: z <- gamma (z - mean) / sqrt(var + eps) + beta
+/// with the biased batch variance; running statistics move by the momentum, with the unbiased
+/// variance (as PyTorch keeps them).
+fn normalise<T: Real>(norm: &mut Norm<T>, z: &mut [T], rows: usize, cols: usize) {
+    let n = T::from_f64(rows as f64);
+    let mean = &mut norm.mean;
+    column_sums(z, cols, mean);
+    for m in mean.iter_mut() {
+        *m /= n;
+    }
+    let var = &mut norm.inv_std;
+    var.fill(T::zero());
+    for row in z.chunks_exact(cols) {
+        for ((v, &x), &m) in var.iter_mut().zip(row).zip(mean.iter()) {
+            let c = x - m;
+            *v += c * c;
+        }
+    }
+    let (keep, take_new) = (T::from_f64(1.0 - BN_MOMENTUM), T::from_f64(BN_MOMENTUM));
+    let unbias = if rows > 1 { T::from_f64(rows as f64 / (rows as f64 - 1.0)) } else { T::one() };
+    let eps = T::from_f64(BN_EPS);
+    for j in 0..cols {
+        let biased = var[j] / n;
+        norm.running_mean[j] = norm.running_mean[j] * keep + mean[j] * take_new;
+        norm.running_var[j] = norm.running_var[j] * keep + biased * unbias * take_new;
+        var[j] = T::one() / (biased + eps).sqrt();
+    }
+    for (zrow, nrow) in z.chunks_exact_mut(cols).zip(norm.normalised.chunks_exact_mut(cols)) {
+        for j in 0..cols {
+            let x = (zrow[j] - mean[j]) * var[j];
+            nrow[j] = x;
+            zrow[j] = norm.gamma[j] * x + norm.beta[j];
+        }
+    }
+}
+
+/// From the gradient of batch norm's output (in `g`, rows x cols) to that of its input, in
+/// place: dz = gamma inv_std / n (n dy - sum dy - xhat sum(dy xhat)); also d gamma and d beta.
+fn normalise_backward<T: Real>(norm: &mut Norm<T>, g: &mut [T], rows: usize, cols: usize) {
+    column_sums(g, cols, &mut norm.grad_beta);
+    norm.grad_gamma.fill(T::zero());
+    for (grow, nrow) in g.chunks_exact(cols).zip(norm.normalised.chunks_exact(cols)) {
+        for ((s, &dy), &x) in norm.grad_gamma.iter_mut().zip(grow).zip(nrow) {
+            *s += dy * x;
+        }
+    }
+    let n = T::from_f64(rows as f64);
+    for (grow, nrow) in g.chunks_exact_mut(cols).zip(norm.normalised.chunks_exact(cols)) {
+        for j in 0..cols {
+            let factor = norm.gamma[j] * norm.inv_std[j] / n;
+            grow[j] = factor * (n * grow[j] - norm.grad_beta[j] - nrow[j] * norm.grad_gamma[j]);
+        }
+    }
+}
+
+const FRAC_1_SQRT_2PI: f64 = 0.398_942_280_401_432_7;
+
+/// `out = f(pre)`; `act` keeps f(pre) too when it is non-empty (sigmoid, tanh).
+fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: &mut [T]) {
+    let half = T::from_f64(0.5);
+    let inv_sqrt2 = T::from_f64(std::f64::consts::FRAC_1_SQRT_2);
+    let f = |x: T| -> T {
+        match activation {
+            Activation::Relu => {
+                if x > T::zero() { x } else { T::zero() }
+            }
+            Activation::Sigmoid => T::one() / (T::one() + (-x).exp()),
+            Activation::Tanh => x.tanh(),
+            Activation::Gelu => half * x * (T::one() + (x * inv_sqrt2).erf()),
+            Activation::Identity => x,
+        }
+    };
+    for (o, &x) in out.iter_mut().zip(pre.iter()) {
+        *o = f(x);
+    }
+    if !act.is_empty() {
+        act[..out.len()].copy_from_slice(out);
+    }
+}
+
+/// In place: `pre <- grad_out * mask * f'(pre)`, one loop per activation so each vectorises.
+fn derivative<T: Real>(activation: Activation, pre: &mut [T], act: &[T], grad_out: &[T], mask: Option<&[T]>) {
+    let half = T::from_f64(0.5);
+    let inv_sqrt2 = T::from_f64(std::f64::consts::FRAC_1_SQRT_2);
+    let density = T::from_f64(FRAC_1_SQRT_2PI);
+    match activation {
+        Activation::Relu => {
+            for (p, &g) in pre.iter_mut().zip(grad_out) {
+                *p = if *p > T::zero() { g } else { T::zero() };
+            }
+        }
+        Activation::Sigmoid => {
+            for ((p, &g), &a) in pre.iter_mut().zip(grad_out).zip(act) {
+                *p = g * (a * (T::one() - a));
+            }
+        }
+        Activation::Tanh => {
+            for ((p, &g), &a) in pre.iter_mut().zip(grad_out).zip(act) {
+                *p = g * (T::one() - a * a);
+            }
+        }
+        Activation::Gelu => {
+            for (p, &g) in pre.iter_mut().zip(grad_out) {
+                let x = *p;
+                *p = g * (half * (T::one() + (x * inv_sqrt2).erf()) + x * density * (-(half * x * x)).exp());
+            }
+        }
+        Activation::Identity => pre.copy_from_slice(grad_out),
+    }
+    if let Some(mask) = mask {
+        for (p, &m) in pre.iter_mut().zip(mask) {
+            *p *= m;
+        }
+    }
+}
