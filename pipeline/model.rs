@@ -9,14 +9,16 @@ use crate::nn::mlp::Mlp;
 use crate::plan::RunConfig;
 use crate::rng::{Purpose, Stream};
 use crate::store::run::StoredRun;
-use crate::train::{raw_outputs, Head, TargetScaling};
+use crate::nn::engine::{Engine, EVAL_BLOCK};
+use crate::train::{Head, TargetScaling};
 
 pub struct ScoringModel {
     pub head: Head,
     pub config: RunConfig,
     pub preprocessor: Preprocessor,
     pub scaling: Option<TargetScaling>,
-    network: Mlp,
+    /// The stored values in the engine that computed them, so scores equal training-time outputs.
+    engine: Engine<f32>,
 }
 
 impl ScoringModel {
@@ -27,13 +29,14 @@ impl ScoringModel {
         // The initial values are overwritten by the stored tensors; the stream only fills shapes.
         let mut network = Mlp::new(&config.model, preprocessor.width(), head.outputs(), &mut Stream::new(0, Purpose::Init), DType::F32)?;
         network.load(&run.tensors()?)?;
-        Ok(ScoringModel { head, config, preprocessor, scaling: run.record.target_scaling, network })
+        let engine = Engine::from_model(&network, EVAL_BLOCK)?;
+        Ok(ScoringModel { head, config, preprocessor, scaling: run.record.target_scaling, engine })
     }
 
     /// Class probabilities (k per row) or predictions for every row of `x`.
     pub fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         crate::numerics::prepare_process();
-        let raw = raw_outputs(&mut self.network, x)?;
+        let raw = self.engine.evaluate(x);
         Ok(self.head.predictions(&raw, self.scaling))
     }
 }

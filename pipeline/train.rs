@@ -11,9 +11,8 @@ use crate::error::{Error, Result};
 use crate::manifest::{RegressionLoss, Task};
 use crate::metrics::{classification, regression, MetricSet};
 use crate::nn::engine::Engine;
-use crate::nn::layers::tensor_from;
 use crate::nn::loss::{objective_and_gradient, Objective};
-use crate::nn::mlp::{Mlp, Mode, NamedTensor};
+use crate::nn::mlp::{Mlp, NamedTensor};
 use crate::nn::optim::{learning_rate, Optimizer};
 use crate::nn::scalar::Real;
 use crate::plan::RunConfig;
@@ -201,25 +200,6 @@ impl Head {
     }
 }
 
-/// Raw network outputs for every row of `x`, in evaluation mode, in blocks of 4096 rows.
-pub fn raw_outputs(model: &mut Mlp, x: &Matrix) -> Result<Vec<f32>> {
-    let mut out = Vec::with_capacity(x.rows * model.outputs);
-    let block = 4096;
-    let dtype = model_dtype(model);
-    for start in (0..x.rows).step_by(block) {
-        let end = (start + block).min(x.rows);
-        let values = x.data[start * x.cols..end * x.cols].to_vec();
-        let input = tensor_from(values, (end - start, x.cols), dtype)?;
-        let y = model.forward(&input, &mut Mode::Eval)?;
-        out.extend(y.to_dtype(DType::F32)?.flatten_all()?.to_vec1::<f32>()?);
-    }
-    Ok(out)
-}
-
-fn model_dtype(model: &Mlp) -> DType {
-    model.parameters().first().map(|(_, v, _)| v.dtype()).unwrap_or(DType::F32)
-}
-
 /// The selection metric of validation outputs, for the history.
 fn metric_of(head: &Head, outputs: &[f64], labels: &Labels, name: &str) -> Option<f64> {
     head.metrics(outputs, labels).get(name).copied().flatten()
@@ -294,7 +274,7 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
     let steps_per_epoch = n.div_ceil(batch);
     let mut order: Vec<usize> = (0..n).collect();
     let mut history = Vec::with_capacity(t.epochs);
-    let mut best: Option<(f64, usize, Vec<NamedTensor>)> = None;
+    let mut best: Option<(f64, usize, Vec<(String, Vec<T>)>)> = None;
     let mut since_best = 0usize;
     let mut stopped_early = false;
     let mut step = 0usize;
@@ -338,8 +318,7 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
             let update = optimizer.begin_step(lr, grad_scale);
             engine.update(&mut optimizer, &update);
         }
-        model.set_host_values(&engine.values())?;
-    let raw_val = raw_outputs(&mut model, data.validation_x)?;
+        let raw_val = engine.evaluate(data.validation_x);
         let validation_loss = head.host_loss(&raw_val, data.validation_y, scaling);
         if !validation_loss.is_finite() {
             outcome = Outcome::Diverged { epoch, detail: format!("validation loss became {validation_loss}") };
@@ -356,7 +335,7 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
         let es = &t.early_stopping;
         let improved = best.as_ref().is_none_or(|(b, _, _)| validation_loss < b - es.min_delta);
         if improved {
-            best = Some((validation_loss, epoch, if es.enabled { model.named_tensors()? } else { Vec::new() }));
+            best = Some((validation_loss, epoch, if es.enabled { engine.values() } else { Vec::new() }));
             since_best = 0;
         } else {
             since_best += 1;
@@ -382,14 +361,15 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
         });
     }
     let best_epoch = match (&best, t.early_stopping.enabled) {
-        (Some((_, e, tensors)), true) => {
-            model.load(tensors)?;
+        (Some((_, e, values)), true) => {
+            engine.load_values(values)?;
             *e
         }
         _ => history.len(),
     };
-    let raw_train = raw_outputs(&mut model, data.train_x)?;
-    let raw_val = raw_outputs(&mut model, data.validation_x)?;
+    model.set_host_values(&engine.values())?;
+    let raw_train = engine.evaluate(data.train_x);
+    let raw_val = engine.evaluate(data.validation_x);
     let train_outputs = head.predictions(&raw_train, scaling);
     let validation_outputs = head.predictions(&raw_val, scaling);
     let mut train_metrics = head.metrics(&train_outputs, data.train_y);

@@ -112,7 +112,8 @@ fn gradients_of_every_layer_and_loss_match_finite_differences() {
 /// The hand-written engine (tabcard::nn::engine) against candle's autograd, which the test above
 /// checks against finite differences: same model, same batch, same dropout and noise streams;
 /// loss, logits and every parameter's gradient agree within 1e-10 relative in f64 (rounding
-/// differs: the engine fuses bias, batch norm and the loss on the host).
+/// differs: the engine fuses bias, batch norm and the loss on the host); evaluation-mode outputs
+/// agree to f32 rounding (the engine hands them out as f32).
 fn engine_matches_autograd(model_spec: ModelSpec, task: Task, classes: usize, objective: Objective) {
     let (n, d) = (7, 3);
     let mut s = Stream::new(5, Purpose::InputNoise);
@@ -161,6 +162,13 @@ fn engine_matches_autograd(model_spec: ModelSpec, task: Task, classes: usize, ob
         for (i, (a, b)) in mine.iter().zip(&autograd).enumerate() {
             close(*a, *b, &format!("{name}[{i}]"));
         }
+    }
+    // Evaluation mode (running statistics, no dropout or noise) against candle's forward pass.
+    model.set_host_values(&engine.values()).unwrap();
+    let candle_eval = model.forward(&x, &mut Mode::Eval).unwrap().flatten_all().unwrap().to_vec1::<f64>().unwrap();
+    let engine_eval = engine.evaluate(&matrix);
+    for (a, b) in engine_eval.iter().zip(&candle_eval) {
+        assert!((f64::from(*a) - b).abs() <= 1e-6 * b.abs().max(1.0), "evaluation: engine {a} vs candle {b} ({model_spec:?})");
     }
 }
 

@@ -79,9 +79,14 @@ fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) ->
     Ok(v)
 }
 
+/// Rows per block in evaluation mode. Fixed, so that a row's outputs never depend on how many
+/// rows were scored with it (training-time validation and `predict` give the same bits).
+pub const EVAL_BLOCK: usize = 256;
+
 impl<T: Real> Engine<T> {
-    /// An engine holding `model`'s current values, for batches of up to `capacity` rows.
-    pub fn from_model(model: &Mlp, capacity: usize) -> Result<Self> {
+    /// An engine holding `model`'s current values, for training batches of up to `batch` rows.
+    pub fn from_model(model: &Mlp, batch: usize) -> Result<Self> {
+        let capacity = batch.max(EVAL_BLOCK);
         let spec = &model.spec;
         let mut values = model.host_values::<T>()?;
         let zeros = |n: usize| vec![T::zero(); n];
@@ -175,6 +180,71 @@ impl<T: Real> Engine<T> {
             }
         }
         out
+    }
+
+    /// Overwrites parameters and running statistics with values from [`Engine::values`].
+    pub fn load_values(&mut self, values: &[(String, Vec<T>)]) -> Result<()> {
+        let mut values = values.to_vec();
+        for l in &mut self.layers {
+            l.weight = take(&mut values, &format!("{}.weight", l.name), l.weight.len())?;
+            l.bias = take(&mut values, &format!("{}.bias", l.name), l.bias.len())?;
+            if let Some(n) = &mut l.norm {
+                let w = n.gamma.len();
+                n.gamma = take(&mut values, &format!("{}.bn.gamma", l.name), w)?;
+                n.beta = take(&mut values, &format!("{}.bn.beta", l.name), w)?;
+                n.running_mean = take(&mut values, &format!("{}.bn.running_mean", l.name), w)?;
+                n.running_var = take(&mut values, &format!("{}.bn.running_var", l.name), w)?;
+            }
+        }
+        Ok(())
+    }
+
+    /// Raw outputs (rows x outputs, as f32) of every row of `x` in evaluation mode: running
+    /// statistics for batch norm, no dropout, no noise; in blocks of [`EVAL_BLOCK`] rows.
+    pub fn evaluate(&mut self, x: &Matrix) -> Vec<f32> {
+        assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
+        let outputs = self.layers.last().map_or(0, |l| l.outputs);
+        let mut result = Vec::with_capacity(x.rows * outputs);
+        let d = self.inputs;
+        for start in (0..x.rows).step_by(EVAL_BLOCK) {
+            let b = (x.rows - start).min(EVAL_BLOCK);
+            for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
+                *v = T::from_f64(f64::from(s));
+            }
+            for l in 0..self.layers.len() {
+                let (before, rest) = self.layers.split_at_mut(l);
+                let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
+                let layer = &mut rest[0];
+                let (n_in, n_out) = (layer.inputs, layer.outputs);
+                let target = if layer.hidden { &mut layer.pre } else { &mut layer.out };
+                for row in target[..b * n_out].chunks_exact_mut(n_out) {
+                    row.copy_from_slice(&layer.bias);
+                }
+                matmul(&mut target[..b * n_out], View::new(&input[..b * n_in], b, n_in), View::new(&layer.weight, n_in, n_out), true);
+                if !layer.hidden {
+                    continue;
+                }
+                if let Some(norm) = &layer.norm {
+                    let eps = T::from_f64(BN_EPS);
+                    let std: Vec<T> = norm.running_var.iter().map(|&v| (v + eps).sqrt()).collect();
+                    for row in layer.pre[..b * n_out].chunks_exact_mut(n_out) {
+                        for j in 0..n_out {
+                            row[j] = (row[j] - norm.running_mean[j]) / std[j] * norm.gamma[j] + norm.beta[j];
+                        }
+                    }
+                }
+                activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
+                if layer.residual {
+                    for (o, &i) in layer.out[..b * n_out].iter_mut().zip(&input[..b * n_in]) {
+                        *o += i;
+                    }
+                }
+            }
+            if let Some(head) = self.layers.last() {
+                result.extend(head.out[..b * outputs].iter().map(|v| v.to_f64() as f32));
+            }
+        }
+        result
     }
 
     /// Every parameter's gradient from the last backward pass, under the model's names.

@@ -63,15 +63,15 @@ impl Optimizer {
                 }
                 if s.momentum > 0.0 {
                     for ((wj, &gj), mj) in w.iter_mut().zip(g).zip(m.iter_mut()) {
-                        let gj = gj.to_f64() * scale;
+                        let gj = gj.widen() * scale;
                         // PyTorch's convention: the first step's velocity is the gradient itself.
                         *mj = if step.first { gj } else { s.momentum * *mj + gj };
                         let update = if s.nesterov { gj + s.momentum * *mj } else { *mj };
-                        *wj = T::from_f64(wj.to_f64() * decay - lr * update);
+                        *wj = T::narrow(wj.widen() * decay - lr * update);
                     }
                 } else {
                     for (wj, &gj) in w.iter_mut().zip(g) {
-                        *wj = T::from_f64(wj.to_f64() * decay - lr * (gj.to_f64() * scale));
+                        *wj = T::narrow(wj.widen() * decay - lr * (gj.widen() * scale));
                     }
                 }
             }
@@ -80,17 +80,71 @@ impl Optimizer {
                     *m = vec![0.0; w.len()];
                     *v = vec![0.0; w.len()];
                 }
-                let (b1, b2, eps) = (s.beta1, s.beta2, s.epsilon);
-                let (c1, c2) = (step.bias1, step.bias2);
-                for ((wj, &gj), (mj, vj)) in w.iter_mut().zip(g).zip(m.iter_mut().zip(v.iter_mut())) {
-                    let gj = gj.to_f64() * scale;
-                    *mj = b1 * *mj + (1.0 - b1) * gj;
-                    *vj = b2 * *vj + (1.0 - b2) * gj * gj;
-                    *wj = T::from_f64(wj.to_f64() * decay - lr * (*mj / c1) / ((*vj / c2).sqrt() + eps));
-                }
+                let k = AdamConstants {
+                    b1: s.beta1,
+                    b2: s.beta2,
+                    eps: s.epsilon,
+                    step_size: lr / step.bias1,
+                    inv_sqrt_c2: 1.0 / step.bias2.sqrt(),
+                    scale,
+                    decay,
+                };
+                adam(w, g, m, v, &k);
             }
         }
     }
+}
+
+/// Adam's per-step constants, folded as PyTorch folds them: lr / (1 - beta1^t) and
+/// 1 / sqrt(1 - beta2^t), so each element costs one square root and one division.
+struct AdamConstants {
+    b1: f64,
+    b2: f64,
+    eps: f64,
+    step_size: f64,
+    inv_sqrt_c2: f64,
+    scale: f64,
+    decay: f64,
+}
+
+#[inline(always)]
+fn adam_body<T: Real>(w: &mut [T], g: &[T], m: &mut [f64], v: &mut [f64], k: &AdamConstants) {
+    for ((wj, &gj), (mj, vj)) in w.iter_mut().zip(g).zip(m.iter_mut().zip(v.iter_mut())) {
+        let gj = gj.widen() * k.scale;
+        *mj = k.b1 * *mj + (1.0 - k.b1) * gj;
+        *vj = k.b2 * *vj + (1.0 - k.b2) * gj * gj;
+        *wj = T::narrow(wj.widen() * k.decay - k.step_size * *mj / (vj.sqrt() * k.inv_sqrt_c2 + k.eps));
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn adam_avx512<T: Real>(w: &mut [T], g: &[T], m: &mut [f64], v: &mut [f64], k: &AdamConstants) {
+    adam_body(w, g, m, v, k)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn adam_avx2<T: Real>(w: &mut [T], g: &[T], m: &mut [f64], v: &mut [f64], k: &AdamConstants) {
+    adam_body(w, g, m, v, k)
+}
+
+/// The Adam update, compiled for the widest vector unit the CPU has. Every operation is an
+/// IEEE-754 correctly rounded +, *, / or sqrt on one element (Rust never contracts a * b + c into
+/// a fused multiply-add), so every vector width gives the same bits.
+fn adam<T: Real>(w: &mut [T], g: &[T], m: &mut [f64], v: &mut [f64], k: &AdamConstants) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::is_x86_feature_detected!("avx512f") {
+            // SAFETY: the CPU has AVX-512F, checked on the line above.
+            return unsafe { adam_avx512(w, g, m, v, k) };
+        }
+        if std::is_x86_feature_detected!("avx2") {
+            // SAFETY: the CPU has AVX2, checked on the line above.
+            return unsafe { adam_avx2(w, g, m, v, k) };
+        }
+    }
+    adam_body(w, g, m, v, k)
 }
 
 /// The learning rate at `step` (0-based) of `total` steps: linear warm-up over the first

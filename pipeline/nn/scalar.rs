@@ -9,10 +9,10 @@ pub trait Real: WithDType + Default + std::fmt::Debug + std::ops::Neg<Output = S
     fn tanh(self) -> Self;
     fn erf(self) -> Self;
     fn sqrt(self) -> Self;
+    /// Exactly as f64 (inlinable here, unlike candle's `to_f64`, so hot loops vectorise).
+    fn widen(self) -> f64;
     /// `x` rounded to this type.
-    fn of(x: f64) -> Self {
-        Self::from_f64(x)
-    }
+    fn narrow(x: f64) -> Self;
 }
 
 impl Real for f32 {
@@ -28,6 +28,14 @@ impl Real for f32 {
     fn sqrt(self) -> Self {
         f32::sqrt(self)
     }
+    #[inline(always)]
+    fn widen(self) -> f64 {
+        f64::from(self)
+    }
+    #[inline(always)]
+    fn narrow(x: f64) -> Self {
+        x as f32
+    }
 }
 
 impl Real for f64 {
@@ -42,5 +50,13 @@ impl Real for f64 {
     }
     fn sqrt(self) -> Self {
         f64::sqrt(self)
+    }
+    #[inline(always)]
+    fn widen(self) -> f64 {
+        self
+    }
+    #[inline(always)]
+    fn narrow(x: f64) -> Self {
+        x
     }
 }
