@@ -8,7 +8,7 @@ pub fn sig(x: f64, digits: usize) -> String {
     if x == 0.0 {
         return "0".into();
     }
-    let magnitude = x.abs().log10().floor() as i32;
+    let magnitude = libm::floor(libm::log10(x.abs())) as i32;
     if !(-5..=9).contains(&magnitude) {
         return format!("{:.*e}", digits.saturating_sub(1), x);
     }

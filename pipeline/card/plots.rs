@@ -51,7 +51,7 @@ fn nice_ticks(lo: f64, hi: f64) -> Vec<f64> {
     if !(raw.is_finite() && raw > 0.0) {
         return vec![lo];
     }
-    let magnitude = 10f64.powf(raw.log10().floor());
+    let magnitude = libm::pow(10.0, libm::floor(libm::log10(raw)));
     let step = [1.0, 2.0, 5.0, 10.0].iter().map(|m| m * magnitude).find(|s| *s >= raw).unwrap_or(10.0 * magnitude);
     let first = (lo / step).ceil() as i64;
     let last = (hi / step).floor() as i64;

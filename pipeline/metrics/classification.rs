@@ -84,7 +84,7 @@ pub fn log_loss(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
     for (row, &y) in probs.chunks_exact(k).zip(labels) {
         let clipped: Vec<f64> = row.iter().map(|p| p.clamp(eps, 1.0 - eps)).collect();
         let sum: f64 = clipped.iter().sum();
-        total -= (clipped[y] / sum).ln();
+        total -= libm::log(clipped[y] / sum);
     }
     Some(total / labels.len() as f64)
 }

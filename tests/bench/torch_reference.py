@@ -2,7 +2,8 @@
 batches a practitioner would script by hand, timed the same way (training loop plus one validation
 pass per epoch). Prints one JSON line per measurement.
 
-  python torch_reference.py train DATA.parquet --hidden 256,256 --batch 256 --epochs 3 [--dropout P] [--batch-norm] [--threads 1] [--seeds 1]
+  python torch_reference.py train DATA.parquet --hidden 256,256 --batch 256 --epochs 3 [--dropout P] [--batch-norm]
+                             [--threads 1] [--seeds 1] [--cols K] [--train-rows N] [--validation-rows 1000]
   python torch_reference.py sgemm [--size 1024]   single-core float32 matrix-multiply peak (numpy and torch)
 """
 import argparse
@@ -14,9 +15,9 @@ import pyarrow.parquet as pq
 import torch
 
 
-def load(path):
+def load(path, cols=None):
     table = pq.read_table(path)
-    names = [n for n in table.column_names if n != "y"]
+    names = [n for n in table.column_names if n != "y"][:cols]
     x = np.column_stack([table.column(n).to_numpy().astype(np.float32) for n in names])
     y = table.column("y").to_numpy().astype(np.float32)
     return torch.from_numpy(np.ascontiguousarray(x)), torch.from_numpy(y).reshape(-1, 1)
@@ -60,13 +61,20 @@ def train_once(x, y, vx, hidden, dropout, batch_norm, batch, epochs, seed):
         net.eval()
         with torch.no_grad():
             net(vx)
+    # As tabcard does at the end of a run: outputs for every training and validation row.
+    with torch.no_grad():
+        for start in range(0, n, 4096):
+            net(x[start:start + 4096])
+        net(vx)
     return sum(p.numel() for p in net.parameters())
 
 
 def cmd_train(a):
     torch.set_num_threads(a.threads)
-    x, y = load(a.data)
-    vx = x[:1000].clone()
+    x, y = load(a.data, a.cols)
+    vx = x[:a.validation_rows].clone()
+    if a.train_rows:
+        x, y = x[:a.train_rows].contiguous(), y[:a.train_rows].contiguous()
     hidden = [int(h) for h in a.hidden.split(",") if h]
     started = time.perf_counter()
     for seed in range(1, a.seeds + 1):
@@ -109,6 +117,9 @@ def main():
     t.add_argument("--batch-norm", action="store_true")
     t.add_argument("--threads", type=int, default=1)
     t.add_argument("--seeds", type=int, default=1)
+    t.add_argument("--cols", type=int, default=None)
+    t.add_argument("--train-rows", type=int, default=0)
+    t.add_argument("--validation-rows", type=int, default=1000)
     s = sub.add_parser("sgemm")
     s.add_argument("--size", type=int, default=1024)
     a = p.parse_args()

@@ -1,0 +1,212 @@
+//! Benchmark measurements (not tests), called by `tests/bench/run.sh`; each prints one JSON line.
+//!
+//! ```text
+//! bench data ROWS COLS OUT.parquet          synthetic table: x00.. float32 features, y = 0/1 (seed 2026)
+//! bench train DATA --hidden 256,256 --batch 256 --epochs 3 [--dropout P] [--bn] [--cols K]
+//!                                           one single-threaded run, the reference AdamW settings
+//! bench hash DATA                           file hash and logical content hash vs sha2 on the same bytes
+//! bench load DATA                           Parquet -> table -> standardised f32 training matrix
+//! bench scale ROWS COLS                     one epoch of the reference MLP on an in-memory matrix, peak RSS
+//! ```
+
+use std::path::Path;
+use std::sync::Arc;
+use std::time::Instant;
+
+use arrow::array::{ArrayRef, Float32Array, Int64Array};
+use sha2::{Digest, Sha256};
+use tabcard::data::parquet::{encode, read_table, WriteOptions};
+use tabcard::data::prep::{Matrix, Preprocessor};
+use tabcard::data::roles::Feature;
+use tabcard::data::table::Table;
+use tabcard::manifest::{Activation, ModelSpec, Optimizer, RegressionLoss, Task, TrainingSpec};
+use tabcard::plan::RunConfig;
+use tabcard::rng::{Purpose, Stream};
+use tabcard::train::{train, Head, Labels, RunData};
+
+fn arg<T: std::str::FromStr>(args: &[String], name: &str, default: T) -> T {
+    args.iter().position(|a| a == name).and_then(|i| args.get(i + 1)).and_then(|v| v.parse().ok()).unwrap_or(default)
+}
+
+fn flag(args: &[String], name: &str) -> bool {
+    args.iter().any(|a| a == name)
+}
+
+/// Invented data: standard-normal features, y = 1 when x0 + x1 x2 + noise > 0.
+fn synthetic(rows: usize, cols: usize) -> (Vec<f32>, Vec<usize>) {
+    let mut s = Stream::new(2026, Purpose::DemoData);
+    let x: Vec<f32> = (0..rows * cols).map(|_| s.normal() as f32).collect();
+    let y = (0..rows)
+        .map(|r| {
+            let v = &x[r * cols..];
+            let signal = f64::from(v[0]) + f64::from(v[1 % cols]) * f64::from(v[2 % cols]) + 0.5 * s.normal();
+            usize::from(signal > 0.0)
+        })
+        .collect();
+    (x, y)
+}
+
+fn write_data(rows: usize, cols: usize, out: &Path) {
+    let (x, y) = synthetic(rows, cols);
+    let mut columns: Vec<(String, ArrayRef)> = (0..cols)
+        .map(|c| (format!("x{c:02}"), Arc::new(Float32Array::from((0..rows).map(|r| x[r * cols + c]).collect::<Vec<f32>>())) as ArrayRef))
+        .collect();
+    columns.push(("y".into(), Arc::new(Int64Array::from(y.iter().map(|&v| v as i64).collect::<Vec<i64>>()))));
+    let bytes = encode(columns, WriteOptions::default()).expect("encode");
+    std::fs::write(out, &bytes).expect("write");
+    println!("{{\"rows\": {rows}, \"cols\": {cols}, \"bytes\": {}}}", bytes.len());
+}
+
+/// The first `cols` feature columns and the target of a table written by `bench data`.
+fn matrices(table: &Table, cols: usize) -> (Matrix, Labels) {
+    let rows = table.rows;
+    let mut data = vec![0f32; rows * cols];
+    for c in 0..cols {
+        let col = table.column(&format!("x{c:02}")).expect("feature column");
+        for r in 0..rows {
+            data[r * cols + c] = col.number(r).unwrap_or(0.0) as f32;
+        }
+    }
+    let y = table.column("y").expect("target column");
+    let labels = (0..rows).map(|r| y.number(r).unwrap_or(0.0) as usize).collect();
+    (Matrix { rows, cols, data }, Labels::Classes { rows: labels, classes: 2 })
+}
+
+fn reference_config(hidden: Vec<usize>, batch: usize, epochs: usize, dropout: f64, batch_norm: bool) -> RunConfig {
+    let mut training = TrainingSpec { optimizer: Optimizer::Adamw, learning_rate: 1e-3, weight_decay: 1e-2, epochs, batch_size: batch, ..TrainingSpec::default() };
+    training.early_stopping.enabled = false;
+    RunConfig { model: ModelSpec { hidden, activation: Activation::Relu, dropout, batch_norm, ..ModelSpec::default() }, training }
+}
+
+const HEAD: Head = Head { task: Task::Binary, classes: 2, loss: RegressionLoss::Mse, huber_delta: 1.0 };
+
+fn subset(x: &Matrix, y: &Labels, rows: usize) -> (Matrix, Labels) {
+    let m = Matrix { rows, cols: x.cols, data: x.data[..rows * x.cols].to_vec() };
+    let l = match y {
+        Labels::Classes { rows: r, classes } => Labels::Classes { rows: r[..rows].to_vec(), classes: *classes },
+        Labels::Values(v) => Labels::Values(v[..rows].to_vec()),
+    };
+    (m, l)
+}
+
+fn bench_train(args: &[String]) {
+    let table = read_table(Path::new(&args[2])).expect("read data");
+    let hidden: Vec<usize> = arg(args, "--hidden", "256,256".to_string()).split(',').filter(|s| !s.is_empty()).map(|s| s.parse().expect("width")).collect();
+    let batch = arg(args, "--batch", 256usize);
+    let epochs = arg(args, "--epochs", 3usize);
+    let dropout = arg(args, "--dropout", 0.0f64);
+    let batch_norm = flag(args, "--bn");
+    let cols = arg(args, "--cols", table.columns.len() - 1);
+    let validation_rows = arg(args, "--validation-rows", 1000usize);
+    let (x, y) = matrices(&table, cols);
+    let (vx, vy) = subset(&x, &y, validation_rows.min(x.rows));
+    let config = reference_config(hidden, batch, epochs, dropout, batch_norm);
+    let started = Instant::now();
+    let result = train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
+    let seconds = started.elapsed().as_secs_f64();
+    let samples = (x.rows * epochs) as f64;
+    let steps = (x.rows.div_ceil(batch) * epochs) as f64;
+    println!(
+        "{{\"seconds\": {seconds}, \"samples_per_second\": {}, \"steps_per_second\": {}, \"parameters\": {}, \"validation_roc_auc\": {}}}",
+        samples / seconds,
+        steps / seconds,
+        result.parameter_count,
+        result.validation_metrics.get("roc_auc").copied().flatten().unwrap_or(f64::NAN)
+    );
+}
+
+fn best_of<R>(reps: usize, mut f: impl FnMut() -> R) -> (f64, R) {
+    let mut best = f64::INFINITY;
+    let mut last = None;
+    for _ in 0..reps {
+        let t = Instant::now();
+        let r = f();
+        best = best.min(t.elapsed().as_secs_f64());
+        last = Some(r);
+    }
+    (best, last.expect("at least one repetition"))
+}
+
+fn bench_hash(args: &[String]) {
+    let path = Path::new(&args[2]);
+    let bytes = std::fs::read(path).expect("read");
+    let gb = bytes.len() as f64 / 1e9;
+    let (raw, _) = best_of(3, || Sha256::digest(&bytes));
+    let (file, _) = best_of(3, || tabcard::fingerprint::file_sha256(path).expect("hash"));
+    let table = read_table(path).expect("read table");
+    let (content, _) = best_of(3, || table.content_hash());
+    println!(
+        "{{\"bytes\": {}, \"sha2_in_memory_gb_s\": {}, \"file_hash_gb_s\": {}, \"content_hash_gb_s\": {}, \"content_hash_seconds\": {content}}}",
+        bytes.len(),
+        gb / raw,
+        gb / file,
+        gb / content
+    );
+}
+
+fn bench_load(args: &[String]) {
+    let path = Path::new(&args[2]);
+    let bytes = std::fs::metadata(path).expect("stat").len() as f64;
+    let (read, table) = best_of(3, || read_table(path).expect("read table"));
+    let features: Vec<Feature> = table.columns.iter().filter(|c| c.name != "y").map(|c| Feature { name: c.name.clone(), categorical: false }).collect();
+    let rows: Vec<usize> = (0..table.rows).collect();
+    let (prep, matrix) = best_of(3, || {
+        let p = Preprocessor::fit(&table, &features, &rows, path).expect("fit");
+        p.transform(&table, &rows, path).expect("transform").0
+    });
+    let matrix_mb = (matrix.data.len() * 4) as f64 / 1e6;
+    println!(
+        "{{\"file_mb\": {}, \"matrix_mb\": {matrix_mb}, \"parquet_to_table_mb_s\": {}, \"table_to_matrix_mb_s\": {}, \"parquet_to_matrix_mb_s\": {}}}",
+        bytes / 1e6,
+        bytes / 1e6 / read,
+        matrix_mb / prep,
+        matrix_mb / (read + prep)
+    );
+}
+
+fn peak_rss_bytes() -> u64 {
+    let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
+    status.lines().find_map(|l| l.strip_prefix("VmHWM:")).and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<u64>().ok()).unwrap_or(0) * 1024
+}
+
+fn bench_scale(args: &[String]) {
+    let rows: usize = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(1_000_000);
+    let cols: usize = args.get(3).and_then(|s| s.parse().ok()).unwrap_or(64);
+    let (data, labels) = synthetic(rows, cols);
+    let x = Matrix { rows, cols, data };
+    let y = Labels::Classes { rows: labels, classes: 2 };
+    let (vx, vy) = subset(&x, &y, 10_000.min(rows));
+    let config = reference_config(vec![256, 256], 256, 1, 0.0, false);
+    let before = peak_rss_bytes();
+    let started = Instant::now();
+    let result = train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
+    let seconds = started.elapsed().as_secs_f64();
+    let matrix_bytes = (x.data.len() * 4) as f64;
+    let model_bytes = (result.parameter_count * 4) as f64;
+    let peak = peak_rss_bytes() as f64;
+    println!(
+        "{{\"rows\": {rows}, \"cols\": {cols}, \"seconds\": {seconds}, \"samples_per_second\": {}, \"peak_rss_mb\": {}, \"rss_before_training_mb\": {}, \"matrix_mb\": {}, \"model_mb\": {}, \"rss_over_matrix_plus_model\": {}}}",
+        rows as f64 / seconds,
+        peak / 1e6,
+        before as f64 / 1e6,
+        matrix_bytes / 1e6,
+        model_bytes / 1e6,
+        peak / (matrix_bytes + model_bytes)
+    );
+}
+
+fn main() {
+    tabcard::numerics::prepare_process();
+    let args: Vec<String> = std::env::args().collect();
+    match args.get(1).map(String::as_str) {
+        Some("data") => write_data(args[2].parse().expect("rows"), args[3].parse().expect("cols"), Path::new(&args[4])),
+        Some("train") => bench_train(&args),
+        Some("hash") => bench_hash(&args),
+        Some("load") => bench_load(&args),
+        Some("scale") => bench_scale(&args),
+        _ => {
+            eprintln!("usage: bench data|train|hash|load|scale ... (see tests/bench/bench.rs)");
+            std::process::exit(2);
+        }
+    }
+}

@@ -1,0 +1,229 @@
+"""The benchmark driver behind tests/bench/run.sh: runs each tabcard measurement and its reference
+alternately, REPS times, and prints medians, ratios and the share of the machine's single-core
+matrix-multiply peak. Every figure comes from this run; nothing is asserted.
+
+Usage: python driver.py WORKDIR [--reps N] [--torch PYTHON]   (PYTHON: an interpreter with torch)
+"""
+import argparse
+import json
+import os
+import statistics
+import subprocess
+import sys
+import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+REPO = os.path.dirname(os.path.dirname(HERE))
+BENCH = os.path.join(REPO, "target", "release", "examples", "bench")
+TABCARD = os.path.join(REPO, "target", "release", "tabcard")
+TORCH_SCRIPT = os.path.join(HERE, "torch_reference.py")
+
+
+def run_json(cmd, env=None):
+    out = subprocess.run(cmd, check=True, capture_output=True, text=True, env=env)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def timed(cmd, env=None):
+    started = time.perf_counter()
+    subprocess.run(cmd, check=True, capture_output=True, env=env)
+    return time.perf_counter() - started
+
+
+def peak_rss_of(cmd):
+    """Runs cmd under a fresh Python parent (so no earlier child counts) and returns
+    (seconds, peak resident set of cmd in bytes)."""
+    probe = ("import resource, subprocess, sys, time; t = time.perf_counter(); "
+             "subprocess.run(sys.argv[1:], check=True, capture_output=True); "
+             "print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)")
+    out = subprocess.run([sys.executable, "-c", probe] + cmd, check=True, capture_output=True, text=True).stdout.split()
+    return float(out[0]), int(out[1]) * 1024
+
+
+def median(values):
+    return statistics.median(values)
+
+
+def alternate(reps, first, second):
+    """Runs first() and second() alternately reps times; returns both lists of results."""
+    a, b = [], []
+    for _ in range(reps):
+        a.append(first())
+        b.append(second())
+    return a, b
+
+
+def manifest(path, data, hidden, epochs, seeds, batch, validation, test):
+    with open(path, "w") as f:
+        f.write(f"""[experiment]
+name = "bench"
+
+[data]
+path = "{data}"
+target = "y"
+task = "binary"
+
+[split]
+validation = {validation}
+test = {test}
+
+[model]
+hidden = {hidden}
+
+[training]
+optimizer = "adamw"
+learning_rate = 0.001
+weight_decay = 0.01
+epochs = {epochs}
+batch_size = {batch}
+schedule = "constant"
+
+[training.early_stopping]
+enabled = false
+
+[selection]
+baseline = false
+bootstrap = 200
+
+[sweep]
+seeds = {seeds}
+""")
+
+
+def main():
+    p = argparse.ArgumentParser()
+    p.add_argument("workdir")
+    p.add_argument("--reps", type=int, default=3)
+    p.add_argument("--torch", default=None, help="python with torch installed; omit to skip PyTorch")
+    a = p.parse_args()
+    w = a.workdir
+    os.makedirs(w, exist_ok=True)
+    torch_py = a.torch
+    single = dict(os.environ, CUDA_VISIBLE_DEVICES="")
+    lines = []
+
+    def report(line):
+        print(line, flush=True)
+        lines.append(line)
+
+    data32 = os.path.join(w, "synthetic-100k-x32.parquet")
+    run_json([BENCH, "data", "100000", "32", data32])
+
+    report(f"tabcard benchmark: median of {a.reps} alternating repetitions; ratio = tabcard / reference (higher is better for tabcard)")
+    report(f"machine: {os.cpu_count()} logical CPUs; {cpu_model()}")
+
+    peaks = []
+
+    def measure_peak():
+        if torch_py:
+            peaks.append(run_json([torch_py, TORCH_SCRIPT, "sgemm"], env=single)["sgemm_gflops"])
+
+    measure_peak()
+
+    report("\n1. single run, one core (100,000 rows x 32 features, AdamW lr 1e-3 wd 1e-2, 3 epochs unless noted)")
+    report(f"   {'case':<34} {'tabcard':>14} {'PyTorch 1 thr':>14} {'ratio':>7}")
+    cases = [
+        ("reference MLP 32-256-256-1", ["--hidden", "256,256"], ["--hidden", "256,256"], "samples_per_second", "samples/s"),
+        ("  with dropout 0.1", ["--hidden", "256,256", "--dropout", "0.1"], ["--hidden", "256,256", "--dropout", "0.1"], "samples_per_second", "samples/s"),
+        ("  with batch norm", ["--hidden", "256,256", "--bn"], ["--hidden", "256,256", "--batch-norm"], "samples_per_second", "samples/s"),
+        ("tiny 8-16-1, batch 32, 1 epoch", ["--hidden", "16", "--batch", "32", "--epochs", "1", "--cols", "8"], ["--hidden", "16", "--batch", "32", "--epochs", "1", "--cols", "8"], "steps_per_second", "steps/s"),
+    ]
+    reference_rate = None
+    for label, ours, theirs, key, unit in cases:
+        mine = lambda: run_json([BENCH, "train", data32] + ours)
+        if torch_py:
+            m, t = alternate(a.reps, mine, lambda: run_json([torch_py, TORCH_SCRIPT, "train", data32, "--threads", "1"] + theirs, env=single))
+            mv, tv = median([r[key] for r in m]), median([r[key] for r in t])
+            report(f"   {label:<34} {mv:>14,.0f} {tv:>14,.0f} {mv / tv:>6.2f}x   ({unit})")
+        else:
+            m = [mine() for _ in range(a.reps)]
+            mv = median([r[key] for r in m])
+            report(f"   {label:<34} {mv:>14,.0f} {'skipped':>14}   ({unit})")
+        if reference_rate is None:
+            reference_rate = (mv, m[0]["parameters"])
+    rate, params = reference_rate
+    achieved = 6 * params * rate / 1e9
+    measure_peak()
+    measure_peak()
+    peak = max(peaks) if peaks else None
+    if peak:
+        report(f"   single-core float32 matmul peak (numpy/torch, 1024x1024, best of 20, measured {len(peaks)} times in this run): {', '.join(f'{p:.0f}' for p in peaks)} GFLOP/s; the highest is used")
+        report(f"   reference MLP: {achieved:.1f} GFLOP/s at 6 x {params} parameters per sample = {100 * achieved / peak:.0f}% of the measured single-core peak ({peak:.0f} GFLOP/s; ceiling {peak * 1e9 / (6 * params):,.0f} samples/s)")
+    else:
+        report(f"   reference MLP: {achieved:.1f} GFLOP/s at 6 x {params} parameters per sample (no peak measured: numpy unavailable)")
+
+    report("\n2. sweep, two cores: 8 runs (reference configuration x 8 seeds), 80,000 training rows each")
+    sweep_manifest = os.path.join(w, "sweep.toml")
+    manifest(sweep_manifest, data32, "[256, 256]", 3, "[1, 2, 3, 4, 5, 6, 7, 8]", 256, 0.1, 0.1)
+    counter = [0]
+
+    def tabcard_sweep():
+        counter[0] += 1
+        return timed([TABCARD, "train", sweep_manifest, "--jobs", "2", "--results", os.path.join(w, f"sweep-results-{counter[0]}")])
+
+    def tabcard_one_job():
+        counter[0] += 1
+        return timed([TABCARD, "train", sweep_manifest, "--jobs", "1", "--results", os.path.join(w, f"sweep-results-{counter[0]}")])
+
+    if torch_py:
+        m, t = alternate(a.reps, tabcard_sweep, lambda: run_json([torch_py, TORCH_SCRIPT, "train", data32, "--threads", "2", "--seeds", "8", "--train-rows", "80000", "--validation-rows", "10000"], env=single)["seconds"])
+        mv, tv = median(m), median(t)
+        report(f"   tabcard train --jobs 2 (whole command: load, hash, 8 runs, selection, test, card): {mv:.1f} s")
+        report(f"   PyTorch, 8 runs one after another, 2 intra-op threads (training only):            {tv:.1f} s")
+        report(f"   ratio (PyTorch time / tabcard time): {tv / mv:.2f}x")
+    else:
+        mv = median([tabcard_sweep() for _ in range(a.reps)])
+        report(f"   tabcard train --jobs 2: {mv:.1f} s (PyTorch skipped)")
+    one = median([tabcard_one_job() for _ in range(max(1, a.reps // 2))])
+    report(f"   scaling: --jobs 1 {one:.1f} s vs --jobs 2 {mv:.1f} s = {one / mv:.2f}x on 2 cores")
+
+    report("\n3. hashing and loading")
+    data_big = os.path.join(w, "synthetic-615k-x32.parquet")
+    info = run_json([BENCH, "data", "615000", "32", data_big])
+    mb = info["bytes"] / 1e6
+    h = [run_json([BENCH, "hash", data_big]) for _ in range(a.reps)]
+    sums = [timed(["sha256sum", data_big]) for _ in range(a.reps)]
+    file_gb = median([x["file_hash_gb_s"] for x in h])
+    raw_gb = median([x["sha2_in_memory_gb_s"] for x in h])
+    content_gb = median([x["content_hash_gb_s"] for x in h])
+    sum_gb = info["bytes"] / 1e9 / median(sums)
+    report(f"   {mb:.0f} MB Parquet file: file hash {file_gb:.2f} GB/s; sha2 on the same bytes in memory {raw_gb:.2f} GB/s; ratio {file_gb / raw_gb:.2f}")
+    report(f"   coreutils sha256sum on the file: {sum_gb:.2f} GB/s (tabcard file hash / sha256sum = {file_gb / sum_gb:.2f}x)")
+    report(f"   logical content hash: {content_gb:.2f} GB/s of file bytes = {content_gb / file_gb:.2f} of the file hash's speed")
+    ld = [run_json([BENCH, "load", data_big]) for _ in range(a.reps)]
+    report(f"   Parquet -> table {median([x['parquet_to_table_mb_s'] for x in ld]):.0f} MB/s; table -> standardised f32 matrix {median([x['table_to_matrix_mb_s'] for x in ld]):.0f} MB/s; end to end {median([x['parquet_to_matrix_mb_s'] for x in ld]):.0f} MB/s of matrix")
+
+    report("\n4. scale: one epoch at 1,000,000 rows x 64 features, reference MLP 64-256-256-1")
+    s = run_json([BENCH, "scale", "1000000", "64"])
+    report(f"   engine: {s['samples_per_second']:,.0f} samples/s, {s['seconds']:.1f} s; peak RSS {s['peak_rss_mb']:.0f} MB = {s['rss_over_matrix_plus_model']:.2f} x (f32 matrix {s['matrix_mb']:.0f} MB + model {s['model_mb']:.2f} MB)")
+    data_scale = os.path.join(w, "synthetic-1m-x64.parquet")
+    run_json([BENCH, "data", "1000000", "64", data_scale])
+    scale_manifest = os.path.join(w, "scale.toml")
+    manifest(scale_manifest, data_scale, "[256, 256]", 1, "[1]", 256, 0.1, 0.1)
+    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "1", "--results", os.path.join(w, "scale-results")])
+    train_matrix = 800_000 * 64 * 4
+    report(f"   whole `tabcard train` (read, hash, split, 1 run, test, card): {seconds:.1f} s; peak RSS {rss / 1e6:.0f} MB = {rss / train_matrix:.2f} x the f32 training matrix ({train_matrix / 1e6:.0f} MB, 800,000 rows)")
+
+    with open(os.path.join(w, "summary.txt"), "w") as f:
+        f.write("\n".join(lines) + "\n")
+
+
+def cpu_model():
+    try:
+        with open("/proc/cpuinfo") as f:
+            for line in f:
+                if line.startswith("model name"):
+                    name = line.split(":", 1)[1].strip()
+                    break
+            else:
+                name = "unknown CPU"
+        with open("/proc/cpuinfo") as f:
+            flags = next((l for l in f if l.startswith("flags")), "")
+        extras = [x for x in ("avx2", "avx512f", "sha_ni") if f" {x}" in flags]
+        return f"{name} ({', '.join(extras)})"
+    except OSError:
+        return "unknown CPU"
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,28 @@
+#!/usr/bin/env bash
+# tabcard's benchmark, one reproducible run: builds tabcard and its bench program in release,
+# installs PyTorch (CPU use only), numpy and pyarrow from PyPI into a local virtual environment,
+# then runs tests/bench/driver.py, which times each tabcard measurement and its reference
+# alternately and prints medians, ratios and the share of the single-core matmul peak.
+# PyTorch comparisons are skipped, with a message, when PyPI is unreachable.
+#
+#   bash tests/bench/run.sh            REPS=5 bash tests/bench/run.sh
+#
+# Figures land in target/bench/summary.txt; BENCHMARKS.md records the latest with its machine.
+set -euo pipefail
+cd "$(dirname "$0")/../.."
+work="${BENCH_DIR:-target/bench}"
+mkdir -p "$work"
+work="$(cd "$work" && pwd)"
+cargo build --release --bin tabcard --example bench
+
+venv="${BENCH_VENV:-$work/venv}"
+torch_arg=()
+if [[ -x "$venv/bin/python" ]] && "$venv/bin/python" -c "import torch, numpy, pyarrow" 2>/dev/null; then
+  torch_arg=(--torch "$venv/bin/python")
+elif python3 -m venv "$venv" >/dev/null 2>&1 \
+  && "$venv/bin/pip" install --quiet --disable-pip-version-check torch numpy pyarrow >"$work/pip.log" 2>&1; then
+  torch_arg=(--torch "$venv/bin/python")
+else
+  echo "PyTorch skipped: could not install torch, numpy and pyarrow from PyPI (see $work/pip.log)"
+fi
+python3 tests/bench/driver.py "$work" --reps "${REPS:-3}" "${torch_arg[@]}"
