@@ -7,6 +7,7 @@
 //! bench hash DATA                           file hash and logical content hash vs sha2 on the same bytes
 //! bench load DATA                           Parquet -> table -> standardised f32 training matrix
 //! bench scale ROWS COLS                     one epoch of the reference MLP on an in-memory matrix, peak RSS
+//! bench matmul                              gemm's single-threaded rate on the reference MLP's products
 //! ```
 
 use std::path::Path;
@@ -195,6 +196,27 @@ fn bench_scale(args: &[String]) {
     );
 }
 
+/// gemm's own rate, single-threaded, on the products one training step of the reference MLP
+/// makes (batch 256): forward, weight gradients, input gradients.
+fn bench_matmul() {
+    use tabcard::nn::matmul::{matmul, View};
+    let shapes = [(256usize, 32usize, 256usize, "x W1"), (256, 256, 256, "h W2, h^T dz, dz W2^T"), (32, 256, 256, "x^T dz1"), (1024, 1024, 1024, "1024 cube")];
+    let mut parts = Vec::new();
+    for (m, k, n, what) in shapes {
+        let a: Vec<f32> = (0..m * k).map(|i| (i % 7) as f32 * 0.1).collect();
+        let b: Vec<f32> = (0..k * n).map(|i| (i % 5) as f32 * 0.1).collect();
+        let mut c = vec![0f32; m * n];
+        let reps = (2e9 / (2.0 * (m * n * k) as f64)).max(3.0) as usize;
+        let (best, _) = best_of(5, || {
+            for _ in 0..reps {
+                matmul(&mut c, View::new(&a, m, k), View::new(&b, k, n), false);
+            }
+        });
+        parts.push(format!("\"{m}x{k}x{n} ({what})\": {:.1}", 2.0 * (m * n * k * reps) as f64 / best / 1e9));
+    }
+    println!("{{\"gemm_gflops\": {{{}}}}}", parts.join(", "));
+}
+
 fn main() {
     tabcard::numerics::prepare_process();
     let args: Vec<String> = std::env::args().collect();
@@ -204,6 +226,7 @@ fn main() {
         Some("hash") => bench_hash(&args),
         Some("load") => bench_load(&args),
         Some("scale") => bench_scale(&args),
+        Some("matmul") => bench_matmul(),
         _ => {
             eprintln!("usage: bench data|train|hash|load|scale ... (see tests/bench/bench.rs)");
             std::process::exit(2);

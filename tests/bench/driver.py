@@ -7,6 +7,7 @@ Usage: python driver.py WORKDIR [--reps N] [--torch PYTHON]   (PYTHON: an interp
 import argparse
 import json
 import os
+import shutil
 import statistics
 import subprocess
 import sys
@@ -146,6 +147,8 @@ def main():
     measure_peak()
     measure_peak()
     peak = max(peaks) if peaks else None
+    mm = run_json([BENCH, "matmul"])["gemm_gflops"]
+    report("   gemm crate (tabcard's kernels), single thread: " + "; ".join(f"{k} {v:.0f}" for k, v in mm.items()) + " GFLOP/s")
     if peak:
         report(f"   single-core float32 matmul peak (numpy/torch, 1024x1024, best of 20, measured {len(peaks)} times in this run): {', '.join(f'{p:.0f}' for p in peaks)} GFLOP/s; the highest is used")
         report(f"   reference MLP: {achieved:.1f} GFLOP/s at 6 x {params} parameters per sample = {100 * achieved / peak:.0f}% of the measured single-core peak ({peak:.0f} GFLOP/s; ceiling {peak * 1e9 / (6 * params):,.0f} samples/s)")
@@ -155,15 +158,17 @@ def main():
     report("\n2. sweep, two cores: 8 runs (reference configuration x 8 seeds), 80,000 training rows each")
     sweep_manifest = os.path.join(w, "sweep.toml")
     manifest(sweep_manifest, data32, "[256, 256]", 3, "[1, 2, 3, 4, 5, 6, 7, 8]", 256, 0.1, 0.1)
-    counter = [0]
+
+    def fresh(name):
+        path = os.path.join(w, name)
+        shutil.rmtree(path, ignore_errors=True)
+        return path
 
     def tabcard_sweep():
-        counter[0] += 1
-        return timed([TABCARD, "train", sweep_manifest, "--jobs", "2", "--results", os.path.join(w, f"sweep-results-{counter[0]}")])
+        return timed([TABCARD, "train", sweep_manifest, "--jobs", "2", "--results", fresh("sweep-results")])
 
     def tabcard_one_job():
-        counter[0] += 1
-        return timed([TABCARD, "train", sweep_manifest, "--jobs", "1", "--results", os.path.join(w, f"sweep-results-{counter[0]}")])
+        return timed([TABCARD, "train", sweep_manifest, "--jobs", "1", "--results", fresh("sweep-results")])
 
     if torch_py:
         m, t = alternate(a.reps, tabcard_sweep, lambda: run_json([torch_py, TORCH_SCRIPT, "train", data32, "--threads", "2", "--seeds", "8", "--train-rows", "80000", "--validation-rows", "10000"], env=single)["seconds"])
@@ -200,7 +205,7 @@ def main():
     run_json([BENCH, "data", "1000000", "64", data_scale])
     scale_manifest = os.path.join(w, "scale.toml")
     manifest(scale_manifest, data_scale, "[256, 256]", 1, "[1]", 256, 0.1, 0.1)
-    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "1", "--results", os.path.join(w, "scale-results")])
+    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "1", "--results", fresh("scale-results")])
     train_matrix = 800_000 * 64 * 4
     report(f"   whole `tabcard train` (read, hash, split, 1 run, test, card): {seconds:.1f} s; peak RSS {rss / 1e6:.0f} MB = {rss / train_matrix:.2f} x the f32 training matrix ({train_matrix / 1e6:.0f} MB, 800,000 rows)")
 
