@@ -70,6 +70,7 @@ fn passthrough(col: &Column) -> ArrayRef {
     let n = col.len();
     match &col.values {
         ColumnValues::Float(v) => Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
+        ColumnValues::Float32(v) => Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| f64::from(v[r]))).collect::<Vec<_>>())),
         ColumnValues::Int(v) => Arc::new(Int64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
         ColumnValues::Bool(v) => Arc::new(BooleanArray::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
         ColumnValues::Text { .. } => Arc::new(StringArray::from((0..n).map(|r| col.label(r)).collect::<Vec<_>>())),

@@ -17,8 +17,10 @@ struct Builder {
     name: String,
     source_type: String,
     values: ColumnValues,
+    /// Validity per row, kept only once a null has been seen (empty before).
     valid: Vec<bool>,
     has_null: bool,
+    rows: usize,
     level_index: HashMap<String, u32>,
 }
 
@@ -35,7 +37,8 @@ fn supported(dt: &DataType) -> bool {
 fn empty_values(dt: &DataType) -> ColumnValues {
     use DataType::*;
     match dt {
-        Float16 | Float32 | Float64 => ColumnValues::Float(Vec::new()),
+        Float16 | Float32 => ColumnValues::Float32(Vec::new()),
+        Float64 => ColumnValues::Float(Vec::new()),
         Int8 | Int16 | Int32 | Int64 | UInt8 | UInt16 | UInt32 | UInt64 => ColumnValues::Int(Vec::new()),
         Boolean => ColumnValues::Bool(Vec::new()),
         _ => ColumnValues::Text { codes: Vec::new(), levels: Vec::new() },
@@ -66,10 +69,14 @@ impl Builder {
         let n = array.len();
         let nulls = array.logical_nulls();
         let is_valid = |i: usize| nulls.as_ref().is_none_or(|b| b.is_valid(i));
-        for i in 0..n {
-            let v = is_valid(i);
-            self.has_null |= !v;
-            self.valid.push(v);
+        let first_row = self.rows;
+        self.rows += n;
+        if !self.has_null && nulls.as_ref().is_some_and(|b| b.null_count() > 0) {
+            self.has_null = true;
+            self.valid = vec![true; first_row];
+        }
+        if self.has_null {
+            self.valid.extend((0..n).map(is_valid));
         }
         macro_rules! floats {
             ($t:ty) => {{
@@ -86,7 +93,7 @@ impl Builder {
                     for i in 0..n {
                         let x = if is_valid(i) {
                             i64::try_from(a.value(i)).map_err(|_| {
-                                Error::data(file, Some(&self.name), format!("row {}: value {} does not fit a 64-bit signed integer", self.valid.len() - n + i, a.value(i)))
+                                Error::data(file, Some(&self.name), format!("row {}: value {} does not fit a 64-bit signed integer", first_row + i, a.value(i)))
                             })?
                         } else {
                             0
@@ -99,11 +106,16 @@ impl Builder {
         match array.data_type() {
             DataType::Float16 => {
                 let a = array.as_primitive::<Float16Type>();
-                if let ColumnValues::Float(out) = &mut self.values {
-                    out.extend((0..n).map(|i| if is_valid(i) { f64::from(a.value(i).to_f32()) } else { 0.0 }));
+                if let ColumnValues::Float32(out) = &mut self.values {
+                    out.extend((0..n).map(|i| if is_valid(i) { a.value(i).to_f32() } else { 0.0 }));
                 }
             }
-            DataType::Float32 => floats!(Float32Type),
+            DataType::Float32 => {
+                let a = array.as_primitive::<Float32Type>();
+                if let ColumnValues::Float32(out) = &mut self.values {
+                    out.extend((0..n).map(|i| if is_valid(i) { a.value(i) } else { 0.0 }));
+                }
+            }
             DataType::Float64 => floats!(Float64Type),
             DataType::Int8 => ints!(Int8Type),
             DataType::Int16 => ints!(Int16Type),
@@ -162,15 +174,17 @@ impl Builder {
     }
 }
 
-/// Reads every column of a Parquet file.
+/// Reads every column of a Parquet file, straight from the file: the encoded bytes are never
+/// held in memory beside the decoded table.
 pub fn read_table(path: &Path) -> Result<Table> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "open the data file", e))?;
-    read_from(bytes::Bytes::from(bytes), path)
+    let open = || std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e));
+    read_from(&open, path)
 }
 
 /// Reads a Parquet file held in memory; `name` is only used in error messages.
 pub fn read_table_from_bytes(bytes: Vec<u8>, name: &Path) -> Result<Table> {
-    read_from(bytes::Bytes::from(bytes), name)
+    let bytes = bytes::Bytes::from(bytes);
+    read_from(&|| Ok(bytes.clone()), name)
 }
 
 /// Checks every dictionary page's declared value count against its size before the Arrow reader
@@ -211,8 +225,8 @@ fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file:
 
 /// Reads a table; a panic inside the parquet crate on hostile input is caught here and reported
 /// as a corrupt file, never allowed to end the process.
-fn read_from<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path: &Path) -> Result<Table> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode(file, path))) {
+fn read_from<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode(open, path))) {
         Ok(result) => result,
         Err(panic) => {
             let detail = panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
@@ -221,11 +235,13 @@ fn read_from<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, p
     }
 }
 
-fn decode<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path: &Path) -> Result<Table> {
+/// `open` gives a fresh reader over the same bytes each time it is called (one pass checks the
+/// dictionary pages, one decodes).
+fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
     let not_parquet = |e: parquet::errors::ParquetError| {
         Error::data(path, None, format!("not a readable Parquet file: {e}"))
     };
-    let builder = ParquetRecordBatchReaderBuilder::try_new(file.clone()).map_err(not_parquet)?;
+    let builder = ParquetRecordBatchReaderBuilder::try_new(open()?).map_err(not_parquet)?;
     // The parquet crate asserts (panics) on negative column offsets or sizes; reject them first.
     for (g, group) in builder.metadata().row_groups().iter().enumerate() {
         for column in group.columns() {
@@ -237,7 +253,7 @@ fn decode<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path
             }
         }
     }
-    check_dictionary_pages(file, path)?;
+    check_dictionary_pages(open()?, path)?;
     let schema = builder.schema().clone();
     let mut columns = Vec::with_capacity(schema.fields().len());
     for field in schema.fields() {
@@ -257,6 +273,7 @@ fn decode<R: parquet::file::reader::ChunkReader + Clone + 'static>(file: R, path
             values: empty_values(field.data_type()),
             valid: Vec::new(),
             has_null: false,
+            rows: 0,
             level_index: HashMap::new(),
         });
     }

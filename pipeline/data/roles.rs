@@ -97,12 +97,12 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
         if col.null_count() == col.len() {
             return Err(Error::data(file, Some(&name), "has no values (every row is null); drop it or fill it"));
         }
-        if let ColumnValues::Float(values) = &col.values {
-            if let Some(row) = (0..values.len()).find(|&r| col.is_valid(r) && !values[r].is_finite()) {
+        if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_)) {
+            if let Some((row, value)) = (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| !x.is_finite()).map(|x| (r, x))) {
                 return Err(Error::data(
                     file,
                     Some(&name),
-                    format!("row {row} holds {}; tabcard needs finite numbers (store missing values as nulls)", values[row]),
+                    format!("row {row} holds {value}; tabcard needs finite numbers (store missing values as nulls)"),
                 ));
             }
         }
@@ -136,6 +136,7 @@ fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
         Task::Regression => {
             let values: Vec<f64> = match &col.values {
                 ColumnValues::Float(v) => v.clone(),
+                ColumnValues::Float32(v) => v.iter().map(|&x| f64::from(x)).collect(),
                 ColumnValues::Int(v) => v.iter().map(|&x| x as f64).collect(),
                 _ => return Err(err(format!("has type {} but a regression target must be numeric", col.source_type))),
             };
@@ -148,7 +149,7 @@ fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
             Ok(Target::Values(values))
         }
         task => {
-            if let ColumnValues::Float(_) = col.values {
+            if let ColumnValues::Float(_) | ColumnValues::Float32(_) = col.values {
                 return Err(err(format!(
                     "has type {} but a class label must be a string, integer or boolean (or use task = \"regression\")",
                     col.source_type

@@ -10,6 +10,9 @@ use crate::fingerprint::hex;
 #[derive(Debug, Clone, PartialEq)]
 pub enum ColumnValues {
     Float(Vec<f64>),
+    /// Float32 (and Float16) source columns, kept at their own width: a wide table of f32
+    /// features then costs half the memory. Everywhere else they read as their exact f64 value.
+    Float32(Vec<f32>),
     Int(Vec<i64>),
     Bool(Vec<bool>),
     /// Strings as codes into `levels`, levels numbered in order of first appearance.
@@ -32,6 +35,7 @@ impl Column {
     pub fn len(&self) -> usize {
         match &self.values {
             ColumnValues::Float(v) => v.len(),
+            ColumnValues::Float32(v) => v.len(),
             ColumnValues::Int(v) => v.len(),
             ColumnValues::Bool(v) => v.len(),
             ColumnValues::Text { codes, .. } => codes.len(),
@@ -57,6 +61,7 @@ impl Column {
         }
         match &self.values {
             ColumnValues::Float(v) => Some(v[row]),
+            ColumnValues::Float32(v) => Some(f64::from(v[row])),
             ColumnValues::Int(v) => Some(v[row] as f64),
             ColumnValues::Bool(v) => Some(v[row] as u8 as f64),
             ColumnValues::Text { .. } => None,
@@ -70,6 +75,7 @@ impl Column {
         }
         Some(match &self.values {
             ColumnValues::Float(v) => format!("{}", v[row]),
+            ColumnValues::Float32(v) => format!("{}", f64::from(v[row])),
             ColumnValues::Int(v) => v[row].to_string(),
             ColumnValues::Bool(v) => v[row].to_string(),
             ColumnValues::Text { codes, levels } => levels[codes[row] as usize].clone(),
@@ -78,7 +84,7 @@ impl Column {
 
     pub fn kind_name(&self) -> &'static str {
         match &self.values {
-            ColumnValues::Float(_) => "float",
+            ColumnValues::Float(_) | ColumnValues::Float32(_) => "float",
             ColumnValues::Int(_) => "integer",
             ColumnValues::Bool(_) => "boolean",
             ColumnValues::Text { .. } => "string",
@@ -136,6 +142,15 @@ impl Table {
                     for chunk in v.chunks(4096) {
                         for x in chunk {
                             buf.extend_from_slice(&x.to_le_bytes());
+                        }
+                        flush(&mut h, &mut buf, true);
+                    }
+                }
+                // Hashed as the f64 values they read as: the hash does not depend on storage.
+                ColumnValues::Float32(v) => {
+                    for chunk in v.chunks(4096) {
+                        for x in chunk {
+                            buf.extend_from_slice(&f64::from(*x).to_le_bytes());
                         }
                         flush(&mut h, &mut buf, true);
                     }
