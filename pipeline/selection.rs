@@ -9,7 +9,7 @@ use std::collections::BTreeMap;
 
 use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
-use crate::metrics::bootstrap::{percentile_interval, Interval};
+use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::registry::{better, direction, Direction};
@@ -207,16 +207,10 @@ pub fn evaluate_test(
             groups.push(GroupMetrics { column: g.name.clone(), level, rows: idx.len(), metrics: head.metrics(&o, &y) });
         }
     }
-    let mut intervals = BTreeMap::new();
-    for name in metrics.keys() {
-        let interval = percentile_interval(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-            let (sub_out, sub_y) = subset(idx);
-            head.metrics(&sub_out, &sub_y).get(name).copied().flatten()
-        });
-        if let Some(i) = interval {
-            intervals.insert(name.clone(), i);
-        }
-    }
+    let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
+        let (sub_out, sub_y) = subset(idx);
+        head.metrics(&sub_out, &sub_y)
+    });
     let (reliability, confusion, per_class_report) = match test_y {
         Labels::Classes { rows, classes } => {
             let predicted = predicted_classes(&outputs, *classes);

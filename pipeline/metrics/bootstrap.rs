@@ -1,5 +1,8 @@
 //! Seeded percentile-bootstrap confidence intervals for any metric of a row sample.
 
+use std::collections::BTreeMap;
+
+use super::MetricSet;
 use crate::rng::{Purpose, Stream};
 
 /// A point estimate with a two-sided percentile interval.
@@ -22,43 +25,45 @@ pub fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
 }
 
 /// Resamples `n` rows with replacement `resamples` times from the stream `(seed, bootstrap)` and
-/// evaluates `metric` on each index sample. `None` when the metric is undefined on the full sample
-/// or on every resample.
-pub fn percentile_interval(
+/// evaluates every metric of `metrics` on each index sample, in one pass: each resample is drawn
+/// and scored once, whatever the number of metrics. A metric gets an interval when it is defined
+/// on the full sample and on at least one resample (only those resamples enter its interval).
+pub fn percentile_intervals(
     n: usize,
     resamples: usize,
     level: f64,
     seed: u64,
-    metric: impl Fn(&[usize]) -> Option<f64>,
-) -> Option<Interval> {
+    metrics: impl Fn(&[usize]) -> MetricSet,
+) -> BTreeMap<String, Interval> {
     let all: Vec<usize> = (0..n).collect();
-    let estimate = metric(&all)?;
-    if n == 0 || resamples == 0 {
-        return None;
+    let estimates: Vec<(String, f64)> = metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect();
+    let mut out = BTreeMap::new();
+    if n == 0 || resamples == 0 || estimates.is_empty() {
+        return out;
     }
     let mut stream = Stream::new(seed, Purpose::Bootstrap);
-    let mut values = Vec::with_capacity(resamples);
+    let mut values: Vec<Vec<f64>> = vec![Vec::with_capacity(resamples); estimates.len()];
     let mut idx = vec![0usize; n];
     for _ in 0..resamples {
         for slot in idx.iter_mut() {
             *slot = stream.below(n as u64) as usize;
         }
-        if let Some(v) = metric(&idx) {
-            values.push(v);
+        let sample = metrics(&idx);
+        for ((name, _), v) in estimates.iter().zip(values.iter_mut()) {
+            if let Some(Some(x)) = sample.get(name) {
+                v.push(*x);
+            }
         }
     }
-    if values.is_empty() {
-        return None;
-    }
-    values.sort_by(f64::total_cmp);
     let tail = (1.0 - level) / 2.0;
-    Some(Interval {
-        estimate,
-        lower: quantile_sorted(&values, tail),
-        upper: quantile_sorted(&values, 1.0 - tail),
-        level,
-        resamples: values.len(),
-    })
+    for ((name, estimate), mut v) in estimates.into_iter().zip(values) {
+        if v.is_empty() {
+            continue;
+        }
+        v.sort_by(f64::total_cmp);
+        out.insert(name, Interval { estimate, lower: quantile_sorted(&v, tail), upper: quantile_sorted(&v, 1.0 - tail), level, resamples: v.len() });
+    }
+    out
 }
 
 #[cfg(test)]
@@ -68,9 +73,9 @@ mod tests {
     #[test]
     fn interval_of_a_mean_covers_it_and_is_reproducible() {
         let data: Vec<f64> = (0..200).map(|i| (i % 10) as f64).collect();
-        let mean = |idx: &[usize]| Some(idx.iter().map(|&i| data[i]).sum::<f64>() / idx.len() as f64);
-        let a = percentile_interval(data.len(), 500, 0.95, 9, mean).unwrap();
-        let b = percentile_interval(data.len(), 500, 0.95, 9, mean).unwrap();
+        let mean = |idx: &[usize]| MetricSet::from([("mean".to_string(), Some(idx.iter().map(|&i| data[i]).sum::<f64>() / idx.len() as f64))]);
+        let a = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
+        let b = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
         assert_eq!(a, b);
         assert!(a.lower < 4.5 && 4.5 < a.upper);
         // Standard error of the mean is sd/sqrt(n) = 2.87/14.1 ~ 0.20; a 95% interval is ~ +-0.4.
