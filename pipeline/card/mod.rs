@@ -393,7 +393,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         limitations,
         environment: vec![
             Row { cells: vec!["tabcard".into(), md(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))] },
-            Row { cells: vec!["candle".into(), md(&format!("{} ({})", environment.candle_version, environment.kernel_features))] },
+            Row { cells: vec!["numerical kernels".into(), md(&format!("candle {}; {}", environment.candle_version, environment.kernel_features))] },
             Row { cells: vec!["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))] },
             Row { cells: vec!["CPU features".into(), md(&environment.cpu_features.join(" "))] },
             Row { cells: vec!["data caches (bytes)".into(), environment.cache_bytes.iter().map(|c| c.to_string()).collect::<Vec<_>>().join(", ")] },
