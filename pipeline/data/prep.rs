@@ -11,7 +11,6 @@ use std::path::Path;
 use super::roles::Feature;
 use super::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
-use crate::metrics::bootstrap::quantile_sorted;
 
 /// A dense row-major f32 matrix.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -87,6 +86,21 @@ pub struct TransformReport {
     pub out_of_range: Vec<bool>,
 }
 
+/// Minimum, median (linear interpolation, as `quantile_sorted(_, 0.5)` on the sorted values) and
+/// maximum of non-empty `values`, by selection instead of a full sort; reorders `values`.
+fn min_median_max(values: &mut [f64]) -> (f64, f64, f64) {
+    // total_cmp, as the sort did: -0.0 orders below 0.0.
+    let min = values.iter().copied().min_by(f64::total_cmp).unwrap_or(f64::NAN);
+    let max = values.iter().copied().max_by(f64::total_cmp).unwrap_or(f64::NAN);
+    let pos = 0.5 * (values.len() - 1) as f64;
+    let lo = pos.floor() as usize;
+    let (_, &mut below, above) = values.select_nth_unstable_by(lo, f64::total_cmp);
+    let next = if pos > lo as f64 { above.iter().copied().min_by(f64::total_cmp).unwrap_or(below) } else { below };
+    // The same arithmetic as quantile_sorted, so even -0.0 comes out as it did.
+    let median = below + (next - below) * (pos - lo as f64);
+    (min, median, max)
+}
+
 fn observed(col: &Column, rows: &[usize]) -> Vec<f64> {
     rows.iter().filter_map(|&r| col.number(r)).collect()
 }
@@ -127,16 +141,16 @@ impl Preprocessor {
                 let n = values.len() as f64;
                 let mean = values.iter().sum::<f64>() / n;
                 let var = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n;
-                values.sort_by(f64::total_cmp);
                 let std = var.sqrt();
+                let (train_min, impute, train_max) = min_median_max(&mut values);
                 inputs.push(InputEncoding::Numeric {
                     name: f.name.clone(),
-                    impute: quantile_sorted(&values, 0.5),
+                    impute,
                     mean,
                     scale: if std > 0.0 && std.is_finite() { std } else { 1.0 },
                     indicator: has_missing,
-                    train_min: values[0],
-                    train_max: values[values.len() - 1],
+                    train_min,
+                    train_max,
                 });
             }
         }
@@ -165,71 +179,111 @@ impl Preprocessor {
         self.inputs.iter().map(InputEncoding::width).sum()
     }
 
-    /// Encodes rows `rows` of `table` (any table with the training columns, by name).
+    /// Encodes rows `rows` of `table` (any table with the training columns, by name). Rows are
+    /// filled in blocks, every column of a block before the next block, so the writes into the
+    /// row-major matrix stay in cache.
     pub fn transform(&self, table: &Table, rows: &[usize], file: &Path) -> Result<(Matrix, TransformReport)> {
         let width = self.width();
         let mut m = Matrix::zeros(rows.len(), width);
         let mut report = TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() };
+        let mut columns = Vec::with_capacity(self.inputs.len());
         let mut offset = 0;
         for enc in &self.inputs {
             let name = enc.name();
             let col = table.column(name).ok_or_else(|| Error::data(file, Some(name), "is missing: the model was trained with it"))?;
-            match enc {
-                InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
+            let lookup = match enc {
+                InputEncoding::Numeric { .. } => {
                     if col.is_text() {
                         return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on numbers", col.source_type)));
                     }
-                    for (i, &r) in rows.iter().enumerate() {
-                        let (value, missing) = match col.number(r) {
-                            Some(v) if v.is_finite() => (v, false),
-                            Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
-                            None => (*impute, true),
-                        };
-                        if !missing && (value < *train_min || value > *train_max) {
-                            report.out_of_range[i] = true;
-                        }
-                        m.data[i * width + offset] = ((value - mean) / scale) as f32;
-                        if *indicator {
-                            m.data[i * width + offset + 1] = missing as u8 as f32;
-                        }
-                    }
+                    None
                 }
-                InputEncoding::Categorical { levels, impute, indicator, .. } => {
+                InputEncoding::Categorical { levels, .. } => {
                     let index: HashMap<&str, usize> = levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect();
-                    let unseen_slot = levels.len();
                     // Text columns map codes once; other columns render each value as a label.
                     let code_slots: Option<Vec<usize>> = match &col.values {
-                        ColumnValues::Text { levels: own, .. } => {
-                            Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(unseen_slot)).collect())
-                        }
+                        ColumnValues::Text { levels: own, .. } => Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(levels.len())).collect()),
                         _ => None,
                     };
-                    let mut unseen = 0usize;
-                    for (i, &r) in rows.iter().enumerate() {
-                        let slot = if !col.is_valid(r) {
-                            if *indicator {
-                                m.data[i * width + offset + levels.len() + 1] = 1.0;
+                    Some((index, code_slots))
+                }
+            };
+            columns.push((enc, col, offset, lookup, 0usize));
+            offset += enc.width();
+        }
+        const BLOCK: usize = 2048;
+        for start in (0..rows.len()).step_by(BLOCK) {
+            let end = (start + BLOCK).min(rows.len());
+            for (enc, col, offset, lookup, unseen) in columns.iter_mut() {
+                let offset = *offset;
+                match (enc, lookup) {
+                    (InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, name }, _) => {
+                        for (i, &r) in rows.iter().enumerate().take(end).skip(start) {
+                            let (value, missing) = match col.number(r) {
+                                Some(v) if v.is_finite() => (v, false),
+                                Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
+                                None => (*impute, true),
+                            };
+                            if !missing && (value < *train_min || value > *train_max) {
+                                report.out_of_range[i] = true;
                             }
-                            *impute
-                        } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
-                            slots[codes[r] as usize]
-                        } else {
-                            let label = col.label(r).unwrap_or_default();
-                            index.get(label.as_str()).copied().unwrap_or(unseen_slot)
-                        };
-                        if slot == unseen_slot {
-                            unseen += 1;
+                            m.data[i * width + offset] = ((value - mean) / scale) as f32;
+                            if *indicator {
+                                m.data[i * width + offset + 1] = missing as u8 as f32;
+                            }
                         }
-                        m.data[i * width + offset + slot] = 1.0;
                     }
-                    if unseen > 0 {
-                        report.unseen_levels.insert(name.to_string(), unseen);
+                    (InputEncoding::Categorical { levels, impute, indicator, .. }, Some((index, code_slots))) => {
+                        let unseen_slot = levels.len();
+                        for (i, &r) in rows.iter().enumerate().take(end).skip(start) {
+                            let slot = if !col.is_valid(r) {
+                                if *indicator {
+                                    m.data[i * width + offset + levels.len() + 1] = 1.0;
+                                }
+                                *impute
+                            } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&*code_slots, &col.values) {
+                                slots[codes[r] as usize]
+                            } else {
+                                let label = col.label(r).unwrap_or_default();
+                                index.get(label.as_str()).copied().unwrap_or(unseen_slot)
+                            };
+                            if slot == unseen_slot {
+                                *unseen += 1;
+                            }
+                            m.data[i * width + offset + slot] = 1.0;
+                        }
                     }
+                    // A categorical encoding always has its lookup (built above).
+                    (InputEncoding::Categorical { .. }, None) => {}
                 }
             }
-            offset += enc.width();
+        }
+        for (enc, _, _, _, unseen) in &columns {
+            if *unseen > 0 {
+                report.unseen_levels.insert(enc.name().to_string(), *unseen);
+            }
         }
         report.out_of_range_rows = report.out_of_range.iter().filter(|&&x| x).count();
         Ok((m, report))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::metrics::bootstrap::quantile_sorted;
+
+    #[test]
+    fn selection_gives_the_sorted_order_statistics() {
+        let mut s = crate::rng::Stream::new(3, crate::rng::Purpose::DemoData);
+        for n in [1usize, 2, 3, 10, 11, 1000, 1001] {
+            let values: Vec<f64> = (0..n).map(|i| match i % 7 { 0 => 0.5, 3 => -0.0, 5 => 0.0, _ => s.normal() }).collect();
+            let mut sorted = values.clone();
+            sorted.sort_by(f64::total_cmp);
+            let mut work = values.clone();
+            let (min, median, max) = min_median_max(&mut work);
+            let want = (sorted[0].to_bits(), quantile_sorted(&sorted, 0.5).to_bits(), sorted[n - 1].to_bits());
+            assert_eq!((min.to_bits(), median.to_bits(), max.to_bits()), want, "n = {n}");
+        }
     }
 }
