@@ -21,36 +21,18 @@ static PIN: Once = Once::new();
 
 /// Prepares the process for training, once: candle's kernels single-threaded (its matrix multiply
 /// and element-wise pool read these variables), so that parallelism comes only from running
-/// several runs at once; and glibc's allocator told to keep freed blocks instead of returning them
-/// to the OS, because candle allocates a fresh buffer per tensor operation and page-faulting them
-/// back in cost half of all training time in a profile. Called by the binary before any thread
-/// starts and by the trainer; idempotent. Neither setting changes a computed bit.
+/// several runs at once. Called by the binary before any thread starts and by the trainer;
+/// idempotent; changes no computed bit. (glibc's allocator keeps its defaults: the training
+/// engine allocates its buffers once per run, so the per-operation allocations that once made
+/// freed memory worth keeping are gone.)
 pub fn prepare_process() {
     PIN.call_once(|| {
-        keep_freed_memory();
         // SAFETY-relevant note: std's environment functions take a process-wide lock, and this runs
         // once, before the first candle kernel reads the variables.
         std::env::set_var("RAYON_NUM_THREADS", "1");
         std::env::set_var("CANDLE_NUM_THREADS", "1");
     });
 }
-
-#[cfg(all(target_os = "linux", target_env = "gnu"))]
-fn keep_freed_memory() {
-    extern "C" {
-        fn mallopt(param: std::ffi::c_int, value: std::ffi::c_int) -> std::ffi::c_int;
-    }
-    const M_TRIM_THRESHOLD: std::ffi::c_int = -1;
-    const M_MMAP_THRESHOLD: std::ffi::c_int = -3;
-    // SAFETY: mallopt only adjusts allocator parameters; called once, before training starts.
-    unsafe {
-        mallopt(M_MMAP_THRESHOLD, 64 << 20);
-        mallopt(M_TRIM_THRESHOLD, 256 << 20);
-    }
-}
-
-#[cfg(not(all(target_os = "linux", target_env = "gnu")))]
-fn keep_freed_memory() {}
 
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct NumericsFingerprint {

@@ -65,10 +65,15 @@ pub const RARE_LEVEL_ROWS: usize = 10;
 pub const MOSTLY_MISSING_SHARE: f64 = 0.5;
 
 pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
+    values.sort_by(f64::total_cmp);
+    numeric_stats_sorted(&values)
+}
+
+/// [`numeric_stats`] of values already sorted by `f64::total_cmp` (sums run in that order).
+fn numeric_stats_sorted(values: &[f64]) -> Option<NumericStats> {
     if values.is_empty() {
         return None;
     }
-    values.sort_by(f64::total_cmp);
     let n = values.len() as f64;
     let mean = values.iter().sum::<f64>() / n;
     let var = if values.len() > 1 { values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0) } else { 0.0 };
@@ -77,9 +82,9 @@ pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
         max: values[values.len() - 1],
         mean,
         std: var.sqrt(),
-        q25: quantile_sorted(&values, 0.25),
-        median: quantile_sorted(&values, 0.5),
-        q75: quantile_sorted(&values, 0.75),
+        q25: quantile_sorted(values, 0.25),
+        median: quantile_sorted(values, 0.5),
+        q75: quantile_sorted(values, 0.75),
     })
 }
 
@@ -117,11 +122,11 @@ fn summarise_column(col: &Column, rows: usize, roles: &Roles, categorical: bool)
         let rare = levels.iter().filter(|l| l.count < RARE_LEVEL_ROWS).count();
         (None, levels.iter().take(5).cloned().collect(), levels.len(), rare)
     } else {
-        let values: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
-        let mut sorted = values.clone();
+        let mut sorted: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
         sorted.sort_by(f64::total_cmp);
-        sorted.dedup();
-        (numeric_stats(values), Vec::new(), sorted.len(), 0)
+        // Distinct values as `dedup` counts them (consecutive `==` runs), without a second copy.
+        let distinct = if sorted.is_empty() { 0 } else { 1 + sorted.windows(2).filter(|w| w[0] != w[1]).count() };
+        (numeric_stats_sorted(&sorted), Vec::new(), distinct, 0)
     };
     ColumnSummary {
         name: col.name.clone(),
