@@ -54,6 +54,20 @@ struct Dense<T> {
     out: Vec<T>,
 }
 
+impl<T: Real> Dense<T> {
+    /// bias + input W for the first `rows` rows of `input`, into `pre` (hidden layers, before
+    /// batch norm and activation) or `out` (the head): the bias fills the rows and the product is
+    /// accumulated onto it inside the gemm call.
+    fn affine(&mut self, input: &[T], rows: usize) {
+        let (n_in, n_out) = (self.inputs, self.outputs);
+        let target = if self.hidden { &mut self.pre } else { &mut self.out };
+        for row in target[..rows * n_out].chunks_exact_mut(n_out) {
+            row.copy_from_slice(&self.bias);
+        }
+        matmul(&mut target[..rows * n_out], View::new(&input[..rows * n_in], rows, n_in), View::new(&self.weight, n_in, n_out), true);
+    }
+}
+
 pub struct Engine<T> {
     activation: Activation,
     dropout: f64,
@@ -216,11 +230,7 @@ impl<T: Real> Engine<T> {
                 let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
                 let layer = &mut rest[0];
                 let (n_in, n_out) = (layer.inputs, layer.outputs);
-                let target = if layer.hidden { &mut layer.pre } else { &mut layer.out };
-                for row in target[..b * n_out].chunks_exact_mut(n_out) {
-                    row.copy_from_slice(&layer.bias);
-                }
-                matmul(&mut target[..b * n_out], View::new(&input[..b * n_in], b, n_in), View::new(&layer.weight, n_in, n_out), true);
+                layer.affine(input, b);
                 if !layer.hidden {
                     continue;
                 }
@@ -284,11 +294,7 @@ impl<T: Real> Engine<T> {
             let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
             let layer = &mut rest[0];
             let (n_in, n_out) = (layer.inputs, layer.outputs);
-            let target = if layer.hidden { &mut layer.pre } else { &mut layer.out };
-            for row in target[..b * n_out].chunks_exact_mut(n_out) {
-                row.copy_from_slice(&layer.bias);
-            }
-            matmul(&mut target[..b * n_out], View::new(&input[..b * n_in], b, n_in), View::new(&layer.weight, n_in, n_out), true);
+            layer.affine(input, b);
             if !layer.hidden {
                 continue;
             }
