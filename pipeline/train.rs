@@ -10,7 +10,7 @@ use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
 use crate::manifest::{RegressionLoss, Task};
 use crate::metrics::{classification, regression, MetricSet};
-use crate::nn::engine::Engine;
+use crate::nn::engine::{Engine, Values};
 use crate::nn::loss::{objective_and_gradient, Objective};
 use crate::nn::mlp::{Mlp, NamedTensor};
 use crate::nn::optim::{learning_rate, Optimizer};
@@ -274,7 +274,8 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
     let steps_per_epoch = n.div_ceil(batch);
     let mut order: Vec<usize> = (0..n).collect();
     let mut history = Vec::with_capacity(t.epochs);
-    let mut best: Option<(f64, usize, Vec<(String, Vec<T>)>)> = None;
+    // (validation loss, epoch, values) of the best epoch so far.
+    let mut best: Option<(f64, usize, Values<T>)> = None;
     let mut since_best = 0usize;
     let mut stopped_early = false;
     let mut step = 0usize;

@@ -93,6 +93,9 @@ fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) ->
     Ok(v)
 }
 
+/// Named host values of every parameter and running statistic ([`Engine::values`]).
+pub type Values<T> = Vec<(String, Vec<T>)>;
+
 /// Rows per block in evaluation mode. Fixed, so that a row's outputs never depend on how many
 /// rows were scored with it (training-time validation and `predict` give the same bits).
 pub const EVAL_BLOCK: usize = 256;
@@ -181,7 +184,7 @@ impl<T: Real> Engine<T> {
     }
 
     /// Every parameter and running statistic under the model's names, for [`Mlp::set_host_values`].
-    pub fn values(&self) -> Vec<(String, Vec<T>)> {
+    pub fn values(&self) -> Values<T> {
         let mut out = Vec::new();
         for l in &self.layers {
             out.push((format!("{}.weight", l.name), l.weight.clone()));
@@ -258,7 +261,7 @@ impl<T: Real> Engine<T> {
     }
 
     /// Every parameter's gradient from the last backward pass, under the model's names.
-    pub fn gradients(&self) -> Vec<(String, Vec<T>)> {
+    pub fn gradients(&self) -> Values<T> {
         let mut out = Vec::new();
         for l in &self.layers {
             out.push((format!("{}.weight", l.name), l.grad_weight.clone()));
