@@ -1,10 +1,11 @@
 //! The training engine: a network's parameters, gradients and per-layer activations in host
 //! buffers sized once per run, with the training-mode forward pass and the backward pass written
 //! out by hand over `gemm` (bias and batch-norm statistics fused into single passes, dropout and
-//! activation derivatives applied in place). A training step allocates nothing and computes
-//! single-threaded. candle holds the model for evaluation and scoring: the engine starts from a
-//! candle [`Mlp`]'s values and writes its values back into it. `tests/training.rs` checks the
-//! engine's gradients against candle's autograd and against finite differences.
+//! activation derivatives applied in place), and the evaluation-mode pass that validation and
+//! `predict` use. A training step allocates nothing and computes single-threaded. candle's
+//! [`Mlp`] stays the model's definition and stored form: the engine starts from its values and
+//! writes its values back into it. `tests/training.rs` checks the engine's gradients and outputs
+//! against candle's autograd and against finite differences.
 
 use super::layers::{BN_EPS, BN_MOMENTUM};
 use super::matmul::{matmul, View};
@@ -65,6 +66,19 @@ impl<T: Real> Dense<T> {
             row.copy_from_slice(&self.bias);
         }
         matmul(&mut target[..rows * n_out], View::new(&input[..rows * n_in], rows, n_in), View::new(&self.weight, n_in, n_out), true);
+    }
+
+    /// (name, value, gradient) of each trainable parameter under the model's names.
+    fn parameters(&self) -> Vec<(String, &[T], &[T])> {
+        let mut out = vec![
+            (format!("{}.weight", self.name), &self.weight[..], &self.grad_weight[..]),
+            (format!("{}.bias", self.name), &self.bias[..], &self.grad_bias[..]),
+        ];
+        if let Some(n) = &self.norm {
+            out.push((format!("{}.bn.gamma", self.name), &n.gamma[..], &n.grad_gamma[..]));
+            out.push((format!("{}.bn.beta", self.name), &n.beta[..], &n.grad_beta[..]));
+        }
+        out
     }
 }
 
@@ -187,11 +201,8 @@ impl<T: Real> Engine<T> {
     pub fn values(&self) -> Values<T> {
         let mut out = Vec::new();
         for l in &self.layers {
-            out.push((format!("{}.weight", l.name), l.weight.clone()));
-            out.push((format!("{}.bias", l.name), l.bias.clone()));
+            out.extend(l.parameters().into_iter().map(|(name, value, _)| (name, value.to_vec())));
             if let Some(n) = &l.norm {
-                out.push((format!("{}.bn.gamma", l.name), n.gamma.clone()));
-                out.push((format!("{}.bn.beta", l.name), n.beta.clone()));
                 out.push((format!("{}.bn.running_mean", l.name), n.running_mean.clone()));
                 out.push((format!("{}.bn.running_var", l.name), n.running_var.clone()));
             }
@@ -223,10 +234,13 @@ impl<T: Real> Engine<T> {
         let outputs = self.layers.last().map_or(0, |l| l.outputs);
         let mut result = Vec::with_capacity(x.rows * outputs);
         let d = self.inputs;
+        let eps = T::narrow(BN_EPS);
+        // sqrt(running_var + eps) per batch-norm layer, once per call rather than per block.
+        let running_std: Vec<Option<Vec<T>>> = self.layers.iter().map(|l| l.norm.as_ref().map(|n| n.running_var.iter().map(|&v| (v + eps).sqrt()).collect())).collect();
         for start in (0..x.rows).step_by(EVAL_BLOCK) {
             let b = (x.rows - start).min(EVAL_BLOCK);
             for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
-                *v = T::from_f64(f64::from(s));
+                *v = T::narrow(f64::from(s));
             }
             for l in 0..self.layers.len() {
                 let (before, rest) = self.layers.split_at_mut(l);
@@ -237,9 +251,7 @@ impl<T: Real> Engine<T> {
                 if !layer.hidden {
                     continue;
                 }
-                if let Some(norm) = &layer.norm {
-                    let eps = T::from_f64(BN_EPS);
-                    let std: Vec<T> = norm.running_var.iter().map(|&v| (v + eps).sqrt()).collect();
+                if let (Some(norm), Some(std)) = (&layer.norm, &running_std[l]) {
                     for row in layer.pre[..b * n_out].chunks_exact_mut(n_out) {
                         for j in 0..n_out {
                             row[j] = (row[j] - norm.running_mean[j]) / std[j] * norm.gamma[j] + norm.beta[j];
@@ -254,7 +266,7 @@ impl<T: Real> Engine<T> {
                 }
             }
             if let Some(head) = self.layers.last() {
-                result.extend(head.out[..b * outputs].iter().map(|v| v.to_f64() as f32));
+                result.extend(head.out[..b * outputs].iter().map(|v| v.widen() as f32));
             }
         }
         result
@@ -262,16 +274,7 @@ impl<T: Real> Engine<T> {
 
     /// Every parameter's gradient from the last backward pass, under the model's names.
     pub fn gradients(&self) -> Values<T> {
-        let mut out = Vec::new();
-        for l in &self.layers {
-            out.push((format!("{}.weight", l.name), l.grad_weight.clone()));
-            out.push((format!("{}.bias", l.name), l.grad_bias.clone()));
-            if let Some(n) = &l.norm {
-                out.push((format!("{}.bn.gamma", l.name), n.grad_gamma.clone()));
-                out.push((format!("{}.bn.beta", l.name), n.grad_beta.clone()));
-            }
-        }
-        out
+        self.layers.iter().flat_map(|l| l.parameters().into_iter().map(|(name, _, grad)| (name, grad.to_vec()))).collect()
     }
 
     /// Forward pass in training mode over rows `rows` of `x`: input noise, batch statistics
@@ -283,13 +286,13 @@ impl<T: Real> Engine<T> {
         let d = self.inputs;
         for (dst, &r) in self.input.chunks_exact_mut(d).zip(rows) {
             for (v, &s) in dst.iter_mut().zip(x.row(r)) {
-                *v = T::from_f64(f64::from(s));
+                *v = T::narrow(f64::from(s));
             }
         }
         if self.input_noise > 0.0 {
             let sigma = self.input_noise;
             for v in &mut self.input[..b * d] {
-                *v += T::from_f64(f64::from((sigma * noise.normal()) as f32));
+                *v += T::narrow(f64::from((sigma * noise.normal()) as f32));
             }
         }
         for l in 0..self.layers.len() {
@@ -307,7 +310,7 @@ impl<T: Real> Engine<T> {
             activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
             if self.dropout > 0.0 {
                 let keep = (1.0 - self.dropout) as f32;
-                let scale = T::from_f64(f64::from(1.0 / keep));
+                let scale = T::narrow(f64::from(1.0 / keep));
                 let mask = &mut layer.mask[..b * n_out];
                 let draws = &mut self.draws[..b * n_out];
                 dropout.fill_u32(draws);
@@ -340,7 +343,7 @@ impl<T: Real> Engine<T> {
     /// every parameter's gradient, plus `l2` times each weight matrix (the coupled penalty).
     pub fn backward(&mut self, l2: f64) {
         let b = self.rows;
-        let l2 = T::from_f64(l2);
+        let l2 = T::narrow(l2);
         for l in (0..self.layers.len()).rev() {
             let (before, rest) = self.layers.split_at_mut(l);
             let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
@@ -378,7 +381,7 @@ impl<T: Real> Engine<T> {
 
     /// The Euclidean norm of every parameter's gradient, accumulated in f64.
     pub fn gradient_norm(&self) -> f64 {
-        let sq = |v: &[T]| v.iter().map(|g| g.to_f64() * g.to_f64()).sum::<f64>();
+        let sq = |v: &[T]| v.iter().map(|g| g.widen() * g.widen()).sum::<f64>();
         let mut total = 0.0;
         for l in &self.layers {
             total += sq(&l.grad_weight) + sq(&l.grad_bias);
@@ -416,7 +419,7 @@ fn column_sums<T: Real>(m: &[T], cols: usize, out: &mut [T]) {
 /// with the biased batch variance; running statistics move by the momentum, with the unbiased
 /// variance (as PyTorch keeps them).
 fn normalise<T: Real>(norm: &mut Norm<T>, z: &mut [T], rows: usize, cols: usize) {
-    let n = T::from_f64(rows as f64);
+    let n = T::narrow(rows as f64);
     let mean = &mut norm.mean;
     column_sums(z, cols, mean);
     for m in mean.iter_mut() {
@@ -430,9 +433,9 @@ fn normalise<T: Real>(norm: &mut Norm<T>, z: &mut [T], rows: usize, cols: usize)
             *v += c * c;
         }
     }
-    let (keep, take_new) = (T::from_f64(1.0 - BN_MOMENTUM), T::from_f64(BN_MOMENTUM));
-    let unbias = if rows > 1 { T::from_f64(rows as f64 / (rows as f64 - 1.0)) } else { T::one() };
-    let eps = T::from_f64(BN_EPS);
+    let (keep, take_new) = (T::narrow(1.0 - BN_MOMENTUM), T::narrow(BN_MOMENTUM));
+    let unbias = if rows > 1 { T::narrow(rows as f64 / (rows as f64 - 1.0)) } else { T::one() };
+    let eps = T::narrow(BN_EPS);
     for j in 0..cols {
         let biased = var[j] / n;
         norm.running_mean[j] = norm.running_mean[j] * keep + mean[j] * take_new;
@@ -458,7 +461,7 @@ fn normalise_backward<T: Real>(norm: &mut Norm<T>, g: &mut [T], rows: usize, col
             *s += dy * x;
         }
     }
-    let n = T::from_f64(rows as f64);
+    let n = T::narrow(rows as f64);
     for (grow, nrow) in g.chunks_exact_mut(cols).zip(norm.normalised.chunks_exact(cols)) {
         for j in 0..cols {
             let factor = norm.gamma[j] * norm.inv_std[j] / n;
@@ -471,8 +474,8 @@ const FRAC_1_SQRT_2PI: f64 = 0.398_942_280_401_432_7;
 
 /// `out = f(pre)`; `act` keeps f(pre) too when it is non-empty (sigmoid, tanh).
 fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: &mut [T]) {
-    let half = T::from_f64(0.5);
-    let inv_sqrt2 = T::from_f64(std::f64::consts::FRAC_1_SQRT_2);
+    let half = T::narrow(0.5);
+    let inv_sqrt2 = T::narrow(std::f64::consts::FRAC_1_SQRT_2);
     let f = |x: T| -> T {
         match activation {
             Activation::Relu => {
@@ -494,9 +497,9 @@ fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: 
 
 /// In place: `pre <- grad_out * mask * f'(pre)`, one loop per activation so each vectorises.
 fn derivative<T: Real>(activation: Activation, pre: &mut [T], act: &[T], grad_out: &[T], mask: Option<&[T]>) {
-    let half = T::from_f64(0.5);
-    let inv_sqrt2 = T::from_f64(std::f64::consts::FRAC_1_SQRT_2);
-    let density = T::from_f64(FRAC_1_SQRT_2PI);
+    let half = T::narrow(0.5);
+    let inv_sqrt2 = T::narrow(std::f64::consts::FRAC_1_SQRT_2);
+    let density = T::narrow(FRAC_1_SQRT_2PI);
     match activation {
         Activation::Relu => {
             for (p, &g) in pre.iter_mut().zip(grad_out) {
