@@ -90,6 +90,22 @@ fn preamble(out: &mut String, inputs: &ScriptInputs<'_>) {
     }
 }
 
+/// `exec tabcard train <manifest> --results <root> --jobs <the task's CPUs>`, as both scripts run it.
+fn train_command(inputs: &ScriptInputs<'_>) -> String {
+    format!(
+        "exec {} train {} --results {} --jobs \"${{SLURM_CPUS_PER_TASK:-{}}}\"",
+        path_word(inputs.executable),
+        path_word(inputs.manifest),
+        path_word(inputs.results_root),
+        inputs.resources.cpus_per_task
+    )
+}
+
+/// The job name: `tabcard-<role><first 8 hex digits of the fingerprint>`.
+fn job_name(inputs: &ScriptInputs<'_>, role: &str) -> String {
+    format!("tabcard-{role}{}", &inputs.fingerprint[..8.min(inputs.fingerprint.len())])
+}
+
 /// The array script: task K of N trains shard K/N of the plan on its CPUs.
 pub fn array_script(inputs: &ScriptInputs<'_>) -> String {
     let n = inputs.tasks;
@@ -98,17 +114,10 @@ pub fn array_script(inputs: &ScriptInputs<'_>) -> String {
     let _ = writeln!(out, "# fingerprint {}", inputs.fingerprint);
     let _ = writeln!(out, "# {} runs in {n} array tasks; task K trains shard K/{n} (run i belongs to shard i mod {n}).", inputs.runs);
     let _ = writeln!(out, "# The results folder must be on a file system every node shares.");
-    header(&mut out, inputs, &format!("tabcard-{}", &inputs.fingerprint[..8.min(inputs.fingerprint.len())]), "array-%A_%a.out");
+    header(&mut out, inputs, &job_name(inputs, ""), "array-%A_%a.out");
     let _ = writeln!(out, "#SBATCH --array=0-{}", n - 1);
     preamble(&mut out, inputs);
-    let _ = writeln!(
-        out,
-        "exec {} train {} --results {} --jobs \"${{SLURM_CPUS_PER_TASK:-{}}}\" --shard \"${{SLURM_ARRAY_TASK_ID}}/{n}\"",
-        path_word(inputs.executable),
-        path_word(inputs.manifest),
-        path_word(inputs.results_root),
-        inputs.resources.cpus_per_task
-    );
+    let _ = writeln!(out, "{} --shard \"${{SLURM_ARRAY_TASK_ID}}/{n}\"", train_command(inputs));
     out
 }
 
@@ -119,16 +128,9 @@ pub fn merge_script(inputs: &ScriptInputs<'_>) -> String {
     let _ = writeln!(out, "# tabcard merge step for experiment {}", inputs.experiment_name.replace('\n', " "));
     let _ = writeln!(out, "# fingerprint {}", inputs.fingerprint);
     let _ = writeln!(out, "# Run after the array (sbatch --dependency=afterany:<array job id>): selects, tests and writes the card.");
-    header(&mut out, inputs, &format!("tabcard-merge-{}", &inputs.fingerprint[..8.min(inputs.fingerprint.len())]), "merge-%j.out");
+    header(&mut out, inputs, &job_name(inputs, "merge-"), "merge-%j.out");
     preamble(&mut out, inputs);
-    let _ = writeln!(
-        out,
-        "exec {} train {} --results {} --jobs \"${{SLURM_CPUS_PER_TASK:-{}}}\"",
-        path_word(inputs.executable),
-        path_word(inputs.manifest),
-        path_word(inputs.results_root),
-        inputs.resources.cpus_per_task
-    );
+    let _ = writeln!(out, "{}", train_command(inputs));
     out
 }
 
