@@ -179,89 +179,69 @@ impl Preprocessor {
         self.inputs.iter().map(InputEncoding::width).sum()
     }
 
-    /// Encodes rows `rows` of `table` (any table with the training columns, by name). Rows are
-    /// filled in blocks, every column of a block before the next block, so the writes into the
-    /// row-major matrix stay in cache.
+    /// Encodes rows `rows` of `table` (any table with the training columns, by name).
     pub fn transform(&self, table: &Table, rows: &[usize], file: &Path) -> Result<(Matrix, TransformReport)> {
         let width = self.width();
         let mut m = Matrix::zeros(rows.len(), width);
         let mut report = TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() };
-        let mut columns = Vec::with_capacity(self.inputs.len());
         let mut offset = 0;
         for enc in &self.inputs {
             let name = enc.name();
             let col = table.column(name).ok_or_else(|| Error::data(file, Some(name), "is missing: the model was trained with it"))?;
-            let lookup = match enc {
-                InputEncoding::Numeric { .. } => {
+            match enc {
+                InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
                     if col.is_text() {
                         return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on numbers", col.source_type)));
                     }
-                    None
+                    for (i, &r) in rows.iter().enumerate() {
+                        let (value, missing) = match col.number(r) {
+                            Some(v) if v.is_finite() => (v, false),
+                            Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
+                            None => (*impute, true),
+                        };
+                        if !missing && (value < *train_min || value > *train_max) {
+                            report.out_of_range[i] = true;
+                        }
+                        m.data[i * width + offset] = ((value - mean) / scale) as f32;
+                        if *indicator {
+                            m.data[i * width + offset + 1] = missing as u8 as f32;
+                        }
+                    }
                 }
-                InputEncoding::Categorical { levels, .. } => {
+                InputEncoding::Categorical { levels, impute, indicator, .. } => {
                     let index: HashMap<&str, usize> = levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect();
+                    let unseen_slot = levels.len();
                     // Text columns map codes once; other columns render each value as a label.
                     let code_slots: Option<Vec<usize>> = match &col.values {
-                        ColumnValues::Text { levels: own, .. } => Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(levels.len())).collect()),
+                        ColumnValues::Text { levels: own, .. } => {
+                            Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(unseen_slot)).collect())
+                        }
                         _ => None,
                     };
-                    Some((index, code_slots))
-                }
-            };
-            columns.push((enc, col, offset, lookup, 0usize));
-            offset += enc.width();
-        }
-        const BLOCK: usize = 2048;
-        for start in (0..rows.len()).step_by(BLOCK) {
-            let end = (start + BLOCK).min(rows.len());
-            for (enc, col, offset, lookup, unseen) in columns.iter_mut() {
-                let offset = *offset;
-                match (enc, lookup) {
-                    (InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, name }, _) => {
-                        for (i, &r) in rows.iter().enumerate().take(end).skip(start) {
-                            let (value, missing) = match col.number(r) {
-                                Some(v) if v.is_finite() => (v, false),
-                                Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
-                                None => (*impute, true),
-                            };
-                            if !missing && (value < *train_min || value > *train_max) {
-                                report.out_of_range[i] = true;
-                            }
-                            m.data[i * width + offset] = ((value - mean) / scale) as f32;
+                    let mut unseen = 0usize;
+                    for (i, &r) in rows.iter().enumerate() {
+                        let slot = if !col.is_valid(r) {
                             if *indicator {
-                                m.data[i * width + offset + 1] = missing as u8 as f32;
+                                m.data[i * width + offset + levels.len() + 1] = 1.0;
                             }
+                            *impute
+                        } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
+                            slots[codes[r] as usize]
+                        } else {
+                            let label = col.label(r).unwrap_or_default();
+                            index.get(label.as_str()).copied().unwrap_or(unseen_slot)
+                        };
+                        if slot == unseen_slot {
+                            unseen += 1;
                         }
+                        m.data[i * width + offset + slot] = 1.0;
                     }
-                    (InputEncoding::Categorical { levels, impute, indicator, .. }, Some((index, code_slots))) => {
-                        let unseen_slot = levels.len();
-                        for (i, &r) in rows.iter().enumerate().take(end).skip(start) {
-                            let slot = if !col.is_valid(r) {
-                                if *indicator {
-                                    m.data[i * width + offset + levels.len() + 1] = 1.0;
-                                }
-                                *impute
-                            } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&*code_slots, &col.values) {
-                                slots[codes[r] as usize]
-                            } else {
-                                let label = col.label(r).unwrap_or_default();
-                                index.get(label.as_str()).copied().unwrap_or(unseen_slot)
-                            };
-                            if slot == unseen_slot {
-                                *unseen += 1;
-                            }
-                            m.data[i * width + offset + slot] = 1.0;
-                        }
+                    if unseen > 0 {
+                        report.unseen_levels.insert(name.to_string(), unseen);
                     }
-                    // A categorical encoding always has its lookup (built above).
-                    (InputEncoding::Categorical { .. }, None) => {}
                 }
             }
-        }
-        for (enc, _, _, _, unseen) in &columns {
-            if *unseen > 0 {
-                report.unseen_levels.insert(enc.name().to_string(), *unseen);
-            }
+            offset += enc.width();
         }
         report.out_of_range_rows = report.out_of_range.iter().filter(|&&x| x).count();
         Ok((m, report))
