@@ -1,5 +1,6 @@
-//! The network: the MLP on candle (layers, model configuration, evaluation, stored tensors), the
-//! hand-written training engine over `gemm`, losses, optimizers and learning-rate schedules.
+//! The network: the MLP on candle (layers, model configuration, stored tensors, and the autograd
+//! reference the engine is tested against), the hand-written engine over `gemm` that trains,
+//! validates and scores, losses, optimizers and learning-rate schedules.
 //! Every random draw comes from a `rng::Stream` passed in; nothing here uses candle's own
 //! (thread-local) random functions.
 
