@@ -53,39 +53,39 @@ pub fn objective_and_gradient<T: crate::nn::scalar::Real>(objective: Objective, 
     match objective {
         Objective::BinaryCrossEntropy => {
             for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
-                let z = z.to_f64();
+                let z = z.widen();
                 total += z.max(0.0) - z * y + libm::log1p(libm::exp(-z.abs()));
                 let p = if z >= 0.0 { 1.0 / (1.0 + libm::exp(-z)) } else { let e = libm::exp(z); e / (1.0 + e) };
-                *g = T::from_f64((p - y) / n);
+                *g = T::narrow((p - y) / n);
             }
         }
         Objective::SoftmaxCrossEntropy { classes } => {
             for ((row, &y), grow) in logits.chunks_exact(classes).zip(targets).zip(grad.chunks_exact_mut(classes)) {
-                let max = row.iter().fold(f64::NEG_INFINITY, |m, v| m.max(v.to_f64()));
-                let sum: f64 = row.iter().map(|v| libm::exp(v.to_f64() - max)).sum();
+                let max = row.iter().fold(f64::NEG_INFINITY, |m, v| m.max(v.widen()));
+                let sum: f64 = row.iter().map(|v| libm::exp(v.widen() - max)).sum();
                 let lse = max + libm::log(sum);
                 let label = y as usize;
-                total += lse - row[label].to_f64();
+                total += lse - row[label].widen();
                 for (k, (g, v)) in grow.iter_mut().zip(row).enumerate() {
-                    let p = libm::exp(v.to_f64() - lse);
-                    *g = T::from_f64((p - if k == label { 1.0 } else { 0.0 }) / n);
+                    let p = libm::exp(v.widen() - lse);
+                    *g = T::narrow((p - if k == label { 1.0 } else { 0.0 }) / n);
                 }
             }
         }
         Objective::MeanSquaredError => {
             for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
-                let r = z.to_f64() - y;
+                let r = z.widen() - y;
                 total += r * r;
-                *g = T::from_f64(2.0 * r / n);
+                *g = T::narrow(2.0 * r / n);
             }
         }
         Objective::Huber { delta } => {
             for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
-                let r = z.to_f64() - y;
+                let r = z.widen() - y;
                 let a = r.abs();
                 let q = a.min(delta);
                 total += 0.5 * q * q + delta * (a - q);
-                *g = T::from_f64(r.clamp(-delta, delta) / n);
+                *g = T::narrow(r.clamp(-delta, delta) / n);
             }
         }
     }

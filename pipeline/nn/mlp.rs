@@ -107,38 +107,30 @@ impl Mlp {
     /// by name, as f32.
     pub fn named_tensors(&self) -> Result<Vec<NamedTensor>> {
         let mut out = Vec::new();
-        let mut push = |name: String, t: &Tensor| -> Result<()> {
+        for (name, t) in self.tensors() {
             let values = t.to_dtype(DType::F32)?.flatten_all()?.to_vec1::<f32>()?;
             out.push(NamedTensor { name, shape: t.dims().to_vec(), values });
-            Ok(())
-        };
-        for (name, var, _) in self.parameters() {
-            push(name, var.as_tensor())?;
-        }
-        for (i, layer) in self.hidden.iter().enumerate() {
-            if let Some(bn) = &layer.batch_norm {
-                push(format!("layer{i:02}.bn.running_mean"), &bn.running_mean)?;
-                push(format!("layer{i:02}.bn.running_var"), &bn.running_var)?;
-            }
         }
         out.sort_by(|a, b| a.name.cmp(&b.name));
         Ok(out)
     }
 
+    /// Parameters (in name order), then batch-norm running statistics layer by layer.
+    fn tensors(&self) -> Vec<(String, &Tensor)> {
+        let mut out: Vec<(String, &Tensor)> = self.parameters().into_iter().map(|(name, var, _)| (name, var.as_tensor())).collect();
+        for (i, layer) in self.hidden.iter().enumerate() {
+            if let Some(bn) = &layer.batch_norm {
+                out.push((format!("layer{i:02}.bn.running_mean"), &bn.running_mean));
+                out.push((format!("layer{i:02}.bn.running_var"), &bn.running_var));
+            }
+        }
+        out
+    }
+
     /// Every parameter and buffer (names as in [`Mlp::named_tensors`]) as flat host values in
     /// the model's own precision `T`.
     pub fn host_values<T: candle_core::WithDType>(&self) -> Result<Vec<(String, Vec<T>)>> {
-        let mut out = Vec::new();
-        for (name, var, _) in self.parameters() {
-            out.push((name, var.as_tensor().flatten_all()?.to_vec1::<T>()?));
-        }
-        for (i, layer) in self.hidden.iter().enumerate() {
-            if let Some(bn) = &layer.batch_norm {
-                out.push((format!("layer{i:02}.bn.running_mean"), bn.running_mean.flatten_all()?.to_vec1::<T>()?));
-                out.push((format!("layer{i:02}.bn.running_var"), bn.running_var.flatten_all()?.to_vec1::<T>()?));
-            }
-        }
-        Ok(out)
+        self.tensors().into_iter().map(|(name, t)| Ok((name, t.flatten_all()?.to_vec1::<T>()?))).collect()
     }
 
     /// Overwrites parameters and buffers with host values in the model's precision (the inverse
