@@ -73,6 +73,11 @@ pub enum Error {
     /// The command line asked for something that cannot be done.
     #[error("{0}")]
     Usage(String),
+
+    /// The environment asked for a numerical kernel this build or CPU cannot run
+    /// (`TABCARD_KERNEL`).
+    #[error("{0}")]
+    Kernel(String),
 }
 
 pub type Result<T, E = Error> = std::result::Result<T, E>;
@@ -97,7 +102,7 @@ impl Error {
     /// Exit status for scripts: 2 bad input, 3 results store, 4 engine, 1 anything else.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) => 2,
+            Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) | Error::Kernel(_) => 2,
             Error::Store { .. } | Error::Io { .. } => 3,
             Error::Engine(_) => 4,
         }

@@ -1,21 +1,31 @@
 //! What the bits of a trained model depend on, and keeping each run's arithmetic single-threaded.
 //!
-//! candle's CPU matrix multiply (the `gemm` crate) picks its kernel at run time from the CPU's
-//! features and derives its k-blocking from the cache sizes, and exp/log/tanh come from the
-//! platform's libm. So identical bits are promised for identical inputs on the same *numerics
-//! fingerprint* (recorded with every run), not across different CPUs.
+//! Every number that reaches a stored result comes from tabcard's own code: matrix products from
+//! the portable kernels (`nn/matmul.rs`, one fused multiply-add chain per output in a fixed order,
+//! the same bits at every dispatch level), element-wise steps and reductions in a fixed order
+//! (never following the vector width or the thread count), elementary functions from the
+//! pure-Rust `libm`. So identical bits are promised for the same tabcard version and
+//! [`KERNEL_VERSION`], whatever the CPU's vector features, cache sizes or core count. The
+//! fingerprint below records the rest of the machine for the audit trail; nothing here reads a
+//! value that changes a computed bit.
 
 use serde::{Deserialize, Serialize};
 use std::sync::Once;
 
-/// Candle's version as locked in Cargo.lock (kept in step by a test).
+use crate::error::Result;
+use crate::nn::dispatch::Level;
+
+/// Candle's version as locked in Cargo.lock (kept in step by a test). candle defines and stores
+/// the model; it computes none of the trained values.
 pub const CANDLE_VERSION: &str = "0.11.1";
 
-/// The crate features that select numerical kernels, as this build compiles them: candle-core with
-/// its default (CPU) features and gemm with its `x86-v4` (AVX-512) kernels, so gemm picks among
-/// its scalar, FMA/AVX2 and AVX-512 paths at run time from the CPU's features. The training
-/// engine (`nn/engine.rs`) and candle's evaluation both multiply through this gemm.
-pub const KERNEL_FEATURES: &str = "candle-core default features; gemm 0.19 with x86-v4 (AVX-512 kernels where the CPU has avx512f); training engine nn/engine.rs v1";
+/// The version of the numerics path: the portable kernels' order of operations and the engine's
+/// fixed-order reductions. It changes only when a computed bit can change, and with it the tool
+/// version (part of every experiment fingerprint).
+pub const KERNEL_VERSION: &str = "portable v1";
+
+/// What the numerics path consists of, for the card and `environment.json`.
+pub const KERNEL_FEATURES: &str = "tabcard portable kernels (nn/matmul.rs, nn/microkernel.rs): one fused multiply-add chain per output in increasing inner index, blocks of fixed size; training engine nn/engine.rs v2; elementary functions from the pure-Rust libm";
 
 static PIN: Once = Once::new();
 
@@ -40,17 +50,29 @@ pub struct NumericsFingerprint {
     /// The git commit tabcard was built from (`+changes` when the tree had uncommitted edits).
     pub tool_commit: String,
     pub candle_version: String,
+    /// [`KERNEL_VERSION`]: with the tool version, what decides whether bits are promised.
+    #[serde(default)]
+    pub kernel_version: String,
     pub kernel_features: String,
+    /// The dispatch level the matrix products ran at (`scalar`, `avx2`, `avx512`): speed only.
+    #[serde(default)]
+    pub kernel_level: String,
     pub target_arch: String,
     pub target_os: String,
-    /// CPU features that select kernels in gemm and in the compiler's code (x86: sse4.1, avx,
-    /// avx2, fma, avx512f ...), as detected at run time.
+    /// CPU features as detected at run time (x86: sse4.1, avx, avx2, fma, avx512f ...), for the
+    /// record: they choose the dispatch level, which changes no bit.
     pub cpu_features: Vec<String>,
-    /// Data-cache sizes in bytes (L1d, L2, L3) as the OS reports them; gemm's blocking uses them.
-    pub cache_bytes: Vec<u64>,
     pub libc: String,
     /// Threads each run computes with (always 1).
     pub threads_per_run: usize,
+}
+
+impl NumericsFingerprint {
+    /// Whether results computed under `self` are promised to be bit-identical to results
+    /// computed under `other`: the same tool version and kernel version.
+    pub fn promises_same_bits_as(&self, other: &NumericsFingerprint) -> bool {
+        self.tool_version == other.tool_version && !self.kernel_version.is_empty() && self.kernel_version == other.kernel_version
+    }
 }
 
 fn cpu_features() -> Vec<String> {
@@ -77,28 +99,6 @@ fn cpu_features() -> Vec<String> {
     out
 }
 
-fn cache_sizes() -> Vec<u64> {
-    let mut out = Vec::new();
-    for index in 0..8 {
-        let base = format!("/sys/devices/system/cpu/cpu0/cache/index{index}");
-        let Ok(kind) = std::fs::read_to_string(format!("{base}/type")) else { break };
-        if kind.trim() == "Instruction" {
-            continue;
-        }
-        if let Ok(size) = std::fs::read_to_string(format!("{base}/size")) {
-            let s = size.trim();
-            let (digits, unit) = s.split_at(s.find(|c: char| !c.is_ascii_digit()).unwrap_or(s.len()));
-            let n: u64 = digits.parse().unwrap_or(0);
-            out.push(match unit {
-                "K" => n * 1024,
-                "M" => n * 1024 * 1024,
-                _ => n,
-            });
-        }
-    }
-    out
-}
-
 fn libc_version() -> String {
     #[cfg(all(target_os = "linux", target_env = "gnu"))]
     {
@@ -113,20 +113,22 @@ fn libc_version() -> String {
     std::env::consts::OS.to_string()
 }
 
-/// The numerics fingerprint of this process.
-pub fn current() -> NumericsFingerprint {
-    NumericsFingerprint {
+/// The numerics fingerprint of this process; an error when `TABCARD_KERNEL` names a level this
+/// build or CPU cannot run.
+pub fn current() -> Result<NumericsFingerprint> {
+    Ok(NumericsFingerprint {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         tool_commit: env!("TABCARD_SOURCE_COMMIT").to_string(),
         candle_version: CANDLE_VERSION.to_string(),
+        kernel_version: KERNEL_VERSION.to_string(),
         kernel_features: KERNEL_FEATURES.to_string(),
+        kernel_level: Level::active()?.name().to_string(),
         target_arch: std::env::consts::ARCH.to_string(),
         target_os: std::env::consts::OS.to_string(),
         cpu_features: cpu_features(),
-        cache_bytes: cache_sizes(),
         libc: libc_version(),
         threads_per_run: 1,
-    }
+    })
 }
 
 #[cfg(test)]

@@ -36,7 +36,7 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     let ok = run_in(dir.path(), &["verify", folder_arg.to_str().unwrap()]);
     assert_eq!(ok.status.code(), Some(0), "{}{}", stdout(&ok), stderr(&ok));
     assert!(stdout(&ok).contains("verdict   verified: every run reproduced bit for bit"), "{}", stdout(&ok));
-    assert!(stdout(&ok).contains("environment  same numerics fingerprint as recorded"));
+    assert!(stdout(&ok).contains("identical bits are promised on any CPU"));
     assert_eq!(stdout(&ok).matches(": identical (weights, history, metrics)").count(), 2, "two seeds of the selected configuration");
     let history = run_in(dir.path(), &["history", "--results", "results"]);
     assert!(stdout(&history).contains("small-lease") && stdout(&history).contains("yes ("), "{}", stdout(&history));

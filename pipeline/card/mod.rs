@@ -393,10 +393,10 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         limitations,
         environment: vec![
             Row { cells: vec!["tabcard".into(), md(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))] },
-            Row { cells: vec!["numerical kernels".into(), md(&format!("candle {}; {}", environment.candle_version, environment.kernel_features))] },
+            Row { cells: vec!["numerics".into(), md(&format!("kernels {}, dispatch level {} (the level changes speed, never a bit)", environment.kernel_version, environment.kernel_level))] },
+            Row { cells: vec!["numerical kernels".into(), md(&format!("{}; model definition and stored form: candle {}", environment.kernel_features, environment.candle_version))] },
             Row { cells: vec!["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))] },
             Row { cells: vec!["CPU features".into(), md(&environment.cpu_features.join(" "))] },
-            Row { cells: vec!["data caches (bytes)".into(), environment.cache_bytes.iter().map(|c| c.to_string()).collect::<Vec<_>>().join(", ")] },
             Row { cells: vec!["C library".into(), md(&environment.libc)] },
             Row { cells: vec!["threads per run".into(), environment.threads_per_run.to_string()] },
         ],

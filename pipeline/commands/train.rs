@@ -129,7 +129,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let m = &exp.manifest;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
     prepare_folder(exp, &layout, plan, preprocessor)?;
-    let environment = crate::numerics::current();
+    let environment = crate::numerics::current()?;
     let inputs = SweepInputs {
         layout: &layout,
         plan,

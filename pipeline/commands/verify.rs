@@ -83,21 +83,24 @@ fn compare_run(stored: &StoredRun, fresh: &TrainedRun) -> Result<Vec<String>> {
     Ok(diffs)
 }
 
+/// Where the recording and the rerun environment differ, each line marked by whether it bears on
+/// the promise (tool and kernel versions) or is for the record only (CPU, dispatch level, libc).
 fn environment_differences(recorded: &NumericsFingerprint, now: &NumericsFingerprint) -> Vec<String> {
     let mut out = Vec::new();
-    let mut field = |name: &str, a: String, b: String| {
+    let mut field = |name: &str, a: &str, b: &str, decides: bool| {
         if a != b {
-            out.push(format!("{name}: recorded {a}, now {b}"));
+            let role = if decides { "changes what is promised" } else { "for the record: changes no bit" };
+            out.push(format!("{name}: recorded {a}, now {b} ({role})"));
         }
     };
-    field("tool version", recorded.tool_version.clone(), now.tool_version.clone());
-    field("tool source commit", recorded.tool_commit.clone(), now.tool_commit.clone());
-    field("candle version", recorded.candle_version.clone(), now.candle_version.clone());
-    field("kernel features", recorded.kernel_features.clone(), now.kernel_features.clone());
-    field("target", format!("{} {}", recorded.target_arch, recorded.target_os), format!("{} {}", now.target_arch, now.target_os));
-    field("CPU features", recorded.cpu_features.join(" "), now.cpu_features.join(" "));
-    field("cache sizes", format!("{:?}", recorded.cache_bytes), format!("{:?}", now.cache_bytes));
-    field("C library", recorded.libc.clone(), now.libc.clone());
+    field("tool version", &recorded.tool_version, &now.tool_version, true);
+    field("kernel version", &recorded.kernel_version, &now.kernel_version, true);
+    field("tool source commit", &recorded.tool_commit, &now.tool_commit, false);
+    field("candle version", &recorded.candle_version, &now.candle_version, false);
+    field("dispatch level", &recorded.kernel_level, &now.kernel_level, false);
+    field("target", &format!("{} {}", recorded.target_arch, recorded.target_os), &format!("{} {}", now.target_arch, now.target_os), false);
+    field("CPU features", &recorded.cpu_features.join(" "), &now.cpu_features.join(" "), false);
+    field("C library", &recorded.libc, &now.libc, false);
     out
 }
 
@@ -144,7 +147,7 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let selection: Selection = read_json(&layout.selection())?;
     let specs: Vec<_> = prepared.plan.runs.iter().filter(|r| options.all || r.config_id == selection.selected_config).collect();
 
-    let now = crate::numerics::current();
+    let now = crate::numerics::current()?;
     let inputs = SweepInputs {
         layout: &layout,
         plan: &prepared.plan,
@@ -177,15 +180,20 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let _ = writeln!(out, "data      {} matches: file SHA-256 {}, content SHA-256 {}", data_path.display(), record.data.file_sha256, record.data.content_sha256);
     let _ = writeln!(out, "manifest  matches its recorded SHA-256 {}", record.manifest_sha256);
     let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| read_json(&layout.run(&s.id).join(ENVIRONMENT)).ok());
-    match recorded_env.map(|r| environment_differences(&r, &now)) {
-        Some(d) if d.is_empty() => { let _ = writeln!(out, "environment  same numerics fingerprint as recorded"); }
-        Some(d) => {
-            let _ = writeln!(out, "environment  DIFFERS from the recorded one (bit-identity is promised only on the same numerics fingerprint):");
-            for line in d {
+    match recorded_env {
+        Some(recorded) => {
+            let promised = recorded.promises_same_bits_as(&now);
+            let differences = environment_differences(&recorded, &now);
+            let _ = if promised {
+                writeln!(out, "numerics  tabcard {} with kernels {}, as recorded: identical bits are promised on any CPU", now.tool_version, now.kernel_version)
+            } else {
+                writeln!(out, "numerics  DIFFER from the recorded ones: identical bits are promised only for the same tabcard version and kernel version")
+            };
+            for line in differences {
                 let _ = writeln!(out, "  {line}");
             }
         }
-        None => { let _ = writeln!(out, "environment  no recorded environment to compare"); }
+        None => { let _ = writeln!(out, "numerics  no recorded environment to compare"); }
     }
     let _ = writeln!(out, "\nruns ({}):", if options.all { "all" } else { "selected configuration" });
     for (id, seed, verdict) in &verdicts {

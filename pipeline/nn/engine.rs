@@ -1,6 +1,6 @@
 //! The training engine: a network's parameters, gradients and per-layer activations in host
 //! buffers sized once per run, with the training-mode forward pass and the backward pass written
-//! out by hand over `gemm` (bias and batch-norm statistics fused into single passes, dropout and
+//! out by hand over the portable matrix multiply of `nn/matmul.rs` (bias and batch-norm statistics fused into single passes, dropout and
 //! activation derivatives applied in place), and the evaluation-mode pass that validation and
 //! `predict` use. A training step allocates nothing and computes single-threaded. candle's
 //! [`Mlp`] stays the model's definition and stored form: the engine starts from its values and
@@ -8,7 +8,8 @@
 //! against candle's autograd and against finite differences.
 
 use super::layers::{BN_EPS, BN_MOMENTUM};
-use super::matmul::{matmul, View};
+use super::dispatch::Level;
+use super::matmul::{matmul, View, Workspace};
 use super::mlp::{has_residual, Mlp};
 use super::optim::{Optimizer, Step};
 use super::scalar::Real;
@@ -58,14 +59,14 @@ struct Dense<T> {
 impl<T: Real> Dense<T> {
     /// bias + input W for the first `rows` rows of `input`, into `pre` (hidden layers, before
     /// batch norm and activation) or `out` (the head): the bias fills the rows and the product is
-    /// accumulated onto it inside the gemm call.
-    fn affine(&mut self, input: &[T], rows: usize) {
+    /// accumulated onto it by the product (each chain starts from the bias).
+    fn affine(&mut self, input: &[T], rows: usize, ws: &mut Workspace<T>) {
         let (n_in, n_out) = (self.inputs, self.outputs);
         let target = if self.hidden { &mut self.pre } else { &mut self.out };
         for row in target[..rows * n_out].chunks_exact_mut(n_out) {
             row.copy_from_slice(&self.bias);
         }
-        matmul(&mut target[..rows * n_out], View::new(&input[..rows * n_in], rows, n_in), View::new(&self.weight, n_in, n_out), true);
+        matmul(&mut target[..rows * n_out], View::new(&input[..rows * n_in], rows, n_in), View::new(&self.weight, n_in, n_out), true, ws);
     }
 
     /// (name, value, gradient) of each trainable parameter under the model's names.
@@ -96,6 +97,8 @@ pub struct Engine<T> {
     /// Raw 32-bit draws for one layer's dropout mask.
     draws: Vec<u32>,
     rows: usize,
+    /// Packing buffers and the dispatch level of every matrix product.
+    workspace: Workspace<T>,
 }
 
 fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) -> Result<Vec<T>> {
@@ -115,8 +118,17 @@ pub type Values<T> = Vec<(String, Vec<T>)>;
 pub const EVAL_BLOCK: usize = 256;
 
 impl<T: Real> Engine<T> {
-    /// An engine holding `model`'s current values, for training batches of up to `batch` rows.
+    /// An engine holding `model`'s current values, for training batches of up to `batch` rows,
+    /// computing at the process's dispatch level ([`Level::active`]).
     pub fn from_model(model: &Mlp, batch: usize) -> Result<Self> {
+        Self::at_level(model, batch, Level::active()?)
+    }
+
+    /// As [`Engine::from_model`], at a given dispatch level (which the CPU must run).
+    pub fn at_level(model: &Mlp, batch: usize, level: Level) -> Result<Self> {
+        if !level.available() {
+            return Err(Error::Kernel(format!("dispatch level {} is not available on this CPU", level.name())));
+        }
         let capacity = batch.max(EVAL_BLOCK);
         let spec = &model.spec;
         let mut values = model.host_values::<T>()?;
@@ -189,6 +201,7 @@ impl<T: Real> Engine<T> {
             grad_in: zeros(capacity * widest),
             draws: if spec.dropout > 0.0 { vec![0; capacity * widest] } else { Vec::new() },
             rows: 0,
+            workspace: Workspace::new(level),
         })
     }
 
@@ -247,7 +260,7 @@ impl<T: Real> Engine<T> {
                 let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
                 let layer = &mut rest[0];
                 let (n_in, n_out) = (layer.inputs, layer.outputs);
-                layer.affine(input, b);
+                layer.affine(input, b, &mut self.workspace);
                 if !layer.hidden {
                     continue;
                 }
@@ -300,7 +313,7 @@ impl<T: Real> Engine<T> {
             let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
             let layer = &mut rest[0];
             let (n_in, n_out) = (layer.inputs, layer.outputs);
-            layer.affine(input, b);
+            layer.affine(input, b, &mut self.workspace);
             if !layer.hidden {
                 continue;
             }
@@ -360,7 +373,7 @@ impl<T: Real> Engine<T> {
             } else {
                 grad_out
             };
-            matmul(&mut layer.grad_weight, View::new(&input[..b * n_in], b, n_in).t(), View::new(grad_z, b, n_out), false);
+            matmul(&mut layer.grad_weight, View::new(&input[..b * n_in], b, n_in).t(), View::new(grad_z, b, n_out), false, &mut self.workspace);
             if l2 != T::zero() {
                 for (g, &w) in layer.grad_weight.iter_mut().zip(&layer.weight) {
                     *g += l2 * w;
@@ -368,7 +381,7 @@ impl<T: Real> Engine<T> {
             }
             column_sums(grad_z, n_out, &mut layer.grad_bias);
             if l > 0 {
-                matmul(&mut self.grad_in[..b * n_in], View::new(grad_z, b, n_out), View::new(&layer.weight, n_in, n_out).t(), false);
+                matmul(&mut self.grad_in[..b * n_in], View::new(grad_z, b, n_out), View::new(&layer.weight, n_in, n_out).t(), false, &mut self.workspace);
                 if layer.residual {
                     for (g, &o) in self.grad_in[..b * n_in].iter_mut().zip(grad_out) {
                         *g += o;

@@ -1,8 +1,27 @@
-//! Matrix products for the training engine: a shape-checked, safe wrapper over the `gemm` crate
-//! (the kernels candle's CPU backend calls), single-threaded, on row-major slices read either way
-//! round. The only `unsafe` in the crate lives here.
+//! Matrix products for the engine with a fixed order of operations, the same bits on every CPU:
+//! `dst[i][j]` is one chain of fused multiply-adds over the inner index p = 0, 1, ..., k-1,
+//!
+//! ```text
+//! acc = dst[i][j] if accumulating, else +0;   for p in 0..k: acc = fma(a[i][p], b[p][j], acc)
+//! ```
+//!
+//! (a bias is added by filling `dst` with it and accumulating). Blocking over the inner dimension
+//! stores the partial chain in `dst` and continues it, which keeps the order; blocking over rows
+//! and columns, packing, and the choice between computing the product and its transpose
+//! (fma(x, y, acc) = fma(y, x, acc) exactly) change no bit either. Block sizes are constants of
+//! this file; nothing reads cache sizes or the core count. The register tiles per dispatch level
+//! live in `nn/microkernel.rs`.
 
+use super::dispatch::Level;
+use super::microkernel::{Kernels, Tile};
 use super::scalar::Real;
+
+/// Inner-dimension block: the length of one stored stretch of each chain.
+const KC: usize = 256;
+/// Rows of `a` packed at a time (a multiple of every tile's row count: 4 and 6).
+const MC: usize = 144;
+/// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 16 and 32).
+const NC: usize = 512;
 
 /// A row-major `rows x cols` matrix in a slice, read as itself or as its transpose.
 #[derive(Clone, Copy)]
@@ -13,7 +32,7 @@ pub struct View<'a, T> {
     transposed: bool,
 }
 
-impl<'a, T> View<'a, T> {
+impl<'a, T: Copy> View<'a, T> {
     /// The first `rows * cols` values of `data` as a row-major matrix.
     pub fn new(data: &'a [T], rows: usize, cols: usize) -> Self {
         assert!(data.len() >= rows * cols, "matrix view of {rows}x{cols} over {} values", data.len());
@@ -26,19 +45,57 @@ impl<'a, T> View<'a, T> {
     }
 
     /// (rows, cols) as read.
-    fn shape(&self) -> (usize, usize) {
+    pub fn shape(&self) -> (usize, usize) {
         if self.transposed { (self.cols, self.rows) } else { (self.rows, self.cols) }
     }
 
-    /// (row stride, column stride) as read.
-    fn strides(&self) -> (isize, isize) {
-        if self.transposed { (1, self.cols as isize) } else { (self.cols as isize, 1) }
+    /// (row stride, column stride) in `data` as read.
+    pub fn strides(&self) -> (usize, usize) {
+        if self.transposed { (1, self.cols) } else { (self.cols, 1) }
+    }
+
+    /// The value at (row, col) as read.
+    #[inline(always)]
+    pub fn at(&self, row: usize, col: usize) -> T {
+        if self.transposed { self.data[col * self.cols + row] } else { self.data[row * self.cols + col] }
     }
 }
 
+/// Packing buffers and the dispatch level of one engine; grown on first use, so that repeated
+/// products of the same shapes allocate nothing.
+pub struct Workspace<T> {
+    level: Level,
+    kernels: Kernels<T>,
+    packed_a: Vec<T>,
+    packed_b: Vec<T>,
+    edge: Vec<T>,
+}
+
+impl<T: Real> Workspace<T> {
+    /// A workspace computing at `level`, which the CPU must run ([`Level::available`]).
+    pub fn new(level: Level) -> Self {
+        assert!(level.available(), "dispatch level {} is not available on this CPU", level.name());
+        let kernels = T::kernels(level);
+        let tile = kernels.tile;
+        Workspace { level, kernels, packed_a: Vec::new(), packed_b: Vec::new(), edge: vec![T::zero(); tile.rows * tile.cols] }
+    }
+
+    pub fn level(&self) -> Level {
+        self.level
+    }
+}
+
+/// The destination as (pointer-free) row and column strides over a slice.
+struct Out<'a, T> {
+    data: &'a mut [T],
+    row_stride: usize,
+    col_stride: usize,
+}
+
 /// `dst = a b` (or `dst += a b` when `accumulate`), `dst` row-major `m x n` in its first `m * n`
-/// values. Panics on mismatched shapes: callers size every buffer from the same layer widths.
-pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate: bool) {
+/// values, in the order the module documentation defines. Panics on mismatched shapes: callers
+/// size every buffer from the same layer widths.
+pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate: bool, ws: &mut Workspace<T>) {
     let (m, k) = a.shape();
     let (kb, n) = b.shape();
     assert_eq!(k, kb, "inner dimensions {k} and {kb} differ");
@@ -52,33 +109,170 @@ pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate
         }
         return;
     }
+    // One output column or row: a matrix times a vector, whose one operand is contiguous
+    // whichever way it is read. For m = 1 the chains read fma(b(p, j), a(0, p), acc), the same
+    // bits as fma(a(0, p), b(p, j), acc).
     let (a_rs, a_cs) = a.strides();
     let (b_rs, b_cs) = b.strides();
-    // SAFETY: every index gemm touches is (row < m, col < n) of dst with strides (n, 1), inside
-    // dst[..m * n]; (row < m, inner < k) of a and (inner < k, col < n) of b with the strides of
-    // their views, inside the slices checked in `View::new`. dst does not alias a or b (&mut).
-    unsafe {
-        gemm::gemm(
-            m,
-            n,
-            k,
-            dst.as_mut_ptr(),
-            1,
-            n as isize,
-            accumulate,
-            a.data.as_ptr(),
-            a_cs,
-            a_rs,
-            b.data.as_ptr(),
-            b_cs,
-            b_rs,
-            T::one(),
-            T::one(),
-            false,
-            false,
-            false,
-            gemm::Parallelism::None,
-        )
+    if n == 1 {
+        return matrix_vector(&mut dst[..m], Strided { data: a.data, rows: m, row_stride: a_rs, step: a_cs }, &b.data[..k], accumulate, ws);
+    }
+    if m == 1 {
+        return matrix_vector(&mut dst[..n], Strided { data: b.data, rows: n, row_stride: b_cs, step: b_rs }, &a.data[..k], accumulate, ws);
+    }
+    // Tiles are `rows x cols`; a product with fewer columns than a tile is computed as its
+    // transpose, C^T = B^T A^T, when that leaves fewer lanes idle (same bits either way).
+    let (tr, tc) = (ws.kernels.tile.rows, ws.kernels.tile.cols);
+    let lanes = |m: usize, n: usize| m.div_ceil(tr) * tr * n.div_ceil(tc) * tc;
+    let dst = &mut dst[..m * n];
+    if n < tc && lanes(n, m) < lanes(m, n) {
+        blocked(Out { data: dst, row_stride: 1, col_stride: n }, b.t(), a.t(), accumulate, ws);
+    } else {
+        blocked(Out { data: dst, row_stride: n, col_stride: 1 }, a, b, accumulate, ws);
+    }
+}
+
+/// The blocked product into `out` (`a.rows x b.cols`).
+fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate: bool, ws: &mut Workspace<T>) {
+    let Out { data, row_stride, col_stride } = out;
+    let (m, k) = a.shape();
+    let n = b.shape().1;
+    let Tile { rows: tr, cols: tc, compute } = ws.kernels.tile;
+    for jc in (0..n).step_by(NC) {
+        let nc = NC.min(n - jc);
+        let panels_b = nc.div_ceil(tc);
+        for pc in (0..k).step_by(KC) {
+            let kc = KC.min(k - pc);
+            // After the first inner block every chain continues from its stored partial value.
+            let load = accumulate || pc > 0;
+            let (b_rs, b_cs) = b.strides();
+            pack(&mut ws.packed_b, Source { data: b.data, origin: pc * b_rs + jc * b_cs, step: b_rs, lane: b_cs }, nc, tc, kc);
+            for ic in (0..m).step_by(MC) {
+                let mc = MC.min(m - ic);
+                let panels_a = mc.div_ceil(tr);
+                let (a_rs, a_cs) = a.strides();
+                pack(&mut ws.packed_a, Source { data: a.data, origin: ic * a_rs + pc * a_cs, step: a_cs, lane: a_rs }, mc, tr, kc);
+                for jp in 0..panels_b {
+                    let j0 = jp * tc;
+                    let cols = tc.min(nc - j0);
+                    let bp = &ws.packed_b[jp * kc * tc..(jp + 1) * kc * tc];
+                    for ip in 0..panels_a {
+                        let i0 = ip * tr;
+                        let rows = tr.min(mc - i0);
+                        let ap = &ws.packed_a[ip * kc * tr..(ip + 1) * kc * tr];
+                        let (row, col) = (ic + i0, jc + j0);
+                        let origin = row * row_stride + col * col_stride;
+                        if rows == tr && cols == tc && col_stride == 1 {
+                            let block = &mut data[origin..origin + (tr - 1) * row_stride + tc];
+                            // SAFETY: `ap` holds kc x tr values and `bp` kc x tc (packed above);
+                            // `block` spans the tr x tc destination block with row stride
+                            // `row_stride`; the workspace's tile is of a level the CPU runs
+                            // (checked in `Workspace::new`).
+                            unsafe { compute(kc, ap.as_ptr(), bp.as_ptr(), block.as_mut_ptr(), row_stride, load) };
+                        } else {
+                            let edge = &mut ws.edge;
+                            if load {
+                                for r in 0..rows {
+                                    for j in 0..cols {
+                                        edge[r * tc + j] = data[origin + r * row_stride + j * col_stride];
+                                    }
+                                }
+                            }
+                            // SAFETY: as above, with `edge` a full tr x tc block of row stride tc.
+                            unsafe { compute(kc, ap.as_ptr(), bp.as_ptr(), edge.as_mut_ptr(), tc, load) };
+                            for r in 0..rows {
+                                for j in 0..cols {
+                                    data[origin + r * row_stride + j * col_stride] = edge[r * tc + j];
+                                }
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// A matrix of `rows` outputs by k steps: (row r, step p) at `data[r row_stride + p step]`.
+struct Strided<'a, T> {
+    data: &'a [T],
+    rows: usize,
+    row_stride: usize,
+    step: usize,
+}
+
+/// `out[r] = chain over p of fma(mat(r, p), x[p], .)`, started from `out[r]` or +0: vectors
+/// across outputs where they lie side by side, interleaved chains where each output's steps do,
+/// and one chain at a time for the remainder.
+fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: bool, ws: &Workspace<T>) {
+    let k = x.len();
+    let Strided { data, rows, row_stride, step } = mat;
+    let kernels = &ws.kernels;
+    let mut done = 0;
+    if row_stride == 1 {
+        let width = kernels.across_width;
+        while done + width <= rows {
+            // SAFETY: mat(r, p) for r < rows, p < k lies in `data` (checked in `View::new`), so
+            // the block's last value, (k-1) step + done + width - 1, does too; `out` has `rows`
+            // values; the workspace's kernels are of a level the CPU runs.
+            unsafe { (kernels.across)(k, data[done..].as_ptr(), step, x.as_ptr(), out[done..].as_mut_ptr(), load) };
+            done += width;
+        }
+    } else if step == 1 {
+        let group = kernels.along_rows;
+        while done + group <= rows {
+            // SAFETY: as above; the group's last value is (done + group - 1) row_stride + k - 1.
+            unsafe { (kernels.along)(k, data[done * row_stride..].as_ptr(), row_stride, x.as_ptr(), out[done..].as_mut_ptr(), load) };
+            done += group;
+        }
+    }
+    for (r, o) in out.iter_mut().enumerate().take(rows).skip(done) {
+        let start = if load { *o } else { T::zero() };
+        *o = x.iter().enumerate().fold(start, |acc, (p, &xp)| data[r * row_stride + p * step].fused(xp, acc));
+    }
+}
+
+/// A block of an operand to pack: value (step p, lane l) at `data[origin + p step + l lane]`.
+struct Source<'a, T> {
+    data: &'a [T],
+    origin: usize,
+    step: usize,
+    lane: usize,
+}
+
+/// Packs `lanes` lanes (padded with zeros to whole panels of `width`) by `depth` inner steps:
+/// panel q, step p, lane l holds the source's (p, q width + l) at `(q depth + p) width + l`.
+fn pack<T: Real>(buffer: &mut Vec<T>, src: Source<'_, T>, lanes: usize, width: usize, depth: usize) {
+    let panels = lanes.div_ceil(width);
+    let len = panels * width * depth;
+    if buffer.len() < len {
+        buffer.resize(len, T::zero());
+    }
+    let Source { data, origin, step, lane } = src;
+    for q in 0..panels {
+        let panel = &mut buffer[q * width * depth..(q + 1) * width * depth];
+        let first = q * width;
+        let used = width.min(lanes - first);
+        if lane == 1 {
+            // Lanes contiguous in the source: one slice copy per step.
+            for (p, dst) in panel.chunks_exact_mut(width).enumerate() {
+                let start = origin + p * step + first;
+                dst[..used].copy_from_slice(&data[start..start + used]);
+                dst[used..].fill(T::zero());
+            }
+        } else {
+            // Steps contiguous (or neither): walk each lane along its steps.
+            for l in 0..width {
+                if l < used {
+                    let start = origin + (first + l) * lane;
+                    for (p, dst) in panel.iter_mut().skip(l).step_by(width).enumerate() {
+                        *dst = data[start + p * step];
+                    }
+                } else {
+                    panel.iter_mut().skip(l).step_by(width).for_each(|v| *v = T::zero());
+                }
+            }
+        }
     }
 }
 
@@ -86,44 +280,114 @@ pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate
 mod tests {
     use super::*;
 
-    fn naive(a: &[f64], (m, k): (usize, usize), b: &[f64], n: usize) -> Vec<f64> {
-        let mut out = vec![0.0; m * n];
+    /// The definition: one `mul_add` chain per element in increasing inner index.
+    fn reference(a: &[f32], (m, k): (usize, usize), b: &[f32], n: usize, start: Option<&[f32]>) -> Vec<f32> {
+        let mut out = vec![0.0f32; m * n];
         for i in 0..m {
             for j in 0..n {
-                out[i * n + j] = (0..k).map(|p| a[i * k + p] * b[p * n + j]).sum();
+                let mut acc = start.map_or(0.0, |s| s[i * n + j]);
+                for p in 0..k {
+                    acc = a[i * k + p].mul_add(b[p * n + j], acc);
+                }
+                out[i * n + j] = acc;
             }
         }
         out
     }
 
-    fn transpose(a: &[f64], rows: usize, cols: usize) -> Vec<f64> {
+    fn transpose(a: &[f32], rows: usize, cols: usize) -> Vec<f32> {
         (0..cols).flat_map(|j| (0..rows).map(move |i| a[i * cols + j])).collect()
     }
 
+    /// Values of mixed sign and magnitude, so that rounding differs between summation orders.
+    fn values(len: usize, salt: u64) -> Vec<f32> {
+        let mut state = salt.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1;
+        (0..len)
+            .map(|_| {
+                state ^= state << 13;
+                state ^= state >> 7;
+                state ^= state << 17;
+                let unit = (state >> 40) as f32 / (1u64 << 24) as f32 - 0.5;
+                unit * [1.0, 1e-3, 37.0, 0.01][(state & 3) as usize]
+            })
+            .collect()
+    }
+
+    fn bits(v: &[f32]) -> Vec<u32> {
+        v.iter().map(|x| x.to_bits()).collect()
+    }
+
+    /// Every level, every orientation, accumulate on and off, bit for bit against the reference.
+    fn check_shape(m: usize, k: usize, n: usize) {
+        let a = values(m * k, (m * 131 + k * 7 + n) as u64);
+        let b = values(k * n, (n * 977 + k) as u64);
+        let start = values(m * n, (m + n * 3 + k * 11) as u64);
+        let plain = bits(&reference(&a, (m, k), &b, n, None));
+        let accumulated = bits(&reference(&a, (m, k), &b, n, Some(&start)));
+        let (at, bt) = (transpose(&a, m, k), transpose(&b, k, n));
+        for level in Level::available_levels() {
+            let mut ws = Workspace::<f32>::new(level);
+            let views = [
+                (View::new(&a, m, k), View::new(&b, k, n)),
+                (View::new(&at, k, m).t(), View::new(&b, k, n)),
+                (View::new(&a, m, k), View::new(&bt, n, k).t()),
+                (View::new(&at, k, m).t(), View::new(&bt, n, k).t()),
+            ];
+            for (orientation, (x, y)) in views.into_iter().enumerate() {
+                let mut got = vec![f32::NAN; m * n];
+                matmul(&mut got, x, y, false, &mut ws);
+                assert!(bits(&got) == plain, "{m}x{k}x{n} level {} orientation {orientation}: differs from the reference", level.name());
+                let mut acc = start.clone();
+                matmul(&mut acc, x, y, true, &mut ws);
+                assert!(bits(&acc) == accumulated, "{m}x{k}x{n} level {} orientation {orientation} accumulating: differs", level.name());
+            }
+        }
+    }
+
     #[test]
-    fn products_match_the_definition_in_every_orientation() {
-        let (m, k, n) = (5, 7, 3);
+    fn every_level_matches_the_reference_bit_for_bit_on_small_shapes() {
+        for m in 1..=67 {
+            for n in [1, 2, 3, 5, 7, 15, 16, 17, 31, 32, 33, 47, 64, 67] {
+                for k in [1, 2, 3, 8, 13, 33, 67] {
+                    check_shape(m, k, n);
+                }
+            }
+        }
+        for k in 1..=67 {
+            check_shape(7, k, 19);
+        }
+    }
+
+    #[test]
+    fn every_level_matches_the_reference_bit_for_bit_across_block_edges() {
+        // Shapes crossing the inner (KC), row (MC) and column (NC) blocks.
+        for (m, k, n) in [(256, 256, 256), (145, 600, 33), (300, 257, 513), (1, 1000, 1), (600, 3, 1100), (37, 513, 600)] {
+            check_shape(m, k, n);
+        }
+    }
+
+    #[test]
+    fn empty_inner_dimension_clears_or_keeps_the_destination() {
+        let mut ws = Workspace::<f32>::new(Level::Scalar);
+        let mut dst = vec![3.0f32; 6];
+        matmul(&mut dst, View::new(&[], 2, 0), View::new(&[], 0, 3), true, &mut ws);
+        assert_eq!(dst, vec![3.0; 6]);
+        matmul(&mut dst, View::new(&[], 2, 0), View::new(&[], 0, 3), false, &mut ws);
+        assert_eq!(dst, vec![0.0; 6]);
+    }
+
+    #[test]
+    fn f64_products_follow_the_same_definition() {
+        let (m, k, n) = (5, 300, 3);
         let a: Vec<f64> = (0..m * k).map(|i| (i as f64 * 0.37).sin()).collect();
         let b: Vec<f64> = (0..k * n).map(|i| (i as f64 * 0.91).cos()).collect();
-        let want = naive(&a, (m, k), &b, n);
-        let at = transpose(&a, m, k);
-        let bt = transpose(&b, k, n);
-        let cases = [
-            (View::new(&a, m, k), View::new(&b, k, n)),
-            (View::new(&at, k, m).t(), View::new(&b, k, n)),
-            (View::new(&a, m, k), View::new(&bt, n, k).t()),
-            (View::new(&at, k, m).t(), View::new(&bt, n, k).t()),
-        ];
-        for (x, y) in cases {
-            let mut got = vec![0.0; m * n];
-            matmul(&mut got, x, y, false);
-            for (g, w) in got.iter().zip(&want) {
-                assert!((g - w).abs() < 1e-12, "{g} vs {w}");
-            }
-            let mut acc = vec![1.0; m * n];
-            matmul(&mut acc, x, y, true);
-            for (g, w) in acc.iter().zip(&want) {
-                assert!((g - (w + 1.0)).abs() < 1e-12);
+        let mut ws = Workspace::<f64>::new(Level::best());
+        let mut got = vec![0.0; m * n];
+        matmul(&mut got, View::new(&a, m, k), View::new(&b, k, n), false, &mut ws);
+        for i in 0..m {
+            for j in 0..n {
+                let want = (0..k).fold(0.0f64, |acc, p| a[i * k + p].mul_add(b[p * n + j], acc));
+                assert_eq!(got[i * n + j].to_bits(), want.to_bits());
             }
         }
     }

@@ -4,10 +4,12 @@
 //! Every random draw comes from a `rng::Stream` passed in; nothing here uses candle's own
 //! (thread-local) random functions.
 
+pub mod dispatch;
 pub mod engine;
 pub mod layers;
 pub mod loss;
 pub mod matmul;
+pub mod microkernel;
 pub mod mlp;
 pub mod optim;
 pub mod scalar;

@@ -1,8 +1,12 @@
 //! The element types the training engine computes in: f32 for every run, f64 for gradient and
 //! convergence tests. Elementary functions come from the pure-Rust `libm`, so that their results
-//! do not depend on the platform's C library.
+//! do not depend on the platform's C library. Each type names the matrix-multiply tile it
+//! computes with at a dispatch level (f64, used only by tests, always the scalar one).
 
 use candle_core::WithDType;
+
+use super::dispatch::Level;
+use super::microkernel::{self, Kernels};
 
 pub trait Real: WithDType + Default + std::fmt::Debug + std::ops::Neg<Output = Self> {
     fn exp(self) -> Self;
@@ -13,6 +17,10 @@ pub trait Real: WithDType + Default + std::fmt::Debug + std::ops::Neg<Output = S
     fn widen(self) -> f64;
     /// `x` rounded to this type.
     fn narrow(x: f64) -> Self;
+    /// `self a + b` with one rounding (the pure-Rust libm's correctly rounded fma).
+    fn fused(self, a: Self, b: Self) -> Self;
+    /// The kernels of the portable matrix multiply at `level` (`nn/microkernel.rs`).
+    fn kernels(level: Level) -> Kernels<Self>;
 }
 
 impl Real for f32 {
@@ -36,6 +44,12 @@ impl Real for f32 {
     fn narrow(x: f64) -> Self {
         x as f32
     }
+    fn fused(self, a: Self, b: Self) -> Self {
+        libm::fmaf(self, a, b)
+    }
+    fn kernels(level: Level) -> Kernels<Self> {
+        microkernel::f32_kernels(level)
+    }
 }
 
 impl Real for f64 {
@@ -58,5 +72,11 @@ impl Real for f64 {
     #[inline(always)]
     fn narrow(x: f64) -> Self {
         x
+    }
+    fn fused(self, a: Self, b: Self) -> Self {
+        libm::fma(self, a, b)
+    }
+    fn kernels(_level: Level) -> Kernels<Self> {
+        microkernel::scalar::<f64>()
     }
 }

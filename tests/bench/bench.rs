@@ -7,7 +7,8 @@
 //! bench hash DATA                           file hash and logical content hash vs sha2 on the same bytes
 //! bench load DATA                           Parquet -> table -> standardised f32 training matrix
 //! bench scale ROWS COLS                     one epoch of the reference MLP on an in-memory matrix, peak RSS
-//! bench matmul                              gemm's single-threaded rate on the reference MLP's products
+//! bench matmul                              the portable kernels' rate per dispatch level, and gemm's,
+//!                                           on the reference MLP's products
 //! ```
 
 use std::path::Path;
@@ -196,25 +197,79 @@ fn bench_scale(args: &[String]) {
     );
 }
 
-/// gemm's own rate, single-threaded, on the products one training step of the reference MLP
-/// makes (batch 256): forward, weight gradients, input gradients.
+/// How a product reads its operands, as the engine's three products do.
+#[derive(Clone, Copy)]
+enum Orientation {
+    /// x W (forward)
+    Plain,
+    /// h^T dz (weight gradient: the left operand read transposed)
+    LeftTransposed,
+    /// dz W^T (input gradient: the right operand read transposed)
+    RightTransposed,
+}
+
+/// Single-threaded GFLOP/s of tabcard's portable kernels at every dispatch level this CPU runs,
+/// and of the gemm crate (the kernels tabcard 0.2 trained with, AVX-512 enabled), on the
+/// products one training step of the reference MLP makes (batch 256) and on a 1024 cube. Each
+/// figure is the best of 5 timed repetitions after one untimed warm-up call; the timer covers the
+/// products only (operands allocated and filled outside it).
 fn bench_matmul() {
-    use tabcard::nn::matmul::{matmul, View};
-    let shapes = [(256usize, 32usize, 256usize, "x W1"), (256, 256, 256, "h W2, h^T dz, dz W2^T"), (32, 256, 256, "x^T dz1"), (1024, 1024, 1024, "1024 cube")];
-    let mut parts = Vec::new();
-    for (m, k, n, what) in shapes {
-        let a: Vec<f32> = (0..m * k).map(|i| (i % 7) as f32 * 0.1).collect();
-        let b: Vec<f32> = (0..k * n).map(|i| (i % 5) as f32 * 0.1).collect();
+    use tabcard::nn::dispatch::Level;
+    use tabcard::nn::matmul::{matmul, View, Workspace};
+    use Orientation::*;
+    let shapes = [
+        (256usize, 32usize, 256usize, Plain, "x W1"),
+        (256, 256, 256, Plain, "h W2"),
+        (256, 256, 256, LeftTransposed, "h^T dz2"),
+        (256, 256, 256, RightTransposed, "dz2 W2^T"),
+        (32, 256, 256, LeftTransposed, "x^T dz1"),
+        (256, 256, 1, Plain, "h W3 (head)"),
+        (1024, 1024, 1024, Plain, "1024 cube"),
+    ];
+    let mut ours: Vec<(Level, Vec<String>)> = Level::available_levels().into_iter().map(|l| (l, Vec::new())).collect();
+    let mut theirs = Vec::new();
+    for (m, k, n, orientation, what) in shapes {
+        let a: Vec<f32> = (0..m * k).map(|i| (i % 7) as f32 * 0.1 - 0.3).collect();
+        let b: Vec<f32> = (0..k * n).map(|i| (i % 5) as f32 * 0.1 - 0.2).collect();
         let mut c = vec![0f32; m * n];
         let reps = (2e9 / (2.0 * (m * n * k) as f64)).max(3.0) as usize;
+        let flops = 2.0 * (m * n * k * reps) as f64;
+        let label = format!("{m}x{k}x{n} {what}");
+        let (va, vb) = match orientation {
+            Plain => (View::new(&a, m, k), View::new(&b, k, n)),
+            LeftTransposed => (View::new(&a, k, m).t(), View::new(&b, k, n)),
+            RightTransposed => (View::new(&a, m, k), View::new(&b, n, k).t()),
+        };
+        for (level, parts) in &mut ours {
+            let mut ws = Workspace::<f32>::new(*level);
+            matmul(&mut c, va, vb, false, &mut ws);
+            let (best, _) = best_of(5, || {
+                for _ in 0..reps {
+                    matmul(&mut c, va, vb, false, &mut ws);
+                }
+            });
+            parts.push(format!("\"{label}\": {:.1}", flops / best / 1e9));
+        }
+        // gemm's strides: (column stride, row stride) of each operand as read.
+        let (a_cs, a_rs) = match orientation { LeftTransposed => (m as isize, 1), _ => (1, k as isize) };
+        let (b_cs, b_rs) = match orientation { RightTransposed => (k as isize, 1), _ => (1, n as isize) };
+        let run_gemm = |c: &mut [f32]| {
+            // SAFETY: every index gemm touches is inside a (m x k), b (k x n) and c (m x n) as
+            // laid out by the strides above; c does not alias a or b.
+            unsafe {
+                gemm::gemm(m, n, k, c.as_mut_ptr(), 1, n as isize, false, a.as_ptr(), a_cs, a_rs, b.as_ptr(), b_cs, b_rs, 1.0f32, 1.0f32, false, false, false, gemm::Parallelism::None)
+            }
+        };
+        run_gemm(&mut c);
         let (best, _) = best_of(5, || {
             for _ in 0..reps {
-                matmul(&mut c, View::new(&a, m, k), View::new(&b, k, n), false);
+                run_gemm(&mut c);
             }
         });
-        parts.push(format!("\"{m}x{k}x{n} ({what})\": {:.1}", 2.0 * (m * n * k * reps) as f64 / best / 1e9));
+        theirs.push(format!("\"{label}\": {:.1}", flops / best / 1e9));
     }
-    println!("{{\"gemm_gflops\": {{{}}}}}", parts.join(", "));
+    let levels: Vec<String> = ours.iter().map(|(l, parts)| format!("\"{}\": {{{}}}", l.name(), parts.join(", "))).collect();
+    println!("{{\"kernel_gflops\": {{{}}}, \"gemm_gflops\": {{{}}}}}", levels.join(", "), theirs.join(", "));
 }
 
 fn main() {

@@ -24,7 +24,8 @@ if ! command -v slurmctld >/dev/null || ! command -v munged >/dev/null; then
   fi
 fi
 
-cargo build --release --quiet
+# The test build's binary (same features as the suite, so nothing rebuilds after `cargo test`).
+cargo test --release --no-run --quiet
 tabcard="$repo/target/release/tabcard"
 work="$(mktemp -d "${TMPDIR:-/tmp}/tabcard-slurm.XXXXXX")"
 cluster="$work/cluster"

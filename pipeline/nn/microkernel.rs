@@ -1,0 +1,358 @@
+//! The register tiles of the portable matrix multiply, one per dispatch level: an `MR x NR` block
+//! of the product, each output element one chain of fused multiply-adds over the inner dimension
+//! in increasing index order, started from the destination's value or from +0. Vectors run across
+//! output columns (each lane a different output element), never across the inner dimension, so
+//! the vector width cannot change a bit: the scalar, AVX2 and AVX-512 tiles compute the same
+//! values. The operands of the tiles come packed by `nn/matmul.rs`; matrix-vector products
+//! (one output row or column) use two unpacked kernels with the same chains: vectors across
+//! outputs when the outputs lie side by side in memory, interleaved one-lane chains when each
+//! output's inner steps do.
+
+use super::dispatch::Level;
+
+/// Everything one level computes products with.
+#[derive(Clone, Copy)]
+pub struct Kernels<T> {
+    pub tile: Tile<T>,
+    /// `across(k, mat, step, x, out, load)`: for l < `across_width`,
+    /// `out[l] = fma(mat[(k-1) step + l], x[k-1], ... fma(mat[l], x[0], o0))`, o0 = `out[l]` when
+    /// `load`, else +0.
+    ///
+    /// # Safety
+    /// `mat` spans `(k-1) step + across_width` values, `x` k values, `out` `across_width`; the CPU
+    /// runs the level.
+    pub across: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
+    pub across_width: usize,
+    /// `along(k, mat, stride, x, out, load)`: for r < `along_rows`,
+    /// `out[r] = fma(mat[r stride + k-1], x[k-1], ... fma(mat[r stride], x[0], o0))`.
+    ///
+    /// # Safety
+    /// `mat` spans `(along_rows-1) stride + k` values, `x` k values, `out` `along_rows`; the CPU
+    /// runs the level.
+    pub along: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
+    pub along_rows: usize,
+}
+
+/// One level's tile for element type `T`: its shape and the function that computes it.
+#[derive(Clone, Copy)]
+pub struct Tile<T> {
+    pub rows: usize,
+    pub cols: usize,
+    /// `compute(kc, a, b, c, ldc, load)`: for r < rows, j < cols,
+    /// `c[r ldc + j] = fma(a[(kc-1) rows + r], b[(kc-1) cols + j], ... fma(a[r], b[j], c0))` with
+    /// `c0 = c[r ldc + j]` when `load`, else +0.
+    ///
+    /// # Safety
+    /// `a` holds `kc rows` values, `b` holds `kc cols`, `c` a `rows x cols` block with row stride
+    /// `ldc`, and the CPU runs the tile's level.
+    pub compute: unsafe fn(usize, *const T, *const T, *mut T, usize, bool),
+}
+
+/// A vector of lanes (or one scalar) that the generic tile computes with.
+pub trait Lanes: Copy {
+    type Elem: Copy;
+    const WIDTH: usize;
+    unsafe fn zero() -> Self;
+    unsafe fn splat(x: Self::Elem) -> Self;
+    unsafe fn load(p: *const Self::Elem) -> Self;
+    unsafe fn store(self, p: *mut Self::Elem);
+    /// `a b + acc` with one rounding, lane by lane.
+    unsafe fn fma(a: Self, b: Self, acc: Self) -> Self;
+}
+
+/// The tile of `MR` rows by `NV` vectors, written once for every level.
+#[inline(always)]
+unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(kc: usize, a: *const V::Elem, b: *const V::Elem, c: *mut V::Elem, ldc: usize, load: bool) {
+    let mut acc = [[V::zero(); NV]; MR];
+    if load {
+        for (r, row) in acc.iter_mut().enumerate() {
+            for (v, lane) in row.iter_mut().enumerate() {
+                *lane = V::load(c.add(r * ldc + v * V::WIDTH));
+            }
+        }
+    }
+    for p in 0..kc {
+        let bp = b.add(p * NV * V::WIDTH);
+        let mut bv = [V::zero(); NV];
+        for (v, lane) in bv.iter_mut().enumerate() {
+            *lane = V::load(bp.add(v * V::WIDTH));
+        }
+        let ap = a.add(p * MR);
+        for (r, row) in acc.iter_mut().enumerate() {
+            let x = V::splat(*ap.add(r));
+            for (lane, &bl) in row.iter_mut().zip(&bv) {
+                *lane = V::fma(x, bl, *lane);
+            }
+        }
+    }
+    for (r, row) in acc.iter().enumerate() {
+        for (v, lane) in row.iter().enumerate() {
+            lane.store(c.add(r * ldc + v * V::WIDTH));
+        }
+    }
+}
+
+/// One block of `NV` vectors of outputs, each lane its own chain over the `k` steps.
+#[inline(always)]
+unsafe fn across<V: Lanes, const NV: usize>(k: usize, mat: *const V::Elem, step: usize, x: *const V::Elem, out: *mut V::Elem, load: bool) {
+    let mut acc = [V::zero(); NV];
+    if load {
+        for (v, lane) in acc.iter_mut().enumerate() {
+            *lane = V::load(out.add(v * V::WIDTH));
+        }
+    }
+    for p in 0..k {
+        let xs = V::splat(*x.add(p));
+        let row = mat.add(p * step);
+        for (v, lane) in acc.iter_mut().enumerate() {
+            *lane = V::fma(V::load(row.add(v * V::WIDTH)), xs, *lane);
+        }
+    }
+    for (v, lane) in acc.iter().enumerate() {
+        lane.store(out.add(v * V::WIDTH));
+    }
+}
+
+/// `R` outputs whose steps are contiguous, as `R` interleaved one-lane chains.
+#[inline(always)]
+unsafe fn along<S: Lanes, const R: usize>(k: usize, mat: *const S::Elem, stride: usize, x: *const S::Elem, out: *mut S::Elem, load: bool) {
+    let mut acc = [S::zero(); R];
+    if load {
+        for (r, a) in acc.iter_mut().enumerate() {
+            *a = S::load(out.add(r));
+        }
+    }
+    for p in 0..k {
+        let xp = S::splat(*x.add(p));
+        for (r, a) in acc.iter_mut().enumerate() {
+            *a = S::fma(S::load(mat.add(r * stride + p)), xp, *a);
+        }
+    }
+    for (r, a) in acc.iter().enumerate() {
+        a.store(out.add(r));
+    }
+}
+
+macro_rules! scalar_lanes {
+    ($t:ty, $fma:path) => {
+        impl Lanes for $t {
+            type Elem = $t;
+            const WIDTH: usize = 1;
+            #[inline(always)]
+            unsafe fn zero() -> Self {
+                0.0
+            }
+            #[inline(always)]
+            unsafe fn splat(x: $t) -> Self {
+                x
+            }
+            #[inline(always)]
+            unsafe fn load(p: *const $t) -> Self {
+                *p
+            }
+            #[inline(always)]
+            unsafe fn store(self, p: *mut $t) {
+                *p = self
+            }
+            #[inline(always)]
+            unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+                $fma(a, b, acc)
+            }
+        }
+    };
+}
+scalar_lanes!(f32, libm::fmaf);
+scalar_lanes!(f64, libm::fma);
+
+const SCALAR_ROWS: usize = 4;
+const SCALAR_COLS: usize = 4;
+
+/// Interleaved chains of the matrix-vector kernels (enough to hide the FMA latency).
+const CHAINS: usize = 8;
+
+unsafe fn scalar_tile<T: Lanes<Elem = T>>(kc: usize, a: *const T, b: *const T, c: *mut T, ldc: usize, load: bool) {
+    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, b, c, ldc, load)
+}
+
+unsafe fn scalar_across<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x: *const T, out: *mut T, load: bool) {
+    across::<T, CHAINS>(k, mat, step, x, out, load)
+}
+
+unsafe fn scalar_along<T: Lanes<Elem = T>>(k: usize, mat: *const T, stride: usize, x: *const T, out: *mut T, load: bool) {
+    along::<T, CHAINS>(k, mat, stride, x, out, load)
+}
+
+/// The scalar kernels: what f64 always uses, and f32 where no vector level runs.
+pub fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
+    Kernels {
+        tile: Tile { rows: SCALAR_ROWS, cols: SCALAR_COLS, compute: scalar_tile::<T> },
+        across: scalar_across::<T>,
+        across_width: CHAINS,
+        along: scalar_along::<T>,
+        along_rows: CHAINS,
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+mod x86 {
+    use super::{tile, Lanes};
+    use std::arch::x86_64::*;
+
+    #[derive(Clone, Copy)]
+    pub struct Ymm(__m256);
+
+    impl Lanes for Ymm {
+        type Elem = f32;
+        const WIDTH: usize = 8;
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn zero() -> Self {
+            Ymm(_mm256_setzero_ps())
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn splat(x: f32) -> Self {
+            Ymm(_mm256_set1_ps(x))
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn load(p: *const f32) -> Self {
+            Ymm(_mm256_loadu_ps(p))
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn store(self, p: *mut f32) {
+            _mm256_storeu_ps(p, self.0)
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+            Ymm(_mm256_fmadd_ps(a.0, b.0, acc.0))
+        }
+    }
+
+    #[derive(Clone, Copy)]
+    pub struct Zmm(__m512);
+
+    impl Lanes for Zmm {
+        type Elem = f32;
+        const WIDTH: usize = 16;
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn zero() -> Self {
+            Zmm(_mm512_setzero_ps())
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn splat(x: f32) -> Self {
+            Zmm(_mm512_set1_ps(x))
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn load(p: *const f32) -> Self {
+            Zmm(_mm512_loadu_ps(p))
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn store(self, p: *mut f32) {
+            _mm512_storeu_ps(p, self.0)
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+            Zmm(_mm512_fmadd_ps(a.0, b.0, acc.0))
+        }
+    }
+
+    /// One lane with the CPU's fused multiply-add instruction.
+    #[derive(Clone, Copy)]
+    pub struct Fma1(f32);
+
+    impl Lanes for Fma1 {
+        type Elem = f32;
+        const WIDTH: usize = 1;
+        #[inline]
+        #[target_feature(enable = "fma")]
+        unsafe fn zero() -> Self {
+            Fma1(0.0)
+        }
+        #[inline]
+        #[target_feature(enable = "fma")]
+        unsafe fn splat(x: f32) -> Self {
+            Fma1(x)
+        }
+        #[inline]
+        #[target_feature(enable = "fma")]
+        unsafe fn load(p: *const f32) -> Self {
+            Fma1(*p)
+        }
+        #[inline]
+        #[target_feature(enable = "fma")]
+        unsafe fn store(self, p: *mut f32) {
+            *p = self.0
+        }
+        #[inline]
+        #[target_feature(enable = "fma")]
+        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+            Fma1(a.0.mul_add(b.0, acc.0))
+        }
+    }
+
+    pub const ALONG_ROWS: usize = 8;
+    pub const ACROSS_VECTORS: usize = 4;
+
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn fma_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::along::<Fma1, ALONG_ROWS>(k, mat, stride, x, out, load)
+    }
+
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn avx2_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::across::<Ymm, ACROSS_VECTORS>(k, mat, step, x, out, load)
+    }
+
+    #[target_feature(enable = "avx512f")]
+    pub unsafe fn avx512_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::across::<Zmm, ACROSS_VECTORS>(k, mat, step, x, out, load)
+    }
+
+    pub const AVX2_ROWS: usize = 6;
+    pub const AVX2_VECTORS: usize = 2;
+    pub const AVX512_ROWS: usize = 6;
+    pub const AVX512_VECTORS: usize = 2;
+
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn avx2_tile(kc: usize, a: *const f32, b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, b, c, ldc, load)
+    }
+
+    #[target_feature(enable = "avx512f")]
+    pub unsafe fn avx512_tile(kc: usize, a: *const f32, b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, b, c, ldc, load)
+    }
+}
+
+/// The f32 kernels of `level`. Callers check that the CPU runs the level ([`Level::available`]).
+pub fn f32_kernels(level: Level) -> Kernels<f32> {
+    match level {
+        Level::Scalar => scalar::<f32>(),
+        #[cfg(target_arch = "x86_64")]
+        Level::Avx2 => Kernels {
+            tile: Tile { rows: x86::AVX2_ROWS, cols: x86::AVX2_VECTORS * 8, compute: x86::avx2_tile },
+            across: x86::avx2_across,
+            across_width: x86::ACROSS_VECTORS * 8,
+            along: x86::fma_along,
+            along_rows: x86::ALONG_ROWS,
+        },
+        #[cfg(target_arch = "x86_64")]
+        Level::Avx512 => Kernels {
+            tile: Tile { rows: x86::AVX512_ROWS, cols: x86::AVX512_VECTORS * 16, compute: x86::avx512_tile },
+            across: x86::avx512_across,
+            across_width: x86::ACROSS_VECTORS * 16,
+            along: x86::fma_along,
+            along_rows: x86::ALONG_ROWS,
+        },
+        #[cfg(not(target_arch = "x86_64"))]
+        _ => scalar::<f32>(),
+    }
+}

@@ -1,0 +1,277 @@
+//! The promise "same bits on any CPU", tested on whatever machine runs the suite:
+//! - a committed golden file of digests (`tests/golden/portable-v1.json`) that a small fixed
+//!   experiment must reproduce at every dispatch level this CPU runs, with one worker or two, and
+//!   restricted to one CPU (`taskset`); this is the check that catches drift across machines;
+//! - the demo lease sweep trained with each forced dispatch level gives identical weights,
+//!   histories and metrics;
+//! - no numerics code reads cache sizes or calls another crate's matrix kernels.
+//!
+//! To regenerate the golden file after a deliberate change of the numerics (which also bumps the
+//! kernel version and the tool version): `TABCARD_WRITE_GOLDEN=1 cargo test --release --test
+//! portable_numerics`, then say in the commit why the bits moved.
+
+mod common;
+
+use common::*;
+use serde_json::Value;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use tabcard::nn::dispatch::Level;
+
+const GOLDEN: &str = "tests/golden/portable-v1.json";
+
+/// A small fixed experiment on 1,500 rows of the invented lease table that uses every regularizer
+/// the engine has over a grid of four configurations and two seeds: dropout, batch norm, residual
+/// blocks, input noise, weight decay, early stopping, gradient clipping.
+fn golden_experiment(dir: &Path) -> PathBuf {
+    let columns = tabcard::demo::lease_defaults(1500, 7);
+    std::fs::write(dir.join("leases.parquet"), tabcard::data::parquet::encode(columns, Default::default()).unwrap()).unwrap();
+    let text = r#"[experiment]
+name = "golden-lease"
+
+[data]
+path = "leases.parquet"
+target = "defaulted_12m"
+task = "binary"
+ids = ["application_id"]
+
+[model]
+hidden = [24, 24]
+residual = true
+input_noise = 0.05
+
+[training]
+epochs = 8
+batch_size = 50
+weight_decay = 0.001
+clip_norm = 5.0
+
+[training.early_stopping]
+patience = 3
+
+[selection]
+bootstrap = 200
+
+[sweep]
+seeds = [1, 2]
+
+[sweep.grid]
+"model.dropout" = [0.0, 0.2]
+"model.batch_norm" = [false, true]
+"#;
+    let path = dir.join("golden.toml");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// Per run id, the SHA-256 of every file the run stores except its environment record (which
+/// names the dispatch level and CPU) and timing; plus the experiment's selection.
+fn digests(results: &Path) -> BTreeMap<String, BTreeMap<String, String>> {
+    let folder = experiment_folder(results).expect("an experiment folder");
+    let mut out = BTreeMap::new();
+    for entry in std::fs::read_dir(folder.join("runs")).unwrap() {
+        let dir = entry.unwrap().path();
+        let name = dir.file_name().unwrap().to_string_lossy().into_owned();
+        if name.starts_with('.') {
+            continue;
+        }
+        let index: Value = serde_json::from_slice(&std::fs::read(dir.join("run.json")).unwrap()).unwrap();
+        let files = index["files"].as_object().unwrap();
+        let kept = files
+            .iter()
+            .filter(|(file, _)| file.as_str() != "environment.json")
+            .map(|(file, sha)| (file.clone(), sha.as_str().unwrap().to_string()))
+            .collect();
+        out.insert(name, kept);
+    }
+    let selection = std::fs::read(folder.join("selection.json")).unwrap();
+    out.insert("(experiment)".into(), BTreeMap::from([("selection.json".to_string(), tabcard::fingerprint::sha256_hex(&selection))]));
+    out
+}
+
+/// The dispatch level each run of a results folder recorded.
+fn recorded_levels(results: &Path) -> Vec<String> {
+    let folder = experiment_folder(results).unwrap();
+    let mut levels: Vec<String> = std::fs::read_dir(folder.join("runs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
+        .map(|p| {
+            let env: Value = serde_json::from_slice(&std::fs::read(p.join("environment.json")).unwrap()).unwrap();
+            env["kernel_level"].as_str().unwrap().to_string()
+        })
+        .collect();
+    levels.dedup();
+    levels
+}
+
+fn train(mut command: Command, dir: &Path, manifest: &Path, results: &str, jobs: &str, level: Level) -> PathBuf {
+    let out = command
+        .current_dir(dir)
+        .args(["train", manifest.to_str().unwrap(), "--results", results, "--jobs", jobs])
+        .env("TABCARD_KERNEL", level.name())
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "train at level {} failed: {}\n{}", level.name(), stdout(&out), stderr(&out));
+    let path = dir.join(results);
+    assert_eq!(recorded_levels(&path), vec![level.name().to_string()], "every run records the level it ran at");
+    path
+}
+
+/// `tabcard` restricted to CPU 0 when `taskset` exists (util-linux), else plain.
+fn on_one_cpu() -> (Command, bool) {
+    let bin = env!("CARGO_BIN_EXE_tabcard");
+    if Command::new("taskset").args(["-c", "0", "true"]).status().is_ok_and(|s| s.success()) {
+        let mut c = Command::new("taskset");
+        c.args(["-c", "0", bin]);
+        (c, true)
+    } else {
+        (Command::new(bin), false)
+    }
+}
+
+fn first_difference(want: &BTreeMap<String, BTreeMap<String, String>>, got: &BTreeMap<String, BTreeMap<String, String>>) -> Option<String> {
+    if want.keys().ne(got.keys()) {
+        return Some(format!("run ids differ: golden {:?}, now {:?}", want.keys().collect::<Vec<_>>(), got.keys().collect::<Vec<_>>()));
+    }
+    for (run, files) in want {
+        for (file, sha) in files {
+            let now = got[run].get(file).map(String::as_str).unwrap_or("(absent)");
+            if now != sha {
+                return Some(format!("run {run} file {file}: golden {sha}, now {now}"));
+            }
+        }
+        if got[run].len() != files.len() {
+            return Some(format!("run {run} stores other files: golden {:?}, now {:?}", files.keys().collect::<Vec<_>>(), got[run].keys().collect::<Vec<_>>()));
+        }
+    }
+    None
+}
+
+#[test]
+fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restriction() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = golden_experiment(dir.path());
+    let levels = Level::available_levels();
+    let best = *levels.last().unwrap();
+
+    // The fastest level with two workers, and the scalar level on one CPU with one worker.
+    let fast = digests(&train(bin(), dir.path(), &manifest, "fast", "2", best));
+    let (one_cpu, restricted) = on_one_cpu();
+    let scalar = digests(&train(one_cpu, dir.path(), &manifest, "scalar-one-cpu", "1", Level::Scalar));
+    if !restricted {
+        eprintln!("note: taskset is not installed; the scalar run was not restricted to one CPU");
+    }
+    assert_eq!(first_difference(&fast, &scalar), None, "level {} with 2 workers vs scalar on one CPU", best.name());
+    for &level in &levels[1..levels.len() - 1] {
+        let other = digests(&train(bin(), dir.path(), &manifest, level.name(), "2", level));
+        assert_eq!(first_difference(&fast, &other), None, "level {} vs level {}", best.name(), level.name());
+    }
+    // 4 configurations x 2 seeds + the linear baseline x 2 seeds.
+    assert_eq!(fast.len(), 10 + 1);
+
+    let golden_path = repo_path(GOLDEN);
+    if std::env::var_os("TABCARD_WRITE_GOLDEN").is_some() {
+        let mut golden: Value = std::fs::read(&golden_path).ok().and_then(|b| serde_json::from_slice(&b).ok()).unwrap_or_else(|| serde_json::json!({}));
+        golden["tool_version"] = env!("CARGO_PKG_VERSION").into();
+        golden["kernel_version"] = tabcard::numerics::KERNEL_VERSION.into();
+        golden["digests"] = serde_json::to_value(&fast).unwrap();
+        std::fs::write(&golden_path, serde_json::to_string_pretty(&golden).unwrap() + "\n").unwrap();
+        eprintln!("wrote {}", golden_path.display());
+        return;
+    }
+    let golden: Value = serde_json::from_slice(&std::fs::read(&golden_path).expect("the golden file is committed")).unwrap();
+    assert_eq!(golden["tool_version"], env!("CARGO_PKG_VERSION"), "{GOLDEN} is for another tabcard version: regenerate it deliberately (see the top of this file)");
+    assert_eq!(golden["kernel_version"], tabcard::numerics::KERNEL_VERSION);
+    let want: BTreeMap<String, BTreeMap<String, String>> = serde_json::from_value(golden["digests"].clone()).unwrap();
+    if let Some(d) = first_difference(&want, &fast) {
+        panic!("this machine does not reproduce {GOLDEN}: {d}\nCPU features: {:?}", tabcard::numerics::current().unwrap().cpu_features);
+    }
+}
+
+/// The stored history, metrics and weight digests of every run, by run id.
+fn run_contents(results: &Path) -> BTreeMap<String, (String, String, String)> {
+    let folder = experiment_folder(results).unwrap();
+    let mut out = BTreeMap::new();
+    for entry in std::fs::read_dir(folder.join("runs")).unwrap() {
+        let dir = entry.unwrap().path();
+        let name = dir.file_name().unwrap().to_string_lossy().into_owned();
+        if name.starts_with('.') {
+            continue;
+        }
+        let read = |f: &str| std::fs::read_to_string(dir.join(f)).unwrap_or_default();
+        let metrics: Value = serde_json::from_str(&read("metrics.json")).unwrap();
+        out.insert(name, (metrics["weights_sha256"].to_string(), read("history.csv"), read("metrics.json")));
+    }
+    out
+}
+
+#[test]
+fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = repo_path("experiments/lease-default.toml");
+    let mut reference: Option<(Level, BTreeMap<String, (String, String, String)>)> = None;
+    for level in Level::available_levels().into_iter().rev() {
+        let results = train(bin(), dir.path(), &manifest, level.name(), "2", level);
+        let contents = run_contents(&results);
+        assert!(contents.len() >= 12, "the demo sweep trains its whole grid ({} runs)", contents.len());
+        match &reference {
+            None => reference = Some((level, contents)),
+            Some((first, want)) => {
+                assert_eq!(want.keys().collect::<Vec<_>>(), contents.keys().collect::<Vec<_>>());
+                for (run, (weights, history, metrics)) in want {
+                    let got = &contents[run];
+                    assert_eq!(weights, &got.0, "run {run}: weights at {} vs {}", first.name(), level.name());
+                    assert_eq!(history, &got.1, "run {run}: history at {} vs {}", first.name(), level.name());
+                    assert_eq!(metrics, &got.2, "run {run}: metrics at {} vs {}", first.name(), level.name());
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn an_unusable_forced_level_is_a_clear_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 300, "");
+    for (value, expected) in [("sse9", "is not a dispatch level"), ("neon", "no NEON kernels")] {
+        let out = bin().current_dir(dir.path()).args(["train", manifest.to_str().unwrap(), "--results", "r"]).env("TABCARD_KERNEL", value).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+        assert!(stderr(&out).contains(expected) && stderr(&out).contains("TABCARD_KERNEL"), "{}", stderr(&out));
+        assert!(experiment_folder(&dir.path().join("r")).is_none(), "nothing is written before the error");
+    }
+}
+
+/// Every Rust source file under `pipeline/`, with its text.
+fn sources() -> Vec<(PathBuf, String)> {
+    fn walk(dir: &Path, out: &mut Vec<(PathBuf, String)>) {
+        for entry in std::fs::read_dir(dir).unwrap() {
+            let path = entry.unwrap().path();
+            if path.is_dir() {
+                walk(&path, out);
+            } else if path.extension().is_some_and(|e| e == "rs") {
+                let text = std::fs::read_to_string(&path).unwrap();
+                out.push((path, text));
+            }
+        }
+    }
+    let mut out = Vec::new();
+    walk(&repo_path("pipeline"), &mut out);
+    out
+}
+
+#[test]
+fn no_numerics_code_reads_cache_sizes_or_calls_other_matrix_kernels() {
+    let sources = sources();
+    assert!(sources.len() > 20);
+    for (path, text) in &sources {
+        for forbidden in ["/sys/devices/system/cpu", "cache/index", "gemm::", "sysconf", "_SC_LEVEL1_DCACHE", "cpuid"] {
+            assert!(!text.contains(forbidden), "{} mentions `{forbidden}`", path.display());
+        }
+    }
+    let manifest = std::fs::read_to_string(repo_path("Cargo.toml")).unwrap();
+    let dependencies = &manifest[manifest.find("[dependencies]").unwrap()..manifest.find("[dev-dependencies]").unwrap()];
+    assert!(!dependencies.contains("gemm"), "the library must not depend on the gemm crate");
+}
