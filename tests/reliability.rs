@@ -156,7 +156,8 @@ fn tampered_or_foreign_results_fail_clearly() {
     for args in [vec!["card", "newer"], vec!["verify", "newer"], vec!["predict", "newer", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
-        assert_eq!(stderr(&o).trim_end(), "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard 0.2.0 reads version 1", "{args:?}");
+        let expected = format!("error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 1", env!("CARGO_PKG_VERSION"));
+        assert_eq!(stderr(&o).trim_end(), expected, "{args:?}");
     }
     let unknown = copy("unknown");
     std::fs::remove_file(unknown.join("format.json")).unwrap();

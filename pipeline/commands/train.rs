@@ -124,12 +124,13 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 
 pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
     let started = Instant::now();
+    // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
+    let environment = crate::numerics::current()?;
     let prepared = Prepared::new(open(manifest_path)?)?;
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
     prepare_folder(exp, &layout, plan, preprocessor)?;
-    let environment = crate::numerics::current()?;
     let inputs = SweepInputs {
         layout: &layout,
         plan,

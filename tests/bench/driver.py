@@ -2,7 +2,9 @@
 alternately, REPS times, and prints medians, ratios and the share of the machine's single-core
 matrix-multiply peak. Every figure comes from this run; nothing is asserted.
 
-Usage: python driver.py WORKDIR [--reps N] [--torch PYTHON]   (PYTHON: an interpreter with torch)
+Usage: python driver.py WORKDIR [--reps N] [--torch PYTHON] [--previous BENCH]
+  PYTHON: an interpreter with torch; BENCH: the `bench` program of an earlier tabcard build
+  (run.sh builds tabcard 0.2.0, the gemm-based engine), for the engine-against-engine case.
 """
 import argparse
 import json
@@ -96,6 +98,7 @@ def main():
     p.add_argument("workdir")
     p.add_argument("--reps", type=int, default=3)
     p.add_argument("--torch", default=None, help="python with torch installed; omit to skip PyTorch")
+    p.add_argument("--previous", default=None, help="bench program of an earlier tabcard build; omit to skip")
     a = p.parse_args()
     w = a.workdir
     os.makedirs(w, exist_ok=True)
@@ -147,8 +150,27 @@ def main():
     runs, paired_peaks = reference
     params = runs[0]["parameters"]
     achieved = [6 * params * r["samples_per_second"] / 1e9 for r in runs]
-    mm = run_json([BENCH, "matmul"])["gemm_gflops"]
-    report("   gemm crate (tabcard's kernels), single thread: " + "; ".join(f"{k} {v:.0f}" for k, v in mm.items()) + " GFLOP/s")
+    mm = run_json([BENCH, "matmul"])
+    report("   matrix kernels, single thread, GFLOP/s (best of 5; tabcard's portable kernels at each dispatch level, and the gemm crate tabcard 0.2 used):")
+    levels = list(mm["kernel_gflops"])
+    report(f"     {'product (m x k x n)':<32}" + "".join(f"{l:>9}" for l in levels) + f"{'gemm':>9}")
+    for shape, g in mm["gemm_gflops"].items():
+        report(f"     {shape:<32}" + "".join(f"{mm['kernel_gflops'][l][shape]:>9.1f}" for l in levels) + f"{g:>9.1f}")
+    if paired_peaks:
+        top = levels[-1]
+        share = mm["kernel_gflops"][top]["256x256x256 h W2"] / median(paired_peaks)
+        report(f"     256x256x256 at {top}: {100 * share:.0f}% of the numpy/torch single-core peak measured in this run (median {median(paired_peaks):.0f} GFLOP/s)")
+    if a.previous:
+        def new(level):
+            return lambda: run_json([BENCH, "train", data32, "--hidden", "256,256"], env=dict(os.environ, TABCARD_KERNEL=level))
+        old = lambda: run_json([a.previous, "train", data32, "--hidden", "256,256"])
+        report("   reference MLP, this engine against tabcard 0.2.0's gemm-based engine (samples/s, one core, same data and settings):")
+        for level in reversed(levels):
+            if level == "scalar":
+                continue
+            n, o = alternate(a.reps, new(level), old)
+            ratio = median([x["samples_per_second"] / y["samples_per_second"] for x, y in zip(n, o)])
+            report(f"     portable kernels at {level:<7} {median([r['samples_per_second'] for r in n]):>10,.0f}   tabcard 0.2.0 {median([r['samples_per_second'] for r in o]):>10,.0f}   ratio {ratio:.2f}x (median of {a.reps} paired ratios)")
     if paired_peaks:
         shares = [x / p for x, p in zip(achieved, paired_peaks)]
         report(f"   single-core float32 matmul peak (numpy/torch 1024x1024, best of 20), measured before each reference run: {', '.join(f'{p:.0f}' for p in paired_peaks)} GFLOP/s")

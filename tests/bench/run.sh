@@ -25,4 +25,18 @@ elif python3 -m venv "$venv" >/dev/null 2>&1 \
 else
   echo "PyTorch skipped: could not install torch, numpy and pyarrow from PyPI (see $work/pip.log)"
 fi
-python3 tests/bench/driver.py "$work" --reps "${REPS:-3}" "${torch_arg[@]}"
+# The previous engine (tabcard 0.2.0 over the gemm crate), built once into $work/previous, for the
+# engine-against-engine case; skipped with a message when the commit is not in this clone.
+previous_commit="${PREVIOUS_COMMIT:-2e98f60}"
+previous_arg=()
+if [[ ! -x "$work/previous-target/release/examples/bench" ]] && git cat-file -e "$previous_commit^{commit}" 2>/dev/null; then
+  rm -rf "$work/previous"
+  git worktree add --force --detach "$work/previous" "$previous_commit" >/dev/null 2>&1 || true
+  (cd "$work/previous" && CARGO_TARGET_DIR="$work/previous-target" cargo build --release --example bench) || true
+fi
+if [[ -x "$work/previous-target/release/examples/bench" ]]; then
+  previous_arg=(--previous "$work/previous-target/release/examples/bench")
+else
+  echo "previous engine skipped: commit $previous_commit is not available"
+fi
+python3 tests/bench/driver.py "$work" --reps "${REPS:-3}" "${torch_arg[@]}" "${previous_arg[@]}"
