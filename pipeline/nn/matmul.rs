@@ -18,7 +18,7 @@ use super::scalar::Real;
 
 /// Inner-dimension block: the length of one stored stretch of each chain.
 const KC: usize = 256;
-/// Rows of `a` packed at a time (a multiple of every tile's row count: 4 and 6).
+/// Rows of `a` packed at a time (a multiple of every tile's row count: 4, 6 and 8).
 const MC: usize = 144;
 /// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 16 and 32).
 const NC: usize = 512;
@@ -232,6 +232,9 @@ fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: boo
     }
 }
 
+/// The widest panel any tile packs (AVX-512's 32 columns).
+const MAX_LANES: usize = 32;
+
 /// A block of an operand to pack: value (step p, lane l) at `data[origin + p step + l lane]`.
 struct Source<'a, T> {
     data: &'a [T],
@@ -243,6 +246,7 @@ struct Source<'a, T> {
 /// Packs `lanes` lanes (padded with zeros to whole panels of `width`) by `depth` inner steps:
 /// panel q, step p, lane l holds the source's (p, q width + l) at `(q depth + p) width + l`.
 fn pack<T: Real>(buffer: &mut Vec<T>, src: Source<'_, T>, lanes: usize, width: usize, depth: usize) {
+    assert!(width <= MAX_LANES, "panels of {width} lanes");
     let panels = lanes.div_ceil(width);
     let len = panels * width * depth;
     if buffer.len() < len {
@@ -260,16 +264,22 @@ fn pack<T: Real>(buffer: &mut Vec<T>, src: Source<'_, T>, lanes: usize, width: u
                 dst[..used].copy_from_slice(&data[start..start + used]);
                 dst[used..].fill(T::zero());
             }
+        } else if step == 1 {
+            // Each lane's steps contiguous: read the lanes side by side, one step at a time.
+            let mut rows: [&[T]; MAX_LANES] = [&[]; MAX_LANES];
+            for (l, row) in rows.iter_mut().enumerate().take(used) {
+                *row = &data[origin + (first + l) * lane..][..depth];
+            }
+            for (p, dst) in panel.chunks_exact_mut(width).enumerate() {
+                for (v, row) in dst.iter_mut().zip(&rows[..used]) {
+                    *v = row[p];
+                }
+                dst[used..].fill(T::zero());
+            }
         } else {
-            // Steps contiguous (or neither): walk each lane along its steps.
-            for l in 0..width {
-                if l < used {
-                    let start = origin + (first + l) * lane;
-                    for (p, dst) in panel.iter_mut().skip(l).step_by(width).enumerate() {
-                        *dst = data[start + p * step];
-                    }
-                } else {
-                    panel.iter_mut().skip(l).step_by(width).for_each(|v| *v = T::zero());
+            for (p, dst) in panel.chunks_exact_mut(width).enumerate() {
+                for (l, v) in dst.iter_mut().enumerate() {
+                    *v = if l < used { data[origin + p * step + (first + l) * lane] } else { T::zero() };
                 }
             }
         }

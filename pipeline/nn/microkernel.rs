@@ -318,7 +318,7 @@ mod x86 {
 
     pub const AVX2_ROWS: usize = 6;
     pub const AVX2_VECTORS: usize = 2;
-    pub const AVX512_ROWS: usize = 6;
+    pub const AVX512_ROWS: usize = 8;
     pub const AVX512_VECTORS: usize = 2;
 
     #[target_feature(enable = "avx2,fma")]
