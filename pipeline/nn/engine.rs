@@ -1,7 +1,8 @@
 //! The training engine: a network's parameters, gradients and per-layer activations in host
 //! buffers sized once per run, with the training-mode forward pass and the backward pass written
-//! out by hand over the portable matrix multiply of `nn/matmul.rs` (bias and batch-norm statistics fused into single passes, dropout and
-//! activation derivatives applied in place), and the evaluation-mode pass that validation and
+//! out by hand over the portable matrix multiply of `nn/matmul.rs` (bias and batch-norm
+//! statistics fused into single passes, dropout and activation derivatives applied in place,
+//! every sum in a fixed row order), and the evaluation-mode pass that validation and
 //! `predict` use. A training step allocates nothing and computes single-threaded. candle's
 //! [`Mlp`] stays the model's definition and stored form: the engine starts from its values and
 //! writes its values back into it. `tests/training.rs` checks the engine's gradients and outputs

@@ -48,7 +48,11 @@ pub struct Tile<T> {
     pub compute: unsafe fn(usize, *const T, *const T, *mut T, usize, bool),
 }
 
-/// A vector of lanes (or one scalar) that the generic tile computes with.
+/// A vector of lanes (or one scalar) that the generic kernels compute with.
+///
+/// Safety of every method: the CPU runs the instructions of the implementing type's level, and
+/// `load`/`store` pointers are valid for `WIDTH` elements.
+#[allow(clippy::missing_safety_doc)]
 pub trait Lanes: Copy {
     type Elem: Copy;
     const WIDTH: usize;

@@ -1,6 +1,7 @@
-//! The network: the MLP on candle (layers, model configuration, stored tensors, and the autograd
-//! reference the engine is tested against), the hand-written engine over `gemm` that trains,
-//! validates and scores, losses, optimizers and learning-rate schedules.
+//! The network: the model's definition on candle (layers, configuration, stored tensors, and the
+//! autograd reference the engine is tested against), the hand-written engine that trains,
+//! validates and scores over tabcard's portable matrix kernels (`matmul`, `microkernel`,
+//! `dispatch`), losses, optimizers and learning-rate schedules.
 //! Every random draw comes from a `rng::Stream` passed in; nothing here uses candle's own
 //! (thread-local) random functions.
 
