@@ -26,18 +26,7 @@ const GOLDEN: &str = "tests/golden/portable-v1.json";
 /// the engine has over a grid of four configurations and two seeds: dropout, batch norm, residual
 /// blocks, input noise, weight decay, early stopping, gradient clipping.
 fn golden_experiment(dir: &Path) -> PathBuf {
-    let columns = tabcard::demo::lease_defaults(1500, 7);
-    std::fs::write(dir.join("leases.parquet"), tabcard::data::parquet::encode(columns, Default::default()).unwrap()).unwrap();
-    let text = r#"[experiment]
-name = "golden-lease"
-
-[data]
-path = "leases.parquet"
-target = "defaulted_12m"
-task = "binary"
-ids = ["application_id"]
-
-[model]
+    let body = r#"[model]
 hidden = [24, 24]
 residual = true
 input_noise = 0.05
@@ -61,22 +50,26 @@ seeds = [1, 2]
 "model.dropout" = [0.0, 0.2]
 "model.batch_norm" = [false, true]
 "#;
-    let path = dir.join("golden.toml");
-    std::fs::write(&path, text).unwrap();
-    path
+    lease_experiment(dir, 1500, "golden.toml", "golden-lease", body)
+}
+
+/// (run id, folder) of every finished run of the one experiment under `results`, skipping the
+/// temporary folders an unfinished run leaves.
+fn run_folders(results: &Path) -> Vec<(String, PathBuf)> {
+    let folder = experiment_folder(results).expect("an experiment folder");
+    std::fs::read_dir(folder.join("runs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .map(|dir| (dir.file_name().unwrap().to_string_lossy().into_owned(), dir))
+        .filter(|(name, _)| !name.starts_with('.'))
+        .collect()
 }
 
 /// Per run id, the SHA-256 of every file the run stores except its environment record (which
 /// names the dispatch level and CPU) and timing; plus the experiment's selection.
 fn digests(results: &Path) -> BTreeMap<String, BTreeMap<String, String>> {
-    let folder = experiment_folder(results).expect("an experiment folder");
     let mut out = BTreeMap::new();
-    for entry in std::fs::read_dir(folder.join("runs")).unwrap() {
-        let dir = entry.unwrap().path();
-        let name = dir.file_name().unwrap().to_string_lossy().into_owned();
-        if name.starts_with('.') {
-            continue;
-        }
+    for (name, dir) in run_folders(results) {
         let index: Value = serde_json::from_slice(&std::fs::read(dir.join("run.json")).unwrap()).unwrap();
         let files = index["files"].as_object().unwrap();
         let kept = files
@@ -86,20 +79,17 @@ fn digests(results: &Path) -> BTreeMap<String, BTreeMap<String, String>> {
             .collect();
         out.insert(name, kept);
     }
-    let selection = std::fs::read(folder.join("selection.json")).unwrap();
+    let selection = std::fs::read(experiment_folder(results).unwrap().join("selection.json")).unwrap();
     out.insert("(experiment)".into(), BTreeMap::from([("selection.json".to_string(), tabcard::fingerprint::sha256_hex(&selection))]));
     out
 }
 
 /// The dispatch level each run of a results folder recorded.
 fn recorded_levels(results: &Path) -> Vec<String> {
-    let folder = experiment_folder(results).unwrap();
-    let mut levels: Vec<String> = std::fs::read_dir(folder.join("runs"))
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with('.'))
-        .map(|p| {
-            let env: Value = serde_json::from_slice(&std::fs::read(p.join("environment.json")).unwrap()).unwrap();
+    let mut levels: Vec<String> = run_folders(results)
+        .into_iter()
+        .map(|(_, dir)| {
+            let env: Value = serde_json::from_slice(&std::fs::read(dir.join("environment.json")).unwrap()).unwrap();
             env["kernel_level"].as_str().unwrap().to_string()
         })
         .collect();
@@ -193,14 +183,8 @@ fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restrict
 
 /// The stored history, metrics and weight digests of every run, by run id.
 fn run_contents(results: &Path) -> BTreeMap<String, (String, String, String)> {
-    let folder = experiment_folder(results).unwrap();
     let mut out = BTreeMap::new();
-    for entry in std::fs::read_dir(folder.join("runs")).unwrap() {
-        let dir = entry.unwrap().path();
-        let name = dir.file_name().unwrap().to_string_lossy().into_owned();
-        if name.starts_with('.') {
-            continue;
-        }
+    for (name, dir) in run_folders(results) {
         let read = |f: &str| std::fs::read_to_string(dir.join(f)).unwrap_or_default();
         let metrics: Value = serde_json::from_str(&read("metrics.json")).unwrap();
         out.insert(name, (metrics["weights_sha256"].to_string(), read("history.csv"), read("metrics.json")));

@@ -14,8 +14,8 @@ pub const KERNEL_VARIABLE: &str = "TABCARD_KERNEL";
 /// A dispatch level of the portable kernels.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
 pub enum Level {
-    /// One element at a time with `f32::mul_add` (correctly rounded; in software where the CPU
-    /// has no fused multiply-add). Available everywhere.
+    /// One element at a time with the pure-Rust `libm::fmaf` (correctly rounded in software, so
+    /// independent of the CPU and the C library). Available everywhere.
     Scalar,
     /// 8-lane AVX2 vectors with FMA3 (x86-64).
     Avx2,

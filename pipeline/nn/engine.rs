@@ -122,14 +122,7 @@ impl<T: Real> Engine<T> {
     /// An engine holding `model`'s current values, for training batches of up to `batch` rows,
     /// computing at the process's dispatch level ([`Level::active`]).
     pub fn from_model(model: &Mlp, batch: usize) -> Result<Self> {
-        Self::at_level(model, batch, Level::active()?)
-    }
-
-    /// As [`Engine::from_model`], at a given dispatch level (which the CPU must run).
-    pub fn at_level(model: &Mlp, batch: usize, level: Level) -> Result<Self> {
-        if !level.available() {
-            return Err(Error::Kernel(format!("dispatch level {} is not available on this CPU", level.name())));
-        }
+        let level = Level::active()?;
         let capacity = batch.max(EVAL_BLOCK);
         let spec = &model.spec;
         let mut values = model.host_values::<T>()?;

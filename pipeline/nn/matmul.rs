@@ -32,7 +32,7 @@ pub struct View<'a, T> {
     transposed: bool,
 }
 
-impl<'a, T: Copy> View<'a, T> {
+impl<'a, T> View<'a, T> {
     /// The first `rows * cols` values of `data` as a row-major matrix.
     pub fn new(data: &'a [T], rows: usize, cols: usize) -> Self {
         assert!(data.len() >= rows * cols, "matrix view of {rows}x{cols} over {} values", data.len());
@@ -50,21 +50,14 @@ impl<'a, T: Copy> View<'a, T> {
     }
 
     /// (row stride, column stride) in `data` as read.
-    pub fn strides(&self) -> (usize, usize) {
+    fn strides(&self) -> (usize, usize) {
         if self.transposed { (1, self.cols) } else { (self.cols, 1) }
-    }
-
-    /// The value at (row, col) as read.
-    #[inline(always)]
-    pub fn at(&self, row: usize, col: usize) -> T {
-        if self.transposed { self.data[col * self.cols + row] } else { self.data[row * self.cols + col] }
     }
 }
 
-/// Packing buffers and the dispatch level of one engine; grown on first use, so that repeated
-/// products of the same shapes allocate nothing.
+/// Packing buffers and the kernels of one dispatch level, for one engine; the buffers grow on
+/// first use, so that repeated products of the same shapes allocate nothing.
 pub struct Workspace<T> {
-    level: Level,
     kernels: Kernels<T>,
     packed_a: Vec<T>,
     packed_b: Vec<T>,
@@ -77,11 +70,7 @@ impl<T: Real> Workspace<T> {
         assert!(level.available(), "dispatch level {} is not available on this CPU", level.name());
         let kernels = T::kernels(level);
         let tile = kernels.tile;
-        Workspace { level, kernels, packed_a: Vec::new(), packed_b: Vec::new(), edge: vec![T::zero(); tile.rows * tile.cols] }
-    }
-
-    pub fn level(&self) -> Level {
-        self.level
+        Workspace { kernels, packed_a: Vec::new(), packed_b: Vec::new(), edge: vec![T::zero(); tile.rows * tile.cols] }
     }
 }
 
@@ -137,6 +126,8 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
     let Out { data, row_stride, col_stride } = out;
     let (m, k) = a.shape();
     let n = b.shape().1;
+    let (a_rs, a_cs) = a.strides();
+    let (b_rs, b_cs) = b.strides();
     let Tile { rows: tr, cols: tc, compute } = ws.kernels.tile;
     for jc in (0..n).step_by(NC) {
         let nc = NC.min(n - jc);
@@ -145,12 +136,10 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
             let kc = KC.min(k - pc);
             // After the first inner block every chain continues from its stored partial value.
             let load = accumulate || pc > 0;
-            let (b_rs, b_cs) = b.strides();
             pack(&mut ws.packed_b, Source { data: b.data, origin: pc * b_rs + jc * b_cs, step: b_rs, lane: b_cs }, nc, tc, kc);
             for ic in (0..m).step_by(MC) {
                 let mc = MC.min(m - ic);
                 let panels_a = mc.div_ceil(tr);
-                let (a_rs, a_cs) = a.strides();
                 pack(&mut ws.packed_a, Source { data: a.data, origin: ic * a_rs + pc * a_cs, step: a_cs, lane: a_rs }, mc, tr, kc);
                 for jp in 0..panels_b {
                     let j0 = jp * tc;

@@ -202,71 +202,47 @@ mod x86 {
     use super::{tile, Lanes};
     use std::arch::x86_64::*;
 
-    #[derive(Clone, Copy)]
-    pub struct Ymm(__m256);
+    /// A vector type of `$width` f32 lanes over the register `$register`, with the intrinsics of
+    /// `$features` (each compiled only into functions that enable those features).
+    macro_rules! vector_lanes {
+        ($name:ident, $register:ty, $width:expr, $features:literal, $zero:ident, $splat:ident, $load:ident, $store:ident, $fma:ident) => {
+            #[derive(Clone, Copy)]
+            pub struct $name($register);
 
-    impl Lanes for Ymm {
-        type Elem = f32;
-        const WIDTH: usize = 8;
-        #[inline]
-        #[target_feature(enable = "avx2,fma")]
-        unsafe fn zero() -> Self {
-            Ymm(_mm256_setzero_ps())
-        }
-        #[inline]
-        #[target_feature(enable = "avx2,fma")]
-        unsafe fn splat(x: f32) -> Self {
-            Ymm(_mm256_set1_ps(x))
-        }
-        #[inline]
-        #[target_feature(enable = "avx2,fma")]
-        unsafe fn load(p: *const f32) -> Self {
-            Ymm(_mm256_loadu_ps(p))
-        }
-        #[inline]
-        #[target_feature(enable = "avx2,fma")]
-        unsafe fn store(self, p: *mut f32) {
-            _mm256_storeu_ps(p, self.0)
-        }
-        #[inline]
-        #[target_feature(enable = "avx2,fma")]
-        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
-            Ymm(_mm256_fmadd_ps(a.0, b.0, acc.0))
-        }
+            impl Lanes for $name {
+                type Elem = f32;
+                const WIDTH: usize = $width;
+                #[inline]
+                #[target_feature(enable = $features)]
+                unsafe fn zero() -> Self {
+                    $name($zero())
+                }
+                #[inline]
+                #[target_feature(enable = $features)]
+                unsafe fn splat(x: f32) -> Self {
+                    $name($splat(x))
+                }
+                #[inline]
+                #[target_feature(enable = $features)]
+                unsafe fn load(p: *const f32) -> Self {
+                    $name($load(p))
+                }
+                #[inline]
+                #[target_feature(enable = $features)]
+                unsafe fn store(self, p: *mut f32) {
+                    $store(p, self.0)
+                }
+                #[inline]
+                #[target_feature(enable = $features)]
+                unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+                    $name($fma(a.0, b.0, acc.0))
+                }
+            }
+        };
     }
 
-    #[derive(Clone, Copy)]
-    pub struct Zmm(__m512);
-
-    impl Lanes for Zmm {
-        type Elem = f32;
-        const WIDTH: usize = 16;
-        #[inline]
-        #[target_feature(enable = "avx512f")]
-        unsafe fn zero() -> Self {
-            Zmm(_mm512_setzero_ps())
-        }
-        #[inline]
-        #[target_feature(enable = "avx512f")]
-        unsafe fn splat(x: f32) -> Self {
-            Zmm(_mm512_set1_ps(x))
-        }
-        #[inline]
-        #[target_feature(enable = "avx512f")]
-        unsafe fn load(p: *const f32) -> Self {
-            Zmm(_mm512_loadu_ps(p))
-        }
-        #[inline]
-        #[target_feature(enable = "avx512f")]
-        unsafe fn store(self, p: *mut f32) {
-            _mm512_storeu_ps(p, self.0)
-        }
-        #[inline]
-        #[target_feature(enable = "avx512f")]
-        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
-            Zmm(_mm512_fmadd_ps(a.0, b.0, acc.0))
-        }
-    }
+    vector_lanes!(Ymm, __m256, 8, "avx2,fma", _mm256_setzero_ps, _mm256_set1_ps, _mm256_loadu_ps, _mm256_storeu_ps, _mm256_fmadd_ps);
+    vector_lanes!(Zmm, __m512, 16, "avx512f", _mm512_setzero_ps, _mm512_set1_ps, _mm512_loadu_ps, _mm512_storeu_ps, _mm512_fmadd_ps);
 
     /// One lane with the CPU's fused multiply-add instruction.
     #[derive(Clone, Copy)]

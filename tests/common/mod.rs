@@ -39,15 +39,15 @@ pub fn manifest(extra: &str) -> String {
     )
 }
 
-/// A folder with the invented lease data (first `rows` rows) and a small experiment manifest
-/// whose grid and epochs are sized for tests.
-pub fn small_lease_experiment(dir: &Path, rows: usize, grid: &str) -> PathBuf {
+/// `dir/leases.parquet` with the invented lease data (first `rows` rows) and `dir/{file}`, a
+/// manifest for it named `name` whose sections after `[data]` are `body`.
+pub fn lease_experiment(dir: &Path, rows: usize, file: &str, name: &str, body: &str) -> PathBuf {
     let columns = tabcard::demo::lease_defaults(rows, 7);
     let bytes = encode(columns, WriteOptions::default()).unwrap();
     std::fs::write(dir.join("leases.parquet"), bytes).unwrap();
     let text = format!(
         r#"[experiment]
-name = "small-lease"
+name = "{name}"
 
 [data]
 path = "leases.parquet"
@@ -55,7 +55,18 @@ target = "defaulted_12m"
 task = "binary"
 ids = ["application_id"]
 
-[model]
+{body}"#
+    );
+    let path = dir.join(file);
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// A folder with the invented lease data (first `rows` rows) and a small experiment manifest
+/// whose grid and epochs are sized for tests.
+pub fn small_lease_experiment(dir: &Path, rows: usize, grid: &str) -> PathBuf {
+    let body = format!(
+        r#"[model]
 hidden = [16]
 
 [training]
@@ -70,9 +81,7 @@ seeds = [1, 2]
 {grid}
 "#
     );
-    let path = dir.join("small.toml");
-    std::fs::write(&path, text).unwrap();
-    path
+    lease_experiment(dir, rows, "small.toml", "small-lease", &body)
 }
 
 /// The one experiment folder under a results root, if it exists yet.
