@@ -139,25 +139,35 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
             pack(&mut ws.packed_b, Source { data: b.data, origin: pc * b_rs + jc * b_cs, step: b_rs, lane: b_cs }, nc, tc, kc);
             for ic in (0..m).step_by(MC) {
                 let mc = MC.min(m - ic);
-                let panels_a = mc.div_ceil(tr);
-                pack(&mut ws.packed_a, Source { data: a.data, origin: ic * a_rs + pc * a_cs, step: a_cs, lane: a_rs }, mc, tr, kc);
+                // Whole panels of `a` are read in place through its strides (the tile broadcasts
+                // one value per row and step, so either layout serves); a last panel of fewer
+                // rows than the tile is packed with zero rows below it, once per block.
+                let whole = mc / tr * tr;
+                if whole < mc {
+                    pack(&mut ws.packed_a, Source { data: a.data, origin: (ic + whole) * a_rs + pc * a_cs, step: a_cs, lane: a_rs }, mc - whole, tr, kc);
+                }
                 for jp in 0..panels_b {
                     let j0 = jp * tc;
                     let cols = tc.min(nc - j0);
-                    let bp = &ws.packed_b[jp * kc * tc..(jp + 1) * kc * tc];
-                    for ip in 0..panels_a {
-                        let i0 = ip * tr;
+                    let bp = ws.packed_b[jp * kc * tc..(jp + 1) * kc * tc].as_ptr();
+                    for i0 in (0..mc).step_by(tr) {
                         let rows = tr.min(mc - i0);
-                        let ap = &ws.packed_a[ip * kc * tr..(ip + 1) * kc * tr];
+                        let (ap, a_strides) = if i0 < whole {
+                            (a.data[(ic + i0) * a_rs + pc * a_cs..].as_ptr(), (a_rs, a_cs))
+                        } else {
+                            (ws.packed_a[(i0 - whole) * kc..].as_ptr(), (1, tr))
+                        };
                         let (row, col) = (ic + i0, jc + j0);
                         let origin = row * row_stride + col * col_stride;
                         if rows == tr && cols == tc && col_stride == 1 {
                             let block = &mut data[origin..origin + (tr - 1) * row_stride + tc];
-                            // SAFETY: `ap` holds kc x tr values and `bp` kc x tc (packed above);
-                            // `block` spans the tr x tc destination block with row stride
+                            // SAFETY: `ap` with `a_strides` spans rows x kc values of `a` (a
+                            // whole panel inside the view, checked in `View::new`) or of the
+                            // packed edge panel (kc x tr values); `bp` holds kc x tc (packed
+                            // above); `block` spans the tr x tc destination block with row stride
                             // `row_stride`; the workspace's tile is of a level the CPU runs
                             // (checked in `Workspace::new`).
-                            unsafe { compute(kc, ap.as_ptr(), bp.as_ptr(), block.as_mut_ptr(), row_stride, load) };
+                            unsafe { compute(kc, ap, a_strides, bp, block.as_mut_ptr(), row_stride, load) };
                         } else {
                             let edge = &mut ws.edge;
                             if load {
@@ -168,7 +178,7 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
                                 }
                             }
                             // SAFETY: as above, with `edge` a full tr x tc block of row stride tc.
-                            unsafe { compute(kc, ap.as_ptr(), bp.as_ptr(), edge.as_mut_ptr(), tc, load) };
+                            unsafe { compute(kc, ap, a_strides, bp, edge.as_mut_ptr(), tc, load) };
                             for r in 0..rows {
                                 for j in 0..cols {
                                     data[origin + r * row_stride + j * col_stride] = edge[r * tc + j];
@@ -192,7 +202,7 @@ struct Strided<'a, T> {
 
 /// `out[r] = chain over p of fma(mat(r, p), x[p], .)`, started from `out[r]` or +0: vectors
 /// across outputs where they lie side by side, interleaved chains where each output's steps do,
-/// and one chain at a time for the remainder.
+/// and one chain at a time (the level's own fused multiply-add) for the remainder.
 fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: bool, ws: &Workspace<T>) {
     let k = x.len();
     let Strided { data, rows, row_stride, step } = mat;
@@ -215,9 +225,9 @@ fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: boo
             done += group;
         }
     }
-    for (r, o) in out.iter_mut().enumerate().take(rows).skip(done) {
-        let start = if load { *o } else { T::zero() };
-        *o = x.iter().enumerate().fold(start, |acc, (p, &xp)| data[r * row_stride + p * step].fused(xp, acc));
+    for r in done..rows {
+        // SAFETY: row r's k steps lie in `data` (checked in `View::new`), `out` has `rows` values.
+        unsafe { (kernels.one)(k, data[r * row_stride..].as_ptr(), step, x.as_ptr(), out[r..].as_mut_ptr(), load) };
     }
 }
 
@@ -247,23 +257,29 @@ fn pack<T: Real>(buffer: &mut Vec<T>, src: Source<'_, T>, lanes: usize, width: u
         let first = q * width;
         let used = width.min(lanes - first);
         if lane == 1 {
-            // Lanes contiguous in the source: one slice copy per step.
+            // Lanes contiguous in the source: one short copy per step (an element loop, which
+            // the compiler vectorises, rather than a call to memmove for 64 bytes).
             for (p, dst) in panel.chunks_exact_mut(width).enumerate() {
                 let start = origin + p * step + first;
-                dst[..used].copy_from_slice(&data[start..start + used]);
+                for (d, &v) in dst[..used].iter_mut().zip(&data[start..start + used]) {
+                    *d = v;
+                }
                 dst[used..].fill(T::zero());
             }
         } else if step == 1 {
-            // Each lane's steps contiguous: read the lanes side by side, one step at a time.
-            let mut rows: [&[T]; MAX_LANES] = [&[]; MAX_LANES];
-            for (l, row) in rows.iter_mut().enumerate().take(used) {
-                *row = &data[origin + (first + l) * lane..][..depth];
-            }
-            for (p, dst) in panel.chunks_exact_mut(width).enumerate() {
-                for (v, row) in dst.iter_mut().zip(&rows[..used]) {
-                    *v = row[p];
+            // Each lane's steps contiguous: read each lane's steps in order, write them down the
+            // panel (the panel, at most 32 KiB, stays in the first-level cache).
+            for l in 0..width {
+                if l < used {
+                    let row = &data[origin + (first + l) * lane..][..depth];
+                    for (dst, &v) in panel.chunks_exact_mut(width).zip(row) {
+                        dst[l] = v;
+                    }
+                } else {
+                    for dst in panel.chunks_exact_mut(width) {
+                        dst[l] = T::zero();
+                    }
                 }
-                dst[used..].fill(T::zero());
             }
         } else {
             for (p, dst) in panel.chunks_exact_mut(width).enumerate() {

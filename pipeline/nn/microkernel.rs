@@ -3,7 +3,8 @@
 //! in increasing index order, started from the destination's value or from +0. Vectors run across
 //! output columns (each lane a different output element), never across the inner dimension, so
 //! the vector width cannot change a bit: the scalar, AVX2 and AVX-512 tiles compute the same
-//! values. The operands of the tiles come packed by `nn/matmul.rs`; matrix-vector products
+//! values. The right operand of a tile comes packed by `nn/matmul.rs`, the left one is read in
+//! place through its strides; matrix-vector products
 //! (one output row or column) use two unpacked kernels with the same chains: vectors across
 //! outputs when the outputs lie side by side in memory, interleaved one-lane chains when each
 //! output's inner steps do.
@@ -31,6 +32,12 @@ pub struct Kernels<T> {
     /// runs the level.
     pub along: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
     pub along_rows: usize,
+    /// `one(k, mat, step, x, out, load)`: `out[0] = fma(mat[(k-1) step], x[k-1], ... fma(mat[0],
+    /// x[0], o0))`, the single chains left over by `across` and `along`.
+    ///
+    /// # Safety
+    /// `mat` spans `(k-1) step + 1` values, `x` k values, `out` one; the CPU runs the level.
+    pub one: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
 }
 
 /// One level's tile for element type `T`: its shape and the function that computes it.
@@ -38,14 +45,16 @@ pub struct Kernels<T> {
 pub struct Tile<T> {
     pub rows: usize,
     pub cols: usize,
-    /// `compute(kc, a, b, c, ldc, load)`: for r < rows, j < cols,
-    /// `c[r ldc + j] = fma(a[(kc-1) rows + r], b[(kc-1) cols + j], ... fma(a[r], b[j], c0))` with
-    /// `c0 = c[r ldc + j]` when `load`, else +0.
+    /// `compute(kc, a, (ars, acs), b, c, ldc, load)`: for r < rows, j < cols, with
+    /// A(r, p) = `a[r ars + p acs]` and B(p, j) = `b[p cols + j]` (a packed panel),
+    /// `c[r ldc + j] = fma(A(r, kc-1), B(kc-1, j), ... fma(A(r, 0), B(0, j), c0))` with
+    /// `c0 = c[r ldc + j]` when `load`, else +0. The left operand is read where it lies (rows or
+    /// steps contiguous, or a packed edge panel); only the right one is always packed.
     ///
     /// # Safety
-    /// `a` holds `kc rows` values, `b` holds `kc cols`, `c` a `rows x cols` block with row stride
-    /// `ldc`, and the CPU runs the tile's level.
-    pub compute: unsafe fn(usize, *const T, *const T, *mut T, usize, bool),
+    /// `a` spans every A(r, p) for r < rows, p < kc; `b` holds `kc cols` values; `c` a
+    /// `rows x cols` block with row stride `ldc`; and the CPU runs the tile's level.
+    pub compute: unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool),
 }
 
 /// A vector of lanes (or one scalar) that the generic kernels compute with.
@@ -66,7 +75,8 @@ pub trait Lanes: Copy {
 
 /// The tile of `MR` rows by `NV` vectors, written once for every level.
 #[inline(always)]
-unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(kc: usize, a: *const V::Elem, b: *const V::Elem, c: *mut V::Elem, ldc: usize, load: bool) {
+unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(kc: usize, a: *const V::Elem, (ars, acs): (usize, usize), b: *const V::Elem, c: *mut V::Elem, ldc: usize, load: bool) {
+    let rows: [usize; MR] = std::array::from_fn(|r| r * ars);
     let mut acc = [[V::zero(); NV]; MR];
     if load {
         for (r, row) in acc.iter_mut().enumerate() {
@@ -81,9 +91,9 @@ unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(kc: usize, a: *const 
         for (v, lane) in bv.iter_mut().enumerate() {
             *lane = V::load(bp.add(v * V::WIDTH));
         }
-        let ap = a.add(p * MR);
-        for (r, row) in acc.iter_mut().enumerate() {
-            let x = V::splat(*ap.add(r));
+        let ap = a.add(p * acs);
+        for (row, &offset) in acc.iter_mut().zip(&rows) {
+            let x = V::splat(*ap.add(offset));
             for (lane, &bl) in row.iter_mut().zip(&bv) {
                 *lane = V::fma(x, bl, *lane);
             }
@@ -137,6 +147,16 @@ unsafe fn along<S: Lanes, const R: usize>(k: usize, mat: *const S::Elem, stride:
     }
 }
 
+/// One output's chain over `k` steps `step` apart.
+#[inline(always)]
+unsafe fn chain<S: Lanes>(k: usize, mat: *const S::Elem, step: usize, x: *const S::Elem, out: *mut S::Elem, load: bool) {
+    let mut acc = if load { S::load(out) } else { S::zero() };
+    for p in 0..k {
+        acc = S::fma(S::load(mat.add(p * step)), S::splat(*x.add(p)), acc);
+    }
+    acc.store(out);
+}
+
 macro_rules! scalar_lanes {
     ($t:ty, $fma:path) => {
         impl Lanes for $t {
@@ -174,8 +194,8 @@ const SCALAR_COLS: usize = 4;
 /// Interleaved chains of the matrix-vector kernels (enough to hide the FMA latency).
 const CHAINS: usize = 8;
 
-unsafe fn scalar_tile<T: Lanes<Elem = T>>(kc: usize, a: *const T, b: *const T, c: *mut T, ldc: usize, load: bool) {
-    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, b, c, ldc, load)
+unsafe fn scalar_tile<T: Lanes<Elem = T>>(kc: usize, a: *const T, strides: (usize, usize), b: *const T, c: *mut T, ldc: usize, load: bool) {
+    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, strides, b, c, ldc, load)
 }
 
 unsafe fn scalar_across<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x: *const T, out: *mut T, load: bool) {
@@ -186,6 +206,10 @@ unsafe fn scalar_along<T: Lanes<Elem = T>>(k: usize, mat: *const T, stride: usiz
     along::<T, CHAINS>(k, mat, stride, x, out, load)
 }
 
+unsafe fn scalar_one<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x: *const T, out: *mut T, load: bool) {
+    chain::<T>(k, mat, step, x, out, load)
+}
+
 /// The scalar kernels: what f64 always uses, and f32 where no vector level runs.
 pub fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
     Kernels {
@@ -194,6 +218,7 @@ pub fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
         across_width: CHAINS,
         along: scalar_along::<T>,
         along_rows: CHAINS,
+        one: scalar_one::<T>,
     }
 }
 
@@ -286,6 +311,11 @@ mod x86 {
         super::along::<Fma1, ALONG_ROWS>(k, mat, stride, x, out, load)
     }
 
+    #[target_feature(enable = "fma")]
+    pub unsafe fn fma_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::chain::<Fma1>(k, mat, step, x, out, load)
+    }
+
     #[target_feature(enable = "avx2,fma")]
     pub unsafe fn avx2_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::across::<Ymm, ACROSS_VECTORS>(k, mat, step, x, out, load)
@@ -302,13 +332,13 @@ mod x86 {
     pub const AVX512_VECTORS: usize = 2;
 
     #[target_feature(enable = "avx2,fma")]
-    pub unsafe fn avx2_tile(kc: usize, a: *const f32, b: *const f32, c: *mut f32, ldc: usize, load: bool) {
-        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, b, c, ldc, load)
+    pub unsafe fn avx2_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 
     #[target_feature(enable = "avx512f")]
-    pub unsafe fn avx512_tile(kc: usize, a: *const f32, b: *const f32, c: *mut f32, ldc: usize, load: bool) {
-        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, b, c, ldc, load)
+    pub unsafe fn avx512_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 }
 
@@ -323,6 +353,7 @@ pub fn f32_kernels(level: Level) -> Kernels<f32> {
             across_width: x86::ACROSS_VECTORS * 8,
             along: x86::fma_along,
             along_rows: x86::ALONG_ROWS,
+            one: x86::fma_one,
         },
         #[cfg(target_arch = "x86_64")]
         Level::Avx512 => Kernels {
@@ -331,6 +362,7 @@ pub fn f32_kernels(level: Level) -> Kernels<f32> {
             across_width: x86::ACROSS_VECTORS * 16,
             along: x86::fma_along,
             along_rows: x86::ALONG_ROWS,
+            one: x86::fma_one,
         },
         #[cfg(not(target_arch = "x86_64"))]
         _ => scalar::<f32>(),

@@ -7,8 +7,8 @@
 //! bench hash DATA                           file hash and logical content hash vs sha2 on the same bytes
 //! bench load DATA                           Parquet -> table -> standardised f32 training matrix
 //! bench scale ROWS COLS                     one epoch of the reference MLP on an in-memory matrix, peak RSS
-//! bench matmul                              the portable kernels' rate per dispatch level, and gemm's,
-//!                                           on the reference MLP's products
+//! bench matmul [--level NAME]               the portable kernels' rate per dispatch level (or one),
+//!                                           and gemm's, on the reference MLP's products
 //! ```
 
 use std::path::Path;
@@ -213,7 +213,7 @@ enum Orientation {
 /// products one training step of the reference MLP makes (batch 256) and on a 1024 cube. Each
 /// figure is the best of 5 timed repetitions after one untimed warm-up call; the timer covers the
 /// products only (operands allocated and filled outside it).
-fn bench_matmul() {
+fn bench_matmul(args: &[String]) {
     use tabcard::nn::dispatch::Level;
     use tabcard::nn::matmul::{matmul, View, Workspace};
     use Orientation::*;
@@ -226,7 +226,9 @@ fn bench_matmul() {
         (256, 256, 1, Plain, "h W3 (head)"),
         (1024, 1024, 1024, Plain, "1024 cube"),
     ];
-    let mut ours: Vec<(Level, Vec<String>)> = Level::available_levels().into_iter().map(|l| (l, Vec::new())).collect();
+    let only: Option<String> = args.iter().position(|a| a == "--level").and_then(|i| args.get(i + 1)).cloned();
+    let mut ours: Vec<(Level, Vec<String>)> =
+        Level::available_levels().into_iter().filter(|l| only.as_deref().is_none_or(|o| o == l.name())).map(|l| (l, Vec::new())).collect();
     let mut theirs = Vec::new();
     for (m, k, n, orientation, what) in shapes {
         let a: Vec<f32> = (0..m * k).map(|i| (i % 7) as f32 * 0.1 - 0.3).collect();
@@ -281,7 +283,7 @@ fn main() {
         Some("hash") => bench_hash(&args),
         Some("load") => bench_load(&args),
         Some("scale") => bench_scale(&args),
-        Some("matmul") => bench_matmul(),
+        Some("matmul") => bench_matmul(&args),
         _ => {
             eprintln!("usage: bench data|train|hash|load|scale ... (see tests/bench/bench.rs)");
             std::process::exit(2);
