@@ -54,7 +54,7 @@ pub struct NumericsFingerprint {
     #[serde(default)]
     pub kernel_version: String,
     pub kernel_features: String,
-    /// The dispatch level the matrix products ran at (`scalar`, `avx2`, `avx512`): speed only.
+    /// The dispatch level the matrix products ran at (`scalar`, `avx2`, `avx512`, `neon`): speed only.
     #[serde(default)]
     pub kernel_level: String,
     pub target_arch: String,

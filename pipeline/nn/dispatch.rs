@@ -1,7 +1,7 @@
 //! Which instruction set the portable matrix kernels (`nn/microkernel.rs`) run on: the dispatch
 //! level. Every level computes the same bits (each output element is one chain of fused
 //! multiply-adds in the same order), so the level decides speed only. It is chosen once per
-//! process from the CPU's features, or forced with `TABCARD_KERNEL=scalar|avx2|avx512`, and
+//! process from the CPU's features, or forced with `TABCARD_KERNEL=scalar|avx2|avx512|neon`, and
 //! recorded in every run's `environment.json`. Nothing here reads cache sizes or core counts.
 
 use std::sync::OnceLock;
@@ -21,10 +21,12 @@ pub enum Level {
     Avx2,
     /// 16-lane AVX-512F vectors (x86-64).
     Avx512,
+    /// 4-lane Advanced SIMD (NEON) vectors with their fused multiply-add (aarch64).
+    Neon,
 }
 
 impl Level {
-    pub const ALL: [Level; 3] = [Level::Scalar, Level::Avx2, Level::Avx512];
+    pub const ALL: [Level; 4] = [Level::Scalar, Level::Avx2, Level::Avx512, Level::Neon];
 
     /// The name `TABCARD_KERNEL` takes and `environment.json` records.
     pub fn name(self) -> &'static str {
@@ -32,6 +34,7 @@ impl Level {
             Level::Scalar => "scalar",
             Level::Avx2 => "avx2",
             Level::Avx512 => "avx512",
+            Level::Neon => "neon",
         }
     }
 
@@ -43,7 +46,9 @@ impl Level {
             Level::Avx2 => std::is_x86_feature_detected!("avx2") && std::is_x86_feature_detected!("fma"),
             #[cfg(target_arch = "x86_64")]
             Level::Avx512 => std::is_x86_feature_detected!("avx512f"),
-            #[cfg(not(target_arch = "x86_64"))]
+            #[cfg(target_arch = "aarch64")]
+            Level::Neon => std::arch::is_aarch64_feature_detected!("neon"),
+            #[allow(unreachable_patterns)]
             _ => false,
         }
     }
@@ -65,12 +70,7 @@ impl Level {
             "scalar" => Level::Scalar,
             "avx2" => Level::Avx2,
             "avx512" => Level::Avx512,
-            "neon" => {
-                return Err(format!(
-                    "{KERNEL_VARIABLE}=neon: this build has no NEON kernels (they could not be tested here, so they are left out); \
-                     `scalar` gives the same bits on every CPU"
-                ))
-            }
+            "neon" => Level::Neon,
             other => return Err(format!("{KERNEL_VARIABLE}={other:?} is not a dispatch level (one of {})", names())),
         };
         if !level.available() {
@@ -104,7 +104,9 @@ mod tests {
             assert_eq!(Level::parse(level.name()), Ok(level));
         }
         assert!(Level::parse("sse9").unwrap_err().contains("not a dispatch level"));
-        assert!(Level::parse("neon").unwrap_err().contains("no NEON kernels"));
+        for level in Level::ALL.into_iter().filter(|l| !l.available()) {
+            assert!(Level::parse(level.name()).unwrap_err().contains("this CPU cannot run that level"));
+        }
         assert_eq!(Level::parse(" Scalar "), Ok(Level::Scalar));
         assert!(Level::best().available());
     }

@@ -18,9 +18,9 @@ use super::scalar::Real;
 
 /// Inner-dimension block: the length of one stored stretch of each chain.
 const KC: usize = 256;
-/// Rows of `a` packed at a time (a multiple of every tile's row count: 4, 6 and 8).
+/// Rows of `a` taken at a time (a multiple of every tile's row count: 4, 6 and 8).
 const MC: usize = 144;
-/// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 16 and 32).
+/// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 8, 16 and 32).
 const NC: usize = 512;
 
 /// A row-major `rows x cols` matrix in a slice, read as itself or as its transpose.

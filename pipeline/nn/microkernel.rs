@@ -2,8 +2,8 @@
 //! of the product, each output element one chain of fused multiply-adds over the inner dimension
 //! in increasing index order, started from the destination's value or from +0. Vectors run across
 //! output columns (each lane a different output element), never across the inner dimension, so
-//! the vector width cannot change a bit: the scalar, AVX2 and AVX-512 tiles compute the same
-//! values. The right operand of a tile comes packed by `nn/matmul.rs`, the left one is read in
+//! the vector width cannot change a bit: the scalar, AVX2, AVX-512 and NEON tiles compute the
+//! same values. The right operand of a tile comes packed by `nn/matmul.rs`, the left one is read in
 //! place through its strides; matrix-vector products
 //! (one output row or column) use two unpacked kernels with the same chains: vectors across
 //! outputs when the outputs lie side by side in memory, interleaved one-lane chains when each
@@ -342,6 +342,100 @@ mod x86 {
     }
 }
 
+#[cfg(target_arch = "aarch64")]
+mod arm {
+    use super::{tile, Lanes};
+    use std::arch::aarch64::*;
+
+    /// Four f32 lanes in one Advanced SIMD register; `vfmaq_f32(acc, a, b)` is acc + a b with one
+    /// rounding, lane by lane.
+    #[derive(Clone, Copy)]
+    pub struct Quad(float32x4_t);
+
+    impl Lanes for Quad {
+        type Elem = f32;
+        const WIDTH: usize = 4;
+        #[inline]
+        #[target_feature(enable = "neon")]
+        unsafe fn zero() -> Self {
+            Quad(vdupq_n_f32(0.0))
+        }
+        #[inline]
+        #[target_feature(enable = "neon")]
+        unsafe fn splat(x: f32) -> Self {
+            Quad(vdupq_n_f32(x))
+        }
+        #[inline]
+        #[target_feature(enable = "neon")]
+        unsafe fn load(p: *const f32) -> Self {
+            Quad(vld1q_f32(p))
+        }
+        #[inline]
+        #[target_feature(enable = "neon")]
+        unsafe fn store(self, p: *mut f32) {
+            vst1q_f32(p, self.0)
+        }
+        #[inline]
+        #[target_feature(enable = "neon")]
+        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+            Quad(vfmaq_f32(acc.0, a.0, b.0))
+        }
+    }
+
+    /// One lane with the scalar fused multiply-add instruction (`fmadd`, part of every aarch64
+    /// CPU: `f32::mul_add` compiles to it).
+    #[derive(Clone, Copy)]
+    pub struct Fmadd(f32);
+
+    impl Lanes for Fmadd {
+        type Elem = f32;
+        const WIDTH: usize = 1;
+        #[inline]
+        unsafe fn zero() -> Self {
+            Fmadd(0.0)
+        }
+        #[inline]
+        unsafe fn splat(x: f32) -> Self {
+            Fmadd(x)
+        }
+        #[inline]
+        unsafe fn load(p: *const f32) -> Self {
+            Fmadd(*p)
+        }
+        #[inline]
+        unsafe fn store(self, p: *mut f32) {
+            *p = self.0
+        }
+        #[inline]
+        unsafe fn fma(a: Self, b: Self, acc: Self) -> Self {
+            Fmadd(a.0.mul_add(b.0, acc.0))
+        }
+    }
+
+    pub const ROWS: usize = 8;
+    pub const VECTORS: usize = 2;
+    pub const ALONG_ROWS: usize = 8;
+    pub const ACROSS_VECTORS: usize = 4;
+
+    #[target_feature(enable = "neon")]
+    pub unsafe fn neon_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+        tile::<Quad, ROWS, VECTORS>(kc, a, strides, b, c, ldc, load)
+    }
+
+    #[target_feature(enable = "neon")]
+    pub unsafe fn neon_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::across::<Quad, ACROSS_VECTORS>(k, mat, step, x, out, load)
+    }
+
+    pub unsafe fn fmadd_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::along::<Fmadd, ALONG_ROWS>(k, mat, stride, x, out, load)
+    }
+
+    pub unsafe fn fmadd_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+        super::chain::<Fmadd>(k, mat, step, x, out, load)
+    }
+}
+
 /// The f32 kernels of `level`. Callers check that the CPU runs the level ([`Level::available`]).
 pub fn f32_kernels(level: Level) -> Kernels<f32> {
     match level {
@@ -364,7 +458,17 @@ pub fn f32_kernels(level: Level) -> Kernels<f32> {
             along_rows: x86::ALONG_ROWS,
             one: x86::fma_one,
         },
-        #[cfg(not(target_arch = "x86_64"))]
+        #[cfg(target_arch = "aarch64")]
+        Level::Neon => Kernels {
+            tile: Tile { rows: arm::ROWS, cols: arm::VECTORS * 4, compute: arm::neon_tile },
+            across: arm::neon_across,
+            across_width: arm::ACROSS_VECTORS * 4,
+            along: arm::fmadd_along,
+            along_rows: arm::ALONG_ROWS,
+            one: arm::fmadd_one,
+        },
+        // Levels of another architecture are never available here (`Level::available`).
+        #[allow(unreachable_patterns)]
         _ => scalar::<f32>(),
     }
 }
