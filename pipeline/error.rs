@@ -70,6 +70,10 @@ pub enum Error {
     #[error("training engine: {0}")]
     Engine(String),
 
+    /// A results folder whose files differ from its integrity list (`integrity.sha256`).
+    #[error("{}: {message}", path.display())]
+    Integrity { path: PathBuf, message: String },
+
     /// The command line asked for something that cannot be done.
     #[error("{0}")]
     Usage(String),
@@ -95,16 +99,22 @@ impl Error {
         }
     }
 
+    pub fn integrity(path: impl AsRef<Path>, message: impl Into<String>) -> Self {
+        Error::Integrity { path: path.as_ref().to_path_buf(), message: message.into() }
+    }
+
     pub fn store(path: impl AsRef<Path>, message: impl Into<String>) -> Self {
         Error::Store { path: path.as_ref().to_path_buf(), message: message.into() }
     }
 
-    /// Exit status for scripts: 2 bad input, 3 results store, 4 engine, 1 anything else.
+    /// Exit status for scripts: 2 bad input, 3 results store, 4 engine, 6 a results folder that
+    /// differs from its integrity list (as `verify` exits when bits differ).
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) | Error::Kernel(_) => 2,
             Error::Store { .. } | Error::Io { .. } => 3,
             Error::Engine(_) => 4,
+            Error::Integrity { .. } => 6,
         }
     }
 }

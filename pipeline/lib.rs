@@ -10,6 +10,7 @@ pub mod data;
 pub mod demo;
 pub mod error;
 pub mod experiment;
+pub mod feasibility;
 pub mod fingerprint;
 pub mod format;
 pub mod manifest;

@@ -84,11 +84,16 @@ enum Command {
     Predict {
         model: PathBuf,
         input: PathBuf,
+        /// The predictions file to write: `.parquet` or `.csv` (the extension names the format).
+        /// Never the input table nor a path inside a results store.
         #[arg(long)]
         out: PathBuf,
         /// Copy input columns that are neither features nor ids into the output.
         #[arg(long)]
         keep_extra: bool,
+        /// Replace `--out` if it exists.
+        #[arg(long)]
+        force: bool,
     },
     /// Show what changed between two results folders: manifest keys, data, metrics.
     Compare { a: PathBuf, b: PathBuf },
@@ -145,7 +150,7 @@ fn main() -> ExitCode {
     tabcard::numerics::prepare_process();
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { manifest } => commands::check::run(&manifest).map(|r| (r, 0)),
+        Command::Check { manifest } => commands::check::run(&manifest, default_jobs()).map(|r| (r, 0)),
         Command::Train { manifest, results, jobs, shard } => {
             let jobs = jobs.unwrap_or_else(default_jobs);
             let (bar, on_event) = progress_display();
@@ -158,8 +163,8 @@ fn main() -> ExitCode {
             let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
             commands::verify::run(&target, &options).map(|o| (o.report, if o.identical { 0 } else { 6 }))
         }
-        Command::Predict { model, input, out, keep_extra } => {
-            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra }).map(|r| (r, 0))
+        Command::Predict { model, input, out, keep_extra, force } => {
+            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force }).map(|r| (r, 0))
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
             let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };

@@ -47,6 +47,11 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     let text = std::fs::read_to_string(edited.join("manifest.json")).unwrap().replace("\"epochs\": 6", "\"epochs\": 7");
     std::fs::write(edited.join("manifest.json"), text).unwrap();
     let out = run_in(dir.path(), &["verify", "edited"]);
+    assert_eq!(out.status.code(), Some(6));
+    assert!(stderr(&out).starts_with("error: edited/manifest.json: was changed after it was recorded"), "{}", stderr(&out));
+    // With the folder's integrity list rewritten to hide it, the recorded manifest SHA-256 catches it.
+    tabcard::store::integrity::seal(&edited, |_| Ok(())).unwrap();
+    let out = run_in(dir.path(), &["verify", "edited"]);
     assert_eq!(out.status.code(), Some(3));
     assert!(stderr(&out).starts_with("error: edited/manifest.json: was edited after training: its SHA-256 is "), "{}", stderr(&out));
 
@@ -62,6 +67,11 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     std::fs::write(&weights, &bytes).unwrap();
     let out = run_in(dir.path(), &["verify", "altered"]);
     assert_eq!(out.status.code(), Some(6));
+    assert!(stderr(&out).contains("weights.safetensors: was changed after it was recorded"), "{}", stderr(&out));
+    // The folder's list rewritten to hide it: the run's own index catches it.
+    tabcard::store::integrity::seal(&altered, |_| Ok(())).unwrap();
+    let out = run_in(dir.path(), &["verify", "altered"]);
+    assert_eq!(out.status.code(), Some(6));
     let report = stdout(&out);
     assert!(report.contains(&format!("{run} seed")) && report.contains("CANNOT VERIFY") && report.contains("weights.safetensors: fails its integrity check"), "{report}");
     assert!(report.contains("verdict   NOT verified"));
@@ -70,6 +80,7 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     let mut index: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&index_path).unwrap()).unwrap();
     index["files"]["weights.safetensors"] = serde_json::Value::String(tabcard::fingerprint::sha256_hex(&bytes));
     std::fs::write(&index_path, serde_json::to_string_pretty(&index).unwrap()).unwrap();
+    tabcard::store::integrity::seal(&altered, |_| Ok(())).unwrap();
     let out = run_in(dir.path(), &["verify", "altered"]);
     assert_eq!(out.status.code(), Some(6));
     assert!(stdout(&out).contains("does not match its recorded SHA-256 (weights.safetensors was altered)"), "{}", stdout(&out));

@@ -128,6 +128,15 @@ fn non_finite_and_empty_features() {
     case(with(good_columns(), "a", float(&values)), "", "data.parquet: column `a`: row 12 holds NaN; tabcard needs finite numbers (store missing values as nulls)");
     values[12] = Some(f64::INFINITY);
     case(with(good_columns(), "a", float(&values)), "", "data.parquet: column `a`: row 12 holds inf; tabcard needs finite numbers (store missing values as nulls)");
+    // Finite but so large that squares in the statistics overflow (issue: +-1e308 passed `check`
+    // with "sd inf", then training failed without naming a column).
+    values[12] = Some(-1e308);
+    case(with(good_columns(), "a", float(&values)), "",
+        "data.parquet: column `a`: row 12 holds -1e308, beyond ±1e100, where sums of squares in the statistics could overflow; rescale the column (other units)");
+    values[12] = Some(1e100);
+    values[3] = Some(2.5e100);
+    case(with(good_columns(), "a", float(&values)), "",
+        "data.parquet: column `a`: row 3 holds 2.5e100, beyond ±1e100, where sums of squares in the statistics could overflow; rescale the column (other units)");
     case(with(good_columns(), "a", float(&[None; 40])), "", "data.parquet: column `a`: has no values (every row is null); drop it or fill it");
     case(good_columns(), "features = [\"a\", \"bb\"]\n", "data.parquet: column `bb`: named by data.features but not in the file (did you mean `b`?)");
     case(good_columns(), "drop = [\"a\", \"b\"]\n", "data.parquet: no feature columns remain after removing the target, ids, groups and dropped columns");

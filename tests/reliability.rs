@@ -150,9 +150,10 @@ fn tampered_or_foreign_results_fail_clearly() {
     };
     let no_panic = |o: &std::process::Output| assert_ne!(o.status.code(), Some(101), "panicked: {}", stderr(o));
 
-    // A results folder written by a newer tool (layout version 99).
+    // A results folder written by a newer tool (layout version 99), whose integrity list is whole.
     let newer = copy("newer");
     std::fs::write(newer.join("format.json"), "{\"format\": \"tabcard-results\", \"version\": 99, \"tool_version\": \"9.0.0\"}\n").unwrap();
+    tabcard::store::integrity::seal(&newer, |_| Ok(())).unwrap();
     for args in [vec!["card", "newer"], vec!["verify", "newer"], vec!["predict", "newer", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
@@ -164,10 +165,19 @@ fn tampered_or_foreign_results_fail_clearly() {
     let o = run_in(dir.path(), &["card", "unknown"]);
     assert_eq!(stderr(&o).trim_end(), "error: unknown: is not a tabcard results folder (no format.json)");
 
-    // Edited JSON.
+    // Edited JSON: caught by the folder's integrity list (exit 6); and, where a forger rewrote the
+    // list too, by the reader.
     let edited = copy("edited");
     std::fs::write(edited.join("selection.json"), "{\"metric\": 3").unwrap();
-    for args in [vec!["card", "edited"], vec!["verify", "edited"], vec!["predict", "edited", "leases.parquet", "--out", "p.parquet"]] {
+    let cases = || [vec!["card", "edited"], vec!["verify", "edited"], vec!["predict", "edited", "leases.parquet", "--out", "p.parquet"]];
+    for args in cases() {
+        let o = run_in(dir.path(), &args);
+        no_panic(&o);
+        assert_eq!(o.status.code(), Some(6), "{args:?}: {}", stderr(&o));
+        assert!(stderr(&o).starts_with("error: edited/selection.json: was changed after it was recorded"), "{args:?}: {}", stderr(&o));
+    }
+    tabcard::store::integrity::seal(&edited, |_| Ok(())).unwrap();
+    for args in cases() {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
         assert!(stderr(&o).starts_with("error: edited/selection.json: unreadable or tampered JSON: "), "{args:?}: {}", stderr(&o));
@@ -180,6 +190,10 @@ fn tampered_or_foreign_results_fail_clearly() {
     let weights = truncated.join("runs").join(&run).join("weights.safetensors");
     let bytes = std::fs::read(&weights).unwrap();
     std::fs::write(&weights, &bytes[..bytes.len() / 3]).unwrap();
+    let o = run_in(dir.path(), &["predict", "truncated", "leases.parquet", "--out", "p.parquet"]);
+    assert!(stderr(&o).starts_with(&format!("error: truncated/runs/{run}/weights.safetensors: was changed after it was recorded")), "{}", stderr(&o));
+    // With the folder's list rewritten, the run's own index still catches it.
+    tabcard::store::integrity::seal(&truncated, |_| Ok(())).unwrap();
     for args in [vec!["card", "truncated"], vec!["predict", "truncated", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);

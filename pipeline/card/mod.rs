@@ -62,6 +62,8 @@ struct CardContext {
     fingerprint: String,
     tool_version: String,
     manifest_sha256: String,
+    /// SHA-256 of the evidence lines of `integrity.sha256` ([`crate::store::integrity`]).
+    results_digest: String,
     manifest_path: String,
     data_path: String,
     data_resolved_path: String,
@@ -342,6 +344,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         fingerprint: record.fingerprint.clone(),
         tool_version: record.tool_version.clone(),
         manifest_sha256: record.manifest_sha256.clone(),
+        results_digest: String::new(),
         manifest_path: md(&record.manifest_path),
         data_path: md(&record.data.path),
         data_resolved_path: md(&record.data.resolved_path),
@@ -428,8 +431,9 @@ fn tera(templates: Option<&Path>) -> Result<tera::Tera> {
 }
 
 /// Renders the card text and figures from a results folder without writing anything.
-pub fn render(layout: &Layout, templates: Option<&Path>) -> Result<(String, Vec<(String, String)>)> {
-    let (context, figs) = build(layout)?;
+pub fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -> Result<(String, Vec<(String, String)>)> {
+    let (mut context, figs) = build(layout)?;
+    context.results_digest = results_digest.to_string();
     let ctx = tera::Context::from_serialize(&context).map_err(|e| Error::Engine(format!("card context: {e}")))?;
     let text = tera(templates)?.render("card.md.tera", &ctx).map_err(|e| {
         let mut msg = e.to_string();
@@ -443,12 +447,15 @@ pub fn render(layout: &Layout, templates: Option<&Path>) -> Result<(String, Vec<
     Ok((text, figs.into_iter().map(|(f, _, svg)| (f, svg)).collect()))
 }
 
-/// Renders and writes `card.md` and `figures/` (atomically, file by file).
-pub fn write_card(layout: &Layout, templates: Option<&Path>) -> Result<()> {
-    let (text, figs) = render(layout, templates)?;
-    crate::store::create_dir(&layout.figures())?;
-    for (name, svg) in figs {
-        write_atomic(&layout.figures().join(name), svg.as_bytes())?;
-    }
-    write_atomic(&layout.card(), text.as_bytes())
+/// Renders and writes `card.md` and `figures/` (atomically, file by file), naming the results
+/// digest of the evidence, and seals the folder's integrity list. Returns the digest.
+pub fn write_card(layout: &Layout, templates: Option<&Path>) -> Result<String> {
+    crate::store::integrity::seal(&layout.root, |digest| {
+        let (text, figs) = render(layout, templates, digest)?;
+        crate::store::create_dir(&layout.figures())?;
+        for (name, svg) in figs {
+            write_atomic(&layout.figures().join(name), svg.as_bytes())?;
+        }
+        write_atomic(&layout.card(), text.as_bytes())
+    })
 }

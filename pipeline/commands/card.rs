@@ -1,5 +1,6 @@
 //! `tabcard card <results folder> [--templates DIR]`: re-render the model card and its figures
-//! from stored results alone, optionally with a user's template folder.
+//! from stored results alone, optionally with a user's template folder, after checking every
+//! stored file against the folder's integrity list (a tampered folder gets no card).
 
 use std::path::Path;
 
@@ -9,6 +10,7 @@ use crate::store::Layout;
 
 pub fn run(results_folder: &Path, templates: Option<&Path>) -> Result<String> {
     let layout = Layout::new(results_folder);
-    write_card(&layout, templates)?;
-    Ok(format!("card     {}\nfigures  {}\n", layout.card().display(), layout.figures().display()))
+    layout.check_sealed()?;
+    let digest = write_card(&layout, templates)?;
+    Ok(format!("card     {}\nfigures  {}\ndigest   {digest} (results digest, unchanged)\n", layout.card().display(), layout.figures().display()))
 }

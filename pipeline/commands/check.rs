@@ -1,5 +1,5 @@
 //! `tabcard check <manifest>`: validate the manifest and the data, print fingerprints, the data
-//! summary and the run plan.
+//! summary, the run plan and its memory estimate (an infeasible plan is an error here already).
 
 use std::fmt::Write;
 use std::path::Path;
@@ -9,9 +9,16 @@ use crate::experiment::{open, Experiment};
 use crate::plan;
 use crate::text::terminal_safe;
 
-pub fn run(manifest_path: &Path) -> Result<String> {
+/// Checks the experiment; `jobs` is the worker count the memory estimate assumes.
+pub fn run(manifest_path: &Path, jobs: usize) -> Result<String> {
     let exp = open(manifest_path)?;
-    Ok(report(&exp))
+    let plan = plan::build(&exp.manifest, &exp.fingerprint);
+    let estimate = crate::feasibility::estimate(&exp, &plan, crate::feasibility::input_width_bound(&exp), jobs);
+    let available = crate::feasibility::available_bytes();
+    crate::feasibility::require(&estimate, available, manifest_path)?;
+    let mut out = report(&exp);
+    let _ = writeln!(out, "memory       {}", crate::feasibility::describe(&estimate, available));
+    Ok(out)
 }
 
 fn num(x: f64) -> String {

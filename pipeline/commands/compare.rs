@@ -36,7 +36,7 @@ struct Side {
 
 fn load(folder: &Path) -> Result<Side> {
     let layout = Layout::new(folder);
-    layout.check_format()?;
+    layout.check_sealed()?;
     let manifest: Value = read_json(&layout.manifest())?;
     let mut flat = BTreeMap::new();
     flatten("", &manifest, &mut flat);

@@ -1,11 +1,13 @@
-//! `tabcard predict <run or results folder> <input.parquet> --out <predictions.parquet>`: score new
-//! rows with a stored model: the input schema is checked against the training schema, unseen
+//! `tabcard predict <run or results folder> <input.parquet> --out <predictions.parquet|.csv>`: score
+//! new rows with a stored model: the input schema is checked against the training schema, unseen
 //! category levels go to the unseen bucket and are counted, numbers outside the training range
-//! are flagged, and probabilities or predictions are written with the id columns.
+//! are flagged, and probabilities or predictions are written with the id columns, in the format
+//! the output's extension names. The output never overwrites evidence: an existing file only with
+//! `--force`, and never the input table or a path inside a results store.
 
 use arrow::array::{ArrayRef, BooleanArray, Float64Array, Int64Array, StringArray};
 use std::fmt::Write;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use crate::data::parquet::{encode, read_table, WriteOptions};
@@ -24,6 +26,70 @@ use crate::text::terminal_safe;
 pub struct PredictOptions {
     /// Copy input columns that are neither features nor ids into the output.
     pub keep_extra: bool,
+    /// Replace an existing output file (never the input, never a file in a results store).
+    pub force: bool,
+}
+
+/// The file formats `--out` can name by its extension.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OutputFormat {
+    Parquet,
+    Csv,
+}
+
+impl OutputFormat {
+    /// The format `path`'s extension names (`.parquet`, `.csv`; any case), else a usage error.
+    pub fn of(path: &Path) -> Result<Self> {
+        match path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref() {
+            Some("parquet") => Ok(OutputFormat::Parquet),
+            Some("csv") => Ok(OutputFormat::Csv),
+            _ => Err(Error::Usage(format!("--out {}: the extension names the format written: `.parquet` or `.csv`", path.display()))),
+        }
+    }
+}
+
+/// `path` made absolute with its folder resolved (the file itself need not exist yet).
+fn resolved(path: &Path) -> Result<PathBuf> {
+    let folder = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    let folder = folder.canonicalize().map_err(|e| Error::io(folder, "find the output's folder", e))?;
+    Ok(match path.file_name() {
+        Some(name) => folder.join(name),
+        None => folder,
+    })
+}
+
+/// The results store `path` would be written into, if any: an experiment's results folder (it
+/// holds `format.json`) or a results root (it holds the ledger).
+fn enclosing_store(path: &Path) -> Option<PathBuf> {
+    path.ancestors().skip(1).find(|dir| dir.join("format.json").is_file() || dir.join(crate::store::ledger::FILE).is_file()).map(Path::to_path_buf)
+}
+
+/// Refuses an output that would overwrite evidence or the input, before any scoring is done.
+pub fn check_output(output: &Path, input: &Path, force: bool) -> Result<OutputFormat> {
+    let out = resolved(output)?;
+    if let Ok(input) = input.canonicalize() {
+        if out == input || out.canonicalize().is_ok_and(|o| o == input) {
+            return Err(Error::Usage(format!("--out {} is the input table; write the predictions to another file", output.display())));
+        }
+    }
+    if let Some(store) = enclosing_store(&out) {
+        return Err(Error::Usage(format!(
+            "--out {} is inside the results store {}, whose files are the audit trail; write the predictions elsewhere",
+            output.display(),
+            store.display()
+        )));
+    }
+    if out.is_dir() {
+        return Err(Error::Usage(format!("--out {} is a folder; name a .parquet or .csv file", output.display())));
+    }
+    let format = OutputFormat::of(output)?;
+    if out.exists() && !force {
+        return Err(Error::Usage(format!("--out {} exists; pass --force to replace it", output.display())));
+    }
+    Ok(format)
 }
 
 /// (experiment folder, run id) for a run folder or an experiment's results folder.
@@ -31,10 +97,12 @@ fn locate(target: &Path) -> Result<(Layout, String)> {
     if target.join(INDEX).exists() {
         let id = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         let root = target.parent().and_then(Path::parent).ok_or_else(|| Error::store(target, "is not inside a results folder"))?;
-        return Ok((Layout::new(root), id));
+        let layout = Layout::new(root);
+        layout.check_sealed()?;
+        return Ok((layout, id));
     }
     let layout = Layout::new(target);
-    layout.check_format()?;
+    layout.check_sealed()?;
     let selection: Selection = read_json(&layout.selection())?;
     Ok((layout, selection.selected_run))
 }
@@ -138,8 +206,12 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
 }
 
 pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions) -> Result<String> {
+    let format = check_output(output, input, options.force)?;
     let (columns, mut report) = score(target, input, options)?;
-    let bytes = encode(columns, WriteOptions::default())?;
+    let bytes = match format {
+        OutputFormat::Parquet => encode(columns, WriteOptions::default())?,
+        OutputFormat::Csv => crate::data::csv::encode(&columns)?.into_bytes(),
+    };
     write_atomic(output, &bytes)?;
     let _ = writeln!(report, "wrote     {}", output.display());
     Ok(report)

@@ -122,6 +122,35 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
     TrainOutcome { report: out, results: layout.root.clone(), failed_runs: report.failed.len() }
 }
 
+/// The selection of a configuration from the stored runs and the one evaluation of its selected
+/// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
+pub fn derive_selection(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
+    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
+    let m = &exp.manifest;
+    let (configs, selected_config, selected_run) = select(m.data.task, plan, runs, &m.selection.metric)?;
+    let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
+    let test_y = exp.labels(&exp.splits.test);
+    let groups: Vec<crate::selection::GroupColumn> = exp
+        .roles
+        .groups
+        .iter()
+        .filter_map(|name| {
+            let col = exp.table.column(name)?;
+            Some(crate::selection::GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
+        })
+        .collect();
+    let test = evaluate_test(runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups)?;
+    Ok(Selection {
+        metric: m.selection.metric.clone(),
+        higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
+        configs,
+        selected_config,
+        selected_run,
+        baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
+        test,
+    })
+}
+
 pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
     let started = Instant::now();
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
@@ -129,6 +158,9 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let prepared = Prepared::new(open(manifest_path)?)?;
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
+    // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
+    let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
+    crate::feasibility::require(&estimate, crate::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
     prepare_folder(exp, &layout, plan, preprocessor)?;
     let inputs = SweepInputs {
@@ -147,29 +179,16 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     if let Some(shard) = options.shard {
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));
     }
-    let nothing_new = report.trained.is_empty() && layout.selection().exists();
+    // A sweep killed between its selection and the seal of its integrity list finishes both now.
+    let nothing_new = report.trained.is_empty() && layout.selection().exists() && layout.root.join(crate::store::integrity::FILE).exists();
 
-    let selection: Selection = if nothing_new {
-        read_json(&layout.selection())?
+    let (selection, results_digest) = if nothing_new {
+        // Nothing was trained: the stored results stand, once they match their integrity list.
+        let digest = crate::store::integrity::check(&layout.root)?;
+        (read_json(&layout.selection())?, digest)
     } else {
         let runs = load_runs(&layout, plan)?;
-        let (configs, selected_config, selected_run) = select(m.data.task, plan, &runs, &m.selection.metric)?;
-        let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
-        let test_y = exp.labels(&exp.splits.test);
-        let groups: Vec<crate::selection::GroupColumn> = exp.roles.groups.iter().filter_map(|name| {
-            let col = exp.table.column(name)?;
-            Some(crate::selection::GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
-        }).collect();
-        let test = evaluate_test(&runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups)?;
-        let selection = Selection {
-            metric: m.selection.metric.clone(),
-            higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
-            configs,
-            selected_config,
-            selected_run,
-            baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
-            test,
-        };
+        let selection = derive_selection(&prepared, &runs)?;
         write_json(&layout.selection(), &selection)?;
         let seconds: Vec<(String, f64)> = runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect();
         let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
@@ -181,8 +200,8 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
             "wall_seconds": started.elapsed().as_secs_f64(),
             "run_seconds": seconds.into_iter().collect::<std::collections::BTreeMap<_, _>>(),
         }))?;
-        crate::card::write_card(&layout, None)?;
-        selection
+        let digest = crate::card::write_card(&layout, None)?;
+        (selection, digest)
     };
 
     let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
@@ -201,6 +220,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         selected_run: Some(selection.selected_run.clone()),
         selection_metric: selection.metric.clone(),
         selected_value,
+        results_digest: Some(results_digest.clone()),
         tool_version: crate::experiment::TOOL_VERSION.to_string(),
     })?;
 
@@ -218,5 +238,6 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     out.push_str(&table(&selection));
     let _ = writeln!(out, "\nresults  {}", layout.root.display());
     let _ = writeln!(out, "card     {}", layout.card().display());
+    let _ = writeln!(out, "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)");
     Ok(TrainOutcome { report: out, results: layout.root, failed_runs: report.failed.len() })
 }

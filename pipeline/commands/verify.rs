@@ -1,7 +1,9 @@
 //! `tabcard verify <results folder | manifest>`: rerun an experiment from what its results folder
 //! records and compare every weight tensor (SHA-256), every history row and every metric with the
-//! stored ones. Data, manifest and stored files are checked first; the environment is compared
-//! with the one recorded, because that is the first question an auditor asks.
+//! stored ones. Every stored file is checked against the folder's integrity list first (a tampered
+//! file is named and nothing is retrained), then data and manifest; the selection and test
+//! metrics are re-derived from the stored runs, the results digest is compared with the ledger's,
+//! and the environment with the one recorded, because that is the first question an auditor asks.
 
 use std::collections::BTreeSet;
 use std::fmt::Write;
@@ -107,7 +109,7 @@ fn environment_differences(recorded: &NumericsFingerprint, now: &NumericsFingerp
 pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let folder = results_folder(target, &options.results_root)?;
     let layout = Layout::new(&folder);
-    layout.check_format()?;
+    let digest = layout.check_sealed()?;
     let record: ExperimentRecord = read_json(&layout.experiment())?;
     let manifest_text = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
     let manifest_hash = sha256_hex(manifest_text.as_bytes());
@@ -212,8 +214,44 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
             }
         }
     }
-    let _ = writeln!(out, "\nverdict   {}", if identical { "verified: every run reproduced bit for bit" } else { "NOT verified" });
+    // The selection and its one test evaluation, re-derived from the stored runs.
+    let derived = crate::commands::train::load_runs(&layout, &prepared.plan).and_then(|runs| crate::commands::train::derive_selection(&prepared, &runs));
+    let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Engine(format!("serialising the selection: {e}")));
+    match derived {
+        Ok(derived) if as_value(&derived)? == as_value(&selection)? => {
+            let _ = writeln!(out, "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals)");
+        }
+        Ok(_) => {
+            identical = false;
+            let _ = writeln!(out, "\nselection DIFFERS: selection.json does not match the selection and test metrics re-derived from the stored runs");
+        }
+        Err(e) => {
+            identical = false;
+            let _ = writeln!(out, "\nselection CANNOT be re-derived from the stored runs: {e}");
+        }
+    }
+    match crate::card::render(&layout, None, &digest) {
+        Ok((card, _)) => {
+            let stored_card = std::fs::read_to_string(layout.card()).map_err(|e| Error::io(layout.card(), "read", e))?;
+            let _ = if card == stored_card {
+                writeln!(out, "card      matches the card rendered from the stored evidence")
+            } else {
+                writeln!(out, "card      differs from the default rendering of the evidence (expected only when it was rendered with `card --templates` or timing.json changed)")
+            };
+        }
+        Err(e) => { let _ = writeln!(out, "card      cannot be re-rendered: {e}"); }
+    }
     let root = layout.root.parent().unwrap_or(Path::new("."));
+    let ledgered = crate::store::ledger::read(root)?.into_iter().rev().find(|e| e.fingerprint == record.fingerprint && e.results_digest.is_some()).and_then(|e| e.results_digest);
+    match ledgered {
+        Some(d) if d == digest => { let _ = writeln!(out, "digest    {digest}: every stored file matches integrity.sha256, and the ledger records this digest"); }
+        Some(d) => {
+            identical = false;
+            let _ = writeln!(out, "digest    {digest} DIFFERS from the ledger's {d}: integrity.sha256 was rewritten after training");
+        }
+        None => { let _ = writeln!(out, "digest    {digest}: every stored file matches integrity.sha256 (no ledger line records a digest for this experiment)"); }
+    }
+    let _ = writeln!(out, "\nverdict   {}", if identical { "verified: every run reproduced bit for bit" } else { "NOT verified" });
     crate::store::ledger::append_verification(root, &crate::store::ledger::VerificationEntry {
         time: crate::provenance::now_rfc3339(),
         fingerprint: record.fingerprint.clone(),

@@ -1,6 +1,7 @@
 //! Tabular data: reading Parquet, typed columns and their content hash, column roles and the
 //! target, the data summary, the seeded split, and preprocessing.
 
+pub mod csv;
 pub mod parquet;
 pub mod prep;
 pub mod roles;

@@ -202,7 +202,14 @@ impl Preprocessor {
                         if !missing && (value < *train_min || value > *train_max) {
                             report.out_of_range[i] = true;
                         }
-                        m.data[i * width + offset] = ((value - mean) / scale) as f32;
+                        let standardised = ((value - mean) / scale) as f32;
+                        if !standardised.is_finite() {
+                            return Err(Error::data(file, Some(name), format!(
+                                "row {r} holds {value:e}, which standardises to {:e} (mean {mean:e}, scale {scale:e}): beyond single precision; rescale the column",
+                                (value - mean) / scale
+                            )));
+                        }
+                        m.data[i * width + offset] = standardised;
                         if *indicator {
                             m.data[i * width + offset + 1] = missing as u8 as f32;
                         }

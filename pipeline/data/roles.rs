@@ -105,6 +105,13 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
                     format!("row {row} holds {value}; tabcard needs finite numbers (store missing values as nulls)"),
                 ));
             }
+            if let Some((row, value)) = (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| x.abs() > MAX_MAGNITUDE).map(|x| (r, x))) {
+                return Err(Error::data(
+                    file,
+                    Some(&name),
+                    format!("row {row} holds {value:e}, beyond ±{MAX_MAGNITUDE:e}, where sums of squares in the statistics could overflow; rescale the column (other units)"),
+                ));
+            }
         }
         let categorical = col.is_text() || d.categorical.contains(&name);
         features.push(Feature { name, categorical });
@@ -119,6 +126,10 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
     let target = encode_target(m, table, file)?;
     Ok((roles, target))
 }
+
+/// The largest magnitude a numeric feature may hold: squares and their sums over any table
+/// tabcard can hold (below 2^64 rows) stay far inside f64 (1e200 x 2^64 < 1.8e308).
+pub const MAX_MAGNITUDE: f64 = 1e100;
 
 fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
     let name = m.data.target.as_str();
@@ -142,6 +153,9 @@ fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
             };
             if let Some(row) = values.iter().position(|x| !x.is_finite()) {
                 return Err(err(format!("row {row} holds {}; a regression target must be finite", values[row])));
+            }
+            if let Some(row) = values.iter().position(|x| x.abs() > MAX_MAGNITUDE) {
+                return Err(err(format!("row {row} holds {:e}, beyond ±{MAX_MAGNITUDE:e}, where sums of squares in the statistics could overflow; rescale the target (other units)", values[row])));
             }
             if values.iter().all(|&x| x == values[0]) {
                 return Err(err(format!("is constant ({}); there is nothing to predict", values[0])));

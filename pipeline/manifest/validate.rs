@@ -159,6 +159,7 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     c.check(s.validation + s.test < 1.0, "split.test", || {
         format!("validation + test = {:?} must be below 1 so rows remain for training", s.validation + s.test)
     });
+    c.check(s.seed <= MAX_SEED, "split.seed", || out_of_toml_range(s.seed));
 
     c.0.extend(validate_run_settings(m.data.task, &m.model, &m.training));
 
@@ -176,6 +177,9 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     }
     c.check(m.selection.bootstrap <= 100_000, "selection.bootstrap", || format!("must be at most 100000, got {}", m.selection.bootstrap));
 
+    if let Some(i) = m.sweep.seeds.iter().position(|&s| s > MAX_SEED) {
+        c.0.push(Problem { key: KeyPath::parse_dotted("sweep.seeds"), index: Some(i), message: out_of_toml_range(m.sweep.seeds[i]), hint: None });
+    }
     c.check(!m.sweep.seeds.is_empty(), "sweep.seeds", || "must list at least one seed: the plan would have no runs".into());
     let mut seen = std::collections::BTreeSet::new();
     if let Some(i) = m.sweep.seeds.iter().position(|s| !seen.insert(*s)) {
@@ -183,4 +187,12 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     }
     c.check(m.sweep.max_runs >= 1, "sweep.max_runs", || "must be at least 1".into());
     c.0
+}
+
+/// The largest seed a manifest may hold: TOML integers are 64-bit signed (TOML 1.0, "Integer"),
+/// so a larger value would not survive another TOML tool reading the manifest.
+const MAX_SEED: u64 = i64::MAX as u64;
+
+fn out_of_toml_range(seed: u64) -> String {
+    format!("seed {seed} is outside TOML's integer range: seeds go from 0 to {MAX_SEED} (2^63 - 1)")
 }

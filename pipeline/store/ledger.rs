@@ -22,6 +22,10 @@ pub struct LedgerEntry {
     pub selection_metric: String,
     pub selected_value: Option<f64>,
     pub tool_version: String,
+    /// The results digest of the folder as this invocation left it (`store::integrity`); absent
+    /// in lines written before tabcard recorded it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub results_digest: Option<String>,
 }
 
 pub const FILE: &str = "ledger.jsonl";

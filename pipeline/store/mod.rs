@@ -29,6 +29,7 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     Ok(())
 }
 
+pub mod integrity;
 pub mod ledger;
 pub mod run;
 pub mod weights;
@@ -93,6 +94,18 @@ impl Layout {
     pub fn figures(&self) -> PathBuf { self.root.join("figures") }
     pub fn runs(&self) -> PathBuf { self.root.join("runs") }
     pub fn run(&self, id: &str) -> PathBuf { self.runs().join(id) }
+
+    /// Checks that the folder is a finished results folder whose every file matches its integrity
+    /// list, then its format; returns the results digest. What `card`, `compare`, `predict` and
+    /// `verify` call before trusting anything in it.
+    pub fn check_sealed(&self) -> Result<String> {
+        if !self.format().exists() {
+            return Err(Error::store(&self.root, "is not a tabcard results folder (no format.json)"));
+        }
+        let digest = integrity::check(&self.root)?;
+        self.check_format()?;
+        Ok(digest)
+    }
 
     /// Checks that the folder was written by a tool that uses this layout.
     pub fn check_format(&self) -> Result<FormatRecord> {

@@ -1,0 +1,156 @@
+//! Feasibility before work: an estimate of the memory a plan needs (the data shared by all
+//! workers plus, per worker, the largest configuration's parameters, optimizer state and batch
+//! buffers) against the memory this process may use (the kernel's available memory, an address
+//! space limit such as `ulimit -v`, a cgroup limit), so that `check` reports it and `train`
+//! refuses an infeasible plan before writing anything, never aborting mid-sweep.
+
+use std::fmt::Write;
+
+use crate::error::{Error, Result};
+use crate::experiment::Experiment;
+use crate::plan::{Plan, PlannedConfig};
+
+/// Bytes per trainable parameter in one worker: the engine's weights and gradients (f32), the
+/// optimizer's two moments (f64), the model's own copy, the copy handed over at start and at
+/// the end, the best epoch's snapshot and the stored tensors.
+const BYTES_PER_PARAMETER: u64 = 4 + 4 + 16 + 4 + 4 + 4 + 4;
+/// Rows of every batch buffer at least (the engine evaluates in blocks of this many rows).
+const EVAL_BLOCK: u64 = crate::nn::engine::EVAL_BLOCK as u64;
+
+/// What training a plan needs, by the estimate of this module.
+#[derive(Debug, Clone)]
+pub struct MemoryEstimate {
+    /// The configuration that needs the most, its parameter count and bytes per worker.
+    pub largest: String,
+    pub parameters: u64,
+    pub per_worker: u64,
+    /// The decoded table and the encoded matrices, shared by every worker.
+    pub shared: u64,
+    pub workers: usize,
+    pub total: u64,
+}
+
+/// Parameters of a configuration for `inputs` input columns and `outputs` outputs.
+pub fn parameter_count(config: &PlannedConfig, inputs: usize, outputs: usize) -> u64 {
+    let model = &config.config.model;
+    let hidden: &[usize] = if config.baseline { &[] } else { &model.hidden };
+    let mut width = inputs as u64;
+    let mut count = 0u64;
+    for &w in hidden {
+        let w = w as u64;
+        count = count.saturating_add(width.saturating_mul(w).saturating_add(w));
+        if model.batch_norm {
+            count = count.saturating_add(2 * w);
+        }
+        width = w;
+    }
+    count.saturating_add(width.saturating_mul(outputs as u64).saturating_add(outputs as u64))
+}
+
+/// Bytes one worker needs to train `config`.
+fn worker_bytes(config: &PlannedConfig, inputs: usize, outputs: usize) -> u64 {
+    let rows = (config.config.training.batch_size as u64).max(EVAL_BLOCK);
+    let hidden: &[usize] = if config.baseline { &[] } else { &config.config.model.hidden };
+    let widest = hidden.iter().copied().chain([inputs, outputs]).max().unwrap_or(1) as u64;
+    // Per hidden unit and row: pre-activation, output, activation copy, dropout mask, batch-norm
+    // output; two gradient buffers and the dropout draws at the widest layer; the input batch.
+    let activations = hidden.iter().map(|&w| 5 * w as u64).sum::<u64>().saturating_add(3 * widest).saturating_add(inputs as u64);
+    let buffers = rows.saturating_mul(activations).saturating_mul(4);
+    parameter_count(config, inputs, outputs).saturating_mul(BYTES_PER_PARAMETER).saturating_add(buffers)
+}
+
+/// Input columns after encoding, at most: one per numeric feature plus a missing-value
+/// indicator, and per categorical feature one per level, the unseen bucket and the indicator.
+pub fn input_width_bound(exp: &Experiment) -> usize {
+    exp.roles
+        .features
+        .iter()
+        .map(|f| match exp.summary.columns.iter().find(|c| c.name == f.name) {
+            Some(c) if f.categorical => c.distinct + 2,
+            _ => 2,
+        })
+        .sum()
+}
+
+/// The estimate for `plan` with `inputs` encoded input columns, on `jobs` workers.
+pub fn estimate(exp: &Experiment, plan: &Plan, inputs: usize, jobs: usize) -> MemoryEstimate {
+    let outputs = exp.head().outputs();
+    let (largest, per_worker) = plan
+        .configs
+        .iter()
+        .map(|c| (c, worker_bytes(c, inputs, outputs)))
+        .max_by_key(|(_, bytes)| *bytes)
+        .map(|(c, bytes)| (c.clone(), bytes))
+        .unwrap_or_else(|| (plan.configs[0].clone(), 0));
+    let rows = exp.table.rows as u64;
+    let shared = rows.saturating_mul(exp.table.columns.len() as u64).saturating_mul(8).saturating_add(rows.saturating_mul(inputs as u64).saturating_mul(4 * 2));
+    let workers = jobs.clamp(1, plan.runs.len().max(1));
+    let total = shared.saturating_add(per_worker.saturating_mul(workers as u64));
+    let label = if largest.baseline {
+        "linear baseline".to_string()
+    } else {
+        format!("model.hidden = {:?}", largest.config.model.hidden)
+    };
+    MemoryEstimate { parameters: parameter_count(&largest, inputs, outputs), largest: label, per_worker, shared, workers, total }
+}
+
+fn first_number(text: &str, key: &str) -> Option<u64> {
+    text.lines().find_map(|l| l.strip_prefix(key)).and_then(|rest| rest.split_whitespace().next()).and_then(|v| v.parse().ok())
+}
+
+/// The memory this process may still use, in bytes, where the system says: the least of the
+/// kernel's MemAvailable, the address-space limit less what is mapped, and a cgroup v2 limit.
+pub fn available_bytes() -> Option<u64> {
+    let mut limits = Vec::new();
+    if let Ok(meminfo) = std::fs::read_to_string("/proc/meminfo") {
+        limits.extend(first_number(&meminfo, "MemAvailable:").map(|kb| kb * 1024));
+    }
+    if let Ok(text) = std::fs::read_to_string("/proc/self/limits") {
+        let address_space = text.lines().find_map(|l| l.strip_prefix("Max address space")).and_then(|rest| rest.split_whitespace().next()).and_then(|v| v.parse::<u64>().ok());
+        if let Some(limit) = address_space {
+            let mapped = std::fs::read_to_string("/proc/self/status").ok().and_then(|s| first_number(&s, "VmSize:")).unwrap_or(0) * 1024;
+            limits.push(limit.saturating_sub(mapped));
+        }
+    }
+    if let Ok(text) = std::fs::read_to_string("/sys/fs/cgroup/memory.max") {
+        limits.extend(text.trim().parse::<u64>().ok());
+    }
+    limits.into_iter().min()
+}
+
+fn mib(bytes: u64) -> String {
+    format!("{:.0} MiB", bytes as f64 / (1024.0 * 1024.0))
+}
+
+/// One line for `check` and `train`: the figures of the estimate and what is available.
+pub fn describe(e: &MemoryEstimate, available: Option<u64>) -> String {
+    let mut out = String::new();
+    let _ = write!(
+        out,
+        "largest configuration {} with {} parameters: about {} per worker x {} worker(s) + {} of data = {}",
+        e.largest,
+        e.parameters,
+        mib(e.per_worker),
+        e.workers,
+        mib(e.shared),
+        mib(e.total)
+    );
+    if let Some(a) = available {
+        let _ = write!(out, " (available: {})", mib(a));
+    }
+    out
+}
+
+/// An error when the estimate exceeds what is available, naming the figures and the key.
+pub fn require(e: &MemoryEstimate, available: Option<u64>, what: &std::path::Path) -> Result<()> {
+    match available {
+        Some(a) if e.total > a => Err(Error::Usage(format!(
+            "{}: the plan needs an estimated {} of memory, more than the {} available: {}; reduce `model.hidden` (or its grid values) or --jobs",
+            what.display(),
+            mib(e.total),
+            mib(a),
+            describe(e, None)
+        ))),
+        _ => Ok(()),
+    }
+}
