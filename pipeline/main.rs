@@ -127,6 +127,7 @@ fn progress_display() -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
     let failed = std::sync::atomic::AtomicUsize::new(0);
     let handle = bar.clone();
     let on_event = move |event: Event| match event {
+        Event::Waiting(message) => eprintln!("{message}"),
         Event::Planned { pending, reused } => {
             handle.set_length(pending as u64);
             handle.set_message(format!("{reused} reused"));

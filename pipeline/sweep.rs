@@ -18,6 +18,8 @@ use crate::train::{train, Head, Outcome, RunData};
 /// Progress notifications, for a display the caller owns.
 #[derive(Debug, Clone)]
 pub enum Event {
+    /// Another process is writing this experiment; this one waits for it.
+    Waiting(String),
     Planned { pending: usize, reused: usize },
     Finished { run_id: String, outcome: Outcome },
 }

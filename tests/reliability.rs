@@ -98,8 +98,20 @@ fn two_concurrent_trains_of_one_experiment_agree() {
     let reference = run_in(dir.path(), &["train", manifest.to_str().unwrap(), "--results", "alone", "--jobs", "2"]);
     assert!(reference.status.success());
     assert!(snapshot_runs(&folder) == snapshot_runs(&experiment_folder(&dir.path().join("alone")).unwrap()));
+    // One writer at a time: every run trained once, by one of the two; the other waited, found
+    // them stored and added no ledger line (one line per completed selection).
+    let planned: usize = [&a, &b]
+        .iter()
+        .find_map(|o| stdout(o).lines().find(|l| l.starts_with("runs: ")).and_then(|l| l.split(", ").last()).and_then(|p| p.split(' ').next()).and_then(|n| n.parse().ok()))
+        .expect("one process trained");
+    let trained: Vec<usize> = [&a, &b]
+        .iter()
+        .map(|o| stdout(o).lines().find_map(|l| l.strip_prefix("runs: ").and_then(|r| r.split(' ').next()).and_then(|n| n.parse().ok())).unwrap_or(0))
+        .collect();
+    assert_eq!(trained.iter().sum::<usize>(), planned, "each run trained once: {trained:?}\n{}\n{}", stdout(&a), stdout(&b));
+    assert!([&a, &b].iter().any(|o| stdout(o).contains("nothing to train") && stderr(o).contains("which is writing this experiment")), "{}{}", stderr(&a), stderr(&b));
     let ledger = std::fs::read_to_string(dir.path().join("shared/ledger.jsonl")).unwrap();
-    assert_eq!(ledger.lines().count(), 2);
+    assert_eq!(ledger.lines().count(), 1);
     for line in ledger.lines() {
         serde_json::from_str::<serde_json::Value>(line).unwrap();
     }
@@ -157,9 +169,16 @@ fn tampered_or_foreign_results_fail_clearly() {
     for args in [vec!["card", "newer"], vec!["verify", "newer"], vec!["predict", "newer", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
-        let expected = format!("error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 1", env!("CARGO_PKG_VERSION"));
+        let expected = format!("error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 2", env!("CARGO_PKG_VERSION"));
         assert_eq!(stderr(&o).trim_end(), expected, "{args:?}");
     }
+    // A folder of layout version 1 (before integrity lists) is named as such.
+    let older = copy("older");
+    std::fs::write(older.join("format.json"), "{\"format\": \"tabcard-results\", \"version\": 1, \"tool_version\": \"0.3.0\"}\n").unwrap();
+    std::fs::remove_file(older.join("integrity.sha256")).unwrap();
+    let o = run_in(dir.path(), &["verify", "older"]);
+    assert_eq!(o.status.code(), Some(3));
+    assert!(stderr(&o).starts_with("error: older/format.json: results layout version 1, written by tabcard 0.3.0 before results folders carried integrity.sha256"), "{}", stderr(&o));
     let unknown = copy("unknown");
     std::fs::remove_file(unknown.join("format.json")).unwrap();
     let o = run_in(dir.path(), &["card", "unknown"]);

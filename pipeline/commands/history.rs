@@ -1,4 +1,4 @@
-//! `tabcard history [--results DIR]`: the ledger: every train invocation with its time,
+//! `tabcard history [--results DIR]`: the ledger: every completed selection with its time,
 //! experiment, fingerprint, git commit, selected metric, and whether it has been verified.
 
 use std::fmt::Write;

@@ -162,6 +162,12 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
     crate::feasibility::require(&estimate, crate::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
+    // One writer per experiment (shards own disjoint runs and take none): a second `train` waits
+    // here, then finds the runs stored.
+    let _writer = match options.shard {
+        None => Some(crate::store::lock::acquire(&layout.root, &|holder| on_event(Event::Waiting(holder.to_string())))?),
+        Some(_) => None,
+    };
     prepare_folder(exp, &layout, plan, preprocessor)?;
     let inputs = SweepInputs {
         layout: &layout,
@@ -206,23 +212,26 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
 
     let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
     let selected_value = selection.test.metrics.get(&selection.metric).copied().flatten();
-    ledger::append(&options.results_root, &LedgerEntry {
-        time: crate::provenance::now_rfc3339(),
-        experiment: m.experiment.name.clone(),
-        fingerprint: exp.fingerprint.clone(),
-        results: layout.root.display().to_string(),
-        git_commit,
-        git_dirty,
-        runs_planned: plan.runs.len(),
-        runs_trained: report.trained.len(),
-        runs_reused: report.reused.len(),
-        runs_failed: report.failed.len(),
-        selected_run: Some(selection.selected_run.clone()),
-        selection_metric: selection.metric.clone(),
-        selected_value,
-        results_digest: Some(results_digest.clone()),
-        tool_version: crate::experiment::TOOL_VERSION.to_string(),
-    })?;
+    // One ledger line per completed selection: an invocation that trained nothing adds none.
+    if !nothing_new {
+        ledger::append(&options.results_root, &LedgerEntry {
+            time: crate::provenance::now_rfc3339(),
+            experiment: m.experiment.name.clone(),
+            fingerprint: exp.fingerprint.clone(),
+            results: layout.root.display().to_string(),
+            git_commit,
+            git_dirty,
+            runs_planned: plan.runs.len(),
+            runs_trained: report.trained.len(),
+            runs_reused: report.reused.len(),
+            runs_failed: report.failed.len(),
+            selected_run: Some(selection.selected_run.clone()),
+            selection_metric: selection.metric.clone(),
+            selected_value,
+            results_digest: Some(results_digest.clone()),
+            tool_version: crate::experiment::TOOL_VERSION.to_string(),
+        })?;
+    }
 
     let mut out = String::new();
     let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&m.experiment.name), exp.fingerprint);

@@ -1,4 +1,5 @@
-//! The append-only ledger at the results root: one JSON line per `train` invocation.
+//! The append-only ledger at the results root: one JSON line per completed selection (a `train`
+//! that trained nothing adds none).
 
 use serde::{Deserialize, Serialize};
 use std::io::Write;

@@ -30,12 +30,14 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 }
 
 pub mod integrity;
+pub mod lock;
 pub mod ledger;
 pub mod run;
 pub mod weights;
 
-/// The version of the results layout this tool writes and reads.
-pub const FORMAT_VERSION: u32 = 1;
+/// The version of the results layout this tool writes and reads. Version 2 added
+/// `integrity.sha256` and the results digest.
+pub const FORMAT_VERSION: u32 = 2;
 
 /// Pretty JSON with stable key order (struct order, sorted maps), newline-terminated.
 pub fn to_json<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
@@ -101,6 +103,12 @@ impl Layout {
     pub fn check_sealed(&self) -> Result<String> {
         if !self.format().exists() {
             return Err(Error::store(&self.root, "is not a tabcard results folder (no format.json)"));
+        }
+        if let Ok(FormatRecord { version: 1, tool_version, .. }) = read_json::<FormatRecord>(&self.format()) {
+            return Err(Error::store(self.format(), format!(
+                "results layout version 1, written by tabcard {tool_version} before results folders carried integrity.sha256; \
+                 check it with the tabcard that wrote it (its run indexes still hold every run file's SHA-256), or retrain it with this one"
+            )));
         }
         let digest = integrity::check(&self.root)?;
         self.check_format()?;
