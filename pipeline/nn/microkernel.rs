@@ -40,6 +40,9 @@ pub struct Kernels<T> {
     pub one: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
 }
 
+/// The signature of a tile's kernel (see [`Tile::compute`]).
+pub type TileFn<T> = unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool);
+
 /// One level's tile for element type `T`: its shape and the function that computes it.
 #[derive(Clone, Copy)]
 pub struct Tile<T> {
@@ -54,7 +57,7 @@ pub struct Tile<T> {
     /// # Safety
     /// `a` spans every A(r, p) for r < rows, p < kc; `b` holds `kc cols` values; `c` a
     /// `rows x cols` block with row stride `ldc`; and the CPU runs the tile's level.
-    pub compute: unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool),
+    pub compute: TileFn<T>,
 }
 
 /// A vector of lanes (or one scalar) that the generic kernels compute with.
