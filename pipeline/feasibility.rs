@@ -75,23 +75,19 @@ pub fn input_width_bound(exp: &Experiment) -> usize {
 /// The estimate for `plan` with `inputs` encoded input columns, on `jobs` workers.
 pub fn estimate(exp: &Experiment, plan: &Plan, inputs: usize, jobs: usize) -> MemoryEstimate {
     let outputs = exp.head().outputs();
-    let (largest, per_worker) = plan
-        .configs
-        .iter()
-        .map(|c| (c, worker_bytes(c, inputs, outputs)))
-        .max_by_key(|(_, bytes)| *bytes)
-        .map(|(c, bytes)| (c.clone(), bytes))
-        .unwrap_or_else(|| (plan.configs[0].clone(), 0));
+    let largest = plan.configs.iter().max_by_key(|c| worker_bytes(c, inputs, outputs));
+    let per_worker = largest.map_or(0, |c| worker_bytes(c, inputs, outputs));
     let rows = exp.table.rows as u64;
     let shared = rows.saturating_mul(exp.table.columns.len() as u64).saturating_mul(8).saturating_add(rows.saturating_mul(inputs as u64).saturating_mul(4 * 2));
     let workers = jobs.clamp(1, plan.runs.len().max(1));
     let total = shared.saturating_add(per_worker.saturating_mul(workers as u64));
-    let label = if largest.baseline {
-        "linear baseline".to_string()
-    } else {
-        format!("model.hidden = {:?}", largest.config.model.hidden)
+    let label = match largest {
+        None => "(none planned)".to_string(),
+        Some(c) if c.baseline => "linear baseline".to_string(),
+        Some(c) => format!("model.hidden = {:?}", c.config.model.hidden),
     };
-    MemoryEstimate { parameters: parameter_count(&largest, inputs, outputs), largest: label, per_worker, shared, workers, total }
+    let parameters = largest.map_or(0, |c| parameter_count(c, inputs, outputs));
+    MemoryEstimate { parameters, largest: label, per_worker, shared, workers, total }
 }
 
 fn first_number(text: &str, key: &str) -> Option<u64> {

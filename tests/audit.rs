@@ -18,14 +18,6 @@ fn train(dir: &Path, manifest: &Path) -> PathBuf {
     PathBuf::from(line.trim_start_matches("results").trim())
 }
 
-fn copy_dir(from: &Path, to: &Path) {
-    std::fs::create_dir_all(to).unwrap();
-    for e in std::fs::read_dir(from).unwrap() {
-        let p = e.unwrap().path();
-        let target = to.join(p.file_name().unwrap());
-        if p.is_dir() { copy_dir(&p, &target) } else { std::fs::copy(&p, &target).unwrap(); }
-    }
-}
 
 #[test]
 fn verify_passes_and_fails_for_the_right_reasons() {

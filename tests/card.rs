@@ -6,14 +6,7 @@ mod common;
 
 use arrow::array::{ArrayRef, BooleanArray, Float64Array, StringArray};
 use common::*;
-use std::path::{Path, PathBuf};
 use std::sync::Arc;
-
-fn trained(dir: &Path, manifest: &Path) -> PathBuf {
-    let out = bin().current_dir(dir).args(["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]).output().unwrap();
-    assert!(out.status.success(), "{}", stderr(&out));
-    experiment_folder(&dir.join("results")).unwrap()
-}
 
 fn html(markdown: &str) -> String {
     let mut out = String::new();

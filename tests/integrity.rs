@@ -8,27 +8,8 @@
 mod common;
 
 use common::*;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
-
-fn train(dir: &Path, manifest: &Path) -> PathBuf {
-    let out = run_in(dir, &["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]);
-    assert!(out.status.success(), "{}", stderr(&out));
-    experiment_folder(&dir.join("results")).expect("an experiment folder").canonicalize().unwrap()
-}
-
-fn copy_dir(from: &Path, to: &Path) {
-    std::fs::create_dir_all(to).unwrap();
-    for entry in std::fs::read_dir(from).unwrap() {
-        let entry = entry.unwrap();
-        let target = to.join(entry.file_name());
-        if entry.file_type().unwrap().is_dir() {
-            copy_dir(&entry.path(), &target);
-        } else {
-            std::fs::copy(entry.path(), &target).unwrap();
-        }
-    }
-}
 
 /// The paths `integrity.sha256` lists, in order.
 fn listed(folder: &Path) -> Vec<String> {
@@ -44,7 +25,7 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let manifest = small_lease_experiment(d, 400, "");
-    let folder = train(d, &manifest);
+    let folder = trained(d, &manifest).canonicalize().unwrap();
     let paths = listed(&folder);
     for must in ["manifest.json", "manifest.source.toml", "experiment.json", "data-summary.json", "plan.json", "preprocessor.json", "selection.json", "format.json", "card.md"] {
         assert!(paths.iter().any(|p| p == must), "{must} is listed");

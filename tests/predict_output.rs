@@ -5,13 +5,7 @@
 mod common;
 
 use common::*;
-use std::path::{Path, PathBuf};
-
-fn train(dir: &Path, manifest: &Path) -> PathBuf {
-    let out = run_in(dir, &["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]);
-    assert!(out.status.success(), "{}", stderr(&out));
-    experiment_folder(&dir.join("results")).expect("an experiment folder")
-}
+use std::path::Path;
 
 fn predict(dir: &Path, folder: &Path, input: &str, out: &str, extra: &[&str]) -> std::process::Output {
     let mut args = vec!["predict", folder.to_str().unwrap(), input, "--out", out];
@@ -30,7 +24,7 @@ fn refused(out: &std::process::Output, expected: &str, untouched: &Path, before:
 fn predict_refuses_to_overwrite_evidence_and_writes_the_named_format() {
     let dir = tempfile::tempdir().unwrap();
     let manifest = small_lease_experiment(dir.path(), 600, "");
-    let folder = train(dir.path(), &manifest);
+    let folder = trained(dir.path(), &manifest);
     let d = dir.path();
 
     // Parquet and CSV, read back: the same rows and bit-identical probabilities.

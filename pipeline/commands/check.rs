@@ -16,7 +16,7 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<String> {
     let estimate = crate::feasibility::estimate(&exp, &plan, crate::feasibility::input_width_bound(&exp), jobs);
     let available = crate::feasibility::available_bytes();
     crate::feasibility::require(&estimate, available, manifest_path)?;
-    let mut out = report(&exp);
+    let mut out = report(&exp, &plan);
     let _ = writeln!(out, "memory       {}", crate::feasibility::describe(&estimate, available));
     Ok(out)
 }
@@ -25,10 +25,9 @@ fn num(x: f64) -> String {
     crate::format::sig(x, 4)
 }
 
-pub fn report(exp: &Experiment) -> String {
+pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let m = &exp.manifest;
     let mut out = String::new();
-    let plan = plan::build(m, &exp.fingerprint);
     let _ = writeln!(out, "experiment   {}", terminal_safe(&m.experiment.name));
     let _ = writeln!(out, "manifest     {}", exp.manifest_path.display());
     let _ = writeln!(out, "fingerprint  {}", exp.fingerprint);

@@ -231,9 +231,6 @@ fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: boo
     }
 }
 
-/// The widest panel any tile packs (AVX-512's 32 columns).
-const MAX_LANES: usize = 32;
-
 /// A block of an operand to pack: value (step p, lane l) at `data[origin + p step + l lane]`.
 struct Source<'a, T> {
     data: &'a [T],
@@ -245,7 +242,6 @@ struct Source<'a, T> {
 /// Packs `lanes` lanes (padded with zeros to whole panels of `width`) by `depth` inner steps:
 /// panel q, step p, lane l holds the source's (p, q width + l) at `(q depth + p) width + l`.
 fn pack<T: Real>(buffer: &mut Vec<T>, src: Source<'_, T>, lanes: usize, width: usize, depth: usize) {
-    assert!(width <= MAX_LANES, "panels of {width} lanes");
     let panels = lanes.div_ceil(width);
     let len = panels * width * depth;
     if buffer.len() < len {

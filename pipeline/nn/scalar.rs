@@ -17,8 +17,6 @@ pub trait Real: WithDType + Default + std::fmt::Debug + std::ops::Neg<Output = S
     fn widen(self) -> f64;
     /// `x` rounded to this type.
     fn narrow(x: f64) -> Self;
-    /// `self a + b` with one rounding (the pure-Rust libm's correctly rounded fma).
-    fn fused(self, a: Self, b: Self) -> Self;
     /// The kernels of the portable matrix multiply at `level` (`nn/microkernel.rs`).
     fn kernels(level: Level) -> Kernels<Self>;
 }
@@ -43,9 +41,6 @@ impl Real for f32 {
     #[inline(always)]
     fn narrow(x: f64) -> Self {
         x as f32
-    }
-    fn fused(self, a: Self, b: Self) -> Self {
-        libm::fmaf(self, a, b)
     }
     fn kernels(level: Level) -> Kernels<Self> {
         microkernel::f32_kernels(level)
@@ -72,9 +67,6 @@ impl Real for f64 {
     #[inline(always)]
     fn narrow(x: f64) -> Self {
         x
-    }
-    fn fused(self, a: Self, b: Self) -> Self {
-        libm::fma(self, a, b)
     }
     fn kernels(_level: Level) -> Kernels<Self> {
         microkernel::scalar::<f64>()

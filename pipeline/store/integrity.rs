@@ -107,7 +107,6 @@ pub fn check(root: &Path) -> Result<String> {
         }
         recorded.push((path.to_string(), sha.to_string()));
     }
-    let present = files(root)?;
     for (path, sha) in &recorded {
         let file = root.join(path);
         if !file.is_file() {
@@ -117,7 +116,8 @@ pub fn check(root: &Path) -> Result<String> {
             return Err(Error::integrity(&file, format!("was changed after it was recorded: its SHA-256 differs from integrity.sha256 ({sha})")));
         }
     }
-    if let Some(extra) = present.iter().find(|p| !recorded.iter().any(|(r, _)| r == *p)) {
+    let listed: std::collections::BTreeSet<&str> = recorded.iter().map(|(path, _)| path.as_str()).collect();
+    if let Some(extra) = files(root)?.into_iter().find(|p| !listed.contains(p.as_str())) {
         return Err(Error::integrity(root.join(extra), "is not listed in integrity.sha256: it was added after the results were recorded"));
     }
     Ok(sha256_hex(evidence_lines.as_bytes()))

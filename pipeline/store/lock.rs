@@ -25,6 +25,8 @@ pub const STALE_AFTER: Duration = Duration::from_secs(600);
 /// A held lock; released (the file removed) when dropped.
 pub struct WriterLock {
     path: PathBuf,
+    /// The line this process wrote: the lock is removed on drop only while it still holds it.
+    holder: String,
     stop: Arc<AtomicBool>,
     heartbeat: Option<std::thread::JoinHandle<()>>,
 }
@@ -53,7 +55,8 @@ pub fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
     loop {
         match std::fs::OpenOptions::new().write(true).create_new(true).open(&path) {
             Ok(mut file) => {
-                file.write_all(holder_text().as_bytes()).map_err(|e| Error::io(&path, "write", e))?;
+                let holder = holder_text();
+                file.write_all(holder.as_bytes()).map_err(|e| Error::io(&path, "write", e))?;
                 let stop = Arc::new(AtomicBool::new(false));
                 let (flag, beat) = (stop.clone(), path.clone());
                 let heartbeat = std::thread::spawn(move || {
@@ -69,7 +72,7 @@ pub fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
                         }
                     }
                 });
-                return Ok(WriterLock { path, stop, heartbeat: Some(heartbeat) });
+                return Ok(WriterLock { path, holder, stop, heartbeat: Some(heartbeat) });
             }
             Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
                 let text = std::fs::read_to_string(&path).unwrap_or_default();
@@ -99,18 +102,9 @@ impl Drop for WriterLock {
         if let Some(h) = self.heartbeat.take() {
             let _ = h.join();
         }
-        if std::fs::read_to_string(&self.path).is_ok_and(|t| t == holder_text_for_this_process(&t)) {
+        if std::fs::read_to_string(&self.path).is_ok_and(|t| t == self.holder) {
             let _ = std::fs::remove_file(&self.path);
         }
-    }
-}
-
-/// `text` when it names this host and process (the start time is whatever it recorded).
-fn holder_text_for_this_process(text: &str) -> String {
-    let mut parts = text.split_whitespace();
-    match (parts.next(), parts.next()) {
-        (Some(host), Some(pid)) if host == crate::provenance::host_name() && pid == std::process::id().to_string() => text.to_string(),
-        _ => String::new(),
     }
 }
 

@@ -88,3 +88,20 @@ seeds = [1, 2]
 pub fn experiment_folder(results: &Path) -> Option<PathBuf> {
     std::fs::read_dir(results).ok()?.map(|e| e.unwrap().path()).find(|p| p.is_dir())
 }
+
+/// Trains `manifest` into `dir/results` with two workers and returns its experiment folder.
+pub fn trained(dir: &Path, manifest: &Path) -> PathBuf {
+    let out = run_in(dir, &["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    experiment_folder(&dir.join("results")).expect("an experiment folder")
+}
+
+/// Copies the folder `from` (recursively) to `to`.
+pub fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for e in std::fs::read_dir(from).unwrap() {
+        let p = e.unwrap().path();
+        let target = to.join(p.file_name().unwrap());
+        if p.is_dir() { copy_dir(&p, &target) } else { std::fs::copy(&p, &target).unwrap(); }
+    }
+}
