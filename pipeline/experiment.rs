@@ -25,10 +25,10 @@ pub struct DataFingerprints {
     /// SHA-256 of the schema and values in row order, independent of the file's encoding.
     pub content_sha256: String,
     pub bytes: u64,
-    /// Whether the path leaves the manifest's folder (through `..`, an absolute path or a symlink).
-    pub outside_manifest_folder: bool,
-    /// The fully resolved location, for the provenance record.
-    pub resolved_path: String,
+    /// Whether the file lies outside the project that holds the manifest (the git work tree, or
+    /// the manifest's folder outside git), through `..`, an absolute path or a symlink: such a
+    /// file does not travel with a checkout. No absolute path is recorded.
+    pub outside_project: bool,
 }
 
 pub struct Experiment {
@@ -52,11 +52,10 @@ impl Experiment {
     }
 }
 
-fn outside(manifest_path: &Path, data_path: &Path) -> (bool, String) {
-    let folder = manifest_path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    match (folder.canonicalize(), data_path.canonicalize()) {
-        (Ok(f), Ok(d)) => (!d.starts_with(&f), d.display().to_string()),
-        _ => (true, data_path.display().to_string()),
+fn outside(manifest_path: &Path, data_path: &Path) -> bool {
+    match (crate::provenance::project_root(manifest_path), data_path.canonicalize()) {
+        (Some(root), Ok(d)) => !d.starts_with(root),
+        _ => true,
     }
 }
 
@@ -77,12 +76,13 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     let bytes = std::fs::metadata(&data_path).map(|m| m.len()).unwrap_or(0);
     let table = read_table(&data_path)?;
     let (roles, target) = resolve(&loaded.manifest, &table, &data_path)?;
-    let summary = summarise(&table, &roles, &target);
-    let splits = split(&target, &loaded.manifest.split, &data_path)?;
+    let mut summary = summarise(&table, &roles, &target);
+    let splits = split(&table, &target, &loaded.manifest.split, &data_path)?;
+    summary.split_checks = crate::data::leakage::split_checks(&table, &roles, &splits);
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
     let content = table.content_hash();
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
-    let (outside_manifest_folder, resolved_path) = outside(&loaded.path, &data_path);
+    let outside_project = outside(&loaded.path, &data_path);
     Ok(Experiment {
         manifest_path: loaded.path,
         data: DataFingerprints {
@@ -90,8 +90,7 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
             file_sha256: file_hash,
             content_sha256: content,
             bytes,
-            outside_manifest_folder,
-            resolved_path,
+            outside_project,
         },
         manifest: loaded.manifest,
         manifest_sha256,
@@ -110,6 +109,8 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
 pub struct ExperimentRecord {
     pub fingerprint: String,
     pub name: String,
+    /// The manifest's path relative to its project root (the git work tree holding it, or its own
+    /// folder outside git), with `/` separators: the same in every checkout.
     pub manifest_path: String,
     pub manifest_sha256: String,
     pub data: DataFingerprints,
@@ -131,7 +132,7 @@ impl Experiment {
         ExperimentRecord {
             fingerprint: self.fingerprint.clone(),
             name: self.manifest.experiment.name.clone(),
-            manifest_path: self.manifest_path.display().to_string(),
+            manifest_path: crate::provenance::project_relative(&self.manifest_path),
             manifest_sha256: self.manifest_sha256.clone(),
             data: self.data.clone(),
             task: self.manifest.data.task,

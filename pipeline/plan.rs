@@ -54,6 +54,22 @@ impl Plan {
 }
 
 /// The linear baseline: no hidden layer, no architectural regularizer, same training settings.
+/// A configuration's short label: its grid overrides as `key=value` (last key segment), or
+/// "linear baseline" / "base configuration".
+pub fn config_label(overrides: &std::collections::BTreeMap<String, serde_json::Value>, baseline: bool) -> String {
+    if baseline {
+        return "linear baseline".into();
+    }
+    if overrides.is_empty() {
+        return "base configuration".into();
+    }
+    overrides
+        .iter()
+        .map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v))
+        .collect::<Vec<_>>()
+        .join(" ")
+}
+
 pub fn baseline_config(manifest: &Manifest) -> RunConfig {
     RunConfig {
         model: ModelSpec {

@@ -15,6 +15,24 @@ pub fn git_state(path: &Path) -> (Option<String>, Option<bool>) {
     (commit, dirty)
 }
 
+/// The project a file belongs to: the nearest folder above it holding `.git` (a work tree), or
+/// the file's own folder outside git. `None` when the file's folder cannot be resolved.
+pub fn project_root(path: &Path) -> Option<std::path::PathBuf> {
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = dir.canonicalize().ok()?;
+    Some(dir.ancestors().find(|a| a.join(".git").exists()).map(Path::to_path_buf).unwrap_or(dir))
+}
+
+/// `path` relative to its [`project_root`], `/`-separated; the file name alone when unresolvable.
+pub fn project_relative(path: &Path) -> String {
+    let name = || path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let (Some(root), Ok(full)) = (project_root(path), path.canonicalize()) else { return name() };
+    match full.strip_prefix(&root) {
+        Ok(rel) => rel.components().map(|c| c.as_os_str().to_string_lossy().into_owned()).collect::<Vec<_>>().join("/"),
+        Err(_) => name(),
+    }
+}
+
 /// Days since 1970-01-01 to a civil (year, month, day), after Howard Hinnant's `civil_from_days`.
 fn civil_from_days(days: i64) -> (i64, u32, u32) {
     let z = days + 719_468;

@@ -15,6 +15,8 @@ use crate::metrics::classification::{confusion_matrix, per_class, predicted_clas
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
 use crate::model::ScoringModel;
+use crate::manifest::SelectionRule;
+use crate::metrics::classification::youden_threshold;
 use crate::plan::Plan;
 use crate::store::run::StoredRun;
 use crate::train::Labels;
@@ -66,6 +68,23 @@ pub struct TestEvaluation {
     pub per_class: Vec<ClassReport>,
     /// Test metrics of the selected run per level of each group column named in the manifest.
     pub groups: Vec<GroupMetrics>,
+    /// Binary models: the decision threshold chosen on the validation rows, and the test
+    /// confusion matrix and per-class report at that threshold (the fields above use 0.5).
+    pub chosen_threshold: Option<ThresholdReport>,
+}
+
+/// A decision threshold chosen on validation data and what it does on the test split.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ThresholdReport {
+    /// How the threshold was chosen.
+    pub rule: String,
+    /// Predict positive when the positive-class probability is at least this.
+    pub threshold: f64,
+    /// True- and false-positive rates on the validation rows at the threshold.
+    pub validation_tpr: f64,
+    pub validation_fpr: f64,
+    pub confusion: Vec<Vec<usize>>,
+    pub per_class: Vec<ClassReport>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -73,7 +92,11 @@ pub struct GroupMetrics {
     pub column: String,
     pub level: String,
     pub rows: usize,
+    /// Binary: the share of positive rows; regression: the mean target; multiclass: none.
+    pub base_rate: Option<f64>,
     pub metrics: MetricSet,
+    /// 95% bootstrap intervals of the level's metrics (the same resampling as the whole split's).
+    pub intervals: BTreeMap<String, Interval>,
 }
 
 /// A group column's label for each test row (`None` for nulls).
@@ -90,6 +113,11 @@ pub struct Selection {
     pub selected_config: String,
     pub selected_run: String,
     pub baseline_config: Option<String>,
+    /// The rule that picked `selected_config` (`best` or `one_standard_error`).
+    pub rule: String,
+    /// The configuration with the best mean validation metric (equal to `selected_config` under
+    /// the `best` rule).
+    pub best_config: String,
     pub test: TestEvaluation,
 }
 
@@ -134,9 +162,39 @@ pub fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSum
         .collect()
 }
 
-/// Selects the best non-baseline configuration by mean validation metric (first in plan order on
-/// ties) and, within it, the seed with the best validation value.
-pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metric: &str) -> Result<(Vec<ConfigSummary>, String, String)> {
+/// The standard error of a configuration's mean: its seed standard deviation over sqrt(seeds).
+pub fn standard_error(s: &Spread) -> f64 {
+    s.sd / (s.n.max(1) as f64).sqrt()
+}
+
+/// Non-baseline configurations other than `chosen` with fewer parameters whose mean validation
+/// metric lies within one standard error of `chosen`'s mean (or beyond it, on the better side).
+pub fn simpler_within_one_se<'a>(configs: &'a [ConfigSummary], chosen: &ConfigSummary, metric: &str, dir: Direction) -> Vec<&'a ConfigSummary> {
+    let Some(best) = chosen.validation.get(metric) else { return Vec::new() };
+    let se = standard_error(best);
+    configs
+        .iter()
+        .filter(|c| !c.baseline && c.config_id != chosen.config_id && c.parameter_count < chosen.parameter_count)
+        .filter(|c| c.validation.get(metric).is_some_and(|s| match dir {
+            Direction::Maximise => s.mean >= best.mean - se,
+            Direction::Minimise => s.mean <= best.mean + se,
+        }))
+        .collect()
+}
+
+/// What [`select`] picked.
+pub struct Picked {
+    pub configs: Vec<ConfigSummary>,
+    pub selected_config: String,
+    pub selected_run: String,
+    pub best_config: String,
+}
+
+/// Selects a non-baseline configuration by mean validation metric (first in plan order on ties):
+/// the best, or under `one_standard_error` the one with the fewest parameters within one
+/// standard error of the best (better mean, then plan order, on ties). Within it, the seed with
+/// the best validation value supplies the selected run.
+pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metric: &str, rule: SelectionRule) -> Result<Picked> {
     let dir = direction(task, metric).unwrap_or(Direction::Maximise);
     let configs = summarise(plan, runs, metric);
     let mut best: Option<(&ConfigSummary, f64)> = None;
@@ -147,7 +205,16 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
             }
         }
     }
-    let (chosen, _) = best.ok_or_else(|| Error::Engine(format!("no configuration finished a run with a defined validation {metric}")))?;
+    let (best, _) = best.ok_or_else(|| Error::Engine(format!("no configuration finished a run with a defined validation {metric}")))?;
+    let mut chosen = best;
+    if rule == SelectionRule::OneStandardError {
+        for c in simpler_within_one_se(&configs, best, metric, dir) {
+            let mean = |x: &ConfigSummary| x.validation.get(metric).map(|s| s.mean).unwrap_or(f64::NAN);
+            if c.parameter_count < chosen.parameter_count || (c.parameter_count == chosen.parameter_count && better(dir, mean(c), mean(chosen))) {
+                chosen = c;
+            }
+        }
+    }
     let mut best_run: Option<(&StoredRun, f64)> = None;
     for r in runs.iter().filter(|r| r.record.config_id == chosen.config_id && r.record.outcome.is_completed()) {
         if let Some(v) = r.record.validation.get(metric).copied().flatten() {
@@ -157,8 +224,8 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
         }
     }
     let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::Engine("the selected configuration has no usable run".into()))?;
-    let chosen_id = chosen.config_id.clone();
-    Ok((configs, chosen_id, run_id))
+    let (selected_config, best_config) = (chosen.config_id.clone(), best.config_id.clone());
+    Ok(Picked { configs, selected_config, selected_run: run_id, best_config })
 }
 
 /// Scores the test rows with every seed of the selected configuration; bootstrap intervals for
@@ -173,6 +240,7 @@ pub fn evaluate_test(
     bootstrap: usize,
     bootstrap_seed: u64,
     group_columns: &[GroupColumn],
+    validation: (&Matrix, &Labels),
 ) -> Result<TestEvaluation> {
     let mut per_seed: Vec<MetricSet> = Vec::new();
     let mut selected: Option<(u64, Vec<f64>, ScoringModel)> = None;
@@ -204,13 +272,43 @@ pub fn evaluate_test(
         }
         for (level, idx) in levels {
             let (o, y) = subset(&idx);
-            groups.push(GroupMetrics { column: g.name.clone(), level, rows: idx.len(), metrics: head.metrics(&o, &y) });
+            let base_rate = match &y {
+                Labels::Classes { rows, classes: 2 } => Some(rows.iter().filter(|&&c| c == 1).count() as f64 / rows.len().max(1) as f64),
+                Labels::Values(v) => Some(v.iter().sum::<f64>() / v.len().max(1) as f64),
+                Labels::Classes { .. } => None,
+            };
+            let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, |within| {
+                let rows: Vec<usize> = within.iter().map(|&i| idx[i]).collect();
+                let (sub_out, sub_y) = subset(&rows);
+                head.metrics(&sub_out, &sub_y)
+            });
+            groups.push(GroupMetrics { column: g.name.clone(), level, rows: idx.len(), base_rate, metrics: head.metrics(&o, &y), intervals });
         }
     }
     let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
         let (sub_out, sub_y) = subset(idx);
         head.metrics(&sub_out, &sub_y)
     });
+    let chosen_threshold = match (test_y, validation.1) {
+        (Labels::Classes { rows, classes: 2 }, Labels::Classes { rows: val_rows, .. }) => {
+            let mut m = model;
+            let val_out = m.score(validation.0)?;
+            let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
+            let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
+            youden_threshold(&val_pos, &val_p).map(|(threshold, tpr, fpr)| {
+                let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= threshold) as usize).collect();
+                ThresholdReport {
+                    rule: "youden_j_on_validation".into(),
+                    threshold,
+                    validation_tpr: tpr,
+                    validation_fpr: fpr,
+                    confusion: confusion_matrix(rows, &predicted, 2),
+                    per_class: per_class(rows, &predicted, 2),
+                }
+            })
+        }
+        _ => None,
+    };
     let (reliability, confusion, per_class_report) = match test_y {
         Labels::Classes { rows, classes } => {
             let predicted = predicted_classes(&outputs, *classes);
@@ -236,5 +334,6 @@ pub fn evaluate_test(
         confusion,
         per_class: per_class_report,
         groups,
+        chosen_threshold,
     })
 }

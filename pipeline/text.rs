@@ -27,12 +27,61 @@ pub fn terminal_cell(s: &str, max: usize) -> String {
 
 /// Escapes text for one line of a markdown table or paragraph: every character with meaning in
 /// CommonMark or HTML becomes an entity or a backslash escape, line breaks and control characters
-/// become visible escapes, and the length is bounded. The result renders as the literal text.
+/// become visible escapes, and the length is bounded (200 characters: names and levels in table
+/// cells). The result renders as the literal text.
 pub fn markdown_safe(s: &str) -> String {
-    const MAX: usize = 200;
+    escape_line(s, Some(200))
+}
+
+/// [`markdown_safe`] without the length bound, for sentences the tool writes itself (findings,
+/// environment descriptions) that embed untrusted names.
+pub fn markdown_line(s: &str) -> String {
+    escape_line(s, None)
+}
+
+/// Long prose from the manifest (description, intended use...): kept whole, each line escaped as
+/// in [`markdown_safe`] (and a leading list or heading marker neutralised), lines of one
+/// paragraph kept together and paragraphs (separated by blank lines) rendered as paragraphs.
+pub fn markdown_text(s: &str) -> String {
+    let mut paragraphs: Vec<Vec<String>> = vec![Vec::new()];
+    for line in s.lines() {
+        let line = line.trim();
+        if line.is_empty() {
+            if paragraphs.last().is_some_and(|p| !p.is_empty()) {
+                paragraphs.push(Vec::new());
+            }
+            continue;
+        }
+        let mut escaped = escape_line(line, None);
+        // A line starting "- ", "+ ", "1. ", "1) " or "=" would open a list or underline a heading.
+        let digits = escaped.chars().take_while(char::is_ascii_digit).count();
+        if escaped.starts_with('-') || escaped.starts_with('+') || escaped.starts_with('=') {
+            escaped.insert(0, '\\');
+        } else if digits > 0 && matches!(escaped[digits..].chars().next(), Some('.') | Some(')')) {
+            escaped.insert(digits, '\\');
+        }
+        if let Some(p) = paragraphs.last_mut() {
+            p.push(escaped);
+        }
+    }
+    paragraphs.into_iter().filter(|p| !p.is_empty()).map(|p| p.join("\n")).collect::<Vec<_>>().join("\n\n")
+}
+
+/// A markdown code span showing `s` verbatim (paths, commands): no backslash escapes, which a
+/// code span would show literally; a fence longer than any backtick run inside; control
+/// characters as visible escapes; `|` escaped so the span can sit in a table cell.
+pub fn code_span(s: &str) -> String {
+    let body: String = terminal_safe(s).replace('|', "\\|");
+    let longest = body.split(|c| c != '`').map(str::len).max().unwrap_or(0);
+    let fence = "`".repeat(longest + 1);
+    let pad = if body.starts_with('`') || body.ends_with('`') { " " } else { "" };
+    format!("{fence}{pad}{body}{pad}{fence}")
+}
+
+fn escape_line(s: &str, max: Option<usize>) -> String {
     let mut out = String::with_capacity(s.len());
     for (i, c) in s.chars().enumerate() {
-        if i == MAX {
+        if Some(i) == max {
             out.push('…');
             break;
         }
@@ -65,6 +114,23 @@ mod tests {
     fn terminal_text_has_no_control_characters() {
         let s = terminal_safe("a\u{1b}[31mred\nx");
         assert!(!s.chars().any(char::is_control), "{s}");
+    }
+
+    #[test]
+    fn long_text_keeps_every_word_and_its_paragraphs() {
+        let long = "word ".repeat(100);
+        let text = format!("First line\nsame paragraph\n\n- not a list\n1. not a list either\n\n{long}");
+        let out = markdown_text(&text);
+        assert_eq!(out.matches("word").count(), 100);
+        assert!(out.starts_with("First line\nsame paragraph\n\n\\- not a list\n1\\. not a list"), "{out}");
+        assert!(!out.contains("\\n"), "{out}");
+    }
+
+    #[test]
+    fn code_spans_show_paths_verbatim() {
+        assert_eq!(code_span("../data/breast_cancer.parquet"), "`../data/breast_cancer.parquet`");
+        assert_eq!(code_span("a`b"), "``a`b``");
+        assert_eq!(code_span("x|y"), "`x\\|y`");
     }
 
     #[test]

@@ -108,14 +108,57 @@ pub struct RunResult {
     pub validation_outputs: Vec<f64>,
 }
 
-/// What a task's network outputs and how its outputs become predictions.
+/// What a task's network outputs and how its outputs become predictions. Stored as the loss it
+/// trains with: `cross_entropy` for classifiers, `mse` or `huber` (with its delta) for regression.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(into = "StoredHead", try_from = "StoredHead")]
 pub struct Head {
     pub task: Task,
     pub classes: usize,
+    /// Regression only; classifiers train with cross-entropy whatever this holds.
     pub loss: RegressionLoss,
     pub huber_delta: f64,
 }
+
+/// [`Head`] as stored: only the loss that applies.
+#[derive(Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct StoredHead {
+    task: Task,
+    classes: usize,
+    loss: String,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    huber_delta: Option<f64>,
+}
+
+impl From<Head> for StoredHead {
+    fn from(h: Head) -> Self {
+        let (loss, huber_delta) = match (h.task, h.loss) {
+            (Task::Regression, RegressionLoss::Mse) => ("mse", None),
+            (Task::Regression, RegressionLoss::Huber) => ("huber", Some(h.huber_delta)),
+            _ => ("cross_entropy", None),
+        };
+        StoredHead { task: h.task, classes: h.classes, loss: loss.into(), huber_delta }
+    }
+}
+
+impl TryFrom<StoredHead> for Head {
+    type Error = String;
+    fn try_from(s: StoredHead) -> std::result::Result<Self, String> {
+        let loss = match (s.task, s.loss.as_str()) {
+            (Task::Regression, "mse") | (Task::Binary | Task::Multiclass, "cross_entropy") => RegressionLoss::Mse,
+            (Task::Regression, "huber") => RegressionLoss::Huber,
+            (task, other) => return Err(format!("loss `{other}` does not apply to a {} head", task.as_str())),
+        };
+        Ok(Head { task: s.task, classes: s.classes, loss, huber_delta: s.huber_delta.unwrap_or(1.0) })
+    }
+}
+
+/// The stored name of the training objective's value on the final weights: cross-entropy from
+/// the logits (unclipped, so it can differ from `log_loss`, which clips probabilities to
+/// [eps, 1 - eps] with eps the f64 machine epsilon, as scikit-learn's does) or the regression loss on the
+/// standardised target; no penalty terms.
+pub const OBJECTIVE: &str = "objective";
 
 fn softplus(x: f64) -> f64 {
     // log(1 + e^x) without overflow.
@@ -374,9 +417,9 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
     let train_outputs = head.predictions(&raw_train, scaling);
     let validation_outputs = head.predictions(&raw_val, scaling);
     let mut train_metrics = head.metrics(&train_outputs, data.train_y);
-    train_metrics.insert("loss".into(), Some(head.host_loss(&raw_train, data.train_y, scaling)));
+    train_metrics.insert(OBJECTIVE.into(), Some(head.host_loss(&raw_train, data.train_y, scaling)));
     let mut validation_metrics = head.metrics(&validation_outputs, data.validation_y);
-    validation_metrics.insert("loss".into(), Some(head.host_loss(&raw_val, data.validation_y, scaling)));
+    validation_metrics.insert(OBJECTIVE.into(), Some(head.host_loss(&raw_val, data.validation_y, scaling)));
     Ok(RunResult {
         outcome,
         tensors: model.named_tensors()?,

@@ -22,11 +22,11 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
     let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
     let page = html(&card);
     for heading in ["At a glance", "Purpose and ownership", "Cautions for decisions about people", "Data", "Capacity and regularization",
-        "Validation results (mean ± standard deviation across seeds)", "Test results", "Known limitations", "Provenance and reproduction"] {
+        "Validation results", "Test results", "Known limitations", "Provenance and reproduction", "Review and sign-off"] {
         assert!(page.contains(&format!("<h2>{heading}")), "missing section {heading}");
     }
     for needle in ["linear baseline", "weight decay (decoupled)", "dropout", "early stopping", "parameters", "95% bootstrap interval",
-        "Fairness across groups of people has not been assessed", "<table>", "Confusion matrix"] {
+        "Fairness across groups of people has not been assessed", "<table>", "Confusion matrix", "Preprocessing", "Youden", "Reliability"] {
         assert!(page.contains(needle), "card lacks {needle}");
     }
     let figures = ["learning-curves.svg", "grid-model-dropout.svg", "reliability.svg"];
@@ -52,7 +52,7 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
 
     let templates = dir.path().join("templates");
     std::fs::create_dir(&templates).unwrap();
-    std::fs::write(templates.join("card.md.tera"), "# Our own layout for {{ name }}\n{{ headline }}\n").unwrap();
+    std::fs::write(templates.join("card.md.tera"), "# Our own layout for {{ about.name }}\n{{ results.headline }}\n").unwrap();
     let out = run_in(dir.path(), &["card", folder.to_str().unwrap(), "--templates", templates.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
     let custom = std::fs::read_to_string(folder.join("card.md")).unwrap();

@@ -32,7 +32,7 @@ fn binary_metrics_match_scikit_learn() {
         let probs: Vec<f64> = p.iter().flat_map(|&x| [1.0 - x, x]).collect();
         let e = &case["expected"];
         let m = scalar_metrics(&labels, &probs, 2);
-        for key in ["accuracy", "balanced_accuracy", "log_loss", "roc_auc", "pr_auc", "brier", "ece"] {
+        for key in ["accuracy", "balanced_accuracy", "log_loss", "roc_auc", "average_precision", "brier", "ece"] {
             close(&format!("{name} {key}"), m[key], e[key].as_f64().unwrap());
         }
         let predicted = predicted_classes(&probs, 2);
@@ -63,6 +63,25 @@ fn fawcett_example_auc_is_the_hand_count() {
     let classes = "p p n p p p n n p n p n p n n n p n p n";
     let is_pos: Vec<bool> = classes.split(' ').map(|c| c == "p").collect();
     assert!((roc_auc(&is_pos, &scores).unwrap() - 0.68).abs() < 1e-12);
+}
+
+#[test]
+fn calibration_bins_are_closed_on_the_right_everywhere() {
+    // Fawcett's scores sit on bin edges (0.1, 0.3, 0.4 -> 0.6, 0.7, 0.8, 0.9). With bins closed on
+    // the right (Guo et al. 2017: I_m = ((m-1)/M, m/M]) the top-label ECE is 0.08175; bins closed
+    // on the left would give 0.11375 (both by hand: 20 rows, 10 bins).
+    let scores = [0.9, 0.8, 0.7, 0.6, 0.55, 0.54, 0.53, 0.52, 0.51, 0.505, 0.4, 0.39, 0.38, 0.37, 0.36, 0.35, 0.34, 0.33, 0.30, 0.1];
+    let classes = "p p n p p p n n p n p n p n n n p n p n";
+    let labels: Vec<usize> = classes.split(' ').map(|c| (c == "p") as usize).collect();
+    let probs: Vec<f64> = scores.iter().flat_map(|&p| [1.0 - p, p]).collect();
+    let ece = scalar_metrics(&labels, &probs, 2)["ece"].unwrap();
+    assert!((ece - 0.08175).abs() < 1e-12, "{ece}");
+    // The reliability diagram bins the same way: 0.1 sits in the first bin, 0.9 in the ninth.
+    let is_pos: Vec<bool> = labels.iter().map(|&y| y == 1).collect();
+    let bins = reliability_bins(&is_pos, &scores, 10);
+    assert_eq!((bins[0].lower, bins[0].count), (0.0, 1));
+    let ninth = bins.iter().find(|b| (b.lower - 0.8).abs() < 1e-12).unwrap();
+    assert_eq!(ninth.count, 1, "0.9 belongs to (0.8, 0.9]");
 }
 
 #[test]

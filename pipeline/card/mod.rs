@@ -4,6 +4,7 @@
 //! escaped for markdown before it enters the context; numbers are formatted with fixed digits, so
 //! the card is byte-stable for the same results.
 
+pub mod evidence;
 pub mod limitations;
 pub mod plots;
 
@@ -12,19 +13,19 @@ use serde_json::Value;
 use std::collections::BTreeMap;
 use std::path::Path;
 
-use crate::commands::train::config_label;
+use crate::data::prep::{InputEncoding, Preprocessor};
 use crate::data::summary::DataSummary;
 use crate::error::{Error, Result};
 use crate::experiment::ExperimentRecord;
 use crate::format::{fixed, sig};
-use crate::manifest::{Manifest, Task};
+use crate::manifest::{Manifest, SelectionRule, Task};
 use crate::numerics::NumericsFingerprint;
-use crate::plan::Plan;
-use crate::selection::{Selection, Spread};
+use crate::plan::{config_label, Plan, PlannedConfig};
+use crate::selection::{standard_error, Selection, Spread};
 use crate::store::run::{read_run, StoredRun};
 use crate::store::{read_json, write_atomic, Layout};
-use crate::text::markdown_safe as md;
-use limitations::{derive, Evidence, Limitation};
+use crate::text::{code_span, markdown_line as md_line, markdown_safe as md, markdown_text as md_text};
+use limitations::{derive, Limitation};
 use plots::{Chart, Series};
 
 /// Rendered figures: (file name, alt text, SVG).
@@ -40,50 +41,57 @@ struct Row {
     cells: Vec<String>,
 }
 
+impl Row {
+    fn of(cells: impl IntoIterator<Item = String>) -> Self {
+        Row { cells: cells.into_iter().collect() }
+    }
+}
+
 #[derive(Serialize)]
 struct Figure {
     file: String,
     alt: String,
 }
 
+/// Purpose, ownership and the reviewer's fields.
 #[derive(Serialize)]
-struct CardContext {
+struct About {
     name: String,
     description: String,
     intended_use: String,
     out_of_scope: String,
     owner: String,
+    trained_by: String,
+    data_period: String,
+    population: String,
     affects_people: bool,
     group_columns: Vec<String>,
-    task: String,
-    target: String,
-    positive_label: String,
-    trained_at: String,
-    fingerprint: String,
-    tool_version: String,
-    manifest_sha256: String,
-    /// SHA-256 of the evidence lines of `integrity.sha256` ([`crate::store::integrity`]).
-    results_digest: String,
-    manifest_path: String,
-    data_path: String,
-    data_resolved_path: String,
-    data_outside: bool,
-    data_file_sha256: String,
-    data_content_sha256: String,
-    data_bytes: u64,
+}
+
+/// The data section: source, split, columns, target and how features became inputs.
+#[derive(Serialize)]
+struct DataSection {
+    path: String,
+    bytes: u64,
+    outside_project: bool,
+    file_sha256: String,
+    content_sha256: String,
     rows: usize,
+    duplicate_rows: usize,
     split: [usize; 3],
-    split_seed: u64,
-    stratified: bool,
+    split_method: String,
     column_rows: Vec<Row>,
+    class_rows: Vec<Row>,
     target_rows: Vec<Row>,
-    data_warnings: Vec<String>,
-    selected_label: String,
-    selected_run: String,
-    selected_seed: u64,
-    metric: String,
-    direction: String,
-    headline: String,
+    warnings: Vec<String>,
+    preprocessing: String,
+    encoding_rows: Vec<Row>,
+    group_note: String,
+}
+
+/// Capacity and regularization of the selected configuration.
+#[derive(Serialize)]
+struct Capacity {
     architecture: String,
     activation: String,
     residual: bool,
@@ -96,25 +104,73 @@ struct CardContext {
     epochs: String,
     grid_rows: Vec<Row>,
     seeds: String,
+}
+
+/// A confusion matrix with its per-class report, at one decision threshold.
+#[derive(Serialize)]
+struct Decision {
+    title: String,
+    header: Vec<String>,
+    confusion_rows: Vec<Row>,
+    class_rows: Vec<Row>,
+}
+
+/// Selection, validation and test results.
+#[derive(Serialize)]
+struct Results {
+    metric: String,
+    direction: String,
+    selected_label: String,
+    selected_run: String,
+    selected_seed: u64,
+    selection_text: String,
+    headline: String,
+    preference: String,
     validation_header: Vec<String>,
     validation_rows: Vec<Row>,
     baseline_line: String,
     test_rows: Vec<Row>,
     test_rows_count: usize,
-    confusion_header: Vec<String>,
-    confusion_rows: Vec<Row>,
-    class_rows: Vec<Row>,
+    test_classes: String,
+    why_one_run: String,
+    decisions: Vec<Decision>,
+    reliability_rows: Vec<Row>,
     group_rows: Vec<Row>,
-    figures: Vec<Figure>,
-    limitations: Vec<Limitation>,
+}
+
+#[derive(Serialize)]
+struct Provenance {
+    trained_at: String,
+    fingerprint: String,
+    tool_version: String,
+    manifest_sha256: String,
+    /// SHA-256 of the evidence lines of `integrity.sha256` ([`crate::store::integrity`]).
+    results_digest: String,
+    manifest_path: String,
     environment: Vec<Row>,
     git_commit: String,
     git_dirty: String,
     jobs: String,
     results_folder: String,
+    verify_command: String,
     train_command: String,
 }
 
+#[derive(Serialize)]
+struct CardContext {
+    about: About,
+    task: String,
+    target: String,
+    positive_label: String,
+    data: DataSection,
+    capacity: Capacity,
+    results: Results,
+    figures: Vec<Figure>,
+    limitations: Vec<Limitation>,
+    provenance: Provenance,
+}
+
+/// A metric's mean ± standard deviation across seeds, 4 decimals.
 fn spread_text(s: Option<&Spread>) -> String {
     s.map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "–".into())
 }
@@ -123,18 +179,7 @@ fn value_text(v: &Value) -> String {
     md(&v.to_string())
 }
 
-/// Ordering position of a grid value: numbers by value, lists (widths) by their sum, booleans
-/// false < true; `None` for values with no natural order.
-fn order_key(v: &Value) -> Option<f64> {
-    match v {
-        Value::Number(n) => n.as_f64(),
-        Value::Bool(b) => Some(*b as u8 as f64),
-        Value::Array(items) => Some(items.iter().filter_map(Value::as_f64).sum()),
-        _ => None,
-    }
-}
-
-fn load(layout: &Layout) -> Result<(Manifest, ExperimentRecord, DataSummary, Plan, Selection, Value)> {
+fn load(layout: &Layout) -> Result<Stored> {
     layout.check_format()?;
     let manifest: Manifest = read_json(&layout.manifest())?;
     let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
@@ -142,11 +187,18 @@ fn load(layout: &Layout) -> Result<(Manifest, ExperimentRecord, DataSummary, Pla
     if crate::fingerprint::sha256_hex(stored.as_bytes()) != record.manifest_sha256 {
         return Err(Error::store(layout.manifest(), "does not match the manifest hash recorded in experiment.json (it was edited after training)"));
     }
-    let summary: DataSummary = read_json(&layout.data_summary())?;
     let plan: Plan = read_json(&layout.plan())?;
-    let selection: Selection = read_json(&layout.selection())?;
-    let timing: Value = if layout.timing().exists() { read_json(&layout.timing())? } else { Value::Null };
-    Ok((manifest, record, summary, plan, selection, timing))
+    let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
+    Ok(Stored {
+        manifest,
+        record,
+        summary: read_json(&layout.data_summary())?,
+        selection: read_json(&layout.selection())?,
+        timing: if layout.timing().exists() { read_json(&layout.timing())? } else { Value::Null },
+        preprocessor: read_json(&layout.preprocessor())?,
+        plan,
+        runs,
+    })
 }
 
 fn figure_name(key: &str) -> String {
@@ -214,200 +266,380 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
             diagonal: true,
             fixed_unit_axes: true,
         };
-        out.push(("reliability.svg".into(), "observed share of positives against mean predicted probability in 10 equal-width bins; the dashed diagonal is perfect calibration".into(), chart.render()));
+        out.push(("reliability.svg".into(), "observed share of positives against mean predicted probability in 10 equal-width bins closed on the right (row counts in the table below); the dashed diagonal is perfect calibration".into(), chart.render()));
     }
     Ok(out)
 }
 
-fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
-    let (manifest, record, summary, plan, selection, timing) = load(layout)?;
-    let m = &selection.metric;
-    let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
-    let selected_runs: Vec<&StoredRun> = runs.iter().filter(|r| r.record.config_id == selection.selected_config && r.record.outcome.is_completed()).collect();
-    let selected_cfg = plan.config(&selection.selected_config).ok_or_else(|| Error::store(layout.plan(), "does not list the selected configuration"))?;
-    let selected_summary = selection.configs.iter().find(|c| c.config_id == selection.selected_config);
-    let baseline_summary = selection.configs.iter().find(|c| c.baseline);
-    let selected_run = runs.iter().find(|r| r.record.run_id == selection.selected_run).ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
-    let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
-    let model = &selected_cfg.config.model;
-    let training = &selected_cfg.config.training;
-    let bounded = manifest.data.task != Task::Regression && m != "log_loss";
-    let higher = selection.higher_is_better;
+/// Everything the card is made from, read once from the results folder.
+struct Stored {
+    manifest: Manifest,
+    record: ExperimentRecord,
+    summary: DataSummary,
+    plan: Plan,
+    selection: Selection,
+    timing: Value,
+    preprocessor: Preprocessor,
+    runs: Vec<StoredRun>,
+}
 
-    let columns: Vec<Row> = summary.columns.iter().map(|c| {
-        let detail = match &c.numeric {
-            Some(n) => format!("{} to {} (median {})", sig(n.min, 4), sig(n.max, 4), sig(n.median, 4)),
-            None => {
-                let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", md(&l.level), l.count)).collect();
-                format!("{} levels; most frequent {}", c.distinct, top.join(", "))
+fn about(m: &Manifest) -> About {
+    let e = &m.experiment;
+    let stated = |s: &str| if s.trim().is_empty() { "not stated".to_string() } else { md_text(s) };
+    About {
+        name: md(&e.name),
+        description: md_text(&e.description),
+        intended_use: stated(&e.intended_use),
+        out_of_scope: stated(&e.out_of_scope),
+        owner: stated(&e.owner),
+        trained_by: stated(&e.trained_by),
+        data_period: stated(&e.data_period),
+        population: stated(&e.population),
+        affects_people: e.affects_people,
+        group_columns: m.data.group_columns.iter().map(|g| md(g)).collect(),
+    }
+}
+
+fn split_method(m: &Manifest) -> String {
+    let s = &m.split;
+    match (&s.column, &s.group) {
+        (Some(c), _) => format!("given by column {} (train {}, validation {}, test {})", code_span(c), list(&s.labels.train), list(&s.labels.validation), list(&s.labels.test)),
+        (None, Some(g)) => format!(
+            "seeded by whole groups of {}: every row of one value in one split{}, split seed {}",
+            code_span(g),
+            if s.stratify && m.data.task != Task::Regression { ", groups stratified by their most common class" } else { "" },
+            s.seed
+        ),
+        (None, None) if s.stratify && m.data.task != Task::Regression => format!("seeded by rows, stratified by class, split seed {}", s.seed),
+        (None, None) => format!("seeded by rows, split seed {}", s.seed),
+    }
+}
+
+fn list(labels: &[String]) -> String {
+    labels.iter().map(|l| code_span(l)).collect::<Vec<_>>().join(" or ")
+}
+
+/// How the features became the network's inputs, in one sentence and one row per feature.
+fn preprocessing(p: &Preprocessor) -> (String, Vec<Row>) {
+    let mut rows = Vec::new();
+    let (mut numeric, mut numeric_flag, mut categorical, mut categorical_flag) = (0, 0, 0, 0);
+    for input in &p.inputs {
+        match input {
+            InputEncoding::Numeric { name, impute, mean, scale, indicator, .. } => {
+                numeric += 1;
+                numeric_flag += *indicator as usize;
+                let missing = if *indicator { format!("; missing → training median {} plus a missing flag", sig(*impute, 4)) } else { String::new() };
+                rows.push(Row::of([md(name), format!("numeric, standardised: (x − {}) / {}{missing}", sig(*mean, 4), sig(*scale, 4)), (1 + *indicator as usize).to_string()]));
             }
-        };
-        Row { cells: vec![md(&c.name), c.role.clone(), if c.categorical { format!("{} (categorical)", c.kind) } else { c.kind.clone() }, format!("{} ({}%)", c.missing, fixed(100.0 * c.missing_share, 1)), detail] }
-    }).collect();
-    let target_rows: Vec<Row> = summary.target.classes.iter().map(|l| Row { cells: vec![md(&l.level), l.count.to_string(), format!("{}%", fixed(100.0 * l.count as f64 / summary.rows.max(1) as f64, 1))] })
-        .chain(summary.target.distribution.iter().map(|d| Row { cells: vec!["distribution".into(), format!("min {} / median {} / max {}", sig(d.min, 4), sig(d.median, 4), sig(d.max, 4)), format!("mean {} sd {}", sig(d.mean, 4), sig(d.std, 4))] }))
-        .collect();
+            InputEncoding::Categorical { name, levels, impute, indicator } => {
+                categorical += 1;
+                categorical_flag += *indicator as usize;
+                let missing = if *indicator { format!("; missing → most frequent level {} plus a missing flag", levels.get(*impute).map(|l| code_span(l)).unwrap_or_default()) } else { String::new() };
+                rows.push(Row::of([md(name), format!("one-hot over {} training levels plus one column for levels unseen in training{missing}", levels.len()), (levels.len() + 1 + *indicator as usize).to_string()]));
+            }
+        }
+    }
+    let line = format!(
+        "{} features became {} network inputs, fitted on the training rows only: {numeric} numeric (standardised by training mean and standard deviation; {numeric_flag} with a missing flag) and {categorical} categorical (one-hot plus an unseen-level column; {categorical_flag} with a missing flag).",
+        p.inputs.len(),
+        p.width()
+    );
+    (line, rows)
+}
 
-    let metrics_shown: Vec<&str> = match manifest.data.task {
-        Task::Binary => vec!["roc_auc", "pr_auc", "log_loss", "brier", "ece", "accuracy"],
+fn data_section(st: &Stored) -> DataSection {
+    let (summary, record) = (&st.summary, &st.record);
+    let column_rows = summary
+        .columns
+        .iter()
+        .map(|c| {
+            let detail = match &c.numeric {
+                Some(n) if c.kind == "boolean" => format!("true in {}% of rows", fixed(100.0 * n.mean, 1)),
+                Some(n) => format!("{} to {} (median {})", sig(n.min, 4), sig(n.max, 4), sig(n.median, 4)),
+                None => {
+                    let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", md(&l.level), l.count)).collect();
+                    format!("{} levels; most frequent {}", c.distinct, top.join(", "))
+                }
+            };
+            let kind = if c.categorical { format!("{} (categorical)", c.kind) } else { c.kind.clone() };
+            Row::of([md(&c.name), c.role.clone(), kind, format!("{} ({}%)", c.missing, fixed(100.0 * c.missing_share, 1)), detail])
+        })
+        .collect();
+    let class_rows = summary
+        .target
+        .classes
+        .iter()
+        .map(|l| Row::of([md(&l.level), l.count.to_string(), format!("{}%", fixed(100.0 * l.count as f64 / summary.rows.max(1) as f64, 1))]))
+        .collect();
+    let target_rows = summary
+        .target
+        .distribution
+        .iter()
+        .flat_map(|d| {
+            [("mean", d.mean), ("standard deviation", d.std), ("minimum", d.min), ("25th percentile", d.q25), ("median", d.median), ("75th percentile", d.q75), ("maximum", d.max)]
+                .map(|(name, v)| Row::of([name.to_string(), sig(v, 4)]))
+        })
+        .collect();
+    let (preprocessing, encoding_rows) = preprocessing(&st.preprocessor);
+    let group_note = if st.manifest.data.group_columns.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "Columns with the role \"group\" ({}) describe groups of people; they are not network inputs and serve only the per-group test results below.",
+            st.manifest.data.group_columns.iter().map(|g| md(g)).collect::<Vec<_>>().join(", ")
+        )
+    };
+    DataSection {
+        path: code_span(&record.data.path),
+        bytes: record.data.bytes,
+        outside_project: record.data.outside_project,
+        file_sha256: record.data.file_sha256.clone(),
+        content_sha256: record.data.content_sha256.clone(),
+        rows: summary.rows,
+        duplicate_rows: summary.duplicate_rows,
+        split: record.split_rows,
+        split_method: split_method(&st.manifest),
+        column_rows,
+        class_rows,
+        target_rows,
+        warnings: summary.warnings.iter().map(|w| md(w)).collect(),
+        preprocessing,
+        encoding_rows,
+        group_note,
+    }
+}
+
+fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun) -> Capacity {
+    let (model, training) = (&selected_cfg.config.model, &selected_cfg.config.training);
+    let selected_summary = st.selection.configs.iter().find(|c| c.config_id == st.selection.selected_config);
+    let on_off = |b: bool| if b { "on".to_string() } else { "off".to_string() };
+    let regularizer_rows = vec![
+        Row::of(["weight decay (decoupled)".into(), sig(training.weight_decay, 4)]),
+        Row::of(["L2 penalty (coupled)".into(), sig(training.l2_penalty, 4)]),
+        Row::of(["dropout".into(), sig(model.dropout, 4)]),
+        Row::of(["input noise (sd, standardised units)".into(), sig(model.input_noise, 4)]),
+        Row::of(["batch normalisation".into(), on_off(model.batch_norm)]),
+        Row::of(["residual connections".into(), on_off(model.residual)]),
+        Row::of(["early stopping".into(), if training.early_stopping.enabled { format!("on: patience {} epochs on validation loss, min delta {}; best epoch restored", training.early_stopping.patience, sig(training.early_stopping.min_delta, 3)) } else { "off".into() }]),
+        Row::of(["gradient clipping".into(), if training.clip_norm > 0.0 { format!("global norm {}", sig(training.clip_norm, 3)) } else { "off".into() }]),
+    ];
+    let grid_rows = st.manifest.sweep.grid.iter().map(|(k, v)| Row::of([md(k), v.iter().map(value_text).collect::<Vec<_>>().join(", "), selected_cfg.overrides.get(k).map(value_text).unwrap_or_default()])).collect();
+    let hidden = if model.hidden.is_empty() { "no hidden layer".to_string() } else { format!("hidden widths {}", model.hidden.iter().map(|w| w.to_string()).collect::<Vec<_>>().join(", ")) };
+    let momentum = if training.optimizer == crate::manifest::Optimizer::Sgd {
+        format!(", momentum {}{}", sig(training.momentum, 3), if training.nesterov { ", Nesterov" } else { "" })
+    } else {
+        format!(", betas {} / {}", sig(training.beta1, 4), sig(training.beta2, 4))
+    };
+    let best_epoch = selected_summary.and_then(|s| s.best_epoch.as_ref()).map(|s| format!("{} ± {}", sig(s.mean, 3), sig(s.sd, 2))).unwrap_or_else(|| "–".into());
+    Capacity {
+        architecture: format!("{} features encoded as {} inputs → {hidden} → {} output(s)", st.record.features.len(), st.preprocessor.width(), selected_run.record.head.outputs()),
+        activation: model.activation.as_str().into(),
+        residual: model.residual,
+        batch_norm: model.batch_norm,
+        parameter_count: selected_run.record.parameter_count,
+        rows_per_parameter: sig(st.record.split_rows[0] as f64 / selected_run.record.parameter_count.max(1) as f64, 3),
+        regularizer_rows,
+        optimizer: format!("{} (learning rate {}{momentum}, batch size {})", training.optimizer.as_str(), sig(training.learning_rate, 4), training.batch_size),
+        schedule: format!("{:?} with {} warm-up epoch(s)", training.schedule, training.warmup_epochs).to_lowercase(),
+        epochs: format!("at most {}; best epoch per seed {best_epoch} (mean ± sd)", training.epochs),
+        grid_rows,
+        seeds: st.manifest.sweep.seeds.iter().map(|s| s.to_string()).collect::<Vec<_>>().join(", "),
+    }
+}
+
+fn decision(title: String, labels: &[String], confusion: &[Vec<usize>], per_class: &[crate::metrics::classification::ClassReport]) -> Decision {
+    Decision {
+        title,
+        header: std::iter::once("true \\\\ predicted".to_string()).chain(labels.iter().cloned()).collect(),
+        confusion_rows: confusion.iter().enumerate().map(|(i, r)| Row::of(std::iter::once(labels.get(i).cloned().unwrap_or_default()).chain(r.iter().map(|n| n.to_string())))).collect(),
+        class_rows: per_class.iter().enumerate().map(|(i, c)| Row::of([labels.get(i).cloned().unwrap_or_default(), fixed(c.precision, 4), fixed(c.recall, 4), fixed(c.f1, 4), c.support.to_string()])).collect(),
+    }
+}
+
+fn selection_text(sel: &Selection, direction: &str) -> String {
+    let m = &sel.metric;
+    let label = |id: &str| sel.configs.iter().find(|c| c.config_id == id).map(|c| md(&config_label(&c.overrides, c.baseline))).unwrap_or_default();
+    if sel.rule == SelectionRule::OneStandardError.as_str() {
+        let best = sel.configs.iter().find(|c| c.config_id == sel.best_config);
+        let best_text = best.and_then(|b| b.validation.get(m)).map(|s| format!("{} ± {} (sd), standard error {}", fixed(s.mean, 4), fixed(s.sd, 4), sig(standard_error(s), 2))).unwrap_or_default();
+        let outcome = if sel.best_config == sel.selected_config { "the best configuration is also the smallest within that margin".to_string() } else { format!("the best mean was {} at {best_text}", label(&sel.best_config)) };
+        format!("chosen by the one-standard-error rule: the configuration with the fewest parameters whose mean validation {m} across seeds lies within one standard error of the best mean ({direction}; Breiman et al. 1984, common practice); {outcome}")
+    } else {
+        format!("chosen by the best mean validation {m} across seeds ({direction})")
+    }
+}
+
+fn results(st: &Stored, limitations: &[Limitation]) -> Results {
+    let sel = &st.selection;
+    let m = &sel.metric;
+    let task = st.manifest.data.task;
+    let direction = if sel.higher_is_better { "higher is better" } else { "lower is better" };
+    let shown: Vec<&str> = match task {
+        Task::Binary => vec!["roc_auc", "average_precision", "log_loss", "brier", "ece", "accuracy"],
         Task::Multiclass => vec!["log_loss", "accuracy", "balanced_accuracy", "roc_auc", "ece"],
         Task::Regression => vec!["rmse", "mae", "r2"],
     };
     let mut validation_header = vec!["configuration".to_string(), "parameters".into(), "seeds".into()];
-    validation_header.extend(metrics_shown.iter().map(|s| s.to_string()));
-    validation_header.push(format!("train − validation {m}"));
-    let validation_rows: Vec<Row> = selection.configs.iter().map(|c| {
-        let mut label = md(&config_label(&c.overrides, c.baseline));
-        if c.config_id == selection.selected_config {
-            label = format!("**{label}** (selected)");
-        }
-        let mut cells = vec![label, c.parameter_count.to_string(), if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() }];
-        cells.extend(metrics_shown.iter().map(|k| spread_text(c.validation.get(*k))));
-        cells.push(spread_text(c.gap.as_ref()));
-        Row { cells }
-    }).collect();
+    validation_header.extend(shown.iter().map(|s| s.to_string()));
+    validation_header.push(format!("{m}: train better than validation by"));
+    let orient = |x: f64| if sel.higher_is_better { x } else { -x };
+    let validation_rows = sel
+        .configs
+        .iter()
+        .map(|c| {
+            let mut label = md(&config_label(&c.overrides, c.baseline));
+            if c.config_id == sel.selected_config {
+                label = format!("**{label}** (selected)");
+            }
+            let seeds = if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
+            let mut cells = vec![label, c.parameter_count.to_string(), seeds];
+            cells.extend(shown.iter().map(|k| spread_text(c.validation.get(*k))));
+            cells.push(c.gap.as_ref().map(|g| format!("{} ± {}", fixed(orient(g.mean), 4), fixed(g.sd, 4))).unwrap_or_else(|| "–".into()));
+            Row { cells }
+        })
+        .collect();
+    let selected_summary = sel.configs.iter().find(|c| c.config_id == sel.selected_config);
+    let baseline_summary = sel.configs.iter().find(|c| c.baseline);
     let baseline_line = match (selected_summary.and_then(|s| s.validation.get(m)), baseline_summary.and_then(|s| s.validation.get(m))) {
         (Some(n), Some(b)) => format!("Validation {m}: network {} against linear baseline {} (difference {}).", spread_text(Some(n)), spread_text(Some(b)), fixed(n.mean - b.mean, 4)),
         _ => "No linear baseline was trained (selection.baseline = false).".into(),
     };
-    let t = &selection.test;
-    let test_rows: Vec<Row> = t.metrics.iter().filter_map(|(k, v)| {
-        let v = (*v)?;
-        let ci = t.intervals.get(k).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
-        Some(Row { cells: vec![k.clone(), fixed(v, 4), ci, spread_text(t.across_seeds.get(k))] })
-    }).collect();
+    let t = &sel.test;
+    let test_rows = t
+        .metrics
+        .iter()
+        .filter_map(|(k, v)| {
+            let v = (*v)?;
+            let ci = t.intervals.get(k).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
+            Some(Row::of([k.clone(), fixed(v, 4), ci, spread_text(t.across_seeds.get(k))]))
+        })
+        .collect();
     let headline = match (t.metrics.get(m).copied().flatten(), t.intervals.get(m)) {
         (Some(v), Some(i)) => format!("test {m} {} (95% bootstrap interval {} to {}, {} resamples)", fixed(v, 4), fixed(i.lower, 4), fixed(i.upper, 4), i.resamples),
         (Some(v), None) => format!("test {m} {}", fixed(v, 4)),
         _ => format!("test {m} undefined"),
     };
-    let labels: Vec<String> = record.class_labels.iter().map(|l| md(l)).collect();
-    let confusion_rows: Vec<Row> = t.confusion.iter().enumerate().map(|(i, r)| Row { cells: std::iter::once(labels.get(i).cloned().unwrap_or_default()).chain(r.iter().map(|n| n.to_string())).collect() }).collect();
-    let class_rows: Vec<Row> = t.per_class.iter().enumerate().map(|(i, c)| Row { cells: vec![labels.get(i).cloned().unwrap_or_default(), fixed(c.precision, 4), fixed(c.recall, 4), fixed(c.f1, 4), c.support.to_string()] }).collect();
-    let group_rows: Vec<Row> = t.groups.iter().map(|g| Row { cells: vec![md(&g.column), md(&g.level), g.rows.to_string(), g.metrics.get(m).copied().flatten().map(|v| fixed(v, 4)).unwrap_or_else(|| "undefined".into())] }).collect();
-
-    let regularizer_rows = vec![
-        Row { cells: vec!["weight decay (decoupled)".into(), sig(training.weight_decay, 4)] },
-        Row { cells: vec!["L2 penalty (coupled)".into(), sig(training.l2_penalty, 4)] },
-        Row { cells: vec!["dropout".into(), sig(model.dropout, 4)] },
-        Row { cells: vec!["input noise (sd, standardised units)".into(), sig(model.input_noise, 4)] },
-        Row { cells: vec!["batch normalisation".into(), if model.batch_norm { "on".into() } else { "off".into() }] },
-        Row { cells: vec!["residual connections".into(), if model.residual { "on".into() } else { "off".into() }] },
-        Row { cells: vec!["early stopping".into(), if training.early_stopping.enabled { format!("on: patience {} epochs on validation loss, min delta {}; best epoch restored", training.early_stopping.patience, sig(training.early_stopping.min_delta, 3)) } else { "off".into() }] },
-        Row { cells: vec!["gradient clipping".into(), if training.clip_norm > 0.0 { format!("global norm {}", sig(training.clip_norm, 3)) } else { "off".into() }] },
-    ];
-    let grid_rows: Vec<Row> = manifest.sweep.grid.iter().map(|(k, v)| Row { cells: vec![md(k), v.iter().map(value_text).collect::<Vec<_>>().join(", "), selected_cfg.overrides.get(k).map(value_text).unwrap_or_default()] }).collect();
-
-    let missing: Vec<(String, f64)> = summary.columns.iter().filter(|c| c.role == "feature").map(|c| (c.name.clone(), c.missing_share)).collect();
-    let rare: Vec<(String, usize)> = summary.columns.iter().filter(|c| c.role == "feature" && c.categorical).map(|c| (c.name.clone(), c.rare_levels)).collect();
-    let grid_positions: Vec<(String, String, usize, usize)> = manifest.sweep.grid.iter().filter_map(|(k, values)| {
-        let chosen = selected_cfg.overrides.get(k)?;
-        let mut keys: Vec<f64> = values.iter().map(order_key).collect::<Option<Vec<_>>>()?;
-        let mine = order_key(chosen)?;
-        keys.sort_by(f64::total_cmp);
-        keys.dedup();
-        let position = keys.iter().position(|x| *x == mine)?;
-        Some((k.clone(), chosen.to_string(), position, keys.len()))
-    }).collect();
-    let minority = summary.target.classes.iter().min_by_key(|c| c.count).map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64));
-    let orient = |x: f64| if higher { x } else { -x };
-    let evidence = Evidence {
-        train_rows: record.split_rows[0],
-        parameter_count: selected_run.record.parameter_count,
-        minority,
-        metric: m.clone(),
-        selected: selected_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
-        baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
-        gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| orient(g.mean)),
-        bounded_metric: bounded,
-        test_ece: t.metrics.get("ece").copied().flatten(),
-        missing,
-        rare_levels: rare,
-        grid: grid_positions,
-        failed_runs: selection.configs.iter().map(|c| c.runs_failed).sum(),
+    let serious: Vec<&Limitation> = limitations.iter().filter(|l| l.serious).collect();
+    let preference = if serious.iter().any(|l| l.rule == "baseline_beats_network") {
+        "A reviewer should prefer the linear baseline: it beats the selected network on validation data beyond seed noise (see the known limitations).".to_string()
+    } else if serious.iter().any(|l| l.rule == "no_better_than_chance") {
+        "Do not use this model for decisions: its test results are not shown to beat chance (see the known limitations).".to_string()
+    } else {
+        String::new()
     };
-    let limitations: Vec<Limitation> = derive(&evidence).into_iter().map(|l| Limitation { finding: md(&l.finding), threshold: md(&l.threshold), ..l }).collect();
-    let figs = figures(&manifest, &selection, &selected_runs)?;
-    let text = |v: &Value| v.as_str().map(str::to_string);
-    let context = CardContext {
-        name: md(&manifest.experiment.name),
-        description: md(&manifest.experiment.description),
-        intended_use: md(&manifest.experiment.intended_use),
-        out_of_scope: md(&manifest.experiment.out_of_scope),
-        owner: md(&manifest.experiment.owner),
-        affects_people: manifest.experiment.affects_people,
-        group_columns: manifest.data.group_columns.iter().map(|g| md(g)).collect(),
-        task: manifest.data.task.as_str().into(),
-        target: md(&manifest.data.target),
-        positive_label: if manifest.data.task == Task::Binary { record.class_labels.get(1).map(|l| md(l)).unwrap_or_default() } else { String::new() },
-        trained_at: text(&timing["trained_at"]).unwrap_or_else(|| "unknown".into()),
-        fingerprint: record.fingerprint.clone(),
-        tool_version: record.tool_version.clone(),
-        manifest_sha256: record.manifest_sha256.clone(),
-        results_digest: String::new(),
-        manifest_path: md(&record.manifest_path),
-        data_path: md(&record.data.path),
-        data_resolved_path: md(&record.data.resolved_path),
-        data_outside: record.data.outside_manifest_folder,
-        data_file_sha256: record.data.file_sha256.clone(),
-        data_content_sha256: record.data.content_sha256.clone(),
-        data_bytes: record.data.bytes,
-        rows: summary.rows,
-        split: record.split_rows,
-        split_seed: manifest.split.seed,
-        stratified: manifest.split.stratify && manifest.data.task != Task::Regression,
-        column_rows: columns,
-        target_rows,
-        data_warnings: summary.warnings.iter().map(|w| md(w)).collect(),
-        selected_label: md(&config_label(&selected_cfg.overrides, false)),
-        selected_run: selection.selected_run.clone(),
-        selected_seed: t.seed,
+    let labels: Vec<String> = st.record.class_labels.iter().map(|l| md(l)).collect();
+    let test_classes = if t.confusion.is_empty() {
+        String::new()
+    } else {
+        let counts: Vec<String> = t.confusion.iter().enumerate().map(|(i, r)| format!("{} {}", r.iter().sum::<usize>(), labels.get(i).cloned().unwrap_or_default())).collect();
+        format!(" The test split holds {}.", counts.join(", "))
+    };
+    let mut decisions = Vec::new();
+    if !t.confusion.is_empty() {
+        let default_rule = if task == Task::Binary { "threshold 0.5: positive when the positive-class probability is above 0.5" } else { "the most probable class" };
+        decisions.push(decision(format!("At {default_rule} (accuracy and the other test figures use it)"), &labels, &t.confusion, &t.per_class));
+    }
+    if let Some(th) = &t.chosen_threshold {
+        decisions.push(decision(
+            format!(
+                "At threshold {} chosen on the validation rows by Youden's J (largest true-positive rate minus false-positive rate; Youden 1950): positive when the probability is at least {}; on validation, true-positive rate {} and false-positive rate {}",
+                sig(th.threshold, 4), sig(th.threshold, 4), fixed(th.validation_tpr, 4), fixed(th.validation_fpr, 4)
+            ),
+            &labels,
+            &th.confusion,
+            &th.per_class,
+        ));
+    }
+    let reliability_rows = t.reliability.iter().map(|b| Row::of([format!("({}, {}]", sig(b.lower, 2), sig(b.upper, 2)), b.count.to_string(), fixed(b.mean_predicted, 4), fixed(b.observed, 4)])).collect();
+    let group_rows = t
+        .groups
+        .iter()
+        .map(|g| {
+            let value = g.metrics.get(m).copied().flatten().map(|v| fixed(v, 4)).unwrap_or_else(|| "undefined".into());
+            let ci = g.intervals.get(m).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
+            Row::of([md(&g.column), md(&g.level), g.rows.to_string(), g.base_rate.map(|b| sig(b, 3)).unwrap_or_else(|| "–".into()), value, ci])
+        })
+        .collect();
+    let selected_cfg_label = st.plan.config(&sel.selected_config).map(|c| md(&config_label(&c.overrides, false))).unwrap_or_default();
+    Results {
         metric: m.clone(),
-        direction: if higher { "higher is better".into() } else { "lower is better".into() },
+        direction: direction.into(),
+        selected_label: selected_cfg_label,
+        selected_run: sel.selected_run.clone(),
+        selected_seed: t.seed,
+        selection_text: selection_text(sel, direction),
         headline,
-        architecture: {
-            let encoded = read_json::<crate::data::prep::Preprocessor>(&layout.preprocessor())?.width();
-            let hidden = if model.hidden.is_empty() { "no hidden layer".to_string() } else { format!("hidden widths {}", model.hidden.iter().map(|w| w.to_string()).collect::<Vec<_>>().join(", ")) };
-            format!("{} features encoded as {encoded} inputs → {hidden} → {} output(s)", record.features.len(), selected_run.record.head.outputs())
-        },
-        activation: model.activation.as_str().into(),
-        residual: model.residual,
-        batch_norm: model.batch_norm,
-        parameter_count: selected_run.record.parameter_count,
-        rows_per_parameter: sig(record.split_rows[0] as f64 / selected_run.record.parameter_count.max(1) as f64, 3),
-        regularizer_rows,
-        optimizer: format!("{} (learning rate {}{}{})", training.optimizer.as_str(), sig(training.learning_rate, 4),
-            if training.optimizer == crate::manifest::Optimizer::Sgd { format!(", momentum {}{}", sig(training.momentum, 3), if training.nesterov { ", Nesterov" } else { "" }) } else { format!(", betas {} / {}", sig(training.beta1, 4), sig(training.beta2, 4)) },
-            format_args!(", batch size {}", training.batch_size)),
-        schedule: format!("{:?} with {} warm-up epoch(s)", training.schedule, training.warmup_epochs).to_lowercase(),
-        epochs: format!("at most {}; best epoch per seed {}", training.epochs, spread_text(selected_summary.and_then(|s| s.best_epoch.as_ref()))),
-        grid_rows,
-        seeds: manifest.sweep.seeds.iter().map(|s| s.to_string()).collect::<Vec<_>>().join(", "),
+        preference,
         validation_header,
         validation_rows,
         baseline_line,
         test_rows,
         test_rows_count: t.rows,
-        confusion_header: std::iter::once("true \\\\ predicted".to_string()).chain(labels.iter().cloned()).collect(),
-        confusion_rows,
-        class_rows,
+        test_classes,
+        why_one_run: format!(
+            "The test figures come from one run, the seed of the selected configuration with the best validation {m} (seed {}): a model that ships is one set of weights, and that run's weights are the ones stored and scored. The last column shows every seed of the configuration on the same test rows, so the spread a retraining would bring is visible.",
+            t.seed
+        ),
+        decisions,
+        reliability_rows,
         group_rows,
-        figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
-        limitations,
+    }
+}
+
+fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
+    let text = |v: &Value| v.as_str().map(str::to_string);
+    let timing = &st.timing;
+    let folder = layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    Provenance {
+        trained_at: text(&timing["trained_at"]).unwrap_or_else(|| "unknown".into()),
+        fingerprint: st.record.fingerprint.clone(),
+        tool_version: st.record.tool_version.clone(),
+        manifest_sha256: st.record.manifest_sha256.clone(),
+        results_digest: String::new(),
+        manifest_path: code_span(&st.record.manifest_path),
         environment: vec![
-            Row { cells: vec!["tabcard".into(), md(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))] },
-            Row { cells: vec!["numerics".into(), md(&format!("kernels {}, dispatch level {} (the level changes speed, never a bit)", environment.kernel_version, environment.kernel_level))] },
-            Row { cells: vec!["numerical kernels".into(), md(&format!("{}; model definition and stored form: candle {}", environment.kernel_features, environment.candle_version))] },
-            Row { cells: vec!["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))] },
-            Row { cells: vec!["CPU features".into(), md(&environment.cpu_features.join(" "))] },
-            Row { cells: vec!["C library".into(), md(&environment.libc)] },
-            Row { cells: vec!["threads per run".into(), environment.threads_per_run.to_string()] },
+            Row::of(["tabcard".into(), md_line(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))]),
+            Row::of(["numerics".into(), md_line(&format!("kernels {}, dispatch level {} (the level changes speed, never a bit)", environment.kernel_version, environment.kernel_level))]),
+            Row::of(["numerical kernels".into(), md_line(&format!("{}; model definition and stored form: candle {}", environment.kernel_features, environment.candle_version))]),
+            Row::of(["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))]),
+            Row::of(["CPU features".into(), md_line(&environment.cpu_features.join(" "))]),
+            Row::of(["C library".into(), md(&environment.libc)]),
+            Row::of(["threads per run".into(), environment.threads_per_run.to_string()]),
         ],
         git_commit: text(&timing["git_commit"]).unwrap_or_else(|| "not in a git repository".into()),
-        git_dirty: match timing["git_dirty"].as_bool() { Some(true) => "yes".into(), Some(false) => "no".into(), None => "unknown".into() },
+        git_dirty: match timing["git_dirty"].as_bool() {
+            Some(true) => "yes".into(),
+            Some(false) => "no".into(),
+            None => "unknown".into(),
+        },
         jobs: timing["jobs"].as_u64().map(|j| j.to_string()).unwrap_or_else(|| "unknown".into()),
-        results_folder: md(&layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default()),
-        train_command: md(&format!("tabcard train {}", record.manifest_path)),
+        verify_command: code_span(&format!("tabcard verify {folder}")),
+        results_folder: code_span(&folder),
+        train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.manifest_path)),
+    }
+}
+
+fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
+    let st = load(layout)?;
+    let sel = &st.selection;
+    let selected_runs: Vec<&StoredRun> = st.runs.iter().filter(|r| r.record.config_id == sel.selected_config && r.record.outcome.is_completed()).collect();
+    let selected_cfg = st.plan.config(&sel.selected_config).ok_or_else(|| Error::store(layout.plan(), "does not list the selected configuration"))?;
+    let selected_run = st.runs.iter().find(|r| r.record.run_id == sel.selected_run).ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
+    let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
+    let evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
+    let limitations: Vec<Limitation> = derive(&evidence).into_iter().map(|l| Limitation { finding: md_line(&l.finding), threshold: md_line(&l.threshold), ..l }).collect();
+    let figs = figures(&st.manifest, sel, &selected_runs)?;
+    let context = CardContext {
+        about: about(&st.manifest),
+        task: st.manifest.data.task.as_str().into(),
+        target: md(&st.manifest.data.target),
+        positive_label: if st.manifest.data.task == Task::Binary { st.record.class_labels.get(1).map(|l| code_span(l)).unwrap_or_default() } else { String::new() },
+        data: data_section(&st),
+        capacity: capacity(&st, selected_cfg, selected_run),
+        results: results(&st, &limitations),
+        figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
+        limitations,
+        provenance: provenance(&st, layout, &environment),
     };
     Ok((context, figs))
 }
@@ -433,7 +665,7 @@ fn tera(templates: Option<&Path>) -> Result<tera::Tera> {
 /// Renders the card text and figures from a results folder without writing anything.
 pub fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -> Result<(String, Vec<(String, String)>)> {
     let (mut context, figs) = build(layout)?;
-    context.results_digest = results_digest.to_string();
+    context.provenance.results_digest = results_digest.to_string();
     let ctx = tera::Context::from_serialize(&context).map_err(|e| Error::Engine(format!("card context: {e}")))?;
     let text = tera(templates)?.render("card.md.tera", &ctx).map_err(|e| {
         let mut msg = e.to_string();

@@ -35,8 +35,8 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let _ = writeln!(out, "  data file  sha256 {} ({} bytes)", exp.data.file_sha256, exp.data.bytes);
     let _ = writeln!(out, "  data rows  sha256 {} (schema and values)", exp.data.content_sha256);
     let _ = writeln!(out, "  tool       tabcard {}", crate::experiment::TOOL_VERSION);
-    if exp.data.outside_manifest_folder {
-        let _ = writeln!(out, "note: the data file lies outside the manifest's folder: {}", terminal_safe(&exp.data.resolved_path));
+    if exp.data.outside_project {
+        let _ = writeln!(out, "note: the data file lies outside the project that holds the manifest (its git work tree, or its folder outside git), so it does not travel with a checkout: {}", terminal_safe(&exp.data_path.display().to_string()));
     }
     let s = &exp.summary;
     let _ = writeln!(out, "\ndata         {} ({} rows, {} columns)", exp.data_path.display(), s.rows, s.columns.len());

@@ -66,20 +66,6 @@ pub fn load_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
     Ok(out)
 }
 
-pub fn config_label(summary_overrides: &std::collections::BTreeMap<String, serde_json::Value>, baseline: bool) -> String {
-    if baseline {
-        return "linear baseline".into();
-    }
-    if summary_overrides.is_empty() {
-        return "base configuration".into();
-    }
-    summary_overrides
-        .iter()
-        .map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v))
-        .collect::<Vec<_>>()
-        .join(" ")
-}
-
 fn table(selection: &Selection) -> String {
     let mut out = String::new();
     let m = &selection.metric;
@@ -89,7 +75,7 @@ fn table(selection: &Selection) -> String {
         let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
         let mark = if c.config_id == selection.selected_config { " *" } else { "" };
         let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
-        let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}", crate::text::terminal_safe(&config_label(&c.overrides, c.baseline)), c.parameter_count, seeds, v, g);
+        let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}", crate::text::terminal_safe(&crate::plan::config_label(&c.overrides, c.baseline)), c.parameter_count, seeds, v, g);
     }
     let t = &selection.test;
     let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
@@ -127,7 +113,7 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 pub fn derive_selection(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
-    let (configs, selected_config, selected_run) = select(m.data.task, plan, runs, &m.selection.metric)?;
+    let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
     let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
     let test_y = exp.labels(&exp.splits.test);
     let groups: Vec<crate::selection::GroupColumn> = exp
@@ -139,14 +125,16 @@ pub fn derive_selection(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selec
             Some(crate::selection::GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
         .collect();
-    let test = evaluate_test(runs, &selected_config, &selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups)?;
+    let test = evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups, (&prepared.validation_x, &prepared.validation_y))?;
     Ok(Selection {
         metric: m.selection.metric.clone(),
         higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
-        configs,
-        selected_config,
-        selected_run,
+        configs: picked.configs,
+        selected_config: picked.selected_config,
+        selected_run: picked.selected_run,
         baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
+        rule: m.selection.rule.as_str().into(),
+        best_config: picked.best_config,
         test,
     })
 }

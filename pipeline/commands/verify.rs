@@ -106,6 +106,15 @@ fn environment_differences(recorded: &NumericsFingerprint, now: &NumericsFingerp
     out
 }
 
+/// Where the recorded manifest (a path relative to its project root) is now: under the nearest
+/// folder above the results folder that holds it (results usually live inside the project), else
+/// relative to the current folder.
+fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
+    let absolute = results_folder.canonicalize().unwrap_or_else(|_| results_folder.to_path_buf());
+    let found = absolute.ancestors().map(|a| a.join(recorded)).find(|p| p.is_file());
+    found.unwrap_or_else(|| PathBuf::from(recorded))
+}
+
 pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let folder = results_folder(target, &options.results_root)?;
     let layout = Layout::new(&folder);
@@ -119,13 +128,10 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
         )));
     }
     let manifest: Manifest = serde_json::from_str(&manifest_text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
-    let manifest_path = PathBuf::from(&record.manifest_path);
+    let manifest_path = locate_manifest(&record.manifest_path, &layout.root);
     let data_path = match &options.data {
         Some(p) => p.clone(),
-        None => {
-            let beside = manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path);
-            if beside.exists() { beside } else { PathBuf::from(&record.data.resolved_path) }
-        }
+        None => manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path),
     };
     let file_hash = file_sha256(&data_path)?;
     if file_hash != record.data.file_sha256 {

@@ -39,6 +39,10 @@ pub struct Roles {
     pub ids: Vec<String>,
     pub groups: Vec<String>,
     pub dropped: Vec<String>,
+    /// The column that assigns rows to splits (`split.column`), never a feature.
+    pub split_column: Option<String>,
+    /// The column whose rows stay in one split (`split.group`), never a feature.
+    pub split_group: Option<String>,
 }
 
 impl Roles {
@@ -51,6 +55,10 @@ impl Roles {
             "id"
         } else if self.groups.iter().any(|c| c == column) {
             "group"
+        } else if self.split_column.as_deref() == Some(column) {
+            "split"
+        } else if self.split_group.as_deref() == Some(column) {
+            "split group"
         } else {
             "not used"
         }
@@ -79,8 +87,19 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
             require_column(table, file, name, key)?;
         }
     }
+    let split = &m.split;
+    for (name, key) in [(&split.column, "split.column"), (&split.group, "split.group")] {
+        if let Some(name) = name {
+            require_column(table, file, name, key)?;
+        }
+    }
     let excluded = |name: &str| {
-        name == d.target || d.drop.iter().any(|c| c == name) || d.ids.iter().any(|c| c == name) || d.group_columns.iter().any(|c| c == name)
+        name == d.target
+            || d.drop.iter().any(|c| c == name)
+            || d.ids.iter().any(|c| c == name)
+            || d.group_columns.iter().any(|c| c == name)
+            || split.column.as_deref() == Some(name)
+            || split.group.as_deref() == Some(name)
     };
     let feature_names: Vec<String> = if d.features.is_empty() {
         table.columns.iter().map(|c| c.name.clone()).filter(|n| !excluded(n)).collect()
@@ -122,6 +141,8 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
         ids: d.ids.clone(),
         groups: d.group_columns.clone(),
         dropped: table.columns.iter().map(|c| c.name.clone()).filter(|n| d.drop.contains(n)).collect(),
+        split_column: split.column.clone(),
+        split_group: split.group.clone(),
     };
     let target = encode_target(m, table, file)?;
     Ok((roles, target))

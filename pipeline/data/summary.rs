@@ -3,6 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::leakage::{duplicate_rows, SplitChecks};
 use super::roles::{Roles, Target};
 use super::table::{Column, ColumnValues, Table};
 use crate::metrics::bootstrap::quantile_sorted;
@@ -53,9 +54,13 @@ pub struct TargetSummary {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DataSummary {
     pub rows: usize,
+    /// Rows identical (features and target) to an earlier row.
+    pub duplicate_rows: usize,
     pub columns: Vec<ColumnSummary>,
     pub target: TargetSummary,
     pub warnings: Vec<String>,
+    /// What the split lets through (filled in once the rows are split).
+    pub split_checks: SplitChecks,
 }
 
 /// A level seen in fewer rows than this is "rare" (common practice: too few rows to learn an
@@ -184,5 +189,9 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
         }
         Target::Values(v) => TargetSummary { name: roles.target.clone(), classes: Vec::new(), distribution: numeric_stats(v.clone()) },
     };
-    DataSummary { rows: table.rows, columns, target: target_summary, warnings }
+    let duplicates = duplicate_rows(table, roles);
+    if duplicates > 0 {
+        warnings.push(format!("{duplicates} rows repeat an earlier row exactly (features and target)"));
+    }
+    DataSummary { rows: table.rows, duplicate_rows: duplicates, columns, target: target_summary, warnings, split_checks: SplitChecks::default() }
 }

@@ -39,6 +39,15 @@ pub struct ExperimentInfo {
     /// employment). Defaults to true: the card then carries the cautions such use requires.
     #[serde(default = "yes")]
     pub affects_people: bool,
+    /// The period the data covers ("loans signed 2019-01 to 2023-06"), for the card.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub data_period: String,
+    /// Who the rows describe and how they were chosen, for the card.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub population: String,
+    /// Who trained the model (person or team), for the card's sign-off block.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub trained_by: String,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -99,12 +108,57 @@ pub struct SplitSpec {
     pub stratify: bool,
     #[serde(default)]
     pub seed: u64,
+    /// A column that assigns each row to a split (by time or by a pre-agreed assignment); the
+    /// fractions and seed are then unused. Never a feature.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub column: Option<String>,
+    /// The values of `column` that name each split.
+    #[serde(default, skip_serializing_if = "SplitLabels::is_default")]
+    pub labels: SplitLabels,
+    /// A column whose rows stay together: every row of one value lands in one split (seeded, and
+    /// stratified by the group's most common class where `stratify` holds). Never a feature.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub group: Option<String>,
 }
 
 impl Default for SplitSpec {
     fn default() -> Self {
-        SplitSpec { validation: 0.2, test: 0.2, stratify: true, seed: 0 }
+        SplitSpec { validation: 0.2, test: 0.2, stratify: true, seed: 0, column: None, labels: SplitLabels::default(), group: None }
     }
+}
+
+/// Which values of a split column mean training, validation and test.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SplitLabels {
+    #[serde(default = "train_labels")]
+    pub train: Vec<String>,
+    #[serde(default = "validation_labels")]
+    pub validation: Vec<String>,
+    #[serde(default = "test_labels")]
+    pub test: Vec<String>,
+}
+
+impl Default for SplitLabels {
+    fn default() -> Self {
+        SplitLabels { train: train_labels(), validation: validation_labels(), test: test_labels() }
+    }
+}
+
+impl SplitLabels {
+    pub fn is_default(&self) -> bool {
+        *self == SplitLabels::default()
+    }
+}
+
+fn train_labels() -> Vec<String> {
+    vec!["train".into()]
+}
+fn validation_labels() -> Vec<String> {
+    vec!["validation".into()]
+}
+fn test_labels() -> Vec<String> {
+    vec!["test".into()]
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -307,11 +361,40 @@ pub struct SelectionSpec {
     /// Bootstrap resamples for the test-metric confidence intervals.
     #[serde(default = "default_bootstrap")]
     pub bootstrap: usize,
+    /// How the configuration is picked from the validation summaries.
+    #[serde(default, skip_serializing_if = "SelectionRule::is_best")]
+    pub rule: SelectionRule,
 }
 
 impl Default for SelectionSpec {
     fn default() -> Self {
-        SelectionSpec { metric: String::new(), baseline: true, bootstrap: default_bootstrap() }
+        SelectionSpec { metric: String::new(), baseline: true, bootstrap: default_bootstrap(), rule: SelectionRule::Best }
+    }
+}
+
+/// The rule that picks a configuration.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SelectionRule {
+    /// The best mean validation metric across seeds.
+    #[default]
+    Best,
+    /// The configuration with the fewest parameters whose mean is within one standard error of
+    /// the best mean (the best's seed standard deviation / sqrt(seeds)); common practice, after
+    /// Breiman et al. 1984, "Classification and Regression Trees", section 3.4.3.
+    OneStandardError,
+}
+
+impl SelectionRule {
+    pub fn is_best(&self) -> bool {
+        *self == SelectionRule::Best
+    }
+
+    pub fn as_str(self) -> &'static str {
+        match self {
+            SelectionRule::Best => "best",
+            SelectionRule::OneStandardError => "one_standard_error",
+        }
     }
 }
 

@@ -160,6 +160,27 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
         format!("validation + test = {:?} must be below 1 so rows remain for training", s.validation + s.test)
     });
     c.check(s.seed <= MAX_SEED, "split.seed", || out_of_toml_range(s.seed));
+    c.hint(s.column.is_none() || s.group.is_none(), "split.group", || "cannot be combined with split.column".into(),
+        "a given split column already decides where every row goes; keep groups together in that column");
+    for (key, name) in [("split.column", &s.column), ("split.group", &s.group)] {
+        if let Some(name) = name {
+            c.check(!name.trim().is_empty(), key, || "must name a column".into());
+            c.check(*name != m.data.target, key, || format!("names the target column `{name}`"));
+            c.check(!m.data.features.contains(name), key, || format!("`{name}` is also listed in data.features; a split column is never a feature"));
+        }
+    }
+    let labels = [("split.labels.train", &s.labels.train), ("split.labels.validation", &s.labels.validation), ("split.labels.test", &s.labels.test)];
+    for (key, list) in labels {
+        c.check(!list.is_empty(), key, || "must list at least one value".into());
+        for (other_key, other) in labels {
+            if other_key > key {
+                if let Some(shared) = list.iter().find(|l| other.contains(l)) {
+                    c.check(false, other_key, || format!("`{shared}` is also listed in {key}"));
+                }
+            }
+        }
+    }
+    c.check(s.labels.is_default() || s.column.is_some(), "split.labels", || "only applies with split.column".into());
 
     c.0.extend(validate_run_settings(m.data.task, &m.model, &m.training));
 

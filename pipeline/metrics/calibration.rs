@@ -1,5 +1,7 @@
 //! Calibration: expected calibration error on top-label confidence, and reliability-diagram data
-//! on the positive-class probability for binary models.
+//! on the positive-class probability for binary models. Both use one binning: `bins` equal-width
+//! bins closed on the right, ((m-1)/M, m/M], with 0 in the first (Guo et al. 2017, section 2; the
+//! "uniform" strategy of scikit-learn's `calibration_curve`).
 
 /// One bin of a reliability diagram.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -11,14 +13,18 @@ pub struct ReliabilityBin {
     pub observed: f64,
 }
 
-/// Index of the equal-width bin holding `x` in [0, 1]; 1.0 falls in the last bin.
-fn bin_of(x: f64, bins: usize) -> usize {
-    ((x * bins as f64) as usize).min(bins - 1)
+/// Index of the right-closed equal-width bin holding `x` in [0, 1]: the number of interior edges
+/// `j / bins` (computed as `j * (1 / bins)`, as numpy's `linspace` does) strictly below `x`. So
+/// an edge value belongs to the bin below it, 0 to the first bin and 1 to the last.
+pub fn bin_of(x: f64, bins: usize) -> usize {
+    let step = 1.0 / bins as f64;
+    (1..bins).filter(|&j| (j as f64 * step) < x).count()
 }
 
-/// ECE with `bins` equal-width bins on [0, 1] over top-label confidence (the largest class
+/// ECE with `bins` right-closed equal-width bins over top-label confidence (the largest class
 /// probability), each bin's |accuracy - mean confidence| weighted by its share of rows
-/// (Guo et al. 2017, "On Calibration of Modern Neural Networks", eq. 3).
+/// (Guo et al. 2017, "On Calibration of Modern Neural Networks", eq. 3 with bins
+/// I_m = ((m-1)/M, m/M]).
 pub fn expected_calibration_error(labels: &[usize], probs: &[f64], k: usize, bins: usize) -> Option<f64> {
     if labels.is_empty() || bins == 0 {
         return None;
@@ -42,17 +48,15 @@ pub fn expected_calibration_error(labels: &[usize], probs: &[f64], k: usize, bin
     )
 }
 
-/// Observed positive share against mean predicted probability in `bins` equal-width bins on the
-/// positive-class probability, binned as the "uniform" strategy of scikit-learn's
-/// `calibration_curve` does: bins closed on the right, a value's bin being the number of interior
-/// edges `j / bins` (computed as `j * (1 / bins)`) strictly below it. Empty bins are left out.
+/// Observed positive share against mean predicted probability in `bins` right-closed equal-width
+/// bins ([`bin_of`]) on the positive-class probability, as the "uniform" strategy of
+/// scikit-learn's `calibration_curve` bins. Empty bins are left out.
 pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -> Vec<ReliabilityBin> {
     let mut count = vec![0usize; bins];
     let mut predicted = vec![0.0; bins];
     let mut observed = vec![0.0; bins];
-    let step = 1.0 / bins as f64;
     for (&y, &p) in is_positive.iter().zip(p_positive) {
-        let b = (1..bins).filter(|&j| (j as f64 * step) < p).count();
+        let b = bin_of(p, bins);
         count[b] += 1;
         predicted[b] += p;
         observed[b] += y as u8 as f64;
@@ -67,4 +71,18 @@ pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -
             observed: observed[b] / count[b] as f64,
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn edges_belong_to_the_bin_below() {
+        assert_eq!(bin_of(0.0, 10), 0);
+        assert_eq!(bin_of(0.1, 10), 0);
+        assert_eq!(bin_of(0.100001, 10), 1);
+        assert_eq!(bin_of(0.9, 10), 8);
+        assert_eq!(bin_of(1.0, 10), 9);
+    }
 }

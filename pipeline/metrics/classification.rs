@@ -182,6 +182,34 @@ pub fn macro_ovr_auc(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
     (!aucs.is_empty()).then(|| aucs.iter().sum::<f64>() / aucs.len() as f64)
 }
 
+/// The threshold t maximising Youden's J = TPR - FPR when predicting positive for p >= t
+/// (Youden 1950, "Index for rating diagnostic tests"), over the distinct scores; the highest
+/// such t on ties. Returns (t, TPR, FPR); `None` without both classes.
+pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f64, f64)> {
+    let n_pos = is_positive.iter().filter(|&&p| p).count();
+    let n_neg = is_positive.len() - n_pos;
+    if n_pos == 0 || n_neg == 0 {
+        return None;
+    }
+    let mut order: Vec<usize> = (0..scores.len()).collect();
+    order.sort_by(|&a, &b| scores[b].total_cmp(&scores[a]));
+    let (mut tp, mut fp) = (0usize, 0usize);
+    let mut best: Option<(f64, f64, f64, f64)> = None;
+    let mut i = 0;
+    while i < order.len() {
+        let t = scores[order[i]];
+        while i < order.len() && scores[order[i]] == t {
+            if is_positive[order[i]] { tp += 1 } else { fp += 1 }
+            i += 1;
+        }
+        let (tpr, fpr) = (tp as f64 / n_pos as f64, fp as f64 / n_neg as f64);
+        if best.is_none_or(|(j, ..)| tpr - fpr > j) {
+            best = Some((tpr - fpr, t, tpr, fpr));
+        }
+    }
+    best.map(|(_, t, tpr, fpr)| (t, tpr, fpr))
+}
+
 /// Every scalar classification metric, by the names in `registry`.
 pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
     let predicted = predicted_classes(probs, k);
@@ -195,7 +223,7 @@ pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
         let is_pos: Vec<bool> = labels.iter().map(|&y| y == 1).collect();
         let scores: Vec<f64> = probs.chunks_exact(2).map(|r| r[1]).collect();
         m.insert("roc_auc".into(), roc_auc(&is_pos, &scores));
-        m.insert("pr_auc".into(), average_precision(&is_pos, &scores));
+        m.insert("average_precision".into(), average_precision(&is_pos, &scores));
     } else {
         m.insert("roc_auc".into(), macro_ovr_auc(labels, probs, k));
     }
@@ -210,6 +238,7 @@ mod tests {
     fn single_class_auc_is_undefined_not_a_panic() {
         assert_eq!(roc_auc(&[true, true], &[0.1, 0.9]), None);
         assert_eq!(average_precision(&[false, false], &[0.1, 0.9]), None);
+        assert_eq!(youden_threshold(&[false, true], &[0.3, 0.3]), Some((0.3, 1.0, 1.0)));
     }
 
     #[test]

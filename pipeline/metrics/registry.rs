@@ -10,7 +10,7 @@ pub enum Direction {
 
 const BINARY: &[(&str, Direction)] = &[
     ("roc_auc", Direction::Maximise),
-    ("pr_auc", Direction::Maximise),
+    ("average_precision", Direction::Maximise),
     ("accuracy", Direction::Maximise),
     ("balanced_accuracy", Direction::Maximise),
     ("log_loss", Direction::Minimise),

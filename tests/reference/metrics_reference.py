@@ -15,10 +15,13 @@ from sklearn.calibration import calibration_curve
 
 
 def ece_top_label(y, proba, bins=10):
-    # Guo et al. 2017, eq. 3: equal-width bins on top-label confidence, weighted by count.
+    # Guo et al. 2017, eq. 3: equal-width bins on top-label confidence, weighted by count, with
+    # bins I_m = ((m-1)/M, m/M] closed on the right (an edge value falls in the bin below it), the
+    # binning calibration_curve's "uniform" strategy uses.
     conf = proba.max(axis=1)
     pred = proba.argmax(axis=1)
-    idx = np.minimum((conf * bins).astype(int), bins - 1)
+    edges = np.linspace(0.0, 1.0, bins + 1)
+    idx = np.searchsorted(edges[1:-1], conf, side="left")
     total = 0.0
     for b in range(bins):
         m = idx == b
@@ -41,7 +44,7 @@ def binary_case(name, y, p):
             "balanced_accuracy": metrics.balanced_accuracy_score(y, pred),
             "log_loss": metrics.log_loss(y, proba, labels=[0, 1]),
             "roc_auc": metrics.roc_auc_score(y, p),
-            "pr_auc": metrics.average_precision_score(y, p),
+            "average_precision": metrics.average_precision_score(y, p),
             "brier": metrics.brier_score_loss(y, p),
             "ece": ece_top_label(y, proba),
             "precision": prec.tolist(),

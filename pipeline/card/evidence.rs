@@ -1,0 +1,115 @@
+//! Gathers the figures the limitation rules read ([`Evidence`]) from a results folder's stored
+//! files: the data summary, the selection and the selected run.
+
+use serde_json::Value;
+
+use super::limitations::Evidence;
+use crate::data::summary::DataSummary;
+use crate::experiment::ExperimentRecord;
+use crate::manifest::{Manifest, Task};
+use crate::metrics::registry::{direction, Direction};
+use crate::plan::{config_label, PlannedConfig};
+use crate::selection::{simpler_within_one_se, Selection};
+
+/// Ordering position of a grid value: numbers by value, lists (widths) by their sum, booleans
+/// false < true; `None` for values with no natural order.
+fn order_key(v: &Value) -> Option<f64> {
+    match v {
+        Value::Number(n) => n.as_f64(),
+        Value::Bool(b) => Some(*b as u8 as f64),
+        Value::Array(items) => Some(items.iter().filter_map(Value::as_f64).sum()),
+        _ => None,
+    }
+}
+
+/// (key, selected value, its position, distinct ordered values) of every ordered grid key.
+fn grid_positions(manifest: &Manifest, selected: &PlannedConfig) -> Vec<(String, String, usize, usize)> {
+    manifest
+        .sweep
+        .grid
+        .iter()
+        .filter_map(|(k, values)| {
+            let chosen = selected.overrides.get(k)?;
+            let mut keys: Vec<f64> = values.iter().map(order_key).collect::<Option<Vec<_>>>()?;
+            let mine = order_key(chosen)?;
+            keys.sort_by(f64::total_cmp);
+            keys.dedup();
+            let position = keys.iter().position(|x| *x == mine)?;
+            Some((k.clone(), chosen.to_string(), position, keys.len()))
+        })
+        .collect()
+}
+
+/// The scale a metric's seed spread and train-validation gap are judged against.
+pub fn metric_scale(metric: &str, summary: &DataSummary) -> (f64, String) {
+    match metric {
+        "log_loss" => {
+            let total: usize = summary.target.classes.iter().map(|c| c.count).sum();
+            let prior: f64 = summary
+                .target
+                .classes
+                .iter()
+                .map(|c| c.count as f64 / total.max(1) as f64)
+                .filter(|&p| p > 0.0)
+                .map(|p| -p * p.ln())
+                .sum();
+            (prior, "the log loss of predicting the class shares".into())
+        }
+        "rmse" | "mae" => (summary.target.distribution.as_ref().map(|d| d.std).unwrap_or(1.0), "the target's standard deviation".into()),
+        _ => (1.0, "the metric's range [0, 1]".into()),
+    }
+}
+
+pub fn gather(manifest: &Manifest, record: &ExperimentRecord, summary: &DataSummary, selection: &Selection, selected: &PlannedConfig, parameter_count: usize) -> Evidence {
+    let m = &selection.metric;
+    let task = manifest.data.task;
+    let dir = direction(task, m).unwrap_or(Direction::Maximise);
+    let higher = dir == Direction::Maximise;
+    let selected_summary = selection.configs.iter().find(|c| c.config_id == selection.selected_config);
+    let baseline_summary = selection.configs.iter().find(|c| c.baseline);
+    let t = &selection.test;
+    let chance_metric = if task == Task::Regression { ("r2", 0.0) } else { ("roc_auc", 0.5) };
+    let chance = t.metrics.get(chance_metric.0).copied().flatten().map(|v| {
+        let (lower, upper) = t.intervals.get(chance_metric.0).map(|i| (i.lower, i.upper)).unwrap_or((v, v));
+        (chance_metric.0.to_string(), v, lower, upper, chance_metric.1)
+    });
+    let test_smallest_class = t
+        .confusion
+        .iter()
+        .enumerate()
+        .map(|(c, row)| (record.class_labels.get(c).cloned().unwrap_or_default(), row.iter().sum::<usize>()))
+        .min_by_key(|(_, n)| *n);
+    let simpler_within_noise = match (selection.rule.as_str(), selected_summary) {
+        ("best", Some(chosen)) => simpler_within_one_se(&selection.configs, chosen, m, dir)
+            .into_iter()
+            .filter_map(|c| Some((config_label(&c.overrides, false), c.parameter_count, c.validation.get(m)?.mean)))
+            .collect(),
+        _ => Vec::new(),
+    };
+    let checks = &summary.split_checks;
+    Evidence {
+        classification: task != Task::Regression,
+        train_rows: record.split_rows[0],
+        parameter_count,
+        minority: summary.target.classes.iter().min_by_key(|c| c.count).map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64)),
+        metric: m.clone(),
+        higher_is_better: higher,
+        scale: metric_scale(m, summary),
+        selected: selected_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
+        baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
+        gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| if higher { g.mean } else { -g.mean }),
+        test_ece: t.metrics.get("ece").copied().flatten(),
+        chance,
+        test_rows: t.rows,
+        test_smallest_class,
+        degenerate_intervals: t.intervals.iter().filter(|(_, i)| i.upper == i.lower).map(|(k, _)| k.clone()).collect(),
+        missing: summary.columns.iter().filter(|c| c.role == "feature").map(|c| (c.name.clone(), c.missing_share)).collect(),
+        rare_levels: summary.columns.iter().filter(|c| c.role == "feature" && c.categorical).map(|c| (c.name.clone(), c.rare_levels)).collect(),
+        grid: grid_positions(manifest, selected),
+        simpler_within_noise,
+        duplicated_into_evaluation: (checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training),
+        constant_on_training: checks.constant_on_training.clone(),
+        crossing_keys: checks.repeated_keys.iter().map(|k| (k.column.clone(), k.crossing, k.values, k.evaluation_rows_sharing)).collect(),
+        failed_runs: selection.configs.iter().map(|c| c.runs_failed).sum(),
+    }
+}

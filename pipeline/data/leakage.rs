@@ -1,0 +1,225 @@
+//! What a split can let through from training to evaluation: exact duplicate rows (counted over
+//! the columns the model sees: features and target), duplicates that sit in training and in an
+//! evaluation split, features constant on the training rows, and repeated keys (ids and the split
+//! group) whose values occur in more than one split.
+
+use serde::{Deserialize, Serialize};
+use std::collections::{HashMap, HashSet};
+
+use super::roles::Roles;
+use super::split::Splits;
+use super::table::{ColumnValues, Table};
+
+/// A repeated key and how many of its values occur in more than one split.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct KeyCrossing {
+    pub column: String,
+    /// Distinct non-null values.
+    pub values: usize,
+    /// Values found in two or three splits.
+    pub crossing: usize,
+    /// Rows outside training whose value also occurs in training.
+    pub evaluation_rows_sharing: usize,
+}
+
+/// The checks that need the split.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct SplitChecks {
+    /// Test rows identical (features and target) to some training row.
+    pub test_rows_duplicating_training: usize,
+    /// Validation rows identical to some training row.
+    pub validation_rows_duplicating_training: usize,
+    /// Features with at most one distinct value among the training rows (nulls aside).
+    pub constant_on_training: Vec<String>,
+    /// Repeated keys (ids and the split group whose values occur on more than one row) and their
+    /// crossings.
+    pub repeated_keys: Vec<KeyCrossing>,
+}
+
+/// One row's values over `columns` as bytes: equal bytes if and only if equal values (nulls
+/// equal each other, `-0.0` equals `0.0`, integers and floats compared as stored).
+fn row_key(table: &Table, columns: &[usize], row: usize, out: &mut Vec<u8>) {
+    out.clear();
+    for &c in columns {
+        let col = &table.columns[c];
+        if !col.is_valid(row) {
+            out.push(0);
+            continue;
+        }
+        out.push(1);
+        match &col.values {
+            ColumnValues::Float(v) => out.extend_from_slice(&(v[row] + 0.0).to_bits().to_le_bytes()),
+            ColumnValues::Float32(v) => out.extend_from_slice(&(f64::from(v[row]) + 0.0).to_bits().to_le_bytes()),
+            ColumnValues::Int(v) => out.extend_from_slice(&v[row].to_le_bytes()),
+            ColumnValues::Bool(v) => out.push(v[row] as u8),
+            ColumnValues::Text { codes, .. } => out.extend_from_slice(&codes[row].to_le_bytes()),
+        }
+    }
+}
+
+/// Column indices of the features and the target, in table order.
+fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
+    (0..table.columns.len())
+        .filter(|&c| {
+            let name = &table.columns[c].name;
+            *name == roles.target || roles.features.iter().any(|f| f.name == *name)
+        })
+        .collect()
+}
+
+/// Rows identical (features and target) to an earlier row, as `pandas.DataFrame.duplicated()`
+/// counts them with its default `keep="first"`.
+pub fn duplicate_rows(table: &Table, roles: &Roles) -> usize {
+    let columns = seen_columns(table, roles);
+    let mut seen: HashSet<Vec<u8>> = HashSet::with_capacity(table.rows);
+    let mut key = Vec::new();
+    let mut duplicates = 0;
+    for row in 0..table.rows {
+        row_key(table, &columns, row, &mut key);
+        if !seen.insert(key.clone()) {
+            duplicates += 1;
+        }
+    }
+    duplicates
+}
+
+/// The split-dependent checks.
+pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitChecks {
+    let columns = seen_columns(table, roles);
+    let mut key = Vec::new();
+    let mut training: HashSet<Vec<u8>> = HashSet::with_capacity(splits.train.len());
+    for &r in &splits.train {
+        row_key(table, &columns, r, &mut key);
+        training.insert(key.clone());
+    }
+    let mut count_in = |rows: &[usize]| {
+        rows.iter()
+            .filter(|&&r| {
+                row_key(table, &columns, r, &mut key);
+                training.contains(&key)
+            })
+            .count()
+    };
+    let test_rows_duplicating_training = count_in(&splits.test);
+    let validation_rows_duplicating_training = count_in(&splits.validation);
+
+    let constant_on_training = roles
+        .features
+        .iter()
+        .filter(|f| {
+            let Some(col) = table.column(&f.name) else { return false };
+            let mut first: Option<Vec<u8>> = None;
+            let index = [table.columns.iter().position(|c| c.name == f.name).unwrap_or(0)];
+            !splits.train.iter().filter(|&&r| col.is_valid(r)).any(|&r| {
+                row_key(table, &index, r, &mut key);
+                match &first {
+                    None => {
+                        first = Some(key.clone());
+                        false
+                    }
+                    Some(k) => *k != key,
+                }
+            })
+        })
+        .map(|f| f.name.clone())
+        .collect();
+
+    // Ids and the split group name units (a customer, a bed); group columns name groups of
+    // people (a region), which are meant to appear in every split.
+    let mut keys: Vec<&String> = roles.ids.iter().chain(roles.split_group.iter()).collect();
+    keys.dedup();
+    let part_of: HashMap<usize, u8> = [(&splits.train, 1u8), (&splits.validation, 2), (&splits.test, 4)]
+        .into_iter()
+        .flat_map(|(rows, bit)| rows.iter().map(move |&r| (r, bit)))
+        .collect();
+    let mut repeated_keys = Vec::new();
+    for name in keys {
+        let Some(col) = table.column(name) else { continue };
+        let mut parts: HashMap<String, (u8, usize)> = HashMap::new();
+        for row in 0..table.rows {
+            if let Some(label) = col.label(row) {
+                let entry = parts.entry(label).or_insert((0, 0));
+                entry.0 |= part_of.get(&row).copied().unwrap_or(0);
+                entry.1 += 1;
+            }
+        }
+        if parts.values().all(|&(_, rows)| rows == 1) {
+            continue;
+        }
+        let evaluation_rows_sharing = splits
+            .validation
+            .iter()
+            .chain(&splits.test)
+            .filter(|&&r| col.label(r).and_then(|l| parts.get(&l)).is_some_and(|&(bits, _)| bits & 1 == 1))
+            .count();
+        repeated_keys.push(KeyCrossing {
+            column: name.clone(),
+            values: parts.len(),
+            crossing: parts.values().filter(|&&(bits, _)| bits.count_ones() > 1).count(),
+            evaluation_rows_sharing,
+        });
+    }
+    SplitChecks {
+        test_rows_duplicating_training,
+        validation_rows_duplicating_training,
+        constant_on_training,
+        repeated_keys,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::roles::Feature;
+    use crate::data::table::Column;
+
+    fn column(name: &str, values: ColumnValues) -> Column {
+        Column { name: name.into(), source_type: "test".into(), valid: None, values }
+    }
+
+    fn roles(features: &[&str], ids: &[&str]) -> Roles {
+        Roles {
+            target: "y".into(),
+            features: features.iter().map(|f| Feature { name: f.to_string(), categorical: false }).collect(),
+            ids: ids.iter().map(|s| s.to_string()).collect(),
+            groups: Vec::new(),
+            dropped: Vec::new(),
+            split_column: None,
+            split_group: None,
+        }
+    }
+
+    #[test]
+    fn duplicates_follow_pandas_keep_first_and_ignore_ids() {
+        let table = Table {
+            rows: 5,
+            columns: vec![
+                column("id", ColumnValues::Int(vec![1, 2, 3, 4, 5])),
+                column("x", ColumnValues::Float(vec![1.0, 1.0, -0.0, 0.0, 2.0])),
+                column("y", ColumnValues::Int(vec![0, 0, 1, 1, 0])),
+            ],
+        };
+        // Rows 1 and 3 repeat rows 0 and 2 (0.0 == -0.0, as in pandas); the id is not compared.
+        assert_eq!(duplicate_rows(&table, &roles(&["x"], &["id"])), 2);
+        let splits = Splits { train: vec![0, 2], validation: vec![4], test: vec![1, 3] };
+        let checks = split_checks(&table, &roles(&["x"], &["id"]), &splits);
+        assert_eq!((checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training), (2, 0));
+        assert!(checks.constant_on_training.is_empty() && checks.repeated_keys.is_empty());
+    }
+
+    #[test]
+    fn constant_training_columns_and_crossing_keys_are_found() {
+        let table = Table {
+            rows: 6,
+            columns: vec![
+                column("bed", ColumnValues::Int(vec![1, 1, 2, 2, 3, 3])),
+                column("x", ColumnValues::Float(vec![5.0, 5.0, 5.0, 7.0, 5.0, 9.0])),
+                column("y", ColumnValues::Float(vec![0.1, 0.2, 0.3, 0.4, 0.5, 0.6])),
+            ],
+        };
+        let splits = Splits { train: vec![0, 1, 2], validation: vec![4, 5], test: vec![3] };
+        let checks = split_checks(&table, &roles(&["x"], &["bed"]), &splits);
+        assert_eq!(checks.constant_on_training, vec!["x".to_string()]);
+        assert_eq!(checks.repeated_keys, vec![KeyCrossing { column: "bed".into(), values: 3, crossing: 1, evaluation_rows_sharing: 1 }]);
+    }
+}
