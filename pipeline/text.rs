@@ -89,7 +89,6 @@ fn escape_line(s: &str, max: Option<usize>) -> String {
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),
             '&' => out.push_str("&amp;"),
-            '"' => out.push_str("&quot;"),
             '|' => out.push_str("&#124;"),
             '\\' | '`' | '*' | '_' | '[' | ']' | '(' | ')' | '#' | '!' | '~' | '{' | '}' => {
                 out.push('\\');

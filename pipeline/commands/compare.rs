@@ -74,6 +74,15 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
             let _ = writeln!(out, "  {name} CHANGED: {x} -> {y}");
         }
     }
+    if sa.record.task != sb.record.task {
+        let _ = writeln!(
+            out,
+            "\nmetrics: not compared: A is a {} task and B a {} task, so metrics of the same name (or the training objective) measure different things",
+            sa.record.task.as_str(),
+            sb.record.task.as_str()
+        );
+        return Ok(out);
+    }
     let _ = writeln!(out, "\nselected configurations, validation (mean ± sd across seeds) and test:");
     let (ca, cb) = (selected(&sa.selection), selected(&sb.selection));
     let metrics: std::collections::BTreeSet<&String> = ca.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default().into_iter().chain(cb.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default()).collect();

