@@ -204,3 +204,21 @@ fn a_given_split_column_reproduces_the_assignment_exactly() {
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
     assert!(stderr(&out).contains("column `period`: row 8 holds `test`, which names no split"), "{}", stderr(&out));
 }
+
+#[test]
+fn compare_refuses_to_weigh_metrics_of_different_tasks() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = (dir.path().join("a"), dir.path().join("b"));
+    std::fs::create_dir_all(&a).unwrap();
+    std::fs::create_dir_all(&b).unwrap();
+    let binary = trained(&a, &open_manifest(&a, "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]"))));
+    let regression = trained(&b, &open_manifest(&b, "diabetes.parquet", &format!("target = \"progression\"\ntask = \"regression\"\n{}", fast_training("[1, 2]"))));
+    let out = run_in(dir.path(), &["compare", binary.to_str().unwrap(), regression.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let report = stdout(&out);
+    assert!(report.contains("metrics: not compared: A is a binary task and B a regression task"), "{report}");
+    assert!(!report.contains("beyond seed noise") && !report.contains("within noise"), "{report}");
+    // The same task compares metrics as before.
+    let out = run_in(dir.path(), &["compare", binary.to_str().unwrap(), binary.to_str().unwrap()]);
+    assert!(stdout(&out).contains("within noise"), "{}", stdout(&out));
+}

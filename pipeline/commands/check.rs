@@ -40,9 +40,25 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     }
     let s = &exp.summary;
     let _ = writeln!(out, "\ndata         {} ({} rows, {} columns)", exp.data_path.display(), s.rows, s.columns.len());
-    let _ = writeln!(out, "split        train {} / validation {} / test {} (seed {}, {})",
-        exp.splits.train.len(), exp.splits.validation.len(), exp.splits.test.len(), m.split.seed,
-        if m.split.stratify && m.data.task != crate::manifest::Task::Regression { "stratified" } else { "random" });
+    let stratified = m.split.stratify && m.data.task != crate::manifest::Task::Regression;
+    let method = match (&m.split.column, &m.split.group) {
+        (Some(c), _) => format!("given by column {}", terminal_safe(c)),
+        (None, Some(g)) => format!("whole groups of {}, seed {}{}", terminal_safe(g), m.split.seed, if stratified { ", stratified" } else { "" }),
+        (None, None) => format!("rows, seed {}, {}", m.split.seed, if stratified { "stratified" } else { "random" }),
+    };
+    let _ = writeln!(out, "split        train {} / validation {} / test {} ({method})", exp.splits.train.len(), exp.splits.validation.len(), exp.splits.test.len());
+    let checks = &s.split_checks;
+    let _ = writeln!(
+        out,
+        "duplicates   {} rows repeat an earlier row (features and target); {} test and {} validation rows repeat a training row",
+        s.duplicate_rows, checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training
+    );
+    for k in checks.repeated_keys.iter().filter(|k| k.crossing > 0) {
+        let _ = writeln!(out, "note: {} repeats across splits: {} of {} values occur in more than one split (set [split] group to keep them together)", terminal_safe(&k.column), k.crossing, k.values);
+    }
+    if !checks.constant_on_training.is_empty() {
+        let _ = writeln!(out, "note: constant on the training rows: {}", terminal_safe(&checks.constant_on_training.join(", ")));
+    }
     let _ = writeln!(out, "\n{:<28} {:<9} {:<8} {:>8}  summary", "column", "role", "type", "missing");
     for c in &s.columns {
         let detail = match &c.numeric {
