@@ -206,7 +206,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
             time: crate::provenance::now_rfc3339(),
             experiment: m.experiment.name.clone(),
             fingerprint: exp.fingerprint.clone(),
-            results: layout.root.display().to_string(),
+            results: crate::store::folder_name(&layout.root),
             git_commit,
             git_dirty,
             runs_planned: plan.runs.len(),

@@ -261,7 +261,7 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     crate::store::ledger::append_verification(root, &crate::store::ledger::VerificationEntry {
         time: crate::provenance::now_rfc3339(),
         fingerprint: record.fingerprint.clone(),
-        results: layout.root.display().to_string(),
+        results: crate::store::folder_name(&layout.root),
         runs_checked: verdicts.len(),
         identical,
     })?;

@@ -12,6 +12,8 @@ pub struct LedgerEntry {
     pub time: String,
     pub experiment: String,
     pub fingerprint: String,
+    /// The results folder's name, beside the ledger (never an absolute path: the ledger is
+    /// committed and must read the same in every checkout).
     pub results: String,
     pub git_commit: Option<String>,
     pub git_dirty: Option<bool>,

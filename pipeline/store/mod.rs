@@ -13,6 +13,11 @@ fn temp_name(path: &Path) -> PathBuf {
     path.with_file_name(format!(".{name}.tmp-{}-{n}", std::process::id()))
 }
 
+/// The last component of a results folder's path, as the ledger records it.
+pub fn folder_name(path: &Path) -> String {
+    path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default()
+}
+
 /// Writes `bytes` to `path` atomically: a reader sees the old file, or the whole new one.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     let tmp = temp_name(path);
