@@ -70,6 +70,23 @@ pub enum Error {
     #[error("training engine: {0}")]
     Engine(String),
 
+    /// No configuration left a usable run (every run failed or diverged), so nothing can be
+    /// selected or tested.
+    #[error("{0}")]
+    NoUsableRun(String),
+
+    /// An output could not be encoded (safetensors, Parquet); nothing is written.
+    #[error("cannot encode {0}")]
+    Encode(String),
+
+    /// The machine refused something tabcard needs (worker threads).
+    #[error("{0}")]
+    Environment(String),
+
+    /// A broken invariant inside tabcard: a bug to report, never caused by input.
+    #[error("internal error (please report): {0}")]
+    Internal(String),
+
     /// A results folder whose files differ from its integrity list (`integrity.sha256`).
     #[error("{}: {message}", path.display())]
     Integrity { path: PathBuf, message: String },
@@ -107,16 +124,34 @@ impl Error {
         Error::Store { path: path.as_ref().to_path_buf(), message: message.into() }
     }
 
-    /// Exit status for scripts: 2 bad input, 3 results store, 4 engine, 6 a results folder that
-    /// differs from its integrity list (as `verify` exits when bits differ).
-    pub fn exit_code(&self) -> i32 {
+    /// The process exit status for this error ([`exit`] lists them all).
+    pub fn exit_code(&self) -> u8 {
         match self {
-            Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) | Error::Kernel(_) => 2,
-            Error::Store { .. } | Error::Io { .. } => 3,
-            Error::Engine(_) => 4,
-            Error::Integrity { .. } => 6,
+            Error::Manifest(_) | Error::Data { .. } | Error::Usage(_) | Error::Kernel(_) => exit::BAD_INPUT,
+            Error::Store { .. } | Error::Io { .. } | Error::Encode(_) => exit::STORE,
+            Error::Engine(_) | Error::Internal(_) => exit::INTERNAL,
+            Error::NoUsableRun(_) => exit::RUNS_FAILED,
+            Error::Integrity { .. } => exit::NOT_VERIFIED,
+            Error::Environment(_) => exit::ENVIRONMENT,
         }
     }
+}
+
+/// Every exit status tabcard uses, in one place (README, "Exit status", lists the same).
+pub mod exit {
+    pub const OK: u8 = 0;
+    /// A bad manifest, data file, command line or forced kernel level.
+    pub const BAD_INPUT: u8 = 2;
+    /// Reading or writing a results store or an output file failed.
+    pub const STORE: u8 = 3;
+    /// The engine or an invariant failed: a bug, never caused by input.
+    pub const INTERNAL: u8 = 4;
+    /// Some runs failed or diverged (the rest are stored), or none left a usable run.
+    pub const RUNS_FAILED: u8 = 5;
+    /// `verify` found differences, or a results folder differs from its integrity list.
+    pub const NOT_VERIFIED: u8 = 6;
+    /// The machine refused what tabcard needs (worker threads).
+    pub const ENVIRONMENT: u8 = 7;
 }
 
 impl From<ManifestError> for Error {

@@ -21,12 +21,14 @@ pub mod numerics;
 pub mod plan;
 pub mod prepared;
 pub mod provenance;
+pub mod regularizers;
 pub mod selection;
 pub mod shard;
 pub mod slurm;
 pub mod rng;
 pub mod store;
 pub mod sweep;
+pub mod task;
 pub mod text;
 pub mod train;
 

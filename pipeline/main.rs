@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use tabcard::commands;
+use tabcard::error::exit;
 use tabcard::sweep::Event;
 
 #[derive(Parser)]
@@ -151,45 +152,45 @@ fn main() -> ExitCode {
     tabcard::numerics::prepare_process();
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { manifest } => commands::check::run(&manifest, default_jobs()).map(|r| (r, 0)),
+        Command::Check { manifest } => commands::check::run(&manifest, default_jobs()).map(|r| (r, exit::OK)),
         Command::Train { manifest, results, jobs, shard } => {
             let jobs = jobs.unwrap_or_else(default_jobs);
             let (bar, on_event) = progress_display();
             let options = commands::train::TrainOptions { results_root: results, jobs, shard };
             let outcome = commands::train::run(&manifest, &options, &on_event);
             bar.finish_and_clear();
-            outcome.map(|o| (o.report, if o.failed_runs > 0 { 5 } else { 0 }))
+            outcome.map(|o| (o.report, if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK }))
         }
         Command::Verify { target, all, results, jobs, data } => {
             let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
-            commands::verify::run(&target, &options).map(|o| (o.report, if o.identical { 0 } else { 6 }))
+            commands::verify::run(&target, &options).map(|o| (o.report, if o.identical { exit::OK } else { exit::NOT_VERIFIED }))
         }
         Command::Predict { model, input, out, keep_extra, force } => {
-            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force }).map(|r| (r, 0))
+            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force }).map(|r| (r, exit::OK))
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
             let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };
             let options = commands::slurm::SlurmOptions { results_root: results, resources, runs_per_task, executable, submit };
-            commands::slurm::run(&manifest, &options).map(|r| (r, 0))
+            commands::slurm::run(&manifest, &options).map(|r| (r, exit::OK))
         }
-        Command::Compare { a, b } => commands::compare::run(&a, &b).map(|r| (r, 0)),
-        Command::History { results } => commands::history::run(&results).map(|r| (r, 0)),
-        Command::Card { results_folder, templates } => commands::card::run(&results_folder, templates.as_deref()).map(|r| (r, 0)),
-        Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, 0)),
+        Command::Compare { a, b } => commands::compare::run(&a, &b).map(|r| (r, exit::OK)),
+        Command::History { results } => commands::history::run(&results).map(|r| (r, exit::OK)),
+        Command::Card { results_folder, templates } => commands::card::run(&results_folder, templates.as_deref()).map(|r| (r, exit::OK)),
+        Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, exit::OK)),
     };
     match result {
         Ok((report, code)) => {
             print!("{report}");
             match code {
-                5 => eprintln!("error: some runs failed or diverged (see above)"),
-                6 => eprintln!("error: verification found differences (see above)"),
+                exit::RUNS_FAILED => eprintln!("error: some runs failed or diverged (see above)"),
+                exit::NOT_VERIFIED => eprintln!("error: verification found differences (see above)"),
                 _ => {}
             }
             ExitCode::from(code)
         }
         Err(e) => {
             eprintln!("error: {}", tabcard::text::terminal_safe(&e.to_string()));
-            ExitCode::from(e.exit_code() as u8)
+            ExitCode::from(e.exit_code())
         }
     }
 }

@@ -17,8 +17,10 @@ pub struct RunConfig {
 }
 
 impl RunConfig {
+    /// Compact JSON of the configuration. Plain structs of numbers, strings and lists always
+    /// serialise; were that ever to fail, the panic names the invariant instead of hashing "".
     pub fn canonical_json(&self) -> String {
-        serde_json::to_string(self).unwrap_or_default()
+        serde_json::to_string(self).expect("a RunConfig of plain fields serialises to JSON")
     }
 }
 
@@ -89,11 +91,11 @@ fn planned(config: RunConfig, baseline: bool, overrides: BTreeMap<String, Value>
     PlannedConfig { id, baseline, overrides, config }
 }
 
-/// Expands a validated manifest into its plan. The manifest loader has already checked the grid,
-/// so expansion errors cannot occur here; a point that fails to apply is skipped defensively.
-pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> Plan {
-    let mut configs: Vec<PlannedConfig> = expand(manifest)
-        .unwrap_or_default()
+/// Expands a validated manifest into its plan. The manifest loader has already checked the grid;
+/// a grid that fails to expand here is an internal error, never an empty plan.
+pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> crate::error::Result<Plan> {
+    let points = expand(manifest).map_err(|p| crate::error::Error::Internal(format!("the validated grid does not expand: {}", p.message)))?;
+    let mut configs: Vec<PlannedConfig> = points
         .into_iter()
         .map(|p| planned(RunConfig { model: p.model, training: p.training }, false, p.overrides))
         .collect();
@@ -107,5 +109,5 @@ pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> Plan {
             runs.push(RunSpec { id: sha256_hex(material.as_bytes())[..16].to_string(), config_id: c.id.clone(), seed });
         }
     }
-    Plan { configs, runs }
+    Ok(Plan { configs, runs })
 }

@@ -26,7 +26,7 @@ impl Prepared {
     /// With the plan's run ids derived from a recorded experiment fingerprint (verification under
     /// another tool version keeps the stored run ids).
     pub fn with_fingerprint(exp: Experiment, fingerprint: &str) -> Result<Self> {
-        let plan = plan::build(&exp.manifest, fingerprint);
+        let plan = plan::build(&exp.manifest, fingerprint)?;
         let preprocessor = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path)?;
         let (train_x, _) = preprocessor.transform(&exp.table, &exp.splits.train, &exp.data_path)?;
         let (validation_x, _) = preprocessor.transform(&exp.table, &exp.splits.validation, &exp.data_path)?;

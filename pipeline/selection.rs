@@ -18,6 +18,7 @@ use crate::model::ScoringModel;
 use crate::manifest::SelectionRule;
 use crate::metrics::classification::youden_threshold;
 use crate::plan::Plan;
+use crate::prepared::Prepared;
 use crate::store::run::StoredRun;
 use crate::train::Labels;
 
@@ -205,7 +206,7 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
             }
         }
     }
-    let (best, _) = best.ok_or_else(|| Error::Engine(format!("no configuration finished a run with a defined validation {metric}")))?;
+    let (best, _) = best.ok_or_else(|| Error::NoUsableRun(format!("no configuration finished a run with a defined validation {metric}: every run failed or diverged (see the runs' metrics.json)")))?;
     let mut chosen = best;
     if rule == SelectionRule::OneStandardError {
         for c in simpler_within_one_se(&configs, best, metric, dir) {
@@ -223,7 +224,7 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
             }
         }
     }
-    let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::Engine("the selected configuration has no usable run".into()))?;
+    let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::NoUsableRun("the selected configuration has no usable run".into()))?;
     let (selected_config, best_config) = (chosen.config_id.clone(), best.config_id.clone());
     Ok(Picked { configs, selected_config, selected_run: run_id, best_config })
 }
@@ -252,7 +253,7 @@ pub fn evaluate_test(
             selected = Some((r.record.seed, outputs, model));
         }
     }
-    let (seed, outputs, model) = selected.ok_or_else(|| Error::Engine(format!("selected run {selected_run} is not stored")))?;
+    let (seed, outputs, model) = selected.ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
     let head = model.head;
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
@@ -335,5 +336,36 @@ pub fn evaluate_test(
         per_class: per_class_report,
         groups,
         chosen_threshold,
+    })
+}
+
+/// The selection of a configuration from the stored runs and the one evaluation of its selected
+/// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
+pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
+    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
+    let m = &exp.manifest;
+    let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
+    let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
+    let test_y = exp.labels(&exp.splits.test);
+    let groups: Vec<GroupColumn> = exp
+        .roles
+        .groups
+        .iter()
+        .filter_map(|name| {
+            let col = exp.table.column(name)?;
+            Some(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
+        })
+        .collect();
+    let test = evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups, (&prepared.validation_x, &prepared.validation_y))?;
+    Ok(Selection {
+        metric: m.selection.metric.clone(),
+        higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
+        configs: picked.configs,
+        selected_config: picked.selected_config,
+        selected_run: picked.selected_run,
+        baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
+        rule: m.selection.rule.as_str().into(),
+        best_config: picked.best_config,
+        test,
     })
 }

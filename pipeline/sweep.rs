@@ -47,7 +47,7 @@ pub struct SweepReport {
 }
 
 fn planned_config<'a>(inputs: &'a SweepInputs<'_>, spec: &RunSpec) -> Result<&'a crate::plan::PlannedConfig> {
-    inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Engine(format!("run {} names no configuration", spec.id)))
+    inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Internal(format!("run {} names no configuration of its plan", spec.id)))
 }
 
 /// What training one run produced, before it is stored.
@@ -127,7 +127,7 @@ pub fn in_pool<R: Send>(jobs: usize, f: impl FnOnce() -> R + Send) -> Result<R> 
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(jobs.max(1))
         .build()
-        .map_err(|e| Error::Engine(format!("cannot start {jobs} workers: {e}")))?;
+        .map_err(|e| Error::Environment(format!("cannot start {jobs} worker threads: {e}; try a smaller --jobs")))?;
     Ok(pool.install(f))
 }
 

@@ -7,7 +7,7 @@ use super::limitations::Evidence;
 use crate::data::summary::DataSummary;
 use crate::experiment::ExperimentRecord;
 use crate::manifest::{Manifest, Task};
-use crate::metrics::registry::{direction, Direction};
+use crate::metrics::registry::{self, direction, Direction, Scale};
 use crate::plan::{config_label, PlannedConfig};
 use crate::selection::{simpler_within_one_se, Selection};
 
@@ -40,10 +40,10 @@ fn grid_positions(manifest: &Manifest, selected: &PlannedConfig) -> Vec<(String,
         .collect()
 }
 
-/// The scale a metric's seed spread and train-validation gap are judged against.
-pub fn metric_scale(metric: &str, summary: &DataSummary) -> (f64, String) {
-    match metric {
-        "log_loss" => {
+/// The scale a metric's seed spread and train-validation gap are judged against, and its name.
+pub fn metric_scale(task: Task, metric: &str, summary: &DataSummary) -> (f64, String) {
+    match registry::find(task, metric).map(|m| m.scale) {
+        Some(Scale::ClassPriorLogLoss) => {
             let total: usize = summary.target.classes.iter().map(|c| c.count).sum();
             let prior: f64 = summary
                 .target
@@ -55,8 +55,8 @@ pub fn metric_scale(metric: &str, summary: &DataSummary) -> (f64, String) {
                 .sum();
             (prior, "the log loss of predicting the class shares".into())
         }
-        "rmse" | "mae" => (summary.target.distribution.as_ref().map(|d| d.std).unwrap_or(1.0), "the target's standard deviation".into()),
-        _ => (1.0, "the metric's range [0, 1]".into()),
+        Some(Scale::TargetSd) => (summary.target.distribution.as_ref().map(|d| d.std).unwrap_or(1.0), "the target's standard deviation".into()),
+        Some(Scale::Unit) | None => (1.0, "the metric's range [0, 1]".into()),
     }
 }
 
@@ -94,7 +94,7 @@ pub fn gather(manifest: &Manifest, record: &ExperimentRecord, summary: &DataSumm
         minority: summary.target.classes.iter().min_by_key(|c| c.count).map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64)),
         metric: m.clone(),
         higher_is_better: higher,
-        scale: metric_scale(m, summary),
+        scale: metric_scale(task, m, summary),
         selected: selected_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
         baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
         gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| if higher { g.mean } else { -g.mean }),

@@ -23,6 +23,7 @@ use crate::numerics::NumericsFingerprint;
 use crate::plan::{config_label, Plan, PlannedConfig};
 use crate::selection::{standard_error, Selection, Spread};
 use crate::store::run::{read_run, StoredRun};
+use crate::store::timing::TimingRecord;
 use crate::store::{read_json, write_atomic, Layout};
 use crate::text::{code_span, markdown_line as md_line, markdown_safe as md, markdown_text as md_text};
 use limitations::{derive, Limitation};
@@ -194,7 +195,7 @@ fn load(layout: &Layout) -> Result<Stored> {
         record,
         summary: read_json(&layout.data_summary())?,
         selection: read_json(&layout.selection())?,
-        timing: if layout.timing().exists() { read_json(&layout.timing())? } else { Value::Null },
+        timing: if layout.timing().exists() { Some(read_json(&layout.timing())?) } else { None },
         preprocessor: read_json(&layout.preprocessor())?,
         plan,
         runs,
@@ -278,7 +279,8 @@ struct Stored {
     summary: DataSummary,
     plan: Plan,
     selection: Selection,
-    timing: Value,
+    /// `None` for a folder whose timing record is missing (it is outside the integrity list).
+    timing: Option<TimingRecord>,
     preprocessor: Preprocessor,
     runs: Vec<StoredRun>,
 }
@@ -412,17 +414,7 @@ fn data_section(st: &Stored) -> DataSection {
 fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun) -> Capacity {
     let (model, training) = (&selected_cfg.config.model, &selected_cfg.config.training);
     let selected_summary = st.selection.configs.iter().find(|c| c.config_id == st.selection.selected_config);
-    let on_off = |b: bool| if b { "on".to_string() } else { "off".to_string() };
-    let regularizer_rows = vec![
-        Row::of(["weight decay (decoupled)".into(), sig(training.weight_decay, 4)]),
-        Row::of(["L2 penalty (coupled)".into(), sig(training.l2_penalty, 4)]),
-        Row::of(["dropout".into(), sig(model.dropout, 4)]),
-        Row::of(["input noise (sd, standardised units)".into(), sig(model.input_noise, 4)]),
-        Row::of(["batch normalisation".into(), on_off(model.batch_norm)]),
-        Row::of(["residual connections".into(), on_off(model.residual)]),
-        Row::of(["early stopping".into(), if training.early_stopping.enabled { format!("on: patience {} epochs on validation loss, min delta {}; best epoch restored", training.early_stopping.patience, sig(training.early_stopping.min_delta, 3)) } else { "off".into() }]),
-        Row::of(["gradient clipping".into(), if training.clip_norm > 0.0 { format!("global norm {}", sig(training.clip_norm, 3)) } else { "off".into() }]),
-    ];
+    let regularizer_rows = crate::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
     let grid_rows = st.manifest.sweep.grid.iter().map(|(k, v)| Row::of([md(k), v.iter().map(value_text).collect::<Vec<_>>().join(", "), selected_cfg.overrides.get(k).map(value_text).unwrap_or_default()])).collect();
     let hidden = if model.hidden.is_empty() { "no hidden layer".to_string() } else { format!("hidden widths {}", model.hidden.iter().map(|w| w.to_string()).collect::<Vec<_>>().join(", ")) };
     let momentum = if training.optimizer == crate::manifest::Optimizer::Sgd {
@@ -474,11 +466,7 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
     let m = &sel.metric;
     let task = st.manifest.data.task;
     let direction = if sel.higher_is_better { "higher is better" } else { "lower is better" };
-    let shown: Vec<&str> = match task {
-        Task::Binary => vec!["roc_auc", "average_precision", "log_loss", "brier", "ece", "accuracy"],
-        Task::Multiclass => vec!["log_loss", "accuracy", "balanced_accuracy", "roc_auc", "ece"],
-        Task::Regression => vec!["rmse", "mae", "r2"],
-    };
+    let shown: Vec<&str> = crate::metrics::registry::table(task).iter().filter(|m| m.on_card).map(|m| m.name).collect();
     let mut validation_header = vec!["configuration".to_string(), "parameters".into(), "seeds".into()];
     validation_header.extend(shown.iter().map(|s| s.to_string()));
     validation_header.push(format!("{m}: train better than validation by"));
@@ -587,11 +575,10 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
 }
 
 fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
-    let text = |v: &Value| v.as_str().map(str::to_string);
-    let timing = &st.timing;
+    let timing = st.timing.as_ref();
     let folder = layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
     Provenance {
-        trained_at: text(&timing["trained_at"]).unwrap_or_else(|| "unknown".into()),
+        trained_at: timing.map(|t| t.trained_at.clone()).unwrap_or_else(|| "unknown".into()),
         fingerprint: st.record.fingerprint.clone(),
         tool_version: st.record.tool_version.clone(),
         manifest_sha256: st.record.manifest_sha256.clone(),
@@ -606,13 +593,13 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
             Row::of(["C library".into(), md(&environment.libc)]),
             Row::of(["threads per run".into(), environment.threads_per_run.to_string()]),
         ],
-        git_commit: text(&timing["git_commit"]).unwrap_or_else(|| "not in a git repository".into()),
-        git_dirty: match timing["git_dirty"].as_bool() {
+        git_commit: timing.and_then(|t| t.git_commit.clone()).unwrap_or_else(|| "not in a git repository".into()),
+        git_dirty: match timing.and_then(|t| t.git_dirty) {
             Some(true) => "yes".into(),
             Some(false) => "no".into(),
             None => "unknown".into(),
         },
-        jobs: timing["jobs"].as_u64().map(|j| j.to_string()).unwrap_or_else(|| "unknown".into()),
+        jobs: timing.map(|t| t.jobs.to_string()).unwrap_or_else(|| "unknown".into()),
         verify_command: code_span(&format!("tabcard verify {folder}")),
         results_folder: code_span(&folder),
         train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.manifest_path)),
@@ -666,7 +653,7 @@ fn tera(templates: Option<&Path>) -> Result<tera::Tera> {
 pub fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -> Result<(String, Vec<(String, String)>)> {
     let (mut context, figs) = build(layout)?;
     context.provenance.results_digest = results_digest.to_string();
-    let ctx = tera::Context::from_serialize(&context).map_err(|e| Error::Engine(format!("card context: {e}")))?;
+    let ctx = tera::Context::from_serialize(&context).map_err(|e| Error::Internal(format!("card context: {e}")))?;
     let text = tera(templates)?.render("card.md.tera", &ctx).map_err(|e| {
         let mut msg = e.to_string();
         let mut source = std::error::Error::source(&e);

@@ -12,7 +12,7 @@ use crate::text::terminal_safe;
 /// Checks the experiment; `jobs` is the worker count the memory estimate assumes.
 pub fn run(manifest_path: &Path, jobs: usize) -> Result<String> {
     let exp = open(manifest_path)?;
-    let plan = plan::build(&exp.manifest, &exp.fingerprint);
+    let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
     let estimate = crate::feasibility::estimate(&exp, &plan, crate::feasibility::input_width_bound(&exp), jobs);
     let available = crate::feasibility::available_bytes();
     crate::feasibility::require(&estimate, available, manifest_path)?;

@@ -59,7 +59,7 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
         return Err(Error::Usage("--cpus-per-task must be at least 1".into()));
     }
     let exp = open(manifest_path)?;
-    let plan = plan::build(&exp.manifest, &exp.fingerprint);
+    let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
     let results_root = absolute(&options.results_root)?;
     let manifest = absolute(manifest_path)?;
     let executable = match &options.executable {

@@ -11,10 +11,10 @@ use crate::error::{Error, Result};
 use crate::experiment::{open, Experiment};
 use crate::format::fixed;
 use crate::plan::Plan;
-use crate::selection::{evaluate_test, select, Selection};
+use crate::selection::Selection;
 use crate::shard::Shard;
 use crate::store::ledger::{self, LedgerEntry};
-use crate::store::run::{read_run, StoredRun};
+use crate::store::timing::TimingRecord;
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
 use crate::sweep::{self, Event, SweepInputs};
 
@@ -56,15 +56,6 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     write_json(&layout.format(), &FormatRecord::current())
 }
 
-pub fn load_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
-    let mut out = Vec::new();
-    for spec in &plan.runs {
-        if let Some(r) = read_run(layout, &spec.id)? {
-            out.push(r);
-        }
-    }
-    Ok(out)
-}
 
 fn table(selection: &Selection) -> String {
     let mut out = String::new();
@@ -108,37 +99,69 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
     TrainOutcome { report: out, results: layout.root.clone(), failed_runs: report.failed.len() }
 }
 
-/// The selection of a configuration from the stored runs and the one evaluation of its selected
-/// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
-pub fn derive_selection(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
-    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
-    let m = &exp.manifest;
-    let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
-    let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
-    let test_y = exp.labels(&exp.splits.test);
-    let groups: Vec<crate::selection::GroupColumn> = exp
-        .roles
-        .groups
-        .iter()
-        .filter_map(|name| {
-            let col = exp.table.column(name)?;
-            Some(crate::selection::GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
-        })
-        .collect();
-    let test = evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups, (&prepared.validation_x, &prepared.validation_y))?;
-    Ok(Selection {
-        metric: m.selection.metric.clone(),
-        higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
-        configs: picked.configs,
-        selected_config: picked.selected_config,
-        selected_run: picked.selected_run,
-        baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
-        rule: m.selection.rule.as_str().into(),
-        best_config: picked.best_config,
-        test,
-    })
+/// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
+/// card (which seals the folder). Returns the selection and the results digest.
+fn select_and_record(prepared: &Prepared, layout: &Layout, manifest_path: &Path, jobs: usize, started: Instant) -> Result<(Selection, String)> {
+    let runs = crate::store::run::read_runs(layout, &prepared.plan)?;
+    let selection = crate::selection::derive(prepared, &runs)?;
+    write_json(&layout.selection(), &selection)?;
+    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
+    write_json(&layout.timing(), &TimingRecord {
+        trained_at: crate::provenance::now_rfc3339(),
+        git_commit,
+        git_dirty,
+        jobs,
+        wall_seconds: started.elapsed().as_secs_f64(),
+        run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
+    })?;
+    let digest = crate::card::write_card(layout, None)?;
+    Ok((selection, digest))
 }
 
+fn ledger_entry(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::SweepReport, selection: &Selection, results_digest: &str, manifest_path: &Path) -> LedgerEntry {
+    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
+    LedgerEntry {
+        time: crate::provenance::now_rfc3339(),
+        experiment: exp.manifest.experiment.name.clone(),
+        fingerprint: exp.fingerprint.clone(),
+        results: crate::store::folder_name(&layout.root),
+        git_commit,
+        git_dirty,
+        runs_planned: plan.runs.len(),
+        runs_trained: report.trained.len(),
+        runs_reused: report.reused.len(),
+        runs_failed: report.failed.len(),
+        selected_run: Some(selection.selected_run.clone()),
+        selection_metric: selection.metric.clone(),
+        selected_value: selection.test.metrics.get(&selection.metric).copied().flatten(),
+        results_digest: Some(results_digest.to_string()),
+        tool_version: crate::experiment::TOOL_VERSION.to_string(),
+    }
+}
+
+/// The terminal report of a completed `train`.
+#[allow(clippy::too_many_arguments)]
+fn summary(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::SweepReport, selection: &Selection, results_digest: &str, nothing_new: bool, jobs: usize) -> String {
+    let mut out = String::new();
+    let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
+    if nothing_new {
+        let _ = writeln!(out, "nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len());
+    } else {
+        let _ = writeln!(out, "runs: {} trained, {} reused, {} failed, {} planned ({jobs} workers)", report.trained.len(), report.reused.len(), report.failed.len(), plan.runs.len());
+    }
+    for (id, why) in &report.failed {
+        let _ = writeln!(out, "  run {id} {why}");
+    }
+    let _ = writeln!(out);
+    out.push_str(&table(selection));
+    let _ = writeln!(out, "\nresults  {}", layout.root.display());
+    let _ = writeln!(out, "card     {}", layout.card().display());
+    let _ = writeln!(out, "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)");
+    out
+}
+
+/// Orchestrates `train`: resolve and check the experiment, hold the writer lock, prepare the
+/// folder, sweep, then (without a shard) select, record, seal and append to the ledger.
 pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<TrainOutcome> {
     let started = Instant::now();
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
@@ -175,66 +198,15 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     }
     // A sweep killed between its selection and the seal of its integrity list finishes both now.
     let nothing_new = report.trained.is_empty() && layout.selection().exists() && layout.root.join(crate::store::integrity::FILE).exists();
-
     let (selection, results_digest) = if nothing_new {
         // Nothing was trained: the stored results stand, once they match their integrity list.
-        let digest = crate::store::integrity::check(&layout.root)?;
-        (read_json(&layout.selection())?, digest)
+        (read_json(&layout.selection())?, crate::store::integrity::check(&layout.root)?)
     } else {
-        let runs = load_runs(&layout, plan)?;
-        let selection = derive_selection(&prepared, &runs)?;
-        write_json(&layout.selection(), &selection)?;
-        let seconds: Vec<(String, f64)> = runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect();
-        let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
-        write_json(&layout.timing(), &serde_json::json!({
-            "trained_at": crate::provenance::now_rfc3339(),
-            "git_commit": git_commit,
-            "git_dirty": git_dirty,
-            "jobs": options.jobs,
-            "wall_seconds": started.elapsed().as_secs_f64(),
-            "run_seconds": seconds.into_iter().collect::<std::collections::BTreeMap<_, _>>(),
-        }))?;
-        let digest = crate::card::write_card(&layout, None)?;
-        (selection, digest)
+        let recorded = select_and_record(&prepared, &layout, manifest_path, options.jobs, started)?;
+        // One ledger line per completed selection: an invocation that trained nothing adds none.
+        ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, manifest_path))?;
+        recorded
     };
-
-    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
-    let selected_value = selection.test.metrics.get(&selection.metric).copied().flatten();
-    // One ledger line per completed selection: an invocation that trained nothing adds none.
-    if !nothing_new {
-        ledger::append(&options.results_root, &LedgerEntry {
-            time: crate::provenance::now_rfc3339(),
-            experiment: m.experiment.name.clone(),
-            fingerprint: exp.fingerprint.clone(),
-            results: crate::store::folder_name(&layout.root),
-            git_commit,
-            git_dirty,
-            runs_planned: plan.runs.len(),
-            runs_trained: report.trained.len(),
-            runs_reused: report.reused.len(),
-            runs_failed: report.failed.len(),
-            selected_run: Some(selection.selected_run.clone()),
-            selection_metric: selection.metric.clone(),
-            selected_value,
-            results_digest: Some(results_digest.clone()),
-            tool_version: crate::experiment::TOOL_VERSION.to_string(),
-        })?;
-    }
-
-    let mut out = String::new();
-    let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&m.experiment.name), exp.fingerprint);
-    if nothing_new {
-        let _ = writeln!(out, "nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len());
-    } else {
-        let _ = writeln!(out, "runs: {} trained, {} reused, {} failed, {} planned ({} workers)", report.trained.len(), report.reused.len(), report.failed.len(), plan.runs.len(), options.jobs);
-    }
-    for (id, why) in &report.failed {
-        let _ = writeln!(out, "  run {id} {why}");
-    }
-    let _ = writeln!(out);
-    out.push_str(&table(&selection));
-    let _ = writeln!(out, "\nresults  {}", layout.root.display());
-    let _ = writeln!(out, "card     {}", layout.card().display());
-    let _ = writeln!(out, "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)");
+    let out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);
     Ok(TrainOutcome { report: out, results: layout.root, failed_runs: report.failed.len() })
 }

@@ -221,8 +221,8 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
         }
     }
     // The selection and its one test evaluation, re-derived from the stored runs.
-    let derived = crate::commands::train::load_runs(&layout, &prepared.plan).and_then(|runs| crate::commands::train::derive_selection(&prepared, &runs));
-    let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Engine(format!("serialising the selection: {e}")));
+    let derived = crate::store::run::read_runs(&layout, &prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
+    let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
     match derived {
         Ok(derived) if as_value(&derived)? == as_value(&selection)? => {
             let _ = writeln!(out, "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals)");

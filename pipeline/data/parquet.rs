@@ -314,7 +314,7 @@ pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result
     use parquet::file::properties::WriterProperties;
     use std::sync::Arc;
 
-    let engine = |e: String| Error::Engine(format!("writing Parquet: {e}"));
+    let engine = |e: String| Error::Encode(format!("Parquet: {e}"));
     let fields: Vec<Field> = columns
         .iter()
         .map(|(name, a)| Field::new(name, a.data_type().clone(), a.null_count() > 0))

@@ -50,23 +50,7 @@ pub struct ExperimentInfo {
     pub trained_by: String,
 }
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Task {
-    Binary,
-    Multiclass,
-    Regression,
-}
-
-impl Task {
-    pub fn as_str(self) -> &'static str {
-        match self {
-            Task::Binary => "binary",
-            Task::Multiclass => "multiclass",
-            Task::Regression => "regression",
-        }
-    }
-}
+pub use crate::task::Task;
 
 /// Where the data is and how its columns are used.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

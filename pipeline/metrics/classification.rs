@@ -210,24 +210,13 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f6
     best.map(|(_, t, tpr, fpr)| (t, tpr, fpr))
 }
 
-/// Every scalar classification metric, by the names in `registry`.
+/// Every classification metric of the registry's table (binary when `k == 2`), by name.
 pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
     let predicted = predicted_classes(probs, k);
-    let mut m = MetricSet::new();
-    m.insert("accuracy".into(), accuracy(labels, &predicted));
-    m.insert("balanced_accuracy".into(), balanced_accuracy(labels, &predicted, k));
-    m.insert("log_loss".into(), log_loss(labels, probs, k));
-    m.insert("brier".into(), brier(labels, probs, k));
-    m.insert("ece".into(), super::calibration::expected_calibration_error(labels, probs, k, 10));
-    if k == 2 {
-        let is_pos: Vec<bool> = labels.iter().map(|&y| y == 1).collect();
-        let scores: Vec<f64> = probs.chunks_exact(2).map(|r| r[1]).collect();
-        m.insert("roc_auc".into(), roc_auc(&is_pos, &scores));
-        m.insert("average_precision".into(), average_precision(&is_pos, &scores));
-    } else {
-        m.insert("roc_auc".into(), macro_ovr_auc(labels, probs, k));
-    }
-    m
+    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) = if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+    let task = if k == 2 { crate::task::Task::Binary } else { crate::task::Task::Multiclass };
+    let scored = super::registry::Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
+    super::registry::scalar_metrics(task, &scored)
 }
 
 #[cfg(test)]

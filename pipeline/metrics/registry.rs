@@ -1,6 +1,13 @@
-//! Which metrics exist for each task, which way is better, and the default selection metric.
+//! The one table of metrics: per task, each metric's name, which way is better, whether the
+//! card's validation table shows it, the scale its seed spread is judged on, and the function that
+//! computes it. Computation, selection, the card and compare all read this table; adding a metric
+//! is one function and one row here (plus its reference value in tests/reference/).
 
-use crate::manifest::Task;
+use super::calibration::expected_calibration_error;
+use super::classification as c;
+use super::regression as r;
+use super::MetricSet;
+use crate::task::Task;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Direction {
@@ -8,32 +15,95 @@ pub enum Direction {
     Minimise,
 }
 
-const BINARY: &[(&str, Direction)] = &[
-    ("roc_auc", Direction::Maximise),
-    ("average_precision", Direction::Maximise),
-    ("accuracy", Direction::Maximise),
-    ("balanced_accuracy", Direction::Maximise),
-    ("log_loss", Direction::Minimise),
-    ("brier", Direction::Minimise),
-    ("ece", Direction::Minimise),
+/// The scale a metric's seed spread and train-validation gap are judged against.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Scale {
+    /// Bounded in [0, 1] (or, for R², at most 1): the range itself.
+    Unit,
+    /// Log loss: the log loss of predicting the class shares.
+    ClassPriorLogLoss,
+    /// RMSE and MAE: the target's standard deviation.
+    TargetSd,
+}
+
+/// What a metric is computed from: class probabilities (row-major, `k` per row) with their
+/// labels and arg-max predictions, or predicted and true values.
+pub enum Scored<'a> {
+    Classes { labels: &'a [usize], probs: &'a [f64], k: usize, predicted: &'a [usize], is_positive: &'a [bool], p_positive: &'a [f64] },
+    Values { truth: &'a [f64], predicted: &'a [f64] },
+}
+
+pub struct Metric {
+    pub name: &'static str,
+    pub direction: Direction,
+    /// A column of the card's validation table, in table order.
+    pub on_card: bool,
+    pub scale: Scale,
+    pub compute: fn(&Scored) -> Option<f64>,
+}
+
+fn classes(s: &Scored, f: impl Fn(&[usize], &[f64], usize, &[usize]) -> Option<f64>) -> Option<f64> {
+    match s {
+        Scored::Classes { labels, probs, k, predicted, .. } => f(labels, probs, *k, predicted),
+        Scored::Values { .. } => None,
+    }
+}
+
+fn positives(s: &Scored, f: impl Fn(&[bool], &[f64]) -> Option<f64>) -> Option<f64> {
+    match s {
+        Scored::Classes { is_positive, p_positive, .. } => f(is_positive, p_positive),
+        Scored::Values { .. } => None,
+    }
+}
+
+fn values(s: &Scored, f: impl Fn(&[f64], &[f64]) -> Option<f64>) -> Option<f64> {
+    match s {
+        Scored::Values { truth, predicted } => f(truth, predicted),
+        Scored::Classes { .. } => None,
+    }
+}
+
+const fn metric(name: &'static str, direction: Direction, on_card: bool, scale: Scale, compute: fn(&Scored) -> Option<f64>) -> Metric {
+    Metric { name, direction, on_card, scale, compute }
+}
+
+use Direction::{Maximise, Minimise};
+
+const ACCURACY: fn(&Scored) -> Option<f64> = |s| classes(s, |l, _, _, p| c::accuracy(l, p));
+const BALANCED_ACCURACY: fn(&Scored) -> Option<f64> = |s| classes(s, |l, _, k, p| c::balanced_accuracy(l, p, k));
+const LOG_LOSS: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| c::log_loss(l, pr, k));
+const BRIER: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| c::brier(l, pr, k));
+/// Top-label ECE, 10 equal-width bins closed on the right (see `calibration`).
+const ECE: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| expected_calibration_error(l, pr, k, 10));
+
+/// Binary, in card column order; the first is the default selection metric.
+const BINARY: &[Metric] = &[
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| positives(s, c::roc_auc)),
+    metric("average_precision", Maximise, true, Scale::Unit, |s| positives(s, c::average_precision)),
+    metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
+    metric("brier", Minimise, true, Scale::Unit, BRIER),
+    metric("ece", Minimise, true, Scale::Unit, ECE),
+    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
+    metric("balanced_accuracy", Maximise, false, Scale::Unit, BALANCED_ACCURACY),
 ];
 
-const MULTICLASS: &[(&str, Direction)] = &[
-    ("log_loss", Direction::Minimise),
-    ("accuracy", Direction::Maximise),
-    ("balanced_accuracy", Direction::Maximise),
-    ("roc_auc", Direction::Maximise),
-    ("brier", Direction::Minimise),
-    ("ece", Direction::Minimise),
+const MULTICLASS: &[Metric] = &[
+    metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
+    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
+    metric("balanced_accuracy", Maximise, true, Scale::Unit, BALANCED_ACCURACY),
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k))),
+    metric("ece", Minimise, true, Scale::Unit, ECE),
+    metric("brier", Minimise, false, Scale::Unit, BRIER),
 ];
 
-const REGRESSION: &[(&str, Direction)] = &[
-    ("rmse", Direction::Minimise),
-    ("mae", Direction::Minimise),
-    ("r2", Direction::Maximise),
+const REGRESSION: &[Metric] = &[
+    metric("rmse", Minimise, true, Scale::TargetSd, |s| values(s, r::rmse)),
+    metric("mae", Minimise, true, Scale::TargetSd, |s| values(s, r::mae)),
+    metric("r2", Maximise, true, Scale::Unit, |s| values(s, r::r2)),
 ];
 
-fn table(task: Task) -> &'static [(&'static str, Direction)] {
+/// Every metric of a task, the default selection metric first.
+pub fn table(task: Task) -> &'static [Metric] {
     match task {
         Task::Binary => BINARY,
         Task::Multiclass => MULTICLASS,
@@ -41,17 +111,21 @@ fn table(task: Task) -> &'static [(&'static str, Direction)] {
     }
 }
 
+pub fn find(task: Task, name: &str) -> Option<&'static Metric> {
+    table(task).iter().find(|m| m.name == name)
+}
+
 /// Metric names for a task, the default selection metric first.
 pub fn names(task: Task) -> Vec<&'static str> {
-    table(task).iter().map(|(n, _)| *n).collect()
+    table(task).iter().map(|m| m.name).collect()
 }
 
 pub fn direction(task: Task, name: &str) -> Option<Direction> {
-    table(task).iter().find(|(n, _)| *n == name).map(|(_, d)| *d)
+    find(task, name).map(|m| m.direction)
 }
 
 pub fn default_selection_metric(task: Task) -> &'static str {
-    table(task)[0].0
+    table(task)[0].name
 }
 
 /// True when `a` is strictly better than `b` in `direction`.
@@ -59,5 +133,26 @@ pub fn better(direction: Direction, a: f64, b: f64) -> bool {
     match direction {
         Direction::Maximise => a > b,
         Direction::Minimise => a < b,
+    }
+}
+
+/// Every metric of `task` on `scored`, by name.
+pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
+    table(task).iter().map(|m| (m.name.to_string(), (m.compute)(scored))).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_task_table_has_unique_names_and_a_default_first() {
+        for task in [Task::Binary, Task::Multiclass, Task::Regression] {
+            let mut names = names(task);
+            assert_eq!(default_selection_metric(task), names[0]);
+            names.sort_unstable();
+            names.dedup();
+            assert_eq!(names.len(), table(task).len(), "{task:?}");
+        }
     }
 }

@@ -28,12 +28,9 @@ pub fn r2(truth: &[f64], predicted: &[f64]) -> Option<f64> {
     })
 }
 
+/// Every regression metric of the registry's table, by name.
 pub fn scalar_metrics(truth: &[f64], predicted: &[f64]) -> MetricSet {
-    let mut m = MetricSet::new();
-    m.insert("rmse".into(), rmse(truth, predicted));
-    m.insert("mae".into(), mae(truth, predicted));
-    m.insert("r2".into(), r2(truth, predicted));
-    m
+    super::registry::scalar_metrics(crate::task::Task::Regression, &super::registry::Scored::Values { truth, predicted })
 }
 
 #[cfg(test)]

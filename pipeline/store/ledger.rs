@@ -35,7 +35,7 @@ pub const FILE: &str = "ledger.jsonl";
 
 /// Appends one line with a single write on a file opened for appending.
 pub fn append(results_root: &Path, entry: &LedgerEntry) -> Result<()> {
-    let line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))? + "\n";
+    let line = serde_json::to_string(entry).map_err(|e| Error::Internal(format!("ledger line: {e}")))? + "\n";
     append_line(&results_root.join(FILE), line)
 }
 
@@ -62,7 +62,7 @@ fn append_line(path: &Path, line: String) -> Result<()> {
 }
 
 pub fn append_verification(results_root: &Path, entry: &VerificationEntry) -> Result<()> {
-    let line = serde_json::to_string(entry).map_err(|e| Error::Engine(e.to_string()))? + "\n";
+    let line = serde_json::to_string(entry).map_err(|e| Error::Internal(format!("ledger line: {e}")))? + "\n";
     append_line(&results_root.join(VERIFICATIONS), line)
 }
 

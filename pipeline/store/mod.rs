@@ -38,6 +38,7 @@ pub mod integrity;
 pub mod lock;
 pub mod ledger;
 pub mod run;
+pub mod timing;
 pub mod weights;
 
 /// The version of the results layout this tool writes and reads. Version 2 added
@@ -46,7 +47,7 @@ pub const FORMAT_VERSION: u32 = 2;
 
 /// Pretty JSON with stable key order (struct order, sorted maps), newline-terminated.
 pub fn to_json<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
-    let mut bytes = serde_json::to_vec_pretty(value).map_err(|e| Error::Engine(format!("serialising JSON: {e}")))?;
+    let mut bytes = serde_json::to_vec_pretty(value).map_err(|e| Error::Internal(format!("serialising JSON: {e}")))?;
     bytes.push(b'\n');
     Ok(bytes)
 }

@@ -182,6 +182,17 @@ pub struct StoredRun {
     pub record: RunRecord,
 }
 
+/// Every stored run of the plan, in plan order (runs without a folder yet are left out).
+pub fn read_runs(layout: &Layout, plan: &crate::plan::Plan) -> Result<Vec<StoredRun>> {
+    let mut out = Vec::new();
+    for spec in &plan.runs {
+        if let Some(r) = read_run(layout, &spec.id)? {
+            out.push(r);
+        }
+    }
+    Ok(out)
+}
+
 /// `None` when the run has no folder yet; an error when its folder fails the integrity check.
 pub fn read_run(layout: &Layout, id: &str) -> Result<Option<StoredRun>> {
     let dir = layout.run(id);

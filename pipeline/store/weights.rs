@@ -46,10 +46,10 @@ pub fn encode(tensors: &[NamedTensor]) -> Result<Vec<u8>> {
     let mut views = Vec::with_capacity(buffers.len());
     for (name, shape, bytes) in &buffers {
         let view = safetensors::tensor::TensorView::new(safetensors::Dtype::F32, shape.clone(), bytes)
-            .map_err(|e| Error::Engine(format!("tensor `{name}`: {e}")))?;
+            .map_err(|e| Error::Encode(format!("tensor `{name}` as safetensors: {e}")))?;
         views.push((name.clone(), view));
     }
-    safetensors::serialize(views, None).map_err(|e| Error::Engine(format!("safetensors: {e}")))
+    safetensors::serialize(views, None).map_err(|e| Error::Encode(format!("safetensors: {e}")))
 }
 
 /// Reads a safetensors file written by [`encode`]; anything else is a store error naming the file.

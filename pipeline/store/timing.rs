@@ -1,0 +1,21 @@
+//! The experiment's timing record (`timing.json`): when it was trained, from which commit of the
+//! manifest's repository, with how many workers and how long each run took. It is the one
+//! experiment file outside the integrity list: it may differ between two identical sweeps.
+
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TimingRecord {
+    /// RFC 3339 UTC time the selection was made.
+    pub trained_at: String,
+    /// The manifest repository's commit, when the manifest is in git.
+    pub git_commit: Option<String>,
+    /// Whether that repository had uncommitted changes to tracked files.
+    pub git_dirty: Option<bool>,
+    pub jobs: usize,
+    /// Wall time of the whole `train` invocation.
+    pub wall_seconds: f64,
+    /// Training time of every stored run, by run id.
+    pub run_seconds: BTreeMap<String, f64>,
+}
