@@ -103,9 +103,15 @@ pub fn lease_defaults(rows: usize, seed: u64) -> Vec<(String, ArrayRef)> {
         let eq_effect = EQUIPMENT.iter().find(|e| e.0 == eq).map_or(0.0, |e| e.2);
         let rg_effect = REGIONS.iter().find(|r| r.0 == rg).map_or(0.0, |r| r.2);
         let xor = (sea != (t >= 48)) as u8 as f64;
-        let z = 1.6 * libm::exp(-a / 2.5) + 2.2 * (l / rev - 0.35).max(0.0)
+        let z = 1.6 * libm::exp(-a / 2.5)
+            + 2.2 * (l / rev - 0.35).max(0.0)
             + if credit_missing { 0.5 } else { -0.018 * (cr - 680.0) }
-            + 0.45 * lp as f64 - 0.7 * col.min(1.5) + 1.5 * xor - 0.75 + eq_effect + rg_effect;
+            + 0.45 * lp as f64
+            - 0.7 * col.min(1.5)
+            + 1.5 * xor
+            - 0.75
+            + eq_effect
+            + rg_effect;
         z_parts.push(z);
         age.push((a * 10.0).round() / 10.0);
         revenue.push((!revenue_missing).then_some((rev * 10.0).round() / 10.0));
@@ -124,7 +130,11 @@ pub fn lease_defaults(rows: usize, seed: u64) -> Vec<(String, ArrayRef)> {
     for _ in 0..60 {
         let mid = (lo + hi) / 2.0;
         let mean = z_parts.iter().map(|z| sigmoid(z + mid)).sum::<f64>() / rows.max(1) as f64;
-        if mean < 0.15 { lo = mid } else { hi = mid }
+        if mean < 0.15 {
+            lo = mid
+        } else {
+            hi = mid
+        }
     }
     let b0 = (lo + hi) / 2.0;
     let defaulted: Vec<bool> = z_parts.iter().map(|z| s.uniform() < sigmoid(z + b0)).collect();
@@ -163,7 +173,11 @@ pub fn greenhouse_yield(rows: usize, seed: u64) -> Vec<(String, ArrayRef)> {
         let e = 1.0 + 3.5 * s.uniform();
         let season = 0.8 * libm::sin(std::f64::consts::PI * w as f64 / 30.0);
         let y = 4.0 + 6.0 * (1.0 - libm::exp(-li / 6.0)) - 0.08 * (te - v.1).powi(2) + 0.9 * libm::log(1.0 + ir / 20.0)
-            - 0.05 * (hu - 70.0).abs() + 0.6 * e - 0.12 * e * e + season + 0.6 * s.normal();
+            - 0.05 * (hu - 70.0).abs()
+            + 0.6 * e
+            - 0.12 * e * e
+            + season
+            + 0.6 * s.normal();
         bed.push(format!("bed-{:03}", i % 240));
         variety.push(v.0);
         light.push((li * 10.0).round() / 10.0);

@@ -48,11 +48,7 @@ pub enum Error {
 
     /// A problem with a data file, optionally tied to one column.
     #[error("{}: {}{message}", file.display(), column.as_ref().map(|c| format!("column `{c}`: ")).unwrap_or_default())]
-    Data {
-        file: PathBuf,
-        column: Option<String>,
-        message: String,
-    },
+    Data { file: PathBuf, column: Option<String>, message: String },
 
     #[error("{}: cannot {action}: {source}", path.display())]
     Io {
@@ -109,11 +105,7 @@ impl Error {
     }
 
     pub fn data(file: impl AsRef<Path>, column: Option<&str>, message: impl Into<String>) -> Self {
-        Error::Data {
-            file: file.as_ref().to_path_buf(),
-            column: column.map(str::to_string),
-            message: message.into(),
-        }
+        Error::Data { file: file.as_ref().to_path_buf(), column: column.map(str::to_string), message: message.into() }
     }
 
     pub fn integrity(path: impl AsRef<Path>, message: impl Into<String>) -> Self {

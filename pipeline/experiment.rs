@@ -152,10 +152,9 @@ impl Experiment {
     /// Targets of the given rows, aligned with a matrix of those rows.
     pub fn labels(&self, rows: &[usize]) -> crate::train::Labels {
         match &self.target {
-            Target::Classes { labels, rows: classes } => crate::train::Labels::Classes {
-                rows: rows.iter().map(|&r| classes[r]).collect(),
-                classes: labels.len(),
-            },
+            Target::Classes { labels, rows: classes } => {
+                crate::train::Labels::Classes { rows: rows.iter().map(|&r| classes[r]).collect(), classes: labels.len() }
+            }
             Target::Values(v) => crate::train::Labels::Values(rows.iter().map(|&r| v[r]).collect()),
         }
     }

@@ -78,7 +78,10 @@ pub fn estimate(exp: &Experiment, plan: &Plan, inputs: usize, jobs: usize) -> Me
     let largest = plan.configs.iter().max_by_key(|c| worker_bytes(c, inputs, outputs));
     let per_worker = largest.map_or(0, |c| worker_bytes(c, inputs, outputs));
     let rows = exp.table.rows as u64;
-    let shared = rows.saturating_mul(exp.table.columns.len() as u64).saturating_mul(8).saturating_add(rows.saturating_mul(inputs as u64).saturating_mul(4 * 2));
+    let shared = rows
+        .saturating_mul(exp.table.columns.len() as u64)
+        .saturating_mul(8)
+        .saturating_add(rows.saturating_mul(inputs as u64).saturating_mul(4 * 2));
     let workers = jobs.clamp(1, plan.runs.len().max(1));
     let total = shared.saturating_add(per_worker.saturating_mul(workers as u64));
     let label = match largest {
@@ -102,7 +105,11 @@ pub fn available_bytes() -> Option<u64> {
         limits.extend(first_number(&meminfo, "MemAvailable:").map(|kb| kb * 1024));
     }
     if let Ok(text) = std::fs::read_to_string("/proc/self/limits") {
-        let address_space = text.lines().find_map(|l| l.strip_prefix("Max address space")).and_then(|rest| rest.split_whitespace().next()).and_then(|v| v.parse::<u64>().ok());
+        let address_space = text
+            .lines()
+            .find_map(|l| l.strip_prefix("Max address space"))
+            .and_then(|rest| rest.split_whitespace().next())
+            .and_then(|v| v.parse::<u64>().ok());
         if let Some(limit) = address_space {
             let mapped = std::fs::read_to_string("/proc/self/status").ok().and_then(|s| first_number(&s, "VmSize:")).unwrap_or(0) * 1024;
             limits.push(limit.saturating_sub(mapped));

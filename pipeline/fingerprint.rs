@@ -57,10 +57,7 @@ mod tests {
     // FIPS 180-2, Appendix B.1: SHA-256("abc").
     #[test]
     fn sha256_of_abc_matches_fips_180_2_example() {
-        assert_eq!(
-            sha256_hex(b"abc"),
-            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
-        );
+        assert_eq!(sha256_hex(b"abc"), "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
     }
 
     #[test]

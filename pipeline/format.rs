@@ -16,7 +16,11 @@ pub fn sig(x: f64, digits: usize) -> String {
     let s = format!("{:.*}", decimals, x);
     if s.contains('.') {
         let trimmed = s.trim_end_matches('0').trim_end_matches('.');
-        if trimmed == "-0" { "0".into() } else { trimmed.to_string() }
+        if trimmed == "-0" {
+            "0".into()
+        } else {
+            trimmed.to_string()
+        }
     } else {
         s
     }
@@ -25,7 +29,11 @@ pub fn sig(x: f64, digits: usize) -> String {
 /// Fixed decimals, for metrics in tables (`-0` printed as `0`).
 pub fn fixed(x: f64, decimals: usize) -> String {
     let s = format!("{:.*}", decimals, x);
-    if s.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') { s.trim_start_matches('-').to_string() } else { s }
+    if s.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') {
+        s.trim_start_matches('-').to_string()
+    } else {
+        s
+    }
 }
 
 #[cfg(test)]

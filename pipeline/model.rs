@@ -5,11 +5,11 @@ use candle_core::DType;
 
 use crate::data::prep::{Matrix, Preprocessor};
 use crate::error::Result;
+use crate::nn::engine::{Engine, EVAL_BLOCK};
 use crate::nn::mlp::Mlp;
 use crate::plan::RunConfig;
 use crate::rng::{Purpose, Stream};
 use crate::store::run::StoredRun;
-use crate::nn::engine::{Engine, EVAL_BLOCK};
 use crate::train::{Head, TargetScaling};
 
 pub struct ScoringModel {

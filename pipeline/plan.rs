@@ -65,11 +65,7 @@ pub fn config_label(overrides: &std::collections::BTreeMap<String, serde_json::V
     if overrides.is_empty() {
         return "base configuration".into();
     }
-    overrides
-        .iter()
-        .map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v))
-        .collect::<Vec<_>>()
-        .join(" ")
+    overrides.iter().map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v)).collect::<Vec<_>>().join(" ")
 }
 
 pub fn baseline_config(manifest: &Manifest) -> RunConfig {
@@ -94,11 +90,10 @@ fn planned(config: RunConfig, baseline: bool, overrides: BTreeMap<String, Value>
 /// Expands a validated manifest into its plan. The manifest loader has already checked the grid;
 /// a grid that fails to expand here is an internal error, never an empty plan.
 pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> crate::error::Result<Plan> {
-    let points = expand(manifest).map_err(|p| crate::error::Error::Internal(format!("the validated grid does not expand: {}", p.message)))?;
-    let mut configs: Vec<PlannedConfig> = points
-        .into_iter()
-        .map(|p| planned(RunConfig { model: p.model, training: p.training }, false, p.overrides))
-        .collect();
+    let points =
+        expand(manifest).map_err(|p| crate::error::Error::Internal(format!("the validated grid does not expand: {}", p.message)))?;
+    let mut configs: Vec<PlannedConfig> =
+        points.into_iter().map(|p| planned(RunConfig { model: p.model, training: p.training }, false, p.overrides)).collect();
     if manifest.selection.baseline {
         configs.push(planned(baseline_config(manifest), true, BTreeMap::new()));
     }

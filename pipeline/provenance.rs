@@ -7,9 +7,7 @@ use std::process::Command;
 /// (commit, dirty) of the repository holding `path`, or `None` outside git or without git.
 pub fn git_state(path: &Path) -> (Option<String>, Option<bool>) {
     let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let run = |args: &[&str]| {
-        Command::new("git").arg("-C").arg(dir).args(args).output().ok().filter(|o| o.status.success())
-    };
+    let run = |args: &[&str]| Command::new("git").arg("-C").arg(dir).args(args).output().ok().filter(|o| o.status.success());
     let commit = run(&["rev-parse", "HEAD"]).map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string());
     let dirty = commit.as_ref().and_then(|_| run(&["status", "--porcelain", "--untracked-files=no"])).map(|o| !o.stdout.is_empty());
     (commit, dirty)
@@ -58,6 +56,18 @@ pub fn now_rfc3339() -> String {
     rfc3339(secs)
 }
 
+/// This machine's host name (Linux: the kernel's), reduced to characters safe in a file name;
+/// `unknown-host` when it cannot be read.
+pub fn host_name() -> String {
+    let raw = std::fs::read_to_string("/proc/sys/kernel/hostname").ok().or_else(|| std::env::var("HOSTNAME").ok()).unwrap_or_default();
+    let safe: String = raw.trim().chars().filter(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_')).collect();
+    if safe.is_empty() {
+        "unknown-host".into()
+    } else {
+        safe
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -70,12 +80,4 @@ mod tests {
         assert_eq!(rfc3339(951_782_400), "2000-02-29T00:00:00Z");
         assert_eq!(rfc3339(1_800_000_000), "2027-01-15T08:00:00Z");
     }
-}
-
-/// This machine's host name (Linux: the kernel's), reduced to characters safe in a file name;
-/// `unknown-host` when it cannot be read.
-pub fn host_name() -> String {
-    let raw = std::fs::read_to_string("/proc/sys/kernel/hostname").ok().or_else(|| std::env::var("HOSTNAME").ok()).unwrap_or_default();
-    let safe: String = raw.trim().chars().filter(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_')).collect();
-    if safe.is_empty() { "unknown-host".into() } else { safe }
 }

@@ -16,7 +16,11 @@ pub struct Regularizer {
 }
 
 fn on_off(on: bool) -> String {
-    if on { "on".into() } else { "off".into() }
+    if on {
+        "on".into()
+    } else {
+        "off".into()
+    }
 }
 
 pub const REGULARIZERS: &[Regularizer] = &[
@@ -31,7 +35,11 @@ pub const REGULARIZERS: &[Regularizer] = &[
         keys: &["training.early_stopping.enabled", "training.early_stopping.patience", "training.early_stopping.min_delta"],
         setting: |_, t| {
             let e = &t.early_stopping;
-            if e.enabled { format!("on: patience {} epochs on validation loss, min delta {}; best epoch restored", e.patience, sig(e.min_delta, 3)) } else { "off".into() }
+            if e.enabled {
+                format!("on: patience {} epochs on validation loss, min delta {}; best epoch restored", e.patience, sig(e.min_delta, 3))
+            } else {
+                "off".into()
+            }
         },
     },
     Regularizer {

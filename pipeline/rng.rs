@@ -116,8 +116,18 @@ mod tests {
 
     #[test]
     fn same_seed_same_purpose_same_numbers() {
-        let a: Vec<u64> = (0..8).map({ let mut s = Stream::new(7, Purpose::Init); move |_| s.next_u64() }).collect();
-        let b: Vec<u64> = (0..8).map({ let mut s = Stream::new(7, Purpose::Init); move |_| s.next_u64() }).collect();
+        let a: Vec<u64> = (0..8)
+            .map({
+                let mut s = Stream::new(7, Purpose::Init);
+                move |_| s.next_u64()
+            })
+            .collect();
+        let b: Vec<u64> = (0..8)
+            .map({
+                let mut s = Stream::new(7, Purpose::Init);
+                move |_| s.next_u64()
+            })
+            .collect();
         assert_eq!(a, b);
     }
 

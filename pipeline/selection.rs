@@ -9,14 +9,14 @@ use std::collections::BTreeMap;
 
 use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
+use crate::manifest::SelectionRule;
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
+use crate::metrics::classification::youden_threshold;
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
 use crate::model::ScoringModel;
-use crate::manifest::SelectionRule;
-use crate::metrics::classification::youden_threshold;
 use crate::plan::Plan;
 use crate::prepared::Prepared;
 use crate::store::run::StoredRun;
@@ -170,16 +170,23 @@ pub fn standard_error(s: &Spread) -> f64 {
 
 /// Non-baseline configurations other than `chosen` with fewer parameters whose mean validation
 /// metric lies within one standard error of `chosen`'s mean (or beyond it, on the better side).
-pub fn simpler_within_one_se<'a>(configs: &'a [ConfigSummary], chosen: &ConfigSummary, metric: &str, dir: Direction) -> Vec<&'a ConfigSummary> {
+pub fn simpler_within_one_se<'a>(
+    configs: &'a [ConfigSummary],
+    chosen: &ConfigSummary,
+    metric: &str,
+    dir: Direction,
+) -> Vec<&'a ConfigSummary> {
     let Some(best) = chosen.validation.get(metric) else { return Vec::new() };
     let se = standard_error(best);
     configs
         .iter()
         .filter(|c| !c.baseline && c.config_id != chosen.config_id && c.parameter_count < chosen.parameter_count)
-        .filter(|c| c.validation.get(metric).is_some_and(|s| match dir {
-            Direction::Maximise => s.mean >= best.mean - se,
-            Direction::Minimise => s.mean <= best.mean + se,
-        }))
+        .filter(|c| {
+            c.validation.get(metric).is_some_and(|s| match dir {
+                Direction::Maximise => s.mean >= best.mean - se,
+                Direction::Minimise => s.mean <= best.mean + se,
+            })
+        })
         .collect()
 }
 
@@ -206,12 +213,18 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
             }
         }
     }
-    let (best, _) = best.ok_or_else(|| Error::NoUsableRun(format!("no configuration finished a run with a defined validation {metric}: every run failed or diverged (see the runs' metrics.json)")))?;
+    let (best, _) = best.ok_or_else(|| {
+        Error::NoUsableRun(format!(
+            "no configuration finished a run with a defined validation {metric}: every run failed or diverged (see the runs' metrics.json)"
+        ))
+    })?;
     let mut chosen = best;
     if rule == SelectionRule::OneStandardError {
         for c in simpler_within_one_se(&configs, best, metric, dir) {
             let mean = |x: &ConfigSummary| x.validation.get(metric).map(|s| s.mean).unwrap_or(f64::NAN);
-            if c.parameter_count < chosen.parameter_count || (c.parameter_count == chosen.parameter_count && better(dir, mean(c), mean(chosen))) {
+            if c.parameter_count < chosen.parameter_count
+                || (c.parameter_count == chosen.parameter_count && better(dir, mean(c), mean(chosen)))
+            {
                 chosen = c;
             }
         }
@@ -224,7 +237,9 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
             }
         }
     }
-    let run_id = best_run.map(|(r, _)| r.record.run_id.clone()).ok_or_else(|| Error::NoUsableRun("the selected configuration has no usable run".into()))?;
+    let run_id = best_run
+        .map(|(r, _)| r.record.run_id.clone())
+        .ok_or_else(|| Error::NoUsableRun("the selected configuration has no usable run".into()))?;
     let (selected_config, best_config) = (chosen.config_id.clone(), best.config_id.clone());
     Ok(Picked { configs, selected_config, selected_run: run_id, best_config })
 }
@@ -253,7 +268,8 @@ pub fn evaluate_test(
             selected = Some((r.record.seed, outputs, model));
         }
     }
-    let (seed, outputs, model) = selected.ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
+    let (seed, outputs, model) =
+        selected.ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
     let head = model.head;
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
@@ -283,7 +299,14 @@ pub fn evaluate_test(
                 let (sub_out, sub_y) = subset(&rows);
                 head.metrics(&sub_out, &sub_y)
             });
-            groups.push(GroupMetrics { column: g.name.clone(), level, rows: idx.len(), base_rate, metrics: head.metrics(&o, &y), intervals });
+            groups.push(GroupMetrics {
+                column: g.name.clone(),
+                level,
+                rows: idx.len(),
+                base_rate,
+                metrics: head.metrics(&o, &y),
+                intervals,
+            });
         }
     }
     let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
@@ -356,10 +379,21 @@ pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
             Some(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
         .collect();
-    let test = evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, m.selection.bootstrap, m.split.seed, &groups, (&prepared.validation_x, &prepared.validation_y))?;
+    let test = evaluate_test(
+        runs,
+        &picked.selected_config,
+        &picked.selected_run,
+        &test_x,
+        &test_y,
+        m.selection.bootstrap,
+        m.split.seed,
+        &groups,
+        (&prepared.validation_x, &prepared.validation_y),
+    )?;
     Ok(Selection {
         metric: m.selection.metric.clone(),
-        higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric) == Some(crate::metrics::registry::Direction::Maximise),
+        higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric)
+            == Some(crate::metrics::registry::Direction::Maximise),
         configs: picked.configs,
         selected_config: picked.selected_config,
         selected_run: picked.selected_run,

@@ -165,7 +165,14 @@ mod tests {
 
     #[test]
     fn the_array_script_trains_one_shard_per_task() {
-        let resources = TaskResources { cpus_per_task: 2, memory: "4G".into(), time_limit: Some("01:00:00".into()), partition: Some("cpu".into()), account: None, modules: vec!["rust/1.95".into()] };
+        let resources = TaskResources {
+            cpus_per_task: 2,
+            memory: "4G".into(),
+            time_limit: Some("01:00:00".into()),
+            partition: Some("cpu".into()),
+            account: None,
+            modules: vec!["rust/1.95".into()],
+        };
         let inputs = ScriptInputs {
             experiment_name: "demo",
             fingerprint: "0123456789abcdef0123",

@@ -9,9 +9,9 @@ use crate::data::prep::Preprocessor;
 use crate::error::{Error, Result};
 use crate::numerics::NumericsFingerprint;
 use crate::plan::{Plan, RunSpec};
+use crate::shard::Shard;
 use crate::store::run::{read_run, sweep_stale_partials, write_run, RunArtifacts, RunRecord};
 use crate::store::weights::{tensor_digests, weights_digest};
-use crate::shard::Shard;
 use crate::store::Layout;
 use crate::train::{train, Head, Outcome, RunData};
 
@@ -20,8 +20,14 @@ use crate::train::{train, Head, Outcome, RunData};
 pub enum Event {
     /// Another process is writing this experiment; this one waits for it.
     Waiting(String),
-    Planned { pending: usize, reused: usize },
-    Finished { run_id: String, outcome: Outcome },
+    Planned {
+        pending: usize,
+        reused: usize,
+    },
+    Finished {
+        run_id: String,
+        outcome: Outcome,
+    },
 }
 
 pub struct SweepInputs<'a> {
@@ -108,17 +114,20 @@ fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
     let planned = planned_config(inputs, spec)?;
     let t = train_run(inputs, spec)?;
     let outcome = t.record.outcome.clone();
-    write_run(inputs.layout, &RunArtifacts {
-        record: t.record,
-        config: &planned.config,
-        preprocessor: inputs.preprocessor,
-        tensors: &t.tensors,
-        history: &t.history,
-        validation_rows: inputs.validation_rows,
-        validation_outputs: &t.validation_outputs,
-        environment: inputs.environment,
-        seconds: t.seconds,
-    })?;
+    write_run(
+        inputs.layout,
+        &RunArtifacts {
+            record: t.record,
+            config: &planned.config,
+            preprocessor: inputs.preprocessor,
+            tensors: &t.tensors,
+            history: &t.history,
+            validation_rows: inputs.validation_rows,
+            validation_outputs: &t.validation_outputs,
+            environment: inputs.environment,
+            seconds: t.seconds,
+        },
+    )?;
     Ok(outcome)
 }
 

@@ -74,9 +74,14 @@ pub struct EpochRecord {
 #[serde(tag = "status", rename_all = "snake_case")]
 pub enum Outcome {
     Completed,
-    Diverged { epoch: usize, detail: String },
+    Diverged {
+        epoch: usize,
+        detail: String,
+    },
     /// The engine failed (an error, not a numerical divergence).
-    Failed { detail: String },
+    Failed {
+        detail: String,
+    },
 }
 
 impl Outcome {
@@ -162,7 +167,11 @@ pub const OBJECTIVE: &str = "objective";
 
 fn softplus(x: f64) -> f64 {
     // log(1 + e^x) without overflow.
-    if x > 0.0 { x + libm::log1p(libm::exp(-x)) } else { libm::log1p(libm::exp(x)) }
+    if x > 0.0 {
+        x + libm::log1p(libm::exp(-x))
+    } else {
+        libm::log1p(libm::exp(x))
+    }
 }
 
 impl Head {
@@ -186,30 +195,46 @@ impl Head {
         let n = labels.len().max(1) as f64;
         match (self.task, labels) {
             (Task::Binary, Labels::Classes { rows, .. }) => {
-                raw.iter().zip(rows).map(|(&z, &y)| {
-                    let z = z as f64;
-                    z.max(0.0) - z * y as f64 + softplus(-z.abs())
-                }).sum::<f64>() / n
+                raw.iter()
+                    .zip(rows)
+                    .map(|(&z, &y)| {
+                        let z = z as f64;
+                        z.max(0.0) - z * y as f64 + softplus(-z.abs())
+                    })
+                    .sum::<f64>()
+                    / n
             }
             (Task::Multiclass, Labels::Classes { rows, classes }) => {
-                raw.chunks_exact(*classes).zip(rows).map(|(r, &y)| {
-                    let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
-                    let lse = max + libm::log(r.iter().map(|&v| libm::exp(v as f64 - max)).sum::<f64>());
-                    lse - r[y] as f64
-                }).sum::<f64>() / n
+                raw.chunks_exact(*classes)
+                    .zip(rows)
+                    .map(|(r, &y)| {
+                        let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
+                        let lse = max + libm::log(r.iter().map(|&v| libm::exp(v as f64 - max)).sum::<f64>());
+                        lse - r[y] as f64
+                    })
+                    .sum::<f64>()
+                    / n
             }
             (Task::Regression, Labels::Values(v)) => {
                 let s = scaling.unwrap_or(TargetScaling::IDENTITY);
-                raw.iter().zip(v).map(|(&p, &y)| {
-                    let r = p as f64 - (y - s.mean) / s.std;
-                    match self.loss {
-                        RegressionLoss::Mse => r * r,
-                        RegressionLoss::Huber => {
-                            let a = r.abs();
-                            if a <= self.huber_delta { 0.5 * r * r } else { self.huber_delta * (a - 0.5 * self.huber_delta) }
+                raw.iter()
+                    .zip(v)
+                    .map(|(&p, &y)| {
+                        let r = p as f64 - (y - s.mean) / s.std;
+                        match self.loss {
+                            RegressionLoss::Mse => r * r,
+                            RegressionLoss::Huber => {
+                                let a = r.abs();
+                                if a <= self.huber_delta {
+                                    0.5 * r * r
+                                } else {
+                                    self.huber_delta * (a - 0.5 * self.huber_delta)
+                                }
+                            }
                         }
-                    }
-                }).sum::<f64>() / n
+                    })
+                    .sum::<f64>()
+                    / n
             }
             _ => f64::NAN,
         }
@@ -218,16 +243,22 @@ impl Head {
     /// Probabilities (binary: `[1 - p, p]`; multiclass: softmax) or de-standardised predictions.
     pub fn predictions(&self, raw: &[f32], scaling: Option<TargetScaling>) -> Vec<f64> {
         match self.task {
-            Task::Binary => raw.iter().flat_map(|&z| {
-                let p = 1.0 / (1.0 + libm::exp(-(z as f64)));
-                [1.0 - p, p]
-            }).collect(),
-            Task::Multiclass => raw.chunks_exact(self.classes).flat_map(|r| {
-                let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
-                let e: Vec<f64> = r.iter().map(|&v| libm::exp(v as f64 - max)).collect();
-                let sum: f64 = e.iter().sum();
-                e.into_iter().map(move |x| x / sum)
-            }).collect(),
+            Task::Binary => raw
+                .iter()
+                .flat_map(|&z| {
+                    let p = 1.0 / (1.0 + libm::exp(-(z as f64)));
+                    [1.0 - p, p]
+                })
+                .collect(),
+            Task::Multiclass => raw
+                .chunks_exact(self.classes)
+                .flat_map(|r| {
+                    let max = r.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v as f64));
+                    let e: Vec<f64> = r.iter().map(|&v| libm::exp(v as f64 - max)).collect();
+                    let sum: f64 = e.iter().sum();
+                    e.into_iter().map(move |x| x / sum)
+                })
+                .collect(),
             Task::Regression => {
                 let s = scaling.unwrap_or(TargetScaling::IDENTITY);
                 raw.iter().map(|&p| p as f64 * s.std + s.mean).collect()
@@ -254,7 +285,14 @@ pub fn train(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, sele
 }
 
 /// As [`train`], in a chosen precision (f64 serves gradient and convergence tests).
-pub fn train_with_dtype(head: Head, config: &RunConfig, seed: u64, data: &RunData<'_>, selection_metric: &str, dtype: DType) -> Result<RunResult> {
+pub fn train_with_dtype(
+    head: Head,
+    config: &RunConfig,
+    seed: u64,
+    data: &RunData<'_>,
+    selection_metric: &str,
+    dtype: DType,
+) -> Result<RunResult> {
     match dtype {
         DType::F32 => train_in::<f32>(head, config, seed, data, selection_metric),
         DType::F64 => train_in::<f64>(head, config, seed, data, selection_metric),

@@ -5,7 +5,7 @@
 
 mod common;
 
-use arrow::array::{Array, AsArray, ArrayRef, Float64Array, StringArray};
+use arrow::array::{Array, ArrayRef, AsArray, Float64Array, StringArray};
 use arrow::datatypes::Float64Type;
 use common::*;
 use std::path::{Path, PathBuf};
@@ -17,7 +17,6 @@ fn train(dir: &Path, manifest: &Path) -> PathBuf {
     let line = stdout(&out).lines().find(|l| l.starts_with("results")).unwrap().to_string();
     PathBuf::from(line.trim_start_matches("results").trim())
 }
-
 
 #[test]
 fn verify_passes_and_fails_for_the_right_reasons() {
@@ -65,7 +64,12 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     let out = run_in(dir.path(), &["verify", "altered"]);
     assert_eq!(out.status.code(), Some(6));
     let report = stdout(&out);
-    assert!(report.contains(&format!("{run} seed")) && report.contains("CANNOT VERIFY") && report.contains("weights.safetensors: fails its integrity check"), "{report}");
+    assert!(
+        report.contains(&format!("{run} seed"))
+            && report.contains("CANNOT VERIFY")
+            && report.contains("weights.safetensors: fails its integrity check"),
+        "{report}"
+    );
     assert!(report.contains("verdict   NOT verified"));
     // The same alteration with run.json's digest updated to hide it is caught by the tensor digests.
     let index_path = altered.join("runs").join(run).join("run.json");
@@ -90,7 +94,10 @@ fn verify_passes_and_fails_for_the_right_reasons() {
         e["data"]["file_sha256"].as_str().unwrap().to_string()
     };
     let now = tabcard::fingerprint::file_sha256(&data).unwrap();
-    assert_eq!(err.trim_end(), format!("error: {}: has changed since training: its SHA-256 is now {now}, the results record {recorded}", data.display()));
+    assert_eq!(
+        err.trim_end(),
+        format!("error: {}: has changed since training: its SHA-256 is now {now}, the results record {recorded}", data.display())
+    );
 }
 
 fn read_parquet(path: &Path) -> tabcard::data::table::Table {
@@ -111,7 +118,9 @@ fn predict_reproduces_validation_predictions_and_checks_its_input() {
     assert!(scored.column("predicted").is_some() && scored.column("outside_training_range").is_some());
     // Bit-for-bit equality with the probabilities recorded at training time.
     let selection: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(folder.join("selection.json")).unwrap()).unwrap();
-    let csv = std::fs::read_to_string(folder.join("runs").join(selection["selected_run"].as_str().unwrap()).join("validation-predictions.csv")).unwrap();
+    let csv =
+        std::fs::read_to_string(folder.join("runs").join(selection["selected_run"].as_str().unwrap()).join("validation-predictions.csv"))
+            .unwrap();
     let mut checked = 0;
     for line in csv.lines().skip(1) {
         let f: Vec<&str> = line.split(',').collect();
@@ -125,39 +134,73 @@ fn predict_reproduces_validation_predictions_and_checks_its_input() {
 
     // Schema errors: a missing feature, and text where the model was trained on numbers.
     let columns = tabcard::demo::lease_defaults(50, 8);
-    let without: Vec<(&str, ArrayRef)> = columns.iter().filter(|(n, _)| n != "collateral_cover").map(|(n, a)| (n.as_str(), a.clone())).collect();
+    let without: Vec<(&str, ArrayRef)> =
+        columns.iter().filter(|(n, _)| n != "collateral_cover").map(|(n, a)| (n.as_str(), a.clone())).collect();
     write_parquet(&dir.path().join("missing.parquet"), without);
     let out = run_in(dir.path(), &["predict", folder.to_str().unwrap(), "missing.parquet", "--out", "x.parquet"]);
     assert_eq!(out.status.code(), Some(2));
-    assert_eq!(stderr(&out).trim_end(), "error: missing.parquet: column `collateral_cover`: is missing: the model was trained with it (missing: `collateral_cover`)");
-    let retyped: Vec<(&str, ArrayRef)> = columns.iter().map(|(n, a)| {
-        if n == "lease_amount_k" { (n.as_str(), Arc::new(StringArray::from(vec!["big"; 50])) as ArrayRef) } else { (n.as_str(), a.clone()) }
-    }).collect();
+    assert_eq!(
+        stderr(&out).trim_end(),
+        "error: missing.parquet: column `collateral_cover`: is missing: the model was trained with it (missing: `collateral_cover`)"
+    );
+    let retyped: Vec<(&str, ArrayRef)> = columns
+        .iter()
+        .map(|(n, a)| {
+            if n == "lease_amount_k" {
+                (n.as_str(), Arc::new(StringArray::from(vec!["big"; 50])) as ArrayRef)
+            } else {
+                (n.as_str(), a.clone())
+            }
+        })
+        .collect();
     write_parquet(&dir.path().join("retyped.parquet"), retyped);
     let out = run_in(dir.path(), &["predict", folder.to_str().unwrap(), "retyped.parquet", "--out", "x.parquet"]);
-    assert_eq!(stderr(&out).trim_end(), "error: retyped.parquet: column `lease_amount_k`: has type Utf8 but the model was trained on a float column");
+    assert_eq!(
+        stderr(&out).trim_end(),
+        "error: retyped.parquet: column `lease_amount_k`: has type Utf8 but the model was trained on a float column"
+    );
     assert!(!dir.path().join("x.parquet").exists(), "nothing written on error");
 
     // Crafted rows: 3 with an unseen equipment type, 2 with an out-of-range business age.
-    let crafted: Vec<(&str, ArrayRef)> = columns.iter().map(|(n, a)| {
-        let a: ArrayRef = match n.as_str() {
-            "equipment_type" => Arc::new(StringArray::from((0..50).map(|i| if i < 3 { "spaceship" } else { "office" }).collect::<Vec<_>>())),
-            "business_age_years" => {
-                let base = a.as_primitive::<Float64Type>();
-                Arc::new(Float64Array::from((0..50).map(|i| if i == 10 { 900.0 } else if i == 11 { -5.0 } else { base.value(i).clamp(0.5, 30.0) }).collect::<Vec<_>>()))
-            }
-            "lease_amount_k" | "annual_revenue_k" | "owner_credit_score" | "collateral_cover" => {
-                let base = a.as_primitive::<Float64Type>();
-                let train = tabcard::data::parquet::read_table(&dir.path().join("leases.parquet")).unwrap();
-                let col = train.column(n).unwrap();
-                let values: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
-                let (lo, hi) = (values.iter().cloned().fold(f64::INFINITY, f64::min), values.iter().cloned().fold(f64::NEG_INFINITY, f64::max));
-                Arc::new(Float64Array::from((0..50).map(|i| if base.is_null(i) { None } else { Some(base.value(i).clamp(lo, hi)) }).collect::<Vec<_>>()))
-            }
-            _ => a.clone(),
-        };
-        (n.as_str(), a)
-    }).collect();
+    let crafted: Vec<(&str, ArrayRef)> = columns
+        .iter()
+        .map(|(n, a)| {
+            let a: ArrayRef = match n.as_str() {
+                "equipment_type" => {
+                    Arc::new(StringArray::from((0..50).map(|i| if i < 3 { "spaceship" } else { "office" }).collect::<Vec<_>>()))
+                }
+                "business_age_years" => {
+                    let base = a.as_primitive::<Float64Type>();
+                    Arc::new(Float64Array::from(
+                        (0..50)
+                            .map(|i| {
+                                if i == 10 {
+                                    900.0
+                                } else if i == 11 {
+                                    -5.0
+                                } else {
+                                    base.value(i).clamp(0.5, 30.0)
+                                }
+                            })
+                            .collect::<Vec<_>>(),
+                    ))
+                }
+                "lease_amount_k" | "annual_revenue_k" | "owner_credit_score" | "collateral_cover" => {
+                    let base = a.as_primitive::<Float64Type>();
+                    let train = tabcard::data::parquet::read_table(&dir.path().join("leases.parquet")).unwrap();
+                    let col = train.column(n).unwrap();
+                    let values: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
+                    let (lo, hi) =
+                        (values.iter().cloned().fold(f64::INFINITY, f64::min), values.iter().cloned().fold(f64::NEG_INFINITY, f64::max));
+                    Arc::new(Float64Array::from(
+                        (0..50).map(|i| if base.is_null(i) { None } else { Some(base.value(i).clamp(lo, hi)) }).collect::<Vec<_>>(),
+                    ))
+                }
+                _ => a.clone(),
+            };
+            (n.as_str(), a)
+        })
+        .collect();
     write_parquet(&dir.path().join("crafted.parquet"), crafted);
     let out = run_in(dir.path(), &["predict", folder.to_str().unwrap(), "crafted.parquet", "--out", "crafted-scored.parquet"]);
     assert!(out.status.success(), "{}", stderr(&out));
@@ -181,8 +224,12 @@ fn compare_shows_the_changed_regularizer_and_the_metric_deltas() {
     let out = run_in(dir.path(), &["compare", a.to_str().unwrap(), b.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
     let report = stdout(&out);
-    let changes: Vec<&str> = report.lines().skip_while(|l| !l.starts_with("manifest changes")).skip(1).take_while(|l| !l.is_empty()).collect();
+    let changes: Vec<&str> =
+        report.lines().skip_while(|l| !l.starts_with("manifest changes")).skip(1).take_while(|l| !l.is_empty()).collect();
     assert_eq!(changes, vec!["  model.dropout: 0.0 -> 0.2"], "{report}");
     assert!(report.contains("file SHA-256 same") && report.contains("content SHA-256 same"));
-    assert!(report.lines().any(|l| l.trim_start().starts_with("roc_auc") && (l.contains("within noise") || l.contains("beyond seed noise"))), "{report}");
+    assert!(
+        report.lines().any(|l| l.trim_start().starts_with("roc_auc") && (l.contains("within noise") || l.contains("beyond seed noise"))),
+        "{report}"
+    );
 }

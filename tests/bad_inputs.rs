@@ -83,10 +83,7 @@ fn missing_unreadable_truncated_and_foreign_files() {
 
 #[test]
 fn zero_rows() {
-    let empty: Vec<(&str, ArrayRef)> = vec![
-        ("a", float(&[])),
-        ("y", Arc::new(BooleanArray::from(Vec::<bool>::new())) as ArrayRef),
-    ];
+    let empty: Vec<(&str, ArrayRef)> = vec![("a", float(&[])), ("y", Arc::new(BooleanArray::from(Vec::<bool>::new())) as ArrayRef)];
     case(empty, "", "data.parquet: has no rows");
 }
 
@@ -101,17 +98,48 @@ fn target_missing_all_null_partly_null_constant_or_unsupported() {
     case(with(good_columns(), "y", bools(vec![None; 40])), "", "data.parquet: column `y`: is the target but every value is null");
     let mut some_null: Vec<Option<bool>> = (0..40).map(|i| Some(i % 2 == 0)).collect();
     some_null[7] = None;
-    case(with(good_columns(), "y", bools(some_null)), "", "data.parquet: column `y`: is the target but has 1 missing values (first at row 7); drop or label those rows");
-    case(with(good_columns(), "y", bools(vec![Some(true); 40])), "", "data.parquet: column `y`: is constant (every row is `true`); there is nothing to predict");
-    case(with(good_columns(), "y", float(&(0..40).map(|i| Some(i as f64 / 3.0)).collect::<Vec<_>>())), "",
-        "data.parquet: column `y`: has type Float64 but a class label must be a string, integer or boolean (or use task = \"regression\")");
+    case(
+        with(good_columns(), "y", bools(some_null)),
+        "",
+        "data.parquet: column `y`: is the target but has 1 missing values (first at row 7); drop or label those rows",
+    );
+    case(
+        with(good_columns(), "y", bools(vec![Some(true); 40])),
+        "",
+        "data.parquet: column `y`: is constant (every row is `true`); there is nothing to predict",
+    );
+    case(
+        with(good_columns(), "y", float(&(0..40).map(|i| Some(i as f64 / 3.0)).collect::<Vec<_>>())),
+        "",
+        "data.parquet: column `y`: has type Float64 but a class label must be a string, integer or boolean (or use task = \"regression\")",
+    );
     let three = Arc::new(Int64Array::from((0..40).map(|i| i % 3).collect::<Vec<i64>>())) as ArrayRef;
-    case(with(good_columns(), "y", three), "", "data.parquet: column `y`: has 3 distinct values but task = \"binary\" needs exactly 2 (use \"multiclass\")");
-    let text = Arc::new(StringArray::from((0..40).map(|i| if i < 38 { "a" } else if i == 38 { "b" } else { "c" }).collect::<Vec<_>>())) as ArrayRef;
+    case(
+        with(good_columns(), "y", three),
+        "",
+        "data.parquet: column `y`: has 3 distinct values but task = \"binary\" needs exactly 2 (use \"multiclass\")",
+    );
+    let text = Arc::new(StringArray::from(
+        (0..40)
+            .map(|i| {
+                if i < 38 {
+                    "a"
+                } else if i == 38 {
+                    "b"
+                } else {
+                    "c"
+                }
+            })
+            .collect::<Vec<_>>(),
+    )) as ArrayRef;
     let dir = tempfile::tempdir().unwrap();
     write_parquet(&dir.path().join("data.parquet"), with(good_columns(), "y", text));
     std::fs::write(dir.path().join("m.toml"), manifest("").replace("\"binary\"", "\"multiclass\"")).unwrap();
-    expect_error(dir.path(), "m.toml", "data.parquet: column `y`: class `b` has a single row; every class needs at least 2 rows to appear in training and evaluation");
+    expect_error(
+        dir.path(),
+        "m.toml",
+        "data.parquet: column `y`: class `b` has a single row; every class needs at least 2 rows to appear in training and evaluation",
+    );
 }
 
 #[test]
@@ -125,9 +153,17 @@ fn unsupported_column_type() {
 fn non_finite_and_empty_features() {
     let mut values: Vec<Option<f64>> = (0..40).map(|i| Some(i as f64)).collect();
     values[12] = Some(f64::NAN);
-    case(with(good_columns(), "a", float(&values)), "", "data.parquet: column `a`: row 12 holds NaN; tabcard needs finite numbers (store missing values as nulls)");
+    case(
+        with(good_columns(), "a", float(&values)),
+        "",
+        "data.parquet: column `a`: row 12 holds NaN; tabcard needs finite numbers (store missing values as nulls)",
+    );
     values[12] = Some(f64::INFINITY);
-    case(with(good_columns(), "a", float(&values)), "", "data.parquet: column `a`: row 12 holds inf; tabcard needs finite numbers (store missing values as nulls)");
+    case(
+        with(good_columns(), "a", float(&values)),
+        "",
+        "data.parquet: column `a`: row 12 holds inf; tabcard needs finite numbers (store missing values as nulls)",
+    );
     // Finite but so large that squares in the statistics overflow (issue: +-1e308 passed `check`
     // with "sd inf", then training failed without naming a column).
     values[12] = Some(-1e308);
@@ -137,7 +173,19 @@ fn non_finite_and_empty_features() {
     values[3] = Some(2.5e100);
     case(with(good_columns(), "a", float(&values)), "",
         "data.parquet: column `a`: row 3 holds 2.5e100, beyond ±1e100, where sums of squares in the statistics could overflow; rescale the column (other units)");
-    case(with(good_columns(), "a", float(&[None; 40])), "", "data.parquet: column `a`: has no values (every row is null); drop it or fill it");
-    case(good_columns(), "features = [\"a\", \"bb\"]\n", "data.parquet: column `bb`: named by data.features but not in the file (did you mean `b`?)");
-    case(good_columns(), "drop = [\"a\", \"b\"]\n", "data.parquet: no feature columns remain after removing the target, ids, groups and dropped columns");
+    case(
+        with(good_columns(), "a", float(&[None; 40])),
+        "",
+        "data.parquet: column `a`: has no values (every row is null); drop it or fill it",
+    );
+    case(
+        good_columns(),
+        "features = [\"a\", \"bb\"]\n",
+        "data.parquet: column `bb`: named by data.features but not in the file (did you mean `b`?)",
+    );
+    case(
+        good_columns(),
+        "drop = [\"a\", \"b\"]\n",
+        "data.parquet: no feature columns remain after removing the target, ids, groups and dropped columns",
+    );
 }

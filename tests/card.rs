@@ -21,12 +21,34 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
     let folder = trained(dir.path(), &manifest);
     let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
     let page = html(&card);
-    for heading in ["At a glance", "Purpose and ownership", "Cautions for decisions about people", "Data", "Capacity and regularization",
-        "Validation results", "Test results", "Known limitations", "Provenance and reproduction", "Review and sign-off"] {
+    for heading in [
+        "At a glance",
+        "Purpose and ownership",
+        "Cautions for decisions about people",
+        "Data",
+        "Capacity and regularization",
+        "Validation results",
+        "Test results",
+        "Known limitations",
+        "Provenance and reproduction",
+        "Review and sign-off",
+    ] {
         assert!(page.contains(&format!("<h2>{heading}")), "missing section {heading}");
     }
-    for needle in ["linear baseline", "weight decay (decoupled)", "dropout", "early stopping", "parameters", "95% bootstrap interval",
-        "Fairness across groups of people has not been assessed", "<table>", "Confusion matrix", "Preprocessing", "Youden", "Reliability"] {
+    for needle in [
+        "linear baseline",
+        "weight decay (decoupled)",
+        "dropout",
+        "early stopping",
+        "parameters",
+        "95% bootstrap interval",
+        "Fairness across groups of people has not been assessed",
+        "<table>",
+        "Confusion matrix",
+        "Preprocessing",
+        "Youden",
+        "Reliability",
+    ] {
         assert!(page.contains(needle), "card lacks {needle}");
     }
     let figures = ["learning-curves.svg", "grid-model-dropout.svg", "reliability.svg"];
@@ -34,16 +56,26 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
         assert!(page.contains(&format!("src=\"figures/{f}\"")), "card does not show {f}");
         let svg = std::fs::read_to_string(folder.join("figures").join(f)).unwrap();
         let doc = roxmltree::Document::parse(&svg).unwrap_or_else(|e| panic!("{f} is not XML: {e}"));
-        let series: Vec<&str> = doc.descendants().filter(|n| n.attribute("class") == Some("series")).filter_map(|n| n.attribute("data-series")).collect();
+        let series: Vec<&str> =
+            doc.descendants().filter(|n| n.attribute("class") == Some("series")).filter_map(|n| n.attribute("data-series")).collect();
         assert!(!series.is_empty(), "{f} has no series");
-        let points = doc.descendants().filter(|n| n.attribute("class") == Some("series")).filter_map(|n| n.attribute("points")).map(|p| p.split(' ').count()).max().unwrap();
+        let points = doc
+            .descendants()
+            .filter(|n| n.attribute("class") == Some("series"))
+            .filter_map(|n| n.attribute("points"))
+            .map(|p| p.split(' ').count())
+            .max()
+            .unwrap();
         assert!(points >= 2, "{f}: a series with {points} points");
         if f == "learning-curves.svg" {
             assert!(series.contains(&"seed 1 train") && series.contains(&"seed 2 validation"), "{series:?}");
         }
     }
 
-    let before: Vec<(String, Vec<u8>)> = ["card.md", "figures/learning-curves.svg", "figures/reliability.svg"].iter().map(|f| (f.to_string(), std::fs::read(folder.join(f)).unwrap())).collect();
+    let before: Vec<(String, Vec<u8>)> = ["card.md", "figures/learning-curves.svg", "figures/reliability.svg"]
+        .iter()
+        .map(|f| (f.to_string(), std::fs::read(folder.join(f)).unwrap()))
+        .collect();
     let out = run_in(dir.path(), &["card", folder.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
     for (f, bytes) in before {
@@ -71,7 +103,8 @@ fn hostile_names_and_levels_render_harmlessly() {
         ("y", Arc::new(BooleanArray::from((0..n).map(|i| (i % 17) > 8 || i % 5 == 0).collect::<Vec<_>>()))),
     ];
     write_parquet(&dir.path().join("data.parquet"), columns);
-    let text = manifest("\n[experiment.x]\n").replace("\n[experiment.x]\n", "")
+    let text = manifest("\n[experiment.x]\n")
+        .replace("\n[experiment.x]\n", "")
         .replace("name = \"test\"", "name = \"test\"\ndescription = \"<b>trusted</b> [link](http://x)\\n## Fake section\"")
         + "\n[model]\nhidden = [4]\n\n[training]\nepochs = 3\n\n[sweep]\nseeds = [1]\n\n[selection]\nbootstrap = 50\n";
     std::fs::write(dir.path().join("m.toml"), text).unwrap();

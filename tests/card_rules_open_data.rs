@@ -44,7 +44,12 @@ fn fast_training(seeds: &str) -> String {
 #[test]
 fn duplicate_rows_are_counted_as_pandas_counts_them() {
     let r = reference();
-    for (file, target, task) in [("mpg.parquet", "hwy", "regression"), ("iris.parquet", "species", "multiclass"), ("breast_cancer.parquet", "diagnosis", "binary"), ("diabetes.parquet", "progression", "regression")] {
+    for (file, target, task) in [
+        ("mpg.parquet", "hwy", "regression"),
+        ("iris.parquet", "species", "multiclass"),
+        ("breast_cancer.parquet", "diagnosis", "binary"),
+        ("diabetes.parquet", "progression", "regression"),
+    ] {
         let dir = tempfile::tempdir().unwrap();
         let m = open_manifest(dir.path(), file, &format!("target = \"{target}\"\ntask = \"{task}\"\n"));
         let exp = tabcard::experiment::open(&m).unwrap();
@@ -64,19 +69,36 @@ fn naive_cross_duplicates(exp: &tabcard::experiment::Experiment, evaluation: &[u
 #[test]
 fn duplicates_across_splits_fire_on_mpg_and_not_on_breast_cancer() {
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "mpg.parquet", &format!("target = \"hwy\"\ntask = \"regression\"\n\n[split]\nseed = 3\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "mpg.parquet",
+        &format!("target = \"hwy\"\ntask = \"regression\"\n\n[split]\nseed = 3\n{}", fast_training("[1, 2]")),
+    );
     let exp = tabcard::experiment::open(&m).unwrap();
     let checks = &exp.summary.split_checks;
     assert_eq!(checks.test_rows_duplicating_training, naive_cross_duplicates(&exp, &exp.splits.test));
     assert_eq!(checks.validation_rows_duplicating_training, naive_cross_duplicates(&exp, &exp.splits.validation));
-    assert!(checks.test_rows_duplicating_training + checks.validation_rows_duplicating_training > 0, "seed 3 puts some of mpg's 9 duplicates across splits");
+    assert!(
+        checks.test_rows_duplicating_training + checks.validation_rows_duplicating_training > 0,
+        "seed 3 puts some of mpg's 9 duplicates across splits"
+    );
     let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("duplicates_across_splits"), "{rules:?}");
-    assert!(card.contains(&format!("{} test rows and {} validation rows are exact copies", checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training)), "{card}");
+    assert!(
+        card.contains(&format!(
+            "{} test rows and {} validation rows are exact copies",
+            checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training
+        )),
+        "{card}"
+    );
     assert!(card.contains("of which 9 repeat an earlier row exactly"));
 
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "breast_cancer.parquet",
+        &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")),
+    );
     let (_, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("duplicates_across_splits"), "{rules:?}");
 }
@@ -96,7 +118,10 @@ fn a_linear_baseline_that_wins_is_flagged_and_named_in_the_headline() {
     let dir = tempfile::tempdir().unwrap();
     let m = open_manifest(dir.path(), "diamonds.parquet", "target = \"price\"\ntask = \"regression\"\n\n[split]\nseed = 3\n\n[model]\nhidden = [32, 32]\n\n[training]\nepochs = 60\nbatch_size = 128\nlearning_rate = 0.003\n\n[selection]\nbootstrap = 200\n");
     let (card, rules) = card_rules(dir.path(), &m);
-    assert!(!rules.contains("baseline_beats_network") && !rules.contains("baseline_within_noise") && !rules.contains("no_better_than_chance"), "{rules:?}");
+    assert!(
+        !rules.contains("baseline_beats_network") && !rules.contains("baseline_within_noise") && !rules.contains("no_better_than_chance"),
+        "{rules:?}"
+    );
     assert!(!card.contains("Reviewer's attention"));
 }
 
@@ -121,14 +146,22 @@ fn the_minority_rule_spares_balanced_iris_and_flags_the_digit_zero() {
 fn a_small_test_split_is_flagged_with_its_class_counts() {
     // Breast cancer, test = 0.1: 57 rows, of which 21 malignant (stratified), below 30.
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.1\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "breast_cancer.parquet",
+        &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.1\n{}", fast_training("[1, 2]")),
+    );
     let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("small_test_split"), "{rules:?}");
     assert!(card.contains("the test split of 57 rows holds 21 rows of class \"malignant\""), "{card}");
     assert!(card.contains("The test split holds 36 benign, 21 malignant."));
     // test = 0.3: 171 rows, 64 malignant.
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.3\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "breast_cancer.parquet",
+        &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.3\n{}", fast_training("[1, 2]")),
+    );
     let (_, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("small_test_split"), "{rules:?}");
 }
@@ -138,13 +171,21 @@ fn a_model_that_cannot_beat_chance_is_flagged() {
     // Sleepstudy: every subject is observed on every day (Belenky et al. 2003's design), so the
     // subject alone says nothing about whether a row is from day 5 or later.
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "sleepstudy.parquet", &format!("target = \"late\"\ntask = \"binary\"\nfeatures = [\"Subject\"]\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "sleepstudy.parquet",
+        &format!("target = \"late\"\ntask = \"binary\"\nfeatures = [\"Subject\"]\n{}", fast_training("[1, 2]")),
+    );
     let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("no_better_than_chance"), "{rules:?}");
     assert!(card.contains("**Reviewer's attention:** Do not use this model for decisions"), "{card}");
     // Breast cancer's diagnosis is well predicted (ROC AUC near 0.99).
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
+    let m = open_manifest(
+        dir.path(),
+        "breast_cancer.parquet",
+        &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")),
+    );
     let (_, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("no_better_than_chance"), "{rules:?}");
 }
@@ -157,7 +198,7 @@ fn subjects(exp: &tabcard::experiment::Experiment, rows: &[usize]) -> BTreeSet<S
 #[test]
 fn the_group_split_keeps_each_subject_in_one_split() {
     let r = reference();
-    let body = format!("target = \"Reaction\"\ntask = \"regression\"\nids = [\"Subject\"]\ndrop = [\"period\", \"late\"]\n\n[split]\nseed = 4\n");
+    let body = "target = \"Reaction\"\ntask = \"regression\"\nids = [\"Subject\"]\ndrop = [\"period\", \"late\"]\n\n[split]\nseed = 4\n";
     // A row split scatters every subject's 10 days over the splits: the rule fires.
     let dir = tempfile::tempdir().unwrap();
     let m = open_manifest(dir.path(), "sleepstudy.parquet", &format!("{body}{}", fast_training("[1]")));
@@ -171,7 +212,8 @@ fn the_group_split_keeps_each_subject_in_one_split() {
     let dir = tempfile::tempdir().unwrap();
     let m = open_manifest(dir.path(), "sleepstudy.parquet", &format!("{}group = \"Subject\"\n{}", body, fast_training("[1]")));
     let exp = tabcard::experiment::open(&m).unwrap();
-    let (train, validation, test) = (subjects(&exp, &exp.splits.train), subjects(&exp, &exp.splits.validation), subjects(&exp, &exp.splits.test));
+    let (train, validation, test) =
+        (subjects(&exp, &exp.splits.train), subjects(&exp, &exp.splits.validation), subjects(&exp, &exp.splits.test));
     assert!(train.is_disjoint(&validation) && train.is_disjoint(&test) && validation.is_disjoint(&test));
     assert_eq!(train.len() + validation.len() + test.len(), 18);
     assert!((3..=5).contains(&test.len()) && (3..=5).contains(&validation.len()), "{test:?} {validation:?}");
@@ -187,9 +229,18 @@ fn the_group_split_keeps_each_subject_in_one_split() {
 fn a_given_split_column_reproduces_the_assignment_exactly() {
     let r = reference();
     let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "sleepstudy.parquet", &format!("target = \"Reaction\"\ntask = \"regression\"\nids = [\"Subject\"]\ndrop = [\"late\"]\n\n[split]\ncolumn = \"period\"\n{}", fast_training("[1]")));
+    let m = open_manifest(
+        dir.path(),
+        "sleepstudy.parquet",
+        &format!(
+            "target = \"Reaction\"\ntask = \"regression\"\nids = [\"Subject\"]\ndrop = [\"late\"]\n\n[split]\ncolumn = \"period\"\n{}",
+            fast_training("[1]")
+        ),
+    );
     let exp = tabcard::experiment::open(&m).unwrap();
-    let rows = |part: &str| -> Vec<usize> { r["sleepstudy"]["period_rows"][part].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect() };
+    let rows = |part: &str| -> Vec<usize> {
+        r["sleepstudy"]["period_rows"][part].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect()
+    };
     assert_eq!(exp.splits.train, rows("train"));
     assert_eq!(exp.splits.validation, rows("validation"));
     assert_eq!(exp.splits.test, rows("test"));
@@ -211,8 +262,14 @@ fn compare_refuses_to_weigh_metrics_of_different_tasks() {
     let (a, b) = (dir.path().join("a"), dir.path().join("b"));
     std::fs::create_dir_all(&a).unwrap();
     std::fs::create_dir_all(&b).unwrap();
-    let binary = trained(&a, &open_manifest(&a, "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]"))));
-    let regression = trained(&b, &open_manifest(&b, "diabetes.parquet", &format!("target = \"progression\"\ntask = \"regression\"\n{}", fast_training("[1, 2]"))));
+    let binary = trained(
+        &a,
+        &open_manifest(&a, "breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]"))),
+    );
+    let regression = trained(
+        &b,
+        &open_manifest(&b, "diabetes.parquet", &format!("target = \"progression\"\ntask = \"regression\"\n{}", fast_training("[1, 2]"))),
+    );
     let out = run_in(dir.path(), &["compare", binary.to_str().unwrap(), regression.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
     let report = stdout(&out);

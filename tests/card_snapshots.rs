@@ -10,7 +10,17 @@ mod common;
 
 use common::*;
 
-const MASKED: &[&str] = &["**Trained at:**", "| results digest |", "| manifest repository commit |", "| tabcard |", "| numerics |", "| numerical kernels |", "| target |", "| CPU features |", "| C library |"];
+const MASKED: &[&str] = &[
+    "**Trained at:**",
+    "| results digest |",
+    "| manifest repository commit |",
+    "| tabcard |",
+    "| numerics |",
+    "| numerical kernels |",
+    "| target |",
+    "| CPU features |",
+    "| C library |",
+];
 
 fn masked(card: &str) -> String {
     card.lines()

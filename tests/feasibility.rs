@@ -28,7 +28,11 @@ fn an_infeasible_plan_fails_at_check_and_train_with_the_figures() {
         assert_eq!(out.status.code(), Some(2), "{command}: {}", stderr(&out));
         let err = stderr(&out);
         assert!(err.starts_with("error: huge.toml: the plan needs an estimated "), "{command}: {err}");
-        assert!(err.contains("MiB of memory, more than the ") && err.contains("MiB available: largest configuration model.hidden = [65536, 65536] with 429"), "{command}: {err}");
+        assert!(
+            err.contains("MiB of memory, more than the ")
+                && err.contains("MiB available: largest configuration model.hidden = [65536, 65536] with 429"),
+            "{command}: {err}"
+        );
         assert!(err.trim_end().ends_with("reduce `model.hidden` (or its grid values) or --jobs"), "{command}: {err}");
     }
     assert!(experiment_folder(&dir.path().join("results")).is_none(), "nothing is written");
@@ -53,8 +57,14 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
     let outputs = prepared.exp.head().outputs();
     for config in &prepared.plan.configs {
         let run = prepared.plan.runs.iter().find(|r| r.config_id == config.id).unwrap();
-        let metrics: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(folder.join("runs").join(&run.id).join("metrics.json")).unwrap()).unwrap();
-        assert_eq!(tabcard::feasibility::parameter_count(config, width, outputs), metrics["parameter_count"].as_u64().unwrap(), "{}", config.id);
+        let metrics: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(folder.join("runs").join(&run.id).join("metrics.json")).unwrap()).unwrap();
+        assert_eq!(
+            tabcard::feasibility::parameter_count(config, width, outputs),
+            metrics["parameter_count"].as_u64().unwrap(),
+            "{}",
+            config.id
+        );
     }
     assert!(tabcard::feasibility::input_width_bound(&prepared.exp) >= width);
 }

@@ -17,7 +17,12 @@ fn listed(folder: &Path) -> Vec<String> {
 }
 
 fn sha256sum_check(folder: &Path) -> Option<bool> {
-    Command::new("sha256sum").args(["-c", "--quiet", "--strict", "integrity.sha256"]).current_dir(folder).output().ok().map(|o| o.status.success())
+    Command::new("sha256sum")
+        .args(["-c", "--quiet", "--strict", "integrity.sha256"])
+        .current_dir(folder)
+        .output()
+        .ok()
+        .map(|o| o.status.success())
 }
 
 #[test]
@@ -27,7 +32,17 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     let manifest = small_lease_experiment(d, 400, "");
     let folder = trained(d, &manifest).canonicalize().unwrap();
     let paths = listed(&folder);
-    for must in ["manifest.json", "manifest.source.toml", "experiment.json", "data-summary.json", "plan.json", "preprocessor.json", "selection.json", "format.json", "card.md"] {
+    for must in [
+        "manifest.json",
+        "manifest.source.toml",
+        "experiment.json",
+        "data-summary.json",
+        "plan.json",
+        "preprocessor.json",
+        "selection.json",
+        "format.json",
+        "card.md",
+    ] {
         assert!(paths.iter().any(|p| p == must), "{must} is listed");
     }
     assert!(paths.iter().any(|p| p.starts_with("figures/")) && paths.iter().any(|p| p.ends_with("/weights.safetensors")));
@@ -35,7 +50,8 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
 
     // The digest: SHA-256 of the evidence lines, named by the card and the ledger.
     let text = std::fs::read_to_string(folder.join("integrity.sha256")).unwrap();
-    let evidence: String = text.lines().filter(|l| !l.ends_with("  card.md") && !l.contains("  figures/")).map(|l| format!("{l}\n")).collect();
+    let evidence: String =
+        text.lines().filter(|l| !l.ends_with("  card.md") && !l.contains("  figures/")).map(|l| format!("{l}\n")).collect();
     let digest = tabcard::fingerprint::sha256_hex(evidence.as_bytes());
     assert!(std::fs::read_to_string(folder.join("card.md")).unwrap().contains(&format!("`{digest}`")));
     let ledger = std::fs::read_to_string(d.join("results/ledger.jsonl")).unwrap();
@@ -56,7 +72,11 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
         bytes[last] ^= 0x01;
         std::fs::write(&file, &bytes).unwrap();
         let expected = format!("error: {}: was changed after it was recorded", file.display());
-        for args in [vec!["verify", copy.to_str().unwrap()], vec!["card", copy.to_str().unwrap()], vec!["compare", folder.to_str().unwrap(), copy.to_str().unwrap()]] {
+        for args in [
+            vec!["verify", copy.to_str().unwrap()],
+            vec!["card", copy.to_str().unwrap()],
+            vec!["compare", folder.to_str().unwrap(), copy.to_str().unwrap()],
+        ] {
             let out = run_in(d, &args);
             assert_eq!(out.status.code(), Some(6), "{args:?} after editing {path}: {}", stderr(&out));
             assert!(stderr(&out).starts_with(&expected), "{args:?} after editing {path}: {}", stderr(&out));
@@ -75,7 +95,13 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     copy_dir(&folder, &copy);
     std::fs::write(copy.join("notes.txt"), "added").unwrap();
     let out = run_in(d, &["verify", copy.to_str().unwrap()]);
-    assert_eq!(stderr(&out).trim_end(), format!("error: {}: is not listed in integrity.sha256: it was added after the results were recorded", copy.join("notes.txt").display()));
+    assert_eq!(
+        stderr(&out).trim_end(),
+        format!(
+            "error: {}: is not listed in integrity.sha256: it was added after the results were recorded",
+            copy.join("notes.txt").display()
+        )
+    );
     std::fs::remove_file(copy.join("notes.txt")).unwrap();
     std::fs::remove_file(copy.join("plan.json")).unwrap();
     let out = run_in(d, &["card", copy.to_str().unwrap()]);
@@ -89,7 +115,12 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     let out = run_in(d, &["verify", folder.to_str().unwrap()]);
     assert!(out.status.success(), "{}{}", stdout(&out), stderr(&out));
     assert!(stdout(&out).contains("selection re-derived from the stored runs: matches selection.json"), "{}", stdout(&out));
-    assert!(stdout(&out).contains(&format!("digest    {digest}: every stored file matches integrity.sha256, and the ledger records this digest")), "{}", stdout(&out));
+    assert!(
+        stdout(&out)
+            .contains(&format!("digest    {digest}: every stored file matches integrity.sha256, and the ledger records this digest")),
+        "{}",
+        stdout(&out)
+    );
     assert!(stdout(&out).contains("card      matches the card rendered from the stored evidence"), "{}", stdout(&out));
     let out = run_in(d, &["card", folder.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
@@ -109,5 +140,9 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     let out = run_in(d, &["verify", folder.to_str().unwrap()]);
     assert_eq!(out.status.code(), Some(6), "{}", stdout(&out));
     assert!(stdout(&out).contains("selection DIFFERS"), "{}", stdout(&out));
-    assert!(stdout(&out).contains(&format!("DIFFERS from the ledger's {digest}: integrity.sha256 was rewritten after training")), "{}", stdout(&out));
+    assert!(
+        stdout(&out).contains(&format!("DIFFERS from the ledger's {digest}: integrity.sha256 was rewritten after training")),
+        "{}",
+        stdout(&out)
+    );
 }

@@ -109,7 +109,10 @@ fn upward(module: &str, own: usize, code: &str) -> Vec<String> {
 #[test]
 fn an_upward_import_is_caught() {
     let card = layer_of("card").unwrap();
-    assert_eq!(upward("card", card, "use crate::commands::train::config_label;"), vec!["`card` uses `crate::commands`, which is not below it"]);
+    assert_eq!(
+        upward("card", card, "use crate::commands::train::config_label;"),
+        vec!["`card` uses `crate::commands`, which is not below it"]
+    );
     assert!(upward("card", card, "use crate::{plan::config_label, store::Layout};").is_empty());
     let metrics = layer_of("metrics").unwrap();
     assert_eq!(upward("metrics", metrics, "use crate::manifest::Task;").len(), 1);

@@ -37,10 +37,11 @@ fn binary_metrics_match_scikit_learn() {
         }
         let predicted = predicted_classes(&probs, 2);
         let report = per_class(&labels, &predicted, 2);
-        for c in 0..2 {
-            close(&format!("{name} precision[{c}]"), Some(report[c].precision), floats(&e["precision"])[c]);
-            close(&format!("{name} recall[{c}]"), Some(report[c].recall), floats(&e["recall"])[c]);
-            close(&format!("{name} f1[{c}]"), Some(report[c].f1), floats(&e["f1"])[c]);
+        assert_eq!(report.len(), 2, "{name}");
+        for (c, class) in report.iter().enumerate() {
+            close(&format!("{name} precision[{c}]"), Some(class.precision), floats(&e["precision"])[c]);
+            close(&format!("{name} recall[{c}]"), Some(class.recall), floats(&e["recall"])[c]);
+            close(&format!("{name} f1[{c}]"), Some(class.f1), floats(&e["f1"])[c]);
         }
         let confusion: Vec<Vec<usize>> = serde_json::from_value(e["confusion"].clone()).unwrap();
         assert_eq!(confusion_matrix(&labels, &predicted, 2), confusion, "{name}");
@@ -97,10 +98,11 @@ fn multiclass_metrics_match_scikit_learn() {
     }
     let predicted = predicted_classes(&probs, 3);
     let report = per_class(&labels, &predicted, 3);
-    for c in 0..3 {
-        close("precision", Some(report[c].precision), floats(&e["precision"])[c]);
-        close("recall", Some(report[c].recall), floats(&e["recall"])[c]);
-        close("f1", Some(report[c].f1), floats(&e["f1"])[c]);
+    assert_eq!(report.len(), 3);
+    for (c, class) in report.iter().enumerate() {
+        close("precision", Some(class.precision), floats(&e["precision"])[c]);
+        close("recall", Some(class.recall), floats(&e["recall"])[c]);
+        close("f1", Some(class.f1), floats(&e["f1"])[c]);
     }
     let confusion: Vec<Vec<usize>> = serde_json::from_value(e["confusion"].clone()).unwrap();
     assert_eq!(confusion_matrix(&labels, &predicted, 3), confusion);

@@ -75,8 +75,13 @@ fn mlp_reaches_the_usual_auc_on_breast_cancer() {
     // Floor: logistic regression and small MLPs commonly reach ROC AUC above 0.98 on this table
     // (common practice, from memory); we require 0.97 on a 114-row validation split.
     let dir = tempfile::tempdir().unwrap();
-    let exp = experiment(dir.path(), "breast_cancer.parquet", "diagnosis", "binary",
-        "\n[model]\nhidden = [16]\n\n[training]\nlearning_rate = 0.003\nepochs = 100\nbatch_size = 32\n");
+    let exp = experiment(
+        dir.path(),
+        "breast_cancer.parquet",
+        "diagnosis",
+        "binary",
+        "\n[model]\nhidden = [16]\n\n[training]\nlearning_rate = 0.003\nepochs = 100\nbatch_size = 32\n",
+    );
     let auc = fit_and_score(&exp, "roc_auc");
     assert!(auc >= 0.97, "breast cancer validation ROC AUC {auc}");
 }

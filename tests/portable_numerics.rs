@@ -134,7 +134,11 @@ fn first_difference(want: &BTreeMap<String, BTreeMap<String, String>>, got: &BTr
             }
         }
         if got[run].len() != files.len() {
-            return Some(format!("run {run} stores other files: golden {:?}, now {:?}", files.keys().collect::<Vec<_>>(), got[run].keys().collect::<Vec<_>>()));
+            return Some(format!(
+                "run {run} stores other files: golden {:?}, now {:?}",
+                files.keys().collect::<Vec<_>>(),
+                got[run].keys().collect::<Vec<_>>()
+            ));
         }
     }
     None
@@ -164,7 +168,8 @@ fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restrict
 
     let golden_path = repo_path(GOLDEN);
     if std::env::var_os("TABCARD_WRITE_GOLDEN").is_some() {
-        let mut golden: Value = std::fs::read(&golden_path).ok().and_then(|b| serde_json::from_slice(&b).ok()).unwrap_or_else(|| serde_json::json!({}));
+        let mut golden: Value =
+            std::fs::read(&golden_path).ok().and_then(|b| serde_json::from_slice(&b).ok()).unwrap_or_else(|| serde_json::json!({}));
         golden["tool_version"] = env!("CARGO_PKG_VERSION").into();
         golden["kernel_version"] = tabcard::numerics::KERNEL_VERSION.into();
         golden["digests"] = serde_json::to_value(&fast).unwrap();
@@ -173,7 +178,11 @@ fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restrict
         return;
     }
     let golden: Value = serde_json::from_slice(&std::fs::read(&golden_path).expect("the golden file is committed")).unwrap();
-    assert_eq!(golden["tool_version"], env!("CARGO_PKG_VERSION"), "{GOLDEN} is for another tabcard version: regenerate it deliberately (see the top of this file)");
+    assert_eq!(
+        golden["tool_version"],
+        env!("CARGO_PKG_VERSION"),
+        "{GOLDEN} is for another tabcard version: regenerate it deliberately (see the top of this file)"
+    );
     assert_eq!(golden["kernel_version"], tabcard::numerics::KERNEL_VERSION);
     let want: BTreeMap<String, BTreeMap<String, String>> = serde_json::from_value(golden["digests"].clone()).unwrap();
     if let Some(d) = first_difference(&want, &fast) {
@@ -181,8 +190,11 @@ fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restrict
     }
 }
 
+/// (weights digest, history, metrics) of every run, by run id.
+type RunContents = BTreeMap<String, (String, String, String)>;
+
 /// The stored history, metrics and weight digests of every run, by run id.
-fn run_contents(results: &Path) -> BTreeMap<String, (String, String, String)> {
+fn run_contents(results: &Path) -> RunContents {
     let mut out = BTreeMap::new();
     for (name, dir) in run_folders(results) {
         let read = |f: &str| std::fs::read_to_string(dir.join(f)).unwrap_or_default();
@@ -196,7 +208,7 @@ fn run_contents(results: &Path) -> BTreeMap<String, (String, String, String)> {
 fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level() {
     let dir = tempfile::tempdir().unwrap();
     let manifest = repo_path("experiments/lease-default.toml");
-    let mut reference: Option<(Level, BTreeMap<String, (String, String, String)>)> = None;
+    let mut reference: Option<(Level, RunContents)> = None;
     for level in Level::available_levels().into_iter().rev() {
         let results = train(bin(), dir.path(), &manifest, level.name(), "2", level);
         let contents = run_contents(&results);
@@ -223,7 +235,12 @@ fn an_unusable_forced_level_is_a_clear_error() {
     // A level this CPU cannot run: NEON on x86-64, AVX2 on aarch64.
     let foreign = Level::ALL.into_iter().find(|l| !l.available()).expect("some level is foreign to this CPU");
     for (value, expected) in [("sse9", "is not a dispatch level"), (foreign.name(), "this CPU cannot run that level")] {
-        let out = bin().current_dir(dir.path()).args(["train", manifest.to_str().unwrap(), "--results", "r"]).env("TABCARD_KERNEL", value).output().unwrap();
+        let out = bin()
+            .current_dir(dir.path())
+            .args(["train", manifest.to_str().unwrap(), "--results", "r"])
+            .env("TABCARD_KERNEL", value)
+            .output()
+            .unwrap();
         assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
         assert!(stderr(&out).contains(expected) && stderr(&out).contains("TABCARD_KERNEL"), "{}", stderr(&out));
         assert!(experiment_folder(&dir.path().join("r")).is_none(), "nothing is written before the error");

@@ -50,7 +50,12 @@ fn predict_refuses_to_overwrite_evidence_and_writes_the_named_format() {
     // An existing file: refused without --force, replaced with it.
     let existing = d.join("scored.parquet");
     let before = std::fs::read(&existing).unwrap();
-    refused(&predict(d, &folder, "leases.parquet", "scored.parquet", &[]), "--out scored.parquet exists; pass --force to replace it", &existing, &before);
+    refused(
+        &predict(d, &folder, "leases.parquet", "scored.parquet", &[]),
+        "--out scored.parquet exists; pass --force to replace it",
+        &existing,
+        &before,
+    );
     let out = predict(d, &folder, "leases.parquet", "scored.parquet", &["--force"]);
     assert!(out.status.success(), "{}", stderr(&out));
 
@@ -69,7 +74,9 @@ fn predict_refuses_to_overwrite_evidence_and_writes_the_named_format() {
     let selection: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(folder.join("selection.json")).unwrap()).unwrap();
     let run = folder.join("runs").join(selection["selected_run"].as_str().unwrap());
     let weights = run.join("weights.safetensors");
-    for (target, store) in [(weights.clone(), folder.clone()), (folder.join("card.md"), folder.clone()), (folder.join("new.csv"), folder.clone())] {
+    for (target, store) in
+        [(weights.clone(), folder.clone()), (folder.join("card.md"), folder.clone()), (folder.join("new.csv"), folder.clone())]
+    {
         let target_text = target.to_str().unwrap().to_string();
         let out = predict(d, &folder, "leases.parquet", &target_text, &["--force"]);
         assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
@@ -80,7 +87,15 @@ fn predict_refuses_to_overwrite_evidence_and_writes_the_named_format() {
         );
     }
     let out = predict(d, &folder, "leases.parquet", "results/p.parquet", &[]);
-    assert!(stderr(&out).contains("is inside the results store") && stderr(&out).ends_with(&format!("{}, whose files are the audit trail; write the predictions elsewhere\n", d.join("results").canonicalize().unwrap().display())), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("is inside the results store")
+            && stderr(&out).ends_with(&format!(
+                "{}, whose files are the audit trail; write the predictions elsewhere\n",
+                d.join("results").canonicalize().unwrap().display()
+            )),
+        "{}",
+        stderr(&out)
+    );
     assert!(!folder.join("new.csv").exists() && !d.join("results/p.parquet").exists());
 
     // The extension must name the format.

@@ -35,7 +35,11 @@ fn assert_store_consistent(folder: &Path) {
 fn snapshot_runs(folder: &Path) -> Vec<(String, Vec<u8>)> {
     let mut out = Vec::new();
     let runs = folder.join("runs");
-    let mut names: Vec<_> = std::fs::read_dir(&runs).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| !n.starts_with('.')).collect();
+    let mut names: Vec<_> = std::fs::read_dir(&runs)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| !n.starts_with('.'))
+        .collect();
     names.sort();
     for n in names {
         for f in ["metrics.json", "weights.safetensors", "history.csv"] {
@@ -63,10 +67,13 @@ fn sigkill_at_random_points_never_leaves_a_partial_run_readable() {
     for attempt in 0..4 {
         let results = format!("killed-{attempt}");
         let delay = Duration::from_millis(30 + stream.below(900));
-        let mut child = bin().current_dir(dir.path())
+        let mut child = bin()
+            .current_dir(dir.path())
             .args(["train", manifest.to_str().unwrap(), "--results", &results, "--jobs", "2"])
-            .stdout(std::process::Stdio::null()).stderr(std::process::Stdio::null())
-            .spawn().unwrap();
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap();
         std::thread::sleep(delay);
         child.kill().unwrap();
         child.wait().unwrap();
@@ -85,10 +92,15 @@ fn sigkill_at_random_points_never_leaves_a_partial_run_readable() {
 fn two_concurrent_trains_of_one_experiment_agree() {
     let dir = tempfile::tempdir().unwrap();
     let manifest = slow_experiment(dir.path());
-    let spawn = || bin().current_dir(dir.path())
-        .args(["train", manifest.to_str().unwrap(), "--results", "shared", "--jobs", "1"])
-        .stdout(std::process::Stdio::piped()).stderr(std::process::Stdio::piped())
-        .spawn().unwrap();
+    let spawn = || {
+        bin()
+            .current_dir(dir.path())
+            .args(["train", manifest.to_str().unwrap(), "--results", "shared", "--jobs", "1"])
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap()
+    };
     let (a, b) = (spawn(), spawn());
     let (a, b) = (a.wait_with_output().unwrap(), b.wait_with_output().unwrap());
     assert!(a.status.success(), "{}", stderr(&a));
@@ -102,11 +114,23 @@ fn two_concurrent_trains_of_one_experiment_agree() {
     // and added no ledger line (one line per completed selection).
     let planned: usize = [&a, &b]
         .iter()
-        .find_map(|o| stdout(o).lines().find(|l| l.starts_with("runs: ")).and_then(|l| l.split(", ").last()).and_then(|p| p.split(' ').next()).and_then(|n| n.parse().ok()))
+        .find_map(|o| {
+            stdout(o)
+                .lines()
+                .find(|l| l.starts_with("runs: "))
+                .and_then(|l| l.split(", ").last())
+                .and_then(|p| p.split(' ').next())
+                .and_then(|n| n.parse().ok())
+        })
         .expect("one process trained");
     let trained: Vec<usize> = [&a, &b]
         .iter()
-        .map(|o| stdout(o).lines().find_map(|l| l.strip_prefix("runs: ").and_then(|r| r.split(' ').next()).and_then(|n| n.parse().ok())).unwrap_or(0))
+        .map(|o| {
+            stdout(o)
+                .lines()
+                .find_map(|l| l.strip_prefix("runs: ").and_then(|r| r.split(' ').next()).and_then(|n| n.parse().ok()))
+                .unwrap_or(0)
+        })
         .collect();
     assert_eq!(trained.iter().sum::<usize>(), planned, "each run trained once: {trained:?}\n{}\n{}", stdout(&a), stdout(&b));
     // The other found the runs stored: after waiting for the first (it then says for whom; the
@@ -144,7 +168,9 @@ fn a_full_disk_gives_a_clear_error_and_no_corrupt_result() {
     // Whatever was written before the disk filled is whole, and no temporary run folder survives.
     let folder = experiment_folder(&mount).expect("the experiment folder was started");
     assert_store_consistent(&folder);
-    let leftovers: Vec<String> = std::fs::read_dir(folder.join("runs")).map(|d| d.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| n.starts_with('.')).collect()).unwrap_or_default();
+    let leftovers: Vec<String> = std::fs::read_dir(folder.join("runs"))
+        .map(|d| d.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| n.starts_with('.')).collect())
+        .unwrap_or_default();
     assert!(leftovers.is_empty(), "temporary folders left behind: {leftovers:?}");
     assert!(!folder.join("card.md").exists() || std::fs::read_to_string(folder.join("card.md")).unwrap().contains("## Provenance"));
 }
@@ -171,7 +197,10 @@ fn tampered_or_foreign_results_fail_clearly() {
     for args in [vec!["card", "newer"], vec!["verify", "newer"], vec!["predict", "newer", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
-        let expected = format!("error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 2", env!("CARGO_PKG_VERSION"));
+        let expected = format!(
+            "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 2",
+            env!("CARGO_PKG_VERSION")
+        );
         assert_eq!(stderr(&o).trim_end(), expected, "{args:?}");
     }
     // A folder of layout version 1 (before integrity lists) is named as such.
@@ -180,7 +209,13 @@ fn tampered_or_foreign_results_fail_clearly() {
     std::fs::remove_file(older.join("integrity.sha256")).unwrap();
     let o = run_in(dir.path(), &["verify", "older"]);
     assert_eq!(o.status.code(), Some(3));
-    assert!(stderr(&o).starts_with("error: older/format.json: results layout version 1, written by tabcard 0.3.0 before results folders carried integrity.sha256"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).starts_with(
+            "error: older/format.json: results layout version 1, written by tabcard 0.3.0 before results folders carried integrity.sha256"
+        ),
+        "{}",
+        stderr(&o)
+    );
     let unknown = copy("unknown");
     std::fs::remove_file(unknown.join("format.json")).unwrap();
     let o = run_in(dir.path(), &["card", "unknown"]);
@@ -212,13 +247,21 @@ fn tampered_or_foreign_results_fail_clearly() {
     let bytes = std::fs::read(&weights).unwrap();
     std::fs::write(&weights, &bytes[..bytes.len() / 3]).unwrap();
     let o = run_in(dir.path(), &["predict", "truncated", "leases.parquet", "--out", "p.parquet"]);
-    assert!(stderr(&o).starts_with(&format!("error: truncated/runs/{run}/weights.safetensors: was changed after it was recorded")), "{}", stderr(&o));
+    assert!(
+        stderr(&o).starts_with(&format!("error: truncated/runs/{run}/weights.safetensors: was changed after it was recorded")),
+        "{}",
+        stderr(&o)
+    );
     // With the folder's list rewritten, the run's own index still catches it.
     tabcard::store::integrity::seal(&truncated, |_| Ok(())).unwrap();
     for args in [vec!["card", "truncated"], vec!["predict", "truncated", "leases.parquet", "--out", "p.parquet"]] {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
-        assert!(stderr(&o).contains(&format!("truncated/runs/{run}/weights.safetensors: fails its integrity check")), "{args:?}: {}", stderr(&o));
+        assert!(
+            stderr(&o).contains(&format!("truncated/runs/{run}/weights.safetensors: fails its integrity check")),
+            "{args:?}: {}",
+            stderr(&o)
+        );
     }
     assert!(!dir.path().join("p.parquet").exists());
 }
@@ -232,7 +275,8 @@ fn data_outside_the_project_is_reported() {
     std::fs::create_dir_all(&exp_dir).unwrap();
     let manifest = small_lease_experiment(&data_dir, 1500, "");
     let text = std::fs::read_to_string(&manifest).unwrap();
-    std::fs::write(exp_dir.join("dotdot.toml"), text.replace("path = \"leases.parquet\"", "path = \"../shared-data/leases.parquet\"")).unwrap();
+    std::fs::write(exp_dir.join("dotdot.toml"), text.replace("path = \"leases.parquet\"", "path = \"../shared-data/leases.parquet\""))
+        .unwrap();
     std::os::unix::fs::symlink(data_dir.join("leases.parquet"), exp_dir.join("linked.parquet")).unwrap();
     std::fs::write(exp_dir.join("symlink.toml"), text.replace("path = \"leases.parquet\"", "path = \"linked.parquet\"")).unwrap();
     // Outside git, the project is the manifest's folder: both files leave it.
@@ -248,7 +292,10 @@ fn data_outside_the_project_is_reported() {
     assert!(!stdout(&inside).contains(note));
     let folder = experiment_folder(&exp_dir.join("results")).unwrap();
     let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
-    assert!(card.contains("**The file lies outside the project that holds the manifest**"), "the card must say the data does not travel with a checkout");
+    assert!(
+        card.contains("**The file lies outside the project that holds the manifest**"),
+        "the card must say the data does not travel with a checkout"
+    );
     let record = std::fs::read_to_string(folder.join("experiment.json")).unwrap();
     assert!(!record.contains(&dir.path().display().to_string()), "experiment.json holds an absolute path: {record}");
     // In a git work tree holding both folders, the same layout is one project: no note.

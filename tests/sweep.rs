@@ -42,7 +42,8 @@ fn snapshot(root: &Path) -> BTreeMap<String, Vec<u8>> {
 }
 
 fn train(dir: &Path, manifest: &Path, results: &str, jobs: &str, rayon: &str) -> std::process::Output {
-    bin().current_dir(dir)
+    bin()
+        .current_dir(dir)
         .args(["train", manifest.to_str().unwrap(), "--results", results, "--jobs", jobs])
         .env("RAYON_NUM_THREADS", rayon)
         .output()
@@ -80,10 +81,8 @@ fn worker_count_and_thread_settings_do_not_change_the_results() {
 
 fn finished_runs(runs: &Path) -> Vec<String> {
     let Ok(entries) = std::fs::read_dir(runs) else { return Vec::new() };
-    let mut out: Vec<String> = entries
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| !n.starts_with('.'))
-        .collect();
+    let mut out: Vec<String> =
+        entries.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| !n.starts_with('.')).collect();
     out.sort();
     out
 }
@@ -100,7 +99,8 @@ fn a_killed_sweep_resumes_without_redoing_or_changing_finished_runs() {
     assert!(reference.status.success(), "{}", stderr(&reference));
     let expected = snapshot(&experiment_folder(&dir.path().join("reference")).unwrap());
 
-    let mut child = bin().current_dir(dir.path())
+    let mut child = bin()
+        .current_dir(dir.path())
         .args(["train", manifest.to_str().unwrap(), "--results", "killed", "--jobs", "1"])
         .stdout(std::process::Stdio::null())
         .stderr(std::process::Stdio::null())
@@ -108,10 +108,12 @@ fn a_killed_sweep_resumes_without_redoing_or_changing_finished_runs() {
         .unwrap();
     let started = Instant::now();
     let runs_dir = loop {
-        let found = std::fs::read_dir(dir.path().join("killed")).ok().and_then(|mut e| e.find_map(|x| {
-            let p = x.unwrap().path();
-            p.is_dir().then(|| p.join("runs"))
-        }));
+        let found = std::fs::read_dir(dir.path().join("killed")).ok().and_then(|mut e| {
+            e.find_map(|x| {
+                let p = x.unwrap().path();
+                p.is_dir().then(|| p.join("runs"))
+            })
+        });
         if let Some(runs) = found {
             if finished_runs(&runs).len() >= 2 {
                 break runs;
@@ -145,7 +147,10 @@ fn a_diverging_run_is_recorded_and_the_others_go_on() {
     let dir = tempfile::tempdir().unwrap();
     let grid = "[sweep.grid]\n\"training.learning_rate\" = [0.01, 1e30]\n";
     let manifest = small_lease_experiment(dir.path(), 2000, grid);
-    let text = std::fs::read_to_string(&manifest).unwrap().replace("[training]", "[training]\noptimizer = \"sgd\"").replace("seeds = [1, 2]", "seeds = [1]");
+    let text = std::fs::read_to_string(&manifest)
+        .unwrap()
+        .replace("[training]", "[training]\noptimizer = \"sgd\"")
+        .replace("seeds = [1, 2]", "seeds = [1]");
     std::fs::write(&manifest, text).unwrap();
     let out = train(dir.path(), &manifest, "results", "2", "1");
     assert_eq!(out.status.code(), Some(5), "{}", stderr(&out));
@@ -173,7 +178,8 @@ fn shards_trained_apart_then_merged_equal_one_local_sweep() {
     let mut sizes = Vec::new();
     for k in 0..3 {
         let shard = format!("{k}/3");
-        let out = bin().current_dir(dir.path())
+        let out = bin()
+            .current_dir(dir.path())
             .args(["train", manifest.to_str().unwrap(), "--results", "sharded", "--jobs", "1", "--shard", &shard])
             .output()
             .unwrap();

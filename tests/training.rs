@@ -5,8 +5,8 @@
 use candle_core::{DType, Tensor};
 use tabcard::data::prep::Matrix;
 use tabcard::manifest::{Activation, ModelSpec, Optimizer, RegressionLoss, Schedule, Task, TrainingSpec};
-use tabcard::nn::layers::{dropout, tensor_from, BatchNorm, BN_EPS};
 use tabcard::nn::engine::Engine;
+use tabcard::nn::layers::{dropout, tensor_from, BatchNorm, BN_EPS};
 use tabcard::nn::loss::{self, objective_and_gradient, Objective};
 use tabcard::nn::mlp::{Mlp, Mode};
 use tabcard::plan::RunConfig;
@@ -46,7 +46,9 @@ fn xor_needs_a_hidden_layer() {
     // With 8 ReLU units most seeds fit XOR exactly; a seed can stall in a local minimum of the
     // cross-entropy (why sweeps run several seeds: common practice), so 4 of 5 must fit.
     let mlp = RunConfig { model: spec(vec![8], Activation::Relu), training: xor_training() };
-    let fitted = (1..=5).filter(|&seed| train(head(Task::Binary, 2), &mlp, seed, &data, "accuracy").unwrap().validation_metrics["accuracy"] == Some(1.0)).count();
+    let fitted = (1..=5)
+        .filter(|&seed| train(head(Task::Binary, 2), &mlp, seed, &data, "accuracy").unwrap().validation_metrics["accuracy"] == Some(1.0))
+        .count();
     assert!(fitted >= 4, "only {fitted} of 5 seeds fitted XOR with a hidden layer");
 }
 
@@ -93,7 +95,12 @@ fn gradient_check(model_spec: ModelSpec, task: Task, classes: usize, loss_kind: 
             let numeric = (eval_at(h) - eval_at(-h)) / (2.0 * h);
             var.set(&Tensor::from_vec(original.clone(), shape.as_slice(), &candle_core::Device::Cpu).unwrap()).unwrap();
             let tolerance = 1e-6 * analytic[i].abs().max(numeric.abs()).max(1e-3);
-            assert!((analytic[i] - numeric).abs() <= tolerance, "{loss_kind} {:?} {name}[{i}]: autograd {} vs finite difference {numeric}", model_spec.activation, analytic[i]);
+            assert!(
+                (analytic[i] - numeric).abs() <= tolerance,
+                "{loss_kind} {:?} {name}[{i}]: autograd {} vs finite difference {numeric}",
+                model_spec.activation,
+                analytic[i]
+            );
         }
     }
 }
@@ -135,18 +142,24 @@ fn engine_matches_autograd(model_spec: ModelSpec, task: Task, classes: usize, ob
     let engine_loss = objective_and_gradient(objective, logits, &targets, grad);
     engine.backward(0.0);
 
-    let raw = model.forward(&x, &mut Mode::Train { dropout: &mut Stream::new(1, Purpose::Dropout), noise: &mut Stream::new(1, Purpose::InputNoise) }).unwrap();
+    let raw = model
+        .forward(&x, &mut Mode::Train { dropout: &mut Stream::new(1, Purpose::Dropout), noise: &mut Stream::new(1, Purpose::InputNoise) })
+        .unwrap();
     let dev = candle_core::Device::Cpu;
     let loss = match objective {
         Objective::BinaryCrossEntropy => loss::binary_cross_entropy(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap()),
-        Objective::SoftmaxCrossEntropy { .. } => loss::softmax_cross_entropy(&raw, &Tensor::from_vec(targets.iter().map(|&t| t as u32).collect::<Vec<_>>(), n, &dev).unwrap()),
+        Objective::SoftmaxCrossEntropy { .. } => {
+            loss::softmax_cross_entropy(&raw, &Tensor::from_vec(targets.iter().map(|&t| t as u32).collect::<Vec<_>>(), n, &dev).unwrap())
+        }
         Objective::MeanSquaredError => loss::mean_squared_error(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap()),
         Objective::Huber { delta } => loss::huber(&raw, &Tensor::from_vec(targets.clone(), (n, 1), &dev).unwrap(), delta),
     }
     .unwrap();
     // Relative 1e-10, with an absolute floor of 1e-12 for values that are zero analytically (a
     // bias followed by batch norm) and come out as rounding noise near 1e-16 either way.
-    let close = |a: f64, b: f64, what: &str| assert!((a - b).abs() <= (1e-10 * a.abs().max(b.abs())).max(1e-12), "{what}: engine {a} vs autograd {b} ({model_spec:?})");
+    let close = |a: f64, b: f64, what: &str| {
+        assert!((a - b).abs() <= (1e-10 * a.abs().max(b.abs())).max(1e-12), "{what}: engine {a} vs autograd {b} ({model_spec:?})")
+    };
     close(engine_loss, loss.to_scalar::<f64>().unwrap(), "loss");
     for (a, b) in engine_logits.iter().zip(raw.flatten_all().unwrap().to_vec1::<f64>().unwrap()) {
         close(*a, b, "logit");
@@ -178,10 +191,30 @@ fn the_training_engine_computes_autograds_gradients() {
     for act in [Activation::Relu, Activation::Sigmoid, Activation::Tanh, Activation::Gelu] {
         engine_matches_autograd(spec(vec![5, 4], act), Task::Binary, 2, Objective::BinaryCrossEntropy);
     }
-    engine_matches_autograd(ModelSpec { batch_norm: true, ..spec(vec![4, 4], Activation::Tanh) }, Task::Regression, 1, Objective::MeanSquaredError);
-    engine_matches_autograd(ModelSpec { batch_norm: true, dropout: 0.3, ..spec(vec![6, 6], Activation::Relu) }, Task::Binary, 2, Objective::BinaryCrossEntropy);
-    engine_matches_autograd(ModelSpec { residual: true, input_noise: 0.2, ..spec(vec![4, 4, 4], Activation::Tanh) }, Task::Regression, 1, Objective::Huber { delta: 0.7 });
-    engine_matches_autograd(ModelSpec { dropout: 0.5, ..spec(vec![5], Activation::Gelu) }, Task::Multiclass, 3, Objective::SoftmaxCrossEntropy { classes: 3 });
+    engine_matches_autograd(
+        ModelSpec { batch_norm: true, ..spec(vec![4, 4], Activation::Tanh) },
+        Task::Regression,
+        1,
+        Objective::MeanSquaredError,
+    );
+    engine_matches_autograd(
+        ModelSpec { batch_norm: true, dropout: 0.3, ..spec(vec![6, 6], Activation::Relu) },
+        Task::Binary,
+        2,
+        Objective::BinaryCrossEntropy,
+    );
+    engine_matches_autograd(
+        ModelSpec { residual: true, input_noise: 0.2, ..spec(vec![4, 4, 4], Activation::Tanh) },
+        Task::Regression,
+        1,
+        Objective::Huber { delta: 0.7 },
+    );
+    engine_matches_autograd(
+        ModelSpec { dropout: 0.5, ..spec(vec![5], Activation::Gelu) },
+        Task::Multiclass,
+        3,
+        Objective::SoftmaxCrossEntropy { classes: 3 },
+    );
 }
 
 #[test]
@@ -209,7 +242,9 @@ fn dropout_keeps_the_mean_and_is_off_at_evaluation() {
     assert!(ratio.iter().all(|r| (r - 1.0).abs() < 5.0 * sd));
 
     // At evaluation a model with dropout computes exactly what the same weights without it do.
-    let mut with = Mlp::new(&ModelSpec { dropout: 0.5, ..spec(vec![8], Activation::Relu) }, cols, 1, &mut Stream::new(2, Purpose::Init), DType::F32).unwrap();
+    let mut with =
+        Mlp::new(&ModelSpec { dropout: 0.5, ..spec(vec![8], Activation::Relu) }, cols, 1, &mut Stream::new(2, Purpose::Init), DType::F32)
+            .unwrap();
     let mut without = Mlp::new(&spec(vec![8], Activation::Relu), cols, 1, &mut Stream::new(2, Purpose::Init), DType::F32).unwrap();
     let a = with.forward(&x, &mut Mode::Eval).unwrap().flatten_all().unwrap().to_vec1::<f32>().unwrap();
     let b = without.forward(&x, &mut Mode::Eval).unwrap().flatten_all().unwrap().to_vec1::<f32>().unwrap();
@@ -279,10 +314,12 @@ fn input_noise_converges_to_the_matching_ridge_solution() {
             a[i][d] = (0..n).map(|r| xs[r * d + i] * ys[r]).sum::<f64>() / n as f64;
         }
         for k in 0..d {
-            for i in k + 1..d {
-                let f = a[i][k] / a[k][k];
-                for j in k..=d {
-                    a[i][j] -= f * a[k][j];
+            let (above, below) = a.split_at_mut(k + 1);
+            let pivot = &above[k];
+            for row in below.iter_mut() {
+                let f = row[k] / pivot[k];
+                for (x, p) in row[k..=d].iter_mut().zip(&pivot[k..=d]) {
+                    *x -= f * p;
                 }
             }
         }
@@ -295,7 +332,15 @@ fn input_noise_converges_to_the_matching_ridge_solution() {
     let (ridge, ols) = (solve(sigma * sigma), solve(0.0));
     let x = Matrix { rows: n, cols: d, data: xs.iter().map(|&v| v as f32).collect() };
     let labels = Labels::Values(y);
-    let mut t = TrainingSpec { optimizer: Optimizer::Sgd, momentum: 0.0, learning_rate: 0.1, epochs: 3000, batch_size: n, schedule: Schedule::Cosine, ..TrainingSpec::default() };
+    let mut t = TrainingSpec {
+        optimizer: Optimizer::Sgd,
+        momentum: 0.0,
+        learning_rate: 0.1,
+        epochs: 3000,
+        batch_size: n,
+        schedule: Schedule::Cosine,
+        ..TrainingSpec::default()
+    };
     t.early_stopping.enabled = false;
     let config = RunConfig { model: ModelSpec { input_noise: sigma, ..spec(vec![], Activation::Identity) }, training: t };
     let data = RunData { train_x: &x, train_y: &labels, validation_x: &x, validation_y: &labels };
@@ -313,7 +358,11 @@ fn lease_matrices() -> (Matrix, Labels, Matrix, Labels) {
     let dir = tempfile::tempdir().unwrap();
     let bytes = tabcard::data::parquet::encode(tabcard::demo::lease_defaults(3000, 5), Default::default()).unwrap();
     std::fs::write(dir.path().join("d.parquet"), bytes).unwrap();
-    std::fs::write(dir.path().join("m.toml"), "[experiment]\nname=\"w\"\n[data]\npath=\"d.parquet\"\ntarget=\"defaulted_12m\"\ntask=\"binary\"\nids=[\"application_id\"]\n").unwrap();
+    std::fs::write(
+        dir.path().join("m.toml"),
+        "[experiment]\nname=\"w\"\n[data]\npath=\"d.parquet\"\ntarget=\"defaulted_12m\"\ntask=\"binary\"\nids=[\"application_id\"]\n",
+    )
+    .unwrap();
     let exp = tabcard::experiment::open(&dir.path().join("m.toml")).unwrap();
     let prep = tabcard::data::prep::Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path).unwrap();
     let (tx, _) = prep.transform(&exp.table, &exp.splits.train, &exp.data_path).unwrap();
@@ -359,7 +408,14 @@ fn a_diverging_run_is_reported_with_its_epoch_and_no_model() {
     let y = Labels::Values((0..n).map(|i| (i % 5) as f64).collect());
     let config = RunConfig {
         model: spec(vec![8], Activation::Relu),
-        training: TrainingSpec { optimizer: Optimizer::Sgd, learning_rate: 1e4, momentum: 0.9, epochs: 50, batch_size: 20, ..TrainingSpec::default() },
+        training: TrainingSpec {
+            optimizer: Optimizer::Sgd,
+            learning_rate: 1e4,
+            momentum: 0.9,
+            epochs: 50,
+            batch_size: 20,
+            ..TrainingSpec::default()
+        },
     };
     let data = RunData { train_x: &x, train_y: &y, validation_x: &x, validation_y: &y };
     let r = train(head(Task::Regression, 0), &config, 1, &data, "rmse").unwrap();

@@ -45,22 +45,25 @@ pub fn metric_scale(task: Task, metric: &str, summary: &DataSummary) -> (f64, St
     match registry::find(task, metric).map(|m| m.scale) {
         Some(Scale::ClassPriorLogLoss) => {
             let total: usize = summary.target.classes.iter().map(|c| c.count).sum();
-            let prior: f64 = summary
-                .target
-                .classes
-                .iter()
-                .map(|c| c.count as f64 / total.max(1) as f64)
-                .filter(|&p| p > 0.0)
-                .map(|p| -p * p.ln())
-                .sum();
+            let prior: f64 =
+                summary.target.classes.iter().map(|c| c.count as f64 / total.max(1) as f64).filter(|&p| p > 0.0).map(|p| -p * p.ln()).sum();
             (prior, "the log loss of predicting the class shares".into())
         }
-        Some(Scale::TargetSd) => (summary.target.distribution.as_ref().map(|d| d.std).unwrap_or(1.0), "the target's standard deviation".into()),
+        Some(Scale::TargetSd) => {
+            (summary.target.distribution.as_ref().map(|d| d.std).unwrap_or(1.0), "the target's standard deviation".into())
+        }
         Some(Scale::Unit) | None => (1.0, "the metric's range [0, 1]".into()),
     }
 }
 
-pub fn gather(manifest: &Manifest, record: &ExperimentRecord, summary: &DataSummary, selection: &Selection, selected: &PlannedConfig, parameter_count: usize) -> Evidence {
+pub fn gather(
+    manifest: &Manifest,
+    record: &ExperimentRecord,
+    summary: &DataSummary,
+    selection: &Selection,
+    selected: &PlannedConfig,
+    parameter_count: usize,
+) -> Evidence {
     let m = &selection.metric;
     let task = manifest.data.task;
     let dir = direction(task, m).unwrap_or(Direction::Maximise);
@@ -91,7 +94,12 @@ pub fn gather(manifest: &Manifest, record: &ExperimentRecord, summary: &DataSumm
         classification: task != Task::Regression,
         train_rows: record.split_rows[0],
         parameter_count,
-        minority: summary.target.classes.iter().min_by_key(|c| c.count).map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64)),
+        minority: summary
+            .target
+            .classes
+            .iter()
+            .min_by_key(|c| c.count)
+            .map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64)),
         metric: m.clone(),
         higher_is_better: higher,
         scale: metric_scale(task, m, summary),
@@ -104,7 +112,12 @@ pub fn gather(manifest: &Manifest, record: &ExperimentRecord, summary: &DataSumm
         test_smallest_class,
         degenerate_intervals: t.intervals.iter().filter(|(_, i)| i.upper == i.lower).map(|(k, _)| k.clone()).collect(),
         missing: summary.columns.iter().filter(|c| c.role == "feature").map(|c| (c.name.clone(), c.missing_share)).collect(),
-        rare_levels: summary.columns.iter().filter(|c| c.role == "feature" && c.categorical).map(|c| (c.name.clone(), c.rare_levels)).collect(),
+        rare_levels: summary
+            .columns
+            .iter()
+            .filter(|c| c.role == "feature" && c.categorical)
+            .map(|c| (c.name.clone(), c.rare_levels))
+            .collect(),
         grid: grid_positions(manifest, selected),
         simpler_within_noise,
         duplicated_into_evaluation: (checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training),

@@ -90,74 +90,95 @@ pub const GRID_EDGE_MIN_VALUES: usize = 3;
 
 fn few_rows_per_parameter(e: &Evidence) -> Option<Limitation> {
     let ratio = e.train_rows as f64 / e.parameter_count.max(1) as f64;
-    (ratio < MIN_ROWS_PER_PARAMETER).then(|| Limitation::new(
-        "few_rows_per_parameter",
-        "Few training rows per parameter",
-        format!("{} training rows for {} parameters: {} rows per parameter", e.train_rows, e.parameter_count, sig(ratio, 3)),
-        format!("at least {MIN_ROWS_PER_PARAMETER} rows per parameter (common practice)"),
-    ))
+    (ratio < MIN_ROWS_PER_PARAMETER).then(|| {
+        Limitation::new(
+            "few_rows_per_parameter",
+            "Few training rows per parameter",
+            format!("{} training rows for {} parameters: {} rows per parameter", e.train_rows, e.parameter_count, sig(ratio, 3)),
+            format!("at least {MIN_ROWS_PER_PARAMETER} rows per parameter (common practice)"),
+        )
+    })
 }
 
 fn small_minority_class(e: &Evidence) -> Option<Limitation> {
     let (label, rows, share) = e.minority.as_ref()?;
-    (*share < MINORITY_SHARE).then(|| Limitation::new(
-        "small_minority_class",
-        "Small minority class",
-        format!("class \"{label}\" has {rows} rows ({}% of the table); accuracy at the default threshold says little for it", sig(100.0 * share, 3)),
-        format!("every class at least {}% of the rows (common practice)", 100.0 * MINORITY_SHARE),
-    ))
+    (*share < MINORITY_SHARE).then(|| {
+        Limitation::new(
+            "small_minority_class",
+            "Small minority class",
+            format!(
+                "class \"{label}\" has {rows} rows ({}% of the table); accuracy at the default threshold says little for it",
+                sig(100.0 * share, 3)
+            ),
+            format!("every class at least {}% of the rows (common practice)", 100.0 * MINORITY_SHARE),
+        )
+    })
 }
 
 fn small_test_split(e: &Evidence) -> Option<Limitation> {
     let mut findings = Vec::new();
-    let threshold;
-    if e.classification {
+    let threshold = if e.classification {
         if let Some((label, rows)) = &e.test_smallest_class {
             if *rows < MIN_TEST_ROWS_PER_CLASS {
                 findings.push(format!("the test split of {} rows holds {rows} rows of class \"{label}\"", e.test_rows));
             }
         }
-        threshold = format!("at least {MIN_TEST_ROWS_PER_CLASS} test rows of every class (common practice)");
+        format!("at least {MIN_TEST_ROWS_PER_CLASS} test rows of every class (common practice)")
     } else {
         if e.test_rows < MIN_TEST_ROWS_REGRESSION {
             findings.push(format!("the test split holds {} rows", e.test_rows));
         }
-        threshold = format!("at least {MIN_TEST_ROWS_REGRESSION} test rows (common practice)");
-    }
+        format!("at least {MIN_TEST_ROWS_REGRESSION} test rows (common practice)")
+    };
     if !e.degenerate_intervals.is_empty() {
         findings.push(format!(
             "the 95% bootstrap intervals of {} have zero width: every resample gave the same value, which shows too few rows rather than certainty",
             e.degenerate_intervals.join(", ")
         ));
     }
-    (!findings.is_empty()).then(|| Limitation::new(
-        "small_test_split",
-        "The test split is too small to judge the model",
-        findings.join("; "),
-        format!("{threshold}, and bootstrap intervals of non-zero width"),
-    ))
+    (!findings.is_empty()).then(|| {
+        Limitation::new(
+            "small_test_split",
+            "The test split is too small to judge the model",
+            findings.join("; "),
+            format!("{threshold}, and bootstrap intervals of non-zero width"),
+        )
+    })
 }
 
 fn large_seed_spread(e: &Evidence) -> Option<Limitation> {
     let (mean, sd) = e.selected?;
     let (scale, what) = &e.scale;
-    (sd > SEED_SD_SHARE * scale).then(|| Limitation::new(
-        "large_seed_spread",
-        "Results vary across seeds",
-        format!("validation {} of the selected configuration: {} ± {} (standard deviation across seeds)", e.metric, sig(mean, 4), sig(sd, 2)),
-        format!("standard deviation at most {}% of {what} ({}) (common practice)", 100.0 * SEED_SD_SHARE, sig(*scale, 3)),
-    ))
+    (sd > SEED_SD_SHARE * scale).then(|| {
+        Limitation::new(
+            "large_seed_spread",
+            "Results vary across seeds",
+            format!(
+                "validation {} of the selected configuration: {} ± {} (standard deviation across seeds)",
+                e.metric,
+                sig(mean, 4),
+                sig(sd, 2)
+            ),
+            format!("standard deviation at most {}% of {what} ({}) (common practice)", 100.0 * SEED_SD_SHARE, sig(*scale, 3)),
+        )
+    })
 }
 
 fn large_generalisation_gap(e: &Evidence) -> Option<Limitation> {
     let gap = e.gap?;
     let (scale, what) = &e.scale;
-    (gap > GAP_SHARE * scale).then(|| Limitation::new(
-        "large_generalisation_gap",
-        "Training and validation performance differ",
-        format!("{} is worse on validation rows than on training rows by {} (mean across seeds): a sign of overfitting", e.metric, sig(gap, 3)),
-        format!("gap at most {}% of {what} ({}) (common practice)", 100.0 * GAP_SHARE, sig(*scale, 3)),
-    ))
+    (gap > GAP_SHARE * scale).then(|| {
+        Limitation::new(
+            "large_generalisation_gap",
+            "Training and validation performance differ",
+            format!(
+                "{} is worse on validation rows than on training rows by {} (mean across seeds): a sign of overfitting",
+                e.metric,
+                sig(gap, 3)
+            ),
+            format!("gap at most {}% of {what} ({}) (common practice)", 100.0 * GAP_SHARE, sig(*scale, 3)),
+        )
+    })
 }
 
 fn poor_calibration(e: &Evidence) -> Option<Limitation> {
@@ -172,42 +193,64 @@ fn poor_calibration(e: &Evidence) -> Option<Limitation> {
 
 fn no_better_than_chance(e: &Evidence) -> Option<Limitation> {
     let (name, value, lower, upper, chance) = e.chance.as_ref()?;
-    (*lower <= *chance).then(|| Limitation::new(
-        "no_better_than_chance",
-        "The model is not shown to beat chance",
-        format!("test {name} {} with 95% bootstrap interval [{}, {}], which reaches {} (what a model with no information scores)", sig(*value, 4), sig(*lower, 4), sig(*upper, 4), sig(*chance, 2)),
-        format!("the interval's lower end above {} (ROC AUC 0.5: Hanley and McNeil 1982; R² 0: predicting the mean)", sig(*chance, 2)),
-    ).serious())
+    (*lower <= *chance).then(|| {
+        Limitation::new(
+            "no_better_than_chance",
+            "The model is not shown to beat chance",
+            format!(
+                "test {name} {} with 95% bootstrap interval [{}, {}], which reaches {} (what a model with no information scores)",
+                sig(*value, 4),
+                sig(*lower, 4),
+                sig(*upper, 4),
+                sig(*chance, 2)
+            ),
+            format!("the interval's lower end above {} (ROC AUC 0.5: Hanley and McNeil 1982; R² 0: predicting the mean)", sig(*chance, 2)),
+        )
+        .serious()
+    })
 }
 
 fn many_missing_values(e: &Evidence) -> Option<Limitation> {
-    let flagged: Vec<String> = e.missing.iter().filter(|(_, s)| *s > MISSING_SHARE).map(|(n, s)| format!("{n} {}%", sig(100.0 * s, 3))).collect();
-    (!flagged.is_empty()).then(|| Limitation::new(
-        "many_missing_values",
-        "Features with many missing values",
-        format!("missing shares: {}; the model sees the training median plus a missing flag for them", flagged.join(", ")),
-        format!("at most {}% missing per feature (common practice)", 100.0 * MISSING_SHARE),
-    ))
+    let flagged: Vec<String> =
+        e.missing.iter().filter(|(_, s)| *s > MISSING_SHARE).map(|(n, s)| format!("{n} {}%", sig(100.0 * s, 3))).collect();
+    (!flagged.is_empty()).then(|| {
+        Limitation::new(
+            "many_missing_values",
+            "Features with many missing values",
+            format!("missing shares: {}; the model sees the training median plus a missing flag for them", flagged.join(", ")),
+            format!("at most {}% missing per feature (common practice)", 100.0 * MISSING_SHARE),
+        )
+    })
 }
 
 fn rare_levels(e: &Evidence) -> Option<Limitation> {
     let flagged: Vec<String> = e.rare_levels.iter().filter(|(_, n)| *n > 0).map(|(c, n)| format!("{c} ({n})")).collect();
     let rows = crate::data::summary::RARE_LEVEL_ROWS;
-    (!flagged.is_empty()).then(|| Limitation::new(
-        "rare_levels",
-        "Category levels seen only rarely",
-        format!("features with levels seen in fewer than {rows} rows: {}; effects of those levels are poorly estimated", flagged.join(", ")),
-        format!("every level seen in at least {rows} rows (common practice)"),
-    ))
+    (!flagged.is_empty()).then(|| {
+        Limitation::new(
+            "rare_levels",
+            "Category levels seen only rarely",
+            format!(
+                "features with levels seen in fewer than {rows} rows: {}; effects of those levels are poorly estimated",
+                flagged.join(", ")
+            ),
+            format!("every level seen in at least {rows} rows (common practice)"),
+        )
+    })
 }
 
 fn constant_on_training_rows(e: &Evidence) -> Option<Limitation> {
-    (!e.constant_on_training.is_empty()).then(|| Limitation::new(
-        "constant_on_training_rows",
-        "Features constant on the training rows",
-        format!("{} take one value on every training row, so the model cannot learn from them, yet they vary in validation or test", e.constant_on_training.join(", ")),
-        "every feature varies on the training rows".into(),
-    ))
+    (!e.constant_on_training.is_empty()).then(|| {
+        Limitation::new(
+            "constant_on_training_rows",
+            "Features constant on the training rows",
+            format!(
+                "{} take one value on every training row, so the model cannot learn from them, yet they vary in validation or test",
+                e.constant_on_training.join(", ")
+            ),
+            "every feature varies on the training rows".into(),
+        )
+    })
 }
 
 fn duplicates_across_splits(e: &Evidence) -> Option<Limitation> {
@@ -227,12 +270,17 @@ fn repeated_key_across_splits(e: &Evidence) -> Option<Limitation> {
         .filter(|(_, crossing, _, _)| *crossing > 0)
         .map(|(c, crossing, values, rows)| format!("{c}: {crossing} of {values} values occur in more than one split, and {rows} validation or test rows share a value with training rows"))
         .collect();
-    (!flagged.is_empty()).then(|| Limitation::new(
-        "repeated_key_across_splits",
-        "The same units appear in training and evaluation",
-        format!("{}; held-out figures then describe units the model has seen, not new ones (set [split] group to keep them together)", flagged.join("; ")),
-        "every value of a repeated id or group column in one split only (common practice)".into(),
-    ))
+    (!flagged.is_empty()).then(|| {
+        Limitation::new(
+            "repeated_key_across_splits",
+            "The same units appear in training and evaluation",
+            format!(
+                "{}; held-out figures then describe units the model has seen, not new ones (set [split] group to keep them together)",
+                flagged.join("; ")
+            ),
+            "every value of a repeated id or group column in one split only (common practice)".into(),
+        )
+    })
 }
 
 fn selection_at_grid_edge(e: &Evidence) -> Option<Limitation> {
@@ -240,7 +288,9 @@ fn selection_at_grid_edge(e: &Evidence) -> Option<Limitation> {
         .grid
         .iter()
         .filter(|(_, _, position, count)| *count >= GRID_EDGE_MIN_VALUES && (*position == 0 || *position + 1 == *count))
-        .map(|(k, v, position, count)| format!("{k} = {v} is the {} of {count} values searched", if *position == 0 { "smallest" } else { "largest" }))
+        .map(|(k, v, position, count)| {
+            format!("{k} = {v} is the {} of {count} values searched", if *position == 0 { "smallest" } else { "largest" })
+        })
         .collect();
     (!edges.is_empty()).then(|| Limitation::new(
         "selection_at_grid_edge",
@@ -259,35 +309,56 @@ fn baseline_comparison(e: &Evidence) -> Option<(f64, f64, f64, f64, f64)> {
     Some((advantage, noise, net_mean, base_mean, net_sd.max(base_sd)))
 }
 
-const BASELINE_THRESHOLD: &str = "the network ahead of the linear baseline by more than twice the combined seed standard deviation (common practice)";
+const BASELINE_THRESHOLD: &str =
+    "the network ahead of the linear baseline by more than twice the combined seed standard deviation (common practice)";
 
 fn baseline_within_noise(e: &Evidence) -> Option<Limitation> {
     let (advantage, noise, _, _, _) = baseline_comparison(e)?;
     let (net_mean, net_sd) = e.selected?;
     let (base_mean, base_sd) = e.baseline?;
-    (advantage.abs() <= noise).then(|| Limitation::new(
-        "baseline_within_noise",
-        "The network does not clearly beat the linear baseline",
-        format!("validation {}: network {} ± {}, linear baseline {} ± {}; the simpler linear model does as well within seed noise", e.metric, sig(net_mean, 4), sig(net_sd, 2), sig(base_mean, 4), sig(base_sd, 2)),
-        BASELINE_THRESHOLD.into(),
-    ))
+    (advantage.abs() <= noise).then(|| {
+        Limitation::new(
+            "baseline_within_noise",
+            "The network does not clearly beat the linear baseline",
+            format!(
+                "validation {}: network {} ± {}, linear baseline {} ± {}; the simpler linear model does as well within seed noise",
+                e.metric,
+                sig(net_mean, 4),
+                sig(net_sd, 2),
+                sig(base_mean, 4),
+                sig(base_sd, 2)
+            ),
+            BASELINE_THRESHOLD.into(),
+        )
+    })
 }
 
 fn baseline_beats_network(e: &Evidence) -> Option<Limitation> {
     let (advantage, noise, _, _, _) = baseline_comparison(e)?;
     let (net_mean, net_sd) = e.selected?;
     let (base_mean, base_sd) = e.baseline?;
-    (advantage < -noise).then(|| Limitation::new(
-        "baseline_beats_network",
-        "The linear baseline beats the network",
-        format!("validation {}: linear baseline {} ± {}, network {} ± {}; prefer the linear baseline, or revisit the network's settings", e.metric, sig(base_mean, 4), sig(base_sd, 2), sig(net_mean, 4), sig(net_sd, 2)),
-        BASELINE_THRESHOLD.into(),
-    ).serious())
+    (advantage < -noise).then(|| {
+        Limitation::new(
+            "baseline_beats_network",
+            "The linear baseline beats the network",
+            format!(
+                "validation {}: linear baseline {} ± {}, network {} ± {}; prefer the linear baseline, or revisit the network's settings",
+                e.metric,
+                sig(base_mean, 4),
+                sig(base_sd, 2),
+                sig(net_mean, 4),
+                sig(net_sd, 2)
+            ),
+            BASELINE_THRESHOLD.into(),
+        )
+        .serious()
+    })
 }
 
 fn selection_within_noise(e: &Evidence) -> Option<Limitation> {
     let (mean, _) = e.selected?;
-    let simpler: Vec<String> = e.simpler_within_noise.iter().map(|(label, params, m)| format!("{label} ({params} parameters, {})", sig(*m, 4))).collect();
+    let simpler: Vec<String> =
+        e.simpler_within_noise.iter().map(|(label, params, m)| format!("{label} ({params} parameters, {})", sig(*m, 4))).collect();
     (!simpler.is_empty()).then(|| Limitation::new(
         "selection_within_noise",
         "A simpler configuration does as well within seed noise",
@@ -297,16 +368,21 @@ fn selection_within_noise(e: &Evidence) -> Option<Limitation> {
 }
 
 fn failed_runs(e: &Evidence) -> Option<Limitation> {
-    (e.failed_runs > 0).then(|| Limitation::new(
-        "failed_runs",
-        "Some runs failed or diverged",
-        format!("{} run(s) did not complete; their configurations are summarised over fewer seeds", e.failed_runs),
-        "every planned run completes".into(),
-    ))
+    (e.failed_runs > 0).then(|| {
+        Limitation::new(
+            "failed_runs",
+            "Some runs failed or diverged",
+            format!("{} run(s) did not complete; their configurations are summarised over fewer seeds", e.failed_runs),
+            "every planned run completes".into(),
+        )
+    })
 }
 
-/// Every rule, in the order the card lists them (serious ones first).
-pub const RULES: &[(&str, fn(&Evidence) -> Option<Limitation>)] = &[
+/// A limitation rule: the finding it states, if its figure crosses its threshold.
+pub type Rule = fn(&Evidence) -> Option<Limitation>;
+
+/// Every rule by name, in the order the card lists them (serious ones first).
+pub const RULES: &[(&str, Rule)] = &[
     ("no_better_than_chance", no_better_than_chance),
     ("baseline_beats_network", baseline_beats_network),
     ("small_test_split", small_test_split),
@@ -415,13 +491,30 @@ mod tests {
     #[test]
     fn spread_and_gap_are_judged_on_the_metric_scale() {
         // Log loss near zero (2.6e-7 ± 2.4e-7) against a class-prior log loss of 0.66: no spread.
-        let mut e = Evidence { metric: "log_loss".into(), higher_is_better: false, scale: (0.66, "the class-prior log loss".into()), selected: Some((2.6e-7, 2.4e-7)), gap: Some(-1e-7), baseline: None, ..healthy() };
+        let mut e = Evidence {
+            metric: "log_loss".into(),
+            higher_is_better: false,
+            scale: (0.66, "the class-prior log loss".into()),
+            selected: Some((2.6e-7, 2.4e-7)),
+            gap: Some(-1e-7),
+            baseline: None,
+            ..healthy()
+        };
         assert!(!fires("large_seed_spread", &e) && !fires("large_generalisation_gap", &e));
         e.selected = Some((0.30, 0.01));
         e.gap = Some(0.05);
         assert!(fires("large_seed_spread", &e) && fires("large_generalisation_gap", &e));
         // RMSE on a target with standard deviation 77: 0.5 across seeds is small, 3 is not.
-        let mut e = Evidence { classification: false, metric: "rmse".into(), higher_is_better: false, scale: (77.0, "the target's standard deviation".into()), selected: Some((59.25, 0.5)), gap: Some(1.0), baseline: None, ..healthy() };
+        let mut e = Evidence {
+            classification: false,
+            metric: "rmse".into(),
+            higher_is_better: false,
+            scale: (77.0, "the target's standard deviation".into()),
+            selected: Some((59.25, 0.5)),
+            gap: Some(1.0),
+            baseline: None,
+            ..healthy()
+        };
         assert!(!fires("large_seed_spread", &e));
         e.selected = Some((59.25, 3.0));
         assert!(fires("large_seed_spread", &e));
@@ -436,7 +529,15 @@ mod tests {
 
     #[test]
     fn lower_is_better_metrics_compare_the_baseline_the_right_way() {
-        let mut e = Evidence { classification: false, metric: "rmse".into(), higher_is_better: false, scale: (77.0, "sd".into()), baseline: Some((56.24, 0.92)), selected: Some((59.25, 0.50)), ..healthy() };
+        let mut e = Evidence {
+            classification: false,
+            metric: "rmse".into(),
+            higher_is_better: false,
+            scale: (77.0, "sd".into()),
+            baseline: Some((56.24, 0.92)),
+            selected: Some((59.25, 0.50)),
+            ..healthy()
+        };
         assert!(fires("baseline_beats_network", &e));
         assert!(derive(&e)[0].serious);
         e.baseline = Some((62.5, 0.9));

@@ -186,7 +186,10 @@ fn load(layout: &Layout) -> Result<Stored> {
     let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
     let record: ExperimentRecord = read_json(&layout.experiment())?;
     if crate::fingerprint::sha256_hex(stored.as_bytes()) != record.manifest_sha256 {
-        return Err(Error::store(layout.manifest(), "does not match the manifest hash recorded in experiment.json (it was edited after training)"));
+        return Err(Error::store(
+            layout.manifest(),
+            "does not match the manifest hash recorded in experiment.json (it was edited after training)",
+        ));
     }
     let plan: Plan = read_json(&layout.plan())?;
     let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
@@ -213,11 +216,35 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
     let mut series = Vec::new();
     for (colour, r) in selected_runs.iter().enumerate() {
         let h = r.history()?;
-        series.push(Series { name: format!("seed {} train", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.train_loss)).collect(), errors: None, dashed: false, colour });
-        series.push(Series { name: format!("seed {} validation", r.record.seed), points: h.iter().map(|e| (e.epoch as f64, e.validation_loss)).collect(), errors: None, dashed: true, colour });
+        series.push(Series {
+            name: format!("seed {} train", r.record.seed),
+            points: h.iter().map(|e| (e.epoch as f64, e.train_loss)).collect(),
+            errors: None,
+            dashed: false,
+            colour,
+        });
+        series.push(Series {
+            name: format!("seed {} validation", r.record.seed),
+            points: h.iter().map(|e| (e.epoch as f64, e.validation_loss)).collect(),
+            errors: None,
+            dashed: true,
+            colour,
+        });
     }
-    let chart = Chart { title: "Learning curves, selected configuration".into(), x_label: "epoch".into(), y_label: "loss".into(), series, x_categories: None, diagonal: false, fixed_unit_axes: false };
-    out.push(("learning-curves.svg".into(), "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration".into(), chart.render()));
+    let chart = Chart {
+        title: "Learning curves, selected configuration".into(),
+        x_label: "epoch".into(),
+        y_label: "loss".into(),
+        series,
+        x_categories: None,
+        diagonal: false,
+        fixed_unit_axes: false,
+    };
+    out.push((
+        "learning-curves.svg".into(),
+        "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration".into(),
+        chart.render(),
+    ));
 
     let m = &selection.metric;
     for (key, values) in &manifest.sweep.grid {
@@ -228,8 +255,16 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
         for c in selection.configs.iter().filter(|c| !c.baseline) {
             let Some(v) = c.overrides.get(key) else { continue };
             let Some(x) = values.iter().position(|g| g == v) else { continue };
-            let label = if others.is_empty() { "network".to_string() } else {
-                others.iter().map(|k| format!("{}={}", k.rsplit('.').next().unwrap_or(k), c.overrides.get(*k).map(|v| v.to_string()).unwrap_or_default())).collect::<Vec<_>>().join(" ")
+            let label = if others.is_empty() {
+                "network".to_string()
+            } else {
+                others
+                    .iter()
+                    .map(|k| {
+                        format!("{}={}", k.rsplit('.').next().unwrap_or(k), c.overrides.get(*k).map(|v| v.to_string()).unwrap_or_default())
+                    })
+                    .collect::<Vec<_>>()
+                    .join(" ")
             };
             let entry = lines.entry(label).or_default();
             if let Some(s) = c.validation.get(m) {
@@ -254,7 +289,11 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
             diagonal: false,
             fixed_unit_axes: false,
         };
-        out.push((figure_name(key), format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}"), chart.render()));
+        out.push((
+            figure_name(key),
+            format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}"),
+            chart.render(),
+        ));
     }
     if !selection.test.reliability.is_empty() {
         let points: Vec<(f64, f64)> = selection.test.reliability.iter().map(|b| (b.mean_predicted, b.observed)).collect();
@@ -305,14 +344,22 @@ fn about(m: &Manifest) -> About {
 fn split_method(m: &Manifest) -> String {
     let s = &m.split;
     match (&s.column, &s.group) {
-        (Some(c), _) => format!("given by column {} (train {}, validation {}, test {})", code_span(c), list(&s.labels.train), list(&s.labels.validation), list(&s.labels.test)),
+        (Some(c), _) => format!(
+            "given by column {} (train {}, validation {}, test {})",
+            code_span(c),
+            list(&s.labels.train),
+            list(&s.labels.validation),
+            list(&s.labels.test)
+        ),
         (None, Some(g)) => format!(
             "seeded by whole groups of {}: every row of one value in one split{}, split seed {}",
             code_span(g),
             if s.stratify && m.data.task != Task::Regression { ", groups stratified by their most common class" } else { "" },
             s.seed
         ),
-        (None, None) if s.stratify && m.data.task != Task::Regression => format!("seeded by rows, stratified by class, split seed {}", s.seed),
+        (None, None) if s.stratify && m.data.task != Task::Regression => {
+            format!("seeded by rows, stratified by class, split seed {}", s.seed)
+        }
         (None, None) => format!("seeded by rows, split seed {}", s.seed),
     }
 }
@@ -330,14 +377,33 @@ fn preprocessing(p: &Preprocessor) -> (String, Vec<Row>) {
             InputEncoding::Numeric { name, impute, mean, scale, indicator, .. } => {
                 numeric += 1;
                 numeric_flag += *indicator as usize;
-                let missing = if *indicator { format!("; missing → training median {} plus a missing flag", sig(*impute, 4)) } else { String::new() };
-                rows.push(Row::of([md(name), format!("numeric, standardised: (x − {}) / {}{missing}", sig(*mean, 4), sig(*scale, 4)), (1 + *indicator as usize).to_string()]));
+                let missing = if *indicator {
+                    format!("; missing → training median {} plus a missing flag", sig(*impute, 4))
+                } else {
+                    String::new()
+                };
+                rows.push(Row::of([
+                    md(name),
+                    format!("numeric, standardised: (x − {}) / {}{missing}", sig(*mean, 4), sig(*scale, 4)),
+                    (1 + *indicator as usize).to_string(),
+                ]));
             }
             InputEncoding::Categorical { name, levels, impute, indicator } => {
                 categorical += 1;
                 categorical_flag += *indicator as usize;
-                let missing = if *indicator { format!("; missing → most frequent level {} plus a missing flag", levels.get(*impute).map(|l| code_span(l)).unwrap_or_default()) } else { String::new() };
-                rows.push(Row::of([md(name), format!("one-hot over {} training levels plus one column for levels unseen in training{missing}", levels.len()), (levels.len() + 1 + *indicator as usize).to_string()]));
+                let missing = if *indicator {
+                    format!(
+                        "; missing → most frequent level {} plus a missing flag",
+                        levels.get(*impute).map(|l| code_span(l)).unwrap_or_default()
+                    )
+                } else {
+                    String::new()
+                };
+                rows.push(Row::of([
+                    md(name),
+                    format!("one-hot over {} training levels plus one column for levels unseen in training{missing}", levels.len()),
+                    (levels.len() + 1 + *indicator as usize).to_string(),
+                ]));
             }
         }
     }
@@ -371,15 +437,25 @@ fn data_section(st: &Stored) -> DataSection {
         .target
         .classes
         .iter()
-        .map(|l| Row::of([md(&l.level), l.count.to_string(), format!("{}%", fixed(100.0 * l.count as f64 / summary.rows.max(1) as f64, 1))]))
+        .map(|l| {
+            Row::of([md(&l.level), l.count.to_string(), format!("{}%", fixed(100.0 * l.count as f64 / summary.rows.max(1) as f64, 1))])
+        })
         .collect();
     let target_rows = summary
         .target
         .distribution
         .iter()
         .flat_map(|d| {
-            [("mean", d.mean), ("standard deviation", d.std), ("minimum", d.min), ("25th percentile", d.q25), ("median", d.median), ("75th percentile", d.q75), ("maximum", d.max)]
-                .map(|(name, v)| Row::of([name.to_string(), sig(v, 4)]))
+            [
+                ("mean", d.mean),
+                ("standard deviation", d.std),
+                ("minimum", d.min),
+                ("25th percentile", d.q25),
+                ("median", d.median),
+                ("75th percentile", d.q75),
+                ("maximum", d.max),
+            ]
+            .map(|(name, v)| Row::of([name.to_string(), sig(v, 4)]))
         })
         .collect();
     let (preprocessing, encoding_rows) = preprocessing(&st.preprocessor);
@@ -414,24 +490,54 @@ fn data_section(st: &Stored) -> DataSection {
 fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun) -> Capacity {
     let (model, training) = (&selected_cfg.config.model, &selected_cfg.config.training);
     let selected_summary = st.selection.configs.iter().find(|c| c.config_id == st.selection.selected_config);
-    let regularizer_rows = crate::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
-    let grid_rows = st.manifest.sweep.grid.iter().map(|(k, v)| Row::of([md(k), v.iter().map(value_text).collect::<Vec<_>>().join(", "), selected_cfg.overrides.get(k).map(value_text).unwrap_or_default()])).collect();
-    let hidden = if model.hidden.is_empty() { "no hidden layer".to_string() } else { format!("hidden widths {}", model.hidden.iter().map(|w| w.to_string()).collect::<Vec<_>>().join(", ")) };
+    let regularizer_rows =
+        crate::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
+    let grid_rows = st
+        .manifest
+        .sweep
+        .grid
+        .iter()
+        .map(|(k, v)| {
+            Row::of([
+                md(k),
+                v.iter().map(value_text).collect::<Vec<_>>().join(", "),
+                selected_cfg.overrides.get(k).map(value_text).unwrap_or_default(),
+            ])
+        })
+        .collect();
+    let hidden = if model.hidden.is_empty() {
+        "no hidden layer".to_string()
+    } else {
+        format!("hidden widths {}", model.hidden.iter().map(|w| w.to_string()).collect::<Vec<_>>().join(", "))
+    };
     let momentum = if training.optimizer == crate::manifest::Optimizer::Sgd {
         format!(", momentum {}{}", sig(training.momentum, 3), if training.nesterov { ", Nesterov" } else { "" })
     } else {
         format!(", betas {} / {}", sig(training.beta1, 4), sig(training.beta2, 4))
     };
-    let best_epoch = selected_summary.and_then(|s| s.best_epoch.as_ref()).map(|s| format!("{} ± {}", sig(s.mean, 3), sig(s.sd, 2))).unwrap_or_else(|| "–".into());
+    let best_epoch = selected_summary
+        .and_then(|s| s.best_epoch.as_ref())
+        .map(|s| format!("{} ± {}", sig(s.mean, 3), sig(s.sd, 2)))
+        .unwrap_or_else(|| "–".into());
     Capacity {
-        architecture: format!("{} features encoded as {} inputs → {hidden} → {} output(s)", st.record.features.len(), st.preprocessor.width(), selected_run.record.head.outputs()),
+        architecture: format!(
+            "{} features encoded as {} inputs → {hidden} → {} output(s)",
+            st.record.features.len(),
+            st.preprocessor.width(),
+            selected_run.record.head.outputs()
+        ),
         activation: model.activation.as_str().into(),
         residual: model.residual,
         batch_norm: model.batch_norm,
         parameter_count: selected_run.record.parameter_count,
         rows_per_parameter: sig(st.record.split_rows[0] as f64 / selected_run.record.parameter_count.max(1) as f64, 3),
         regularizer_rows,
-        optimizer: format!("{} (learning rate {}{momentum}, batch size {})", training.optimizer.as_str(), sig(training.learning_rate, 4), training.batch_size),
+        optimizer: format!(
+            "{} (learning rate {}{momentum}, batch size {})",
+            training.optimizer.as_str(),
+            sig(training.learning_rate, 4),
+            training.batch_size
+        ),
         schedule: format!("{:?} with {} warm-up epoch(s)", training.schedule, training.warmup_epochs).to_lowercase(),
         epochs: format!("at most {}; best epoch per seed {best_epoch} (mean ± sd)", training.epochs),
         grid_rows,
@@ -439,22 +545,51 @@ fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun)
     }
 }
 
-fn decision(title: String, labels: &[String], confusion: &[Vec<usize>], per_class: &[crate::metrics::classification::ClassReport]) -> Decision {
+fn decision(
+    title: String,
+    labels: &[String],
+    confusion: &[Vec<usize>],
+    per_class: &[crate::metrics::classification::ClassReport],
+) -> Decision {
     Decision {
         title,
         header: std::iter::once("true \\\\ predicted".to_string()).chain(labels.iter().cloned()).collect(),
-        confusion_rows: confusion.iter().enumerate().map(|(i, r)| Row::of(std::iter::once(labels.get(i).cloned().unwrap_or_default()).chain(r.iter().map(|n| n.to_string())))).collect(),
-        class_rows: per_class.iter().enumerate().map(|(i, c)| Row::of([labels.get(i).cloned().unwrap_or_default(), fixed(c.precision, 4), fixed(c.recall, 4), fixed(c.f1, 4), c.support.to_string()])).collect(),
+        confusion_rows: confusion
+            .iter()
+            .enumerate()
+            .map(|(i, r)| Row::of(std::iter::once(labels.get(i).cloned().unwrap_or_default()).chain(r.iter().map(|n| n.to_string()))))
+            .collect(),
+        class_rows: per_class
+            .iter()
+            .enumerate()
+            .map(|(i, c)| {
+                Row::of([
+                    labels.get(i).cloned().unwrap_or_default(),
+                    fixed(c.precision, 4),
+                    fixed(c.recall, 4),
+                    fixed(c.f1, 4),
+                    c.support.to_string(),
+                ])
+            })
+            .collect(),
     }
 }
 
 fn selection_text(sel: &Selection, direction: &str) -> String {
     let m = &sel.metric;
-    let label = |id: &str| sel.configs.iter().find(|c| c.config_id == id).map(|c| md(&config_label(&c.overrides, c.baseline))).unwrap_or_default();
+    let label =
+        |id: &str| sel.configs.iter().find(|c| c.config_id == id).map(|c| md(&config_label(&c.overrides, c.baseline))).unwrap_or_default();
     if sel.rule == SelectionRule::OneStandardError.as_str() {
         let best = sel.configs.iter().find(|c| c.config_id == sel.best_config);
-        let best_text = best.and_then(|b| b.validation.get(m)).map(|s| format!("{} ± {} (sd), standard error {}", fixed(s.mean, 4), fixed(s.sd, 4), sig(standard_error(s), 2))).unwrap_or_default();
-        let outcome = if sel.best_config == sel.selected_config { "the best configuration is also the smallest within that margin".to_string() } else { format!("the best mean was {} at {best_text}", label(&sel.best_config)) };
+        let best_text = best
+            .and_then(|b| b.validation.get(m))
+            .map(|s| format!("{} ± {} (sd), standard error {}", fixed(s.mean, 4), fixed(s.sd, 4), sig(standard_error(s), 2)))
+            .unwrap_or_default();
+        let outcome = if sel.best_config == sel.selected_config {
+            "the best configuration is also the smallest within that margin".to_string()
+        } else {
+            format!("the best mean was {} at {best_text}", label(&sel.best_config))
+        };
         format!("chosen by the one-standard-error rule: the configuration with the fewest parameters whose mean validation {m} across seeds lies within one standard error of the best mean ({direction}; Breiman et al. 1984, common practice); {outcome}")
     } else {
         format!("chosen by the best mean validation {m} across seeds ({direction})")
@@ -479,7 +614,8 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
             if c.config_id == sel.selected_config {
                 label = format!("**{label}** (selected)");
             }
-            let seeds = if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
+            let seeds =
+                if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
             let mut cells = vec![label, c.parameter_count.to_string(), seeds];
             cells.extend(shown.iter().map(|k| spread_text(c.validation.get(*k))));
             cells.push(c.gap.as_ref().map(|g| format!("{} ± {}", fixed(orient(g.mean), 4), fixed(g.sd, 4))).unwrap_or_else(|| "–".into()));
@@ -489,7 +625,12 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
     let selected_summary = sel.configs.iter().find(|c| c.config_id == sel.selected_config);
     let baseline_summary = sel.configs.iter().find(|c| c.baseline);
     let baseline_line = match (selected_summary.and_then(|s| s.validation.get(m)), baseline_summary.and_then(|s| s.validation.get(m))) {
-        (Some(n), Some(b)) => format!("Validation {m}: network {} against linear baseline {} (difference {}).", spread_text(Some(n)), spread_text(Some(b)), fixed(n.mean - b.mean, 4)),
+        (Some(n), Some(b)) => format!(
+            "Validation {m}: network {} against linear baseline {} (difference {}).",
+            spread_text(Some(n)),
+            spread_text(Some(b)),
+            fixed(n.mean - b.mean, 4)
+        ),
         _ => "No linear baseline was trained (selection.baseline = false).".into(),
     };
     let t = &sel.test;
@@ -503,7 +644,13 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
         })
         .collect();
     let headline = match (t.metrics.get(m).copied().flatten(), t.intervals.get(m)) {
-        (Some(v), Some(i)) => format!("test {m} {} (95% bootstrap interval {} to {}, {} resamples)", fixed(v, 4), fixed(i.lower, 4), fixed(i.upper, 4), i.resamples),
+        (Some(v), Some(i)) => format!(
+            "test {m} {} (95% bootstrap interval {} to {}, {} resamples)",
+            fixed(v, 4),
+            fixed(i.lower, 4),
+            fixed(i.upper, 4),
+            i.resamples
+        ),
         (Some(v), None) => format!("test {m} {}", fixed(v, 4)),
         _ => format!("test {m} undefined"),
     };
@@ -519,13 +666,27 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
     let test_classes = if t.confusion.is_empty() {
         String::new()
     } else {
-        let counts: Vec<String> = t.confusion.iter().enumerate().map(|(i, r)| format!("{} {}", r.iter().sum::<usize>(), labels.get(i).cloned().unwrap_or_default())).collect();
+        let counts: Vec<String> = t
+            .confusion
+            .iter()
+            .enumerate()
+            .map(|(i, r)| format!("{} {}", r.iter().sum::<usize>(), labels.get(i).cloned().unwrap_or_default()))
+            .collect();
         format!(" The test split holds {}.", counts.join(", "))
     };
     let mut decisions = Vec::new();
     if !t.confusion.is_empty() {
-        let default_rule = if task == Task::Binary { "threshold 0.5: positive when the positive-class probability is above 0.5" } else { "the most probable class" };
-        decisions.push(decision(format!("At {default_rule} (accuracy and the other test figures use it)"), &labels, &t.confusion, &t.per_class));
+        let default_rule = if task == Task::Binary {
+            "threshold 0.5: positive when the positive-class probability is above 0.5"
+        } else {
+            "the most probable class"
+        };
+        decisions.push(decision(
+            format!("At {default_rule} (accuracy and the other test figures use it)"),
+            &labels,
+            &t.confusion,
+            &t.per_class,
+        ));
     }
     if let Some(th) = &t.chosen_threshold {
         decisions.push(decision(
@@ -538,14 +699,32 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
             &th.per_class,
         ));
     }
-    let reliability_rows = t.reliability.iter().map(|b| Row::of([format!("({}, {}]", sig(b.lower, 2), sig(b.upper, 2)), b.count.to_string(), fixed(b.mean_predicted, 4), fixed(b.observed, 4)])).collect();
+    let reliability_rows = t
+        .reliability
+        .iter()
+        .map(|b| {
+            Row::of([
+                format!("({}, {}]", sig(b.lower, 2), sig(b.upper, 2)),
+                b.count.to_string(),
+                fixed(b.mean_predicted, 4),
+                fixed(b.observed, 4),
+            ])
+        })
+        .collect();
     let group_rows = t
         .groups
         .iter()
         .map(|g| {
             let value = g.metrics.get(m).copied().flatten().map(|v| fixed(v, 4)).unwrap_or_else(|| "undefined".into());
             let ci = g.intervals.get(m).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
-            Row::of([md(&g.column), md(&g.level), g.rows.to_string(), g.base_rate.map(|b| sig(b, 3)).unwrap_or_else(|| "–".into()), value, ci])
+            Row::of([
+                md(&g.column),
+                md(&g.level),
+                g.rows.to_string(),
+                g.base_rate.map(|b| sig(b, 3)).unwrap_or_else(|| "–".into()),
+                value,
+                ci,
+            ])
         })
         .collect();
     let selected_cfg_label = st.plan.config(&sel.selected_config).map(|c| md(&config_label(&c.overrides, false))).unwrap_or_default();
@@ -586,8 +765,20 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
         manifest_path: code_span(&st.record.manifest_path),
         environment: vec![
             Row::of(["tabcard".into(), md_line(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))]),
-            Row::of(["numerics".into(), md_line(&format!("kernels {}, dispatch level {} (the level changes speed, never a bit)", environment.kernel_version, environment.kernel_level))]),
-            Row::of(["numerical kernels".into(), md_line(&format!("{}; model definition and stored form: candle {}", environment.kernel_features, environment.candle_version))]),
+            Row::of([
+                "numerics".into(),
+                md_line(&format!(
+                    "kernels {}, dispatch level {} (the level changes speed, never a bit)",
+                    environment.kernel_version, environment.kernel_level
+                )),
+            ]),
+            Row::of([
+                "numerical kernels".into(),
+                md_line(&format!(
+                    "{}; model definition and stored form: candle {}",
+                    environment.kernel_features, environment.candle_version
+                )),
+            ]),
             Row::of(["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))]),
             Row::of(["CPU features".into(), md_line(&environment.cpu_features.join(" "))]),
             Row::of(["C library".into(), md(&environment.libc)]),
@@ -609,18 +800,29 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
 fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
     let st = load(layout)?;
     let sel = &st.selection;
-    let selected_runs: Vec<&StoredRun> = st.runs.iter().filter(|r| r.record.config_id == sel.selected_config && r.record.outcome.is_completed()).collect();
-    let selected_cfg = st.plan.config(&sel.selected_config).ok_or_else(|| Error::store(layout.plan(), "does not list the selected configuration"))?;
-    let selected_run = st.runs.iter().find(|r| r.record.run_id == sel.selected_run).ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
+    let selected_runs: Vec<&StoredRun> =
+        st.runs.iter().filter(|r| r.record.config_id == sel.selected_config && r.record.outcome.is_completed()).collect();
+    let selected_cfg =
+        st.plan.config(&sel.selected_config).ok_or_else(|| Error::store(layout.plan(), "does not list the selected configuration"))?;
+    let selected_run = st
+        .runs
+        .iter()
+        .find(|r| r.record.run_id == sel.selected_run)
+        .ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
     let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
     let evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
-    let limitations: Vec<Limitation> = derive(&evidence).into_iter().map(|l| Limitation { finding: md_line(&l.finding), threshold: md_line(&l.threshold), ..l }).collect();
+    let limitations: Vec<Limitation> =
+        derive(&evidence).into_iter().map(|l| Limitation { finding: md_line(&l.finding), threshold: md_line(&l.threshold), ..l }).collect();
     let figs = figures(&st.manifest, sel, &selected_runs)?;
     let context = CardContext {
         about: about(&st.manifest),
         task: st.manifest.data.task.as_str().into(),
         target: md(&st.manifest.data.target),
-        positive_label: if st.manifest.data.task == Task::Binary { st.record.class_labels.get(1).map(|l| code_span(l)).unwrap_or_default() } else { String::new() },
+        positive_label: if st.manifest.data.task == Task::Binary {
+            st.record.class_labels.get(1).map(|l| code_span(l)).unwrap_or_default()
+        } else {
+            String::new()
+        },
         data: data_section(&st),
         capacity: capacity(&st, selected_cfg, selected_run),
         results: results(&st, &limitations),

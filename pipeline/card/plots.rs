@@ -95,49 +95,120 @@ impl Chart {
         let sx = |x: f64| LEFT + (x - x0) / (x1 - x0) * (W - LEFT - RIGHT);
         let sy = |y: f64| H - BOTTOM - (y - y0) / (y1 - y0) * (H - TOP - BOTTOM);
         let mut s = String::new();
-        let _ = writeln!(s, r#"<svg xmlns="http://www.w3.org/2000/svg" width="{W}" height="{H}" viewBox="0 0 {W} {H}" font-family="sans-serif" font-size="12">"#);
+        let _ = writeln!(
+            s,
+            r#"<svg xmlns="http://www.w3.org/2000/svg" width="{W}" height="{H}" viewBox="0 0 {W} {H}" font-family="sans-serif" font-size="12">"#
+        );
         let _ = writeln!(s, r#"<title>{}</title>"#, xml(&self.title));
         let _ = writeln!(s, r##"<rect x="0" y="0" width="{W}" height="{H}" fill="#ffffff"/>"##);
         let _ = writeln!(s, r#"<text x="{}" y="22" font-size="14" font-weight="bold">{}</text>"#, f(LEFT), xml(&self.title));
-        let _ = writeln!(s, r##"<rect x="{}" y="{}" width="{}" height="{}" fill="none" stroke="#444444"/>"##, f(LEFT), f(TOP), f(W - LEFT - RIGHT), f(H - TOP - BOTTOM));
+        let _ = writeln!(
+            s,
+            r##"<rect x="{}" y="{}" width="{}" height="{}" fill="none" stroke="#444444"/>"##,
+            f(LEFT),
+            f(TOP),
+            f(W - LEFT - RIGHT),
+            f(H - TOP - BOTTOM)
+        );
         for y in nice_ticks(y0, y1) {
-            let _ = writeln!(s, r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#dddddd"/><text x="{}" y="{}" text-anchor="end">{}</text>"##,
-                f(LEFT), f(sy(y)), f(W - RIGHT), f(sy(y)), f(LEFT - 6.0), f(sy(y) + 4.0), xml(&crate::format::sig(y, 3)));
+            let _ = writeln!(
+                s,
+                r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#dddddd"/><text x="{}" y="{}" text-anchor="end">{}</text>"##,
+                f(LEFT),
+                f(sy(y)),
+                f(W - RIGHT),
+                f(sy(y)),
+                f(LEFT - 6.0),
+                f(sy(y) + 4.0),
+                xml(&crate::format::sig(y, 3))
+            );
         }
         match &self.x_categories {
             Some(cats) => {
                 for (i, c) in cats.iter().enumerate() {
-                    let _ = writeln!(s, r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#, f(sx(i as f64)), f(H - BOTTOM + 18.0), xml(c));
+                    let _ =
+                        writeln!(s, r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#, f(sx(i as f64)), f(H - BOTTOM + 18.0), xml(c));
                 }
             }
             None => {
                 for x in nice_ticks(x0, x1) {
-                    let _ = writeln!(s, r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#, f(sx(x)), f(H - BOTTOM + 18.0), xml(&crate::format::sig(x, 3)));
+                    let _ = writeln!(
+                        s,
+                        r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#,
+                        f(sx(x)),
+                        f(H - BOTTOM + 18.0),
+                        xml(&crate::format::sig(x, 3))
+                    );
                 }
             }
         }
-        let _ = writeln!(s, r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#, f(LEFT + (W - LEFT - RIGHT) / 2.0), f(H - 12.0), xml(&self.x_label));
-        let _ = writeln!(s, r#"<text x="16" y="{}" text-anchor="middle" transform="rotate(-90 16 {})">{}</text>"#, f(H / 2.0), f(H / 2.0), xml(&self.y_label));
+        let _ = writeln!(
+            s,
+            r#"<text x="{}" y="{}" text-anchor="middle">{}</text>"#,
+            f(LEFT + (W - LEFT - RIGHT) / 2.0),
+            f(H - 12.0),
+            xml(&self.x_label)
+        );
+        let _ = writeln!(
+            s,
+            r#"<text x="16" y="{}" text-anchor="middle" transform="rotate(-90 16 {})">{}</text>"#,
+            f(H / 2.0),
+            f(H / 2.0),
+            xml(&self.y_label)
+        );
         if self.diagonal {
-            let _ = writeln!(s, r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#999999" stroke-dasharray="3 3"/>"##, f(sx(0.0)), f(sy(0.0)), f(sx(1.0)), f(sy(1.0)));
+            let _ = writeln!(
+                s,
+                r##"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="#999999" stroke-dasharray="3 3"/>"##,
+                f(sx(0.0)),
+                f(sy(0.0)),
+                f(sx(1.0)),
+                f(sy(1.0))
+            );
         }
         for (i, series) in self.series.iter().enumerate() {
             let colour = PALETTE[series.colour % PALETTE.len()];
             let dash = if series.dashed { r#" stroke-dasharray="6 4""# } else { "" };
-            let pts: Vec<String> = series.points.iter().filter(|p| p.0.is_finite() && p.1.is_finite()).map(|p| format!("{},{}", f(sx(p.0)), f(sy(p.1)))).collect();
-            let _ = writeln!(s, r#"<polyline class="series" data-series="{}" points="{}" fill="none" stroke="{colour}" stroke-width="1.8"{dash}/>"#, xml(&series.name), pts.join(" "));
+            let pts: Vec<String> = series
+                .points
+                .iter()
+                .filter(|p| p.0.is_finite() && p.1.is_finite())
+                .map(|p| format!("{},{}", f(sx(p.0)), f(sy(p.1))))
+                .collect();
+            let _ = writeln!(
+                s,
+                r#"<polyline class="series" data-series="{}" points="{}" fill="none" stroke="{colour}" stroke-width="1.8"{dash}/>"#,
+                xml(&series.name),
+                pts.join(" ")
+            );
             for (j, p) in series.points.iter().enumerate() {
                 if !(p.0.is_finite() && p.1.is_finite()) {
                     continue;
                 }
                 let _ = writeln!(s, r#"<circle cx="{}" cy="{}" r="2.5" fill="{colour}"/>"#, f(sx(p.0)), f(sy(p.1)));
                 if let Some(e) = series.errors.as_ref().map(|e| e[j]).filter(|e| *e > 0.0) {
-                    let _ = writeln!(s, r#"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="{colour}"/>"#, f(sx(p.0)), f(sy(p.1 - e)), f(sx(p.0)), f(sy(p.1 + e)));
+                    let _ = writeln!(
+                        s,
+                        r#"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="{colour}"/>"#,
+                        f(sx(p.0)),
+                        f(sy(p.1 - e)),
+                        f(sx(p.0)),
+                        f(sy(p.1 + e))
+                    );
                 }
             }
             let ly = TOP + 14.0 + 18.0 * i as f64;
-            let _ = writeln!(s, r#"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="{colour}" stroke-width="1.8"{dash}/><text x="{}" y="{}">{}</text>"#,
-                f(W - RIGHT + 10.0), f(ly), f(W - RIGHT + 34.0), f(ly), f(W - RIGHT + 40.0), f(ly + 4.0), xml(&series.name));
+            let _ = writeln!(
+                s,
+                r#"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="{colour}" stroke-width="1.8"{dash}/><text x="{}" y="{}">{}</text>"#,
+                f(W - RIGHT + 10.0),
+                f(ly),
+                f(W - RIGHT + 34.0),
+                f(ly),
+                f(W - RIGHT + 40.0),
+                f(ly + 4.0),
+                xml(&series.name)
+            );
         }
         s.push_str("</svg>\n");
         s

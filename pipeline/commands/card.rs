@@ -12,5 +12,9 @@ pub fn run(results_folder: &Path, templates: Option<&Path>) -> Result<String> {
     let layout = Layout::new(results_folder);
     layout.check_sealed()?;
     let digest = write_card(&layout, templates)?;
-    Ok(format!("card     {}\nfigures  {}\ndigest   {digest} (results digest, unchanged)\n", layout.card().display(), layout.figures().display()))
+    Ok(format!(
+        "card     {}\nfigures  {}\ndigest   {digest} (results digest, unchanged)\n",
+        layout.card().display(),
+        layout.figures().display()
+    ))
 }

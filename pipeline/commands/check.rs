@@ -43,10 +43,18 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let stratified = m.split.stratify && m.data.task != crate::manifest::Task::Regression;
     let method = match (&m.split.column, &m.split.group) {
         (Some(c), _) => format!("given by column {}", terminal_safe(c)),
-        (None, Some(g)) => format!("whole groups of {}, seed {}{}", terminal_safe(g), m.split.seed, if stratified { ", stratified" } else { "" }),
+        (None, Some(g)) => {
+            format!("whole groups of {}, seed {}{}", terminal_safe(g), m.split.seed, if stratified { ", stratified" } else { "" })
+        }
         (None, None) => format!("rows, seed {}, {}", m.split.seed, if stratified { "stratified" } else { "random" }),
     };
-    let _ = writeln!(out, "split        train {} / validation {} / test {} ({method})", exp.splits.train.len(), exp.splits.validation.len(), exp.splits.test.len());
+    let _ = writeln!(
+        out,
+        "split        train {} / validation {} / test {} ({method})",
+        exp.splits.train.len(),
+        exp.splits.validation.len(),
+        exp.splits.test.len()
+    );
     let checks = &s.split_checks;
     let _ = writeln!(
         out,
@@ -54,7 +62,13 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
         s.duplicate_rows, checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training
     );
     for k in checks.repeated_keys.iter().filter(|k| k.crossing > 0) {
-        let _ = writeln!(out, "note: {} repeats across splits: {} of {} values occur in more than one split (set [split] group to keep them together)", terminal_safe(&k.column), k.crossing, k.values);
+        let _ = writeln!(
+            out,
+            "note: {} repeats across splits: {} of {} values occur in more than one split (set [split] group to keep them together)",
+            terminal_safe(&k.column),
+            k.crossing,
+            k.values
+        );
     }
     if !checks.constant_on_training.is_empty() {
         let _ = writeln!(out, "note: constant on the training rows: {}", terminal_safe(&checks.constant_on_training.join(", ")));
@@ -62,21 +76,33 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let _ = writeln!(out, "\n{:<28} {:<9} {:<8} {:>8}  summary", "column", "role", "type", "missing");
     for c in &s.columns {
         let detail = match &c.numeric {
-            Some(n) => format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std)),
+            Some(n) => {
+                format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std))
+            }
             None => {
-                let top: Vec<String> = c.top_levels.iter().take(3).map(|l| format!("{} ({})", crate::text::terminal_cell(&l.level, 24), l.count)).collect();
+                let top: Vec<String> =
+                    c.top_levels.iter().take(3).map(|l| format!("{} ({})", crate::text::terminal_cell(&l.level, 24), l.count)).collect();
                 format!("{} levels: {}", c.distinct, top.join(", "))
             }
         };
         let kind = if c.categorical && c.kind != "string" { format!("{}*", c.kind) } else { c.kind.clone() };
-        let _ = writeln!(out, "{:<28} {:<9} {:<8} {:>7.1}%  {}", crate::text::terminal_cell(&c.name, 28), c.role, kind, 100.0 * c.missing_share, detail);
+        let _ = writeln!(
+            out,
+            "{:<28} {:<9} {:<8} {:>7.1}%  {}",
+            crate::text::terminal_cell(&c.name, 28),
+            c.role,
+            kind,
+            100.0 * c.missing_share,
+            detail
+        );
     }
     let _ = writeln!(out, "\ntarget       {} ({})", terminal_safe(&s.target.name), m.data.task.as_str());
     for l in &s.target.classes {
         let _ = writeln!(out, "  {:<24} {:>8} rows ({:.1}%)", terminal_safe(&l.level), l.count, 100.0 * l.count as f64 / s.rows as f64);
     }
     if let Some(d) = &s.target.distribution {
-        let _ = writeln!(out, "  min {} / q25 {} / median {} / q75 {} / max {}", num(d.min), num(d.q25), num(d.median), num(d.q75), num(d.max));
+        let _ =
+            writeln!(out, "  min {} / q25 {} / median {} / q75 {} / max {}", num(d.min), num(d.q25), num(d.median), num(d.q75), num(d.max));
     }
     if !s.warnings.is_empty() {
         let _ = writeln!(out, "\nwarnings");
@@ -85,17 +111,26 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
         }
     }
     let grid_points = plan.configs.iter().filter(|c| !c.baseline).count();
-    let _ = writeln!(out, "\nplan         {} runs = {} configuration(s) x {} seed(s){}",
-        plan.runs.len(), grid_points, m.sweep.seeds.len(),
-        if m.selection.baseline { format!(" + linear baseline x {} seed(s)", m.sweep.seeds.len()) } else { String::new() });
+    let _ = writeln!(
+        out,
+        "\nplan         {} runs = {} configuration(s) x {} seed(s){}",
+        plan.runs.len(),
+        grid_points,
+        m.sweep.seeds.len(),
+        if m.selection.baseline { format!(" + linear baseline x {} seed(s)", m.sweep.seeds.len()) } else { String::new() }
+    );
     for (key, values) in &m.sweep.grid {
         let vals: Vec<String> = values.iter().map(|v| v.to_string()).collect();
         let _ = writeln!(out, "  {key} in [{}]", vals.join(", "));
     }
-    let _ = writeln!(out, "selection    validation {} ({})", m.selection.metric,
+    let _ = writeln!(
+        out,
+        "selection    validation {} ({})",
+        m.selection.metric,
         match crate::metrics::registry::direction(m.data.task, &m.selection.metric) {
             Some(crate::metrics::registry::Direction::Maximise) => "higher is better",
             _ => "lower is better",
-        });
+        }
+    );
     out
 }

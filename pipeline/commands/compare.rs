@@ -67,7 +67,10 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
         let _ = writeln!(out, "  none");
     }
     let _ = writeln!(out, "\ndata:");
-    for (name, x, y) in [("file SHA-256", &sa.record.data.file_sha256, &sb.record.data.file_sha256), ("content SHA-256", &sa.record.data.content_sha256, &sb.record.data.content_sha256)] {
+    for (name, x, y) in [
+        ("file SHA-256", &sa.record.data.file_sha256, &sb.record.data.file_sha256),
+        ("content SHA-256", &sa.record.data.content_sha256, &sb.record.data.content_sha256),
+    ] {
         if x == y {
             let _ = writeln!(out, "  {name} same: {x}");
         } else {
@@ -85,14 +88,26 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
     }
     let _ = writeln!(out, "\nselected configurations, validation (mean ± sd across seeds) and test:");
     let (ca, cb) = (selected(&sa.selection), selected(&sb.selection));
-    let metrics: std::collections::BTreeSet<&String> = ca.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default().into_iter().chain(cb.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default()).collect();
+    let metrics: std::collections::BTreeSet<&String> = ca
+        .map(|c| c.validation.keys().collect::<Vec<_>>())
+        .unwrap_or_default()
+        .into_iter()
+        .chain(cb.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default())
+        .collect();
     let _ = writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  judgement", "metric", "A", "B", "B - A");
     for m in metrics {
         let (Some(x), Some(y)) = (ca.and_then(|c| c.validation.get(m)), cb.and_then(|c| c.validation.get(m))) else { continue };
         let delta = y.mean - x.mean;
         let noise = 2.0 * (x.sd * x.sd + y.sd * y.sd).sqrt();
         let judgement = if delta.abs() <= noise { "within noise (|delta| <= 2 combined sd)" } else { "beyond seed noise" };
-        let _ = writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  {judgement}", m, format!("{} ± {}", fixed(x.mean, 4), fixed(x.sd, 4)), format!("{} ± {}", fixed(y.mean, 4), fixed(y.sd, 4)), fixed(delta, 4));
+        let _ = writeln!(
+            out,
+            "  {:<18} {:>18} {:>18} {:>9}  {judgement}",
+            m,
+            format!("{} ± {}", fixed(x.mean, 4), fixed(x.sd, 4)),
+            format!("{} ± {}", fixed(y.mean, 4), fixed(y.sd, 4)),
+            fixed(delta, 4)
+        );
     }
     let m = &sa.selection.metric;
     if let (Some(x), Some(y)) = (sa.selection.test.metrics.get(m).copied().flatten(), sb.selection.test.metrics.get(m).copied().flatten()) {

@@ -17,7 +17,11 @@ pub fn run(results_root: &Path) -> Result<String> {
         let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
         return Ok(out);
     }
-    let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} verified", "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric");
+    let _ = writeln!(
+        out,
+        "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} verified",
+        "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric"
+    );
     for e in &entries {
         let commit = match (&e.git_commit, e.git_dirty) {
             (Some(c), Some(true)) => format!("{}+", &c[..8.min(c.len())]),
@@ -30,7 +34,18 @@ pub fn run(results_root: &Path) -> Result<String> {
             Some(v) => format!("FAILED ({})", v.time),
             None => "no".into(),
         };
-        let _ = writeln!(out, "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}", e.time, terminal_cell(&e.experiment, 28), &e.fingerprint[..16], commit, e.runs_trained, e.runs_reused, metric, verified);
+        let _ = writeln!(
+            out,
+            "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}",
+            e.time,
+            terminal_cell(&e.experiment, 28),
+            &e.fingerprint[..16],
+            commit,
+            e.runs_trained,
+            e.runs_reused,
+            metric,
+            verified
+        );
     }
     Ok(out)
 }

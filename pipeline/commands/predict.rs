@@ -64,7 +64,10 @@ fn resolved(path: &Path) -> Result<PathBuf> {
 /// The results store `path` would be written into, if any: an experiment's results folder (it
 /// holds `format.json`) or a results root (it holds the ledger).
 fn enclosing_store(path: &Path) -> Option<PathBuf> {
-    path.ancestors().skip(1).find(|dir| dir.join("format.json").is_file() || dir.join(crate::store::ledger::FILE).is_file()).map(Path::to_path_buf)
+    path.ancestors()
+        .skip(1)
+        .find(|dir| dir.join("format.json").is_file() || dir.join(crate::store::ledger::FILE).is_file())
+        .map(Path::to_path_buf)
 }
 
 /// Refuses an output that would overwrite evidence or the input, before any scoring is done.
@@ -115,9 +118,14 @@ fn numeric_kind(c: &Column) -> bool {
 fn check_schema(table: &Table, summary: &DataSummary, inputs: &[InputEncoding], file: &Path) -> Result<()> {
     let missing: Vec<&str> = inputs.iter().map(InputEncoding::name).filter(|n| table.column(n).is_none()).collect();
     if !missing.is_empty() {
-        return Err(Error::data(file, Some(missing[0]), format!(
-            "is missing: the model was trained with it (missing: {})", missing.iter().map(|m| format!("`{}`", terminal_safe(m))).collect::<Vec<_>>().join(", ")
-        )));
+        return Err(Error::data(
+            file,
+            Some(missing[0]),
+            format!(
+                "is missing: the model was trained with it (missing: {})",
+                missing.iter().map(|m| format!("`{}`", terminal_safe(m))).collect::<Vec<_>>().join(", ")
+            ),
+        ));
     }
     for enc in inputs {
         let name = enc.name();
@@ -128,7 +136,11 @@ fn check_schema(table: &Table, summary: &DataSummary, inputs: &[InputEncoding], 
             InputEncoding::Categorical { .. } => (trained == "string") == col.is_text(),
         };
         if !ok {
-            return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on a {trained} column", col.source_type)));
+            return Err(Error::data(
+                file,
+                Some(name),
+                format!("has type {} but the model was trained on a {trained} column", col.source_type),
+            ));
         }
     }
     Ok(())
@@ -138,7 +150,9 @@ fn passthrough(col: &Column) -> ArrayRef {
     let n = col.len();
     match &col.values {
         ColumnValues::Float(v) => Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
-        ColumnValues::Float32(v) => Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| f64::from(v[r]))).collect::<Vec<_>>())),
+        ColumnValues::Float32(v) => {
+            Arc::new(Float64Array::from((0..n).map(|r| col.is_valid(r).then(|| f64::from(v[r]))).collect::<Vec<_>>()))
+        }
         ColumnValues::Int(v) => Arc::new(Int64Array::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
         ColumnValues::Bool(v) => Arc::new(BooleanArray::from((0..n).map(|r| col.is_valid(r).then(|| v[r])).collect::<Vec<_>>())),
         ColumnValues::Text { .. } => Arc::new(StringArray::from((0..n).map(|r| col.label(r)).collect::<Vec<_>>())),
@@ -177,15 +191,18 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
                 if record.task == Task::Binary && c == 0 {
                     continue;
                 }
-                columns.push((format!("p_{label}"), Arc::new(Float64Array::from(outputs.chunks_exact(k).map(|r| r[c]).collect::<Vec<_>>()))));
+                columns
+                    .push((format!("p_{label}"), Arc::new(Float64Array::from(outputs.chunks_exact(k).map(|r| r[c]).collect::<Vec<_>>()))));
             }
-            let predicted: Vec<String> = outputs.chunks_exact(k).map(|r| record.class_labels[crate::metrics::classification::argmax(r)].clone()).collect();
+            let predicted: Vec<String> =
+                outputs.chunks_exact(k).map(|r| record.class_labels[crate::metrics::classification::argmax(r)].clone()).collect();
             columns.push(("predicted".into(), Arc::new(StringArray::from(predicted))));
         }
     }
     columns.push(("outside_training_range".into(), Arc::new(BooleanArray::from(report.out_of_range.clone()))));
     if options.keep_extra {
-        let used: Vec<&str> = model.preprocessor.inputs.iter().map(InputEncoding::name).chain(record.ids.iter().map(String::as_str)).collect();
+        let used: Vec<&str> =
+            model.preprocessor.inputs.iter().map(InputEncoding::name).chain(record.ids.iter().map(String::as_str)).collect();
         for col in table.columns.iter().filter(|c| !used.contains(&c.name.as_str())) {
             if columns.iter().any(|(n, _)| *n == col.name) {
                 return Err(Error::data(input, Some(&col.name), "clashes with an output column name"));
@@ -200,7 +217,8 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
         let _ = writeln!(out, "unseen    no category levels unseen in training");
     }
     for (col, n) in &report.unseen_levels {
-        let _ = writeln!(out, "unseen    {} rows of `{}` hold a level unseen in training (scored as the unseen bucket)", n, terminal_safe(col));
+        let _ =
+            writeln!(out, "unseen    {} rows of `{}` hold a level unseen in training (scored as the unseen bucket)", n, terminal_safe(col));
     }
     Ok((columns, out))
 }

@@ -115,7 +115,12 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
         let merge_job = sbatch(&[&dependency, &merge_path])?;
         let _ = writeln!(out, "submitted array job {array_job} and merge job {merge_job} (runs after every array task has ended)");
     } else {
-        let _ = writeln!(out, "submit with:  jobid=$(sbatch --parsable {}) && sbatch --dependency=afterany:$jobid {}", array_path.display(), merge_path.display());
+        let _ = writeln!(
+            out,
+            "submit with:  jobid=$(sbatch --parsable {}) && sbatch --dependency=afterany:$jobid {}",
+            array_path.display(),
+            merge_path.display()
+        );
         let _ = writeln!(out, "or rerun this command with --submit");
     }
     Ok(out)

@@ -6,11 +6,11 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use crate::data::prep::Preprocessor;
-use crate::prepared::Prepared;
 use crate::error::{Error, Result};
 use crate::experiment::{open, Experiment};
 use crate::format::fixed;
 use crate::plan::Plan;
+use crate::prepared::Prepared;
 use crate::selection::Selection;
 use crate::shard::Shard;
 use crate::store::ledger::{self, LedgerEntry};
@@ -40,7 +40,10 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
         layout.check_format()?;
         let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
         if stored != canonical {
-            return Err(Error::store(layout.manifest(), "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain"));
+            return Err(Error::store(
+                layout.manifest(),
+                "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain",
+            ));
         }
     } else {
         crate::store::create_dir(&layout.root)?;
@@ -56,17 +59,25 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     write_json(&layout.format(), &FormatRecord::current())
 }
 
-
 fn table(selection: &Selection) -> String {
     let mut out = String::new();
     let m = &selection.metric;
-    let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}", "configuration", "params", "seeds", format!("validation {m}"), "train-val gap");
+    let _ =
+        writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}", "configuration", "params", "seeds", format!("validation {m}"), "train-val gap");
     for c in &selection.configs {
         let v = c.validation.get(m).map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
         let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
         let mark = if c.config_id == selection.selected_config { " *" } else { "" };
         let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
-        let _ = writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}", crate::text::terminal_safe(&crate::plan::config_label(&c.overrides, c.baseline)), c.parameter_count, seeds, v, g);
+        let _ = writeln!(
+            out,
+            "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}",
+            crate::text::terminal_safe(&crate::plan::config_label(&c.overrides, c.baseline)),
+            c.parameter_count,
+            seeds,
+            v,
+            g
+        );
     }
     let t = &selection.test;
     let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
@@ -101,24 +112,41 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 
 /// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
 /// card (which seals the folder). Returns the selection and the results digest.
-fn select_and_record(prepared: &Prepared, layout: &Layout, manifest_path: &Path, jobs: usize, started: Instant) -> Result<(Selection, String)> {
+fn select_and_record(
+    prepared: &Prepared,
+    layout: &Layout,
+    manifest_path: &Path,
+    jobs: usize,
+    started: Instant,
+) -> Result<(Selection, String)> {
     let runs = crate::store::run::read_runs(layout, &prepared.plan)?;
     let selection = crate::selection::derive(prepared, &runs)?;
     write_json(&layout.selection(), &selection)?;
     let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
-    write_json(&layout.timing(), &TimingRecord {
-        trained_at: crate::provenance::now_rfc3339(),
-        git_commit,
-        git_dirty,
-        jobs,
-        wall_seconds: started.elapsed().as_secs_f64(),
-        run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
-    })?;
+    write_json(
+        &layout.timing(),
+        &TimingRecord {
+            trained_at: crate::provenance::now_rfc3339(),
+            git_commit,
+            git_dirty,
+            jobs,
+            wall_seconds: started.elapsed().as_secs_f64(),
+            run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
+        },
+    )?;
     let digest = crate::card::write_card(layout, None)?;
     Ok((selection, digest))
 }
 
-fn ledger_entry(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::SweepReport, selection: &Selection, results_digest: &str, manifest_path: &Path) -> LedgerEntry {
+fn ledger_entry(
+    exp: &Experiment,
+    plan: &Plan,
+    layout: &Layout,
+    report: &sweep::SweepReport,
+    selection: &Selection,
+    results_digest: &str,
+    manifest_path: &Path,
+) -> LedgerEntry {
     let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
     LedgerEntry {
         time: crate::provenance::now_rfc3339(),
@@ -141,13 +169,29 @@ fn ledger_entry(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::
 
 /// The terminal report of a completed `train`.
 #[allow(clippy::too_many_arguments)]
-fn summary(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::SweepReport, selection: &Selection, results_digest: &str, nothing_new: bool, jobs: usize) -> String {
+fn summary(
+    exp: &Experiment,
+    plan: &Plan,
+    layout: &Layout,
+    report: &sweep::SweepReport,
+    selection: &Selection,
+    results_digest: &str,
+    nothing_new: bool,
+    jobs: usize,
+) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
     if nothing_new {
         let _ = writeln!(out, "nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len());
     } else {
-        let _ = writeln!(out, "runs: {} trained, {} reused, {} failed, {} planned ({jobs} workers)", report.trained.len(), report.reused.len(), report.failed.len(), plan.runs.len());
+        let _ = writeln!(
+            out,
+            "runs: {} trained, {} reused, {} failed, {} planned ({jobs} workers)",
+            report.trained.len(),
+            report.reused.len(),
+            report.failed.len(),
+            plan.runs.len()
+        );
     }
     for (id, why) in &report.failed {
         let _ = writeln!(out, "  run {id} {why}");
@@ -156,7 +200,10 @@ fn summary(exp: &Experiment, plan: &Plan, layout: &Layout, report: &sweep::Sweep
     out.push_str(&table(selection));
     let _ = writeln!(out, "\nresults  {}", layout.root.display());
     let _ = writeln!(out, "card     {}", layout.card().display());
-    let _ = writeln!(out, "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)");
+    let _ = writeln!(
+        out,
+        "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)"
+    );
     out
 }
 

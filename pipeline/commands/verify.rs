@@ -61,7 +61,9 @@ fn compare_run(stored: &StoredRun, fresh: &TrainedRun) -> Result<Vec<String>> {
     if !r.tensor_sha256.is_empty() {
         let on_disk = tensor_digests(&stored.tensors()?);
         if let Some(name) = r.tensor_sha256.keys().find(|k| on_disk.get(*k) != r.tensor_sha256.get(*k)) {
-            diffs.push(format!("stored weights file: tensor `{name}` does not match its recorded SHA-256 (weights.safetensors was altered)"));
+            diffs.push(format!(
+                "stored weights file: tensor `{name}` does not match its recorded SHA-256 (weights.safetensors was altered)"
+            ));
         }
     }
     let names: BTreeSet<&String> = r.tensor_sha256.keys().chain(fresh.record.tensor_sha256.keys()).collect();
@@ -73,7 +75,11 @@ fn compare_run(stored: &StoredRun, fresh: &TrainedRun) -> Result<Vec<String>> {
         ));
     }
     let history = stored.history()?;
-    let first = history.iter().zip(&fresh.history).position(|(a, b)| a != b).or_else(|| (history.len() != fresh.history.len()).then(|| history.len().min(fresh.history.len())));
+    let first = history
+        .iter()
+        .zip(&fresh.history)
+        .position(|(a, b)| a != b)
+        .or_else(|| (history.len() != fresh.history.len()).then(|| history.len().min(fresh.history.len())));
     if let Some(i) = first {
         diffs.push(format!("history differs from epoch {} on ({} stored epochs, {} rerun)", i + 1, history.len(), fresh.history.len()));
     }
@@ -123,11 +129,13 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let manifest_text = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
     let manifest_hash = sha256_hex(manifest_text.as_bytes());
     if manifest_hash != record.manifest_sha256 {
-        return Err(Error::store(layout.manifest(), format!(
-            "was edited after training: its SHA-256 is {manifest_hash}, experiment.json records {}", record.manifest_sha256
-        )));
+        return Err(Error::store(
+            layout.manifest(),
+            format!("was edited after training: its SHA-256 is {manifest_hash}, experiment.json records {}", record.manifest_sha256),
+        ));
     }
-    let manifest: Manifest = serde_json::from_str(&manifest_text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
+    let manifest: Manifest =
+        serde_json::from_str(&manifest_text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
     let manifest_path = locate_manifest(&record.manifest_path, &layout.root);
     let data_path = match &options.data {
         Some(p) => p.clone(),
@@ -135,13 +143,19 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     };
     let file_hash = file_sha256(&data_path)?;
     if file_hash != record.data.file_sha256 {
-        return Err(Error::data(&data_path, None, format!(
-            "has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256
-        )));
+        return Err(Error::data(
+            &data_path,
+            None,
+            format!("has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256),
+        ));
     }
     let exp = open_with_data(LoadedManifest { path: manifest_path, manifest }, data_path.clone())?;
     if exp.data.content_sha256 != record.data.content_sha256 {
-        return Err(Error::data(&data_path, None, format!("content hash {} differs from the recorded {}", exp.data.content_sha256, record.data.content_sha256)));
+        return Err(Error::data(
+            &data_path,
+            None,
+            format!("content hash {} differs from the recorded {}", exp.data.content_sha256, record.data.content_sha256),
+        ));
     }
     let prepared = Prepared::with_fingerprint(exp, &record.fingerprint)?;
     let stored_plan: Plan = read_json(&layout.plan())?;
@@ -185,7 +199,13 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
     let mut out = String::new();
     let mut identical = true;
     let _ = writeln!(out, "verifying {} ({})", layout.root.display(), record.fingerprint);
-    let _ = writeln!(out, "data      {} matches: file SHA-256 {}, content SHA-256 {}", data_path.display(), record.data.file_sha256, record.data.content_sha256);
+    let _ = writeln!(
+        out,
+        "data      {} matches: file SHA-256 {}, content SHA-256 {}",
+        data_path.display(),
+        record.data.file_sha256,
+        record.data.content_sha256
+    );
     let _ = writeln!(out, "manifest  matches its recorded SHA-256 {}", record.manifest_sha256);
     let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| read_json(&layout.run(&s.id).join(ENVIRONMENT)).ok());
     match recorded_env {
@@ -193,7 +213,11 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
             let promised = recorded.promises_same_bits_as(&now);
             let differences = environment_differences(&recorded, &now);
             let _ = if promised {
-                writeln!(out, "numerics  tabcard {} with kernels {}, as recorded: identical bits are promised on any CPU", now.tool_version, now.kernel_version)
+                writeln!(
+                    out,
+                    "numerics  tabcard {} with kernels {}, as recorded: identical bits are promised on any CPU",
+                    now.tool_version, now.kernel_version
+                )
             } else {
                 writeln!(out, "numerics  DIFFER from the recorded ones: identical bits are promised only for the same tabcard version and kernel version")
             };
@@ -201,12 +225,16 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
                 let _ = writeln!(out, "  {line}");
             }
         }
-        None => { let _ = writeln!(out, "numerics  no recorded environment to compare"); }
+        None => {
+            let _ = writeln!(out, "numerics  no recorded environment to compare");
+        }
     }
     let _ = writeln!(out, "\nruns ({}):", if options.all { "all" } else { "selected configuration" });
     for (id, seed, verdict) in &verdicts {
         match verdict {
-            Ok(d) if d.is_empty() => { let _ = writeln!(out, "  {id} seed {seed}: identical (weights, history, metrics)"); }
+            Ok(d) if d.is_empty() => {
+                let _ = writeln!(out, "  {id} seed {seed}: identical (weights, history, metrics)");
+            }
             Ok(d) => {
                 identical = false;
                 let _ = writeln!(out, "  {id} seed {seed}: DIFFERS");
@@ -229,7 +257,10 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
         }
         Ok(_) => {
             identical = false;
-            let _ = writeln!(out, "\nselection DIFFERS: selection.json does not match the selection and test metrics re-derived from the stored runs");
+            let _ = writeln!(
+                out,
+                "\nselection DIFFERS: selection.json does not match the selection and test metrics re-derived from the stored runs"
+            );
         }
         Err(e) => {
             identical = false;
@@ -245,25 +276,41 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
                 writeln!(out, "card      differs from the default rendering of the evidence (expected only when it was rendered with `card --templates` or timing.json changed)")
             };
         }
-        Err(e) => { let _ = writeln!(out, "card      cannot be re-rendered: {e}"); }
+        Err(e) => {
+            let _ = writeln!(out, "card      cannot be re-rendered: {e}");
+        }
     }
     let root = layout.root.parent().unwrap_or(Path::new("."));
-    let ledgered = crate::store::ledger::read(root)?.into_iter().rev().find(|e| e.fingerprint == record.fingerprint && e.results_digest.is_some()).and_then(|e| e.results_digest);
+    let ledgered = crate::store::ledger::read(root)?
+        .into_iter()
+        .rev()
+        .find(|e| e.fingerprint == record.fingerprint && e.results_digest.is_some())
+        .and_then(|e| e.results_digest);
     match ledgered {
-        Some(d) if d == digest => { let _ = writeln!(out, "digest    {digest}: every stored file matches integrity.sha256, and the ledger records this digest"); }
+        Some(d) if d == digest => {
+            let _ = writeln!(out, "digest    {digest}: every stored file matches integrity.sha256, and the ledger records this digest");
+        }
         Some(d) => {
             identical = false;
             let _ = writeln!(out, "digest    {digest} DIFFERS from the ledger's {d}: integrity.sha256 was rewritten after training");
         }
-        None => { let _ = writeln!(out, "digest    {digest}: every stored file matches integrity.sha256 (no ledger line records a digest for this experiment)"); }
+        None => {
+            let _ = writeln!(
+                out,
+                "digest    {digest}: every stored file matches integrity.sha256 (no ledger line records a digest for this experiment)"
+            );
+        }
     }
     let _ = writeln!(out, "\nverdict   {}", if identical { "verified: every run reproduced bit for bit" } else { "NOT verified" });
-    crate::store::ledger::append_verification(root, &crate::store::ledger::VerificationEntry {
-        time: crate::provenance::now_rfc3339(),
-        fingerprint: record.fingerprint.clone(),
-        results: crate::store::folder_name(&layout.root),
-        runs_checked: verdicts.len(),
-        identical,
-    })?;
+    crate::store::ledger::append_verification(
+        root,
+        &crate::store::ledger::VerificationEntry {
+            time: crate::provenance::now_rfc3339(),
+            fingerprint: record.fingerprint.clone(),
+            results: crate::store::folder_name(&layout.root),
+            runs_checked: verdicts.len(),
+            identical,
+        },
+    )?;
     Ok(VerifyOutcome { report: out, identical })
 }

@@ -35,7 +35,10 @@ fn cell(column: &ArrayRef, row: usize) -> Result<String> {
     if let Some(a) = any.downcast_ref::<StringArray>() {
         return Ok(a.value(row).to_string());
     }
-    Err(Error::Usage(format!("CSV output of a {} column is not supported; write Parquet (--out with .parquet) instead", column.data_type())))
+    Err(Error::Usage(format!(
+        "CSV output of a {} column is not supported; write Parquet (--out with .parquet) instead",
+        column.data_type()
+    )))
 }
 
 /// The columns (equal lengths) as CSV text.

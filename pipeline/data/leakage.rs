@@ -159,12 +159,7 @@ pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitCheck
             evaluation_rows_sharing,
         });
     }
-    SplitChecks {
-        test_rows_duplicating_training,
-        validation_rows_duplicating_training,
-        constant_on_training,
-        repeated_keys,
-    }
+    SplitChecks { test_rows_duplicating_training, validation_rows_duplicating_training, constant_on_training, repeated_keys }
 }
 
 #[cfg(test)]

@@ -27,8 +27,8 @@ struct Builder {
 fn supported(dt: &DataType) -> bool {
     use DataType::*;
     match dt {
-        Float16 | Float32 | Float64 | Int8 | Int16 | Int32 | Int64 | UInt8 | UInt16 | UInt32 | UInt64 | Boolean
-        | Utf8 | LargeUtf8 | Utf8View => true,
+        Float16 | Float32 | Float64 | Int8 | Int16 | Int32 | Int64 | UInt8 | UInt16 | UInt32 | UInt64 | Boolean | Utf8 | LargeUtf8
+        | Utf8View => true,
         Dictionary(_, value) => matches!(value.as_ref(), Utf8 | LargeUtf8 | Utf8View),
         _ => false,
     }
@@ -93,7 +93,11 @@ impl Builder {
                     for i in 0..n {
                         let x = if is_valid(i) {
                             i64::try_from(a.value(i)).map_err(|_| {
-                                Error::data(file, Some(&self.name), format!("row {}: value {} does not fit a 64-bit signed integer", first_row + i, a.value(i)))
+                                Error::data(
+                                    file,
+                                    Some(&self.name),
+                                    format!("row {}: value {} does not fit a 64-bit signed integer", first_row + i, a.value(i)),
+                                )
                             })?
                         } else {
                             0
@@ -165,12 +169,7 @@ impl Builder {
     }
 
     fn finish(self) -> Column {
-        Column {
-            name: self.name,
-            source_type: self.source_type,
-            values: self.values,
-            valid: self.has_null.then_some(self.valid),
-        }
+        Column { name: self.name, source_type: self.source_type, values: self.values, valid: self.has_null.then_some(self.valid) }
     }
 }
 
@@ -213,9 +212,11 @@ fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file:
             let mut pages = group.get_column_page_reader(c).map_err(corrupt)?;
             if let Some(Page::DictionaryPage { buf, num_values, .. }) = pages.get_next_page().map_err(corrupt)? {
                 if num_values as u64 * min_bits > 8 * buf.len() as u64 {
-                    return Err(Error::data(path, Some(meta.column_path().string().as_str()), format!(
-                        "corrupt Parquet dictionary page in row group {g}: {num_values} values declared in {} bytes", buf.len()
-                    )));
+                    return Err(Error::data(
+                        path,
+                        Some(meta.column_path().string().as_str()),
+                        format!("corrupt Parquet dictionary page in row group {g}: {num_values} values declared in {} bytes", buf.len()),
+                    ));
                 }
             }
         }
@@ -229,7 +230,8 @@ fn read_from<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() ->
     match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode(open, path))) {
         Ok(result) => result,
         Err(panic) => {
-            let detail = panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
+            let detail =
+                panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
             Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")))
         }
     }
@@ -238,18 +240,18 @@ fn read_from<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() ->
 /// `open` gives a fresh reader over the same bytes each time it is called (one pass checks the
 /// dictionary pages, one decodes).
 fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
-    let not_parquet = |e: parquet::errors::ParquetError| {
-        Error::data(path, None, format!("not a readable Parquet file: {e}"))
-    };
+    let not_parquet = |e: parquet::errors::ParquetError| Error::data(path, None, format!("not a readable Parquet file: {e}"));
     let builder = ParquetRecordBatchReaderBuilder::try_new(open()?).map_err(not_parquet)?;
     // The parquet crate asserts (panics) on negative column offsets or sizes; reject them first.
     for (g, group) in builder.metadata().row_groups().iter().enumerate() {
         for column in group.columns() {
             let start = column.dictionary_page_offset().unwrap_or(column.data_page_offset());
             if start < 0 || column.compressed_size() < 0 {
-                return Err(Error::data(path, Some(column.column_path().string().as_str()), format!(
-                    "corrupt Parquet metadata in row group {g}: negative column offset or size"
-                )));
+                return Err(Error::data(
+                    path,
+                    Some(column.column_path().string().as_str()),
+                    format!("corrupt Parquet metadata in row group {g}: negative column offset or size"),
+                ));
             }
         }
     }
@@ -315,13 +317,9 @@ pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result
     use std::sync::Arc;
 
     let engine = |e: String| Error::Encode(format!("Parquet: {e}"));
-    let fields: Vec<Field> = columns
-        .iter()
-        .map(|(name, a)| Field::new(name, a.data_type().clone(), a.null_count() > 0))
-        .collect();
+    let fields: Vec<Field> = columns.iter().map(|(name, a)| Field::new(name, a.data_type().clone(), a.null_count() > 0)).collect();
     let schema = Arc::new(Schema::new(fields));
-    let batch = RecordBatch::try_new(schema.clone(), columns.into_iter().map(|(_, a)| a).collect())
-        .map_err(|e| engine(e.to_string()))?;
+    let batch = RecordBatch::try_new(schema.clone(), columns.into_iter().map(|(_, a)| a).collect()).map_err(|e| engine(e.to_string()))?;
     let props = WriterProperties::builder()
         .set_compression(if options.snappy { Compression::SNAPPY } else { Compression::UNCOMPRESSED })
         .set_max_row_group_row_count(Some(options.row_group_rows.max(1)))

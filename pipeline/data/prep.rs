@@ -191,12 +191,18 @@ impl Preprocessor {
             match enc {
                 InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
                     if col.is_text() {
-                        return Err(Error::data(file, Some(name), format!("has type {} but the model was trained on numbers", col.source_type)));
+                        return Err(Error::data(
+                            file,
+                            Some(name),
+                            format!("has type {} but the model was trained on numbers", col.source_type),
+                        ));
                     }
                     for (i, &r) in rows.iter().enumerate() {
                         let (value, missing) = match col.number(r) {
                             Some(v) if v.is_finite() => (v, false),
-                            Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
+                            Some(v) => {
+                                return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers")))
+                            }
                             None => (*impute, true),
                         };
                         if !missing && (value < *train_min || value > *train_max) {
@@ -264,7 +270,14 @@ mod tests {
     fn selection_gives_the_sorted_order_statistics() {
         let mut s = crate::rng::Stream::new(3, crate::rng::Purpose::DemoData);
         for n in [1usize, 2, 3, 10, 11, 1000, 1001] {
-            let values: Vec<f64> = (0..n).map(|i| match i % 7 { 0 => 0.5, 3 => -0.0, 5 => 0.0, _ => s.normal() }).collect();
+            let values: Vec<f64> = (0..n)
+                .map(|i| match i % 7 {
+                    0 => 0.5,
+                    3 => -0.0,
+                    5 => 0.0,
+                    _ => s.normal(),
+                })
+                .collect();
             let mut sorted = values.clone();
             sorted.sort_by(f64::total_cmp);
             let mut work = values.clone();

@@ -19,7 +19,10 @@ pub struct Feature {
 #[derive(Debug, Clone, PartialEq)]
 pub enum Target {
     /// `labels[0]` is the negative class of a binary task and `labels[1]` the positive one.
-    Classes { labels: Vec<String>, rows: Vec<usize> },
+    Classes {
+        labels: Vec<String>,
+        rows: Vec<usize>,
+    },
     Values(Vec<f64>),
 }
 
@@ -69,9 +72,7 @@ fn require_column(table: &Table, file: &Path, name: &str, key: &str) -> Result<(
     if table.column(name).is_some() {
         return Ok(());
     }
-    let hint = nearest(name, table.columns.iter().map(|c| c.name.as_str()))
-        .map(|n| format!(" (did you mean `{n}`?)"))
-        .unwrap_or_default();
+    let hint = nearest(name, table.columns.iter().map(|c| c.name.as_str())).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
     Err(Error::data(file, Some(name), format!("named by {key} but not in the file{hint}")))
 }
 
@@ -82,7 +83,13 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
     }
     let d = &m.data;
     require_column(table, file, &d.target, "data.target")?;
-    for (list, key) in [(&d.features, "data.features"), (&d.drop, "data.drop"), (&d.ids, "data.ids"), (&d.categorical, "data.categorical"), (&d.group_columns, "data.group_columns")] {
+    for (list, key) in [
+        (&d.features, "data.features"),
+        (&d.drop, "data.drop"),
+        (&d.ids, "data.ids"),
+        (&d.categorical, "data.categorical"),
+        (&d.group_columns, "data.group_columns"),
+    ] {
         for name in list {
             require_column(table, file, name, key)?;
         }
@@ -117,14 +124,18 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
             return Err(Error::data(file, Some(&name), "has no values (every row is null); drop it or fill it"));
         }
         if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_)) {
-            if let Some((row, value)) = (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| !x.is_finite()).map(|x| (r, x))) {
+            if let Some((row, value)) =
+                (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| !x.is_finite()).map(|x| (r, x)))
+            {
                 return Err(Error::data(
                     file,
                     Some(&name),
                     format!("row {row} holds {value}; tabcard needs finite numbers (store missing values as nulls)"),
                 ));
             }
-            if let Some((row, value)) = (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| x.abs() > MAX_MAGNITUDE).map(|x| (r, x))) {
+            if let Some((row, value)) =
+                (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| x.abs() > MAX_MAGNITUDE).map(|x| (r, x)))
+            {
                 return Err(Error::data(
                     file,
                     Some(&name),
@@ -214,7 +225,10 @@ fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
             }
             if task == Task::Binary {
                 if labels.len() != 2 {
-                    return Err(err(format!("has {} distinct values but task = \"binary\" needs exactly 2 (use \"multiclass\")", labels.len())));
+                    return Err(err(format!(
+                        "has {} distinct values but task = \"binary\" needs exactly 2 (use \"multiclass\")",
+                        labels.len()
+                    )));
                 }
                 if let Some(pos) = &m.data.positive_label {
                     match labels.iter().position(|l| l == pos) {
@@ -226,10 +240,8 @@ fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
             } else if labels.len() == 2 {
                 return Err(err("has 2 distinct values; use task = \"binary\"".into()));
             }
-            let index: std::collections::HashMap<(i128, String), usize> = distinct
-                .iter()
-                .map(|k| (k.clone(), labels.iter().position(|l| *l == k.1).unwrap_or(0)))
-                .collect();
+            let index: std::collections::HashMap<(i128, String), usize> =
+                distinct.iter().map(|k| (k.clone(), labels.iter().position(|l| *l == k.1).unwrap_or(0))).collect();
             let rows: Vec<usize> = (0..col.len()).map(|r| index[&key_of(r)]).collect();
             let mut counts = vec![0usize; labels.len()];
             for &c in &rows {

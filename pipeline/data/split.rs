@@ -47,7 +47,11 @@ pub fn split(table: &Table, target: &Target, spec: &SplitSpec, file: &Path) -> R
                 (None, Some(g)) => format!("too few groups of `{g}` (validation = {}, test = {})", spec.validation, spec.test),
                 _ => format!("validation = {}, test = {}", spec.validation, spec.test),
             };
-            return Err(Error::data(file, spec.column.as_deref().or(spec.group.as_deref()), format!("too few rows for the split: the {name} set would be empty ({why})")));
+            return Err(Error::data(
+                file,
+                spec.column.as_deref().or(spec.group.as_deref()),
+                format!("too few rows for the split: the {name} set would be empty ({why})"),
+            ));
         }
     }
     out.train.sort_unstable();

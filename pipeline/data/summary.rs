@@ -193,5 +193,12 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
     if duplicates > 0 {
         warnings.push(format!("{duplicates} rows repeat an earlier row exactly (features and target)"));
     }
-    DataSummary { rows: table.rows, duplicate_rows: duplicates, columns, target: target_summary, warnings, split_checks: SplitChecks::default() }
+    DataSummary {
+        rows: table.rows,
+        duplicate_rows: duplicates,
+        columns,
+        target: target_summary,
+        warnings,
+        split_checks: SplitChecks::default(),
+    }
 }

@@ -16,7 +16,10 @@ pub enum ColumnValues {
     Int(Vec<i64>),
     Bool(Vec<bool>),
     /// Strings as codes into `levels`, levels numbered in order of first appearance.
-    Text { codes: Vec<u32>, levels: Vec<String> },
+    Text {
+        codes: Vec<u32>,
+        levels: Vec<String>,
+    },
 }
 
 pub const NULL_CODE: u32 = u32::MAX;

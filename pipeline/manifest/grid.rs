@@ -106,10 +106,8 @@ pub fn normalise(manifest: &mut Manifest) -> Vec<Problem> {
             match apply(manifest, &single) {
                 Err(message) => problems.push(grid_problem(key, Some(i), format!("value {value}: {message}"), None)),
                 Ok((model, training)) => {
-                    let own: Vec<Problem> = validate_run_settings(task, &model, &training)
-                        .into_iter()
-                        .filter(|p| p.key.to_string() == *key)
-                        .collect();
+                    let own: Vec<Problem> =
+                        validate_run_settings(task, &model, &training).into_iter().filter(|p| p.key.to_string() == *key).collect();
                     if let Some(p) = own.into_iter().next() {
                         problems.push(grid_problem(key, Some(i), format!("value {value}: {}", p.message), p.hint));
                     }

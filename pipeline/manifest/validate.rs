@@ -26,12 +26,7 @@ impl Collector {
 
     fn hint(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String, hint: &str) {
         if !ok {
-            self.0.push(Problem {
-                key: KeyPath::parse_dotted(key),
-                index: None,
-                message: message(),
-                hint: Some(hint.to_string()),
-            });
+            self.0.push(Problem { key: KeyPath::parse_dotted(key), index: None, message: message(), hint: Some(hint.to_string()) });
         }
     }
 }
@@ -39,8 +34,12 @@ impl Collector {
 /// Checks the parts of a manifest a sweep can vary: model and training settings.
 pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingSpec) -> Vec<Problem> {
     let mut c = Collector(Vec::new());
-    c.hint(!model.hidden.is_empty(), "model.hidden", || "must list at least one hidden width".into(),
-        "the linear baseline without hidden layers is trained automatically; see selection.baseline");
+    c.hint(
+        !model.hidden.is_empty(),
+        "model.hidden",
+        || "must list at least one hidden width".into(),
+        "the linear baseline without hidden layers is trained automatically; see selection.baseline",
+    );
     if let Some(i) = model.hidden.iter().position(|&w| w == 0 || w > 65_536) {
         c.0.push(Problem {
             key: KeyPath::parse_dotted("model.hidden"),
@@ -49,9 +48,7 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
             hint: None,
         });
     }
-    c.check((0.0..1.0).contains(&model.dropout), "model.dropout", || {
-        format!("must be in [0, 1), got {:?}", model.dropout)
-    });
+    c.check((0.0..1.0).contains(&model.dropout), "model.dropout", || format!("must be in [0, 1), got {:?}", model.dropout));
     c.check(model.input_noise.is_finite() && model.input_noise >= 0.0, "model.input_noise", || {
         format!("must be a finite standard deviation >= 0, got {:?}", model.input_noise)
     });
@@ -64,7 +61,10 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
             c.check(false, "model.residual", || {
                 format!(
                     "hidden widths {:?} differ at layer {} ({} -> {}); a residual block x + f(x) needs equal widths",
-                    model.hidden, i + 1, model.hidden[i - 1], model.hidden[i]
+                    model.hidden,
+                    i + 1,
+                    model.hidden[i - 1],
+                    model.hidden[i]
                 )
             });
         }
@@ -77,12 +77,13 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
     c.check(t.weight_decay.is_finite() && t.weight_decay >= 0.0, "training.weight_decay", || {
         format!("must be >= 0, got {}", t.weight_decay)
     });
-    c.check(t.l2_penalty.is_finite() && t.l2_penalty >= 0.0, "training.l2_penalty", || {
-        format!("must be >= 0, got {}", t.l2_penalty)
-    });
-    c.hint(!(t.optimizer == Optimizer::Adam && t.weight_decay > 0.0), "training.weight_decay", || {
-        "adam applies no decoupled weight decay".into()
-    }, "use optimizer = \"adamw\" for decoupled decay, or l2_penalty for a coupled penalty");
+    c.check(t.l2_penalty.is_finite() && t.l2_penalty >= 0.0, "training.l2_penalty", || format!("must be >= 0, got {}", t.l2_penalty));
+    c.hint(
+        !(t.optimizer == Optimizer::Adam && t.weight_decay > 0.0),
+        "training.weight_decay",
+        || "adam applies no decoupled weight decay".into(),
+        "use optimizer = \"adamw\" for decoupled decay, or l2_penalty for a coupled penalty",
+    );
     c.check((0.0..1.0).contains(&t.momentum), "training.momentum", || format!("must be in [0, 1), got {}", t.momentum));
     c.check(!t.nesterov || (t.optimizer == Optimizer::Sgd && t.momentum > 0.0), "training.nesterov", || {
         "Nesterov momentum needs optimizer = \"sgd\" and momentum > 0".into()
@@ -98,15 +99,11 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
         format!("must be smaller than epochs ({}), got {}", t.epochs, t.warmup_epochs)
     });
     c.check(t.step_epochs >= 1, "training.step_epochs", || "must be at least 1".into());
-    c.check(t.step_gamma > 0.0 && t.step_gamma <= 1.0, "training.step_gamma", || {
-        format!("must be in (0, 1], got {}", t.step_gamma)
-    });
+    c.check(t.step_gamma > 0.0 && t.step_gamma <= 1.0, "training.step_gamma", || format!("must be in (0, 1], got {}", t.step_gamma));
     c.check(t.clip_norm.is_finite() && t.clip_norm >= 0.0, "training.clip_norm", || {
         format!("must be >= 0 (0 turns clipping off), got {}", t.clip_norm)
     });
-    c.check(t.huber_delta.is_finite() && t.huber_delta > 0.0, "training.huber_delta", || {
-        format!("must be > 0, got {}", t.huber_delta)
-    });
+    c.check(t.huber_delta.is_finite() && t.huber_delta > 0.0, "training.huber_delta", || format!("must be > 0, got {}", t.huber_delta));
     c.check(!(t.loss == RegressionLoss::Huber && task != Task::Regression), "training.loss", || {
         format!("\"huber\" is a regression loss, but data.task is \"{}\"", task.as_str())
     });
@@ -125,7 +122,13 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     c.check(!m.experiment.name.trim().is_empty(), "experiment.name", || "must not be empty".into());
     c.check(!m.data.path.trim().is_empty(), "data.path", || "must name a Parquet file".into());
     c.check(!m.data.target.trim().is_empty(), "data.target", || "must name the target column".into());
-    for (list, key) in [(&m.data.features, "data.features"), (&m.data.drop, "data.drop"), (&m.data.ids, "data.ids"), (&m.data.categorical, "data.categorical"), (&m.data.group_columns, "data.group_columns")] {
+    for (list, key) in [
+        (&m.data.features, "data.features"),
+        (&m.data.drop, "data.drop"),
+        (&m.data.ids, "data.ids"),
+        (&m.data.categorical, "data.categorical"),
+        (&m.data.group_columns, "data.group_columns"),
+    ] {
         if let Some(i) = list.iter().position(|c| c == &m.data.target) {
             if key != "data.categorical" {
                 c.0.push(Problem {
@@ -138,7 +141,12 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
         }
         let mut seen = std::collections::BTreeSet::new();
         if let Some(i) = list.iter().position(|c| !seen.insert(c)) {
-            c.0.push(Problem { key: KeyPath::parse_dotted(key), index: Some(i), message: format!("lists `{}` twice", list[i]), hint: None });
+            c.0.push(Problem {
+                key: KeyPath::parse_dotted(key),
+                index: Some(i),
+                message: format!("lists `{}` twice", list[i]),
+                hint: None,
+            });
         }
     }
     if let Some(i) = m.data.features.iter().position(|f| m.data.drop.contains(f) || m.data.ids.contains(f)) {
@@ -160,16 +168,23 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
         format!("validation + test = {:?} must be below 1 so rows remain for training", s.validation + s.test)
     });
     c.check(s.seed <= MAX_SEED, "split.seed", || out_of_toml_range(s.seed));
-    c.hint(s.column.is_none() || s.group.is_none(), "split.group", || "cannot be combined with split.column".into(),
-        "a given split column already decides where every row goes; keep groups together in that column");
+    c.hint(
+        s.column.is_none() || s.group.is_none(),
+        "split.group",
+        || "cannot be combined with split.column".into(),
+        "a given split column already decides where every row goes; keep groups together in that column",
+    );
     for (key, name) in [("split.column", &s.column), ("split.group", &s.group)] {
         if let Some(name) = name {
             c.check(!name.trim().is_empty(), key, || "must name a column".into());
             c.check(*name != m.data.target, key, || format!("names the target column `{name}`"));
-            c.check(!m.data.features.contains(name), key, || format!("`{name}` is also listed in data.features; a split column is never a feature"));
+            c.check(!m.data.features.contains(name), key, || {
+                format!("`{name}` is also listed in data.features; a split column is never a feature")
+            });
         }
     }
-    let labels = [("split.labels.train", &s.labels.train), ("split.labels.validation", &s.labels.validation), ("split.labels.test", &s.labels.test)];
+    let labels =
+        [("split.labels.train", &s.labels.train), ("split.labels.validation", &s.labels.validation), ("split.labels.test", &s.labels.test)];
     for (key, list) in labels {
         c.check(!list.is_empty(), key, || "must list at least one value".into());
         for (other_key, other) in labels {
@@ -199,12 +214,22 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
     c.check(m.selection.bootstrap <= 100_000, "selection.bootstrap", || format!("must be at most 100000, got {}", m.selection.bootstrap));
 
     if let Some(i) = m.sweep.seeds.iter().position(|&s| s > MAX_SEED) {
-        c.0.push(Problem { key: KeyPath::parse_dotted("sweep.seeds"), index: Some(i), message: out_of_toml_range(m.sweep.seeds[i]), hint: None });
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("sweep.seeds"),
+            index: Some(i),
+            message: out_of_toml_range(m.sweep.seeds[i]),
+            hint: None,
+        });
     }
     c.check(!m.sweep.seeds.is_empty(), "sweep.seeds", || "must list at least one seed: the plan would have no runs".into());
     let mut seen = std::collections::BTreeSet::new();
     if let Some(i) = m.sweep.seeds.iter().position(|s| !seen.insert(*s)) {
-        c.0.push(Problem { key: KeyPath::parse_dotted("sweep.seeds"), index: Some(i), message: format!("seed {} is listed twice", m.sweep.seeds[i]), hint: None });
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("sweep.seeds"),
+            index: Some(i),
+            message: format!("seed {} is listed twice", m.sweep.seeds[i]),
+            hint: None,
+        });
     }
     c.check(m.sweep.max_runs >= 1, "sweep.max_runs", || "must be at least 1".into());
     c.0

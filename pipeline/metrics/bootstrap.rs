@@ -61,7 +61,10 @@ pub fn percentile_intervals(
             continue;
         }
         v.sort_by(f64::total_cmp);
-        out.insert(name, Interval { estimate, lower: quantile_sorted(&v, tail), upper: quantile_sorted(&v, 1.0 - tail), level, resamples: v.len() });
+        out.insert(
+            name,
+            Interval { estimate, lower: quantile_sorted(&v, tail), upper: quantile_sorted(&v, 1.0 - tail), level, resamples: v.len() },
+        );
     }
     out
 }
@@ -73,7 +76,8 @@ mod tests {
     #[test]
     fn interval_of_a_mean_covers_it_and_is_reproducible() {
         let data: Vec<f64> = (0..200).map(|i| (i % 10) as f64).collect();
-        let mean = |idx: &[usize]| MetricSet::from([("mean".to_string(), Some(idx.iter().map(|&i| data[i]).sum::<f64>() / idx.len() as f64))]);
+        let mean =
+            |idx: &[usize]| MetricSet::from([("mean".to_string(), Some(idx.iter().map(|&i| data[i]).sum::<f64>() / idx.len() as f64))]);
         let a = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
         let b = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
         assert_eq!(a, b);

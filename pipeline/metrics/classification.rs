@@ -199,7 +199,11 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f6
     while i < order.len() {
         let t = scores[order[i]];
         while i < order.len() && scores[order[i]] == t {
-            if is_positive[order[i]] { tp += 1 } else { fp += 1 }
+            if is_positive[order[i]] {
+                tp += 1
+            } else {
+                fp += 1
+            }
             i += 1;
         }
         let (tpr, fpr) = (tp as f64 / n_pos as f64, fp as f64 / n_neg as f64);
@@ -213,9 +217,11 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f6
 /// Every classification metric of the registry's table (binary when `k == 2`), by name.
 pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
     let predicted = predicted_classes(probs, k);
-    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) = if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
+        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
     let task = if k == 2 { crate::task::Task::Binary } else { crate::task::Task::Multiclass };
-    let scored = super::registry::Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
+    let scored =
+        super::registry::Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
     super::registry::scalar_metrics(task, &scored)
 }
 

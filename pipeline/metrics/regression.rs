@@ -3,9 +3,7 @@
 use super::MetricSet;
 
 pub fn rmse(truth: &[f64], predicted: &[f64]) -> Option<f64> {
-    (!truth.is_empty()).then(|| {
-        (truth.iter().zip(predicted).map(|(t, p)| (t - p).powi(2)).sum::<f64>() / truth.len() as f64).sqrt()
-    })
+    (!truth.is_empty()).then(|| (truth.iter().zip(predicted).map(|(t, p)| (t - p).powi(2)).sum::<f64>() / truth.len() as f64).sqrt())
 }
 
 pub fn mae(truth: &[f64], predicted: &[f64]) -> Option<f64> {
@@ -22,7 +20,11 @@ pub fn r2(truth: &[f64], predicted: &[f64]) -> Option<f64> {
     let ss_tot: f64 = truth.iter().map(|t| (t - mean).powi(2)).sum();
     let ss_res: f64 = truth.iter().zip(predicted).map(|(t, p)| (t - p).powi(2)).sum();
     Some(if ss_tot == 0.0 {
-        if ss_res == 0.0 { 1.0 } else { 0.0 }
+        if ss_res == 0.0 {
+            1.0
+        } else {
+            0.0
+        }
     } else {
         1.0 - ss_res / ss_tot
     })

@@ -8,8 +8,8 @@
 //! writes its values back into it. `tests/training.rs` checks the engine's gradients and outputs
 //! against candle's autograd and against finite differences.
 
-use super::layers::{BN_EPS, BN_MOMENTUM};
 use super::dispatch::Level;
+use super::layers::{BN_EPS, BN_MOMENTUM};
 use super::matmul::{matmul, View, Workspace};
 use super::mlp::{has_residual, Mlp};
 use super::optim::{Optimizer, Step};
@@ -243,7 +243,8 @@ impl<T: Real> Engine<T> {
         let d = self.inputs;
         let eps = T::narrow(BN_EPS);
         // sqrt(running_var + eps) per batch-norm layer, once per call rather than per block.
-        let running_std: Vec<Option<Vec<T>>> = self.layers.iter().map(|l| l.norm.as_ref().map(|n| n.running_var.iter().map(|&v| (v + eps).sqrt()).collect())).collect();
+        let running_std: Vec<Option<Vec<T>>> =
+            self.layers.iter().map(|l| l.norm.as_ref().map(|n| n.running_var.iter().map(|&v| (v + eps).sqrt()).collect())).collect();
         for start in (0..x.rows).step_by(EVAL_BLOCK) {
             let b = (x.rows - start).min(EVAL_BLOCK);
             for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
@@ -359,7 +360,13 @@ impl<T: Real> Engine<T> {
             let grad_out = &self.grad_out[..b * n_out];
             let grad_z: &[T] = if layer.hidden {
                 let pre = &mut layer.pre[..b * n_out];
-                derivative(self.activation, pre, &layer.act, grad_out, if layer.mask.is_empty() { None } else { Some(&layer.mask[..b * n_out]) });
+                derivative(
+                    self.activation,
+                    pre,
+                    &layer.act,
+                    grad_out,
+                    if layer.mask.is_empty() { None } else { Some(&layer.mask[..b * n_out]) },
+                );
                 if let Some(norm) = &mut layer.norm {
                     normalise_backward(norm, pre, b, n_out);
                 }
@@ -367,7 +374,13 @@ impl<T: Real> Engine<T> {
             } else {
                 grad_out
             };
-            matmul(&mut layer.grad_weight, View::new(&input[..b * n_in], b, n_in).t(), View::new(grad_z, b, n_out), false, &mut self.workspace);
+            matmul(
+                &mut layer.grad_weight,
+                View::new(&input[..b * n_in], b, n_in).t(),
+                View::new(grad_z, b, n_out),
+                false,
+                &mut self.workspace,
+            );
             if l2 != T::zero() {
                 for (g, &w) in layer.grad_weight.iter_mut().zip(&layer.weight) {
                     *g += l2 * w;
@@ -375,7 +388,13 @@ impl<T: Real> Engine<T> {
             }
             column_sums(grad_z, n_out, &mut layer.grad_bias);
             if l > 0 {
-                matmul(&mut self.grad_in[..b * n_in], View::new(grad_z, b, n_out), View::new(&layer.weight, n_in, n_out).t(), false, &mut self.workspace);
+                matmul(
+                    &mut self.grad_in[..b * n_in],
+                    View::new(grad_z, b, n_out),
+                    View::new(&layer.weight, n_in, n_out).t(),
+                    false,
+                    &mut self.workspace,
+                );
                 if layer.residual {
                     for (g, &o) in self.grad_in[..b * n_in].iter_mut().zip(grad_out) {
                         *g += o;
@@ -486,7 +505,11 @@ fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: 
     let f = |x: T| -> T {
         match activation {
             Activation::Relu => {
-                if x > T::zero() { x } else { T::zero() }
+                if x > T::zero() {
+                    x
+                } else {
+                    T::zero()
+                }
             }
             Activation::Sigmoid => T::one() / (T::one() + (-x).exp()),
             Activation::Tanh => x.tanh(),

@@ -40,9 +40,13 @@ pub enum Objective {
     /// Targets 0 or 1; one logit per row.
     BinaryCrossEntropy,
     /// Targets are class indices; `classes` logits per row.
-    SoftmaxCrossEntropy { classes: usize },
+    SoftmaxCrossEntropy {
+        classes: usize,
+    },
     MeanSquaredError,
-    Huber { delta: f64 },
+    Huber {
+        delta: f64,
+    },
 }
 
 /// Mean loss of `logits` (rows x outputs) against `targets` (one per row), writing d loss / d
@@ -55,7 +59,12 @@ pub fn objective_and_gradient<T: crate::nn::scalar::Real>(objective: Objective, 
             for ((&z, &y), g) in logits.iter().zip(targets).zip(grad.iter_mut()) {
                 let z = z.widen();
                 total += z.max(0.0) - z * y + libm::log1p(libm::exp(-z.abs()));
-                let p = if z >= 0.0 { 1.0 / (1.0 + libm::exp(-z)) } else { let e = libm::exp(z); e / (1.0 + e) };
+                let p = if z >= 0.0 {
+                    1.0 / (1.0 + libm::exp(-z))
+                } else {
+                    let e = libm::exp(z);
+                    e / (1.0 + e)
+                };
                 *g = T::narrow((p - y) / n);
             }
         }

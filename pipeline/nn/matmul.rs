@@ -46,12 +46,20 @@ impl<'a, T> View<'a, T> {
 
     /// (rows, cols) as read.
     pub fn shape(&self) -> (usize, usize) {
-        if self.transposed { (self.cols, self.rows) } else { (self.rows, self.cols) }
+        if self.transposed {
+            (self.cols, self.rows)
+        } else {
+            (self.rows, self.cols)
+        }
     }
 
     /// (row stride, column stride) in `data` as read.
     fn strides(&self) -> (usize, usize) {
-        if self.transposed { (1, self.cols) } else { (self.cols, 1) }
+        if self.transposed {
+            (1, self.cols)
+        } else {
+            (self.cols, 1)
+        }
     }
 }
 
@@ -144,7 +152,13 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
                 // rows than the tile is packed with zero rows below it, once per block.
                 let whole = mc / tr * tr;
                 if whole < mc {
-                    pack(&mut ws.packed_a, Source { data: a.data, origin: (ic + whole) * a_rs + pc * a_cs, step: a_cs, lane: a_rs }, mc - whole, tr, kc);
+                    pack(
+                        &mut ws.packed_a,
+                        Source { data: a.data, origin: (ic + whole) * a_rs + pc * a_cs, step: a_cs, lane: a_rs },
+                        mc - whole,
+                        tr,
+                        kc,
+                    );
                 }
                 for jp in 0..panels_b {
                     let j0 = jp * tc;

@@ -78,7 +78,15 @@ pub trait Lanes: Copy {
 
 /// The tile of `MR` rows by `NV` vectors, written once for every level.
 #[inline(always)]
-unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(kc: usize, a: *const V::Elem, (ars, acs): (usize, usize), b: *const V::Elem, c: *mut V::Elem, ldc: usize, load: bool) {
+unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(
+    kc: usize,
+    a: *const V::Elem,
+    (ars, acs): (usize, usize),
+    b: *const V::Elem,
+    c: *mut V::Elem,
+    ldc: usize,
+    load: bool,
+) {
     let rows: [usize; MR] = std::array::from_fn(|r| r * ars);
     let mut acc = [[V::zero(); NV]; MR];
     if load {

@@ -91,7 +91,9 @@ pub fn seal(root: &Path, render: impl FnOnce(&str) -> Result<()>) -> Result<Stri
 pub fn check(root: &Path) -> Result<String> {
     let list_path = root.join(FILE);
     let text = std::fs::read_to_string(&list_path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::NotFound => Error::integrity(&list_path, "is missing: the folder's files cannot be checked against their recorded SHA-256"),
+        std::io::ErrorKind::NotFound => {
+            Error::integrity(&list_path, "is missing: the folder's files cannot be checked against their recorded SHA-256")
+        }
         _ => Error::io(&list_path, "read", e),
     })?;
     let mut recorded = Vec::new();
@@ -113,7 +115,10 @@ pub fn check(root: &Path) -> Result<String> {
             return Err(Error::integrity(&file, "is listed in integrity.sha256 but missing"));
         }
         if file_sha256(&file)? != *sha {
-            return Err(Error::integrity(&file, format!("was changed after it was recorded: its SHA-256 differs from integrity.sha256 ({sha})")));
+            return Err(Error::integrity(
+                &file,
+                format!("was changed after it was recorded: its SHA-256 differs from integrity.sha256 ({sha})"),
+            ));
         }
     }
     let listed: std::collections::BTreeSet<&str> = recorded.iter().map(|(path, _)| path.as_str()).collect();
@@ -131,7 +136,13 @@ mod tests {
     fn lists_all_but_timing_and_temporaries_with_rendered_files_last() {
         let dir = tempfile::tempdir().unwrap();
         let root = dir.path();
-        for (path, text) in [("selection.json", "s"), ("timing.json", "t"), ("runs/a/weights.safetensors", "w"), ("runs/a/timing.json", "t"), ("runs/.partial/x", "p")] {
+        for (path, text) in [
+            ("selection.json", "s"),
+            ("timing.json", "t"),
+            ("runs/a/weights.safetensors", "w"),
+            ("runs/a/timing.json", "t"),
+            ("runs/.partial/x", "p"),
+        ] {
             std::fs::create_dir_all(root.join(path).parent().unwrap()).unwrap();
             std::fs::write(root.join(path), text).unwrap();
         }

@@ -79,14 +79,19 @@ pub fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
                 let modified = std::fs::metadata(&path).and_then(|m| m.modified()).ok();
                 // A holder between creating the file and writing its line is alive: give it a few
                 // seconds (a process killed in between leaves an empty file for good).
-                let empty_and_old = text.is_empty() && modified.and_then(|m| m.elapsed().ok()).is_some_and(|age| age > Duration::from_secs(10));
+                let empty_and_old =
+                    text.is_empty() && modified.and_then(|m| m.elapsed().ok()).is_some_and(|age| age > Duration::from_secs(10));
                 if empty_and_old || (!text.is_empty() && is_stale(&text, modified)) {
                     let _ = std::fs::remove_file(&path);
                     continue;
                 }
                 if !told && !text.is_empty() {
                     let mut parts = text.split_whitespace();
-                    on_wait(&format!("waiting for {} (pid {}), which is writing this experiment", parts.next().unwrap_or("?"), parts.next().unwrap_or("?")));
+                    on_wait(&format!(
+                        "waiting for {} (pid {}), which is writing this experiment",
+                        parts.next().unwrap_or("?"),
+                        parts.next().unwrap_or("?")
+                    ));
                     told = true;
                 }
                 std::thread::sleep(Duration::from_millis(250));

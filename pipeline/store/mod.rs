@@ -35,8 +35,8 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 }
 
 pub mod integrity;
-pub mod lock;
 pub mod ledger;
+pub mod lock;
 pub mod run;
 pub mod timing;
 pub mod weights;
@@ -89,19 +89,45 @@ impl Layout {
     pub fn new(root: impl Into<PathBuf>) -> Self {
         Layout { root: root.into() }
     }
-    pub fn format(&self) -> PathBuf { self.root.join("format.json") }
-    pub fn manifest(&self) -> PathBuf { self.root.join("manifest.json") }
-    pub fn manifest_source(&self) -> PathBuf { self.root.join("manifest.source.toml") }
-    pub fn experiment(&self) -> PathBuf { self.root.join("experiment.json") }
-    pub fn data_summary(&self) -> PathBuf { self.root.join("data-summary.json") }
-    pub fn plan(&self) -> PathBuf { self.root.join("plan.json") }
-    pub fn preprocessor(&self) -> PathBuf { self.root.join("preprocessor.json") }
-    pub fn selection(&self) -> PathBuf { self.root.join("selection.json") }
-    pub fn timing(&self) -> PathBuf { self.root.join("timing.json") }
-    pub fn card(&self) -> PathBuf { self.root.join("card.md") }
-    pub fn figures(&self) -> PathBuf { self.root.join("figures") }
-    pub fn runs(&self) -> PathBuf { self.root.join("runs") }
-    pub fn run(&self, id: &str) -> PathBuf { self.runs().join(id) }
+    pub fn format(&self) -> PathBuf {
+        self.root.join("format.json")
+    }
+    pub fn manifest(&self) -> PathBuf {
+        self.root.join("manifest.json")
+    }
+    pub fn manifest_source(&self) -> PathBuf {
+        self.root.join("manifest.source.toml")
+    }
+    pub fn experiment(&self) -> PathBuf {
+        self.root.join("experiment.json")
+    }
+    pub fn data_summary(&self) -> PathBuf {
+        self.root.join("data-summary.json")
+    }
+    pub fn plan(&self) -> PathBuf {
+        self.root.join("plan.json")
+    }
+    pub fn preprocessor(&self) -> PathBuf {
+        self.root.join("preprocessor.json")
+    }
+    pub fn selection(&self) -> PathBuf {
+        self.root.join("selection.json")
+    }
+    pub fn timing(&self) -> PathBuf {
+        self.root.join("timing.json")
+    }
+    pub fn card(&self) -> PathBuf {
+        self.root.join("card.md")
+    }
+    pub fn figures(&self) -> PathBuf {
+        self.root.join("figures")
+    }
+    pub fn runs(&self) -> PathBuf {
+        self.root.join("runs")
+    }
+    pub fn run(&self, id: &str) -> PathBuf {
+        self.runs().join(id)
+    }
 
     /// Checks that the folder is a finished results folder whose every file matches its integrity
     /// list, then its format; returns the results digest. What `card`, `compare`, `predict` and
@@ -111,10 +137,13 @@ impl Layout {
             return Err(Error::store(&self.root, "is not a tabcard results folder (no format.json)"));
         }
         if let Ok(FormatRecord { version: 1, tool_version, .. }) = read_json::<FormatRecord>(&self.format()) {
-            return Err(Error::store(self.format(), format!(
+            return Err(Error::store(
+                self.format(),
+                format!(
                 "results layout version 1, written by tabcard {tool_version} before results folders carried integrity.sha256; \
                  check it with the tabcard that wrote it (its run indexes still hold every run file's SHA-256), or retrain it with this one"
-            )));
+            ),
+            ));
         }
         let digest = integrity::check(&self.root)?;
         self.check_format()?;
@@ -132,10 +161,15 @@ impl Layout {
             return Err(Error::store(&path, format!("unknown format `{}`", record.format)));
         }
         if record.version != FORMAT_VERSION {
-            return Err(Error::store(&path, format!(
-                "results layout version {} written by tabcard {}; this tabcard {} reads version {FORMAT_VERSION}",
-                record.version, record.tool_version, env!("CARGO_PKG_VERSION")
-            )));
+            return Err(Error::store(
+                &path,
+                format!(
+                    "results layout version {} written by tabcard {}; this tabcard {} reads version {FORMAT_VERSION}",
+                    record.version,
+                    record.tool_version,
+                    env!("CARGO_PKG_VERSION")
+                ),
+            ));
         }
         Ok(record)
     }

@@ -143,10 +143,7 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
         files.push((WEIGHTS, weights::encode(a.tensors)?));
         files.push((VALIDATION_PREDICTIONS, predictions_csv(a.validation_rows, a.validation_outputs, per_row).into_bytes()));
     }
-    let index = RunIndex {
-        run_id: id.clone(),
-        files: files.iter().map(|(n, b)| (n.to_string(), sha256_hex(b))).collect(),
-    };
+    let index = RunIndex { run_id: id.clone(), files: files.iter().map(|(n, b)| (n.to_string(), sha256_hex(b))).collect() };
     files.push((INDEX, to_json(&index)?));
     files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds }))?));
 

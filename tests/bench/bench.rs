@@ -75,7 +75,14 @@ fn matrices(table: &Table, cols: usize) -> (Matrix, Labels) {
 }
 
 fn reference_config(hidden: Vec<usize>, batch: usize, epochs: usize, dropout: f64, batch_norm: bool) -> RunConfig {
-    let mut training = TrainingSpec { optimizer: Optimizer::Adamw, learning_rate: 1e-3, weight_decay: 1e-2, epochs, batch_size: batch, ..TrainingSpec::default() };
+    let mut training = TrainingSpec {
+        optimizer: Optimizer::Adamw,
+        learning_rate: 1e-3,
+        weight_decay: 1e-2,
+        epochs,
+        batch_size: batch,
+        ..TrainingSpec::default()
+    };
     training.early_stopping.enabled = false;
     RunConfig { model: ModelSpec { hidden, activation: Activation::Relu, dropout, batch_norm, ..ModelSpec::default() }, training }
 }
@@ -93,7 +100,8 @@ fn subset(x: &Matrix, y: &Labels, rows: usize) -> (Matrix, Labels) {
 
 fn bench_train(args: &[String]) {
     let table = read_table(Path::new(&args[2])).expect("read data");
-    let hidden: Vec<usize> = arg(args, "--hidden", "256,256".to_string()).split(',').filter(|s| !s.is_empty()).map(|s| s.parse().expect("width")).collect();
+    let hidden: Vec<usize> =
+        arg(args, "--hidden", "256,256".to_string()).split(',').filter(|s| !s.is_empty()).map(|s| s.parse().expect("width")).collect();
     let batch = arg(args, "--batch", 256usize);
     let epochs = arg(args, "--epochs", 3usize);
     let dropout = arg(args, "--dropout", 0.0f64);
@@ -104,7 +112,8 @@ fn bench_train(args: &[String]) {
     let (vx, vy) = subset(&x, &y, validation_rows.min(x.rows));
     let config = reference_config(hidden, batch, epochs, dropout, batch_norm);
     let started = Instant::now();
-    let result = train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
+    let result =
+        train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
     let seconds = started.elapsed().as_secs_f64();
     let samples = (x.rows * epochs) as f64;
     let steps = (x.rows.div_ceil(batch) * epochs) as f64;
@@ -150,7 +159,8 @@ fn bench_load(args: &[String]) {
     let path = Path::new(&args[2]);
     let bytes = std::fs::metadata(path).expect("stat").len() as f64;
     let (read, table) = best_of(3, || read_table(path).expect("read table"));
-    let features: Vec<Feature> = table.columns.iter().filter(|c| c.name != "y").map(|c| Feature { name: c.name.clone(), categorical: false }).collect();
+    let features: Vec<Feature> =
+        table.columns.iter().filter(|c| c.name != "y").map(|c| Feature { name: c.name.clone(), categorical: false }).collect();
     let rows: Vec<usize> = (0..table.rows).collect();
     let (prep, matrix) = best_of(3, || {
         let p = Preprocessor::fit(&table, &features, &rows, path).expect("fit");
@@ -168,7 +178,12 @@ fn bench_load(args: &[String]) {
 
 fn peak_rss_bytes() -> u64 {
     let status = std::fs::read_to_string("/proc/self/status").unwrap_or_default();
-    status.lines().find_map(|l| l.strip_prefix("VmHWM:")).and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<u64>().ok()).unwrap_or(0) * 1024
+    status
+        .lines()
+        .find_map(|l| l.strip_prefix("VmHWM:"))
+        .and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<u64>().ok())
+        .unwrap_or(0)
+        * 1024
 }
 
 fn bench_scale(args: &[String]) {
@@ -181,7 +196,8 @@ fn bench_scale(args: &[String]) {
     let config = reference_config(vec![256, 256], 256, 1, 0.0, false);
     let before = peak_rss_bytes();
     let started = Instant::now();
-    let result = train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
+    let result =
+        train(HEAD, &config, 1, &RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy }, "roc_auc").expect("training");
     let seconds = started.elapsed().as_secs_f64();
     let matrix_bytes = (x.data.len() * 4) as f64;
     let model_bytes = (result.parameter_count * 4) as f64;
@@ -253,13 +269,39 @@ fn bench_matmul(args: &[String]) {
             parts.push(format!("\"{label}\": {:.1}", flops / best / 1e9));
         }
         // gemm's strides: (column stride, row stride) of each operand as read.
-        let (a_cs, a_rs) = match orientation { LeftTransposed => (m as isize, 1), _ => (1, k as isize) };
-        let (b_cs, b_rs) = match orientation { RightTransposed => (k as isize, 1), _ => (1, n as isize) };
+        let (a_cs, a_rs) = match orientation {
+            LeftTransposed => (m as isize, 1),
+            _ => (1, k as isize),
+        };
+        let (b_cs, b_rs) = match orientation {
+            RightTransposed => (k as isize, 1),
+            _ => (1, n as isize),
+        };
         let run_gemm = |c: &mut [f32]| {
             // SAFETY: every index gemm touches is inside a (m x k), b (k x n) and c (m x n) as
             // laid out by the strides above; c does not alias a or b.
             unsafe {
-                gemm::gemm(m, n, k, c.as_mut_ptr(), 1, n as isize, false, a.as_ptr(), a_cs, a_rs, b.as_ptr(), b_cs, b_rs, 1.0f32, 1.0f32, false, false, false, gemm::Parallelism::None)
+                gemm::gemm(
+                    m,
+                    n,
+                    k,
+                    c.as_mut_ptr(),
+                    1,
+                    n as isize,
+                    false,
+                    a.as_ptr(),
+                    a_cs,
+                    a_rs,
+                    b.as_ptr(),
+                    b_cs,
+                    b_rs,
+                    1.0f32,
+                    1.0f32,
+                    false,
+                    false,
+                    false,
+                    gemm::Parallelism::None,
+                )
             }
         };
         run_gemm(&mut c);

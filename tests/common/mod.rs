@@ -34,9 +34,7 @@ pub fn repo_path(rel: &str) -> PathBuf {
 
 /// A small binary manifest for `data.parquet` in the same folder, with extra TOML appended.
 pub fn manifest(extra: &str) -> String {
-    format!(
-        "[experiment]\nname = \"test\"\n\n[data]\npath = \"data.parquet\"\ntarget = \"y\"\ntask = \"binary\"\n{extra}"
-    )
+    format!("[experiment]\nname = \"test\"\n\n[data]\npath = \"data.parquet\"\ntarget = \"y\"\ntask = \"binary\"\n{extra}")
 }
 
 /// `dir/leases.parquet` with the invented lease data (first `rows` rows) and `dir/{file}`, a
@@ -102,6 +100,10 @@ pub fn copy_dir(from: &Path, to: &Path) {
     for e in std::fs::read_dir(from).unwrap() {
         let p = e.unwrap().path();
         let target = to.join(p.file_name().unwrap());
-        if p.is_dir() { copy_dir(&p, &target) } else { std::fs::copy(&p, &target).unwrap(); }
+        if p.is_dir() {
+            copy_dir(&p, &target)
+        } else {
+            std::fs::copy(&p, &target).unwrap();
+        }
     }
 }
