@@ -27,7 +27,9 @@ pub struct DataFingerprints {
     pub bytes: u64,
     /// Whether the file lies outside the project that holds the manifest (the git work tree, or
     /// the manifest's folder outside git), through `..`, an absolute path or a symlink: such a
-    /// file does not travel with a checkout. No absolute path is recorded.
+    /// file does not travel with a checkout. No absolute path is recorded. (tabcard 0.3 recorded
+    /// `outside_manifest_folder`, read here under this name.)
+    #[serde(alias = "outside_manifest_folder")]
     pub outside_project: bool,
 }
 
@@ -78,7 +80,7 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     let (roles, target) = resolve(&loaded.manifest, &table, &data_path)?;
     let mut summary = summarise(&table, &roles, &target);
     let splits = split(&table, &target, &loaded.manifest.split, &data_path)?;
-    summary.split_checks = crate::data::leakage::split_checks(&table, &roles, &splits);
+    summary.split_checks = Some(crate::data::leakage::split_checks(&table, &roles, &splits));
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
     let content = table.content_hash();
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);

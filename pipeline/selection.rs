@@ -71,6 +71,7 @@ pub struct TestEvaluation {
     pub groups: Vec<GroupMetrics>,
     /// Binary models: the decision threshold chosen on the validation rows, and the test
     /// confusion matrix and per-class report at that threshold (the fields above use 0.5).
+    #[serde(default)]
     pub chosen_threshold: Option<ThresholdReport>,
 }
 
@@ -94,9 +95,11 @@ pub struct GroupMetrics {
     pub level: String,
     pub rows: usize,
     /// Binary: the share of positive rows; regression: the mean target; multiclass: none.
+    #[serde(default)]
     pub base_rate: Option<f64>,
     pub metrics: MetricSet,
     /// 95% bootstrap intervals of the level's metrics (the same resampling as the whole split's).
+    #[serde(default)]
     pub intervals: BTreeMap<String, Interval>,
 }
 
@@ -114,12 +117,19 @@ pub struct Selection {
     pub selected_config: String,
     pub selected_run: String,
     pub baseline_config: Option<String>,
-    /// The rule that picked `selected_config` (`best` or `one_standard_error`).
+    /// The rule that picked `selected_config` (`best` or `one_standard_error`); `best` in
+    /// folders of tabcard 0.3, which had no other.
+    #[serde(default = "best_rule")]
     pub rule: String,
     /// The configuration with the best mean validation metric (equal to `selected_config` under
-    /// the `best` rule).
+    /// the `best` rule; empty in folders of tabcard 0.3).
+    #[serde(default)]
     pub best_config: String,
     pub test: TestEvaluation,
+}
+
+fn best_rule() -> String {
+    "best".into()
 }
 
 /// Mean and spread of each metric over several metric sets (undefined values left out).
@@ -215,7 +225,7 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
     }
     let (best, _) = best.ok_or_else(|| {
         Error::NoUsableRun(format!(
-            "no configuration finished a run with a defined validation {metric}: every run failed or diverged (see the runs' metrics.json)"
+            "no configuration finished a run with a defined validation {metric}: every run failed or diverged (see the runs' result.json)"
         ))
     })?;
     let mut chosen = best;

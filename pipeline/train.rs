@@ -151,7 +151,8 @@ impl TryFrom<StoredHead> for Head {
     type Error = String;
     fn try_from(s: StoredHead) -> std::result::Result<Self, String> {
         let loss = match (s.task, s.loss.as_str()) {
-            (Task::Regression, "mse") | (Task::Binary | Task::Multiclass, "cross_entropy") => RegressionLoss::Mse,
+            // Folders of tabcard 0.3 recorded the unused regression loss, `mse`, for classifiers.
+            (Task::Regression, "mse") | (Task::Binary | Task::Multiclass, "cross_entropy" | "mse") => RegressionLoss::Mse,
             (Task::Regression, "huber") => RegressionLoss::Huber,
             (task, other) => return Err(format!("loss `{other}` does not apply to a {} head", task.as_str())),
         };

@@ -71,8 +71,8 @@ fn verify_passes_and_fails_for_the_right_reasons() {
         "{report}"
     );
     assert!(report.contains("verdict   NOT verified"));
-    // The same alteration with run.json's digest updated to hide it is caught by the tensor digests.
-    let index_path = altered.join("runs").join(run).join("run.json");
+    // The same alteration with checksums.json's digest updated to hide it is caught by the tensor digests.
+    let index_path = altered.join("runs").join(run).join("checksums.json");
     let mut index: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&index_path).unwrap()).unwrap();
     index["files"]["weights.safetensors"] = serde_json::Value::String(tabcard::fingerprint::sha256_hex(&bytes));
     std::fs::write(&index_path, serde_json::to_string_pretty(&index).unwrap()).unwrap();

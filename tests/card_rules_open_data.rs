@@ -54,7 +54,7 @@ fn duplicate_rows_are_counted_as_pandas_counts_them() {
         let m = open_manifest(dir.path(), file, &format!("target = \"{target}\"\ntask = \"{task}\"\n"));
         let exp = tabcard::experiment::open(&m).unwrap();
         let name = file.trim_end_matches(".parquet");
-        assert_eq!(exp.summary.duplicate_rows as u64, r[name]["duplicate_rows"].as_u64().unwrap(), "{file}");
+        assert_eq!(exp.summary.duplicate_rows.unwrap() as u64, r[name]["duplicate_rows"].as_u64().unwrap(), "{file}");
     }
 }
 
@@ -75,7 +75,7 @@ fn duplicates_across_splits_fire_on_mpg_and_not_on_breast_cancer() {
         &format!("target = \"hwy\"\ntask = \"regression\"\n\n[split]\nseed = 3\n{}", fast_training("[1, 2]")),
     );
     let exp = tabcard::experiment::open(&m).unwrap();
-    let checks = &exp.summary.split_checks;
+    let checks = exp.summary.split_checks.as_ref().unwrap();
     assert_eq!(checks.test_rows_duplicating_training, naive_cross_duplicates(&exp, &exp.splits.test));
     assert_eq!(checks.validation_rows_duplicating_training, naive_cross_duplicates(&exp, &exp.splits.validation));
     assert!(
@@ -203,7 +203,7 @@ fn the_group_split_keeps_each_subject_in_one_split() {
     let dir = tempfile::tempdir().unwrap();
     let m = open_manifest(dir.path(), "sleepstudy.parquet", &format!("{body}{}", fast_training("[1]")));
     let exp = tabcard::experiment::open(&m).unwrap();
-    let crossing = &exp.summary.split_checks.repeated_keys;
+    let crossing = &exp.summary.split_checks.as_ref().unwrap().repeated_keys;
     assert_eq!(crossing.len(), 1);
     assert_eq!((crossing[0].values as u64, crossing[0].crossing as u64), (r["sleepstudy"]["subjects"].as_u64().unwrap(), 18));
     let (_, rules) = card_rules(dir.path(), &m);
@@ -217,7 +217,7 @@ fn the_group_split_keeps_each_subject_in_one_split() {
     assert!(train.is_disjoint(&validation) && train.is_disjoint(&test) && validation.is_disjoint(&test));
     assert_eq!(train.len() + validation.len() + test.len(), 18);
     assert!((3..=5).contains(&test.len()) && (3..=5).contains(&validation.len()), "{test:?} {validation:?}");
-    assert_eq!(exp.summary.split_checks.repeated_keys[0].crossing, 0);
+    assert_eq!(exp.summary.split_checks.as_ref().unwrap().repeated_keys[0].crossing, 0);
     let (card, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("repeated_key_across_splits"), "{rules:?}");
     assert!(card.contains("seeded by whole groups of `Subject`"), "{card}");

@@ -58,7 +58,7 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
     for config in &prepared.plan.configs {
         let run = prepared.plan.runs.iter().find(|r| r.config_id == config.id).unwrap();
         let metrics: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(folder.join("runs").join(&run.id).join("metrics.json")).unwrap()).unwrap();
+            serde_json::from_str(&std::fs::read_to_string(folder.join("runs").join(&run.id).join("result.json")).unwrap()).unwrap();
         assert_eq!(
             tabcard::feasibility::parameter_count(config, width, outputs),
             metrics["parameter_count"].as_u64().unwrap(),

@@ -70,7 +70,7 @@ fn run_folders(results: &Path) -> Vec<(String, PathBuf)> {
 fn digests(results: &Path) -> BTreeMap<String, BTreeMap<String, String>> {
     let mut out = BTreeMap::new();
     for (name, dir) in run_folders(results) {
-        let index: Value = serde_json::from_slice(&std::fs::read(dir.join("run.json")).unwrap()).unwrap();
+        let index: Value = serde_json::from_slice(&std::fs::read(dir.join("checksums.json")).unwrap()).unwrap();
         let files = index["files"].as_object().unwrap();
         let kept = files
             .iter()
@@ -198,8 +198,8 @@ fn run_contents(results: &Path) -> RunContents {
     let mut out = BTreeMap::new();
     for (name, dir) in run_folders(results) {
         let read = |f: &str| std::fs::read_to_string(dir.join(f)).unwrap_or_default();
-        let metrics: Value = serde_json::from_str(&read("metrics.json")).unwrap();
-        out.insert(name, (metrics["weights_sha256"].to_string(), read("history.csv"), read("metrics.json")));
+        let metrics: Value = serde_json::from_str(&read("result.json")).unwrap();
+        out.insert(name, (metrics["weights_sha256"].to_string(), read("history.csv"), read("result.json")));
     }
     out
 }

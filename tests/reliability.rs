@@ -42,7 +42,7 @@ fn snapshot_runs(folder: &Path) -> Vec<(String, Vec<u8>)> {
         .collect();
     names.sort();
     for n in names {
-        for f in ["metrics.json", "weights.safetensors", "history.csv"] {
+        for f in ["result.json", "weights.safetensors", "history.csv"] {
             out.push((format!("{n}/{f}"), std::fs::read(runs.join(&n).join(f)).unwrap()));
         }
     }
@@ -198,7 +198,7 @@ fn tampered_or_foreign_results_fail_clearly() {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
         let expected = format!(
-            "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads version 2",
+            "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads versions [2, 3]",
             env!("CARGO_PKG_VERSION")
         );
         assert_eq!(stderr(&o).trim_end(), expected, "{args:?}");

@@ -89,7 +89,7 @@ pub fn gather(
             .collect(),
         _ => Vec::new(),
     };
-    let checks = &summary.split_checks;
+    let checks = summary.split_checks.clone().unwrap_or_default();
     Evidence {
         classification: task != Task::Regression,
         train_rows: record.split_rows[0],

@@ -55,11 +55,13 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
         exp.splits.validation.len(),
         exp.splits.test.len()
     );
-    let checks = &s.split_checks;
+    let checks = s.split_checks.clone().unwrap_or_default();
     let _ = writeln!(
         out,
         "duplicates   {} rows repeat an earlier row (features and target); {} test and {} validation rows repeat a training row",
-        s.duplicate_rows, checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training
+        s.duplicate_rows.unwrap_or(0),
+        checks.test_rows_duplicating_training,
+        checks.validation_rows_duplicating_training
     );
     for k in checks.repeated_keys.iter().filter(|k| k.crossing > 0) {
         let _ = writeln!(

@@ -19,7 +19,7 @@ use crate::experiment::ExperimentRecord;
 use crate::manifest::Task;
 use crate::model::ScoringModel;
 use crate::selection::Selection;
-use crate::store::run::{read_run, INDEX};
+use crate::store::run::{is_run_folder, read_run};
 use crate::store::{read_json, write_atomic, Layout};
 use crate::text::terminal_safe;
 
@@ -97,7 +97,7 @@ pub fn check_output(output: &Path, input: &Path, force: bool) -> Result<OutputFo
 
 /// (experiment folder, run id) for a run folder or an experiment's results folder.
 fn locate(target: &Path) -> Result<(Layout, String)> {
-    if target.join(INDEX).exists() {
+    if is_run_folder(target) {
         let id = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         let root = target.parent().and_then(Path::parent).ok_or_else(|| Error::store(target, "is not inside a results folder"))?;
         let layout = Layout::new(root);

@@ -92,7 +92,7 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
     write_atomic(&merge_path, merge.as_bytes())?;
 
     let stored = Layout::new(results_root.join(exp.short_id()));
-    let done = plan.runs.iter().filter(|s| stored.run(&s.id).join(crate::store::run::INDEX).exists()).count();
+    let done = plan.runs.iter().filter(|s| crate::store::run::is_run_folder(&stored.run(&s.id))).count();
 
     let mut out = String::new();
     let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);

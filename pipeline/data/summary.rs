@@ -4,6 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::leakage::{duplicate_rows, SplitChecks};
+
 use super::roles::{Roles, Target};
 use super::table::{Column, ColumnValues, Table};
 use crate::metrics::bootstrap::quantile_sorted;
@@ -54,13 +55,17 @@ pub struct TargetSummary {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DataSummary {
     pub rows: usize,
-    /// Rows identical (features and target) to an earlier row.
-    pub duplicate_rows: usize,
+    /// Rows identical (features and target) to an earlier row; `None` in folders of tabcard 0.3,
+    /// which did not count them.
+    #[serde(default)]
+    pub duplicate_rows: Option<usize>,
     pub columns: Vec<ColumnSummary>,
     pub target: TargetSummary,
     pub warnings: Vec<String>,
-    /// What the split lets through (filled in once the rows are split).
-    pub split_checks: SplitChecks,
+    /// What the split lets through (filled in once the rows are split); `None` in folders of
+    /// tabcard 0.3, which did not check.
+    #[serde(default)]
+    pub split_checks: Option<SplitChecks>,
 }
 
 /// A level seen in fewer rows than this is "rare" (common practice: too few rows to learn an
@@ -193,12 +198,5 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
     if duplicates > 0 {
         warnings.push(format!("{duplicates} rows repeat an earlier row exactly (features and target)"));
     }
-    DataSummary {
-        rows: table.rows,
-        duplicate_rows: duplicates,
-        columns,
-        target: target_summary,
-        warnings,
-        split_checks: SplitChecks::default(),
-    }
+    DataSummary { rows: table.rows, duplicate_rows: Some(duplicates), columns, target: target_summary, warnings, split_checks: None }
 }

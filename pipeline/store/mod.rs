@@ -41,9 +41,13 @@ pub mod run;
 pub mod timing;
 pub mod weights;
 
-/// The version of the results layout this tool writes and reads. Version 2 added
-/// `integrity.sha256` and the results digest.
-pub const FORMAT_VERSION: u32 = 2;
+/// The version of the results layout this tool writes. Version 2 added `integrity.sha256` and
+/// the results digest; version 3 renamed a run's `metrics.json`, `config.json` and `run.json` to
+/// `result.json`, `settings.json` and `checksums.json`.
+pub const FORMAT_VERSION: u32 = 3;
+
+/// The layout versions this tool reads (a version-2 folder under its own file names).
+pub const READABLE_VERSIONS: &[u32] = &[2, 3];
 
 /// Pretty JSON with stable key order (struct order, sorted maps), newline-terminated.
 pub fn to_json<T: serde::Serialize>(value: &T) -> Result<Vec<u8>> {
@@ -160,11 +164,11 @@ impl Layout {
         if record.format != "tabcard-results" {
             return Err(Error::store(&path, format!("unknown format `{}`", record.format)));
         }
-        if record.version != FORMAT_VERSION {
+        if !READABLE_VERSIONS.contains(&record.version) {
             return Err(Error::store(
                 &path,
                 format!(
-                    "results layout version {} written by tabcard {}; this tabcard {} reads version {FORMAT_VERSION}",
+                    "results layout version {} written by tabcard {}; this tabcard {} reads versions {READABLE_VERSIONS:?}",
                     record.version,
                     record.tool_version,
                     env!("CARGO_PKG_VERSION")

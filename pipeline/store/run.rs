@@ -1,6 +1,8 @@
 //! One run's folder: written complete under a temporary name and renamed into place in one step,
 //! so a run folder under its final name is always whole; read back with every file's SHA-256
-//! checked against the run's own index (`run.json`).
+//! checked against the run's own list (`checksums.json`). Folders of results layout 2 (tabcard
+//! 0.3) named three files differently (`metrics.json`, `config.json`, `run.json`); they are read
+//! under those names.
 
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -17,7 +19,7 @@ use crate::numerics::NumericsFingerprint;
 use crate::plan::RunConfig;
 use crate::train::{EpochRecord, Head, Outcome, TargetScaling};
 
-/// The summary of one run (`metrics.json`).
+/// The record of one run (`result.json`): outcome, epochs, size, metrics and weight digests.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RunRecord {
     pub run_id: String,
@@ -51,22 +53,49 @@ pub struct RunArtifacts<'a> {
     pub seconds: f64,
 }
 
-/// The file index of a run folder (`run.json`): every file but timing, with its SHA-256.
+/// The checksum list of a run folder (`checksums.json`): every file but timing, with its SHA-256.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RunIndex {
     pub run_id: String,
     pub files: BTreeMap<String, String>,
 }
 
-pub const METRICS: &str = "metrics.json";
-pub const CONFIG: &str = "config.json";
+/// The run's record ([`RunRecord`]).
+pub const RESULT: &str = "result.json";
+/// The run's model and training settings ([`RunConfig`]).
+pub const SETTINGS: &str = "settings.json";
 pub const WEIGHTS: &str = "weights.safetensors";
 pub const PREPROCESSOR: &str = "preprocessor.json";
 pub const HISTORY: &str = "history.csv";
 pub const VALIDATION_PREDICTIONS: &str = "validation-predictions.csv";
 pub const ENVIRONMENT: &str = "environment.json";
 pub const TIMING: &str = "timing.json";
-pub const INDEX: &str = "run.json";
+/// The run's checksum list ([`RunIndex`]); its presence marks a complete run folder.
+pub const CHECKSUMS: &str = "checksums.json";
+
+/// The names of the three files that results layout 2 named differently.
+struct Names {
+    result: &'static str,
+    settings: &'static str,
+    checksums: &'static str,
+}
+
+const CURRENT: Names = Names { result: RESULT, settings: SETTINGS, checksums: CHECKSUMS };
+const LAYOUT_2: Names = Names { result: "metrics.json", settings: "config.json", checksums: "run.json" };
+
+/// The names a stored run folder uses: layout 2's when it has `run.json` and no `checksums.json`.
+fn names_in(dir: &Path) -> &'static Names {
+    if !dir.join(CHECKSUMS).exists() && dir.join(LAYOUT_2.checksums).exists() {
+        &LAYOUT_2
+    } else {
+        &CURRENT
+    }
+}
+
+/// Whether `dir` holds a complete run folder (of this layout or layout 2).
+pub fn is_run_folder(dir: &Path) -> bool {
+    dir.join(CHECKSUMS).exists() || dir.join(LAYOUT_2.checksums).exists()
+}
 
 fn opt(x: Option<f64>) -> String {
     x.map(|v| format!("{v:?}")).unwrap_or_default()
@@ -133,8 +162,8 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
     let id = &a.record.run_id;
     let per_row = a.record.head.values_per_row();
     let mut files: Vec<(&str, Vec<u8>)> = vec![
-        (METRICS, to_json(&a.record)?),
-        (CONFIG, to_json(a.config)?),
+        (RESULT, to_json(&a.record)?),
+        (SETTINGS, to_json(a.config)?),
         (PREPROCESSOR, to_json(a.preprocessor)?),
         (HISTORY, history_csv(a.history).into_bytes()),
         (ENVIRONMENT, to_json(a.environment)?),
@@ -144,7 +173,7 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
         files.push((VALIDATION_PREDICTIONS, predictions_csv(a.validation_rows, a.validation_outputs, per_row).into_bytes()));
     }
     let index = RunIndex { run_id: id.clone(), files: files.iter().map(|(n, b)| (n.to_string(), sha256_hex(b))).collect() };
-    files.push((INDEX, to_json(&index)?));
+    files.push((CHECKSUMS, to_json(&index)?));
     files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds }))?));
 
     let tmp = partial_dir(layout, id);
@@ -158,7 +187,7 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
         match std::fs::rename(&tmp, &final_dir) {
             Ok(()) => Ok(()),
             // Another process finished the same run first; its content is the same by construction.
-            Err(_) if final_dir.join(INDEX).exists() => {
+            Err(_) if final_dir.join(CHECKSUMS).exists() => {
                 std::fs::remove_dir_all(&tmp)?;
                 Ok(())
             }
@@ -196,9 +225,10 @@ pub fn read_run(layout: &Layout, id: &str) -> Result<Option<StoredRun>> {
     if !dir.exists() {
         return Ok(None);
     }
-    let index: RunIndex = read_json(&dir.join(INDEX))?;
+    let names = names_in(&dir);
+    let index: RunIndex = read_json(&dir.join(names.checksums))?;
     if index.run_id != id {
-        return Err(Error::store(&dir, format!("run.json names run {}, not {id}", index.run_id)));
+        return Err(Error::store(&dir, format!("{} names run {}, not {id}", names.checksums, index.run_id)));
     }
     for (name, digest) in &index.files {
         let path = dir.join(name);
@@ -206,11 +236,12 @@ pub fn read_run(layout: &Layout, id: &str) -> Result<Option<StoredRun>> {
         let actual = sha256_hex(&bytes);
         if &actual != digest {
             return Err(Error::store(&path, format!(
-                "fails its integrity check: SHA-256 {actual}, run.json records {digest}; the file was changed after training (delete the run folder to retrain it)"
+                "fails its integrity check: SHA-256 {actual}, {} records {digest}; the file was changed after training (delete the run folder to retrain it)",
+                names.checksums
             )));
         }
     }
-    let record: RunRecord = read_json(&dir.join(METRICS))?;
+    let record: RunRecord = read_json(&dir.join(names.result))?;
     Ok(Some(StoredRun { dir, record }))
 }
 
@@ -222,7 +253,7 @@ impl StoredRun {
     }
 
     pub fn config(&self) -> Result<RunConfig> {
-        read_json(&self.dir.join(CONFIG))
+        read_json(&self.dir.join(names_in(&self.dir).settings))
     }
 
     pub fn preprocessor(&self) -> Result<Preprocessor> {
