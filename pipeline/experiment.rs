@@ -45,6 +45,8 @@ pub struct Experiment {
     pub target: Target,
     pub summary: DataSummary,
     pub splits: Splits,
+    /// Manifest keys the grid overrides, for `check` and `train` to report.
+    pub overridden_by_grid: Vec<String>,
 }
 
 impl Experiment {
@@ -103,6 +105,7 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
         target,
         summary,
         splits,
+        overridden_by_grid: loaded.overridden_by_grid,
     })
 }
 

@@ -11,18 +11,51 @@ use tabcard::error::exit;
 use tabcard::sweep::Event;
 
 #[derive(Parser)]
-#[command(name = "tabcard", version, about = "Seeded MLP experiments on tabular data, with model cards an auditor can rerun bit-for-bit")]
+#[command(
+    name = "tabcard",
+    version,
+    about = "Seeded MLP experiments on tabular data, with model cards an auditor can rerun bit-for-bit",
+    after_help = "Start from your data:  tabcard scaffold data.parquet --target outcome --out experiment.toml\nThen:                 tabcard check experiment.toml && tabcard train experiment.toml"
+)]
 struct Cli {
+    /// Print no progress (header, bar or per-run lines) on stderr; reports and errors still print.
+    #[arg(long, global = true)]
+    quiet: bool,
+    /// Print the report as one JSON document instead of text (check, train, verify, compare,
+    /// history, list); fields are listed in README, "Machine-readable output".
+    #[arg(long, global = true)]
+    json: bool,
     #[command(subcommand)]
     command: Command,
 }
 
 #[derive(Subcommand)]
 enum Command {
-    /// Validate a manifest and its data; print fingerprints, data summary and run plan.
-    Check { manifest: PathBuf },
+    /// Write a commented starter manifest for a Parquet file: every column with its detected type and suggested role, every section with its defaults.
+    #[command(after_help = "Example:\n  tabcard scaffold data/claims.parquet --target approved --out experiments/claims.toml")]
+    Scaffold {
+        /// The Parquet file the experiment will use.
+        data: PathBuf,
+        /// The column to predict (default: the last column).
+        #[arg(long)]
+        target: Option<String>,
+        /// Where to write the manifest (default: print it); the data path inside is relative to it.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Replace `--out` if it exists.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Validate a manifest and its data; print fingerprints, data summary, split checks, run plan and memory estimate.
+    #[command(after_help = "Example:\n  tabcard check experiments/lease-default.toml")]
+    Check {
+        /// The experiment manifest (TOML).
+        manifest: PathBuf,
+    },
     /// Train every pending run of an experiment, select and test the best configuration, write the card.
+    #[command(after_help = "Examples:\n  tabcard train experiments/lease-default.toml\n  tabcard train experiments/lease-default.toml --jobs 8 --results /shared/results")]
     Train {
+        /// The experiment manifest (TOML).
         manifest: PathBuf,
         /// Folder holding one results folder per experiment fingerprint, and the ledger.
         #[arg(long, default_value = "results")]
@@ -35,7 +68,9 @@ enum Command {
         shard: Option<tabcard::shard::Shard>,
     },
     /// Write a SLURM job array that trains the experiment shard by shard on a cluster, plus the merge job; --submit hands both to sbatch.
+    #[command(after_help = "Example:\n  tabcard slurm experiments/lease-default.toml --results /shared/results --cpus-per-task 4 --partition cpu --submit")]
     Slurm {
+        /// The experiment manifest (TOML), on a file system every node shares.
         manifest: PathBuf,
         /// Results root on a file system every node shares (written into the scripts as an absolute path).
         #[arg(long, default_value = "results")]
@@ -52,8 +87,10 @@ enum Command {
         /// Time limit per task, as sbatch --time takes it (default: the partition's).
         #[arg(long)]
         time: Option<String>,
+        /// The SLURM partition to submit to, as sbatch --partition takes it (default: the cluster's).
         #[arg(long)]
         partition: Option<String>,
+        /// The SLURM account to charge, as sbatch --account takes it (default: yours).
         #[arg(long)]
         account: Option<String>,
         /// An environment module to load in each task (repeatable, in order).
@@ -67,14 +104,17 @@ enum Command {
         submit: bool,
     },
     /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
+    #[command(after_help = "Examples:\n  tabcard verify results/29a86975d22ab264\n  tabcard verify experiments/lease-default.toml --all")]
     Verify {
         /// A results folder, or a manifest whose results live under --results.
         target: PathBuf,
         /// Retrain every run, not only the selected configuration's.
         #[arg(long)]
         all: bool,
+        /// The results root, where a manifest's results folder is looked up.
         #[arg(long, default_value = "results")]
         results: PathBuf,
+        /// Runs retrained at once; default: available cores.
         #[arg(long)]
         jobs: Option<usize>,
         /// Data file to use instead of the recorded path (it must match the recorded fingerprints).
@@ -82,8 +122,11 @@ enum Command {
         data: Option<PathBuf>,
     },
     /// Score a Parquet file with a stored model (a run folder, or a results folder's selected run).
+    #[command(after_help = "Example:\n  tabcard predict results/29a86975d22ab264 new-applications.parquet --out scores.parquet")]
     Predict {
+        /// A results folder (its selected run) or one run folder.
         model: PathBuf,
+        /// The Parquet table to score; it needs the training features (by name) and may hold more.
         input: PathBuf,
         /// The predictions file to write: `.parquet` or `.csv` (the extension names the format).
         /// Never the input table nor a path inside a results store.
@@ -96,49 +139,127 @@ enum Command {
         #[arg(long)]
         force: bool,
     },
-    /// Show what changed between two results folders: manifest keys, data, metrics.
-    Compare { a: PathBuf, b: PathBuf },
+    /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
+    #[command(after_help = "Examples:\n  tabcard compare results/29a86975d22ab264 results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml")]
+    Compare {
+        /// The first experiment: a results folder or a manifest.
+        a: PathBuf,
+        /// The second experiment: a results folder or a manifest.
+        b: PathBuf,
+        /// The results root, where stored runs are looked up for manifests.
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+    },
     /// List every recorded train invocation and whether it was verified.
+    #[command(after_help = "Example:\n  tabcard history --results results")]
     History {
+        /// The results root holding ledger.jsonl.
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+    },
+    /// List the experiments in a results root: fingerprint, name, date, selected configuration, headline, verified or not.
+    #[command(after_help = "Example:\n  tabcard list --results results")]
+    List {
+        /// The results root.
         #[arg(long, default_value = "results")]
         results: PathBuf,
     },
     /// Re-render the model card of a results folder from stored results (no retraining).
+    #[command(after_help = "Example:\n  tabcard card results/29a86975d22ab264 --templates my-templates/")]
     Card {
+        /// The results folder whose card to write.
         results_folder: PathBuf,
         /// Folder of tera templates overriding the built-in ones file by file (card.md.tera, cautions.md.tera).
         #[arg(long)]
         templates: Option<PathBuf>,
     },
     /// Write the invented demo tables (lease defaults, greenhouse yield) as Parquet.
+    #[command(after_help = "Example:\n  tabcard demo-data data-demo")]
     DemoData {
+        /// The folder to write the two tables into.
         #[arg(default_value = "data-demo")]
         folder: PathBuf,
+        /// The seed of the invented data.
         #[arg(long, default_value_t = 20261202)]
         seed: u64,
     },
 }
 
-fn progress_display() -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
-    let bar = if std::io::stderr().is_terminal() { indicatif::ProgressBar::new(0) } else { indicatif::ProgressBar::hidden() };
+/// One line on stderr; a closed stderr (`tabcard train ... 2>&1 | head`) must not stop the work.
+fn note(text: &str) {
+    use std::io::Write;
+    let _ = writeln!(std::io::stderr(), "{text}");
+}
+
+/// Progress on stderr while `train` or `verify` works: the header at once; on a terminal a live
+/// bar (runs done of planned, best validation value so far, elapsed, estimate); otherwise one
+/// plain line per finished run (logs, SLURM). `--quiet` shows neither.
+fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
+    let terminal = std::io::stderr().is_terminal() && !quiet;
+    let bar = if terminal { indicatif::ProgressBar::new(0) } else { indicatif::ProgressBar::hidden() };
     bar.set_style(
-        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} runs  {msg}  eta {eta}")
+        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} runs  {msg}  {elapsed} elapsed, about {eta} left")
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    let failed = std::sync::atomic::AtomicUsize::new(0);
+    struct State {
+        done: usize,
+        pending: usize,
+        failed: usize,
+        metric: String,
+        higher_is_better: bool,
+        best: Option<(f64, String)>,
+    }
+    let state = std::sync::Mutex::new(State { done: 0, pending: 0, failed: 0, metric: String::new(), higher_is_better: true, best: None });
     let handle = bar.clone();
-    let on_event = move |event: Event| match event {
-        Event::Waiting(message) => eprintln!("{message}"),
-        Event::Planned { pending, reused } => {
-            handle.set_length(pending as u64);
-            handle.set_message(format!("{reused} reused"));
-        }
-        Event::Finished { outcome, .. } => {
-            if !outcome.is_completed() {
-                let n = failed.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-                handle.set_message(format!("{n} failed"));
+    let on_event = move |event: Event| {
+        let Ok(mut s) = state.lock() else { return };
+        match event {
+            Event::Header(text) | Event::Waiting(text) => {
+                if !quiet {
+                    handle.suspend(|| note(&text));
+                }
             }
-            handle.inc(1);
+            Event::Planned { pending, reused, metric, higher_is_better } => {
+                (s.pending, s.metric, s.higher_is_better) = (pending, metric, higher_is_better);
+                handle.set_length(pending as u64);
+                if !quiet && !terminal {
+                    note(&format!("{pending} runs to train, {reused} already stored"));
+                }
+            }
+            Event::Finished(run) => {
+                s.done += 1;
+                if !run.outcome.is_completed() {
+                    s.failed += 1;
+                }
+                if let Some(v) = run.metric {
+                    let better = s.best.as_ref().is_none_or(|(b, _)| if s.higher_is_better { v > *b } else { v < *b });
+                    if better {
+                        s.best = Some((v, format!("{} seed {}", run.label, run.seed)));
+                    }
+                }
+                let metric = match run.metric {
+                    Some(v) => format!("validation {} {}", s.metric, tabcard::format::fixed(v, 4)),
+                    None => format!("validation {} undefined", s.metric),
+                };
+                let outcome = if run.outcome.is_completed() { "completed".to_string() } else { run.outcome.describe() };
+                let verdict = run.verdict.map(|v| format!(", {v}")).unwrap_or_default();
+                if terminal {
+                    let best = s.best.as_ref().map(|(v, who)| format!("best {} {} ({})", s.metric, tabcard::format::fixed(*v, 4), tabcard::text::terminal_cell(who, 40))).unwrap_or_default();
+                    let failed = if s.failed > 0 { format!(", {} failed", s.failed) } else { String::new() };
+                    handle.set_message(format!("{best}{failed}"));
+                    handle.inc(1);
+                } else if !quiet {
+                    note(&format!(
+                        "[{}/{}] run {} seed {} {}: {outcome}, {metric}, {:.1} s{verdict}",
+                        s.done,
+                        s.pending,
+                        run.run_id,
+                        run.seed,
+                        tabcard::text::terminal_safe(&run.label),
+                        run.seconds
+                    ));
+                }
+            }
         }
     };
     (bar, on_event)
@@ -148,48 +269,91 @@ fn default_jobs() -> usize {
     std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
 }
 
-fn main() -> ExitCode {
-    tabcard::numerics::prepare_process();
-    let cli = Cli::parse();
-    let result = match cli.command {
-        Command::Check { manifest } => commands::check::run(&manifest, default_jobs()).map(|r| (r, exit::OK)),
+/// What a command leaves to print: its text, its JSON when it has one, and its exit status.
+struct Done {
+    text: String,
+    json: Option<serde_json::Value>,
+    code: u8,
+}
+
+impl Done {
+    fn text(text: String) -> Self {
+        Done { text, json: None, code: exit::OK }
+    }
+
+    fn report(r: commands::Report) -> Self {
+        Done { text: r.text, json: Some(r.json), code: exit::OK }
+    }
+}
+
+fn run(cli: Cli) -> tabcard::Result<Done> {
+    let quiet = cli.quiet;
+    Ok(match cli.command {
+        Command::Scaffold { data, target, out, force } => {
+            Done::text(commands::scaffold::run(&data, &commands::scaffold::ScaffoldOptions { target, out, force })?)
+        }
+        Command::Check { manifest } => Done::report(commands::check::run(&manifest, default_jobs())?),
         Command::Train { manifest, results, jobs, shard } => {
             let jobs = jobs.unwrap_or_else(default_jobs);
-            let (bar, on_event) = progress_display();
+            let (bar, on_event) = progress_display(quiet);
             let options = commands::train::TrainOptions { results_root: results, jobs, shard };
             let outcome = commands::train::run(&manifest, &options, &on_event);
             bar.finish_and_clear();
-            outcome.map(|o| (o.report, if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK }))
+            let o = outcome?;
+            Done { text: o.report, json: Some(o.json), code: if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK } }
         }
         Command::Verify { target, all, results, jobs, data } => {
             let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
-            commands::verify::run(&target, &options).map(|o| (o.report, if o.identical { exit::OK } else { exit::NOT_VERIFIED }))
+            let (bar, on_event) = progress_display(quiet);
+            let outcome = commands::verify::run(&target, &options, &on_event);
+            bar.finish_and_clear();
+            let o = outcome?;
+            Done { text: o.report, json: Some(o.json), code: if o.identical { exit::OK } else { exit::NOT_VERIFIED } }
         }
         Command::Predict { model, input, out, keep_extra, force } => {
-            commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force }).map(|r| (r, exit::OK))
+            Done::text(commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force })?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
             let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };
             let options = commands::slurm::SlurmOptions { results_root: results, resources, runs_per_task, executable, submit };
-            commands::slurm::run(&manifest, &options).map(|r| (r, exit::OK))
+            Done::text(commands::slurm::run(&manifest, &options)?)
         }
-        Command::Compare { a, b } => commands::compare::run(&a, &b).map(|r| (r, exit::OK)),
-        Command::History { results } => commands::history::run(&results).map(|r| (r, exit::OK)),
-        Command::Card { results_folder, templates } => commands::card::run(&results_folder, templates.as_deref()).map(|r| (r, exit::OK)),
-        Command::DemoData { folder, seed } => commands::demo::run(&folder, seed).map(|r| (r, exit::OK)),
-    };
-    match result {
-        Ok((report, code)) => {
-            print!("{report}");
-            match code {
-                exit::RUNS_FAILED => eprintln!("error: some runs failed or diverged (see above)"),
-                exit::NOT_VERIFIED => eprintln!("error: verification found differences (see above)"),
+        Command::Compare { a, b, results } => Done::report(commands::compare::run(&a, &b, &results)?),
+        Command::History { results } => Done::report(commands::history::run(&results)?),
+        Command::List { results } => Done::report(commands::list::run(&results)?),
+        Command::Card { results_folder, templates } => Done::text(commands::card::run(&results_folder, templates.as_deref())?),
+        Command::DemoData { folder, seed } => Done::text(commands::demo::run(&folder, seed)?),
+    })
+}
+
+fn main() -> ExitCode {
+    use std::io::Write;
+    tabcard::numerics::prepare_process();
+    let cli = Cli::parse();
+    let json = cli.json;
+    let reports_json =
+        matches!(cli.command, Command::Check { .. } | Command::Train { .. } | Command::Verify { .. } | Command::Compare { .. } | Command::History { .. } | Command::List { .. });
+    if json && !reports_json {
+        note("error: --json is available for check, train, verify, compare, history and list, not for this command");
+        return ExitCode::from(exit::BAD_INPUT);
+    }
+    match run(cli) {
+        Ok(done) => {
+            let mut stdout = std::io::stdout();
+            // A closed stdout (`| head`) must not turn finished work into a panic.
+            let _ = match (json, &done.json) {
+                (true, Some(value)) => writeln!(stdout, "{}", serde_json::to_string_pretty(value).unwrap_or_default()),
+                _ => write!(stdout, "{}", done.text),
+            };
+            match done.code {
+                exit::RUNS_FAILED => note("error: some runs failed or diverged (see above)"),
+                exit::NOT_VERIFIED => note("error: verification found differences (see above)"),
                 _ => {}
             }
-            ExitCode::from(code)
+            ExitCode::from(done.code)
         }
         Err(e) => {
-            eprintln!("error: {}", tabcard::text::terminal_safe(&e.to_string()));
+            note(&format!("error: {}", tabcard::text::terminal_safe(&e.to_string())));
             ExitCode::from(e.exit_code())
         }
     }

@@ -15,19 +15,47 @@ use crate::store::weights::{tensor_digests, weights_digest};
 use crate::store::Layout;
 use crate::train::{train, Head, Outcome, RunData};
 
-/// Progress notifications, for a display the caller owns.
+/// Progress notifications, for a display the caller owns (`main.rs`).
 #[derive(Debug, Clone)]
 pub enum Event {
+    /// What the command is about to do, shown at once.
+    Header(String),
     /// Another process is writing this experiment; this one waits for it.
     Waiting(String),
-    Planned {
-        pending: usize,
-        reused: usize,
-    },
-    Finished {
-        run_id: String,
-        outcome: Outcome,
-    },
+    /// The runs to train (`pending`) and those already stored (`reused`), and the metric whose
+    /// best value so far the display may show.
+    Planned { pending: usize, reused: usize, metric: String, higher_is_better: bool },
+    Finished(RunReport),
+}
+
+/// One finished run, for progress lines.
+#[derive(Debug, Clone)]
+pub struct RunReport {
+    pub run_id: String,
+    /// The configuration's label (`dropout=0.2 hidden=[16]`, `linear baseline`).
+    pub label: String,
+    pub seed: u64,
+    pub outcome: Outcome,
+    /// The run's validation value of the selection metric.
+    pub metric: Option<f64>,
+    pub seconds: f64,
+    /// For `verify`: what the comparison with the stored run found.
+    pub verdict: Option<String>,
+}
+
+impl RunReport {
+    pub fn new(inputs: &SweepInputs<'_>, spec: &RunSpec, record: &RunRecord, seconds: f64) -> Self {
+        let label = inputs.plan.config(&spec.config_id).map(|c| crate::plan::config_label(&c.overrides, c.baseline)).unwrap_or_default();
+        RunReport {
+            run_id: spec.id.clone(),
+            label,
+            seed: spec.seed,
+            outcome: record.outcome.clone(),
+            metric: record.validation.get(inputs.selection_metric).copied().flatten(),
+            seconds,
+            verdict: None,
+        }
+    }
 }
 
 pub struct SweepInputs<'a> {
@@ -110,10 +138,10 @@ pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun>
     Ok(TrainedRun { record, tensors: r.tensors, history: r.history, validation_outputs: r.validation_outputs, seconds })
 }
 
-fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
+fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<RunReport> {
     let planned = planned_config(inputs, spec)?;
     let t = train_run(inputs, spec)?;
-    let outcome = t.record.outcome.clone();
+    let report = RunReport::new(inputs, spec, &t.record, t.seconds);
     write_run(
         inputs.layout,
         &RunArtifacts {
@@ -128,7 +156,7 @@ fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<Outcome> {
             seconds: t.seconds,
         },
     )?;
-    Ok(outcome)
+    Ok(report)
 }
 
 /// Runs `f` on a pool of `jobs` workers.
@@ -158,24 +186,25 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
             None => pending.push(spec),
         }
     }
-    on_event(Event::Planned { pending: pending.len(), reused: report.reused.len() });
+    let higher_is_better = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric) == Some(crate::metrics::registry::Direction::Maximise);
+    on_event(Event::Planned { pending: pending.len(), reused: report.reused.len(), metric: inputs.selection_metric.to_string(), higher_is_better });
     if pending.is_empty() {
         return Ok(report);
     }
-    let results: Vec<(String, Result<Outcome>)> = in_pool(inputs.jobs, || {
+    let results: Vec<(String, Result<RunReport>)> = in_pool(inputs.jobs, || {
         pending
             .par_iter()
             .map(|spec| {
                 let r = run_one(inputs, spec);
-                if let Ok(outcome) = &r {
-                    on_event(Event::Finished { run_id: spec.id.clone(), outcome: outcome.clone() });
+                if let Ok(run) = &r {
+                    on_event(Event::Finished(run.clone()));
                 }
                 (spec.id.clone(), r)
             })
             .collect()
     })?;
     for (id, r) in results {
-        let outcome = r?;
+        let outcome = r?.outcome;
         if !outcome.is_completed() {
             report.failed.push((id.clone(), outcome.describe()));
         }

@@ -10,7 +10,7 @@ use crate::plan;
 use crate::text::terminal_safe;
 
 /// Checks the experiment; `jobs` is the worker count the memory estimate assumes.
-pub fn run(manifest_path: &Path, jobs: usize) -> Result<String> {
+pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
     let estimate = crate::feasibility::estimate(&exp, &plan, crate::feasibility::input_width_bound(&exp), jobs);
@@ -18,8 +18,27 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<String> {
     crate::feasibility::require(&estimate, available, manifest_path)?;
     let mut out = report(&exp, &plan);
     let _ = writeln!(out, "memory       {}", crate::feasibility::describe(&estimate, available));
-    Ok(out)
+    let m = &exp.manifest;
+    let json = serde_json::json!({
+        "experiment": m.experiment.name,
+        "manifest": exp.manifest_path.display().to_string(),
+        "fingerprint": exp.fingerprint,
+        "manifest_sha256": exp.manifest_sha256,
+        "tool_version": crate::experiment::TOOL_VERSION,
+        "data": exp.data,
+        "split": { "train": exp.splits.train.len(), "validation": exp.splits.validation.len(), "test": exp.splits.test.len() },
+        "summary": exp.summary,
+        "plan": { "runs": plan.runs.len(), "configurations": plan.configs.len(), "grid": m.sweep.grid, "seeds": m.sweep.seeds },
+        "selection": { "metric": m.selection.metric, "rule": m.selection.rule.as_str() },
+        "overridden_by_grid": exp.overridden_by_grid,
+        "memory": { "bytes_needed": estimate.total, "bytes_available": available },
+    });
+    Ok(super::Report { text: out, json })
 }
+
+/// Tables wider than this show their first `SHOWN_COLUMNS` columns; the rest are counted.
+const WIDE_TABLE: usize = 60;
+const SHOWN_COLUMNS: usize = 40;
 
 fn num(x: f64) -> String {
     crate::format::sig(x, 4)
@@ -75,8 +94,12 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     if !checks.constant_on_training.is_empty() {
         let _ = writeln!(out, "note: constant on the training rows: {}", terminal_safe(&checks.constant_on_training.join(", ")));
     }
+    for note in &exp.overridden_by_grid {
+        let _ = writeln!(out, "note: {}", terminal_safe(note));
+    }
     let _ = writeln!(out, "\n{:<28} {:<9} {:<8} {:>8}  summary", "column", "role", "type", "missing");
-    for c in &s.columns {
+    let shown = if s.columns.len() > WIDE_TABLE { SHOWN_COLUMNS } else { s.columns.len() };
+    for c in &s.columns[..shown] {
         let detail = match &c.numeric {
             Some(n) => {
                 format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std))
@@ -98,6 +121,17 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
             detail
         );
     }
+    if shown < s.columns.len() {
+        let roles = |r: &str| s.columns[shown..].iter().filter(|c| c.role == r).count();
+        let _ = writeln!(
+            out,
+            "... and {} more columns ({} features, {} others): `check --json` lists every column, as does data-summary.json in the results folder",
+            s.columns.len() - shown,
+            roles("feature"),
+            s.columns.len() - shown - roles("feature")
+        );
+    }
+    let _ = writeln!(out, "types marked * are numeric columns treated as categories (data.categorical); missing is the share of null rows");
     let _ = writeln!(out, "\ntarget       {} ({})", terminal_safe(&s.target.name), m.data.task.as_str());
     for l in &s.target.classes {
         let _ = writeln!(out, "  {:<24} {:>8} rows ({:.1}%)", terminal_safe(&l.level), l.count, 100.0 * l.count as f64 / s.rows as f64);

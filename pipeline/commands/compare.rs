@@ -1,6 +1,8 @@
-//! `tabcard compare <A> <B>`: what changed between two results folders: the resolved manifest key
-//! by key, the data fingerprints, and the selected configurations' metrics with their seed spread,
-//! so a reader sees whether a difference is within noise.
+//! `tabcard compare <A> <B>`: what differs between two experiments, each given as a results
+//! folder or a manifest: the resolved manifest key by key, the data fingerprints, and, for
+//! results folders of one task, the selected configurations' metrics with their seed spread (so a
+//! reader sees whether a difference is within noise). For a manifest it says which of its runs
+//! are already stored under the results root and which a `train` would add.
 
 use serde_json::Value;
 use std::collections::BTreeMap;
@@ -8,8 +10,8 @@ use std::fmt::Write;
 use std::path::Path;
 
 use crate::error::Result;
-use crate::experiment::ExperimentRecord;
 use crate::format::fixed;
+use crate::manifest::Task;
 use crate::selection::{ConfigSummary, Selection};
 use crate::store::{read_json, Layout};
 use crate::text::terminal_safe;
@@ -28,66 +30,131 @@ fn flatten(prefix: &str, v: &Value, out: &mut BTreeMap<String, Value>) {
     }
 }
 
+/// One side of the comparison.
 struct Side {
-    record: ExperimentRecord,
+    fingerprint: String,
+    task: Task,
+    file_sha256: String,
+    content_sha256: String,
     manifest: BTreeMap<String, Value>,
-    selection: Selection,
+    /// Results folders only.
+    selection: Option<Selection>,
+    /// Manifests only: (run ids already stored, run ids a `train` would add).
+    runs: Option<(Vec<String>, Vec<String>)>,
 }
 
-fn load(folder: &Path) -> Result<Side> {
+fn is_manifest(path: &Path) -> bool {
+    path.is_file() && path.extension().is_some_and(|e| e == "toml")
+}
+
+fn load_folder(folder: &Path) -> Result<Side> {
     let layout = Layout::new(folder);
     layout.check_sealed()?;
     let manifest: Value = read_json(&layout.manifest())?;
     let mut flat = BTreeMap::new();
     flatten("", &manifest, &mut flat);
-    Ok(Side { record: read_json(&layout.experiment())?, manifest: flat, selection: read_json(&layout.selection())? })
+    let record: crate::experiment::ExperimentRecord = read_json(&layout.experiment())?;
+    Ok(Side {
+        fingerprint: record.fingerprint,
+        task: record.task,
+        file_sha256: record.data.file_sha256,
+        content_sha256: record.data.content_sha256,
+        manifest: flat,
+        selection: Some(read_json(&layout.selection())?),
+        runs: None,
+    })
+}
+
+fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
+    let exp = crate::experiment::open(path)?;
+    let plan = crate::plan::build(&exp.manifest, &exp.fingerprint)?;
+    let value = serde_json::from_str::<Value>(&crate::manifest::canonical_json(&exp.manifest)).unwrap_or(Value::Null);
+    let mut flat = BTreeMap::new();
+    flatten("", &value, &mut flat);
+    let layout = Layout::new(results_root.join(exp.short_id()));
+    let (stored, new): (Vec<_>, Vec<_>) = plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)));
+    Ok(Side {
+        fingerprint: exp.fingerprint.clone(),
+        task: exp.manifest.data.task,
+        file_sha256: exp.data.file_sha256.clone(),
+        content_sha256: exp.data.content_sha256.clone(),
+        manifest: flat,
+        selection: None,
+        runs: Some((stored, new)),
+    })
+}
+
+fn load(path: &Path, results_root: &Path) -> Result<Side> {
+    if is_manifest(path) { load_manifest(path, results_root) } else { load_folder(path) }
 }
 
 fn selected(s: &Selection) -> Option<&ConfigSummary> {
     s.configs.iter().find(|c| c.config_id == s.selected_config)
 }
 
-pub fn run(a: &Path, b: &Path) -> Result<String> {
-    let (sa, sb) = (load(a)?, load(b)?);
+pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
+    let (sa, sb) = (load(a, results_root)?, load(b, results_root)?);
     let mut out = String::new();
-    let _ = writeln!(out, "A  {} ({})", a.display(), &sa.record.fingerprint[..16]);
-    let _ = writeln!(out, "B  {} ({})", b.display(), &sb.record.fingerprint[..16]);
+    let mut json = serde_json::Map::new();
+    let _ = writeln!(out, "A  {} ({})", a.display(), &sa.fingerprint[..16]);
+    let _ = writeln!(out, "B  {} ({})", b.display(), &sb.fingerprint[..16]);
+    json.insert("a".into(), serde_json::json!({ "path": a.display().to_string(), "fingerprint": sa.fingerprint }));
+    json.insert("b".into(), serde_json::json!({ "path": b.display().to_string(), "fingerprint": sb.fingerprint }));
     let _ = writeln!(out, "\nmanifest changes (resolved, defaults filled):");
     let keys: std::collections::BTreeSet<&String> = sa.manifest.keys().chain(sb.manifest.keys()).collect();
-    let mut changes = 0;
+    let mut changes = Vec::new();
     for k in keys {
         let (va, vb) = (sa.manifest.get(k), sb.manifest.get(k));
         if va != vb {
-            changes += 1;
             let show = |v: Option<&Value>| v.map(|v| terminal_safe(&v.to_string())).unwrap_or_else(|| "(absent)".into());
             let _ = writeln!(out, "  {k}: {} -> {}", show(va), show(vb));
+            changes.push(serde_json::json!({ "key": k, "a": va, "b": vb }));
         }
     }
-    if changes == 0 {
+    if changes.is_empty() {
         let _ = writeln!(out, "  none");
     }
+    json.insert("manifest_changes".into(), Value::Array(changes));
     let _ = writeln!(out, "\ndata:");
-    for (name, x, y) in [
-        ("file SHA-256", &sa.record.data.file_sha256, &sb.record.data.file_sha256),
-        ("content SHA-256", &sa.record.data.content_sha256, &sb.record.data.content_sha256),
-    ] {
+    let mut data = serde_json::Map::new();
+    for (name, key, x, y) in [("file SHA-256", "file_sha256", &sa.file_sha256, &sb.file_sha256), ("content SHA-256", "content_sha256", &sa.content_sha256, &sb.content_sha256)] {
         if x == y {
             let _ = writeln!(out, "  {name} same: {x}");
         } else {
             let _ = writeln!(out, "  {name} CHANGED: {x} -> {y}");
         }
+        data.insert(key.into(), serde_json::json!({ "a": x, "b": y, "same": x == y }));
     }
-    if sa.record.task != sb.record.task {
+    json.insert("data".into(), Value::Object(data));
+    for (label, side) in [("A", &sa), ("B", &sb)] {
+        if let Some((stored, new)) = &side.runs {
+            let _ = writeln!(
+                out,
+                "\nruns of {label}: {} planned, {} already stored under {}, {} a `train` would add",
+                stored.len() + new.len(),
+                stored.len(),
+                results_root.display(),
+                new.len()
+            );
+            json.insert(format!("runs_{}", label.to_lowercase()), serde_json::json!({ "stored": stored, "new": new }));
+        }
+    }
+    let (Some(sel_a), Some(sel_b)) = (&sa.selection, &sb.selection) else {
+        let _ = writeln!(out, "\nmetrics: compared only between two results folders");
+        return Ok(super::Report { text: out, json: Value::Object(json) });
+    };
+    if sa.task != sb.task {
         let _ = writeln!(
             out,
             "\nmetrics: not compared: A is a {} task and B a {} task, so metrics of the same name (or the training objective) measure different things",
-            sa.record.task.as_str(),
-            sb.record.task.as_str()
+            sa.task.as_str(),
+            sb.task.as_str()
         );
-        return Ok(out);
+        json.insert("metrics_not_compared".into(), Value::String(format!("tasks differ: {} and {}", sa.task.as_str(), sb.task.as_str())));
+        return Ok(super::Report { text: out, json: Value::Object(json) });
     }
     let _ = writeln!(out, "\nselected configurations, validation (mean ± sd across seeds) and test:");
-    let (ca, cb) = (selected(&sa.selection), selected(&sb.selection));
+    let (ca, cb) = (selected(sel_a), selected(sel_b));
     let metrics: std::collections::BTreeSet<&String> = ca
         .map(|c| c.validation.keys().collect::<Vec<_>>())
         .unwrap_or_default()
@@ -95,11 +162,13 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
         .chain(cb.map(|c| c.validation.keys().collect::<Vec<_>>()).unwrap_or_default())
         .collect();
     let _ = writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  judgement", "metric", "A", "B", "B - A");
+    let mut rows = Vec::new();
     for m in metrics {
         let (Some(x), Some(y)) = (ca.and_then(|c| c.validation.get(m)), cb.and_then(|c| c.validation.get(m))) else { continue };
         let delta = y.mean - x.mean;
         let noise = 2.0 * (x.sd * x.sd + y.sd * y.sd).sqrt();
-        let judgement = if delta.abs() <= noise { "within noise (|delta| <= 2 combined sd)" } else { "beyond seed noise" };
+        let within = delta.abs() <= noise;
+        let judgement = if within { "within noise (|delta| <= 2 combined sd)" } else { "beyond seed noise" };
         let _ = writeln!(
             out,
             "  {:<18} {:>18} {:>18} {:>9}  {judgement}",
@@ -108,10 +177,13 @@ pub fn run(a: &Path, b: &Path) -> Result<String> {
             format!("{} ± {}", fixed(y.mean, 4), fixed(y.sd, 4)),
             fixed(delta, 4)
         );
+        rows.push(serde_json::json!({ "metric": m, "a": x, "b": y, "delta": delta, "within_noise": within }));
     }
-    let m = &sa.selection.metric;
-    if let (Some(x), Some(y)) = (sa.selection.test.metrics.get(m).copied().flatten(), sb.selection.test.metrics.get(m).copied().flatten()) {
+    json.insert("validation".into(), Value::Array(rows));
+    let m = &sel_a.metric;
+    if let (Some(x), Some(y)) = (sel_a.test.metrics.get(m).copied().flatten(), sel_b.test.metrics.get(m).copied().flatten()) {
         let _ = writeln!(out, "  test {m}: A {} B {} (delta {})", fixed(x, 4), fixed(y, 4), fixed(y - x, 4));
+        json.insert("test".into(), serde_json::json!({ "metric": m, "a": x, "b": y }));
     }
-    Ok(out)
+    Ok(super::Report { text: out, json: Value::Object(json) })
 }

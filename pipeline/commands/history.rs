@@ -9,13 +9,14 @@ use crate::format::fixed;
 use crate::store::ledger::{read, read_verifications};
 use crate::text::terminal_cell;
 
-pub fn run(results_root: &Path) -> Result<String> {
+pub fn run(results_root: &Path) -> Result<super::Report> {
     let entries = read(results_root)?;
     let verifications = read_verifications(results_root)?;
+    let json = serde_json::json!({ "selections": entries, "verifications": verifications });
     let mut out = String::new();
     if entries.is_empty() {
         let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
-        return Ok(out);
+        return Ok(super::Report { text: out, json });
     }
     let _ = writeln!(
         out,
@@ -47,5 +48,5 @@ pub fn run(results_root: &Path) -> Result<String> {
             verified
         );
     }
-    Ok(out)
+    Ok(super::Report { text: out, json })
 }

@@ -31,6 +31,16 @@ pub struct TrainOutcome {
     pub report: String,
     pub results: PathBuf,
     pub failed_runs: usize,
+    pub json: serde_json::Value,
+}
+
+fn runs_json(plan: &Plan, report: &sweep::SweepReport) -> serde_json::Value {
+    serde_json::json!({
+        "planned": plan.runs.len(),
+        "trained": report.trained,
+        "reused": report.reused,
+        "failed": report.failed.iter().map(|(run, reason)| serde_json::json!({ "run": run, "reason": reason })).collect::<Vec<_>>(),
+    })
 }
 
 /// Writes the experiment-level files; an existing folder must hold the same canonical manifest.
@@ -62,16 +72,22 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
 fn table(selection: &Selection) -> String {
     let mut out = String::new();
     let m = &selection.metric;
-    let _ =
-        writeln!(out, "{:<36} {:>8} {:>6}  {:>20}  {:>16}", "configuration", "params", "seeds", format!("validation {m}"), "train-val gap");
+    let _ = writeln!(
+        out,
+        "{:<36} {:>8} {:>6}  {:>20}  {:>22}",
+        "configuration", "params", "seeds", format!("validation {m}"), "worse on validation by"
+    );
+    // The gap is stored as train minus validation; shown so that positive always means "worse on
+    // validation", whichever way the metric points.
+    let orient = |x: f64| if selection.higher_is_better { x } else { -x };
     for c in &selection.configs {
         let v = c.validation.get(m).map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
-        let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
+        let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(orient(s.mean), 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
         let mark = if c.config_id == selection.selected_config { " *" } else { "" };
         let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
         let _ = writeln!(
             out,
-            "{:<36} {:>8} {:>6}  {:>20}  {:>16}{mark}",
+            "{:<36} {:>8} {:>6}  {:>20}  {:>22}{mark}",
             crate::text::terminal_safe(&crate::plan::config_label(&c.overrides, c.baseline)),
             c.parameter_count,
             seeds,
@@ -79,6 +95,8 @@ fn table(selection: &Selection) -> String {
             g
         );
     }
+    let failed_note = if selection.configs.iter().any(|c| c.runs_failed > 0) { "; seeds 2+1f: 2 completed, 1 failed" } else { "" };
+    let _ = writeln!(out, "* selected ({} rule); ± is the standard deviation across seeds{failed_note}", selection.rule);
     let t = &selection.test;
     let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
     for (name, value) in &t.metrics {
@@ -107,7 +125,14 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
     }
     let _ = writeln!(out, "when every shard has finished, `tabcard train` without --shard selects, tests and writes the card");
     let _ = writeln!(out, "results  {}", layout.root.display());
-    TrainOutcome { report: out, results: layout.root.clone(), failed_runs: report.failed.len() }
+    let json = serde_json::json!({
+        "experiment": exp.manifest.experiment.name,
+        "fingerprint": exp.fingerprint,
+        "results": layout.root.display().to_string(),
+        "shard": shard.to_string(),
+        "runs": runs_json(plan, report),
+    });
+    TrainOutcome { report: out, results: layout.root.clone(), failed_runs: report.failed.len(), json }
 }
 
 /// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
@@ -220,6 +245,16 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
     crate::feasibility::require(&estimate, crate::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
+    on_event(Event::Header(format!(
+        "experiment {} ({}): {} runs planned, results in {}",
+        crate::text::terminal_safe(&m.experiment.name),
+        &exp.fingerprint[..16],
+        options.shard.map(|s| s.size(plan.runs.len())).unwrap_or(plan.runs.len()),
+        layout.root.display()
+    )));
+    for overridden in &exp.overridden_by_grid {
+        on_event(Event::Header(format!("note: {}", crate::text::terminal_safe(overridden))));
+    }
     // One writer per experiment (shards own disjoint runs and take none): a second `train` waits
     // here, then finds the runs stored.
     let _writer = match options.shard {
@@ -255,5 +290,15 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         recorded
     };
     let out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);
-    Ok(TrainOutcome { report: out, results: layout.root, failed_runs: report.failed.len() })
+    let json = serde_json::json!({
+        "experiment": m.experiment.name,
+        "fingerprint": exp.fingerprint,
+        "results": layout.root.display().to_string(),
+        "card": layout.card().display().to_string(),
+        "results_digest": results_digest,
+        "nothing_new": nothing_new,
+        "runs": runs_json(plan, &report),
+        "selection": selection,
+    });
+    Ok(TrainOutcome { report: out, results: layout.root, failed_runs: report.failed.len(), json })
 }

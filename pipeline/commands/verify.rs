@@ -22,7 +22,7 @@ use crate::selection::Selection;
 use crate::store::run::{read_run, StoredRun, ENVIRONMENT};
 use crate::store::weights::tensor_digests;
 use crate::store::{read_json, Layout};
-use crate::sweep::{in_pool, train_run, SweepInputs, TrainedRun};
+use crate::sweep::{in_pool, train_run, Event, RunReport, SweepInputs, TrainedRun};
 
 pub struct VerifyOptions {
     pub all: bool,
@@ -35,6 +35,7 @@ pub struct VerifyOptions {
 pub struct VerifyOutcome {
     pub report: String,
     pub identical: bool,
+    pub json: serde_json::Value,
 }
 
 /// The results folder a verify target names: the folder itself, or a manifest's folder under the
@@ -121,7 +122,7 @@ fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
     found.unwrap_or_else(|| PathBuf::from(recorded))
 }
 
-pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
+pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<VerifyOutcome> {
     let folder = results_folder(target, &options.results_root)?;
     let layout = Layout::new(&folder);
     let digest = layout.check_sealed()?;
@@ -149,7 +150,7 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
             format!("has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256),
         ));
     }
-    let exp = open_with_data(LoadedManifest { path: manifest_path, manifest }, data_path.clone())?;
+    let exp = open_with_data(LoadedManifest { path: manifest_path, manifest, overridden_by_grid: Vec::new() }, data_path.clone())?;
     if exp.data.content_sha256 != record.data.content_sha256 {
         return Err(Error::data(
             &data_path,
@@ -182,6 +183,13 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
         jobs: options.jobs,
         shard: None,
     };
+    on_event(Event::Header(format!("verify {}: retraining {} of {} runs", layout.root.display(), specs.len(), prepared.plan.runs.len())));
+    on_event(Event::Planned {
+        pending: specs.len(),
+        reused: 0,
+        metric: prepared.exp.manifest.selection.metric.clone(),
+        higher_is_better: selection.higher_is_better,
+    });
     let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(options.jobs, || {
         specs
             .par_iter()
@@ -189,7 +197,11 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
                 let verdict = (|| {
                     let stored = read_run(&layout, &spec.id)?.ok_or_else(|| Error::store(layout.run(&spec.id), "is missing"))?;
                     let fresh = train_run(&inputs, spec)?;
-                    compare_run(&stored, &fresh)
+                    let differences = compare_run(&stored, &fresh)?;
+                    let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
+                    report.verdict = Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
+                    on_event(Event::Finished(report));
+                    Ok(differences)
                 })();
                 (spec.id.clone(), spec.seed, verdict)
             })
@@ -312,5 +324,19 @@ pub fn run(target: &Path, options: &VerifyOptions) -> Result<VerifyOutcome> {
             identical,
         },
     )?;
-    Ok(VerifyOutcome { report: out, identical })
+    let runs: Vec<serde_json::Value> = verdicts
+        .iter()
+        .map(|(id, seed, v)| match v {
+            Ok(d) => serde_json::json!({ "run": id, "seed": seed, "identical": d.is_empty(), "differences": d }),
+            Err(e) => serde_json::json!({ "run": id, "seed": seed, "identical": false, "error": e.to_string() }),
+        })
+        .collect();
+    let json = serde_json::json!({
+        "results": layout.root.display().to_string(),
+        "fingerprint": record.fingerprint,
+        "identical": identical,
+        "results_digest": digest,
+        "runs": runs,
+    });
+    Ok(VerifyOutcome { report: out, identical, json })
 }

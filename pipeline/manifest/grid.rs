@@ -163,3 +163,29 @@ pub fn expand(manifest: &Manifest) -> Result<Vec<GridPoint>, Problem> {
     }
     Ok(points)
 }
+/// Keys the manifest sets in their own section that `[sweep.grid]` also sweeps: the grid's values
+/// are the ones trained, so the section's value changes nothing. One sentence per key.
+pub fn overridden_keys(source: &str, manifest: &Manifest) -> Vec<String> {
+    let Ok(document) = source.parse::<toml::Table>() else { return Vec::new() };
+    manifest
+        .sweep
+        .grid
+        .iter()
+        .filter_map(|(key, values)| {
+            let mut node: Option<&toml::Value> = None;
+            let mut table = &document;
+            for (i, part) in key.split('.').enumerate() {
+                let v = table.get(part)?;
+                if i + 1 < key.split('.').count() {
+                    table = v.as_table()?;
+                } else {
+                    node = Some(v);
+                }
+            }
+            let set = node?;
+            let swept: Vec<String> = values.iter().map(|v| v.to_string()).collect();
+            Some(format!("{key} = {set} is overridden by the grid, which trains [{}]; remove one of the two", swept.join(", ")))
+        })
+        .collect()
+}
+

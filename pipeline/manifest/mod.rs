@@ -22,6 +22,8 @@ use validate::Problem;
 pub struct LoadedManifest {
     pub path: PathBuf,
     pub manifest: Manifest,
+    /// Keys set in their section that the grid overrides ([`grid::overridden_keys`]).
+    pub overridden_by_grid: Vec<String>,
 }
 
 impl LoadedManifest {
@@ -36,7 +38,8 @@ impl LoadedManifest {
 pub fn load(path: &Path) -> Result<LoadedManifest> {
     let source = std::fs::read_to_string(path).map_err(|e| Error::io(path, "read the manifest", e))?;
     let manifest = parse(path, &source)?;
-    Ok(LoadedManifest { path: path.to_path_buf(), manifest })
+    let overridden_by_grid = grid::overridden_keys(&source, &manifest);
+    Ok(LoadedManifest { path: path.to_path_buf(), manifest, overridden_by_grid })
 }
 
 /// Parses and resolves manifest text; `path` is only used in error messages.
@@ -154,9 +157,34 @@ fn schema_error(path: &Path, source: &str, document: &DeTable<'_>, e: &toml::de:
         key = Some(if table.is_empty() { field.to_string() } else { format!("{table}.{field}") });
         "is required but missing".to_string()
     } else {
-        raw
+        plain_type_error(&raw).unwrap_or(raw)
     };
     ManifestError { file: path.to_path_buf(), key, line, column, message, hint }.into()
+}
+
+/// The parser's "invalid type: integer `64`, expected a sequence" or "invalid value: integer
+/// `-1`, expected u64" in the manifest's own words: what the key takes and what it got.
+fn plain_type_error(raw: &str) -> Option<String> {
+    let rest = raw.strip_prefix("invalid type: ").or_else(|| raw.strip_prefix("invalid value: "))?;
+    let (got, expected) = rest.split_once(", expected ")?;
+    let got = got
+        .strip_prefix("integer ")
+        .or_else(|| got.strip_prefix("floating point "))
+        .or_else(|| got.strip_prefix("boolean "))
+        .map(|v| v.trim_matches('`').to_string())
+        .or_else(|| got.strip_prefix("string ").map(str::to_string))
+        .unwrap_or_else(|| got.to_string());
+    let wanted = match expected.trim() {
+        "u64" => "a whole number from 0 to 9223372036854775807 (2^63 - 1, TOML's largest integer)".to_string(),
+        "usize" | "u32" | "u16" | "u8" => "a whole number, 0 or more".to_string(),
+        "i64" | "i32" => "a whole number".to_string(),
+        "f64" | "f32" => "a number, such as 0.001".to_string(),
+        "a boolean" => "true or false (without quotes)".to_string(),
+        "a sequence" => "a list in brackets, such as [64, 64]".to_string(),
+        "a string" => "text in double quotes".to_string(),
+        other => other.to_string(),
+    };
+    Some(format!("must be {wanted}, got {got}"))
 }
 
 fn locate_problem(path: &Path, source: &str, document: &DeTable<'_>, p: Problem) -> ManifestError {

@@ -1,0 +1,98 @@
+//! `tabcard list [--results DIR]`: every experiment folder in a results root, with its
+//! fingerprint, name, training date, selected configuration, headline test figure and whether its
+//! latest verification reproduced it.
+
+use std::fmt::Write;
+use std::path::Path;
+
+use crate::error::{Error, Result};
+use crate::experiment::ExperimentRecord;
+use crate::format::fixed;
+use crate::plan::config_label;
+use crate::selection::Selection;
+use crate::store::ledger::read_verifications;
+use crate::store::timing::TimingRecord;
+use crate::store::{read_json, Layout};
+use crate::text::terminal_cell;
+
+/// One listed experiment.
+#[derive(serde::Serialize)]
+struct Listed {
+    folder: String,
+    fingerprint: String,
+    name: String,
+    trained_at: Option<String>,
+    selected: String,
+    metric: String,
+    test_value: Option<f64>,
+    /// `yes`, `FAILED` or `no`, from the latest verification of this fingerprint.
+    verified: String,
+}
+
+fn listed(layout: &Layout, verified: &str) -> Result<Listed> {
+    layout.check_format()?;
+    let record: ExperimentRecord = read_json(&layout.experiment())?;
+    let selection: Option<Selection> = if layout.selection().exists() { Some(read_json(&layout.selection())?) } else { None };
+    let timing: Option<TimingRecord> = if layout.timing().exists() { read_json(&layout.timing()).ok() } else { None };
+    let selected = selection
+        .as_ref()
+        .and_then(|s| s.configs.iter().find(|c| c.config_id == s.selected_config))
+        .map(|c| config_label(&c.overrides, c.baseline))
+        .unwrap_or_else(|| "(not selected yet)".into());
+    Ok(Listed {
+        folder: crate::store::folder_name(&layout.root),
+        fingerprint: record.fingerprint,
+        name: record.name,
+        trained_at: timing.map(|t| t.trained_at),
+        selected,
+        metric: selection.as_ref().map(|s| s.metric.clone()).unwrap_or_default(),
+        test_value: selection.as_ref().and_then(|s| s.test.metrics.get(&s.metric).copied().flatten()),
+        verified: verified.to_string(),
+    })
+}
+
+pub fn run(results_root: &Path) -> Result<super::Report> {
+    let entries = std::fs::read_dir(results_root).map_err(|e| Error::io(results_root, "read the results root", e))?;
+    let mut folders: Vec<_> = entries.flatten().map(|e| e.path()).filter(|p| p.join("format.json").exists()).collect();
+    folders.sort();
+    let verifications = read_verifications(results_root)?;
+    let mut listed_ok = Vec::new();
+    let mut problems = Vec::new();
+    for folder in &folders {
+        let layout = Layout::new(folder);
+        let fingerprint = read_json::<ExperimentRecord>(&layout.experiment()).map(|r| r.fingerprint).unwrap_or_default();
+        let verified = match verifications.iter().rev().find(|v| v.fingerprint == fingerprint) {
+            Some(v) if v.identical => "yes",
+            Some(_) => "FAILED",
+            None => "no",
+        };
+        match listed(&layout, verified) {
+            Ok(l) => listed_ok.push(l),
+            Err(e) => problems.push(format!("{}: {e}", folder.display())),
+        }
+    }
+    let mut out = String::new();
+    if listed_ok.is_empty() && problems.is_empty() {
+        let _ = writeln!(out, "no experiments in {}", results_root.display());
+    } else {
+        let _ = writeln!(out, "{:<16}  {:<28} {:<20}  {:<32} {:<24} verified", "fingerprint", "experiment", "trained at", "selected configuration", "test metric");
+        for l in &listed_ok {
+            let headline = l.test_value.map(|v| format!("{} {}", l.metric, fixed(v, 4))).unwrap_or_else(|| "-".into());
+            let _ = writeln!(
+                out,
+                "{:<16}  {:<28} {:<20}  {:<32} {:<24} {}",
+                l.folder,
+                terminal_cell(&l.name, 28),
+                l.trained_at.as_deref().unwrap_or("-"),
+                terminal_cell(&l.selected, 32),
+                headline,
+                l.verified
+            );
+        }
+        for p in &problems {
+            let _ = writeln!(out, "unreadable: {}", crate::text::terminal_safe(p));
+        }
+    }
+    let json = serde_json::json!({ "experiments": listed_ok, "unreadable": problems });
+    Ok(super::Report { text: out, json })
+}

@@ -1,0 +1,242 @@
+//! `tabcard scaffold <data.parquet>`: a commented starter manifest written from the data itself:
+//! every column with its detected type, missing share and distinct count and a suggested role,
+//! the task inferred from the target, and every section with its documented defaults (taken from
+//! the schema's own `Default`s, so they cannot drift). The result passes `check` unchanged.
+
+use std::fmt::Write;
+use std::path::{Component, Path, PathBuf};
+
+use crate::data::parquet::read_table;
+use crate::data::roles::MAX_MAGNITUDE;
+use crate::data::table::{Column, ColumnValues, Table};
+use crate::error::{Error, Result};
+use crate::manifest::{EarlyStopping, ModelSpec, SelectionSpec, SplitSpec, SweepSpec, Task, TrainingSpec};
+use crate::metrics::registry;
+
+pub struct ScaffoldOptions {
+    pub target: Option<String>,
+    pub out: Option<PathBuf>,
+    pub force: bool,
+}
+
+/// What the scaffold suggests for one column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Role {
+    Target,
+    Feature,
+    Id,
+    Drop,
+}
+
+struct Profile {
+    name: String,
+    kind: &'static str,
+    missing: f64,
+    distinct: usize,
+    role: Role,
+    why: String,
+}
+
+fn distinct(col: &Column) -> usize {
+    let mut seen = std::collections::HashSet::new();
+    for r in 0..col.len() {
+        if let Some(l) = col.label(r) {
+            seen.insert(l);
+        }
+    }
+    seen.len()
+}
+
+fn profile(col: &Column, rows: usize, target: &str) -> Profile {
+    let nulls = col.null_count();
+    let d = distinct(col);
+    let (role, why) = if col.name == target {
+        (Role::Target, "the column to predict".to_string())
+    } else if nulls == rows {
+        (Role::Drop, "every value is null".into())
+    } else if d <= 1 {
+        (Role::Drop, "constant: carries no information".into())
+    } else if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_))
+        && (0..col.len()).filter(|&r| col.is_valid(r)).filter_map(|r| col.number(r)).any(|x| !x.is_finite() || x.abs() > MAX_MAGNITUDE)
+    {
+        (Role::Drop, "holds NaN, infinite or out-of-range values; store missing values as nulls and rescale".into())
+    } else if d == rows && rows > 20 && matches!(col.values, ColumnValues::Int(_) | ColumnValues::Text { .. }) {
+        (Role::Id, "unique per row, like an identifier".into())
+    } else if col.is_text() {
+        (Role::Feature, "categorical (text)".into())
+    } else if matches!(col.values, ColumnValues::Int(_)) && d <= 10 {
+        (Role::Feature, format!("numeric; {d} values: add it to `categorical` if they are codes, not amounts"))
+    } else {
+        (Role::Feature, "numeric".into())
+    };
+    Profile { name: col.name.clone(), kind: col.kind_name(), missing: if rows == 0 { 0.0 } else { nulls as f64 / rows as f64 }, distinct: d, role, why }
+}
+
+/// The task a target column suggests: two values make a binary task; text, booleans and
+/// integers with at most 20 values a multiclass one; other numbers regression.
+fn task_for(col: &Column, distinct: usize) -> Task {
+    match (&col.values, distinct) {
+        (_, 2) => Task::Binary,
+        (ColumnValues::Text { .. } | ColumnValues::Bool(_), _) => Task::Multiclass,
+        (ColumnValues::Int(_), d) if d <= 20 => Task::Multiclass,
+        _ => Task::Regression,
+    }
+}
+
+/// `to` relative to the folder `from_dir`, with `/` separators (both made absolute first).
+fn relative(from_dir: &Path, to: &Path) -> String {
+    let abs = |p: &Path| std::path::absolute(p).unwrap_or_else(|_| p.to_path_buf());
+    let (from, to) = (abs(from_dir), abs(to));
+    let from: Vec<Component> = from.components().collect();
+    let to_parts: Vec<Component> = to.components().collect();
+    let common = from.iter().zip(&to_parts).take_while(|(a, b)| a == b).count();
+    let mut parts: Vec<String> = std::iter::repeat_n("..".to_string(), from.len() - common).collect();
+    parts.extend(to_parts[common..].iter().map(|c| c.as_os_str().to_string_lossy().into_owned()));
+    parts.join("/")
+}
+
+fn toml_string(s: &str) -> String {
+    toml::Value::String(s.to_string()).to_string()
+}
+
+fn toml_list(items: &[String]) -> String {
+    format!("[{}]", items.iter().map(|s| toml_string(s)).collect::<Vec<_>>().join(", "))
+}
+
+/// The defaults of one section as `key = value` lines, each with its comment, in schema order.
+fn section<T: serde::Serialize>(out: &mut String, title: &str, defaults: &T, comments: &[(&str, &str)], skip: &[&str]) -> Result<()> {
+    let table = toml::Table::try_from(defaults).map_err(|e| Error::Internal(format!("default [{title}] as TOML: {e}")))?;
+    let _ = writeln!(out, "\n[{title}]");
+    for (key, value) in &table {
+        if skip.contains(&key.as_str()) || value.is_table() {
+            continue;
+        }
+        let comment = comments.iter().find(|(k, _)| k == key).map(|(_, c)| format!("  # {c}")).unwrap_or_default();
+        let _ = writeln!(out, "{key} = {value}{comment}");
+    }
+    Ok(())
+}
+
+/// The manifest text for `data` (written to `out` when given; the data path is relative to it).
+pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> Result<String> {
+    let target = match &options.target {
+        Some(t) => {
+            if table.column(t).is_none() {
+                let hint = crate::manifest::locate::nearest(t, table.columns.iter().map(|c| c.name.as_str())).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
+                return Err(Error::data(data, Some(t), format!("named by --target but not in the file{hint}")));
+            }
+            t.clone()
+        }
+        None => table.columns.last().map(|c| c.name.clone()).ok_or_else(|| Error::data(data, None, "has no columns"))?,
+    };
+    let profiles: Vec<Profile> = table.columns.iter().map(|c| profile(c, table.rows, &target)).collect();
+    let target_profile = profiles.iter().find(|p| p.role == Role::Target).ok_or_else(|| Error::Internal("the target has no profile".into()))?;
+    let target_col = table.column(&target).ok_or_else(|| Error::Internal("the target vanished".into()))?;
+    let task = task_for(target_col, target_profile.distinct);
+    let folder = options.out.as_ref().and_then(|o| o.parent()).filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let data_path = relative(folder, data);
+    let stem = data.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "experiment".into());
+    let names = |role: Role| -> Vec<String> { profiles.iter().filter(|p| p.role == role).map(|p| p.name.clone()).collect() };
+
+    let mut out = String::new();
+    let _ = writeln!(out, "# Starter manifest written by `tabcard scaffold` for {} ({} rows, {} columns).", data.display(), table.rows, table.columns.len());
+    let _ = writeln!(out, "# Every key shows its default. Edit what you need, then run `tabcard check` on this file.");
+    let _ = writeln!(out, "# The suggested roles below come from the data alone: confirm each before training.");
+    let _ = writeln!(out, "\n[experiment]");
+    let _ = writeln!(out, "name = {}  # the results folder is named by the experiment's fingerprint, not by this", toml_string(&stem));
+    for key in ["description", "intended_use", "out_of_scope", "owner", "trained_by", "data_period", "population"] {
+        let _ = writeln!(out, "{key} = \"\"");
+    }
+    let _ = writeln!(out, "affects_people = true  # true adds the cautions for decisions about people (credit, insurance, health) to the card");
+
+    let _ = writeln!(out, "\n[data]");
+    let _ = writeln!(out, "path = {}  # relative to this manifest", toml_string(&data_path));
+    let _ = writeln!(out, "target = {}  # {}, {} distinct values", toml_string(&target), target_profile.kind, target_profile.distinct);
+    let _ = writeln!(out, "task = \"{}\"  # binary | multiclass | regression (suggested from the target)", task.as_str());
+    let _ = writeln!(out, "# Columns: detected type, missing share, distinct values -> suggested role");
+    for p in &profiles {
+        let role = match p.role {
+            Role::Target => "target",
+            Role::Feature => "feature",
+            Role::Id => "id",
+            Role::Drop => "drop",
+        };
+        let _ = writeln!(out, "#   {:<28} {:<8} {:>6.1}% {:>8} -> {role}: {}", p.name, p.kind, 100.0 * p.missing, p.distinct, p.why);
+    }
+    let _ = writeln!(out, "ids = {}  # never features; carried into predictions", toml_list(&names(Role::Id)));
+    let _ = writeln!(out, "drop = {}", toml_list(&names(Role::Drop)));
+    let _ = writeln!(out, "categorical = []  # numeric columns to treat as categories (text columns always are)");
+    let _ = writeln!(out, "features = []  # empty: every column not named as target, id, group or dropped");
+    let _ = writeln!(out, "group_columns = []  # columns describing groups of people: per-group test results, never features");
+    if task == Task::Binary {
+        let _ = writeln!(out, "# positive_label = \"...\"  # which of the two target values is the positive class (default: the larger)");
+    }
+
+    let split = SplitSpec::default();
+    section(&mut out, "split", &split, &[("stratify", "keep class shares equal across splits (classification)")], &[])?;
+    let _ = writeln!(out, "# column = \"period\"  # take the split from a column (values train / validation / test) instead");
+    let _ = writeln!(out, "# group = \"customer_id\"  # keep every row of one value in one split");
+
+    section(&mut out, "model", &ModelSpec::default(), &[
+        ("hidden", "widths of the hidden layers"),
+        ("activation", "relu | sigmoid | tanh | gelu | identity"),
+        ("residual", "hidden layers after the first become x + f(x); needs equal widths"),
+        ("dropout", "probability of dropping a hidden unit while training"),
+        ("input_noise", "sd of Gaussian noise on the standardised inputs while training"),
+    ], &[])?;
+    let training = TrainingSpec::default();
+    let regression_only: &[&str] = if task == Task::Regression { &[] } else { &["loss", "huber_delta"] };
+    section(&mut out, "training", &training, &[
+        ("optimizer", "sgd | adam | adamw"),
+        ("weight_decay", "decoupled weight decay"),
+        ("l2_penalty", "coupled L2 penalty added to the loss"),
+        ("momentum", "sgd only"),
+        ("beta1", "adam and adamw"),
+        ("schedule", "constant | step | cosine"),
+        ("clip_norm", "global gradient-norm clipping; 0 turns it off"),
+        ("loss", "regression: mse | huber"),
+    ], regression_only)?;
+    section(&mut out, "training.early_stopping", &EarlyStopping::default(), &[("patience", "epochs without improvement of the validation loss")], &[])?;
+    let selection = SelectionSpec::default();
+    let _ = writeln!(out, "\n[selection]");
+    let _ = writeln!(out, "metric = \"{}\"  # one of {}", registry::default_selection_metric(task), registry::names(task).join(", "));
+    let _ = writeln!(out, "baseline = {}  # also train a linear model on the same seeds", selection.baseline);
+    let _ = writeln!(out, "bootstrap = {}  # resamples for the test-metric intervals", selection.bootstrap);
+    let _ = writeln!(out, "rule = \"{}\"  # best | one_standard_error (the smallest configuration within one standard error of the best)", selection.rule.as_str());
+    let sweep = SweepSpec::default();
+    let _ = writeln!(out, "\n[sweep]");
+    let _ = writeln!(out, "seeds = {:?}  # every configuration is trained once per seed", sweep.seeds);
+    let _ = writeln!(out, "max_runs = {}  # refuse a plan with more runs", sweep.max_runs);
+    let _ = writeln!(out, "\n[sweep.grid]  # dotted keys of [model] and [training]; the plan is their product");
+    let _ = writeln!(out, "# \"model.dropout\" = [0.0, 0.2]");
+    let _ = writeln!(out, "# \"training.weight_decay\" = [0.0, 0.0001]");
+    Ok(out)
+}
+
+pub fn run(data: &Path, options: &ScaffoldOptions) -> Result<String> {
+    if let Some(out) = &options.out {
+        if out.exists() && !options.force {
+            return Err(Error::Usage(format!("{} exists; pass --force to replace it", out.display())));
+        }
+    }
+    let table = read_table(data)?;
+    let text = manifest_text(data, &table, options)?;
+    match &options.out {
+        Some(out) => {
+            crate::store::write_atomic(out, text.as_bytes())?;
+            Ok(format!("wrote {}; next: tabcard check {}\n", out.display(), out.display()))
+        }
+        None => Ok(text),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn relative_paths_climb_and_descend() {
+        assert_eq!(relative(Path::new("/a/b/experiments"), Path::new("/a/b/data/x.parquet")), "../data/x.parquet");
+        assert_eq!(relative(Path::new("/a/b"), Path::new("/a/b/x.parquet")), "x.parquet");
+    }
+}
