@@ -53,7 +53,9 @@ enum Command {
         manifest: PathBuf,
     },
     /// Train every pending run of an experiment, select and test the best configuration, write the card.
-    #[command(after_help = "Examples:\n  tabcard train experiments/lease-default.toml\n  tabcard train experiments/lease-default.toml --jobs 8 --results /shared/results")]
+    #[command(
+        after_help = "Examples:\n  tabcard train experiments/lease-default.toml\n  tabcard train experiments/lease-default.toml --jobs 8 --results /shared/results"
+    )]
     Train {
         /// The experiment manifest (TOML).
         manifest: PathBuf,
@@ -68,7 +70,9 @@ enum Command {
         shard: Option<tabcard::shard::Shard>,
     },
     /// Write a SLURM job array that trains the experiment shard by shard on a cluster, plus the merge job; --submit hands both to sbatch.
-    #[command(after_help = "Example:\n  tabcard slurm experiments/lease-default.toml --results /shared/results --cpus-per-task 4 --partition cpu --submit")]
+    #[command(
+        after_help = "Example:\n  tabcard slurm experiments/lease-default.toml --results /shared/results --cpus-per-task 4 --partition cpu --submit"
+    )]
     Slurm {
         /// The experiment manifest (TOML), on a file system every node shares.
         manifest: PathBuf,
@@ -140,7 +144,9 @@ enum Command {
         force: bool,
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
-    #[command(after_help = "Examples:\n  tabcard compare results/29a86975d22ab264 results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml")]
+    #[command(
+        after_help = "Examples:\n  tabcard compare results/29a86975d22ab264 results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
+    )]
     Compare {
         /// The first experiment: a results folder or a manifest.
         a: PathBuf,
@@ -244,7 +250,13 @@ fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) + Sy
                 let outcome = if run.outcome.is_completed() { "completed".to_string() } else { run.outcome.describe() };
                 let verdict = run.verdict.map(|v| format!(", {v}")).unwrap_or_default();
                 if terminal {
-                    let best = s.best.as_ref().map(|(v, who)| format!("best {} {} ({})", s.metric, tabcard::format::fixed(*v, 4), tabcard::text::terminal_cell(who, 40))).unwrap_or_default();
+                    let best = s
+                        .best
+                        .as_ref()
+                        .map(|(v, who)| {
+                            format!("best {} {} ({})", s.metric, tabcard::format::fixed(*v, 4), tabcard::text::terminal_cell(who, 40))
+                        })
+                        .unwrap_or_default();
                     let failed = if s.failed > 0 { format!(", {} failed", s.failed) } else { String::new() };
                     handle.set_message(format!("{best}{failed}"));
                     handle.inc(1);
@@ -331,8 +343,15 @@ fn main() -> ExitCode {
     tabcard::numerics::prepare_process();
     let cli = Cli::parse();
     let json = cli.json;
-    let reports_json =
-        matches!(cli.command, Command::Check { .. } | Command::Train { .. } | Command::Verify { .. } | Command::Compare { .. } | Command::History { .. } | Command::List { .. });
+    let reports_json = matches!(
+        cli.command,
+        Command::Check { .. }
+            | Command::Train { .. }
+            | Command::Verify { .. }
+            | Command::Compare { .. }
+            | Command::History { .. }
+            | Command::List { .. }
+    );
     if json && !reports_json {
         note("error: --json is available for check, train, verify, compare, history and list, not for this command");
         return ExitCode::from(exit::BAD_INPUT);

@@ -24,7 +24,12 @@ pub enum Event {
     Waiting(String),
     /// The runs to train (`pending`) and those already stored (`reused`), and the metric whose
     /// best value so far the display may show.
-    Planned { pending: usize, reused: usize, metric: String, higher_is_better: bool },
+    Planned {
+        pending: usize,
+        reused: usize,
+        metric: String,
+        higher_is_better: bool,
+    },
     Finished(RunReport),
 }
 
@@ -186,8 +191,14 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
             None => pending.push(spec),
         }
     }
-    let higher_is_better = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric) == Some(crate::metrics::registry::Direction::Maximise);
-    on_event(Event::Planned { pending: pending.len(), reused: report.reused.len(), metric: inputs.selection_metric.to_string(), higher_is_better });
+    let higher_is_better = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric)
+        == Some(crate::metrics::registry::Direction::Maximise);
+    on_event(Event::Planned {
+        pending: pending.len(),
+        reused: report.reused.len(),
+        metric: inputs.selection_metric.to_string(),
+        higher_is_better,
+    });
     if pending.is_empty() {
         return Ok(report);
     }

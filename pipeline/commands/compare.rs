@@ -72,7 +72,8 @@ fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     let mut flat = BTreeMap::new();
     flatten("", &value, &mut flat);
     let layout = Layout::new(results_root.join(exp.short_id()));
-    let (stored, new): (Vec<_>, Vec<_>) = plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)));
+    let (stored, new): (Vec<_>, Vec<_>) =
+        plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)));
     Ok(Side {
         fingerprint: exp.fingerprint.clone(),
         task: exp.manifest.data.task,
@@ -85,7 +86,11 @@ fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
 }
 
 fn load(path: &Path, results_root: &Path) -> Result<Side> {
-    if is_manifest(path) { load_manifest(path, results_root) } else { load_folder(path) }
+    if is_manifest(path) {
+        load_manifest(path, results_root)
+    } else {
+        load_folder(path)
+    }
 }
 
 fn selected(s: &Selection) -> Option<&ConfigSummary> {
@@ -117,7 +122,10 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
     json.insert("manifest_changes".into(), Value::Array(changes));
     let _ = writeln!(out, "\ndata:");
     let mut data = serde_json::Map::new();
-    for (name, key, x, y) in [("file SHA-256", "file_sha256", &sa.file_sha256, &sb.file_sha256), ("content SHA-256", "content_sha256", &sa.content_sha256, &sb.content_sha256)] {
+    for (name, key, x, y) in [
+        ("file SHA-256", "file_sha256", &sa.file_sha256, &sb.file_sha256),
+        ("content SHA-256", "content_sha256", &sa.content_sha256, &sb.content_sha256),
+    ] {
         if x == y {
             let _ = writeln!(out, "  {name} same: {x}");
         } else {

@@ -75,7 +75,11 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     if listed_ok.is_empty() && problems.is_empty() {
         let _ = writeln!(out, "no experiments in {}", results_root.display());
     } else {
-        let _ = writeln!(out, "{:<16}  {:<28} {:<20}  {:<32} {:<24} verified", "fingerprint", "experiment", "trained at", "selected configuration", "test metric");
+        let _ = writeln!(
+            out,
+            "{:<16}  {:<28} {:<20}  {:<32} {:<24} verified",
+            "fingerprint", "experiment", "trained at", "selected configuration", "test metric"
+        );
         for l in &listed_ok {
             let headline = l.test_value.map(|v| format!("{} {}", l.metric, fixed(v, 4))).unwrap_or_else(|| "-".into());
             let _ = writeln!(

@@ -69,7 +69,14 @@ fn profile(col: &Column, rows: usize, target: &str) -> Profile {
     } else {
         (Role::Feature, "numeric".into())
     };
-    Profile { name: col.name.clone(), kind: col.kind_name(), missing: if rows == 0 { 0.0 } else { nulls as f64 / rows as f64 }, distinct: d, role, why }
+    Profile {
+        name: col.name.clone(),
+        kind: col.kind_name(),
+        missing: if rows == 0 { 0.0 } else { nulls as f64 / rows as f64 },
+        distinct: d,
+        role,
+        why,
+    }
 }
 
 /// The task a target column suggests: two values make a binary task; text, booleans and
@@ -122,7 +129,9 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let target = match &options.target {
         Some(t) => {
             if table.column(t).is_none() {
-                let hint = crate::manifest::locate::nearest(t, table.columns.iter().map(|c| c.name.as_str())).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
+                let hint = crate::manifest::locate::nearest(t, table.columns.iter().map(|c| c.name.as_str()))
+                    .map(|n| format!(" (did you mean `{n}`?)"))
+                    .unwrap_or_default();
                 return Err(Error::data(data, Some(t), format!("named by --target but not in the file{hint}")));
             }
             t.clone()
@@ -130,7 +139,8 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
         None => table.columns.last().map(|c| c.name.clone()).ok_or_else(|| Error::data(data, None, "has no columns"))?,
     };
     let profiles: Vec<Profile> = table.columns.iter().map(|c| profile(c, table.rows, &target)).collect();
-    let target_profile = profiles.iter().find(|p| p.role == Role::Target).ok_or_else(|| Error::Internal("the target has no profile".into()))?;
+    let target_profile =
+        profiles.iter().find(|p| p.role == Role::Target).ok_or_else(|| Error::Internal("the target has no profile".into()))?;
     let target_col = table.column(&target).ok_or_else(|| Error::Internal("the target vanished".into()))?;
     let task = task_for(target_col, target_profile.distinct);
     let folder = options.out.as_ref().and_then(|o| o.parent()).filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
@@ -139,7 +149,13 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let names = |role: Role| -> Vec<String> { profiles.iter().filter(|p| p.role == role).map(|p| p.name.clone()).collect() };
 
     let mut out = String::new();
-    let _ = writeln!(out, "# Starter manifest written by `tabcard scaffold` for {} ({} rows, {} columns).", data.display(), table.rows, table.columns.len());
+    let _ = writeln!(
+        out,
+        "# Starter manifest written by `tabcard scaffold` for {} ({} rows, {} columns).",
+        data.display(),
+        table.rows,
+        table.columns.len()
+    );
     let _ = writeln!(out, "# Every key shows its default. Edit what you need, then run `tabcard check` on this file.");
     let _ = writeln!(out, "# The suggested roles below come from the data alone: confirm each before training.");
     let _ = writeln!(out, "\n[experiment]");
@@ -147,7 +163,8 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     for key in ["description", "intended_use", "out_of_scope", "owner", "trained_by", "data_period", "population"] {
         let _ = writeln!(out, "{key} = \"\"");
     }
-    let _ = writeln!(out, "affects_people = true  # true adds the cautions for decisions about people (credit, insurance, health) to the card");
+    let _ =
+        writeln!(out, "affects_people = true  # true adds the cautions for decisions about people (credit, insurance, health) to the card");
 
     let _ = writeln!(out, "\n[data]");
     let _ = writeln!(out, "path = {}  # relative to this manifest", toml_string(&data_path));
@@ -177,32 +194,54 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let _ = writeln!(out, "# column = \"period\"  # take the split from a column (values train / validation / test) instead");
     let _ = writeln!(out, "# group = \"customer_id\"  # keep every row of one value in one split");
 
-    section(&mut out, "model", &ModelSpec::default(), &[
-        ("hidden", "widths of the hidden layers"),
-        ("activation", "relu | sigmoid | tanh | gelu | identity"),
-        ("residual", "hidden layers after the first become x + f(x); needs equal widths"),
-        ("dropout", "probability of dropping a hidden unit while training"),
-        ("input_noise", "sd of Gaussian noise on the standardised inputs while training"),
-    ], &[])?;
+    section(
+        &mut out,
+        "model",
+        &ModelSpec::default(),
+        &[
+            ("hidden", "widths of the hidden layers"),
+            ("activation", "relu | sigmoid | tanh | gelu | identity"),
+            ("residual", "hidden layers after the first become x + f(x); needs equal widths"),
+            ("dropout", "probability of dropping a hidden unit while training"),
+            ("input_noise", "sd of Gaussian noise on the standardised inputs while training"),
+        ],
+        &[],
+    )?;
     let training = TrainingSpec::default();
     let regression_only: &[&str] = if task == Task::Regression { &[] } else { &["loss", "huber_delta"] };
-    section(&mut out, "training", &training, &[
-        ("optimizer", "sgd | adam | adamw"),
-        ("weight_decay", "decoupled weight decay"),
-        ("l2_penalty", "coupled L2 penalty added to the loss"),
-        ("momentum", "sgd only"),
-        ("beta1", "adam and adamw"),
-        ("schedule", "constant | step | cosine"),
-        ("clip_norm", "global gradient-norm clipping; 0 turns it off"),
-        ("loss", "regression: mse | huber"),
-    ], regression_only)?;
-    section(&mut out, "training.early_stopping", &EarlyStopping::default(), &[("patience", "epochs without improvement of the validation loss")], &[])?;
+    section(
+        &mut out,
+        "training",
+        &training,
+        &[
+            ("optimizer", "sgd | adam | adamw"),
+            ("weight_decay", "decoupled weight decay"),
+            ("l2_penalty", "coupled L2 penalty added to the loss"),
+            ("momentum", "sgd only"),
+            ("beta1", "adam and adamw"),
+            ("schedule", "constant | step | cosine"),
+            ("clip_norm", "global gradient-norm clipping; 0 turns it off"),
+            ("loss", "regression: mse | huber"),
+        ],
+        regression_only,
+    )?;
+    section(
+        &mut out,
+        "training.early_stopping",
+        &EarlyStopping::default(),
+        &[("patience", "epochs without improvement of the validation loss")],
+        &[],
+    )?;
     let selection = SelectionSpec::default();
     let _ = writeln!(out, "\n[selection]");
     let _ = writeln!(out, "metric = \"{}\"  # one of {}", registry::default_selection_metric(task), registry::names(task).join(", "));
     let _ = writeln!(out, "baseline = {}  # also train a linear model on the same seeds", selection.baseline);
     let _ = writeln!(out, "bootstrap = {}  # resamples for the test-metric intervals", selection.bootstrap);
-    let _ = writeln!(out, "rule = \"{}\"  # best | one_standard_error (the smallest configuration within one standard error of the best)", selection.rule.as_str());
+    let _ = writeln!(
+        out,
+        "rule = \"{}\"  # best | one_standard_error (the smallest configuration within one standard error of the best)",
+        selection.rule.as_str()
+    );
     let sweep = SweepSpec::default();
     let _ = writeln!(out, "\n[sweep]");
     let _ = writeln!(out, "seeds = {:?}  # every configuration is trained once per seed", sweep.seeds);

@@ -75,7 +75,11 @@ fn table(selection: &Selection) -> String {
     let _ = writeln!(
         out,
         "{:<36} {:>8} {:>6}  {:>20}  {:>22}",
-        "configuration", "params", "seeds", format!("validation {m}"), "worse on validation by"
+        "configuration",
+        "params",
+        "seeds",
+        format!("validation {m}"),
+        "worse on validation by"
     );
     // The gap is stored as train minus validation; shown so that positive always means "worse on
     // validation", whichever way the metric points.

@@ -199,7 +199,8 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
                     let fresh = train_run(&inputs, spec)?;
                     let differences = compare_run(&stored, &fresh)?;
                     let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
-                    report.verdict = Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
+                    report.verdict =
+                        Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
                     on_event(Event::Finished(report));
                     Ok(differences)
                 })();

@@ -188,4 +188,3 @@ pub fn overridden_keys(source: &str, manifest: &Manifest) -> Vec<String> {
         })
         .collect()
 }
-

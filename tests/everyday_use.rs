@@ -1,0 +1,207 @@
+//! Everyday use as a new user meets it: progress lines when stderr is not a terminal (one per
+//! run, none with --quiet), the grid-override note, compare on manifests, a scaffold that passes
+//! `check` unchanged, `--json` reports that parse with their documented fields, help with an
+//! example per command, and results folders of layout 2 (tabcard 0.3.0) still readable.
+
+mod common;
+
+use common::*;
+use serde_json::Value;
+
+fn json_of(o: &std::process::Output) -> Value {
+    assert!(o.status.success(), "{}", stderr(o));
+    serde_json::from_str(&stdout(o)).unwrap_or_else(|e| panic!("not JSON ({e}): {}", stdout(o)))
+}
+
+#[test]
+fn train_and_verify_print_one_progress_line_per_run_and_nothing_when_quiet() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 1200, "[sweep.grid]\n\"model.dropout\" = [0.0, 0.1]\n");
+    let out = run_in(dir.path(), &["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let err = stderr(&out);
+    let lines: Vec<&str> = err.lines().collect();
+    assert!(lines[0].starts_with("experiment small-lease (") && lines[0].contains("6 runs planned"), "{err}");
+    let runs: Vec<&&str> = lines.iter().filter(|l| l.starts_with('[')).collect();
+    assert_eq!(runs.len(), 6, "one line per run: {err}");
+    for (i, l) in runs.iter().enumerate() {
+        assert!(l.starts_with(&format!("[{}/6] run ", i + 1)) && l.contains("completed, validation roc_auc "), "{l}");
+    }
+    let folder = experiment_folder(&dir.path().join("results")).unwrap();
+    let out = run_in(dir.path(), &["verify", folder.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert_eq!(stderr(&out).lines().filter(|l| l.starts_with('[') && l.ends_with(", identical")).count(), 2, "{}", stderr(&out));
+
+    let quiet = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(quiet.path(), 1200, "");
+    let out = run_in(quiet.path(), &["--quiet", "train", manifest.to_str().unwrap(), "--results", "results"]);
+    assert!(out.status.success());
+    assert_eq!(stderr(&out), "", "--quiet prints no progress");
+    assert!(stdout(&out).contains("selected run"), "the report still prints");
+}
+
+#[test]
+fn a_manifest_key_the_grid_overrides_is_reported_by_check_and_train() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 800, "[sweep.grid]\n\"model.dropout\" = [0.0, 0.2]\n");
+    let text = std::fs::read_to_string(&manifest).unwrap().replace("[model]\nhidden = [16]\n", "[model]\nhidden = [16]\ndropout = 0.1\n");
+    std::fs::write(&manifest, text).unwrap();
+    let note = "note: model.dropout = 0.1 is overridden by the grid, which trains [0.0, 0.2]";
+    let check = run_in(dir.path(), &["check", "small.toml"]);
+    assert!(stdout(&check).contains(note), "{}", stdout(&check));
+    let train = run_in(dir.path(), &["train", "small.toml", "--results", "results"]);
+    assert!(stderr(&train).contains(note), "{}", stderr(&train));
+    // Without the section key there is nothing to report.
+    let plain = small_lease_experiment(dir.path(), 800, "[sweep.grid]\n\"model.dropout\" = [0.0, 0.2]\n");
+    assert!(!stdout(&run_in(dir.path(), &["check", plain.to_str().unwrap()])).contains("overridden"));
+}
+
+#[test]
+fn compare_takes_manifests_and_says_which_runs_would_be_new() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = small_lease_experiment(dir.path(), 800, "");
+    let text = std::fs::read_to_string(&a).unwrap();
+    std::fs::write(dir.path().join("b.toml"), text.replace("hidden = [16]", "hidden = [32]")).unwrap();
+    trained(dir.path(), &a);
+    let out = run_in(dir.path(), &["compare", "small.toml", "b.toml"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let report = stdout(&out);
+    assert!(report.contains("model.hidden: [16] -> [32]"), "{report}");
+    assert!(report.contains("runs of A: 4 planned, 4 already stored under results, 0 a `train` would add"), "{report}");
+    assert!(report.contains("runs of B: 4 planned, 0 already stored under results, 4 a `train` would add"), "{report}");
+    assert!(report.contains("file SHA-256 same"));
+    let j = json_of(&run_in(dir.path(), &["--json", "compare", "small.toml", "b.toml"]));
+    assert_eq!(j["manifest_changes"][0]["key"], "model.hidden");
+    assert_eq!(j["runs_b"]["new"].as_array().unwrap().len(), 4);
+}
+
+#[test]
+fn scaffolded_manifests_pass_check_unchanged() {
+    // The demo tables (invented) and two open tables shipped with scikit-learn 1.9.1 (see
+    // tests/data/open/): a binary, a multiclass and a regression target, the last column each.
+    let dir = tempfile::tempdir().unwrap();
+    let demo = dir.path().join("data");
+    let out = run_in(dir.path(), &["demo-data", demo.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let open = |f: &str| repo_path(&format!("tests/data/open/{f}"));
+    let cases = [
+        (demo.join("lease-applications.parquet"), "binary", "application_id"),
+        (demo.join("greenhouse-yield.parquet"), "regression", ""),
+        (open("iris.parquet"), "multiclass", ""),
+        (open("breast_cancer.parquet"), "binary", ""),
+    ];
+    for (i, (data, task, id)) in cases.iter().enumerate() {
+        let m = dir.path().join("experiments").join(format!("m{i}.toml"));
+        std::fs::create_dir_all(m.parent().unwrap()).unwrap();
+        let out = run_in(dir.path(), &["scaffold", data.to_str().unwrap(), "--out", m.to_str().unwrap()]);
+        assert!(out.status.success(), "{}", stderr(&out));
+        let text = std::fs::read_to_string(&m).unwrap();
+        assert!(text.contains(&format!("task = \"{task}\"")), "{}: {text}", data.display());
+        if !id.is_empty() {
+            assert!(text.contains(&format!("ids = [\"{id}\"]")), "{text}");
+        }
+        for section in ["[experiment]", "[data]", "[split]", "[model]", "[training]", "[training.early_stopping]", "[selection]", "[sweep]"]
+        {
+            assert!(text.contains(section), "{section} missing");
+        }
+        let check = run_in(dir.path(), &["check", m.to_str().unwrap()]);
+        assert!(check.status.success(), "{}: {}", data.display(), stderr(&check));
+    }
+    // An existing file is kept unless --force.
+    let again = run_in(dir.path(), &["scaffold", cases[0].0.to_str().unwrap(), "--out", "experiments/m0.toml"]);
+    assert_eq!(again.status.code(), Some(2));
+    assert!(stderr(&again).contains("exists; pass --force"), "{}", stderr(&again));
+    // A target that is not a column is named with the nearest one.
+    let wrong = run_in(dir.path(), &["scaffold", cases[0].0.to_str().unwrap(), "--target", "defaulted12m"]);
+    assert!(
+        stderr(&wrong).contains("column `defaulted12m`: named by --target but not in the file (did you mean `defaulted_12m`?)"),
+        "{}",
+        stderr(&wrong)
+    );
+}
+
+#[test]
+fn json_reports_parse_and_carry_their_documented_fields() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = small_lease_experiment(dir.path(), 800, "");
+    let m = manifest.to_str().unwrap();
+    let check = json_of(&run_in(dir.path(), &["--json", "check", m]));
+    for field in
+        ["experiment", "fingerprint", "manifest_sha256", "data", "split", "summary", "plan", "selection", "memory", "overridden_by_grid"]
+    {
+        assert!(!check[field].is_null(), "check --json lacks {field}");
+    }
+    let train = json_of(&run_in(dir.path(), &["--json", "--quiet", "train", m, "--results", "results"]));
+    for field in ["experiment", "fingerprint", "results", "card", "results_digest", "runs", "selection"] {
+        assert!(!train[field].is_null(), "train --json lacks {field}");
+    }
+    assert_eq!(train["runs"]["trained"].as_array().unwrap().len(), 4);
+    assert_eq!(train["fingerprint"], check["fingerprint"]);
+    let folder = train["results"].as_str().unwrap().to_string();
+    let verify = json_of(&run_in(dir.path(), &["--json", "--quiet", "verify", &folder]));
+    assert_eq!(verify["identical"], true);
+    assert_eq!(verify["runs"].as_array().unwrap().len(), 2);
+    let history = json_of(&run_in(dir.path(), &["--json", "history", "--results", "results"]));
+    assert_eq!(history["selections"].as_array().unwrap().len(), 1);
+    assert_eq!(history["verifications"][0]["identical"], true);
+    let list = json_of(&run_in(dir.path(), &["--json", "list", "--results", "results"]));
+    let listed = &list["experiments"][0];
+    assert_eq!(listed["fingerprint"], check["fingerprint"]);
+    assert_eq!(listed["verified"], "yes");
+    assert!(listed["test_value"].as_f64().is_some());
+    let compare = json_of(&run_in(dir.path(), &["--json", "compare", &folder, &folder]));
+    assert_eq!(compare["manifest_changes"].as_array().unwrap().len(), 0);
+    assert!(compare["validation"].as_array().unwrap().iter().all(|r| r["within_noise"] == true));
+    // Commands without a JSON report say so before doing anything.
+    let out = run_in(dir.path(), &["--json", "demo-data", "somewhere"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(!dir.path().join("somewhere").exists());
+}
+
+#[test]
+fn every_command_has_help_with_an_example_and_described_arguments() {
+    let dir = tempfile::tempdir().unwrap();
+    for command in ["scaffold", "check", "train", "slurm", "verify", "predict", "compare", "history", "list", "card", "demo-data"] {
+        let out = run_in(dir.path(), &[command, "--help"]);
+        assert!(out.status.success());
+        let help = stdout(&out);
+        assert!(help.contains("Example"), "{command} --help has no example:\n{help}");
+        // clap prints an argument without a description as a bare name: every argument line must
+        // carry text after its name.
+        for line in help.lines().filter(|l| l.starts_with("  <") || l.starts_with("      --") || l.starts_with("  -")) {
+            let described = line.trim().split_once("  ").is_some_and(|(_, rest)| !rest.trim().is_empty());
+            assert!(described, "{command}: undocumented argument `{}`", line.trim());
+        }
+    }
+}
+
+#[test]
+fn results_of_layout_2_written_by_tabcard_0_3_stay_readable() {
+    // tests/data/results-v2/ was written by tabcard 0.3.0 (commit d65e96d) from small.toml on the
+    // first 500 rows of the invented lease table: run files still named metrics.json, config.json
+    // and run.json, no split checks, `pr_auc`, and `mse` recorded as a classifier's loss.
+    let dir = tempfile::tempdir().unwrap();
+    copy_dir(&repo_path("tests/data/results-v2"), dir.path());
+    let root = dir.path().join("results");
+    let folder = experiment_folder(&root).unwrap();
+    assert!(std::fs::read_dir(folder.join("runs")).unwrap().all(|r| r.unwrap().path().join("run.json").exists()));
+    let f = folder.to_str().unwrap();
+    let list = run_in(dir.path(), &["list", "--results", "results"]);
+    assert!(list.status.success() && stdout(&list).contains("small-lease-v2"), "{}{}", stdout(&list), stderr(&list));
+    let history = run_in(dir.path(), &["history", "--results", "results"]);
+    assert!(history.status.success() && stdout(&history).contains("small-lease-v2"), "{}", stderr(&history));
+    let compare = run_in(dir.path(), &["compare", f, f]);
+    assert!(compare.status.success() && stdout(&compare).contains("within noise"), "{}", stderr(&compare));
+    let predict = run_in(dir.path(), &["predict", f, "leases.parquet", "--out", "scores.parquet"]);
+    assert!(predict.status.success(), "{}", stderr(&predict));
+    assert_eq!(tabcard::data::parquet::read_table(&dir.path().join("scores.parquet")).unwrap().rows, 500);
+    let card = run_in(dir.path(), &["card", f]);
+    assert!(card.status.success(), "{}", stderr(&card));
+    let text = std::fs::read_to_string(folder.join("card.md")).unwrap();
+    assert!(text.contains("duplicates not counted by the tabcard version that wrote these results"), "{text}");
+    // A layout this tool does not know is refused by name.
+    let format = folder.join("format.json");
+    std::fs::write(&format, std::fs::read_to_string(&format).unwrap().replace("\"version\": 2", "\"version\": 99")).unwrap();
+    let out = run_in(dir.path(), &["list", "--results", "results"]);
+    assert!(stdout(&out).contains("unreadable:") && stdout(&out).contains("results layout version 99"), "{}", stdout(&out));
+}
