@@ -101,6 +101,7 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let shown = if s.columns.len() > WIDE_TABLE { SHOWN_COLUMNS } else { s.columns.len() };
     for c in &s.columns[..shown] {
         let detail = match &c.numeric {
+            Some(n) if c.kind == "boolean" => format!("true in {:.1}% of rows", 100.0 * n.mean),
             Some(n) => {
                 format!("min {} / median {} / max {}, mean {} sd {}", num(n.min), num(n.median), num(n.max), num(n.mean), num(n.std))
             }
