@@ -4,6 +4,7 @@
 //! group) whose values occur in more than one split.
 
 use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
 use std::collections::{HashMap, HashSet};
 
 use super::roles::Roles;
@@ -57,6 +58,17 @@ fn row_key(table: &Table, columns: &[usize], row: usize, out: &mut Vec<u8>) {
     }
 }
 
+/// A row's identity for duplicate counting: the first 128 bits of SHA-256 over its key bytes. Rows
+/// are compared by this digest, not by their bytes, so the check costs 16 bytes per row (a million
+/// rows of 64 features would otherwise hold 600 MB of keys); two different rows would need a
+/// SHA-256 collision in 128 bits (expected only after about 2^64 rows) to be counted as one.
+fn digest(key: &[u8]) -> u128 {
+    let full = Sha256::digest(key);
+    let mut first = [0u8; 16];
+    first.copy_from_slice(&full[..16]);
+    u128::from_le_bytes(first)
+}
+
 /// Column indices of the features and the target, in table order.
 fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
     (0..table.columns.len())
@@ -71,12 +83,12 @@ fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
 /// counts them with its default `keep="first"`.
 pub fn duplicate_rows(table: &Table, roles: &Roles) -> usize {
     let columns = seen_columns(table, roles);
-    let mut seen: HashSet<Vec<u8>> = HashSet::with_capacity(table.rows);
+    let mut seen: HashSet<u128> = HashSet::with_capacity(table.rows);
     let mut key = Vec::new();
     let mut duplicates = 0;
     for row in 0..table.rows {
         row_key(table, &columns, row, &mut key);
-        if !seen.insert(key.clone()) {
+        if !seen.insert(digest(&key)) {
             duplicates += 1;
         }
     }
@@ -87,16 +99,16 @@ pub fn duplicate_rows(table: &Table, roles: &Roles) -> usize {
 pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitChecks {
     let columns = seen_columns(table, roles);
     let mut key = Vec::new();
-    let mut training: HashSet<Vec<u8>> = HashSet::with_capacity(splits.train.len());
+    let mut training: HashSet<u128> = HashSet::with_capacity(splits.train.len());
     for &r in &splits.train {
         row_key(table, &columns, r, &mut key);
-        training.insert(key.clone());
+        training.insert(digest(&key));
     }
     let mut count_in = |rows: &[usize]| {
         rows.iter()
             .filter(|&&r| {
                 row_key(table, &columns, r, &mut key);
-                training.contains(&key)
+                training.contains(&digest(&key))
             })
             .count()
     };
@@ -128,18 +140,29 @@ pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitCheck
     // people (a region), which are meant to appear in every split.
     let mut keys: Vec<&String> = roles.ids.iter().chain(roles.split_group.iter()).collect();
     keys.dedup();
-    let part_of: HashMap<usize, u8> = [(&splits.train, 1u8), (&splits.validation, 2), (&splits.test, 4)]
-        .into_iter()
-        .flat_map(|(rows, bit)| rows.iter().map(move |&r| (r, bit)))
-        .collect();
+    // One byte per row: 1 training, 2 validation, 4 test.
+    let mut part_of = vec![0u8; table.rows];
+    for (rows, bit) in [(&splits.train, 1u8), (&splits.validation, 2), (&splits.test, 4)] {
+        for &r in rows {
+            part_of[r] = bit;
+        }
+    }
     let mut repeated_keys = Vec::new();
     for name in keys {
-        let Some(col) = table.column(name) else { continue };
-        let mut parts: HashMap<String, (u8, usize)> = HashMap::new();
-        for row in 0..table.rows {
-            if let Some(label) = col.label(row) {
-                let entry = parts.entry(label).or_insert((0, 0));
-                entry.0 |= part_of.get(&row).copied().unwrap_or(0);
+        let Some(index) = table.columns.iter().position(|c| c.name == *name) else { continue };
+        let col = &table.columns[index];
+        // Values by their digest (as rows above), so a unique id per row costs 16 bytes, not a string.
+        let value_of = |row: usize, key: &mut Vec<u8>| {
+            col.is_valid(row).then(|| {
+                row_key(table, &[index], row, key);
+                digest(key)
+            })
+        };
+        let mut parts: HashMap<u128, (u8, usize)> = HashMap::new();
+        for (row, &bit) in part_of.iter().enumerate() {
+            if let Some(v) = value_of(row, &mut key) {
+                let entry = parts.entry(v).or_insert((0, 0));
+                entry.0 |= bit;
                 entry.1 += 1;
             }
         }
@@ -150,7 +173,7 @@ pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitCheck
             .validation
             .iter()
             .chain(&splits.test)
-            .filter(|&&r| col.label(r).and_then(|l| parts.get(&l)).is_some_and(|&(bits, _)| bits & 1 == 1))
+            .filter(|&&r| value_of(r, &mut key).and_then(|v| parts.get(&v)).is_some_and(|&(bits, _)| bits & 1 == 1))
             .count();
         repeated_keys.push(KeyCrossing {
             column: name.clone(),
