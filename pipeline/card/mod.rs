@@ -707,7 +707,8 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
         .iter()
         .map(|b| {
             Row::of([
-                format!("({}, {}]", sig(b.lower, 2), sig(b.upper, 2)),
+                // Closed on the right; the first bin also holds 0.
+                format!("{}{}, {}]", if b.lower == 0.0 { "[" } else { "(" }, sig(b.lower, 2), sig(b.upper, 2)),
                 b.count.to_string(),
                 fixed(b.mean_predicted, 4),
                 fixed(b.observed, 4),
