@@ -205,3 +205,33 @@ fn results_of_layout_2_written_by_tabcard_0_3_stay_readable() {
     let out = run_in(dir.path(), &["list", "--results", "results"]);
     assert!(stdout(&out).contains("unreadable:") && stdout(&out).contains("results layout version 99"), "{}", stdout(&out));
 }
+
+#[test]
+fn check_stays_short_on_a_wide_table() {
+    use arrow::array::{ArrayRef, BooleanArray, Float64Array};
+    use std::sync::Arc;
+    let dir = tempfile::tempdir().unwrap();
+    let rows = 100;
+    let names: Vec<String> = (0..3000).map(|i| format!("c{i:04}")).chain((0..50).map(|i| format!("k{i:02}"))).collect();
+    let mut columns: Vec<(&str, ArrayRef)> = names
+        .iter()
+        .enumerate()
+        .map(|(i, n)| {
+            let values: Vec<f64> = (0..rows).map(|r| if i < 3000 { ((r * 31 + i * 7) % 97) as f64 } else { 1.0 }).collect();
+            (n.as_str(), Arc::new(Float64Array::from(values)) as ArrayRef)
+        })
+        .collect();
+    columns.push(("y", Arc::new(BooleanArray::from((0..rows).map(|r| r % 3 == 0).collect::<Vec<_>>()))));
+    write_parquet(&dir.path().join("data.parquet"), columns);
+    std::fs::write(dir.path().join("m.toml"), manifest("")).unwrap();
+    let out = run_in(dir.path(), &["check", "m.toml"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    let text = stdout(&out);
+    assert!(text.lines().count() < 120, "{} lines for 3051 columns", text.lines().count());
+    assert!(text.contains("... and 3011 more columns (3010 features, 1 others)"), "{text}");
+    // 50 constant columns each give a warning: 20 are printed, the rest counted.
+    assert_eq!(text.lines().filter(|l| l.starts_with("  - ")).count(), 20, "{text}");
+    assert!(text.contains("more (`check --json` lists them all)"), "{text}");
+    let json = json_of(&run_in(dir.path(), &["--json", "check", "m.toml"]));
+    assert_eq!(json["summary"]["columns"].as_array().unwrap().len(), 3051);
+}

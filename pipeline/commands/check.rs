@@ -39,6 +39,8 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
 /// Tables wider than this show their first `SHOWN_COLUMNS` columns; the rest are counted.
 const WIDE_TABLE: usize = 60;
 const SHOWN_COLUMNS: usize = 40;
+/// Warnings beyond this many are counted, not printed.
+const SHOWN_WARNINGS: usize = 20;
 
 fn num(x: f64) -> String {
     crate::format::sig(x, 4)
@@ -143,8 +145,11 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     }
     if !s.warnings.is_empty() {
         let _ = writeln!(out, "\nwarnings");
-        for w in &s.warnings {
+        for w in s.warnings.iter().take(SHOWN_WARNINGS) {
             let _ = writeln!(out, "  - {}", terminal_safe(w));
+        }
+        if s.warnings.len() > SHOWN_WARNINGS {
+            let _ = writeln!(out, "  ... and {} more (`check --json` lists them all)", s.warnings.len() - SHOWN_WARNINGS);
         }
     }
     let grid_points = plan.configs.iter().filter(|c| !c.baseline).count();
