@@ -180,6 +180,26 @@ pub fn read_table(path: &Path) -> Result<Table> {
     read_from(&open, path)
 }
 
+/// Reads only the named columns (in file order) across every row group: the building block of a
+/// data path that never holds the whole decoded table. The columns are identical, value for
+/// value, to the same columns of [`read_table`].
+pub fn read_columns(path: &Path, names: &[&str]) -> Result<Table> {
+    let open = || std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e));
+    let owned: Vec<String> = names.iter().map(|s| s.to_string()).collect();
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode_projected(&open, path, Some(&owned)))) {
+        Ok(result) => result,
+        Err(_) => Err(Error::data(path, None, "corrupt Parquet file: the reader failed")),
+    }
+}
+
+/// The column names of a Parquet file in order, without decoding any value.
+pub fn column_names(path: &Path) -> Result<Vec<String>> {
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    let builder =
+        ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| Error::data(path, None, format!("not a readable Parquet file: {e}")))?;
+    Ok(builder.schema().fields().iter().map(|f| f.name().clone()).collect())
+}
+
 /// Reads a Parquet file held in memory; `name` is only used in error messages.
 pub fn read_table_from_bytes(bytes: Vec<u8>, name: &Path) -> Result<Table> {
     let bytes = bytes::Bytes::from(bytes);
@@ -240,6 +260,15 @@ fn read_from<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() ->
 /// `open` gives a fresh reader over the same bytes each time it is called (one pass checks the
 /// dictionary pages, one decodes).
 fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
+    decode_projected(open, path, None)
+}
+
+/// [`decode`] of every column, or only of `only` (names, kept in file order).
+fn decode_projected<R: parquet::file::reader::ChunkReader + 'static>(
+    open: &dyn Fn() -> Result<R>,
+    path: &Path,
+    only: Option<&[String]>,
+) -> Result<Table> {
     let not_parquet = |e: parquet::errors::ParquetError| Error::data(path, None, format!("not a readable Parquet file: {e}"));
     let builder = ParquetRecordBatchReaderBuilder::try_new(open()?).map_err(not_parquet)?;
     // The parquet crate asserts (panics) on negative column offsets or sizes; reject them first.
@@ -257,8 +286,15 @@ fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Re
     }
     check_dictionary_pages(open()?, path)?;
     let schema = builder.schema().clone();
-    let mut columns = Vec::with_capacity(schema.fields().len());
-    for field in schema.fields() {
+    if let Some(names) = only {
+        if let Some(missing) = names.iter().find(|n| schema.field_with_name(n).is_err()) {
+            return Err(Error::data(path, Some(missing), "is not in the file"));
+        }
+    }
+    let wanted: Vec<usize> =
+        (0..schema.fields().len()).filter(|&i| only.is_none_or(|names| names.contains(schema.field(i).name()))).collect();
+    let mut columns = Vec::with_capacity(wanted.len());
+    for field in wanted.iter().map(|&i| schema.field(i)) {
         if !supported(field.data_type()) {
             return Err(Error::data(
                 path,
@@ -283,6 +319,14 @@ fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Re
     if let Some(dup) = columns.iter().find(|c| !seen.insert(c.name.clone())) {
         return Err(Error::data(path, Some(&dup.name), "appears more than once in the schema"));
     }
+    let builder = match only {
+        // Top-level columns are the schema's roots, in the same order as the Arrow fields.
+        Some(_) => {
+            let mask = parquet::arrow::ProjectionMask::roots(builder.parquet_schema(), wanted.iter().copied());
+            builder.with_projection(mask)
+        }
+        None => builder,
+    };
     let reader = builder.with_batch_size(65_536).build().map_err(not_parquet)?;
     let mut rows = 0usize;
     for batch in reader {

@@ -112,81 +112,104 @@ impl Table {
 
     /// SHA-256 over the schema (names, kinds, source types) and every value in row order.
     pub fn content_hash(&self) -> String {
+        let mut hasher = ContentHasher::new(self.rows, self.columns.len());
+        for col in &self.columns {
+            hasher.add(col);
+        }
+        hasher.finish()
+    }
+}
+
+/// The content hash computed one column at a time, in table order: the same digest as
+/// [`Table::content_hash`], for a reader that never holds every column at once.
+pub struct ContentHasher {
+    h: Sha256,
+    buf: Vec<u8>,
+}
+
+impl ContentHasher {
+    pub fn new(rows: usize, columns: usize) -> Self {
         let mut h = Sha256::new();
         h.update(b"tabcard-table-v1");
-        h.update((self.rows as u64).to_le_bytes());
-        h.update((self.columns.len() as u64).to_le_bytes());
-        let mut buf: Vec<u8> = Vec::with_capacity(1 << 16);
+        h.update((rows as u64).to_le_bytes());
+        h.update((columns as u64).to_le_bytes());
+        ContentHasher { h, buf: Vec::with_capacity(1 << 16) }
+    }
+
+    /// Adds the next column (columns must come in table order).
+    pub fn add(&mut self, col: &Column) {
+        let (h, buf) = (&mut self.h, &mut self.buf);
         let flush = |h: &mut Sha256, buf: &mut Vec<u8>, force: bool| {
             if force || buf.len() >= (1 << 16) - 16 {
                 h.update(&buf[..]);
                 buf.clear();
             }
         };
-        for col in &self.columns {
-            for part in [col.name.as_str(), col.kind_name(), col.source_type.as_str()] {
-                h.update((part.len() as u64).to_le_bytes());
-                h.update(part.as_bytes());
+        for part in [col.name.as_str(), col.kind_name(), col.source_type.as_str()] {
+            h.update((part.len() as u64).to_le_bytes());
+            h.update(part.as_bytes());
+        }
+        match &col.valid {
+            None => h.update([0u8]),
+            Some(valid) => {
+                h.update([1u8]);
+                for chunk in valid.chunks(8) {
+                    let byte = chunk.iter().enumerate().fold(0u8, |b, (i, &v)| b | ((v as u8) << i));
+                    buf.push(byte);
+                    flush(h, buf, false);
+                }
+                flush(h, buf, true);
             }
-            match &col.valid {
-                None => h.update([0u8]),
-                Some(valid) => {
-                    h.update([1u8]);
-                    for chunk in valid.chunks(8) {
-                        let byte = chunk.iter().enumerate().fold(0u8, |b, (i, &v)| b | ((v as u8) << i));
-                        buf.push(byte);
-                        flush(&mut h, &mut buf, false);
+        }
+        match &col.values {
+            ColumnValues::Float(v) => {
+                for chunk in v.chunks(4096) {
+                    for x in chunk {
+                        buf.extend_from_slice(&x.to_le_bytes());
                     }
-                    flush(&mut h, &mut buf, true);
+                    flush(h, buf, true);
                 }
             }
-            match &col.values {
-                ColumnValues::Float(v) => {
-                    for chunk in v.chunks(4096) {
-                        for x in chunk {
-                            buf.extend_from_slice(&x.to_le_bytes());
-                        }
-                        flush(&mut h, &mut buf, true);
+            // Hashed as the f64 values they read as: the hash does not depend on storage.
+            ColumnValues::Float32(v) => {
+                for chunk in v.chunks(4096) {
+                    for x in chunk {
+                        buf.extend_from_slice(&f64::from(*x).to_le_bytes());
                     }
+                    flush(h, buf, true);
                 }
-                // Hashed as the f64 values they read as: the hash does not depend on storage.
-                ColumnValues::Float32(v) => {
-                    for chunk in v.chunks(4096) {
-                        for x in chunk {
-                            buf.extend_from_slice(&f64::from(*x).to_le_bytes());
-                        }
-                        flush(&mut h, &mut buf, true);
+            }
+            ColumnValues::Int(v) => {
+                for chunk in v.chunks(4096) {
+                    for x in chunk {
+                        buf.extend_from_slice(&x.to_le_bytes());
                     }
+                    flush(h, buf, true);
                 }
-                ColumnValues::Int(v) => {
-                    for chunk in v.chunks(4096) {
-                        for x in chunk {
-                            buf.extend_from_slice(&x.to_le_bytes());
-                        }
-                        flush(&mut h, &mut buf, true);
-                    }
+            }
+            ColumnValues::Bool(v) => {
+                for chunk in v.chunks(1 << 15) {
+                    buf.extend(chunk.iter().map(|&b| b as u8));
+                    flush(h, buf, true);
                 }
-                ColumnValues::Bool(v) => {
-                    for chunk in v.chunks(1 << 15) {
-                        buf.extend(chunk.iter().map(|&b| b as u8));
-                        flush(&mut h, &mut buf, true);
-                    }
+            }
+            ColumnValues::Text { codes, levels } => {
+                h.update((levels.len() as u64).to_le_bytes());
+                for level in levels {
+                    h.update((level.len() as u64).to_le_bytes());
+                    h.update(level.as_bytes());
                 }
-                ColumnValues::Text { codes, levels } => {
-                    h.update((levels.len() as u64).to_le_bytes());
-                    for level in levels {
-                        h.update((level.len() as u64).to_le_bytes());
-                        h.update(level.as_bytes());
+                for chunk in codes.chunks(8192) {
+                    for x in chunk {
+                        buf.extend_from_slice(&x.to_le_bytes());
                     }
-                    for chunk in codes.chunks(8192) {
-                        for x in chunk {
-                            buf.extend_from_slice(&x.to_le_bytes());
-                        }
-                        flush(&mut h, &mut buf, true);
-                    }
+                    flush(h, buf, true);
                 }
             }
         }
-        hex(&h.finalize())
+    }
+
+    pub fn finish(self) -> String {
+        hex(&self.h.finalize())
     }
 }
