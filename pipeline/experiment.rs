@@ -80,9 +80,10 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     let bytes = std::fs::metadata(&data_path).map(|m| m.len()).unwrap_or(0);
     let table = read_table(&data_path)?;
     let (roles, target) = resolve(&loaded.manifest, &table, &data_path)?;
-    let mut summary = summarise(&table, &roles, &target);
+    let row_digests = crate::data::leakage::row_digests(&table, &roles);
+    let mut summary = summarise(&table, &roles, &target, &row_digests);
     let splits = split(&table, &target, &loaded.manifest.split, &data_path)?;
-    summary.split_checks = Some(crate::data::leakage::split_checks(&table, &roles, &splits));
+    summary.split_checks = Some(crate::data::leakage::split_checks(&table, &roles, &splits, &row_digests));
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
     let content = table.content_hash();
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);

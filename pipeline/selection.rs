@@ -132,6 +132,18 @@ fn best_rule() -> String {
     "best".into()
 }
 
+impl Selection {
+    /// A train-minus-validation gap of the selection metric (as `ConfigSummary::gap` stores it),
+    /// signed so that positive always means worse on validation, whichever way the metric points.
+    pub fn worse_on_validation(&self, train_minus_validation: f64) -> f64 {
+        if self.higher_is_better {
+            train_minus_validation
+        } else {
+            -train_minus_validation
+        }
+    }
+}
+
 /// Mean and spread of each metric over several metric sets (undefined values left out).
 fn spreads<'a>(sets: impl IntoIterator<Item = &'a MetricSet>) -> BTreeMap<String, Spread> {
     let mut by_name: BTreeMap<String, Vec<f64>> = BTreeMap::new();

@@ -29,6 +29,13 @@ fn open_manifest(dir: &Path, file: &str, body: &str) -> PathBuf {
     path
 }
 
+/// Trains the open table `file` with `body` in a fresh folder; returns (card text, rules that fired).
+fn rules_for(file: &str, body: &str) -> (String, BTreeSet<String>) {
+    let dir = tempfile::tempdir().unwrap();
+    let m = open_manifest(dir.path(), file, body);
+    card_rules(dir.path(), &m)
+}
+
 /// Trains and returns (card text, rules that fired).
 fn card_rules(dir: &Path, manifest: &Path) -> (String, BTreeSet<String>) {
     let folder = trained(dir, manifest);
@@ -93,13 +100,7 @@ fn duplicates_across_splits_fire_on_mpg_and_not_on_breast_cancer() {
     );
     assert!(card.contains("of which 9 repeat an earlier row exactly"));
 
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(
-        dir.path(),
-        "breast_cancer.parquet",
-        &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")),
-    );
-    let (_, rules) = card_rules(dir.path(), &m);
+    let (_, rules) = rules_for("breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
     assert!(!rules.contains("duplicates_across_splits"), "{rules:?}");
 }
 
@@ -107,17 +108,13 @@ fn duplicates_across_splits_fire_on_mpg_and_not_on_breast_cancer() {
 fn a_linear_baseline_that_wins_is_flagged_and_named_in_the_headline() {
     // Diabetes (Efron et al. 2004): a linear model is the classic fit; a 64x64 network on 265
     // training rows loses to it.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "diabetes.parquet", "target = \"progression\"\ntask = \"regression\"\n\n[split]\nseed = 3\n\n[model]\nhidden = [64, 64]\n\n[training]\nepochs = 300\nbatch_size = 32\nlearning_rate = 0.003\n\n[training.early_stopping]\npatience = 20\n\n[selection]\nbootstrap = 300\n");
-    let (card, rules) = card_rules(dir.path(), &m);
+    let (card, rules) = rules_for("diabetes.parquet", "target = \"progression\"\ntask = \"regression\"\n\n[split]\nseed = 3\n\n[model]\nhidden = [64, 64]\n\n[training]\nepochs = 300\nbatch_size = 32\nlearning_rate = 0.003\n\n[training.early_stopping]\npatience = 20\n\n[selection]\nbootstrap = 300\n");
     assert!(rules.contains("baseline_beats_network") && !rules.contains("baseline_within_noise"), "{rules:?}");
     assert!(card.contains("**Reviewer's attention:** A reviewer should prefer the linear baseline"), "{card}");
     assert!(card.contains("**The linear baseline beats the network**"));
 
     // Diamonds: price grows far from linearly with carat, so the network wins clearly.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "diamonds.parquet", "target = \"price\"\ntask = \"regression\"\n\n[split]\nseed = 3\n\n[model]\nhidden = [32, 32]\n\n[training]\nepochs = 60\nbatch_size = 128\nlearning_rate = 0.003\n\n[selection]\nbootstrap = 200\n");
-    let (card, rules) = card_rules(dir.path(), &m);
+    let (card, rules) = rules_for("diamonds.parquet", "target = \"price\"\ntask = \"regression\"\n\n[split]\nseed = 3\n\n[model]\nhidden = [32, 32]\n\n[training]\nepochs = 60\nbatch_size = 128\nlearning_rate = 0.003\n\n[selection]\nbootstrap = 200\n");
     assert!(
         !rules.contains("baseline_beats_network") && !rules.contains("baseline_within_noise") && !rules.contains("no_better_than_chance"),
         "{rules:?}"
@@ -129,15 +126,11 @@ fn a_linear_baseline_that_wins_is_flagged_and_named_in_the_headline() {
 fn the_minority_rule_spares_balanced_iris_and_flags_the_digit_zero() {
     let r = reference();
     // Iris: three classes of 50 (Fisher 1936): balanced, however small.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "iris.parquet", &format!("target = \"species\"\ntask = \"multiclass\"\n{}", fast_training("[1, 2]")));
-    let (_, rules) = card_rules(dir.path(), &m);
+    let (_, rules) = rules_for("iris.parquet", &format!("target = \"species\"\ntask = \"multiclass\"\n{}", fast_training("[1, 2]")));
     assert!(!rules.contains("small_minority_class"), "{rules:?}");
     // Digits: 178 zeros of 1797 (9.9%) against the rest.
     let zeros = r["digits_zero"]["zeros"].as_u64().unwrap();
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(dir.path(), "digits_zero.parquet", &format!("target = \"is_zero\"\ntask = \"binary\"\n{}", fast_training("[1]")));
-    let (card, rules) = card_rules(dir.path(), &m);
+    let (card, rules) = rules_for("digits_zero.parquet", &format!("target = \"is_zero\"\ntask = \"binary\"\n{}", fast_training("[1]")));
     assert!(rules.contains("small_minority_class"), "{rules:?}");
     assert!(card.contains(&format!("class \"true\" has {zeros} rows \\(9.91% of the table\\)")), "{card}");
 }
@@ -145,24 +138,18 @@ fn the_minority_rule_spares_balanced_iris_and_flags_the_digit_zero() {
 #[test]
 fn a_small_test_split_is_flagged_with_its_class_counts() {
     // Breast cancer, test = 0.1: 57 rows, of which 21 malignant (stratified), below 30.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(
-        dir.path(),
+    let (card, rules) = rules_for(
         "breast_cancer.parquet",
         &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.1\n{}", fast_training("[1, 2]")),
     );
-    let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("small_test_split"), "{rules:?}");
     assert!(card.contains("the test split of 57 rows holds 21 rows of class \"malignant\""), "{card}");
     assert!(card.contains("The test split holds 36 benign, 21 malignant."));
     // test = 0.3: 171 rows, 64 malignant.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(
-        dir.path(),
+    let (_, rules) = rules_for(
         "breast_cancer.parquet",
         &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.3\n{}", fast_training("[1, 2]")),
     );
-    let (_, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("small_test_split"), "{rules:?}");
 }
 
@@ -170,23 +157,14 @@ fn a_small_test_split_is_flagged_with_its_class_counts() {
 fn a_model_that_cannot_beat_chance_is_flagged() {
     // Sleepstudy: every subject is observed on every day (Belenky et al. 2003's design), so the
     // subject alone says nothing about whether a row is from day 5 or later.
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(
-        dir.path(),
+    let (card, rules) = rules_for(
         "sleepstudy.parquet",
         &format!("target = \"late\"\ntask = \"binary\"\nfeatures = [\"Subject\"]\n{}", fast_training("[1, 2]")),
     );
-    let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("no_better_than_chance"), "{rules:?}");
     assert!(card.contains("**Reviewer's attention:** Do not use this model for decisions"), "{card}");
     // Breast cancer's diagnosis is well predicted (ROC AUC near 0.99).
-    let dir = tempfile::tempdir().unwrap();
-    let m = open_manifest(
-        dir.path(),
-        "breast_cancer.parquet",
-        &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")),
-    );
-    let (_, rules) = card_rules(dir.path(), &m);
+    let (_, rules) = rules_for("breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
     assert!(!rules.contains("no_better_than_chance"), "{rules:?}");
 }
 

@@ -105,7 +105,7 @@ pub fn gather(
         scale: metric_scale(task, m, summary),
         selected: selected_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
         baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
-        gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| if higher { g.mean } else { -g.mean }),
+        gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| selection.worse_on_validation(g.mean)),
         test_ece: t.metrics.get("ece").copied().flatten(),
         chance,
         test_rows: t.rows,

@@ -608,7 +608,6 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
     let mut validation_header = vec!["configuration".to_string(), "parameters".into(), "seeds".into()];
     validation_header.extend(shown.iter().map(|s| s.to_string()));
     validation_header.push(format!("{m}: train better than validation by"));
-    let orient = |x: f64| if sel.higher_is_better { x } else { -x };
     let validation_rows = sel
         .configs
         .iter()
@@ -621,7 +620,12 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
                 if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
             let mut cells = vec![label, c.parameter_count.to_string(), seeds];
             cells.extend(shown.iter().map(|k| spread_text(c.validation.get(*k))));
-            cells.push(c.gap.as_ref().map(|g| format!("{} ± {}", fixed(orient(g.mean), 4), fixed(g.sd, 4))).unwrap_or_else(|| "–".into()));
+            cells.push(
+                c.gap
+                    .as_ref()
+                    .map(|g| format!("{} ± {}", fixed(sel.worse_on_validation(g.mean), 4), fixed(g.sd, 4)))
+                    .unwrap_or_else(|| "–".into()),
+            );
             Row { cells }
         })
         .collect();

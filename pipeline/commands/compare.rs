@@ -68,7 +68,8 @@ fn load_folder(folder: &Path) -> Result<Side> {
 fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     let exp = crate::experiment::open(path)?;
     let plan = crate::plan::build(&exp.manifest, &exp.fingerprint)?;
-    let value = serde_json::from_str::<Value>(&crate::manifest::canonical_json(&exp.manifest)).unwrap_or(Value::Null);
+    // The same resolved form a results folder stores as manifest.json.
+    let value = serde_json::to_value(&exp.manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
     let mut flat = BTreeMap::new();
     flatten("", &value, &mut flat);
     let layout = Layout::new(results_root.join(exp.short_id()));

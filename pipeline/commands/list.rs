@@ -10,7 +10,7 @@ use crate::experiment::ExperimentRecord;
 use crate::format::fixed;
 use crate::plan::config_label;
 use crate::selection::Selection;
-use crate::store::ledger::read_verifications;
+use crate::store::ledger::{read_verifications, VerificationEntry};
 use crate::store::timing::TimingRecord;
 use crate::store::{read_json, Layout};
 use crate::text::terminal_cell;
@@ -29,9 +29,14 @@ struct Listed {
     verified: String,
 }
 
-fn listed(layout: &Layout, verified: &str) -> Result<Listed> {
+fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed> {
     layout.check_format()?;
     let record: ExperimentRecord = read_json(&layout.experiment())?;
+    let verified = match verifications.iter().rev().find(|v| v.fingerprint == record.fingerprint) {
+        Some(v) if v.identical => "yes",
+        Some(_) => "FAILED",
+        None => "no",
+    };
     let selection: Option<Selection> = if layout.selection().exists() { Some(read_json(&layout.selection())?) } else { None };
     let timing: Option<TimingRecord> = if layout.timing().exists() { read_json(&layout.timing()).ok() } else { None };
     let selected = selection
@@ -59,14 +64,7 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     let mut listed_ok = Vec::new();
     let mut problems = Vec::new();
     for folder in &folders {
-        let layout = Layout::new(folder);
-        let fingerprint = read_json::<ExperimentRecord>(&layout.experiment()).map(|r| r.fingerprint).unwrap_or_default();
-        let verified = match verifications.iter().rev().find(|v| v.fingerprint == fingerprint) {
-            Some(v) if v.identical => "yes",
-            Some(_) => "FAILED",
-            None => "no",
-        };
-        match listed(&layout, verified) {
+        match listed(&Layout::new(folder), &verifications) {
             Ok(l) => listed_ok.push(l),
             Err(e) => problems.push(format!("{}: {e}", folder.display())),
         }

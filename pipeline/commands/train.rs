@@ -81,12 +81,13 @@ fn table(selection: &Selection) -> String {
         format!("validation {m}"),
         "worse on validation by"
     );
-    // The gap is stored as train minus validation; shown so that positive always means "worse on
-    // validation", whichever way the metric points.
-    let orient = |x: f64| if selection.higher_is_better { x } else { -x };
     for c in &selection.configs {
         let v = c.validation.get(m).map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
-        let g = c.gap.as_ref().map(|s| format!("{} ± {}", fixed(orient(s.mean), 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
+        let g = c
+            .gap
+            .as_ref()
+            .map(|s| format!("{} ± {}", fixed(selection.worse_on_validation(s.mean), 4), fixed(s.sd, 4)))
+            .unwrap_or_else(|| "-".into());
         let mark = if c.config_id == selection.selected_config { " *" } else { "" };
         let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
         let _ = writeln!(
@@ -141,17 +142,11 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 
 /// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
 /// card (which seals the folder). Returns the selection and the results digest.
-fn select_and_record(
-    prepared: &Prepared,
-    layout: &Layout,
-    manifest_path: &Path,
-    jobs: usize,
-    started: Instant,
-) -> Result<(Selection, String)> {
+fn select_and_record(prepared: &Prepared, layout: &Layout, git: &GitState, jobs: usize, started: Instant) -> Result<(Selection, String)> {
     let runs = crate::store::run::read_runs(layout, &prepared.plan)?;
     let selection = crate::selection::derive(prepared, &runs)?;
     write_json(&layout.selection(), &selection)?;
-    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
+    let (git_commit, git_dirty) = git.clone();
     write_json(
         &layout.timing(),
         &TimingRecord {
@@ -167,6 +162,9 @@ fn select_and_record(
     Ok((selection, digest))
 }
 
+/// The manifest repository's (commit, uncommitted changes), as `provenance::git_state` gives them.
+type GitState = (Option<String>, Option<bool>);
+
 fn ledger_entry(
     exp: &Experiment,
     plan: &Plan,
@@ -174,9 +172,9 @@ fn ledger_entry(
     report: &sweep::SweepReport,
     selection: &Selection,
     results_digest: &str,
-    manifest_path: &Path,
+    git: &GitState,
 ) -> LedgerEntry {
-    let (git_commit, git_dirty) = crate::provenance::git_state(manifest_path);
+    let (git_commit, git_dirty) = git.clone();
     LedgerEntry {
         time: crate::provenance::now_rfc3339(),
         experiment: exp.manifest.experiment.name.clone(),
@@ -288,9 +286,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         // Nothing was trained: the stored results stand, once they match their integrity list.
         (read_json(&layout.selection())?, crate::store::integrity::check(&layout.root)?)
     } else {
-        let recorded = select_and_record(&prepared, &layout, manifest_path, options.jobs, started)?;
+        // Asked once: the timing record and the ledger line name the same commit.
+        let git = crate::provenance::git_state(manifest_path);
+        let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started)?;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
-        ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, manifest_path))?;
+        ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;
         recorded
     };
     let out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);

@@ -79,49 +79,41 @@ fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
         .collect()
 }
 
-/// Rows identical (features and target) to an earlier row, as `pandas.DataFrame.duplicated()`
-/// counts them with its default `keep="first"`.
-pub fn duplicate_rows(table: &Table, roles: &Roles) -> usize {
+/// Every row's digest over the features and the target, in row order: computed once and shared
+/// by [`duplicate_rows`] and [`split_checks`].
+pub fn row_digests(table: &Table, roles: &Roles) -> Vec<u128> {
     let columns = seen_columns(table, roles);
-    let mut seen: HashSet<u128> = HashSet::with_capacity(table.rows);
     let mut key = Vec::new();
-    let mut duplicates = 0;
-    for row in 0..table.rows {
-        row_key(table, &columns, row, &mut key);
-        if !seen.insert(digest(&key)) {
-            duplicates += 1;
-        }
-    }
-    duplicates
+    (0..table.rows)
+        .map(|row| {
+            row_key(table, &columns, row, &mut key);
+            digest(&key)
+        })
+        .collect()
 }
 
-/// The split-dependent checks.
-pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits) -> SplitChecks {
-    let columns = seen_columns(table, roles);
-    let mut key = Vec::new();
-    let mut training: HashSet<u128> = HashSet::with_capacity(splits.train.len());
-    for &r in &splits.train {
-        row_key(table, &columns, r, &mut key);
-        training.insert(digest(&key));
-    }
-    let mut count_in = |rows: &[usize]| {
-        rows.iter()
-            .filter(|&&r| {
-                row_key(table, &columns, r, &mut key);
-                training.contains(&digest(&key))
-            })
-            .count()
-    };
+/// Rows identical (features and target) to an earlier row, as `pandas.DataFrame.duplicated()`
+/// counts them with its default `keep="first"`, from [`row_digests`].
+pub fn duplicate_rows(row_digests: &[u128]) -> usize {
+    let mut seen: HashSet<u128> = HashSet::with_capacity(row_digests.len());
+    row_digests.iter().filter(|d| !seen.insert(**d)).count()
+}
+
+/// The split-dependent checks; `row_digests` as [`row_digests`] gives them.
+pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits, row_digests: &[u128]) -> SplitChecks {
+    let training: HashSet<u128> = splits.train.iter().map(|&r| row_digests[r]).collect();
+    let count_in = |rows: &[usize]| rows.iter().filter(|&&r| training.contains(&row_digests[r])).count();
     let test_rows_duplicating_training = count_in(&splits.test);
     let validation_rows_duplicating_training = count_in(&splits.validation);
 
+    let mut key = Vec::new();
     let constant_on_training = roles
         .features
         .iter()
         .filter(|f| {
-            let Some(col) = table.column(&f.name) else { return false };
+            let Some(index) = table.columns.iter().position(|c| c.name == f.name) else { return false };
+            let (col, index) = (&table.columns[index], [index]);
             let mut first: Option<Vec<u8>> = None;
-            let index = [table.columns.iter().position(|c| c.name == f.name).unwrap_or(0)];
             !splits.train.iter().filter(|&&r| col.is_valid(r)).any(|&r| {
                 row_key(table, &index, r, &mut key);
                 match &first {
@@ -218,9 +210,10 @@ mod tests {
             ],
         };
         // Rows 1 and 3 repeat rows 0 and 2 (0.0 == -0.0, as in pandas); the id is not compared.
-        assert_eq!(duplicate_rows(&table, &roles(&["x"], &["id"])), 2);
+        let digests = row_digests(&table, &roles(&["x"], &["id"]));
+        assert_eq!(duplicate_rows(&digests), 2);
         let splits = Splits { train: vec![0, 2], validation: vec![4], test: vec![1, 3] };
-        let checks = split_checks(&table, &roles(&["x"], &["id"]), &splits);
+        let checks = split_checks(&table, &roles(&["x"], &["id"]), &splits, &digests);
         assert_eq!((checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training), (2, 0));
         assert!(checks.constant_on_training.is_empty() && checks.repeated_keys.is_empty());
     }
@@ -236,7 +229,8 @@ mod tests {
             ],
         };
         let splits = Splits { train: vec![0, 1, 2], validation: vec![4, 5], test: vec![3] };
-        let checks = split_checks(&table, &roles(&["x"], &["bed"]), &splits);
+        let r = roles(&["x"], &["bed"]);
+        let checks = split_checks(&table, &r, &splits, &row_digests(&table, &r));
         assert_eq!(checks.constant_on_training, vec!["x".to_string()]);
         assert_eq!(checks.repeated_keys, vec![KeyCrossing { column: "bed".into(), values: 3, crossing: 1, evaluation_rows_sharing: 1 }]);
     }

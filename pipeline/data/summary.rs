@@ -153,8 +153,9 @@ fn summarise_column(col: &Column, rows: usize, roles: &Roles, categorical: bool)
     }
 }
 
-/// Summarises every column, the target, and the warnings a reviewer should see.
-pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
+/// Summarises every column, the target, and the warnings a reviewer should see; `row_digests` as
+/// `leakage::row_digests` gives them, for the duplicate count.
+pub fn summarise(table: &Table, roles: &Roles, target: &Target, row_digests: &[u128]) -> DataSummary {
     let columns: Vec<ColumnSummary> = table
         .columns
         .iter()
@@ -194,7 +195,7 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target) -> DataSummary {
         }
         Target::Values(v) => TargetSummary { name: roles.target.clone(), classes: Vec::new(), distribution: numeric_stats(v.clone()) },
     };
-    let duplicates = duplicate_rows(table, roles);
+    let duplicates = duplicate_rows(row_digests);
     if duplicates > 0 {
         warnings.push(format!("{duplicates} rows repeat an earlier row exactly (features and target)"));
     }
