@@ -1,16 +1,19 @@
 //! An experiment resolved from its manifest and its data: the canonical manifest and its hash, both
 //! data fingerprints, the experiment fingerprint that names everything it produces, column roles,
-//! the encoded target, the data summary and the split.
+//! the encoded target, the data summary, the split and the preprocessing fitted on the training
+//! rows. The data file stays open and is never held decoded: the first pass ([`crate::data::scan`])
+//! reads it a column at a time, and the matrices are built from it later, a column at a time.
 
 use std::path::{Path, PathBuf};
 
-use crate::data::parquet::read_table;
-use crate::data::roles::{resolve, Roles, Target};
-use crate::data::split::{split, Splits};
-use crate::data::summary::{summarise, DataSummary};
-use crate::data::table::Table;
+use crate::data::parquet::ParquetSource;
+use crate::data::prep::Preprocessor;
+use crate::data::roles::{Roles, Target};
+use crate::data::scan::scan;
+use crate::data::split::Splits;
+use crate::data::summary::DataSummary;
 use crate::error::Result;
-use crate::fingerprint::{experiment_fingerprint, file_sha256};
+use crate::fingerprint::experiment_fingerprint;
 use crate::manifest::{self, LoadedManifest, Manifest};
 
 pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
@@ -40,11 +43,16 @@ pub struct Experiment {
     pub data_path: PathBuf,
     pub data: DataFingerprints,
     pub fingerprint: String,
-    pub table: Table,
+    /// The data file, open: the matrices and the test evaluation read it again, a column at a time.
+    pub source: ParquetSource,
+    pub rows: usize,
+    pub columns: usize,
     pub roles: Roles,
     pub target: Target,
     pub summary: DataSummary,
     pub splits: Splits,
+    /// Fitted on the training rows.
+    pub preprocessor: Preprocessor,
     /// Manifest keys the grid overrides, for `check` and `train` to report.
     pub overridden_by_grid: Vec<String>,
 }
@@ -76,16 +84,11 @@ pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
 
 /// As [`open_loaded`], with the data file given explicitly (verification of stored results).
 pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Experiment> {
-    let file_hash = file_sha256(&data_path)?;
-    let bytes = std::fs::metadata(&data_path).map(|m| m.len()).unwrap_or(0);
-    let table = read_table(&data_path)?;
-    let (roles, target) = resolve(&loaded.manifest, &table, &data_path)?;
-    let row_digests = crate::data::leakage::row_digests(&table, &roles);
-    let mut summary = summarise(&table, &roles, &target, &row_digests);
-    let splits = split(&table, &target, &loaded.manifest.split, &data_path)?;
-    summary.split_checks = Some(crate::data::leakage::split_checks(&table, &roles, &splits, &row_digests));
+    let source = ParquetSource::open(&data_path)?;
+    let (file_hash, bytes) = source.file_sha256()?;
+    let scanned = scan(&loaded.manifest, &source)?;
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
-    let content = table.content_hash();
+    let content = scanned.content_sha256;
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
     let outside_project = outside(&loaded.path, &data_path);
     Ok(Experiment {
@@ -101,11 +104,14 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
         manifest_sha256,
         data_path,
         fingerprint,
-        table,
-        roles,
-        target,
-        summary,
-        splits,
+        source,
+        rows: scanned.rows,
+        columns: scanned.columns,
+        roles: scanned.roles,
+        target: scanned.target,
+        summary: scanned.summary,
+        splits: scanned.splits,
+        preprocessor: scanned.preprocessor,
         overridden_by_grid: loaded.overridden_by_grid,
     })
 }

@@ -24,7 +24,7 @@ pub struct MemoryEstimate {
     pub largest: String,
     pub parameters: u64,
     pub per_worker: u64,
-    /// The decoded table and the encoded matrices, shared by every worker.
+    /// The encoded matrices and the per-row bookkeeping, shared by every worker.
     pub shared: u64,
     pub workers: usize,
     pub total: u64,
@@ -77,11 +77,10 @@ pub fn estimate(exp: &Experiment, plan: &Plan, inputs: usize, jobs: usize) -> Me
     let outputs = exp.head().outputs();
     let largest = plan.configs.iter().max_by_key(|c| worker_bytes(c, inputs, outputs));
     let per_worker = largest.map_or(0, |c| worker_bytes(c, inputs, outputs));
-    let rows = exp.table.rows as u64;
-    let shared = rows
-        .saturating_mul(exp.table.columns.len() as u64)
-        .saturating_mul(8)
-        .saturating_add(rows.saturating_mul(inputs as u64).saturating_mul(4 * 2));
+    // The f32 matrices of every row, plus what the first pass keeps per row (target, split lists,
+    // digest and its set: about 64 bytes) and one decoded column while it reads.
+    let rows = exp.rows as u64;
+    let shared = rows.saturating_mul(inputs as u64).saturating_mul(4).saturating_add(rows.saturating_mul(64 + 8));
     let workers = jobs.clamp(1, plan.runs.len().max(1));
     let total = shared.saturating_add(per_worker.saturating_mul(workers as u64));
     let label = match largest {

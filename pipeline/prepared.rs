@@ -1,5 +1,6 @@
 //! An experiment made ready to train or to retrain: its plan, the preprocessor fitted on the
-//! training rows, and the training and validation matrices that every run shares read-only.
+//! training rows, and the training and validation matrices that every run shares read-only, built
+//! straight from the data file a column at a time (the second pass).
 
 use crate::data::prep::{Matrix, Preprocessor};
 use crate::error::Result;
@@ -27,9 +28,11 @@ impl Prepared {
     /// another tool version keeps the stored run ids).
     pub fn with_fingerprint(exp: Experiment, fingerprint: &str) -> Result<Self> {
         let plan = plan::build(&exp.manifest, fingerprint)?;
-        let preprocessor = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path)?;
-        let (train_x, _) = preprocessor.transform(&exp.table, &exp.splits.train, &exp.data_path)?;
-        let (validation_x, _) = preprocessor.transform(&exp.table, &exp.splits.validation, &exp.data_path)?;
+        let preprocessor = exp.preprocessor.clone();
+        let mut matrices = preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.validation])?.into_iter();
+        let (Some((train_x, _)), Some((validation_x, _))) = (matrices.next(), matrices.next()) else {
+            return Err(crate::error::Error::Internal("two row lists gave fewer than two matrices".into()));
+        };
         let train_y = exp.labels(&exp.splits.train);
         let validation_y = exp.labels(&exp.splits.validation);
         Ok(Prepared { exp, plan, preprocessor, train_x, validation_x, train_y, validation_y })

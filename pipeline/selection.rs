@@ -390,17 +390,20 @@ pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
-    let (test_x, _) = preprocessor.transform(&exp.table, &exp.splits.test, &exp.data_path)?;
+    let (test_x, _) = preprocessor
+        .transform_source(&exp.source, &[&exp.splits.test])?
+        .pop()
+        .ok_or_else(|| crate::error::Error::Internal("one row list gave no matrix".into()))?;
     let test_y = exp.labels(&exp.splits.test);
     let groups: Vec<GroupColumn> = exp
         .roles
         .groups
         .iter()
-        .filter_map(|name| {
-            let col = exp.table.column(name)?;
-            Some(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
+        .map(|name| {
+            let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
+            Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
-        .collect();
+        .collect::<Result<_>>()?;
     let test = evaluate_test(
         runs,
         &picked.selected_config,

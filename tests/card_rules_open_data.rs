@@ -67,7 +67,8 @@ fn duplicate_rows_are_counted_as_pandas_counts_them() {
 
 /// Evaluation rows equal to some training row, by a plain comparison of every value as text.
 fn naive_cross_duplicates(exp: &tabcard::experiment::Experiment, evaluation: &[usize]) -> usize {
-    let columns: Vec<&tabcard::data::table::Column> = exp.table.columns.iter().collect();
+    let table = tabcard::data::parquet::read_table(&exp.data_path).unwrap();
+    let columns: Vec<&tabcard::data::table::Column> = table.columns.iter().collect();
     let row = |r: usize| columns.iter().map(|c| format!("{:?}", c.label(r))).collect::<Vec<_>>();
     let training: Vec<Vec<String>> = exp.splits.train.iter().map(|&r| row(r)).collect();
     evaluation.iter().filter(|&&r| training.contains(&row(r))).count()
@@ -169,7 +170,8 @@ fn a_model_that_cannot_beat_chance_is_flagged() {
 }
 
 fn subjects(exp: &tabcard::experiment::Experiment, rows: &[usize]) -> BTreeSet<String> {
-    let col = exp.table.column("Subject").unwrap();
+    let table = tabcard::data::parquet::read_table(&exp.data_path).unwrap();
+    let col = table.column("Subject").unwrap();
     rows.iter().map(|&r| col.label(r).unwrap()).collect()
 }
 

@@ -49,9 +49,11 @@ fn breast_cancer_has_its_published_rows_and_classes() {
 }
 
 fn fit_and_score(exp: &tabcard::experiment::Experiment, metric: &str) -> f64 {
-    let prep = Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path).unwrap();
-    let (tx, _) = prep.transform(&exp.table, &exp.splits.train, &exp.data_path).unwrap();
-    let (vx, _) = prep.transform(&exp.table, &exp.splits.validation, &exp.data_path).unwrap();
+    let table = tabcard::data::parquet::read_table(&exp.data_path).unwrap();
+    let prep = Preprocessor::fit(&table, &exp.roles.features, &exp.splits.train, &exp.data_path).unwrap();
+    assert_eq!(prep, exp.preprocessor, "fitted on the table in memory = fitted while scanning");
+    let (tx, _) = prep.transform(&table, &exp.splits.train, &exp.data_path).unwrap();
+    let (vx, _) = prep.transform(&table, &exp.splits.validation, &exp.data_path).unwrap();
     let (ty, vy) = (exp.labels(&exp.splits.train), exp.labels(&exp.splits.validation));
     let config = RunConfig { model: exp.manifest.model.clone(), training: exp.manifest.training.clone() };
     let data = RunData { train_x: &tx, train_y: &ty, validation_x: &vx, validation_y: &vy };

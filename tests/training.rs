@@ -364,10 +364,8 @@ fn lease_matrices() -> (Matrix, Labels, Matrix, Labels) {
     )
     .unwrap();
     let exp = tabcard::experiment::open(&dir.path().join("m.toml")).unwrap();
-    let prep = tabcard::data::prep::Preprocessor::fit(&exp.table, &exp.roles.features, &exp.splits.train, &exp.data_path).unwrap();
-    let (tx, _) = prep.transform(&exp.table, &exp.splits.train, &exp.data_path).unwrap();
-    let (vx, _) = prep.transform(&exp.table, &exp.splits.validation, &exp.data_path).unwrap();
-    (tx, exp.labels(&exp.splits.train), vx, exp.labels(&exp.splits.validation))
+    let p = tabcard::prepared::Prepared::new(exp).unwrap();
+    (p.train_x, p.train_y, p.validation_x, p.validation_y)
 }
 
 fn weight_norm(r: &tabcard::train::RunResult) -> f64 {

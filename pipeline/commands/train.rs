@@ -14,7 +14,7 @@ use crate::prepared::Prepared;
 use crate::selection::Selection;
 use crate::shard::Shard;
 use crate::store::ledger::{self, LedgerEntry};
-use crate::store::timing::TimingRecord;
+use crate::store::timing::{phase, Phase, TimingRecord};
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
 use crate::sweep::{self, Event, SweepInputs};
 
@@ -142,9 +142,18 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 
 /// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
 /// card (which seals the folder). Returns the selection and the results digest.
-fn select_and_record(prepared: &Prepared, layout: &Layout, git: &GitState, jobs: usize, started: Instant) -> Result<(Selection, String)> {
+fn select_and_record(
+    prepared: &Prepared,
+    layout: &Layout,
+    git: &GitState,
+    jobs: usize,
+    started: Instant,
+    mut phases: Vec<Phase>,
+) -> Result<(Selection, String)> {
+    let selecting = Instant::now();
     let runs = crate::store::run::read_runs(layout, &prepared.plan)?;
     let selection = crate::selection::derive(prepared, &runs)?;
+    phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     write_json(&layout.selection(), &selection)?;
     let (git_commit, git_dirty) = git.clone();
     write_json(
@@ -156,6 +165,7 @@ fn select_and_record(prepared: &Prepared, layout: &Layout, git: &GitState, jobs:
             jobs,
             wall_seconds: started.elapsed().as_secs_f64(),
             run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
+            phases,
         },
     )?;
     let digest = crate::card::write_card(layout, None)?;
@@ -240,7 +250,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let started = Instant::now();
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
     let environment = crate::numerics::current()?;
-    let prepared = Prepared::new(open(manifest_path)?)?;
+    let exp = open(manifest_path)?;
+    let mut phases = vec![Phase { name: phase::SCAN.into(), seconds: started.elapsed().as_secs_f64() }];
+    let building = Instant::now();
+    let prepared = Prepared::new(exp)?;
+    phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
@@ -276,7 +290,9 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         jobs: options.jobs,
         shard: options.shard,
     };
+    let sweeping = Instant::now();
     let report = sweep::run(&inputs, on_event)?;
+    phases.push(Phase { name: phase::SWEEP.into(), seconds: sweeping.elapsed().as_secs_f64() });
     if let Some(shard) = options.shard {
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));
     }
@@ -288,7 +304,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     } else {
         // Asked once: the timing record and the ledger line name the same commit.
         let git = crate::provenance::git_state(manifest_path);
-        let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started)?;
+        let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started, phases)?;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
         ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;
         recorded

@@ -1,7 +1,8 @@
 //! What a split can let through from training to evaluation: exact duplicate rows (counted over
 //! the columns the model sees: features and target), duplicates that sit in training and in an
 //! evaluation split, features constant on the training rows, and repeated keys (ids and the split
-//! group) whose values occur in more than one split.
+//! group) whose values occur in more than one split. Each check reads one column, or the rows'
+//! digests, so the checks run on a file read a column (or a chunk of rows) at a time.
 
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -9,7 +10,7 @@ use std::collections::{HashMap, HashSet};
 
 use super::roles::Roles;
 use super::split::Splits;
-use super::table::{ColumnValues, Table};
+use super::table::{Column, ColumnValues, Table};
 
 /// A repeated key and how many of its values occur in more than one split.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -42,20 +43,30 @@ pub struct SplitChecks {
 fn row_key(table: &Table, columns: &[usize], row: usize, out: &mut Vec<u8>) {
     out.clear();
     for &c in columns {
-        let col = &table.columns[c];
-        if !col.is_valid(row) {
-            out.push(0);
-            continue;
-        }
-        out.push(1);
-        match &col.values {
-            ColumnValues::Float(v) => out.extend_from_slice(&(v[row] + 0.0).to_bits().to_le_bytes()),
-            ColumnValues::Float32(v) => out.extend_from_slice(&(f64::from(v[row]) + 0.0).to_bits().to_le_bytes()),
-            ColumnValues::Int(v) => out.extend_from_slice(&v[row].to_le_bytes()),
-            ColumnValues::Bool(v) => out.push(v[row] as u8),
-            ColumnValues::Text { codes, .. } => out.extend_from_slice(&codes[row].to_le_bytes()),
-        }
+        push_value(&table.columns[c], row, out);
     }
+}
+
+/// One value's key bytes (see [`row_key`]), appended to `out`.
+fn push_value(col: &Column, row: usize, out: &mut Vec<u8>) {
+    if !col.is_valid(row) {
+        out.push(0);
+        return;
+    }
+    out.push(1);
+    match &col.values {
+        ColumnValues::Float(v) => out.extend_from_slice(&(v[row] + 0.0).to_bits().to_le_bytes()),
+        ColumnValues::Float32(v) => out.extend_from_slice(&(f64::from(v[row]) + 0.0).to_bits().to_le_bytes()),
+        ColumnValues::Int(v) => out.extend_from_slice(&v[row].to_le_bytes()),
+        ColumnValues::Bool(v) => out.push(v[row] as u8),
+        ColumnValues::Text { codes, .. } => out.extend_from_slice(&codes[row].to_le_bytes()),
+    }
+}
+
+/// One value's key bytes alone.
+fn value_key(col: &Column, row: usize, out: &mut Vec<u8>) {
+    out.clear();
+    push_value(col, row, out);
 }
 
 /// A row's identity for duplicate counting: the first 128 bits of SHA-256 over its key bytes. Rows
@@ -80,7 +91,9 @@ fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
 }
 
 /// Every row's digest over the features and the target, in row order: computed once and shared
-/// by [`duplicate_rows`] and [`split_checks`].
+/// by [`duplicate_rows`] and [`split_checks`]. `table` may be a chunk of consecutive rows holding
+/// only some columns: a row's digest depends only on its own values (text by code, and codes
+/// mean the same level in every chunk of one read).
 pub fn row_digests(table: &Table, roles: &Roles) -> Vec<u128> {
     let columns = seen_columns(table, roles);
     let mut key = Vec::new();
@@ -99,81 +112,88 @@ pub fn duplicate_rows(row_digests: &[u128]) -> usize {
     row_digests.iter().filter(|d| !seen.insert(**d)).count()
 }
 
-/// The split-dependent checks; `row_digests` as [`row_digests`] gives them.
-pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits, row_digests: &[u128]) -> SplitChecks {
+/// Test and validation rows identical (features and target) to some training row.
+pub fn rows_duplicating_training(splits: &Splits, row_digests: &[u128]) -> (usize, usize) {
     let training: HashSet<u128> = splits.train.iter().map(|&r| row_digests[r]).collect();
     let count_in = |rows: &[usize]| rows.iter().filter(|&&r| training.contains(&row_digests[r])).count();
-    let test_rows_duplicating_training = count_in(&splits.test);
-    let validation_rows_duplicating_training = count_in(&splits.validation);
+    (count_in(&splits.test), count_in(&splits.validation))
+}
 
-    let mut key = Vec::new();
-    let constant_on_training = roles
-        .features
-        .iter()
-        .filter(|f| {
-            let Some(index) = table.columns.iter().position(|c| c.name == f.name) else { return false };
-            let (col, index) = (&table.columns[index], [index]);
-            let mut first: Option<Vec<u8>> = None;
-            !splits.train.iter().filter(|&&r| col.is_valid(r)).any(|&r| {
-                row_key(table, &index, r, &mut key);
-                match &first {
-                    None => {
-                        first = Some(key.clone());
-                        false
-                    }
-                    Some(k) => *k != key,
-                }
-            })
-        })
-        .map(|f| f.name.clone())
-        .collect();
+/// Whether a column holds at most one distinct value among the training rows (nulls aside).
+pub fn constant_on_training(col: &Column, train: &[usize]) -> bool {
+    let (mut key, mut first) = (Vec::new(), None::<Vec<u8>>);
+    !train.iter().filter(|&&r| col.is_valid(r)).any(|&r| {
+        value_key(col, r, &mut key);
+        match &first {
+            None => {
+                first = Some(key.clone());
+                false
+            }
+            Some(k) => *k != key,
+        }
+    })
+}
 
-    // Ids and the split group name units (a customer, a bed); group columns name groups of
-    // people (a region), which are meant to appear in every split.
-    let mut keys: Vec<&String> = roles.ids.iter().chain(roles.split_group.iter()).collect();
+/// The columns whose crossings are checked: ids and the split group name units (a customer, a
+/// bed); group columns name groups of people (a region), which are meant to appear in every split.
+pub fn key_columns(roles: &Roles) -> Vec<String> {
+    let mut keys: Vec<String> = roles.ids.iter().chain(roles.split_group.iter()).cloned().collect();
     keys.dedup();
+    keys
+}
+
+/// How a key column crosses the split; `None` when every value occurs on one row only.
+pub fn key_crossing(col: &Column, splits: &Splits) -> Option<KeyCrossing> {
     // One byte per row: 1 training, 2 validation, 4 test.
-    let mut part_of = vec![0u8; table.rows];
+    let mut part_of = vec![0u8; col.len()];
     for (rows, bit) in [(&splits.train, 1u8), (&splits.validation, 2), (&splits.test, 4)] {
         for &r in rows {
             part_of[r] = bit;
         }
     }
-    let mut repeated_keys = Vec::new();
-    for name in keys {
-        let Some(index) = table.columns.iter().position(|c| c.name == *name) else { continue };
-        let col = &table.columns[index];
-        // Values by their digest (as rows above), so a unique id per row costs 16 bytes, not a string.
-        let value_of = |row: usize, key: &mut Vec<u8>| {
-            col.is_valid(row).then(|| {
-                row_key(table, &[index], row, key);
-                digest(key)
-            })
-        };
-        let mut parts: HashMap<u128, (u8, usize)> = HashMap::new();
-        for (row, &bit) in part_of.iter().enumerate() {
-            if let Some(v) = value_of(row, &mut key) {
-                let entry = parts.entry(v).or_insert((0, 0));
-                entry.0 |= bit;
-                entry.1 += 1;
-            }
+    // Values by their digest (as rows above), so a unique id per row costs 16 bytes, not a string.
+    let value_of = |row: usize, key: &mut Vec<u8>| {
+        col.is_valid(row).then(|| {
+            value_key(col, row, key);
+            digest(key)
+        })
+    };
+    let mut key = Vec::new();
+    let mut parts: HashMap<u128, (u8, usize)> = HashMap::new();
+    for (row, &bit) in part_of.iter().enumerate() {
+        if let Some(v) = value_of(row, &mut key) {
+            let entry = parts.entry(v).or_insert((0, 0));
+            entry.0 |= bit;
+            entry.1 += 1;
         }
-        if parts.values().all(|&(_, rows)| rows == 1) {
-            continue;
-        }
-        let evaluation_rows_sharing = splits
-            .validation
-            .iter()
-            .chain(&splits.test)
-            .filter(|&&r| value_of(r, &mut key).and_then(|v| parts.get(&v)).is_some_and(|&(bits, _)| bits & 1 == 1))
-            .count();
-        repeated_keys.push(KeyCrossing {
-            column: name.clone(),
-            values: parts.len(),
-            crossing: parts.values().filter(|&&(bits, _)| bits.count_ones() > 1).count(),
-            evaluation_rows_sharing,
-        });
     }
+    if parts.values().all(|&(_, rows)| rows == 1) {
+        return None;
+    }
+    let evaluation_rows_sharing = splits
+        .validation
+        .iter()
+        .chain(&splits.test)
+        .filter(|&&r| value_of(r, &mut key).and_then(|v| parts.get(&v)).is_some_and(|&(bits, _)| bits & 1 == 1))
+        .count();
+    Some(KeyCrossing {
+        column: col.name.clone(),
+        values: parts.len(),
+        crossing: parts.values().filter(|&&(bits, _)| bits.count_ones() > 1).count(),
+        evaluation_rows_sharing,
+    })
+}
+
+/// The split-dependent checks on a table in memory; `row_digests` as [`row_digests`] gives them.
+pub fn split_checks(table: &Table, roles: &Roles, splits: &Splits, row_digests: &[u128]) -> SplitChecks {
+    let (test_rows_duplicating_training, validation_rows_duplicating_training) = rows_duplicating_training(splits, row_digests);
+    let constant_on_training = roles
+        .features
+        .iter()
+        .filter(|f| table.column(&f.name).is_some_and(|c| constant_on_training(c, &splits.train)))
+        .map(|f| f.name.clone())
+        .collect();
+    let repeated_keys = key_columns(roles).iter().filter_map(|name| key_crossing(table.column(name)?, splits)).collect();
     SplitChecks { test_rows_duplicating_training, validation_rows_duplicating_training, constant_on_training, repeated_keys }
 }
 

@@ -20,7 +20,9 @@ struct Builder {
     /// Validity per row, kept only once a null has been seen (empty before).
     valid: Vec<bool>,
     has_null: bool,
+    /// Rows appended so far, and the row the values held now start at (chunked reads).
     rows: usize,
+    start: usize,
     level_index: HashMap<String, u32>,
 }
 
@@ -46,6 +48,40 @@ fn empty_values(dt: &DataType) -> ColumnValues {
 }
 
 impl Builder {
+    fn new(field: &Field) -> Self {
+        Builder {
+            name: field.name().clone(),
+            source_type: field.data_type().to_string(),
+            values: empty_values(field.data_type()),
+            valid: Vec::new(),
+            has_null: false,
+            rows: 0,
+            start: 0,
+            level_index: HashMap::new(),
+        }
+    }
+
+    /// The rows held since the last take, as a column; the builder carries on empty (its text
+    /// levels go with the column and come back through [`Builder::restore`]).
+    fn take(&mut self) -> Column {
+        let values = match &mut self.values {
+            ColumnValues::Float(v) => ColumnValues::Float(std::mem::take(v)),
+            ColumnValues::Float32(v) => ColumnValues::Float32(std::mem::take(v)),
+            ColumnValues::Int(v) => ColumnValues::Int(std::mem::take(v)),
+            ColumnValues::Bool(v) => ColumnValues::Bool(std::mem::take(v)),
+            ColumnValues::Text { codes, levels } => ColumnValues::Text { codes: std::mem::take(codes), levels: std::mem::take(levels) },
+        };
+        let valid = std::mem::take(&mut self.has_null).then(|| std::mem::take(&mut self.valid));
+        self.start = self.rows;
+        Column { name: self.name.clone(), source_type: self.source_type.clone(), values, valid }
+    }
+
+    fn restore(&mut self, col: Column) {
+        if let (ColumnValues::Text { levels, .. }, ColumnValues::Text { levels: back, .. }) = (&mut self.values, col.values) {
+            *levels = back;
+        }
+    }
+
     fn push_text(&mut self, value: Option<&str>) {
         let ColumnValues::Text { codes, levels } = &mut self.values else { return };
         match value {
@@ -73,7 +109,7 @@ impl Builder {
         self.rows += n;
         if !self.has_null && nulls.as_ref().is_some_and(|b| b.null_count() > 0) {
             self.has_null = true;
-            self.valid = vec![true; first_row];
+            self.valid = vec![true; first_row - self.start];
         }
         if self.has_null {
             self.valid.extend((0..n).map(is_valid));
@@ -180,16 +216,10 @@ pub fn read_table(path: &Path) -> Result<Table> {
     read_from(&open, path)
 }
 
-/// Reads only the named columns (in file order) across every row group: the building block of a
-/// data path that never holds the whole decoded table. The columns are identical, value for
-/// value, to the same columns of [`read_table`].
+/// Reads only the named columns (in file order) across every row group. The columns are
+/// identical, value for value, to the same columns of [`read_table`].
 pub fn read_columns(path: &Path, names: &[&str]) -> Result<Table> {
-    let open = || std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e));
-    let owned: Vec<String> = names.iter().map(|s| s.to_string()).collect();
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode_projected(&open, path, Some(&owned)))) {
-        Ok(result) => result,
-        Err(_) => Err(Error::data(path, None, "corrupt Parquet file: the reader failed")),
-    }
+    ParquetSource::open(path)?.read(names)
 }
 
 /// The column names of a Parquet file in order, without decoding any value.
@@ -206,6 +236,192 @@ pub fn read_table_from_bytes(bytes: Vec<u8>, name: &Path) -> Result<Table> {
     read_from(&|| Ok(bytes.clone()), name)
 }
 
+/// A Parquet file opened once and checked once (metadata offsets, dictionary page sizes, column
+/// types, unique names), then read a few columns at a time, or a few rows at a time, without ever
+/// holding the whole decoded table. The file stays open, so a file replaced by rename between two
+/// reads is still read as it was; a file changed in place (length or modification time) is an
+/// error, never silently mixed.
+pub struct ParquetSource {
+    path: std::path::PathBuf,
+    file: std::fs::File,
+    fields: Vec<Field>,
+    rows: usize,
+    identity: (u64, Option<std::time::SystemTime>),
+}
+
+/// Rows per decoded chunk in [`ParquetSource::for_each_chunk`] (and per Arrow batch).
+pub const CHUNK_ROWS: usize = 65_536;
+
+fn identity_of(file: &std::fs::File) -> (u64, Option<std::time::SystemTime>) {
+    file.metadata().map(|m| (m.len(), m.modified().ok())).unwrap_or((0, None))
+}
+
+impl ParquetSource {
+    pub fn open(path: &Path) -> Result<Self> {
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+        let identity = identity_of(&file);
+        let clone = || file.try_clone().map_err(|e| Error::io(path, "open the data file", e));
+        let (fields, rows) = guarded(path, || {
+            let builder = checked_builder(&clone, path)?;
+            let rows = usize::try_from(builder.metadata().file_metadata().num_rows())
+                .map_err(|_| Error::data(path, None, "corrupt Parquet metadata: negative row count"))?;
+            Ok((builder.schema().fields().iter().map(|f| f.as_ref().clone()).collect::<Vec<_>>(), rows))
+        })?;
+        Ok(ParquetSource { path: path.to_path_buf(), file, fields, rows, identity })
+    }
+
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// SHA-256 of the file's bytes, read through the handle every later read uses, and its length.
+    pub fn file_sha256(&self) -> Result<(String, u64)> {
+        use sha2::{Digest, Sha256};
+        use std::io::{Read, Seek};
+        let io = |e| Error::io(&self.path, "read the data file", e);
+        let mut file = self.file.try_clone().map_err(io)?;
+        file.rewind().map_err(io)?;
+        let (mut hasher, mut buf, mut bytes) = (Sha256::new(), vec![0u8; 1 << 20], 0u64);
+        loop {
+            let n = file.read(&mut buf).map_err(io)?;
+            if n == 0 {
+                break;
+            }
+            hasher.update(&buf[..n]);
+            bytes += n as u64;
+        }
+        if bytes != self.identity.0 {
+            return Err(Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put"));
+        }
+        Ok((crate::fingerprint::hex(&hasher.finalize()), bytes))
+    }
+
+    /// Rows as the file's metadata declares them (every read checks it gets exactly these).
+    pub fn rows(&self) -> usize {
+        self.rows
+    }
+
+    /// Column names in file order.
+    pub fn names(&self) -> Vec<String> {
+        self.fields.iter().map(|f| f.name().clone()).collect()
+    }
+
+    /// Whether the column holds strings (plain or dictionary-encoded).
+    pub fn is_text(&self, name: &str) -> bool {
+        self.fields.iter().find(|f| f.name() == name).is_some_and(|f| matches!(empty_values(f.data_type()), ColumnValues::Text { .. }))
+    }
+
+    fn reader(&self) -> Result<ParquetRecordBatchReaderBuilder<std::fs::File>> {
+        if identity_of(&self.file) != self.identity {
+            return Err(Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put"));
+        }
+        let file = self.file.try_clone().map_err(|e| Error::io(&self.path, "open the data file", e))?;
+        ParquetRecordBatchReaderBuilder::try_new(file)
+            .map_err(|e| Error::data(&self.path, None, format!("not a readable Parquet file: {e}")))
+    }
+
+    /// The named columns (in file order) across every row group.
+    pub fn read(&self, names: &[&str]) -> Result<Table> {
+        let mut table = None;
+        self.decode(names, usize::MAX, &mut |t| {
+            table = Some(t);
+            Ok(None)
+        })?;
+        let table = table.unwrap_or_default();
+        self.check_rows(table.rows)?;
+        Ok(table)
+    }
+
+    /// The named columns (in file order), [`CHUNK_ROWS`] rows at a time: `visit(first_row,
+    /// chunk)`. Text codes mean the same level in every chunk (as in [`read_table`]).
+    pub fn for_each_chunk(&self, names: &[&str], mut visit: impl FnMut(usize, &Table) -> Result<()>) -> Result<()> {
+        let mut first = 0;
+        let mut rows = 0;
+        self.decode(names, CHUNK_ROWS, &mut |t| {
+            visit(first, &t)?;
+            first += t.rows;
+            rows = first;
+            Ok(Some(t))
+        })?;
+        self.check_rows(rows)
+    }
+
+    fn check_rows(&self, got: usize) -> Result<()> {
+        if got != self.rows {
+            return Err(Error::data(
+                &self.path,
+                None,
+                format!("corrupt Parquet file: the metadata declares {} rows but {got} were read", self.rows),
+            ));
+        }
+        Ok(())
+    }
+
+    /// Decodes `names`, handing `sink` a table every `every` rows (and at the end); `sink` may hand
+    /// the table back so its text levels carry on into the next chunk.
+    fn decode(&self, names: &[&str], every: usize, sink: &mut dyn FnMut(Table) -> Result<Option<Table>>) -> Result<()> {
+        let path = self.path.as_path();
+        guarded(path, || {
+            let builder = self.reader()?;
+            let schema = builder.schema().clone();
+            if let Some(missing) = names.iter().find(|n| schema.field_with_name(n).is_err()) {
+                return Err(Error::data(path, Some(missing), "is not in the file"));
+            }
+            let wanted: Vec<usize> = (0..schema.fields().len()).filter(|&i| names.contains(&schema.field(i).name().as_str())).collect();
+            let mut columns: Vec<Builder> = wanted.iter().map(|&i| Builder::new(schema.field(i))).collect();
+            let mask = parquet::arrow::ProjectionMask::roots(builder.parquet_schema(), wanted.iter().copied());
+            let reader = builder
+                .with_projection(mask)
+                .with_batch_size(CHUNK_ROWS)
+                .build()
+                .map_err(|e| Error::data(path, None, format!("not a readable Parquet file: {e}")))?;
+            let mut rows = 0usize;
+            let mut pending = 0usize;
+            for batch in reader {
+                let batch =
+                    batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
+                for (builder, array) in columns.iter_mut().zip(batch.columns()) {
+                    builder.append(array, path)?;
+                }
+                rows += batch.num_rows();
+                pending += batch.num_rows();
+                if pending >= every {
+                    pending = 0;
+                    let chunk = Table {
+                        rows: columns.first().map_or(0, |c| c.rows - c.start),
+                        columns: columns.iter_mut().map(Builder::take).collect(),
+                    };
+                    if let Some(back) = sink(chunk)? {
+                        for (builder, col) in columns.iter_mut().zip(back.columns) {
+                            builder.restore(col);
+                        }
+                    }
+                }
+            }
+            if pending > 0 || rows == 0 || every == usize::MAX {
+                let chunk = Table {
+                    rows: columns.first().map_or(rows, |c| c.rows - c.start),
+                    columns: columns.into_iter().map(Builder::finish).collect(),
+                };
+                sink(chunk)?;
+            }
+            Ok(())
+        })
+    }
+}
+
+/// Runs `f`, turning a panic inside the parquet crate on hostile input into a corrupt-file error:
+/// never allowed to end the process.
+fn guarded<T>(path: &Path, f: impl FnOnce() -> Result<T>) -> Result<T> {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)) {
+        Ok(result) => result,
+        Err(panic) => {
+            let detail =
+                panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
+            Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")))
+        }
+    }
+}
 /// Checks every dictionary page's declared value count against its size before the Arrow reader
 /// trusts it: the parquet crate allocates the declared count up front, so a hostile header could
 /// otherwise ask for gigabytes. Data pages are skipped without decompressing them.
@@ -244,34 +460,35 @@ fn check_dictionary_pages<R: parquet::file::reader::ChunkReader + 'static>(file:
     Ok(())
 }
 
-/// Reads a table; a panic inside the parquet crate on hostile input is caught here and reported
-/// as a corrupt file, never allowed to end the process.
+/// Reads a whole table; `open` gives a fresh reader over the same bytes each time it is called
+/// (one pass checks the dictionary pages, one decodes).
 fn read_from<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| decode(open, path))) {
-        Ok(result) => result,
-        Err(panic) => {
-            let detail =
-                panic.downcast_ref::<String>().cloned().or_else(|| panic.downcast_ref::<&str>().map(|s| s.to_string())).unwrap_or_default();
-            Err(Error::data(path, None, format!("corrupt Parquet file: the reader failed ({detail})")))
+    guarded(path, || {
+        let builder = checked_builder(open, path)?;
+        let not_parquet = |e: parquet::errors::ParquetError| Error::data(path, None, format!("not a readable Parquet file: {e}"));
+        let mut columns: Vec<Builder> = builder.schema().fields().iter().map(|f| Builder::new(f)).collect();
+        let reader = builder.with_batch_size(CHUNK_ROWS).build().map_err(not_parquet)?;
+        let mut rows = 0usize;
+        for batch in reader {
+            let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
+            for (builder, array) in columns.iter_mut().zip(batch.columns()) {
+                builder.append(array, path)?;
+            }
+            rows += batch.num_rows();
         }
-    }
+        Ok(Table { rows, columns: columns.into_iter().map(Builder::finish).collect() })
+    })
 }
 
-/// `open` gives a fresh reader over the same bytes each time it is called (one pass checks the
-/// dictionary pages, one decodes).
-fn decode<R: parquet::file::reader::ChunkReader + 'static>(open: &dyn Fn() -> Result<R>, path: &Path) -> Result<Table> {
-    decode_projected(open, path, None)
-}
-
-/// [`decode`] of every column, or only of `only` (names, kept in file order).
-fn decode_projected<R: parquet::file::reader::ChunkReader + 'static>(
+/// Opens the reader and checks what the parquet crate would trust blindly or cannot use:
+/// negative column offsets or sizes (it asserts on them), dictionary pages that declare more
+/// values than they hold, column types tabcard cannot use, and repeated column names.
+fn checked_builder<R: parquet::file::reader::ChunkReader + 'static>(
     open: &dyn Fn() -> Result<R>,
     path: &Path,
-    only: Option<&[String]>,
-) -> Result<Table> {
+) -> Result<ParquetRecordBatchReaderBuilder<R>> {
     let not_parquet = |e: parquet::errors::ParquetError| Error::data(path, None, format!("not a readable Parquet file: {e}"));
     let builder = ParquetRecordBatchReaderBuilder::try_new(open()?).map_err(not_parquet)?;
-    // The parquet crate asserts (panics) on negative column offsets or sizes; reject them first.
     for (g, group) in builder.metadata().row_groups().iter().enumerate() {
         for column in group.columns() {
             let start = column.dictionary_page_offset().unwrap_or(column.data_page_offset());
@@ -285,16 +502,8 @@ fn decode_projected<R: parquet::file::reader::ChunkReader + 'static>(
         }
     }
     check_dictionary_pages(open()?, path)?;
-    let schema = builder.schema().clone();
-    if let Some(names) = only {
-        if let Some(missing) = names.iter().find(|n| schema.field_with_name(n).is_err()) {
-            return Err(Error::data(path, Some(missing), "is not in the file"));
-        }
-    }
-    let wanted: Vec<usize> =
-        (0..schema.fields().len()).filter(|&i| only.is_none_or(|names| names.contains(schema.field(i).name()))).collect();
-    let mut columns = Vec::with_capacity(wanted.len());
-    for field in wanted.iter().map(|&i| schema.field(i)) {
+    let mut seen = std::collections::HashSet::new();
+    for field in builder.schema().fields() {
         if !supported(field.data_type()) {
             return Err(Error::data(
                 path,
@@ -305,38 +514,11 @@ fn decode_projected<R: parquet::file::reader::ChunkReader + 'static>(
                 ),
             ));
         }
-        columns.push(Builder {
-            name: field.name().clone(),
-            source_type: field.data_type().to_string(),
-            values: empty_values(field.data_type()),
-            valid: Vec::new(),
-            has_null: false,
-            rows: 0,
-            level_index: HashMap::new(),
-        });
-    }
-    let mut seen = std::collections::HashSet::new();
-    if let Some(dup) = columns.iter().find(|c| !seen.insert(c.name.clone())) {
-        return Err(Error::data(path, Some(&dup.name), "appears more than once in the schema"));
-    }
-    let builder = match only {
-        // Top-level columns are the schema's roots, in the same order as the Arrow fields.
-        Some(_) => {
-            let mask = parquet::arrow::ProjectionMask::roots(builder.parquet_schema(), wanted.iter().copied());
-            builder.with_projection(mask)
+        if !seen.insert(field.name().clone()) {
+            return Err(Error::data(path, Some(field.name()), "appears more than once in the schema"));
         }
-        None => builder,
-    };
-    let reader = builder.with_batch_size(65_536).build().map_err(not_parquet)?;
-    let mut rows = 0usize;
-    for batch in reader {
-        let batch = batch.map_err(|e| Error::data(path, None, format!("corrupt or truncated Parquet data after row {rows}: {e}")))?;
-        for (builder, array) in columns.iter_mut().zip(batch.columns()) {
-            builder.append(array, path)?;
-        }
-        rows += batch.num_rows();
     }
-    Ok(Table { rows, columns: columns.into_iter().map(Builder::finish).collect() })
+    Ok(builder)
 }
 
 /// How a Parquet file is written: compression and rows per row group.

@@ -2,13 +2,16 @@
 //! numeric columns, standardisation (a zero-variance column gets scale 1), and one-hot encoding of
 //! categories with a bucket for levels unseen in training (missing categories take the most
 //! frequent level plus an indicator). The fitted [`Preprocessor`] is plain data, stored with each
-//! model, so scoring new rows later applies exactly the same transformation.
+//! model, so scoring new rows later applies exactly the same transformation. Fitting and encoding
+//! work one feature column at a time, so the matrices can be built from a file read column by
+//! column ([`Preprocessor::transform_source`]).
 
 use serde::{Deserialize, Serialize};
 use std::collections::{BTreeMap, HashMap};
 use std::path::Path;
 
 use super::roles::Feature;
+use super::source::ColumnSource;
 use super::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
 
@@ -89,20 +92,58 @@ pub struct TransformReport {
 /// Minimum, median (linear interpolation, as `quantile_sorted(_, 0.5)` on the sorted values) and
 /// maximum of non-empty `values`, by selection instead of a full sort; reorders `values`.
 fn min_median_max(values: &mut [f64]) -> (f64, f64, f64) {
-    // total_cmp, as the sort did: -0.0 orders below 0.0.
-    let min = values.iter().copied().min_by(f64::total_cmp).unwrap_or(f64::NAN);
-    let max = values.iter().copied().max_by(f64::total_cmp).unwrap_or(f64::NAN);
-    let pos = 0.5 * (values.len() - 1) as f64;
-    let lo = pos.floor() as usize;
-    let (_, &mut below, above) = values.select_nth_unstable_by(lo, f64::total_cmp);
-    let next = if pos > lo as f64 { above.iter().copied().min_by(f64::total_cmp).unwrap_or(below) } else { below };
-    // The same arithmetic as quantile_sorted, so even -0.0 comes out as it did.
-    let median = below + (next - below) * (pos - lo as f64);
-    (min, median, max)
+    let (min, max) = super::order::min_max(values).unwrap_or((f64::NAN, f64::NAN));
+    (min, super::order::quantile(values, 0.5), max)
 }
 
 fn observed(col: &Column, rows: &[usize]) -> Vec<f64> {
     rows.iter().filter_map(|&r| col.number(r)).collect()
+}
+
+/// Fits one feature's encoding on the training rows `rows` of its column.
+pub fn fit_feature(col: &Column, f: &Feature, rows: &[usize], file: &Path) -> Result<InputEncoding> {
+    let has_missing = rows.iter().any(|&r| !col.is_valid(r));
+    if f.categorical {
+        let mut counts: BTreeMap<String, usize> = BTreeMap::new();
+        for &r in rows {
+            if let Some(l) = col.label(r) {
+                *counts.entry(l).or_default() += 1;
+            }
+        }
+        if counts.is_empty() {
+            return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
+        }
+        let mut levels: Vec<(String, usize)> = counts.into_iter().collect();
+        levels.sort_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
+        Ok(InputEncoding::Categorical {
+            name: f.name.clone(),
+            levels: levels.into_iter().map(|(l, _)| l).collect(),
+            impute: 0,
+            indicator: has_missing,
+        })
+    } else {
+        if col.is_text() {
+            return Err(Error::data(file, Some(&f.name), "is text but was expected to be numeric"));
+        }
+        let mut values = observed(col, rows);
+        if values.is_empty() {
+            return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
+        }
+        let n = values.len() as f64;
+        let mean = values.iter().sum::<f64>() / n;
+        let var = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n;
+        let std = var.sqrt();
+        let (train_min, impute, train_max) = min_median_max(&mut values);
+        Ok(InputEncoding::Numeric {
+            name: f.name.clone(),
+            impute,
+            mean,
+            scale: if std > 0.0 && std.is_finite() { std } else { 1.0 },
+            indicator: has_missing,
+            train_min,
+            train_max,
+        })
+    }
 }
 
 impl Preprocessor {
@@ -111,49 +152,13 @@ impl Preprocessor {
         let mut inputs = Vec::with_capacity(features.len());
         for f in features {
             let col = table.column(&f.name).ok_or_else(|| Error::data(file, Some(&f.name), "is missing"))?;
-            let has_missing = rows.iter().any(|&r| !col.is_valid(r));
-            if f.categorical {
-                let mut counts: BTreeMap<String, usize> = BTreeMap::new();
-                for &r in rows {
-                    if let Some(l) = col.label(r) {
-                        *counts.entry(l).or_default() += 1;
-                    }
-                }
-                if counts.is_empty() {
-                    return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
-                }
-                let mut levels: Vec<(String, usize)> = counts.into_iter().collect();
-                levels.sort_by(|a, b| b.1.cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
-                inputs.push(InputEncoding::Categorical {
-                    name: f.name.clone(),
-                    levels: levels.into_iter().map(|(l, _)| l).collect(),
-                    impute: 0,
-                    indicator: has_missing,
-                });
-            } else {
-                if col.is_text() {
-                    return Err(Error::data(file, Some(&f.name), "is text but was expected to be numeric"));
-                }
-                let mut values = observed(col, rows);
-                if values.is_empty() {
-                    return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
-                }
-                let n = values.len() as f64;
-                let mean = values.iter().sum::<f64>() / n;
-                let var = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n;
-                let std = var.sqrt();
-                let (train_min, impute, train_max) = min_median_max(&mut values);
-                inputs.push(InputEncoding::Numeric {
-                    name: f.name.clone(),
-                    impute,
-                    mean,
-                    scale: if std > 0.0 && std.is_finite() { std } else { 1.0 },
-                    indicator: has_missing,
-                    train_min,
-                    train_max,
-                });
-            }
+            inputs.push(fit_feature(col, f, rows, file)?);
         }
+        Ok(Preprocessor::from_inputs(inputs))
+    }
+
+    /// The preprocessor of fitted encodings, in feature order.
+    pub fn from_inputs(inputs: Vec<InputEncoding>) -> Self {
         let mut output_names = Vec::new();
         for enc in &inputs {
             match enc {
@@ -172,7 +177,7 @@ impl Preprocessor {
                 }
             }
         }
-        Ok(Preprocessor { inputs, output_names })
+        Preprocessor { inputs, output_names }
     }
 
     pub fn width(&self) -> usize {
@@ -181,83 +186,126 @@ impl Preprocessor {
 
     /// Encodes rows `rows` of `table` (any table with the training columns, by name).
     pub fn transform(&self, table: &Table, rows: &[usize], file: &Path) -> Result<(Matrix, TransformReport)> {
-        let width = self.width();
-        let mut m = Matrix::zeros(rows.len(), width);
-        let mut report = TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() };
+        let mut out = Encoded::new(self.width(), rows);
         let mut offset = 0;
         for enc in &self.inputs {
             let name = enc.name();
             let col = table.column(name).ok_or_else(|| Error::data(file, Some(name), "is missing: the model was trained with it"))?;
-            match enc {
-                InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
-                    if col.is_text() {
-                        return Err(Error::data(
-                            file,
-                            Some(name),
-                            format!("has type {} but the model was trained on numbers", col.source_type),
-                        ));
-                    }
-                    for (i, &r) in rows.iter().enumerate() {
-                        let (value, missing) = match col.number(r) {
-                            Some(v) if v.is_finite() => (v, false),
-                            Some(v) => {
-                                return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers")))
-                            }
-                            None => (*impute, true),
-                        };
-                        if !missing && (value < *train_min || value > *train_max) {
-                            report.out_of_range[i] = true;
-                        }
-                        let standardised = ((value - mean) / scale) as f32;
-                        if !standardised.is_finite() {
-                            return Err(Error::data(file, Some(name), format!(
-                                "row {r} holds {value:e}, which standardises to {:e} (mean {mean:e}, scale {scale:e}): beyond single precision; rescale the column",
-                                (value - mean) / scale
-                            )));
-                        }
-                        m.data[i * width + offset] = standardised;
-                        if *indicator {
-                            m.data[i * width + offset + 1] = missing as u8 as f32;
-                        }
-                    }
-                }
-                InputEncoding::Categorical { levels, impute, indicator, .. } => {
-                    let index: HashMap<&str, usize> = levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect();
-                    let unseen_slot = levels.len();
-                    // Text columns map codes once; other columns render each value as a label.
-                    let code_slots: Option<Vec<usize>> = match &col.values {
-                        ColumnValues::Text { levels: own, .. } => {
-                            Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(unseen_slot)).collect())
-                        }
-                        _ => None,
-                    };
-                    let mut unseen = 0usize;
-                    for (i, &r) in rows.iter().enumerate() {
-                        let slot = if !col.is_valid(r) {
-                            if *indicator {
-                                m.data[i * width + offset + levels.len() + 1] = 1.0;
-                            }
-                            *impute
-                        } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
-                            slots[codes[r] as usize]
-                        } else {
-                            let label = col.label(r).unwrap_or_default();
-                            index.get(label.as_str()).copied().unwrap_or(unseen_slot)
-                        };
-                        if slot == unseen_slot {
-                            unseen += 1;
-                        }
-                        m.data[i * width + offset + slot] = 1.0;
-                    }
-                    if unseen > 0 {
-                        report.unseen_levels.insert(name.to_string(), unseen);
-                    }
-                }
+            out.encode(enc, col, offset, file)?;
+            offset += enc.width();
+        }
+        Ok(out.finish())
+    }
+
+    /// Encodes each row list of `parts` into its own matrix, reading `source` one feature column at
+    /// a time: only the matrices and one decoded column are ever held. Bit for bit what
+    /// [`Preprocessor::transform`] gives for each part on the whole table.
+    pub fn transform_source(&self, source: &dyn ColumnSource, parts: &[&[usize]]) -> Result<Vec<(Matrix, TransformReport)>> {
+        let width = self.width();
+        let mut outs: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(width, rows)).collect();
+        let mut offset = 0;
+        for enc in &self.inputs {
+            let col = source.column(enc.name())?;
+            for out in &mut outs {
+                out.encode(enc, &col, offset, source.path())?;
             }
             offset += enc.width();
         }
-        report.out_of_range_rows = report.out_of_range.iter().filter(|&&x| x).count();
-        Ok((m, report))
+        Ok(outs.into_iter().map(Encoded::finish).collect())
+    }
+}
+
+/// A matrix being filled one input encoding (one column's block of outputs) at a time.
+struct Encoded<'a> {
+    rows: &'a [usize],
+    m: Matrix,
+    report: TransformReport,
+}
+
+impl<'a> Encoded<'a> {
+    fn new(width: usize, rows: &'a [usize]) -> Self {
+        Encoded {
+            rows,
+            m: Matrix::zeros(rows.len(), width),
+            report: TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() },
+        }
+    }
+
+    fn finish(mut self) -> (Matrix, TransformReport) {
+        self.report.out_of_range_rows = self.report.out_of_range.iter().filter(|&&x| x).count();
+        (self.m, self.report)
+    }
+
+    /// Writes `enc` of `col` (rows indexed as in the whole table) into the outputs from `offset`.
+    fn encode(&mut self, enc: &InputEncoding, col: &Column, offset: usize, file: &Path) -> Result<()> {
+        let (rows, m, report) = (self.rows, &mut self.m, &mut self.report);
+        let width = m.cols;
+        let name = enc.name();
+        match enc {
+            InputEncoding::Numeric { impute, mean, scale, indicator, train_min, train_max, .. } => {
+                if col.is_text() {
+                    return Err(Error::data(
+                        file,
+                        Some(name),
+                        format!("has type {} but the model was trained on numbers", col.source_type),
+                    ));
+                }
+                for (i, &r) in rows.iter().enumerate() {
+                    let (value, missing) = match col.number(r) {
+                        Some(v) if v.is_finite() => (v, false),
+                        Some(v) => return Err(Error::data(file, Some(name), format!("row {r} holds {v}; tabcard needs finite numbers"))),
+                        None => (*impute, true),
+                    };
+                    if !missing && (value < *train_min || value > *train_max) {
+                        report.out_of_range[i] = true;
+                    }
+                    let standardised = ((value - mean) / scale) as f32;
+                    if !standardised.is_finite() {
+                        return Err(Error::data(file, Some(name), format!(
+                            "row {r} holds {value:e}, which standardises to {:e} (mean {mean:e}, scale {scale:e}): beyond single precision; rescale the column",
+                            (value - mean) / scale
+                        )));
+                    }
+                    m.data[i * width + offset] = standardised;
+                    if *indicator {
+                        m.data[i * width + offset + 1] = missing as u8 as f32;
+                    }
+                }
+            }
+            InputEncoding::Categorical { levels, impute, indicator, .. } => {
+                let index: HashMap<&str, usize> = levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect();
+                let unseen_slot = levels.len();
+                // Text columns map codes once; other columns render each value as a label.
+                let code_slots: Option<Vec<usize>> = match &col.values {
+                    ColumnValues::Text { levels: own, .. } => {
+                        Some(own.iter().map(|l| index.get(l.as_str()).copied().unwrap_or(unseen_slot)).collect())
+                    }
+                    _ => None,
+                };
+                let mut unseen = 0usize;
+                for (i, &r) in rows.iter().enumerate() {
+                    let slot = if !col.is_valid(r) {
+                        if *indicator {
+                            m.data[i * width + offset + levels.len() + 1] = 1.0;
+                        }
+                        *impute
+                    } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
+                        slots[codes[r] as usize]
+                    } else {
+                        let label = col.label(r).unwrap_or_default();
+                        index.get(label.as_str()).copied().unwrap_or(unseen_slot)
+                    };
+                    if slot == unseen_slot {
+                        unseen += 1;
+                    }
+                    m.data[i * width + offset + slot] = 1.0;
+                }
+                if unseen > 0 {
+                    report.unseen_levels.insert(name.to_string(), unseen);
+                }
+            }
+        }
+        Ok(())
     }
 }
 

@@ -1,10 +1,11 @@
 //! What each column is for (target, feature, id, group, dropped), decided from the manifest and
 //! checked against the table: missing columns, an unusable target, empty, all-null or non-finite
-//! features are errors naming the file and the column.
+//! features are errors naming the file and the column. Roles come from the column names alone
+//! ([`resolve_names`]); each feature's values and the target are checked one column at a time.
 
 use std::path::Path;
 
-use super::table::{ColumnValues, Table};
+use super::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
 use crate::manifest::locate::nearest;
 use crate::manifest::{Manifest, Task};
@@ -68,21 +69,36 @@ impl Roles {
     }
 }
 
-fn require_column(table: &Table, file: &Path, name: &str, key: &str) -> Result<()> {
-    if table.column(name).is_some() {
+fn require_column(names: &[String], file: &Path, name: &str, key: &str) -> Result<()> {
+    if names.iter().any(|n| n == name) {
         return Ok(());
     }
-    let hint = nearest(name, table.columns.iter().map(|c| c.name.as_str())).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
+    let hint = nearest(name, names.iter().map(String::as_str)).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
     Err(Error::data(file, Some(name), format!("named by {key} but not in the file{hint}")))
 }
 
-/// Resolves column roles and encodes the target.
+/// Resolves column roles and encodes the target of a table in memory.
 pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Target)> {
     if table.rows == 0 {
         return Err(Error::data(file, None, "has no rows"));
     }
+    let names: Vec<String> = table.columns.iter().map(|c| c.name.clone()).collect();
+    let roles = resolve_names(m, &names, |n| table.column(n).is_some_and(Column::is_text), file)?;
+    for f in &roles.features {
+        if let Some(col) = table.column(&f.name) {
+            check_feature(col, file)?;
+        }
+    }
+    let col = table.column(&m.data.target).ok_or_else(|| Error::data(file, Some(&m.data.target), "is missing"))?;
+    let target = encode_target(m, col, file)?;
+    Ok((roles, target))
+}
+
+/// Resolves column roles from the file's column names (in file order) and which of them hold
+/// text: every name the manifest gives must be a column.
+pub fn resolve_names(m: &Manifest, names: &[String], is_text: impl Fn(&str) -> bool, file: &Path) -> Result<Roles> {
     let d = &m.data;
-    require_column(table, file, &d.target, "data.target")?;
+    require_column(names, file, &d.target, "data.target")?;
     for (list, key) in [
         (&d.features, "data.features"),
         (&d.drop, "data.drop"),
@@ -91,13 +107,13 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
         (&d.group_columns, "data.group_columns"),
     ] {
         for name in list {
-            require_column(table, file, name, key)?;
+            require_column(names, file, name, key)?;
         }
     }
     let split = &m.split;
     for (name, key) in [(&split.column, "split.column"), (&split.group, "split.group")] {
         if let Some(name) = name {
-            require_column(table, file, name, key)?;
+            require_column(names, file, name, key)?;
         }
     }
     let excluded = |name: &str| {
@@ -108,65 +124,67 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
             || split.column.as_deref() == Some(name)
             || split.group.as_deref() == Some(name)
     };
-    let feature_names: Vec<String> = if d.features.is_empty() {
-        table.columns.iter().map(|c| c.name.clone()).filter(|n| !excluded(n)).collect()
-    } else {
-        d.features.clone()
-    };
+    let feature_names: Vec<String> =
+        if d.features.is_empty() { names.iter().filter(|n| !excluded(n)).cloned().collect() } else { d.features.clone() };
     if feature_names.is_empty() {
         return Err(Error::data(file, None, "no feature columns remain after removing the target, ids, groups and dropped columns"));
     }
-    let mut features = Vec::with_capacity(feature_names.len());
-    for name in feature_names {
-        // Present: checked above or taken from the table itself.
-        let Some(col) = table.column(&name) else { continue };
-        if col.null_count() == col.len() {
-            return Err(Error::data(file, Some(&name), "has no values (every row is null); drop it or fill it"));
-        }
-        if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_)) {
-            if let Some((row, value)) =
-                (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| !x.is_finite()).map(|x| (r, x)))
-            {
-                return Err(Error::data(
-                    file,
-                    Some(&name),
-                    format!("row {row} holds {value}; tabcard needs finite numbers (store missing values as nulls)"),
-                ));
-            }
-            if let Some((row, value)) =
-                (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| x.abs() > MAX_MAGNITUDE).map(|x| (r, x)))
-            {
-                return Err(Error::data(
-                    file,
-                    Some(&name),
-                    format!("row {row} holds {value:e}, beyond ±{MAX_MAGNITUDE:e}, where sums of squares in the statistics could overflow; rescale the column (other units)"),
-                ));
-            }
-        }
-        let categorical = col.is_text() || d.categorical.contains(&name);
-        features.push(Feature { name, categorical });
-    }
-    let roles = Roles {
+    let features = feature_names
+        .into_iter()
+        .map(|name| {
+            let categorical = is_text(&name) || d.categorical.contains(&name);
+            Feature { name, categorical }
+        })
+        .collect();
+    Ok(Roles {
         target: d.target.clone(),
         features,
         ids: d.ids.clone(),
         groups: d.group_columns.clone(),
-        dropped: table.columns.iter().map(|c| c.name.clone()).filter(|n| d.drop.contains(n)).collect(),
+        dropped: names.iter().filter(|n| d.drop.contains(n)).cloned().collect(),
         split_column: split.column.clone(),
         split_group: split.group.clone(),
-    };
-    let target = encode_target(m, table, file)?;
-    Ok((roles, target))
+    })
+}
+
+/// Checks a feature column's values: not every row null, numbers finite and within
+/// [`MAX_MAGNITUDE`].
+pub fn check_feature(col: &Column, file: &Path) -> Result<()> {
+    let name = col.name.as_str();
+    if col.null_count() == col.len() {
+        return Err(Error::data(file, Some(name), "has no values (every row is null); drop it or fill it"));
+    }
+    if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_)) {
+        if let Some((row, value)) =
+            (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| !x.is_finite()).map(|x| (r, x)))
+        {
+            return Err(Error::data(
+                file,
+                Some(name),
+                format!("row {row} holds {value}; tabcard needs finite numbers (store missing values as nulls)"),
+            ));
+        }
+        if let Some((row, value)) =
+            (0..col.len()).filter(|&r| col.is_valid(r)).find_map(|r| col.number(r).filter(|x| x.abs() > MAX_MAGNITUDE).map(|x| (r, x)))
+        {
+            return Err(Error::data(
+                file,
+                Some(name),
+                format!("row {row} holds {value:e}, beyond ±{MAX_MAGNITUDE:e}, where sums of squares in the statistics could overflow; rescale the column (other units)"),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// The largest magnitude a numeric feature may hold: squares and their sums over any table
 /// tabcard can hold (below 2^64 rows) stay far inside f64 (1e200 x 2^64 < 1.8e308).
 pub const MAX_MAGNITUDE: f64 = 1e100;
 
-fn encode_target(m: &Manifest, table: &Table, file: &Path) -> Result<Target> {
+/// Encodes the target column `col` for the manifest's task.
+pub fn encode_target(m: &Manifest, col: &Column, file: &Path) -> Result<Target> {
     let name = m.data.target.as_str();
     let err = |msg: String| Error::data(file, Some(name), msg);
-    let Some(col) = table.column(name) else { return Err(err("is missing".into())) };
     let nulls = col.null_count();
     if nulls == col.len() {
         return Err(err("is the target but every value is null".into()));

@@ -8,7 +8,7 @@ use std::path::Path;
 use std::collections::BTreeMap;
 
 use super::roles::Target;
-use super::table::Table;
+use super::table::{Column, Table};
 use crate::error::{Error, Result};
 use crate::manifest::{SplitLabels, SplitSpec};
 use crate::rng::{Purpose, Stream};
@@ -35,10 +35,21 @@ fn cut(mut rows: Vec<usize>, spec: &SplitSpec, stream: &mut Stream, out: &mut Sp
 /// `(spec.seed, split)`. Stratified: each class (for groups: each group's most common class) is
 /// shuffled and cut separately, classes in label order, so every split keeps the class shares.
 pub fn split(table: &Table, target: &Target, spec: &SplitSpec, file: &Path) -> Result<Splits> {
-    let mut out = match (&spec.column, &spec.group) {
-        (Some(column), _) => given(table, column, &spec.labels, file)?,
-        (None, Some(group)) => grouped(table, group, target, spec, file)?,
-        (None, None) => seeded(target, spec),
+    let name = spec.column.as_ref().or(spec.group.as_ref());
+    let column = match name {
+        Some(name) => Some(table.column(name).ok_or_else(|| Error::data(file, Some(name), "names no column of the file"))?),
+        None => None,
+    };
+    split_by(target, spec, column, file)
+}
+
+/// As [`split`], given only what it reads: the target and the column `split.column` or
+/// `split.group` names (`None` when the manifest names neither).
+pub fn split_by(target: &Target, spec: &SplitSpec, column: Option<&Column>, file: &Path) -> Result<Splits> {
+    let mut out = match (column, &spec.column) {
+        (Some(col), Some(_)) => given(col, &spec.labels, file)?,
+        (Some(col), None) => grouped(col, target, spec)?,
+        (None, _) => seeded(target, spec),
     };
     for (name, part) in [("training", &out.train), ("validation", &out.validation), ("test", &out.test)] {
         if part.is_empty() {
@@ -86,10 +97,10 @@ fn seeded(target: &Target, spec: &SplitSpec) -> Splits {
 
 /// Every row goes where its value of `column` says; a value that names no split, or a null, is
 /// an error naming the row.
-fn given(table: &Table, column: &str, labels: &SplitLabels, file: &Path) -> Result<Splits> {
-    let col = table.column(column).ok_or_else(|| Error::data(file, Some(column), "named by split.column but not in the file"))?;
+fn given(col: &Column, labels: &SplitLabels, file: &Path) -> Result<Splits> {
+    let column = col.name.as_str();
     let mut out = Splits { train: Vec::new(), validation: Vec::new(), test: Vec::new() };
-    for row in 0..table.rows {
+    for row in 0..col.len() {
         let Some(value) = col.label(row) else {
             return Err(Error::data(file, Some(column), format!("row {row} is null; split.column must name a split for every row")));
         };
@@ -113,10 +124,9 @@ fn given(table: &Table, column: &str, labels: &SplitLabels, file: &Path) -> Resu
 /// Whole groups are shuffled and cut by rows: a group goes to test while the test rows before it
 /// fall short of the test fraction, then to validation likewise, then to training. Nulls form one
 /// group of their own.
-fn grouped(table: &Table, group: &str, target: &Target, spec: &SplitSpec, file: &Path) -> Result<Splits> {
-    let col = table.column(group).ok_or_else(|| Error::data(file, Some(group), "named by split.group but not in the file"))?;
+fn grouped(col: &Column, target: &Target, spec: &SplitSpec) -> Result<Splits> {
     let mut members: BTreeMap<Option<String>, Vec<usize>> = BTreeMap::new();
-    for row in 0..table.rows {
+    for row in 0..col.len() {
         members.entry(col.label(row)).or_default().push(row);
     }
     // Groups in a fixed order (sorted by value), bucketed by their most common class.

@@ -1,13 +1,16 @@
 //! The data summary shown by `check` and in the card: per-column type, missing values, numeric
-//! statistics or category levels, the target's balance or distribution, and data warnings.
+//! statistics or category levels, the target's balance or distribution, and data warnings. Built
+//! one column at a time ([`summarise_column`], then [`assemble`]), so no statistic needs the whole
+//! table. Every statistic is exact: quantiles by selection, distinct counts by hashing; means and
+//! standard deviations are compensated sums in row order.
 
 use serde::{Deserialize, Serialize};
 
 use super::leakage::{duplicate_rows, SplitChecks};
 
+use super::order;
 use super::roles::{Roles, Target};
 use super::table::{Column, ColumnValues, Table};
-use crate::metrics::bootstrap::quantile_sorted;
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct NumericStats {
@@ -74,27 +77,22 @@ pub const RARE_LEVEL_ROWS: usize = 10;
 /// A column with more than this share missing is flagged (common practice).
 pub const MOSTLY_MISSING_SHARE: f64 = 0.5;
 
+/// Statistics of the values in any order (reordered here). The mean and the standard deviation
+/// (n - 1 in the denominator) are compensated sums in the order given, the quantiles numpy's
+/// "linear" ones, found by selection.
 pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
-    values.sort_by(f64::total_cmp);
-    numeric_stats_sorted(&values)
-}
-
-/// [`numeric_stats`] of values already sorted by `f64::total_cmp` (sums run in that order).
-fn numeric_stats_sorted(values: &[f64]) -> Option<NumericStats> {
-    if values.is_empty() {
-        return None;
-    }
+    let (min, max) = order::min_max(&values)?;
     let n = values.len() as f64;
-    let mean = values.iter().sum::<f64>() / n;
-    let var = if values.len() > 1 { values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0) } else { 0.0 };
+    let mean = order::sum(values.iter().copied()) / n;
+    let var = if values.len() > 1 { order::sum(values.iter().map(|x| (x - mean).powi(2))) / (n - 1.0) } else { 0.0 };
     Some(NumericStats {
-        min: values[0],
-        max: values[values.len() - 1],
+        min,
+        max,
         mean,
         std: var.sqrt(),
-        q25: quantile_sorted(values, 0.25),
-        median: quantile_sorted(values, 0.5),
-        q75: quantile_sorted(values, 0.75),
+        q25: order::quantile(&mut values, 0.25),
+        median: order::quantile(&mut values, 0.5),
+        q75: order::quantile(&mut values, 0.75),
     })
 }
 
@@ -125,18 +123,18 @@ pub fn level_counts(col: &Column) -> Vec<LevelCount> {
     v
 }
 
-fn summarise_column(col: &Column, rows: usize, roles: &Roles, categorical: bool) -> ColumnSummary {
+/// One column's summary; `categorical` when the column is a feature read as categories.
+pub fn summarise_column(col: &Column, roles: &Roles, categorical: bool) -> ColumnSummary {
+    let rows = col.len();
     let missing = col.null_count();
     let (numeric, top_levels, distinct, rare_levels) = if categorical || col.is_text() {
         let levels = level_counts(col);
         let rare = levels.iter().filter(|l| l.count < RARE_LEVEL_ROWS).count();
         (None, levels.iter().take(5).cloned().collect(), levels.len(), rare)
     } else {
-        let mut sorted: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
-        sorted.sort_by(f64::total_cmp);
-        // Distinct values as `dedup` counts them (consecutive `==` runs), without a second copy.
-        let distinct = if sorted.is_empty() { 0 } else { 1 + sorted.windows(2).filter(|w| w[0] != w[1]).count() };
-        (numeric_stats_sorted(&sorted), Vec::new(), distinct, 0)
+        let values: Vec<f64> = (0..col.len()).filter_map(|r| col.number(r)).collect();
+        let distinct = order::distinct(&values);
+        (numeric_stats(values), Vec::new(), distinct, 0)
     };
     ColumnSummary {
         name: col.name.clone(),
@@ -153,23 +151,28 @@ fn summarise_column(col: &Column, rows: usize, roles: &Roles, categorical: bool)
     }
 }
 
-/// Summarises every column, the target, and the warnings a reviewer should see; `row_digests` as
-/// `leakage::row_digests` gives them, for the duplicate count.
+/// Summarises every column of a table in memory: [`summarise_column`] for each, then [`assemble`].
 pub fn summarise(table: &Table, roles: &Roles, target: &Target, row_digests: &[u128]) -> DataSummary {
     let columns: Vec<ColumnSummary> = table
         .columns
         .iter()
         .map(|c| {
             let categorical = roles.features.iter().any(|f| f.name == c.name && f.categorical);
-            summarise_column(c, table.rows, roles, categorical)
+            summarise_column(c, roles, categorical)
         })
         .collect();
+    assemble(table.rows, columns, roles, target, duplicate_rows(row_digests))
+}
+
+/// The summary from its column summaries (in table order), the target and the duplicate count
+/// (`leakage::duplicate_rows`), with the warnings a reviewer should see.
+pub fn assemble(rows: usize, columns: Vec<ColumnSummary>, roles: &Roles, target: &Target, duplicates: usize) -> DataSummary {
     let mut warnings = Vec::new();
     for c in columns.iter().filter(|c| c.role == "feature") {
         if c.distinct <= 1 {
             warnings.push(format!("feature `{}` is constant: it carries no information", c.name));
         }
-        if c.distinct == table.rows && table.rows > 20 && (c.kind == "integer" || c.kind == "string") {
+        if c.distinct == rows && rows > 20 && (c.kind == "integer" || c.kind == "string") {
             warnings.push(format!("feature `{}` is unique per row, like an identifier: consider listing it in data.ids", c.name));
         }
         if c.missing_share > MOSTLY_MISSING_SHARE {
@@ -195,9 +198,8 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target, row_digests: &[u
         }
         Target::Values(v) => TargetSummary { name: roles.target.clone(), classes: Vec::new(), distribution: numeric_stats(v.clone()) },
     };
-    let duplicates = duplicate_rows(row_digests);
     if duplicates > 0 {
         warnings.push(format!("{duplicates} rows repeat an earlier row exactly (features and target)"));
     }
-    DataSummary { rows: table.rows, duplicate_rows: Some(duplicates), columns, target: target_summary, warnings, split_checks: None }
+    DataSummary { rows, duplicate_rows: Some(duplicates), columns, target: target_summary, warnings, split_checks: None }
 }

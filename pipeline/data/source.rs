@@ -1,0 +1,86 @@
+//! Where an experiment's columns come from: a Parquet file read one column (or one chunk of rows)
+//! at a time, or a table already in memory. Everything after reading works through this trait, so
+//! the streamed path and the in-memory path run the same code.
+
+use std::borrow::Cow;
+use std::path::Path;
+
+use super::parquet::ParquetSource;
+use super::table::{Column, Table};
+use crate::error::{Error, Result};
+
+pub trait ColumnSource {
+    /// The file, for error messages.
+    fn path(&self) -> &Path;
+    fn rows(&self) -> usize;
+    /// Column names in table order.
+    fn names(&self) -> Vec<String>;
+    /// Whether the column holds strings.
+    fn is_text(&self, name: &str) -> bool;
+    /// One whole column (every row), checked to hold exactly [`ColumnSource::rows`] values.
+    fn column(&self, name: &str) -> Result<Cow<'_, Column>>;
+    /// The named columns (in table order) over consecutive chunks of rows: `visit(first_row, chunk)`.
+    /// A text column's codes mean the same level in every chunk.
+    fn for_each_chunk(&self, names: &[&str], visit: &mut dyn FnMut(usize, &Table) -> Result<()>) -> Result<()>;
+}
+
+impl ColumnSource for ParquetSource {
+    fn path(&self) -> &Path {
+        ParquetSource::path(self)
+    }
+
+    fn rows(&self) -> usize {
+        ParquetSource::rows(self)
+    }
+
+    fn names(&self) -> Vec<String> {
+        ParquetSource::names(self)
+    }
+
+    fn is_text(&self, name: &str) -> bool {
+        ParquetSource::is_text(self, name)
+    }
+
+    fn column(&self, name: &str) -> Result<Cow<'_, Column>> {
+        let mut table = self.read(&[name])?;
+        table.columns.pop().map(Cow::Owned).ok_or_else(|| Error::data(self.path(), Some(name), "is not in the file"))
+    }
+
+    fn for_each_chunk(&self, names: &[&str], visit: &mut dyn FnMut(usize, &Table) -> Result<()>) -> Result<()> {
+        ParquetSource::for_each_chunk(self, names, visit)
+    }
+}
+
+/// A table in memory, named by the file it came from.
+pub struct InMemory<'a> {
+    pub table: &'a Table,
+    pub path: &'a Path,
+}
+
+impl ColumnSource for InMemory<'_> {
+    fn path(&self) -> &Path {
+        self.path
+    }
+
+    fn rows(&self) -> usize {
+        self.table.rows
+    }
+
+    fn names(&self) -> Vec<String> {
+        self.table.columns.iter().map(|c| c.name.clone()).collect()
+    }
+
+    fn is_text(&self, name: &str) -> bool {
+        self.table.column(name).is_some_and(Column::is_text)
+    }
+
+    fn column(&self, name: &str) -> Result<Cow<'_, Column>> {
+        self.table.column(name).map(Cow::Borrowed).ok_or_else(|| Error::data(self.path, Some(name), "is not in the file"))
+    }
+
+    /// The whole table is one chunk.
+    fn for_each_chunk(&self, names: &[&str], visit: &mut dyn FnMut(usize, &Table) -> Result<()>) -> Result<()> {
+        let columns = self.table.columns.iter().filter(|c| names.contains(&c.name.as_str())).cloned().collect();
+        visit(0, &Table { rows: self.table.rows, columns })
+    }
+}
