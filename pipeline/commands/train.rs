@@ -251,9 +251,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
     let environment = crate::numerics::current()?;
     let exp = open(manifest_path)?;
+    crate::feasibility::return_freed_memory();
     let mut phases = vec![Phase { name: phase::SCAN.into(), seconds: started.elapsed().as_secs_f64() }];
     let building = Instant::now();
-    let prepared = Prepared::new(exp)?;
+    let mut prepared = Prepared::new(exp)?;
+    crate::feasibility::return_freed_memory();
     phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
     let m = &exp.manifest;
@@ -278,7 +280,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         Some(_) => None,
     };
     prepare_folder(exp, &layout, plan, preprocessor)?;
-    let inputs = SweepInputs {
+    let sweep_inputs = SweepInputs {
         layout: &layout,
         plan,
         head: exp.head(),
@@ -291,7 +293,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         shard: options.shard,
     };
     let sweeping = Instant::now();
-    let report = sweep::run(&inputs, on_event)?;
+    let report = sweep::run(&sweep_inputs, on_event)?;
+    drop(sweep_inputs);
+    // Selection reads validation and test rows only.
+    prepared.train_x = Default::default();
+    crate::feasibility::return_freed_memory();
     phases.push(Phase { name: phase::SWEEP.into(), seconds: sweeping.elapsed().as_secs_f64() });
     if let Some(shard) = options.shard {
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));

@@ -4,9 +4,9 @@
 //! group) whose values occur in more than one split. Each check reads one column, or the rows'
 //! digests, so the checks run on a file read a column (or a chunk of rows) at a time.
 
+use super::order::{FastMap, FastSet};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
-use std::collections::{HashMap, HashSet};
 
 use super::roles::Roles;
 use super::split::Splits;
@@ -95,12 +95,13 @@ fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
 /// only some columns: a row's digest depends only on its own values (text by code, and codes
 /// mean the same level in every chunk of one read).
 pub fn row_digests(table: &Table, roles: &Roles) -> Vec<u128> {
+    use rayon::prelude::*;
     let columns = seen_columns(table, roles);
-    let mut key = Vec::new();
     (0..table.rows)
-        .map(|row| {
-            row_key(table, &columns, row, &mut key);
-            digest(&key)
+        .into_par_iter()
+        .map_init(Vec::new, |key, row| {
+            row_key(table, &columns, row, key);
+            digest(key)
         })
         .collect()
 }
@@ -108,30 +109,32 @@ pub fn row_digests(table: &Table, roles: &Roles) -> Vec<u128> {
 /// Rows identical (features and target) to an earlier row, as `pandas.DataFrame.duplicated()`
 /// counts them with its default `keep="first"`, from [`row_digests`].
 pub fn duplicate_rows(row_digests: &[u128]) -> usize {
-    let mut seen: HashSet<u128> = HashSet::with_capacity(row_digests.len());
+    let mut seen: FastSet<u128> = FastSet::with_capacity_and_hasher(row_digests.len(), Default::default());
     row_digests.iter().filter(|d| !seen.insert(**d)).count()
 }
 
 /// Test and validation rows identical (features and target) to some training row.
 pub fn rows_duplicating_training(splits: &Splits, row_digests: &[u128]) -> (usize, usize) {
-    let training: HashSet<u128> = splits.train.iter().map(|&r| row_digests[r]).collect();
+    let training: FastSet<u128> = splits.train.iter().map(|&r| row_digests[r]).collect();
     let count_in = |rows: &[usize]| rows.iter().filter(|&&r| training.contains(&row_digests[r])).count();
     (count_in(&splits.test), count_in(&splits.validation))
 }
 
 /// Whether a column holds at most one distinct value among the training rows (nulls aside).
+/// Values compare as their key bytes do (nulls aside): floats with `-0.0` equal to `0.0`, by bits.
 pub fn constant_on_training(col: &Column, train: &[usize]) -> bool {
-    let (mut key, mut first) = (Vec::new(), None::<Vec<u8>>);
-    !train.iter().filter(|&&r| col.is_valid(r)).any(|&r| {
-        value_key(col, r, &mut key);
-        match &first {
-            None => {
-                first = Some(key.clone());
-                false
-            }
-            Some(k) => *k != key,
-        }
-    })
+    fn all_equal<T: PartialEq>(mut values: impl Iterator<Item = T>) -> bool {
+        let first = values.next();
+        first.is_none_or(|f| values.all(|v| v == f))
+    }
+    let rows = train.iter().copied().filter(|&r| col.is_valid(r));
+    match &col.values {
+        ColumnValues::Float(v) => all_equal(rows.map(|r| (v[r] + 0.0).to_bits())),
+        ColumnValues::Float32(v) => all_equal(rows.map(|r| (f64::from(v[r]) + 0.0).to_bits())),
+        ColumnValues::Int(v) => all_equal(rows.map(|r| v[r])),
+        ColumnValues::Bool(v) => all_equal(rows.map(|r| v[r])),
+        ColumnValues::Text { codes, .. } => all_equal(rows.map(|r| codes[r])),
+    }
 }
 
 /// The columns whose crossings are checked: ids and the split group name units (a customer, a
@@ -159,7 +162,7 @@ pub fn key_crossing(col: &Column, splits: &Splits) -> Option<KeyCrossing> {
         })
     };
     let mut key = Vec::new();
-    let mut parts: HashMap<u128, (u8, usize)> = HashMap::new();
+    let mut parts: FastMap<u128, (u8, usize)> = FastMap::default();
     for (row, &bit) in part_of.iter().enumerate() {
         if let Some(v) = value_of(row, &mut key) {
             let entry = parts.entry(v).or_insert((0, 0));

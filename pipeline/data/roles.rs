@@ -219,25 +219,48 @@ pub fn encode_target(m: &Manifest, col: &Column, file: &Path) -> Result<Target> 
                     col.source_type
                 )));
             }
-            // Distinct labels in their natural order: numeric for integers, false < true, text sorted.
+            // Each row's value as an index into `distinct` (first appearance order), without a
+            // string per row: integers and booleans through a map, text through its codes.
             let mut distinct: Vec<(i128, String)> = Vec::new();
-            let key_of = |row: usize| -> (i128, String) {
-                match &col.values {
-                    ColumnValues::Int(v) => (v[row] as i128, v[row].to_string()),
-                    ColumnValues::Bool(v) => (v[row] as i128, v[row].to_string()),
-                    _ => (0, col.label(row).unwrap_or_default()),
+            let raw: Vec<usize> = match &col.values {
+                ColumnValues::Text { codes, levels } => {
+                    // Only levels some row holds (a table built in memory may list others).
+                    let mut slot = vec![usize::MAX; levels.len()];
+                    codes
+                        .iter()
+                        .map(|&c| {
+                            let c = c as usize;
+                            if slot[c] == usize::MAX {
+                                slot[c] = distinct.len();
+                                distinct.push((0, levels[c].clone()));
+                            }
+                            slot[c]
+                        })
+                        .collect()
+                }
+                values => {
+                    let number = |row: usize| match values {
+                        ColumnValues::Int(v) => v[row],
+                        ColumnValues::Bool(v) => v[row] as i64,
+                        _ => 0,
+                    };
+                    let mut seen: super::order::FastMap<i64, usize> = Default::default();
+                    (0..col.len())
+                        .map(|row| {
+                            let v = number(row);
+                            *seen.entry(v).or_insert_with(|| {
+                                distinct.push((v as i128, col.label(row).unwrap_or_default()));
+                                distinct.len() - 1
+                            })
+                        })
+                        .collect()
                 }
             };
-            let mut seen = std::collections::HashMap::new();
-            for row in 0..col.len() {
-                let key = key_of(row);
-                if !seen.contains_key(&key) {
-                    seen.insert(key.clone(), 0usize);
-                    distinct.push(key);
-                }
-            }
-            distinct.sort();
-            let mut labels: Vec<String> = distinct.iter().map(|(_, s)| s.clone()).collect();
+            // Distinct labels in their natural order: numeric for integers, false < true, text sorted.
+            let mut order: Vec<usize> = (0..distinct.len()).collect();
+            order.sort_by(|&a, &b| distinct[a].cmp(&distinct[b]));
+            let sorted: Vec<&(i128, String)> = order.iter().map(|&i| &distinct[i]).collect();
+            let mut labels: Vec<String> = sorted.iter().map(|(_, s)| s.clone()).collect();
             if labels.len() == 1 {
                 return Err(err(format!("is constant (every row is `{}`); there is nothing to predict", labels[0])));
             }
@@ -258,9 +281,8 @@ pub fn encode_target(m: &Manifest, col: &Column, file: &Path) -> Result<Target> 
             } else if labels.len() == 2 {
                 return Err(err("has 2 distinct values; use task = \"binary\"".into()));
             }
-            let index: std::collections::HashMap<(i128, String), usize> =
-                distinct.iter().map(|k| (k.clone(), labels.iter().position(|l| *l == k.1).unwrap_or(0))).collect();
-            let rows: Vec<usize> = (0..col.len()).map(|r| index[&key_of(r)]).collect();
+            let index: Vec<usize> = distinct.iter().map(|k| labels.iter().position(|l| *l == k.1).unwrap_or(0)).collect();
+            let rows: Vec<usize> = raw.into_iter().map(|r| index[r]).collect();
             let mut counts = vec![0usize; labels.len()];
             for &c in &rows {
                 counts[c] += 1;

@@ -5,15 +5,17 @@
 //! not with rows x columns. The second pass, building the matrices, is
 //! [`Preprocessor::transform_source`].
 
+use rayon::prelude::*;
 use std::collections::HashMap;
+use std::path::Path;
 
 use super::leakage::{self, KeyCrossing, SplitChecks};
 use super::prep::{fit_feature, InputEncoding, Preprocessor};
 use super::roles::{check_feature, encode_target, resolve_names, Roles, Target};
 use super::source::ColumnSource;
 use super::split::{split_by, Splits};
-use super::summary::{assemble, summarise_column, DataSummary};
-use super::table::ContentHasher;
+use super::summary::{assemble, summarise_column, ColumnSummary, DataSummary};
+use super::table::{Column, ContentHasher};
 use crate::error::{Error, Result};
 use crate::manifest::Manifest;
 
@@ -32,8 +34,52 @@ pub struct Scan {
     pub preprocessor: Preprocessor,
 }
 
-/// Scans `source` for the experiment `m` describes.
-pub fn scan(m: &Manifest, source: &dyn ColumnSource) -> Result<Scan> {
+/// What one column contributes.
+struct Findings {
+    summary: ColumnSummary,
+    /// Features only.
+    encoding: Option<InputEncoding>,
+    constant_on_training: bool,
+    /// Key columns only, when a value repeats.
+    crossing: Option<KeyCrossing>,
+}
+
+fn findings_of(col: &Column, roles: &Roles, keys: &[String], splits: &Splits, file: &Path) -> Result<Findings> {
+    let feature = roles.features.iter().find(|f| f.name == col.name);
+    let mut found = Findings {
+        summary: summarise_column(col, roles, feature.is_some_and(|f| f.categorical)),
+        encoding: None,
+        constant_on_training: false,
+        crossing: None,
+    };
+    if let Some(f) = feature {
+        check_feature(col, file)?;
+        found.constant_on_training = leakage::constant_on_training(col, &splits.train);
+        found.encoding = Some(fit_feature(col, f, &splits.train, file)?);
+    }
+    if keys.contains(&col.name) {
+        found.crossing = leakage::key_crossing(col, splits);
+    }
+    Ok(found)
+}
+
+/// The most threads the first pass uses: each holds one decoded column and its working copies
+/// (about 32 bytes a row), so more would cost memory the matrices need.
+pub const MAX_SCAN_THREADS: usize = 4;
+
+/// Scans `source` for the experiment `m` describes, on its own pool of as many threads as the
+/// process may use, up to [`MAX_SCAN_THREADS`] (the process-wide pool stays single-threaded for
+/// the training kernels). Every result is the same whatever the thread count.
+pub fn scan(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
+    let threads = std::thread::available_parallelism().map_or(1, |n| n.get()).min(MAX_SCAN_THREADS);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| Error::Environment(format!("cannot start {threads} threads to read the data: {e}")))?;
+    pool.install(|| scan_in(m, source))
+}
+
+fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
     let file = source.path();
     let rows = source.rows();
     if rows == 0 {
@@ -47,30 +93,35 @@ pub fn scan(m: &Manifest, source: &dyn ColumnSource) -> Result<Scan> {
         None => split_by(&target, &m.split, None, file)?,
     };
 
-    // One column at a time, in table order (the content hash needs that order).
+    // A few columns at a time, as many as there are worker threads: read in table order (the
+    // content hash needs that order) and hashed on one thread while the others check, summarise
+    // and fit them. Each column's findings depend on that column alone, so the thread count
+    // changes no result, and the first error in table order is the one reported.
     let keys = leakage::key_columns(&roles);
     let mut hasher = ContentHasher::new(rows, names.len());
     let mut summaries = Vec::with_capacity(names.len());
     let mut encodings: HashMap<&str, InputEncoding> = HashMap::new();
     let mut constant: Vec<&str> = Vec::new();
     let mut crossings: HashMap<&str, KeyCrossing> = HashMap::new();
-    for name in &names {
-        let col = source.column(name)?;
-        hasher.add(&col);
-        let feature = roles.features.iter().find(|f| f.name == *name);
-        if let Some(f) = feature {
-            check_feature(&col, file)?;
-            if leakage::constant_on_training(&col, &splits.train) {
+    for window in names.chunks(rayon::current_num_threads().max(1)) {
+        let columns = window.iter().map(|name| source.column(name)).collect::<Result<Vec<_>>>()?;
+        let (_, findings) = rayon::join(
+            || columns.iter().for_each(|col| hasher.add(col)),
+            || columns.par_iter().map(|col| findings_of(col, &roles, &keys, &splits, file)).collect::<Vec<_>>(),
+        );
+        for (name, found) in window.iter().zip(findings) {
+            let found = found?;
+            if let Some(encoding) = found.encoding {
+                encodings.insert(name, encoding);
+            }
+            if found.constant_on_training {
                 constant.push(name);
             }
-            encodings.insert(name, fit_feature(&col, f, &splits.train, file)?);
-        }
-        if keys.contains(name) {
-            if let Some(crossing) = leakage::key_crossing(&col, &splits) {
+            if let Some(crossing) = found.crossing {
                 crossings.insert(name, crossing);
             }
+            summaries.push(found.summary);
         }
-        summaries.push(summarise_column(&col, &roles, feature.is_some_and(|f| f.categorical)));
     }
 
     // Then the rows, a chunk at a time, for their digests over the features and the target.

@@ -85,15 +85,8 @@ pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
     let n = values.len() as f64;
     let mean = order::sum(values.iter().copied()) / n;
     let var = if values.len() > 1 { order::sum(values.iter().map(|x| (x - mean).powi(2))) / (n - 1.0) } else { 0.0 };
-    Some(NumericStats {
-        min,
-        max,
-        mean,
-        std: var.sqrt(),
-        q25: order::quantile(&mut values, 0.25),
-        median: order::quantile(&mut values, 0.5),
-        q75: order::quantile(&mut values, 0.75),
-    })
+    let [q25, median, q75] = order::quantiles(&mut values, [0.25, 0.5, 0.75]);
+    Some(NumericStats { min, max, mean, std: var.sqrt(), q25, median, q75 })
 }
 
 /// Level counts of a column read as categories, most frequent first (ties by label).
