@@ -294,7 +294,6 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     };
     let sweeping = Instant::now();
     let report = sweep::run(&sweep_inputs, on_event)?;
-    drop(sweep_inputs);
     // Selection reads validation and test rows only.
     prepared.train_x = Default::default();
     crate::feasibility::return_freed_memory();
