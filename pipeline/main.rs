@@ -108,7 +108,7 @@ enum Command {
         submit: bool,
     },
     /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
-    #[command(after_help = "Examples:\n  tabcard verify results/29a86975d22ab264\n  tabcard verify experiments/lease-default.toml --all")]
+    #[command(after_help = "Examples:\n  tabcard verify results/c22daa23f986afde\n  tabcard verify experiments/lease-default.toml --all")]
     Verify {
         /// A results folder, or a manifest whose results live under --results.
         target: PathBuf,
@@ -126,7 +126,7 @@ enum Command {
         data: Option<PathBuf>,
     },
     /// Score a Parquet file with a stored model (a run folder, or a results folder's selected run).
-    #[command(after_help = "Example:\n  tabcard predict results/29a86975d22ab264 new-applications.parquet --out scores.parquet")]
+    #[command(after_help = "Example:\n  tabcard predict results/c22daa23f986afde new-applications.parquet --out scores.parquet")]
     Predict {
         /// A results folder (its selected run) or one run folder.
         model: PathBuf,
@@ -145,7 +145,7 @@ enum Command {
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
-        after_help = "Examples:\n  tabcard compare results/29a86975d22ab264 results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
+        after_help = "Examples:\n  tabcard compare results/c22daa23f986afde results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
     )]
     Compare {
         /// The first experiment: a results folder or a manifest.
@@ -171,7 +171,7 @@ enum Command {
         results: PathBuf,
     },
     /// Re-render the model card of a results folder from stored results (no retraining).
-    #[command(after_help = "Example:\n  tabcard card results/29a86975d22ab264 --templates my-templates/")]
+    #[command(after_help = "Example:\n  tabcard card results/c22daa23f986afde --templates my-templates/")]
     Card {
         /// The results folder whose card to write.
         results_folder: PathBuf,

@@ -99,6 +99,7 @@ def main():
     p.add_argument("--reps", type=int, default=3)
     p.add_argument("--torch", default=None, help="python with torch installed; omit to skip PyTorch")
     p.add_argument("--previous", default=None, help="bench program of an earlier tabcard build; omit to skip")
+    p.add_argument("--skip-10m", action="store_true", help="skip the 10,000,000-row whole-command case (a 2.9 GB file, minutes)")
     a = p.parse_args()
     w = a.workdir
     os.makedirs(w, exist_ok=True)
@@ -260,19 +261,41 @@ def main():
     ld = [run_json([BENCH, "load", data_big]) for _ in range(a.reps)]
     report(f"   Parquet -> table {median([x['parquet_to_table_mb_s'] for x in ld]):.0f} MB/s; table -> standardised f32 matrix {median([x['table_to_matrix_mb_s'] for x in ld]):.0f} MB/s; end to end {median([x['parquet_to_matrix_mb_s'] for x in ld]):.0f} MB/s of matrix")
 
-    report("\n4. scale: one epoch at 1,000,000 rows x 64 features, reference MLP 64-256-256-1")
+    report("\n4. scale: one epoch of the reference MLP 64-256-256-1; the engine alone on an in-memory 1,000,000 x 64 matrix, then")
+    report("   whole commands (read, hash, check, split, matrices, 1 run, test, card) at 1,000,000 and 10,000,000 rows x 64")
     s = run_json([BENCH, "scale", "1000000", "64"])
     report(f"   engine: {s['samples_per_second']:,.0f} samples/s, {s['seconds']:.1f} s; peak RSS {s['peak_rss_mb']:.0f} MB = {s['rss_over_matrix_plus_model']:.2f} x (f32 matrix {s['matrix_mb']:.0f} MB + model {s['model_mb']:.2f} MB)")
-    data_scale = os.path.join(w, "synthetic-1m-x64.parquet")
-    run_json([BENCH, "data", "1000000", "64", data_scale])
-    scale_manifest = os.path.join(w, "scale.toml")
-    manifest(scale_manifest, data_scale, "[256, 256]", 1, "[1]", 256, 0.1, 0.1)
-    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "1", "--results", fresh("scale-results")])
-    train_matrix = 800_000 * 64 * 4
-    report(f"   whole `tabcard train` (read, hash, split, 1 run, test, card): {seconds:.1f} s; peak RSS {rss / 1e6:.0f} MB = {rss / train_matrix:.2f} x the f32 training matrix ({train_matrix / 1e6:.0f} MB, 800,000 rows)")
+    for rows in ([1_000_000] + ([] if a.skip_10m else [10_000_000])):
+        whole_command_memory(report, w, rows, 64)
 
     with open(os.path.join(w, "summary.txt"), "w") as f:
         f.write("\n".join(lines) + "\n")
+
+
+def whole_command_memory(report, w, rows, cols):
+    """Peak RSS and wall time of a whole `tabcard train` (one run, one epoch) on a rows x cols file
+    of float32 features, with the phases its timing record gives; the file is deleted afterwards."""
+    data = os.path.join(w, f"synthetic-{rows}-x{cols}.parquet")
+    info = run_json([BENCH, "data", str(rows), str(cols), data])
+    scale_manifest = os.path.join(w, f"scale-{rows}.toml")
+    manifest(scale_manifest, data, "[256, 256]", 1, "[1]", 256, 0.1, 0.1)
+    results = os.path.join(w, f"scale-results-{rows}")
+    shutil.rmtree(results, ignore_errors=True)
+    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "2", "--results", results])
+    params = cols * 256 + 256 + 256 * 256 + 256 + 256 + 1
+    model = params * 4
+    full = rows * cols * 4
+    train = (rows - 2 * round(rows * 0.1)) * cols * 4
+    report(f"   whole `tabcard train` at {rows:,} x {cols} ({info['bytes'] / 1e9:.2f} GB file, one run, one epoch, --jobs 2): {seconds:.1f} s, peak RSS {rss / 1e6:,.0f} MB")
+    report(f"     = {rss / (full + model):.2f} x (f32 matrix of every row {full / 1e6:,.0f} MB + model {model / 1e6:.2f} MB); "
+           f"{rss / (train + model):.2f} x the training split's matrix alone ({train / 1e6:,.0f} MB)")
+    timing = [os.path.join(results, d, "timing.json") for d in os.listdir(results) if os.path.isdir(os.path.join(results, d))]
+    with open(timing[0]) as f:
+        record = json.load(f)
+    phases = ", ".join(f"{p['name']} {p['seconds']:.1f} s" for p in record.get("phases", []))
+    report(f"     where the time goes: {phases}; card and ledger the rest of {record['wall_seconds']:.1f} s")
+    os.remove(data)
+    shutil.rmtree(results, ignore_errors=True)
 
 
 def cpu_model():
