@@ -293,7 +293,7 @@ def whole_command_memory(report, w, rows, cols):
     with open(timing[0]) as f:
         record = json.load(f)
     phases = ", ".join(f"{p['name']} {p['seconds']:.1f} s" for p in record.get("phases", []))
-    report(f"     where the time goes: {phases}; card and ledger the rest of {record['wall_seconds']:.1f} s")
+    report(f"     where the time goes: {phases} (the timing record's wall time, {record['wall_seconds']:.1f} s, ends before the card is written)")
     os.remove(data)
     shutil.rmtree(results, ignore_errors=True)
 
