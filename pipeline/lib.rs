@@ -30,6 +30,7 @@ pub mod store;
 pub mod sweep;
 pub mod task;
 pub mod text;
+pub mod threads;
 pub mod train;
 
 pub use error::{Error, Result};

@@ -384,6 +384,10 @@ pub fn evaluate_test(
     })
 }
 
+/// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
+/// working copies (about 60 bytes a test row).
+pub const MAX_BOOTSTRAP_THREADS: usize = 4;
+
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
 /// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
 pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
@@ -404,17 +408,19 @@ pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
             Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
         .collect::<Result<_>>()?;
-    let test = evaluate_test(
-        runs,
-        &picked.selected_config,
-        &picked.selected_run,
-        &test_x,
-        &test_y,
-        m.selection.bootstrap,
-        m.split.seed,
-        &groups,
-        (&prepared.validation_x, &prepared.validation_y),
-    )?;
+    let test = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?.install(|| {
+        evaluate_test(
+            runs,
+            &picked.selected_config,
+            &picked.selected_run,
+            &test_x,
+            &test_y,
+            m.selection.bootstrap,
+            m.split.seed,
+            &groups,
+            (&prepared.validation_x, &prepared.validation_y),
+        )
+    })?;
     Ok(Selection {
         metric: m.selection.metric.clone(),
         higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric)

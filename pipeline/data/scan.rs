@@ -71,12 +71,7 @@ pub const MAX_SCAN_THREADS: usize = 4;
 /// process may use, up to [`MAX_SCAN_THREADS`] (the process-wide pool stays single-threaded for
 /// the training kernels). Every result is the same whatever the thread count.
 pub fn scan(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
-    let threads = std::thread::available_parallelism().map_or(1, |n| n.get()).min(MAX_SCAN_THREADS);
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .map_err(|e| Error::Environment(format!("cannot start {threads} threads to read the data: {e}")))?;
-    pool.install(|| scan_in(m, source))
+    crate::threads::helper_pool(MAX_SCAN_THREADS, "read the data")?.install(|| scan_in(m, source))
 }
 
 fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
