@@ -62,7 +62,8 @@ enum Command {
         /// Folder holding one results folder per experiment fingerprint, and the ledger.
         #[arg(long, default_value = "results")]
         results: PathBuf,
-        /// Runs trained at once (each run is single-threaded); default: available cores.
+        /// Runs trained at once (each run is single-threaded), and the most threads reading the
+        /// data or scoring bootstrap resamples (at most 4); default: available cores.
         #[arg(long)]
         jobs: Option<usize>,
         /// Train only shard K of N of the run list (0 <= K < N, run i belongs to shard i mod N), e.g. one task of a job array.
@@ -118,7 +119,8 @@ enum Command {
         /// The results root, where a manifest's results folder is looked up.
         #[arg(long, default_value = "results")]
         results: PathBuf,
-        /// Runs retrained at once; default: available cores.
+        /// Runs retrained at once, and the most threads reading the data or scoring bootstrap
+        /// resamples (at most 4); default: available cores.
         #[arg(long)]
         jobs: Option<usize>,
         /// Data file to use instead of the recorded path (it must match the recorded fingerprints).
@@ -307,6 +309,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
         Command::Check { manifest } => Done::report(commands::check::run(&manifest, default_jobs())?),
         Command::Train { manifest, results, jobs, shard } => {
             let jobs = jobs.unwrap_or_else(default_jobs);
+            tabcard::threads::limit_to(jobs);
             let (bar, on_event) = progress_display(quiet);
             let options = commands::train::TrainOptions { results_root: results, jobs, shard };
             let outcome = commands::train::run(&manifest, &options, &on_event);
@@ -315,6 +318,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             Done { text: o.report, json: Some(o.json), code: if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK } }
         }
         Command::Verify { target, all, results, jobs, data } => {
+            tabcard::threads::limit_to(jobs.unwrap_or_else(default_jobs));
             let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
             let (bar, on_event) = progress_display(quiet);
             let outcome = commands::verify::run(&target, &options, &on_event);
