@@ -1,8 +1,8 @@
-//! An experiment made ready to train or to retrain: its plan, the preprocessor fitted on the
-//! training rows, and the training and validation matrices that every run shares read-only, built
-//! straight from the data file a column at a time (the second pass).
+//! An experiment made ready to train or to retrain: its plan, and the training and validation
+//! matrices every run shares read-only, encoded by the preprocessor the experiment fitted on the
+//! training rows and built straight from the data file a column at a time (the second pass).
 
-use crate::data::prep::{Matrix, Preprocessor};
+use crate::data::prep::Matrix;
 use crate::error::Result;
 use crate::experiment::Experiment;
 use crate::plan::{self, Plan};
@@ -11,7 +11,6 @@ use crate::train::{Labels, RunData};
 pub struct Prepared {
     pub exp: Experiment,
     pub plan: Plan,
-    pub preprocessor: Preprocessor,
     pub train_x: Matrix,
     pub validation_x: Matrix,
     pub train_y: Labels,
@@ -28,14 +27,13 @@ impl Prepared {
     /// another tool version keeps the stored run ids).
     pub fn with_fingerprint(exp: Experiment, fingerprint: &str) -> Result<Self> {
         let plan = plan::build(&exp.manifest, fingerprint)?;
-        let preprocessor = exp.preprocessor.clone();
-        let mut matrices = preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.validation])?.into_iter();
+        let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.validation])?.into_iter();
         let (Some((train_x, _)), Some((validation_x, _))) = (matrices.next(), matrices.next()) else {
             return Err(crate::error::Error::Internal("two row lists gave fewer than two matrices".into()));
         };
         let train_y = exp.labels(&exp.splits.train);
         let validation_y = exp.labels(&exp.splits.validation);
-        Ok(Prepared { exp, plan, preprocessor, train_x, validation_x, train_y, validation_y })
+        Ok(Prepared { exp, plan, train_x, validation_x, train_y, validation_y })
     }
 
     pub fn run_data(&self) -> RunData<'_> {

@@ -391,7 +391,7 @@ pub const MAX_BOOTSTRAP_THREADS: usize = 4;
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
 /// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
 pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
-    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
+    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
     let (test_x, _) = preprocessor

@@ -53,7 +53,7 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
     let folder = experiment_folder(&dir.path().join("results")).unwrap();
     let exp = tabcard::experiment::open(&manifest).unwrap();
     let prepared = tabcard::prepared::Prepared::new(exp).unwrap();
-    let width = prepared.preprocessor.width();
+    let width = prepared.exp.preprocessor.width();
     let outputs = prepared.exp.head().outputs();
     for config in &prepared.plan.configs {
         let run = prepared.plan.runs.iter().find(|r| r.config_id == config.id).unwrap();

@@ -257,7 +257,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let mut prepared = Prepared::new(exp)?;
     crate::feasibility::return_freed_memory();
     phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
-    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.preprocessor);
+    let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
     let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);

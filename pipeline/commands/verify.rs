@@ -164,7 +164,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));
     }
     let stored_prep: crate::data::prep::Preprocessor = read_json(&layout.preprocessor())?;
-    if stored_prep != prepared.preprocessor {
+    if stored_prep != prepared.exp.preprocessor {
         return Err(Error::store(layout.preprocessor(), "differs from the preprocessor refitted on the training rows"));
     }
     let selection: Selection = read_json(&layout.selection())?;
@@ -177,7 +177,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         head: prepared.exp.head(),
         data: prepared.run_data(),
         validation_rows: &prepared.exp.splits.validation,
-        preprocessor: &prepared.preprocessor,
+        preprocessor: &prepared.exp.preprocessor,
         selection_metric: &prepared.exp.manifest.selection.metric,
         environment: &now,
         jobs: options.jobs,
