@@ -25,17 +25,24 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 
 /// SHA-256 of a file's bytes, read in 1 MiB blocks.
 pub fn file_sha256(path: &Path) -> Result<String> {
-    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    Ok(reader_sha256(file, path)?.0)
+}
+
+/// SHA-256 of everything `reader` yields, read in 1 MiB blocks, and the byte count; `path` names
+/// the file in errors.
+pub fn reader_sha256(mut reader: impl Read, path: &Path) -> Result<(String, u64)> {
     let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; 1 << 20];
+    let (mut buf, mut bytes) = (vec![0u8; 1 << 20], 0u64);
     loop {
-        let n = file.read(&mut buf).map_err(|e| Error::io(path, "read the data file", e))?;
+        let n = reader.read(&mut buf).map_err(|e| Error::io(path, "read the data file", e))?;
         if n == 0 {
             break;
         }
         hasher.update(&buf[..n]);
+        bytes += n as u64;
     }
-    Ok(hex(&hasher.finalize()))
+    Ok((hex(&hasher.finalize()), bytes))
 }
 
 /// The experiment fingerprint: SHA-256 over the canonical manifest hash, the logical data hash and

@@ -276,24 +276,15 @@ impl ParquetSource {
 
     /// SHA-256 of the file's bytes, read through the handle every later read uses, and its length.
     pub fn file_sha256(&self) -> Result<(String, u64)> {
-        use sha2::{Digest, Sha256};
-        use std::io::{Read, Seek};
+        use std::io::Seek;
         let io = |e| Error::io(&self.path, "read the data file", e);
         let mut file = self.file.try_clone().map_err(io)?;
         file.rewind().map_err(io)?;
-        let (mut hasher, mut buf, mut bytes) = (Sha256::new(), vec![0u8; 1 << 20], 0u64);
-        loop {
-            let n = file.read(&mut buf).map_err(io)?;
-            if n == 0 {
-                break;
-            }
-            hasher.update(&buf[..n]);
-            bytes += n as u64;
-        }
+        let (digest, bytes) = crate::fingerprint::reader_sha256(file, &self.path)?;
         if bytes != self.identity.0 {
-            return Err(Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put"));
+            return Err(self.changed());
         }
-        Ok((crate::fingerprint::hex(&hasher.finalize()), bytes))
+        Ok((digest, bytes))
     }
 
     /// Rows as the file's metadata declares them (every read checks it gets exactly these).
@@ -311,9 +302,13 @@ impl ParquetSource {
         self.fields.iter().find(|f| f.name() == name).is_some_and(|f| matches!(empty_values(f.data_type()), ColumnValues::Text { .. }))
     }
 
+    fn changed(&self) -> Error {
+        Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put")
+    }
+
     fn reader(&self) -> Result<ParquetRecordBatchReaderBuilder<std::fs::File>> {
         if identity_of(&self.file) != self.identity {
-            return Err(Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put"));
+            return Err(self.changed());
         }
         let file = self.file.try_clone().map_err(|e| Error::io(&self.path, "open the data file", e))?;
         ParquetRecordBatchReaderBuilder::try_new(file)
