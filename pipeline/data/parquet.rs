@@ -331,14 +331,12 @@ impl ParquetSource {
     /// chunk)`. Text codes mean the same level in every chunk (as in [`read_table`]).
     pub fn for_each_chunk(&self, names: &[&str], mut visit: impl FnMut(usize, &Table) -> Result<()>) -> Result<()> {
         let mut first = 0;
-        let mut rows = 0;
         self.decode(names, CHUNK_ROWS, &mut |t| {
             visit(first, &t)?;
             first += t.rows;
-            rows = first;
             Ok(Some(t))
         })?;
-        self.check_rows(rows)
+        self.check_rows(first)
     }
 
     fn check_rows(&self, got: usize) -> Result<()> {
@@ -381,11 +379,7 @@ impl ParquetSource {
                 rows += batch.num_rows();
                 pending += batch.num_rows();
                 if pending >= every {
-                    pending = 0;
-                    let chunk = Table {
-                        rows: columns.first().map_or(0, |c| c.rows - c.start),
-                        columns: columns.iter_mut().map(Builder::take).collect(),
-                    };
+                    let chunk = Table { rows: std::mem::take(&mut pending), columns: columns.iter_mut().map(Builder::take).collect() };
                     if let Some(back) = sink(chunk)? {
                         for (builder, col) in columns.iter_mut().zip(back.columns) {
                             builder.restore(col);
@@ -393,12 +387,10 @@ impl ParquetSource {
                     }
                 }
             }
-            if pending > 0 || rows == 0 || every == usize::MAX {
-                let chunk = Table {
-                    rows: columns.first().map_or(rows, |c| c.rows - c.start),
-                    columns: columns.into_iter().map(Builder::finish).collect(),
-                };
-                sink(chunk)?;
+            // The rows since the last chunk (all of them for a whole read); an empty file still
+            // yields its (empty) columns.
+            if pending > 0 || rows == 0 {
+                sink(Table { rows: pending, columns: columns.into_iter().map(Builder::finish).collect() })?;
             }
             Ok(())
         })
