@@ -9,12 +9,7 @@ use std::hash::{BuildHasherDefault, Hasher};
 /// the values sorted by `f64::total_cmp`), found by selection in linear time; reorders `values`,
 /// which must not be empty.
 pub fn quantile(values: &mut [f64], q: f64) -> f64 {
-    let pos = q * (values.len() - 1) as f64;
-    let lo = pos.floor() as usize;
-    let (_, &mut below, above) = values.select_nth_unstable_by(lo, f64::total_cmp);
-    let next = if pos.ceil() as usize > lo { above.iter().copied().min_by(f64::total_cmp).unwrap_or(below) } else { below };
-    // The same arithmetic as quantile_sorted, so infinities and -0.0 come out as they did.
-    below + (next - below) * (pos - lo as f64)
+    quantiles(values, [q])[0]
 }
 
 /// Several quantiles at once (as [`quantile`] gives each): the order statistics they need are
@@ -31,6 +26,7 @@ pub fn quantiles<const K: usize>(values: &mut [f64], qs: [f64; K]) -> [f64; K] {
         let lo = pos.floor() as usize;
         let below = values[lo];
         let next = if pos.ceil() as usize > lo { values[lo + 1] } else { below };
+        // The same arithmetic as quantile_sorted, so infinities and -0.0 come out as they did.
         below + (next - below) * (pos - lo as f64)
     })
 }
