@@ -79,6 +79,23 @@ pub fn open(manifest_path: &Path) -> Result<Experiment> {
 
 pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
     let data_path = loaded.data_path();
+    // A data file that is missing or not a table is a manifest problem: name the key and line.
+    let problem = match std::fs::metadata(&data_path) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => Some("no such file"),
+        Ok(m) if m.is_dir() => Some("is a folder, not a Parquet file"),
+        Ok(m) if !m.is_file() => {
+            Some("is not a regular file (a pipe, socket or device); tabcard reads Parquet tables from regular files only")
+        }
+        _ => None,
+    };
+    if let Some(problem) = problem {
+        return Err(manifest::key_error(
+            &loaded.path,
+            "data.path",
+            format!("{}: {problem}", data_path.display()),
+            Some("data.path is resolved against the manifest's folder".into()),
+        ));
+    }
     open_with_data(loaded, data_path)
 }
 

@@ -28,6 +28,10 @@ pub struct MemoryEstimate {
     pub shared: u64,
     pub workers: usize,
     pub total: u64,
+    /// The feature whose encoding takes the most input columns, with that count (at most), and
+    /// the encoded width of every feature together (at most).
+    pub widest_feature: Option<(String, usize)>,
+    pub width_bound: usize,
 }
 
 /// Parameters of a configuration for `inputs` input columns and `outputs` outputs.
@@ -62,14 +66,15 @@ fn worker_bytes(config: &PlannedConfig, inputs: usize, outputs: usize) -> u64 {
 /// Input columns after encoding, at most: one per numeric feature plus a missing-value
 /// indicator, and per categorical feature one per level, the unseen bucket and the indicator.
 pub fn input_width_bound(exp: &Experiment) -> usize {
-    exp.roles
-        .features
-        .iter()
-        .map(|f| match exp.summary.columns.iter().find(|c| c.name == f.name) {
-            Some(c) if f.categorical => c.distinct + 2,
-            _ => 2,
-        })
-        .sum()
+    feature_widths(exp).map(|(_, w)| w).sum()
+}
+
+/// Each feature's encoded input columns, at most (see [`input_width_bound`]).
+fn feature_widths(exp: &Experiment) -> impl Iterator<Item = (&str, usize)> {
+    exp.roles.features.iter().map(|f| match exp.summary.columns.iter().find(|c| c.name == f.name) {
+        Some(c) if f.categorical => (f.name.as_str(), c.distinct + 2),
+        _ => (f.name.as_str(), 2),
+    })
 }
 
 /// The estimate for `plan` with `inputs` encoded input columns, on `jobs` workers.
@@ -89,7 +94,8 @@ pub fn estimate(exp: &Experiment, plan: &Plan, inputs: usize, jobs: usize) -> Me
         Some(c) => format!("model.hidden = {:?}", c.config.model.hidden),
     };
     let parameters = largest.map_or(0, |c| parameter_count(c, inputs, outputs));
-    MemoryEstimate { parameters, largest: label, per_worker, shared, workers, total }
+    let widest_feature = feature_widths(exp).max_by_key(|(_, w)| *w).map(|(n, w)| (n.to_string(), w));
+    MemoryEstimate { parameters, largest: label, per_worker, shared, workers, total, widest_feature, width_bound: input_width_bound(exp) }
 }
 
 fn first_number(text: &str, key: &str) -> Option<u64> {
@@ -147,13 +153,29 @@ pub fn describe(e: &MemoryEstimate, available: Option<u64>) -> String {
 pub fn require(e: &MemoryEstimate, available: Option<u64>, what: &std::path::Path) -> Result<()> {
     match available {
         Some(a) if e.total > a => Err(Error::Usage(format!(
-            "{}: the plan needs an estimated {} of memory, more than the {} available: {}; reduce `model.hidden` (or its grid values) or --jobs",
+            "{}: the plan needs an estimated {} of memory, more than the {} available: {}; {}",
             what.display(),
             mib(e.total),
             mib(a),
-            describe(e, None)
+            describe(e, None),
+            advice(e)
         ))),
         _ => Ok(()),
+    }
+}
+
+/// What to change: the one feature whose encoding takes most of the input width when there is
+/// one (over half of it), else the network's width or the workers.
+fn advice(e: &MemoryEstimate) -> String {
+    match &e.widest_feature {
+        Some((name, width)) if 2 * width > e.width_bound => format!(
+            "column `{}` is one-hot encoded into up to {width} of the {} input columns ({:.0}%): list it in `data.drop`, or group its \
+             levels into fewer before training",
+            crate::text::terminal_safe(name),
+            e.width_bound,
+            100.0 * *width as f64 / e.width_bound.max(1) as f64
+        ),
+        _ => "reduce `model.hidden` (or its grid values) or --jobs".into(),
     }
 }
 

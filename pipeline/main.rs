@@ -144,6 +144,12 @@ enum Command {
         /// Replace `--out` if it exists.
         #[arg(long)]
         force: bool,
+        /// CSV only: write text cells and column names that begin with =, +, -, @, tab or carriage
+        /// return with a leading ' so a spreadsheet shows them as text instead of running them as
+        /// formulas (numbers such as -5 are never changed). The ' becomes part of the text for any
+        /// program other than a spreadsheet.
+        #[arg(long)]
+        guard_formulas: bool,
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
@@ -222,11 +228,13 @@ fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) + Sy
     let on_event = move |event: Event| {
         let Ok(mut s) = state.lock() else { return };
         match event {
-            Event::Header(text) | Event::Waiting(text) => {
+            Event::Header(text) => {
                 if !quiet {
                     handle.suspend(|| note(&text));
                 }
             }
+            // Shown even under --quiet: a command that waits must say for whom, or it looks hung.
+            Event::Waiting(text) => handle.suspend(|| note(&text)),
             Event::Planned { pending, reused, metric, higher_is_better } => {
                 (s.pending, s.metric, s.higher_is_better) = (pending, metric, higher_is_better);
                 handle.set_length(pending as u64);
@@ -308,7 +316,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
         }
         Command::Check { manifest } => Done::report(commands::check::run(&manifest, default_jobs())?),
         Command::Train { manifest, results, jobs, shard } => {
-            let jobs = jobs.unwrap_or_else(default_jobs);
+            let jobs = tabcard::threads::workers(jobs.unwrap_or_else(default_jobs), tabcard::threads::MAX_WORKERS)?;
             tabcard::threads::limit_to(jobs);
             let (bar, on_event) = progress_display(quiet);
             let options = commands::train::TrainOptions { results_root: results, jobs, shard };
@@ -318,16 +326,21 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             Done { text: o.report, json: Some(o.json), code: if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK } }
         }
         Command::Verify { target, all, results, jobs, data } => {
-            tabcard::threads::limit_to(jobs.unwrap_or_else(default_jobs));
-            let options = commands::verify::VerifyOptions { all, jobs: jobs.unwrap_or_else(default_jobs), data, results_root: results };
+            let jobs = tabcard::threads::workers(jobs.unwrap_or_else(default_jobs), tabcard::threads::MAX_WORKERS)?;
+            tabcard::threads::limit_to(jobs);
+            let options = commands::verify::VerifyOptions { all, jobs, data, results_root: results };
             let (bar, on_event) = progress_display(quiet);
             let outcome = commands::verify::run(&target, &options, &on_event);
             bar.finish_and_clear();
             let o = outcome?;
             Done { text: o.report, json: Some(o.json), code: if o.identical { exit::OK } else { exit::NOT_VERIFIED } }
         }
-        Command::Predict { model, input, out, keep_extra, force } => {
-            Done::text(commands::predict::run(&model, &input, &out, &commands::predict::PredictOptions { keep_extra, force })?)
+        Command::Predict { model, input, out, keep_extra, force, guard_formulas } => {
+            if guard_formulas && commands::predict::OutputFormat::of(&out)? != commands::predict::OutputFormat::Csv {
+                return Err(tabcard::Error::Usage("--guard-formulas applies to CSV output only (--out ending in .csv)".into()));
+            }
+            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas };
+            Done::text(commands::predict::run(&model, &input, &out, &options)?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
             let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };

@@ -28,7 +28,7 @@ impl ScoringModel {
         let head = run.record.head;
         // The initial values are overwritten by the stored tensors; the stream only fills shapes.
         let mut network = Mlp::new(&config.model, preprocessor.width(), head.outputs(), &mut Stream::new(0, Purpose::Init), DType::F32)?;
-        network.load(&run.tensors()?)?;
+        network.load(&run.checked_tensors()?)?;
         let engine = Engine::from_model(&network, EVAL_BLOCK)?;
         Ok(ScoringModel { head, config, preprocessor, scaling: run.record.target_scaling, engine })
     }

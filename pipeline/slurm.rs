@@ -52,6 +52,41 @@ pub struct ScriptInputs<'a> {
     pub resources: &'a TaskResources,
 }
 
+/// Checks every value an `#SBATCH` line will carry before a script is written. sbatch reads those
+/// lines itself, not through a shell, so quoting cannot protect them: a value with whitespace or
+/// a line break (which would start a live shell line) is refused, and partition, account, memory
+/// and time must have the forms SLURM gives them. Returns the first problem, naming the option.
+pub fn check_directive_values(r: &TaskResources, results_root: &Path) -> Result<(), String> {
+    let word = |s: &str, allowed: &dyn Fn(char) -> bool| !s.is_empty() && s.chars().all(allowed);
+    let name_char = |c: char| c.is_ascii_alphanumeric() || "_.-".contains(c);
+    if let Some(p) = &r.partition {
+        if !word(p, &|c| name_char(c) || c == ',') {
+            return Err(format!("--partition {p:?}: a partition name (or a comma-separated list) of letters, digits, _ . -"));
+        }
+    }
+    if let Some(a) = &r.account {
+        if !word(a, &name_char) {
+            return Err(format!("--account {a:?}: an account name of letters, digits, _ . -"));
+        }
+    }
+    let digits_then_unit = r.memory.trim_end_matches(['K', 'M', 'G', 'T']);
+    if !word(digits_then_unit, &|c| c.is_ascii_digit()) || r.memory.len() > digits_then_unit.len() + 1 {
+        return Err(format!("--mem {:?}: a size as sbatch --mem takes it, e.g. 4G or 4096M", r.memory));
+    }
+    if let Some(t) = &r.time_limit {
+        if !word(t, &|c| c.is_ascii_digit() || c == ':' || c == '-') {
+            return Err(format!("--time {t:?}: a time as sbatch --time takes it, e.g. 02:00:00 or 1-00:00:00"));
+        }
+    }
+    let root = results_root.to_string_lossy();
+    if root.chars().any(|c| c.is_whitespace() || c.is_control()) {
+        return Err(format!(
+            "--results {root:?}: the log paths of #SBATCH lines cannot hold spaces or line breaks; use a results root without them"
+        ));
+    }
+    Ok(())
+}
+
 /// A word quoted for a POSIX shell.
 pub fn shell_quote(word: &str) -> String {
     if !word.is_empty() && word.chars().all(|c| c.is_ascii_alphanumeric() || "/._-+=:,@%".contains(c)) {
@@ -110,7 +145,7 @@ fn job_name(inputs: &ScriptInputs<'_>, role: &str) -> String {
 pub fn array_script(inputs: &ScriptInputs<'_>) -> String {
     let n = inputs.tasks;
     let mut out = String::from("#!/bin/bash\n");
-    let _ = writeln!(out, "# tabcard sweep as a SLURM job array: experiment {}", inputs.experiment_name.replace('\n', " "));
+    let _ = writeln!(out, "# tabcard sweep as a SLURM job array: experiment {}", crate::text::terminal_safe(inputs.experiment_name));
     let _ = writeln!(out, "# fingerprint {}", inputs.fingerprint);
     let _ = writeln!(out, "# {} runs in {n} array tasks; task K trains shard K/{n} (run i belongs to shard i mod {n}).", inputs.runs);
     let _ = writeln!(out, "# The results folder must be on a file system every node shares.");
@@ -125,7 +160,7 @@ pub fn array_script(inputs: &ScriptInputs<'_>) -> String {
 /// out), then selects, tests once, writes the card and the ledger line, as on one machine.
 pub fn merge_script(inputs: &ScriptInputs<'_>) -> String {
     let mut out = String::from("#!/bin/bash\n");
-    let _ = writeln!(out, "# tabcard merge step for experiment {}", inputs.experiment_name.replace('\n', " "));
+    let _ = writeln!(out, "# tabcard merge step for experiment {}", crate::text::terminal_safe(inputs.experiment_name));
     let _ = writeln!(out, "# fingerprint {}", inputs.fingerprint);
     let _ = writeln!(out, "# Run after the array (sbatch --dependency=afterany:<array job id>): selects, tests and writes the card.");
     header(&mut out, inputs, &job_name(inputs, "merge-"), "merge-%j.out");

@@ -29,8 +29,30 @@ pub fn terminal_cell(s: &str, max: usize) -> String {
 /// CommonMark or HTML becomes an entity or a backslash escape, line breaks and control characters
 /// become visible escapes, and the length is bounded (200 characters: names and levels in table
 /// cells). The result renders as the literal text.
+///
+/// Names must stay told apart: an empty one shows as an italic *(empty)* (a literal one would show
+/// its escaped brackets), and one cut at the bound ends with the start of its SHA-256, so two long
+/// names that share their first 200 characters still read differently.
 pub fn markdown_safe(s: &str) -> String {
-    escape_line(s, Some(200))
+    if s.is_empty() {
+        return "*(empty)*".into();
+    }
+    let mut out = escape_line(s, Some(MAX_CELL_CHARS));
+    if s.chars().count() > MAX_CELL_CHARS {
+        use sha2::Digest;
+        let digest: String = sha2::Sha256::digest(s.as_bytes()).iter().take(6).map(|b| format!("{b:02x}")).collect();
+        out.push_str(&format!(" (cut; SHA-256 {digest})"));
+    }
+    out
+}
+
+/// The characters [`markdown_safe`] keeps of a name.
+pub const MAX_CELL_CHARS: usize = 200;
+
+/// Manifest prose for a table cell (owner, trained by): its lines joined with ` / `, each escaped
+/// as in [`markdown_line`], so a line break can never end the row or the table.
+pub fn markdown_cell_text(s: &str) -> String {
+    s.lines().map(str::trim).filter(|l| !l.is_empty()).map(|l| escape_line(l, None)).collect::<Vec<_>>().join(" / ")
 }
 
 /// [`markdown_safe`] without the length bound, for sentences the tool writes itself (findings,
@@ -78,14 +100,25 @@ pub fn code_span(s: &str) -> String {
     format!("{fence}{pad}{body}{pad}{fence}")
 }
 
+/// Whether the characters before position `i` of `chars` end in `www` (any case).
+fn after_www(chars: &[char], i: usize) -> bool {
+    i >= 3 && chars[i - 3..i].iter().collect::<String>().eq_ignore_ascii_case("www")
+}
+
 fn escape_line(s: &str, max: Option<usize>) -> String {
     let mut out = String::with_capacity(s.len());
-    for (i, c) in s.chars().enumerate() {
+    let chars: Vec<char> = s.chars().collect();
+    for (i, &c) in chars.iter().enumerate() {
         if Some(i) == max {
             out.push('…');
             break;
         }
         match c {
+            // What GitHub-flavoured autolinks start from (`scheme://`, `www.`, `user@host`):
+            // backslash-escaped, the text stays as it reads but is no longer a link.
+            ':' if chars.get(i + 1..i + 3) == Some(&['/', '/']) => out.push_str("\\:"),
+            '.' if after_www(&chars, i) => out.push_str("\\."),
+            '@' => out.push_str("\\@"),
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),
             '&' => out.push_str("&amp;"),

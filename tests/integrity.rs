@@ -72,11 +72,17 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
         bytes[last] ^= 0x01;
         std::fs::write(&file, &bytes).unwrap();
         let expected = format!("error: {}: was changed after it was recorded", file.display());
+        // `card` renders the card and figures anew from the evidence: an edited rendered file is
+        // repaired there (tests/hostile.rs), an edited evidence file refused.
+        let rendered = path == "card.md" || path.starts_with("figures/");
         for args in [
             vec!["verify", copy.to_str().unwrap()],
             vec!["card", copy.to_str().unwrap()],
             vec!["compare", folder.to_str().unwrap(), copy.to_str().unwrap()],
         ] {
+            if rendered && args[0] == "card" {
+                continue;
+            }
             let out = run_in(d, &args);
             assert_eq!(out.status.code(), Some(6), "{args:?} after editing {path}: {}", stderr(&out));
             assert!(stderr(&out).starts_with(&expected), "{args:?} after editing {path}: {}", stderr(&out));

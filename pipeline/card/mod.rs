@@ -73,6 +73,8 @@ struct About {
 #[derive(Serialize)]
 struct DataSection {
     path: String,
+    /// How `path` is to be read: relative to the manifest, or absolute.
+    path_base: String,
     bytes: u64,
     outside_project: bool,
     file_sha256: String,
@@ -198,7 +200,7 @@ fn load(layout: &Layout) -> Result<Stored> {
         record,
         summary: read_json(&layout.data_summary())?,
         selection: read_json(&layout.selection())?,
-        timing: if layout.timing().exists() { Some(read_json(&layout.timing())?) } else { None },
+        timing: crate::store::timing::read(&layout.timing())?,
         preprocessor: read_json(&layout.preprocessor())?,
         plan,
         runs,
@@ -327,13 +329,15 @@ struct Stored {
 fn about(m: &Manifest) -> About {
     let e = &m.experiment;
     let stated = |s: &str| if s.trim().is_empty() { "not stated".to_string() } else { md_text(s) };
+    // Owner and trainer sit in table cells: one line each, whatever the manifest holds.
+    let stated_cell = |s: &str| if s.trim().is_empty() { "not stated".to_string() } else { crate::text::markdown_cell_text(s) };
     About {
         name: md(&e.name),
         description: md_text(&e.description),
         intended_use: stated(&e.intended_use),
         out_of_scope: stated(&e.out_of_scope),
-        owner: stated(&e.owner),
-        trained_by: stated(&e.trained_by),
+        owner: stated_cell(&e.owner),
+        trained_by: stated_cell(&e.trained_by),
         data_period: stated(&e.data_period),
         population: stated(&e.population),
         affects_people: e.affects_people,
@@ -469,6 +473,11 @@ fn data_section(st: &Stored) -> DataSection {
     };
     DataSection {
         path: code_span(&record.data.path),
+        path_base: if Path::new(&record.data.path).is_absolute() {
+            "an absolute path: it names one machine's file, not one that travels with the project".into()
+        } else {
+            "relative to the manifest".into()
+        },
         bytes: record.data.bytes,
         outside_project: record.data.outside_project,
         file_sha256: record.data.file_sha256.clone(),
@@ -765,7 +774,7 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
     let timing = st.timing.as_ref();
     let folder = layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
     Provenance {
-        trained_at: timing.map(|t| t.trained_at.clone()).unwrap_or_else(|| "unknown".into()),
+        trained_at: md(&timing.map(|t| t.trained_at.clone()).unwrap_or_else(|| "unknown".into())),
         fingerprint: st.record.fingerprint.clone(),
         tool_version: st.record.tool_version.clone(),
         manifest_sha256: st.record.manifest_sha256.clone(),
@@ -792,7 +801,7 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
             Row::of(["C library".into(), md(&environment.libc)]),
             Row::of(["threads per run".into(), environment.threads_per_run.to_string()]),
         ],
-        git_commit: timing.and_then(|t| t.git_commit.clone()).unwrap_or_else(|| "not in a git repository".into()),
+        git_commit: code_span(&timing.and_then(|t| t.git_commit.clone()).unwrap_or_else(|| "not in a git repository".into())),
         git_dirty: match timing.and_then(|t| t.git_dirty) {
             Some(true) => "yes".into(),
             Some(false) => "no".into(),

@@ -10,10 +10,24 @@ use crate::store::Layout;
 
 pub fn run(results_folder: &Path, templates: Option<&Path>) -> Result<String> {
     let layout = Layout::new(results_folder);
-    layout.check_sealed()?;
+    // A `card` killed mid-write leaves temporaries, or a card and figures its list does not name
+    // yet: the evidence decides, and the rendered files are written anew and sealed.
+    crate::store::integrity::remove_temporaries(&layout.root);
+    let repaired = match layout.check_sealed() {
+        Ok(_) => None,
+        Err(strict) => {
+            layout.check_sealed_evidence()?;
+            Some(strict)
+        }
+    };
     let digest = write_card(&layout, templates)?;
+    let note = repaired
+        .map(|e| {
+            format!("repaired: the evidence matches its list, but a rendered file did not ({e}); card and figures were rendered anew\n")
+        })
+        .unwrap_or_default();
     Ok(format!(
-        "card     {}\nfigures  {}\ndigest   {digest} (results digest, unchanged)\n",
+        "{note}card     {}\nfigures  {}\ndigest   {digest} (results digest, unchanged)\n",
         layout.card().display(),
         layout.figures().display()
     ))

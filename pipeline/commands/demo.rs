@@ -19,6 +19,9 @@ pub fn run(folder: &Path, seed: u64) -> Result<String> {
     ] {
         let bytes = encode(columns, WriteOptions::default())?;
         let path = folder.join(file);
+        // The demo tables are regenerated in place (they are invented and seeded), but never
+        // inside a results store.
+        crate::store::check_output_path("demo-data", "the demo tables", &path, &[], true)?;
         write_atomic(&path, &bytes)?;
         out.push_str(&format!("wrote {} ({} bytes)\n", path.display(), bytes.len()));
     }

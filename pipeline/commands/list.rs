@@ -25,25 +25,35 @@ struct Listed {
     selected: String,
     metric: String,
     test_value: Option<f64>,
-    /// `yes`, `FAILED` or `no`, from the latest verification of this fingerprint.
+    /// `yes`, `FAILED` or `no`, from the latest verification of this fingerprint; `TAMPERED` when
+    /// the folder no longer matches its integrity list (its figures are then not shown), `in
+    /// progress` before the folder is sealed.
     verified: String,
+    /// Why the folder fails its integrity check, when it does.
+    integrity_error: Option<String>,
 }
 
 fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed> {
     layout.check_format()?;
     let record: ExperimentRecord = read_json(&layout.experiment())?;
+    // Nothing from a folder is shown as fact before it matches its integrity list.
+    let sealed = layout.root.join(crate::store::integrity::FILE).exists();
+    let integrity_error = if sealed { crate::store::integrity::check(&layout.root).err().map(|e| e.to_string()) } else { None };
     let verified = match verifications.iter().rev().find(|v| v.fingerprint == record.fingerprint) {
+        _ if integrity_error.is_some() => "TAMPERED",
+        _ if !sealed => "in progress",
         Some(v) if v.identical => "yes",
         Some(_) => "FAILED",
         None => "no",
     };
-    let selection: Option<Selection> = if layout.selection().exists() { Some(read_json(&layout.selection())?) } else { None };
-    let timing: Option<TimingRecord> = if layout.timing().exists() { read_json(&layout.timing()).ok() } else { None };
+    let selection: Option<Selection> =
+        if layout.selection().exists() && integrity_error.is_none() { Some(read_json(&layout.selection())?) } else { None };
+    let timing: Option<TimingRecord> = crate::store::timing::read(&layout.timing()).ok().flatten();
     let selected = selection
         .as_ref()
         .and_then(|s| s.configs.iter().find(|c| c.config_id == s.selected_config))
         .map(|c| config_label(&c.overrides, c.baseline))
-        .unwrap_or_else(|| "(not selected yet)".into());
+        .unwrap_or_else(|| if integrity_error.is_some() { "-".into() } else { "(not selected yet)".into() });
     Ok(Listed {
         folder: crate::store::folder_name(&layout.root),
         fingerprint: record.fingerprint,
@@ -53,6 +63,7 @@ fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed
         metric: selection.as_ref().map(|s| s.metric.clone()).unwrap_or_default(),
         test_value: selection.as_ref().and_then(|s| s.test.metrics.get(&s.metric).copied().flatten()),
         verified: verified.to_string(),
+        integrity_error,
     })
 }
 
@@ -90,6 +101,10 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
                 headline,
                 l.verified
             );
+        }
+        for l in listed_ok.iter().filter(|l| l.integrity_error.is_some()) {
+            let _ =
+                writeln!(out, "TAMPERED {}: {}", l.folder, crate::text::terminal_safe(l.integrity_error.as_deref().unwrap_or_default()));
         }
         for p in &problems {
             let _ = writeln!(out, "unreadable: {}", crate::text::terminal_safe(p));

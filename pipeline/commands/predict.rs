@@ -7,7 +7,7 @@
 
 use arrow::array::{ArrayRef, BooleanArray, Float64Array, Int64Array, StringArray};
 use std::fmt::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::sync::Arc;
 
 use crate::data::parquet::{encode, read_table, WriteOptions};
@@ -28,6 +28,8 @@ pub struct PredictOptions {
     pub keep_extra: bool,
     /// Replace an existing output file (never the input, never a file in a results store).
     pub force: bool,
+    /// CSV only: prefix text cells (and names) that a spreadsheet would read as a formula with `'`.
+    pub guard_formulas: bool,
 }
 
 /// The file formats `--out` can name by its extension.
@@ -48,51 +50,10 @@ impl OutputFormat {
     }
 }
 
-/// `path` made absolute with its folder resolved (the file itself need not exist yet).
-fn resolved(path: &Path) -> Result<PathBuf> {
-    let folder = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p,
-        _ => Path::new("."),
-    };
-    let folder = folder.canonicalize().map_err(|e| Error::io(folder, "find the output's folder", e))?;
-    Ok(match path.file_name() {
-        Some(name) => folder.join(name),
-        None => folder,
-    })
-}
-
-/// The results store `path` would be written into, if any: an experiment's results folder (it
-/// holds `format.json`) or a results root (it holds the ledger).
-fn enclosing_store(path: &Path) -> Option<PathBuf> {
-    path.ancestors()
-        .skip(1)
-        .find(|dir| dir.join("format.json").is_file() || dir.join(crate::store::ledger::FILE).is_file())
-        .map(Path::to_path_buf)
-}
-
 /// Refuses an output that would overwrite evidence or the input, before any scoring is done.
 pub fn check_output(output: &Path, input: &Path, force: bool) -> Result<OutputFormat> {
-    let out = resolved(output)?;
-    if let Ok(input) = input.canonicalize() {
-        if out == input || out.canonicalize().is_ok_and(|o| o == input) {
-            return Err(Error::Usage(format!("--out {} is the input table; write the predictions to another file", output.display())));
-        }
-    }
-    if let Some(store) = enclosing_store(&out) {
-        return Err(Error::Usage(format!(
-            "--out {} is inside the results store {}, whose files are the audit trail; write the predictions elsewhere",
-            output.display(),
-            store.display()
-        )));
-    }
-    if out.is_dir() {
-        return Err(Error::Usage(format!("--out {} is a folder; name a .parquet or .csv file", output.display())));
-    }
-    let format = OutputFormat::of(output)?;
-    if out.exists() && !force {
-        return Err(Error::Usage(format!("--out {} exists; pass --force to replace it", output.display())));
-    }
-    Ok(format)
+    crate::store::check_output_path("--out", "the predictions", output, &[input], force)?;
+    OutputFormat::of(output)
 }
 
 /// (experiment folder, run id) for a run folder or an experiment's results folder.
@@ -210,6 +171,16 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
             columns.push((col.name.clone(), passthrough(col)));
         }
     }
+    // An id named like an output column (`ids = ["predicted"]`) would give two columns of one name.
+    for id in &record.ids {
+        if columns.iter().filter(|(n, _)| n == id).count() > 1 {
+            return Err(Error::data(
+                input,
+                Some(id),
+                "is an id column named like one of predict's output columns; rename the id column in the data and the manifest",
+            ));
+        }
+    }
     let mut out = String::new();
     let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
     let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
@@ -220,6 +191,15 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
         let _ =
             writeln!(out, "unseen    {} rows of `{}` hold a level unseen in training (scored as the unseen bucket)", n, terminal_safe(col));
     }
+    for (col, n) in &report.imputed_unseen_missing {
+        let every = if *n == table.rows { " (every row: check the input's export)" } else { "" };
+        let _ = writeln!(
+            out,
+            "imputed   {n} rows of `{}` have no value{every}, though it was never missing in training: scored with the training \
+             fill value and no missing-value indicator, an extrapolation",
+            terminal_safe(col)
+        );
+    }
     Ok((columns, out))
 }
 
@@ -228,7 +208,7 @@ pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions)
     let (columns, mut report) = score(target, input, options)?;
     let bytes = match format {
         OutputFormat::Parquet => encode(columns, WriteOptions::default())?,
-        OutputFormat::Csv => crate::data::csv::encode(&columns)?.into_bytes(),
+        OutputFormat::Csv => crate::data::csv::encode_with(&columns, options.guard_formulas)?.into_bytes(),
     };
     write_atomic(output, &bytes)?;
     let _ = writeln!(report, "wrote     {}", output.display());

@@ -102,6 +102,13 @@ fn relative(from_dir: &Path, to: &Path) -> String {
     parts.join("/")
 }
 
+/// Data-derived text for a TOML comment: control characters (a newline would end the comment
+/// and start a live key; a NUL is not valid TOML) and bidirectional overrides become visible
+/// escapes, so the text can never leave its comment.
+fn comment_safe(s: &str) -> String {
+    crate::text::terminal_safe(s)
+}
+
 fn toml_string(s: &str) -> String {
     toml::Value::String(s.to_string()).to_string()
 }
@@ -152,7 +159,7 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let _ = writeln!(
         out,
         "# Starter manifest written by `tabcard scaffold` for {} ({} rows, {} columns).",
-        data.display(),
+        comment_safe(&data.display().to_string()),
         table.rows,
         table.columns.len()
     );
@@ -178,7 +185,15 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
             Role::Id => "id",
             Role::Drop => "drop",
         };
-        let _ = writeln!(out, "#   {:<28} {:<8} {:>6.1}% {:>8} -> {role}: {}", p.name, p.kind, 100.0 * p.missing, p.distinct, p.why);
+        let _ = writeln!(
+            out,
+            "#   {:<28} {:<8} {:>6.1}% {:>8} -> {role}: {}",
+            comment_safe(&p.name),
+            p.kind,
+            100.0 * p.missing,
+            p.distinct,
+            p.why
+        );
     }
     let _ = writeln!(out, "ids = {}  # never features; carried into predictions", toml_list(&names(Role::Id)));
     let _ = writeln!(out, "drop = {}", toml_list(&names(Role::Drop)));
@@ -254,9 +269,7 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
 
 pub fn run(data: &Path, options: &ScaffoldOptions) -> Result<String> {
     if let Some(out) = &options.out {
-        if out.exists() && !options.force {
-            return Err(Error::Usage(format!("{} exists; pass --force to replace it", out.display())));
-        }
+        crate::store::check_output_path("--out", "the manifest", out, &[data], options.force)?;
     }
     let table = read_table(data)?;
     let text = manifest_text(data, &table, options)?;

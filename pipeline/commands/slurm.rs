@@ -58,9 +58,10 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
     if r.cpus_per_task == 0 {
         return Err(Error::Usage("--cpus-per-task must be at least 1".into()));
     }
+    let results_root = absolute(&options.results_root)?;
+    crate::slurm::check_directive_values(r, &results_root).map_err(Error::Usage)?;
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
-    let results_root = absolute(&options.results_root)?;
     let manifest = absolute(manifest_path)?;
     let executable = match &options.executable {
         Some(p) => absolute(p)?,

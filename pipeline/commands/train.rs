@@ -18,6 +18,7 @@ use crate::store::timing::{phase, Phase, TimingRecord};
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
 use crate::sweep::{self, Event, SweepInputs};
 
+#[derive(Clone)]
 pub struct TrainOptions {
     pub results_root: PathBuf,
     pub jobs: usize,
@@ -43,7 +44,11 @@ fn runs_json(plan: &Plan, report: &sweep::SweepReport) -> serde_json::Value {
     })
 }
 
-/// Writes the experiment-level files; an existing folder must hold the same canonical manifest.
+/// Writes the experiment-level files once. A folder that already has them (`format.json`, written
+/// last, says they are whole) must hold the same canonical manifest, and its files are never
+/// written again: a later `train` of the same experiment (a comment added to the manifest, the
+/// table re-encoded, the project copied elsewhere) keeps the originals. A sealed folder must also
+/// still match its integrity list before anything else happens.
 fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: &Preprocessor) -> Result<()> {
     let canonical = crate::manifest::canonical_json(&exp.manifest);
     if layout.format().exists() {
@@ -55,9 +60,13 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
                 "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain",
             ));
         }
-    } else {
-        crate::store::create_dir(&layout.root)?;
+        if layout.root.join(crate::store::integrity::FILE).exists() {
+            crate::store::integrity::remove_temporaries(&layout.root);
+            crate::store::integrity::check(&layout.root)?;
+        }
+        return Ok(());
     }
+    crate::store::create_dir(&layout.root)?;
     write_atomic(&layout.manifest(), canonical.as_bytes())?;
     let source = std::fs::read(&exp.manifest_path).map_err(|e| Error::io(&exp.manifest_path, "read the manifest", e))?;
     write_atomic(&layout.manifest_source(), &source)?;
@@ -259,6 +268,9 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
+    // No more workers than runs to train (or cores): what the card and the timing record state.
+    let planned_runs = options.shard.map(|s| s.size(plan.runs.len())).unwrap_or(plan.runs.len());
+    let options = &TrainOptions { jobs: crate::threads::workers(options.jobs, planned_runs)?, ..options.clone() };
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
     let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
     crate::feasibility::require(&estimate, crate::feasibility::available_bytes(), manifest_path)?;

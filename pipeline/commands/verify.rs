@@ -171,6 +171,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
     let specs: Vec<_> = prepared.plan.runs.iter().filter(|r| options.all || r.config_id == selection.selected_config).collect();
 
     let now = crate::numerics::current()?;
+    let jobs = crate::threads::workers(options.jobs, specs.len())?;
     let inputs = SweepInputs {
         layout: &layout,
         plan: &prepared.plan,
@@ -180,7 +181,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         preprocessor: &prepared.exp.preprocessor,
         selection_metric: &prepared.exp.manifest.selection.metric,
         environment: &now,
-        jobs: options.jobs,
+        jobs,
         shard: None,
     };
     on_event(Event::Header(format!("verify {}: retraining {} of {} runs", layout.root.display(), specs.len(), prepared.plan.runs.len())));
@@ -190,7 +191,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         metric: prepared.exp.manifest.selection.metric.clone(),
         higher_is_better: selection.higher_is_better,
     });
-    let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(options.jobs, || {
+    let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(jobs, || {
         specs
             .par_iter()
             .map(|spec| {
@@ -290,7 +291,8 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
             };
         }
         Err(e) => {
-            let _ = writeln!(out, "card      cannot be re-rendered: {e}");
+            identical = false;
+            let _ = writeln!(out, "card      CANNOT be re-rendered from the stored evidence: {e}");
         }
     }
     let root = layout.root.parent().unwrap_or(Path::new("."));
@@ -315,7 +317,8 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         }
     }
     let _ = writeln!(out, "\nverdict   {}", if identical { "verified: every run reproduced bit for bit" } else { "NOT verified" });
-    crate::store::ledger::append_verification(
+    // The verdict stands whether or not it can be recorded (a read-only store): say both.
+    let recorded = crate::store::ledger::append_verification(
         root,
         &crate::store::ledger::VerificationEntry {
             time: crate::provenance::now_rfc3339(),
@@ -324,7 +327,10 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
             runs_checked: verdicts.len(),
             identical,
         },
-    )?;
+    );
+    if let Err(e) = &recorded {
+        let _ = writeln!(out, "warning   this verification could not be recorded in {}: {e}", crate::store::ledger::VERIFICATIONS);
+    }
     let runs: Vec<serde_json::Value> = verdicts
         .iter()
         .map(|(id, seed, v)| match v {
@@ -338,6 +344,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         "identical": identical,
         "results_digest": digest,
         "runs": runs,
+        "recorded": recorded.is_ok(),
     });
     Ok(VerifyOutcome { report: out, identical, json })
 }

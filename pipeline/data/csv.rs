@@ -17,8 +17,24 @@ fn field(out: &mut String, text: &str) {
     }
 }
 
-/// One cell of `column` at `row` as CSV text (empty for null).
-fn cell(column: &ArrayRef, row: usize) -> Result<String> {
+/// The characters that make a spreadsheet read a cell as a formula (or, for tab and carriage
+/// return, hide one); the common guard prefixes such a text cell with `'`, which spreadsheets show
+/// as text and do not display.
+const FORMULA_STARTS: [char; 6] = ['=', '+', '-', '@', '\t', '\r'];
+
+/// Text written as a spreadsheet shows it as text: with the guard, a leading `'` before a
+/// formula start (see [`FORMULA_STARTS`]); unchanged otherwise.
+fn guarded_text(text: &str, guard: bool) -> String {
+    if guard && text.starts_with(FORMULA_STARTS) {
+        format!("'{text}")
+    } else {
+        text.to_string()
+    }
+}
+
+/// One cell of `column` at `row` as CSV text (empty for null); the formula guard applies to text
+/// cells only, never to numbers such as -5.
+fn cell(column: &ArrayRef, row: usize, guard: bool) -> Result<String> {
     if column.is_null(row) {
         return Ok(String::new());
     }
@@ -33,7 +49,7 @@ fn cell(column: &ArrayRef, row: usize) -> Result<String> {
         return Ok(a.value(row).to_string());
     }
     if let Some(a) = any.downcast_ref::<StringArray>() {
-        return Ok(a.value(row).to_string());
+        return Ok(guarded_text(a.value(row), guard));
     }
     Err(Error::Usage(format!(
         "CSV output of a {} column is not supported; write Parquet (--out with .parquet) instead",
@@ -43,13 +59,18 @@ fn cell(column: &ArrayRef, row: usize) -> Result<String> {
 
 /// The columns (equal lengths) as CSV text.
 pub fn encode(columns: &[(String, ArrayRef)]) -> Result<String> {
+    encode_with(columns, false)
+}
+
+/// [`encode`], with the spreadsheet formula guard on text cells and column names when `guard`.
+pub fn encode_with(columns: &[(String, ArrayRef)], guard: bool) -> Result<String> {
     let rows = columns.first().map_or(0, |(_, c)| c.len());
     let mut out = String::new();
     for (i, (name, _)) in columns.iter().enumerate() {
         if i > 0 {
             out.push(',');
         }
-        field(&mut out, name);
+        field(&mut out, &guarded_text(name, guard));
     }
     out.push('\n');
     for row in 0..rows {
@@ -57,7 +78,7 @@ pub fn encode(columns: &[(String, ArrayRef)]) -> Result<String> {
             if i > 0 {
                 out.push(',');
             }
-            field(&mut out, &cell(column, row)?);
+            field(&mut out, &cell(column, row, guard)?);
         }
         let _ = out.write_char('\n');
     }
@@ -68,6 +89,21 @@ pub fn encode(columns: &[(String, ArrayRef)]) -> Result<String> {
 mod tests {
     use super::*;
     use std::sync::Arc;
+
+    #[test]
+    fn the_formula_guard_prefixes_text_cells_only() {
+        let columns: Vec<(String, ArrayRef)> = vec![
+            ("=name".into(), Arc::new(StringArray::from(vec!["=HYPERLINK(\"http://x\")", "+1", "-x", "@SUM(A1)", "plain", "a-b"]))),
+            ("n".into(), Arc::new(Int64Array::from(vec![-5, 1, 2, 3, 4, 5]))),
+            ("p".into(), Arc::new(Float64Array::from(vec![-0.5, 1.0, 2.0, 3.0, 4.0, 5.0]))),
+        ];
+        let guarded = encode_with(&columns, true).unwrap();
+        let lines: Vec<&str> = guarded.lines().collect();
+        assert_eq!(lines[0], "'=name,n,p");
+        assert_eq!(lines[1], "\"'=HYPERLINK(\"\"http://x\"\")\",-5,-0.5", "numbers keep their sign");
+        assert_eq!(&lines[2..], ["'+1,1,1.0", "'-x,2,2.0", "'@SUM(A1),3,3.0", "plain,4,4.0", "a-b,5,5.0"]);
+        assert!(encode(&columns).unwrap().starts_with("=name,n,p\n\"=HYPERLINK"), "off by default");
+    }
 
     #[test]
     fn quotes_nulls_and_round_trip_floats() {

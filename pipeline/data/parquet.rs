@@ -5,7 +5,7 @@
 
 use arrow::array::{Array, ArrayRef, AsArray};
 use arrow::datatypes::*;
-use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+use parquet::arrow::arrow_reader::{ArrowReaderMetadata, ParquetRecordBatchReaderBuilder};
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -212,7 +212,7 @@ impl Builder {
 /// Reads every column of a Parquet file, straight from the file: the encoded bytes are never
 /// held in memory beside the decoded table.
 pub fn read_table(path: &Path) -> Result<Table> {
-    let open = || std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e));
+    let open = || open_regular(path);
     read_from(&open, path)
 }
 
@@ -224,7 +224,7 @@ pub fn read_columns(path: &Path, names: &[&str]) -> Result<Table> {
 
 /// The column names of a Parquet file in order, without decoding any value.
 pub fn column_names(path: &Path) -> Result<Vec<String>> {
-    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    let file = open_regular(path)?;
     let builder =
         ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| Error::data(path, None, format!("not a readable Parquet file: {e}")))?;
     Ok(builder.schema().fields().iter().map(|f| f.name().clone()).collect())
@@ -244,6 +244,9 @@ pub fn read_table_from_bytes(bytes: Vec<u8>, name: &Path) -> Result<Table> {
 pub struct ParquetSource {
     path: std::path::PathBuf,
     file: std::fs::File,
+    /// The footer, parsed once: every later read reuses it, so a read of a few columns costs the
+    /// same on a 10,000-column file as on a 10-column one.
+    metadata: ArrowReaderMetadata,
     fields: Vec<Field>,
     rows: usize,
     identity: (u64, Option<std::time::SystemTime>),
@@ -258,16 +261,18 @@ fn identity_of(file: &std::fs::File) -> (u64, Option<std::time::SystemTime>) {
 
 impl ParquetSource {
     pub fn open(path: &Path) -> Result<Self> {
-        let file = std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))?;
+        let file = open_regular(path)?;
         let identity = identity_of(&file);
         let clone = || file.try_clone().map_err(|e| Error::io(path, "open the data file", e));
-        let (fields, rows) = guarded(path, || {
+        let (metadata, fields, rows) = guarded(path, || {
             let builder = checked_builder(&clone, path)?;
             let rows = usize::try_from(builder.metadata().file_metadata().num_rows())
                 .map_err(|_| Error::data(path, None, "corrupt Parquet metadata: negative row count"))?;
-            Ok((builder.schema().fields().iter().map(|f| f.as_ref().clone()).collect::<Vec<_>>(), rows))
+            let metadata = ArrowReaderMetadata::try_new(builder.metadata().clone(), Default::default())
+                .map_err(|e| Error::data(path, None, format!("not a readable Parquet file: {e}")))?;
+            Ok((metadata, builder.schema().fields().iter().map(|f| f.as_ref().clone()).collect::<Vec<_>>(), rows))
         })?;
-        Ok(ParquetSource { path: path.to_path_buf(), file, fields, rows, identity })
+        Ok(ParquetSource { path: path.to_path_buf(), file, metadata, fields, rows, identity })
     }
 
     pub fn path(&self) -> &Path {
@@ -311,8 +316,7 @@ impl ParquetSource {
             return Err(self.changed());
         }
         let file = self.file.try_clone().map_err(|e| Error::io(&self.path, "open the data file", e))?;
-        ParquetRecordBatchReaderBuilder::try_new(file)
-            .map_err(|e| Error::data(&self.path, None, format!("not a readable Parquet file: {e}")))
+        Ok(ParquetRecordBatchReaderBuilder::new_with_metadata(file, self.metadata.clone()))
     }
 
     /// The named columns (in file order) across every row group.
@@ -397,10 +401,45 @@ impl ParquetSource {
     }
 }
 
+/// Opens a data file for reading, refusing anything but a regular file (a FIFO would block the
+/// read forever, a folder or device is never a table). Symbolic links are followed.
+pub fn open_regular(path: &Path) -> Result<std::fs::File> {
+    let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "open the data file", e))?;
+    if !meta.is_file() {
+        let kind = if meta.is_dir() { "a folder" } else { "not a regular file (a pipe, socket or device)" };
+        return Err(Error::data(path, None, format!("is {kind}; tabcard reads Parquet tables from regular files only")));
+    }
+    std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))
+}
+
+thread_local! {
+    /// Set while this thread runs a [`guarded`] read: its panics become errors, so the hook keeps
+    /// them off the terminal. Any other panic, on any thread, is printed as usual.
+    static IN_GUARDED_READ: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// Installs (once) a panic hook that stays silent for panics inside a guarded read on the
+/// panicking thread and hands every other panic to the hook that was there before.
+fn quiet_guarded_panics() {
+    static INSTALL: std::sync::Once = std::sync::Once::new();
+    INSTALL.call_once(|| {
+        let previous = std::panic::take_hook();
+        std::panic::set_hook(Box::new(move |info| {
+            if !IN_GUARDED_READ.with(|flag| flag.get()) {
+                previous(info);
+            }
+        }));
+    });
+}
+
 /// Runs `f`, turning a panic inside the parquet crate on hostile input into a corrupt-file error:
-/// never allowed to end the process.
+/// never allowed to end the process, and never printed (the error says what failed).
 fn guarded<T>(path: &Path, f: impl FnOnce() -> Result<T>) -> Result<T> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(f)) {
+    quiet_guarded_panics();
+    let outer = IN_GUARDED_READ.with(|flag| flag.replace(true));
+    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(f));
+    IN_GUARDED_READ.with(|flag| flag.set(outer));
+    match result {
         Ok(result) => result,
         Err(panic) => {
             let detail =

@@ -87,6 +87,9 @@ pub struct TransformReport {
     /// Rows with at least one numeric value outside the training range.
     pub out_of_range_rows: usize,
     pub out_of_range: Vec<bool>,
+    /// Rows per column with no value in a column that was never missing in training: imputed,
+    /// with no missing-value indicator to tell the network (its scores there are extrapolation).
+    pub imputed_unseen_missing: BTreeMap<String, usize>,
 }
 
 /// Minimum, median (linear interpolation, as `quantile_sorted(_, 0.5)` on the sorted values) and
@@ -250,6 +253,7 @@ impl<'a> Encoded<'a> {
                         format!("has type {} but the model was trained on numbers", col.source_type),
                     ));
                 }
+                let mut imputed = 0usize;
                 for (i, &r) in rows.iter().enumerate() {
                     let (value, missing) = match col.number(r) {
                         Some(v) if v.is_finite() => (v, false),
@@ -269,7 +273,12 @@ impl<'a> Encoded<'a> {
                     m.data[i * width + offset] = standardised;
                     if *indicator {
                         m.data[i * width + offset + 1] = missing as u8 as f32;
+                    } else if missing {
+                        imputed += 1;
                     }
+                }
+                if imputed > 0 {
+                    report.imputed_unseen_missing.insert(name.to_string(), imputed);
                 }
             }
             InputEncoding::Categorical { levels, impute, indicator, .. } => {
@@ -282,11 +291,13 @@ impl<'a> Encoded<'a> {
                     }
                     _ => None,
                 };
-                let mut unseen = 0usize;
+                let (mut unseen, mut imputed) = (0usize, 0usize);
                 for (i, &r) in rows.iter().enumerate() {
                     let slot = if !col.is_valid(r) {
                         if *indicator {
                             m.data[i * width + offset + levels.len() + 1] = 1.0;
+                        } else {
+                            imputed += 1;
                         }
                         *impute
                     } else if let (Some(slots), ColumnValues::Text { codes, .. }) = (&code_slots, &col.values) {
@@ -302,6 +313,9 @@ impl<'a> Encoded<'a> {
                 }
                 if unseen > 0 {
                     report.unseen_levels.insert(name.to_string(), unseen);
+                }
+                if imputed > 0 {
+                    report.imputed_unseen_missing.insert(name.to_string(), imputed);
                 }
             }
         }

@@ -36,10 +36,40 @@ impl LoadedManifest {
 
 /// Reads, parses, validates and resolves a manifest file.
 pub fn load(path: &Path) -> Result<LoadedManifest> {
-    let source = std::fs::read_to_string(path).map_err(|e| Error::io(path, "read the manifest", e))?;
+    let source = read_source(path)?;
     let manifest = parse(path, &source)?;
     let overridden_by_grid = grid::overridden_keys(&source, &manifest);
     Ok(LoadedManifest { path: path.to_path_buf(), manifest, overridden_by_grid })
+}
+
+/// The manifest's text. A manifest that is missing, not a regular file or not UTF-8 is bad input
+/// (exit 2), named with its path (and the byte where UTF-8 fails).
+fn read_source(path: &Path) -> Result<String> {
+    let bad = |message: String| ManifestError { file: path.to_path_buf(), key: None, line: None, column: None, message, hint: None };
+    match std::fs::metadata(path) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Err(bad("no such manifest file".into()).into()),
+        Ok(m) if !m.is_file() => return Err(bad("is not a regular file; a manifest is a TOML file".into()).into()),
+        _ => {}
+    }
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "read the manifest", e))?;
+    String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let line = e.as_bytes()[..at].iter().filter(|&&b| b == b'\n').count() + 1;
+        ManifestError { line: Some(line), ..bad(format!("is not UTF-8 text (invalid byte at offset {at}); save the manifest as UTF-8")) }
+            .into()
+    })
+}
+
+/// An error about the key `dotted` of the manifest at `path`, located at its line when the file
+/// still parses (used after loading, e.g. for a data file that cannot be opened).
+pub fn key_error(path: &Path, dotted: &str, message: String, hint: Option<String>) -> Error {
+    let problem = Problem { key: KeyPath::parse_dotted(dotted), index: None, message: message.clone(), hint: hint.clone() };
+    let unlocated = || ManifestError { file: path.to_path_buf(), key: Some(dotted.into()), line: None, column: None, message, hint };
+    let Ok(source) = std::fs::read_to_string(path) else { return unlocated().into() };
+    match DeTable::parse(&source) {
+        Ok(document) => locate_problem(path, &source, document.get_ref(), problem).into(),
+        Err(_) => unlocated().into(),
+    }
 }
 
 /// Parses and resolves manifest text; `path` is only used in error messages.

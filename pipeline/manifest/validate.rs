@@ -116,6 +116,9 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
     c.0
 }
 
+/// The columns `predict` writes beside the ids (and `p_<class>` per class probability).
+pub const PREDICT_OUTPUT_COLUMNS: &[&str] = &["prediction", "predicted", "outside_training_range"];
+
 /// Checks a whole manifest except the grid's values (see `grid.rs`).
 pub fn validate(m: &Manifest) -> Vec<Problem> {
     let mut c = Collector(Vec::new());
@@ -148,6 +151,19 @@ pub fn validate(m: &Manifest) -> Vec<Problem> {
                 hint: None,
             });
         }
+    }
+    // Ids are copied into predict's output beside its own columns: the names must not clash.
+    if let Some(i) = m.data.ids.iter().position(|id| PREDICT_OUTPUT_COLUMNS.contains(&id.as_str())) {
+        c.0.push(Problem {
+            key: KeyPath::parse_dotted("data.ids"),
+            index: Some(i),
+            message: format!(
+                "`{}` clashes with the name of one of predict's output columns ({})",
+                m.data.ids[i],
+                PREDICT_OUTPUT_COLUMNS.join(", ")
+            ),
+            hint: Some("rename the id column in the data".into()),
+        });
     }
     if let Some(i) = m.data.features.iter().position(|f| m.data.drop.contains(f) || m.data.ids.contains(f)) {
         c.0.push(Problem {

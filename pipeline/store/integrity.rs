@@ -24,9 +24,39 @@ use crate::fingerprint::{file_sha256, sha256_hex};
 /// The list's file name in a results folder.
 pub const FILE: &str = "integrity.sha256";
 
-/// Whether a file (path relative to the folder, `/`-separated) belongs in the list.
+/// Whether a file (path relative to the folder, `/`-separated) belongs in the list. Only plain
+/// relative paths qualify: no absolute path, no empty, `.` or `..` component, no dot-entry.
 fn listed(path: &str) -> bool {
-    path != FILE && path != "timing.json" && !path.ends_with("/timing.json") && !path.split('/').any(|part| part.starts_with('.'))
+    path != FILE
+        && path != "timing.json"
+        && !path.ends_with("/timing.json")
+        && !path.starts_with('/')
+        && !path.contains('\\')
+        && path.split('/').all(|part| !part.is_empty() && !part.starts_with('.'))
+}
+
+/// Entries that may sit in a results folder without being listed: the writer lock while `train`
+/// holds it, and a run being written (`runs/.partial-*`, removed on the next `train`).
+fn tolerated_unlisted(path: &str) -> bool {
+    path == super::lock::FILE || (path.starts_with("runs/.") && !path["runs/".len()..].contains('/'))
+}
+
+/// A temporary file of an interrupted atomic write (`.<name>.tmp-<pid>-<n>`), safe to delete.
+pub fn is_temporary(name: &str) -> bool {
+    name.starts_with('.') && name.contains(".tmp-")
+}
+
+/// Deletes the temporary files interrupted atomic writes left in the folder and its `figures/`
+/// (a `card` or `train` killed mid-write): a writer calls this before its own checks.
+pub fn remove_temporaries(root: &Path) {
+    for dir in [root.to_path_buf(), root.join("figures")] {
+        let Ok(entries) = std::fs::read_dir(&dir) else { continue };
+        for entry in entries.flatten() {
+            if is_temporary(&entry.file_name().to_string_lossy()) && entry.file_type().is_ok_and(|t| t.is_file()) {
+                let _ = std::fs::remove_file(entry.path());
+            }
+        }
+    }
 }
 
 /// Whether a listed file is rendered from the evidence (and so may name the digest).
@@ -34,33 +64,42 @@ fn derived(path: &str) -> bool {
     path == "card.md" || path.starts_with("figures/")
 }
 
-/// Every listed file under `root`, relative and sorted by path.
-fn files(root: &Path) -> Result<Vec<String>> {
-    fn walk(root: &Path, dir: &Path, out: &mut Vec<String>) -> Result<()> {
-        let entries = std::fs::read_dir(dir).map_err(|e| Error::io(dir, "list", e))?;
-        for entry in entries {
+/// Every entry under `root` that is not a folder, relative and `/`-separated, sorted by path;
+/// dot-entries included (the caller decides what to do with them), folders of dot-entries walked
+/// only when `hidden` is set. A symbolic link is an entry of its own, never followed.
+fn entries(root: &Path, hidden: bool) -> Result<Vec<(String, std::fs::FileType)>> {
+    fn walk(root: &Path, dir: &Path, hidden: bool, out: &mut Vec<(String, std::fs::FileType)>) -> Result<()> {
+        let listing = std::fs::read_dir(dir).map_err(|e| Error::io(dir, "list", e))?;
+        for entry in listing {
             let entry = entry.map_err(|e| Error::io(dir, "list", e))?;
             let path = entry.path();
-            let name = entry.file_name().to_string_lossy().into_owned();
-            if name.starts_with('.') {
-                continue;
-            }
             let kind = entry.file_type().map_err(|e| Error::io(&path, "inspect", e))?;
+            let dot = entry.file_name().to_string_lossy().starts_with('.');
             if kind.is_dir() {
-                walk(root, &path, out)?;
+                if !dot || hidden {
+                    walk(root, &path, hidden, out)?;
+                } else {
+                    out.push((relative(root, &path), kind));
+                }
             } else {
-                let relative = path.strip_prefix(root).unwrap_or(&path);
-                let text: Vec<String> = relative.components().map(|c| c.as_os_str().to_string_lossy().into_owned()).collect();
-                out.push(text.join("/"));
+                out.push((relative(root, &path), kind));
             }
         }
         Ok(())
     }
+    fn relative(root: &Path, path: &Path) -> String {
+        let relative = path.strip_prefix(root).unwrap_or(path);
+        relative.components().map(|c| c.as_os_str().to_string_lossy().into_owned()).collect::<Vec<_>>().join("/")
+    }
     let mut out = Vec::new();
-    walk(root, root, &mut out)?;
-    out.retain(|p| listed(p));
-    out.sort();
+    walk(root, root, hidden, &mut out)?;
+    out.sort_by(|a, b| a.0.cmp(&b.0));
     Ok(out)
+}
+
+/// Every file the list names under `root`, relative and sorted by path.
+fn files(root: &Path) -> Result<Vec<String>> {
+    Ok(entries(root, false)?.into_iter().map(|(p, _)| p).filter(|p| listed(p)).collect())
 }
 
 fn lines(root: &Path, paths: &[String]) -> Result<String> {
@@ -89,6 +128,17 @@ pub fn seal(root: &Path, render: impl FnOnce(&str) -> Result<()>) -> Result<Stri
 /// Checks every file of the folder against the list and returns the results digest; the first
 /// file that differs, is gone or is not listed is named in the error.
 pub fn check(root: &Path) -> Result<String> {
+    check_parts(root, false)
+}
+
+/// [`check`] of the evidence alone: rendered files (card, figures, and temporaries of their
+/// interrupted writes) may differ, be missing or be unlisted. For `card`, which renders them anew
+/// and reseals, so a `card` killed between writing the card and sealing its list can be repaired.
+pub fn check_evidence(root: &Path) -> Result<String> {
+    check_parts(root, true)
+}
+
+fn check_parts(root: &Path, rendered_may_differ: bool) -> Result<String> {
     let list_path = root.join(FILE);
     let text = std::fs::read_to_string(&list_path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => {
@@ -110,8 +160,15 @@ pub fn check(root: &Path) -> Result<String> {
         recorded.push((path.to_string(), sha.to_string()));
     }
     for (path, sha) in &recorded {
+        if rendered_may_differ && derived(path) {
+            continue;
+        }
         let file = root.join(path);
-        if !file.is_file() {
+        let kind = std::fs::symlink_metadata(&file).map(|m| m.file_type());
+        if kind.as_ref().is_ok_and(|k| k.is_symlink()) {
+            return Err(Error::integrity(&file, "is a symbolic link: a results folder holds its recorded files themselves"));
+        }
+        if !kind.is_ok_and(|k| k.is_file()) {
             return Err(Error::integrity(&file, "is listed in integrity.sha256 but missing"));
         }
         if file_sha256(&file)? != *sha {
@@ -121,9 +178,26 @@ pub fn check(root: &Path) -> Result<String> {
             ));
         }
     }
-    let listed: std::collections::BTreeSet<&str> = recorded.iter().map(|(path, _)| path.as_str()).collect();
-    if let Some(extra) = files(root)?.into_iter().find(|p| !listed.contains(p.as_str())) {
-        return Err(Error::integrity(root.join(extra), "is not listed in integrity.sha256: it was added after the results were recorded"));
+    let named: std::collections::BTreeSet<&str> = recorded.iter().map(|(path, _)| path.as_str()).collect();
+    for (path, kind) in entries(root, false)? {
+        if named.contains(path.as_str()) || path == FILE || !listed(&path) && tolerated_unlisted(&path) {
+            continue;
+        }
+        let name = path.rsplit('/').next().unwrap_or(&path);
+        if rendered_may_differ && (derived(&path) || path.starts_with("figures/") || is_temporary(name)) {
+            continue;
+        }
+        if !listed(&path) && (path == "timing.json" || path.ends_with("/timing.json")) && kind.is_file() {
+            continue;
+        }
+        let what = if kind.is_symlink() {
+            "is a symbolic link not listed"
+        } else if kind.is_dir() {
+            "is a folder not listed"
+        } else {
+            "is not listed"
+        };
+        return Err(Error::integrity(root.join(path), format!("{what} in integrity.sha256: it was added after the results were recorded")));
     }
     Ok(sha256_hex(evidence_lines.as_bytes()))
 }

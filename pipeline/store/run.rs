@@ -252,6 +252,25 @@ impl StoredRun {
         weights::decode(&bytes, &path)
     }
 
+    /// [`StoredRun::tensors`], each checked against the SHA-256 the run's record holds for it: what
+    /// scoring uses, so weights swapped together with a rewritten file list are still refused.
+    pub fn checked_tensors(&self) -> Result<Vec<NamedTensor>> {
+        let tensors = self.tensors()?;
+        let recorded = &self.record.tensor_sha256;
+        if !recorded.is_empty() {
+            let on_disk = weights::tensor_digests(&tensors);
+            let names: std::collections::BTreeSet<&String> = recorded.keys().chain(on_disk.keys()).collect();
+            let differing = names.into_iter().find(|n| on_disk.get(*n) != recorded.get(*n));
+            if let Some(name) = differing {
+                return Err(Error::integrity(
+                    self.dir.join(WEIGHTS),
+                    format!("tensor `{name}` does not match the SHA-256 the run's record holds for it: the weights were replaced"),
+                ));
+            }
+        }
+        Ok(tensors)
+    }
+
     pub fn config(&self) -> Result<RunConfig> {
         read_json(&self.dir.join(names_in(&self.dir).settings))
     }

@@ -4,6 +4,9 @@
 
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
+use std::path::Path;
+
+use crate::error::{Error, Result};
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TimingRecord {
@@ -39,4 +42,88 @@ pub mod phase {
     pub const SWEEP: &str = "train the runs";
     /// Test matrix, selection and the test evaluation.
     pub const SELECT: &str = "select and test";
+}
+
+impl TimingRecord {
+    /// Checks the fields that reach the card. The timing record is outside the integrity list,
+    /// so nothing in it is trusted: the time must be an RFC 3339 UTC time as tabcard writes it
+    /// (`YYYY-MM-DDTHH:MM:SSZ`), the commit a git object name (40 or 64 hexadecimal digits).
+    pub fn check(&self, path: &Path) -> Result<()> {
+        let invalid = |what: String| {
+            Error::integrity(
+                path,
+                format!(
+                    "is not a timing record tabcard wrote: {what}. It is outside the integrity list, so the card cannot vouch for it: \
+                     restore it (e.g. from git) or delete it (the card then says \"unknown\")"
+                ),
+            )
+        };
+        if !is_utc_timestamp(&self.trained_at) {
+            return Err(invalid(format!("`trained_at` {:?} is not an RFC 3339 UTC time (YYYY-MM-DDTHH:MM:SSZ)", self.trained_at)));
+        }
+        if let Some(commit) = &self.git_commit {
+            if !is_git_object_name(commit) {
+                return Err(invalid(format!("`git_commit` {commit:?} is not a git commit (40 or 64 hexadecimal digits)")));
+            }
+        }
+        if self.jobs == 0 {
+            return Err(invalid("`jobs` is 0".into()));
+        }
+        Ok(())
+    }
+}
+
+/// Reads and checks a timing record; `None` when the file is absent.
+pub fn read(path: &Path) -> Result<Option<TimingRecord>> {
+    if !path.exists() {
+        return Ok(None);
+    }
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "read", e))?;
+    let record: TimingRecord = serde_json::from_slice(&bytes).map_err(|e| {
+        Error::integrity(path, format!("is not a timing record tabcard wrote ({e}); restore it (e.g. from git) or delete it"))
+    })?;
+    record.check(path)?;
+    Ok(Some(record))
+}
+
+/// `YYYY-MM-DDTHH:MM:SSZ` with every field in its calendar range.
+pub fn is_utc_timestamp(s: &str) -> bool {
+    let b = s.as_bytes();
+    let digits = |r: std::ops::Range<usize>| -> Option<u32> {
+        let part = s.get(r)?;
+        part.bytes().all(|c| c.is_ascii_digit()).then(|| part.parse().ok()).flatten()
+    };
+    if b.len() != 20 || b[4] != b'-' || b[7] != b'-' || b[10] != b'T' || b[13] != b':' || b[16] != b':' || b[19] != b'Z' {
+        return false;
+    }
+    let (Some(_), Some(month), Some(day), Some(hour), Some(minute), Some(second)) =
+        (digits(0..4), digits(5..7), digits(8..10), digits(11..13), digits(14..16), digits(17..19))
+    else {
+        return false;
+    };
+    (1..=12).contains(&month) && (1..=31).contains(&day) && hour < 24 && minute < 60 && second < 61
+}
+
+/// A git object name: 40 (SHA-1) or 64 (SHA-256) lowercase hexadecimal digits.
+pub fn is_git_object_name(s: &str) -> bool {
+    (s.len() == 40 || s.len() == 64) && s.bytes().all(|c| c.is_ascii_digit() || (b'a'..=b'f').contains(&c))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn only_tabcards_own_time_and_commit_forms_pass() {
+        assert!(is_utc_timestamp("2026-12-03T08:22:26Z"));
+        for bad in
+            ["2026-12-03T08:22:26+01:00", "2026-13-03T08:22:26Z", "<img src=x onerror=alert(1)>", "2026-12-03T08:22:26Z\n# Approved", ""]
+        {
+            assert!(!is_utc_timestamp(bad), "{bad:?}");
+        }
+        assert!(is_git_object_name(&"a".repeat(40)) && is_git_object_name(&"0f".repeat(32)));
+        for bad in ["abc", "[x](http://e.com)", &"g".repeat(40), &"A".repeat(40)] {
+            assert!(!is_git_object_name(bad), "{bad:?}");
+        }
+    }
 }
