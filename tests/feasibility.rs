@@ -68,3 +68,25 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
     }
     assert!(tabcard::feasibility::input_width_bound(&prepared.exp) >= width);
 }
+
+#[test]
+fn the_advice_names_a_categorical_column_whose_one_hot_encoding_dominates() {
+    use arrow::array::{ArrayRef, BooleanArray, Float64Array, StringArray};
+    use std::sync::Arc;
+    let dir = tempfile::tempdir().unwrap();
+    let rows = 100_000;
+    write_parquet(
+        &dir.path().join("data.parquet"),
+        vec![
+            ("amount", Arc::new(Float64Array::from((0..rows).map(|r| (r % 97) as f64).collect::<Vec<_>>())) as ArrayRef),
+            ("postcode", Arc::new(StringArray::from((0..rows).map(|r| format!("P{r:06}")).collect::<Vec<_>>()))),
+            ("y", Arc::new(BooleanArray::from((0..rows).map(|r| r % 3 == 0).collect::<Vec<_>>()))),
+        ],
+    );
+    std::fs::write(dir.path().join("m.toml"), manifest("features = [\"amount\", \"postcode\"]\n\n[model]\nhidden = [256, 256]\n")).unwrap();
+    let out = limited(dir.path(), 3 * 1024 * 1024, &["check", "m.toml"]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    let err = stderr(&out);
+    assert!(err.contains("column `postcode` is one-hot encoded into up to 100002 of the 100004 input columns (100%)"), "{err}");
+    assert!(err.trim_end().ends_with("list it in `data.drop`, or group its levels into fewer before training"), "{err}");
+}

@@ -493,3 +493,98 @@ fn every_common_parquet_codec_reads_to_the_same_content() {
     }
     assert!(content.iter().all(|(_, c)| *c == content[0].1), "one content hash across codecs: {content:?}");
 }
+
+#[test]
+fn a_resumed_train_clears_temporaries_of_interrupted_writes() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let manifest = small_lease_experiment(d, 300, "");
+    let folder = trained(d, &manifest);
+    // Killed after writing the selection, before the seal: a temporary of the card and of a figure.
+    std::fs::remove_file(folder.join("integrity.sha256")).unwrap();
+    std::fs::write(folder.join(".card.md.tmp-4242-0"), "half").unwrap();
+    std::fs::write(folder.join("figures/.grid.svg.tmp-4242-1"), "<sv").unwrap();
+    let out = train(d, &manifest);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(!folder.join(".card.md.tmp-4242-0").exists() && !folder.join("figures/.grid.svg.tmp-4242-1").exists());
+    let out = run_in(d, &["verify", folder.to_str().unwrap(), "--quiet"]);
+    assert!(out.status.success(), "{}", stdout(&out));
+}
+
+#[test]
+fn predict_counts_never_missing_columns_it_imputes_and_refuses_clashing_ids() {
+    use arrow::array::{Array, ArrayRef, Float64Array};
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let manifest = small_lease_experiment(d, 300, "");
+    let folder = trained(d, &manifest);
+    let mut columns = tabcard::demo::lease_defaults(6, 7);
+    for (name, array) in columns.iter_mut() {
+        if name == "collateral_cover" {
+            *array = std::sync::Arc::new(Float64Array::from(vec![None::<f64>; 6])) as ArrayRef;
+            assert_eq!(array.null_count(), 6);
+        }
+    }
+    std::fs::write(d.join("new.parquet"), tabcard::data::parquet::encode(columns, Default::default()).unwrap()).unwrap();
+    let out = run_in(d, &["predict", folder.to_str().unwrap(), "new.parquet", "--out", "s.csv"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(
+        stdout(&out).contains("imputed   6 rows of `collateral_cover` have no value (every row: check the input's export), though it was never missing in training"),
+        "{}",
+        stdout(&out)
+    );
+    // An id named like an output column is refused when the manifest is checked.
+    let clash = std::fs::read_to_string(&manifest).unwrap().replace("ids = [\"application_id\"]", "ids = [\"predicted\"]");
+    std::fs::write(d.join("clash.toml"), clash).unwrap();
+    let out = run_in(d, &["check", "clash.toml"]);
+    assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("key `data.ids[0]`: `predicted` clashes with the name of one of predict's output columns"),
+        "{}",
+        stderr(&out)
+    );
+}
+
+#[test]
+fn slurm_refuses_values_that_would_break_out_of_sbatch_lines() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let manifest = small_lease_experiment(d, 200, "");
+    let m = manifest.to_str().unwrap();
+    for (args, expect) in [
+        (vec!["--results", "my results"], "--results"),
+        (vec!["--results", "r\n#SBATCH --wrap=rm"], "--results"),
+        (vec!["--partition", "cpu\necho pwned"], "--partition"),
+        (vec!["--account", "lab account"], "--account"),
+        (vec!["--mem", "4G --wrap=x"], "--mem"),
+        (vec!["--time", "1:00 x"], "--time"),
+    ] {
+        let mut all = vec!["slurm", m];
+        all.extend(args.iter());
+        let out = run_in(d, &all);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {}", stderr(&out));
+        assert!(stderr(&out).starts_with(&format!("error: {expect} ")), "{args:?}: {}", stderr(&out));
+    }
+    assert!(!d.join("my results").exists() && !d.join("results").exists(), "nothing written");
+    let out = run_in(d, &["slurm", m, "--partition", "cpu,gpu-short", "--account", "lab_1", "--mem", "4096M", "--time", "1-00:00:00"]);
+    assert!(out.status.success(), "{}", stderr(&out));
+}
+
+#[test]
+fn files_that_once_made_the_parquet_crate_panic_give_one_line_errors() {
+    // Files that made the parquet crate panic (fuzzing found them); each is a clean error only.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    std::fs::write(d.join("m.toml"), manifest("")).unwrap();
+    let regressions = repo_path("tests/fuzz/regressions/parquet_load");
+    let mut seen = 0;
+    for entry in std::fs::read_dir(regressions).unwrap() {
+        std::fs::copy(entry.unwrap().path(), d.join("data.parquet")).unwrap();
+        let out = run_in(d, &["check", "m.toml"]);
+        assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
+        assert!(!stderr(&out).contains("panicked") && !stderr(&out).contains("backtrace"), "{}", stderr(&out));
+        assert_eq!(stderr(&out).lines().count(), 1, "{}", stderr(&out));
+        seen += 1;
+    }
+    assert!(seen >= 3);
+}

@@ -5,8 +5,8 @@
 //! (0: the mutation left a usable input; 2: bad input, named), never a panic message, never a
 //! hang, never another status.
 //!
-//! CI runs 120 mutations of each kind; the full corpus of the hostile-testing issue is
-//! `TABCARD_MUTATIONS=1000 cargo test --release --test mutation_corpus -- --nocapture`.
+//! 1,000 mutations of each kind (about 10 s in all); `TABCARD_MUTATIONS=N` sets another count, and
+//! `cargo test --release --test mutation_corpus -- --nocapture` prints the tally of exit statuses.
 
 mod common;
 
@@ -18,7 +18,7 @@ use std::process::Stdio;
 use std::time::{Duration, Instant};
 
 fn mutations() -> usize {
-    std::env::var("TABCARD_MUTATIONS").ok().and_then(|v| v.parse().ok()).unwrap_or(120)
+    std::env::var("TABCARD_MUTATIONS").ok().and_then(|v| v.parse().ok()).unwrap_or(1000)
 }
 
 /// One seeded mutation of `bytes`: flips, a truncation, an insertion of random or foreign bytes,
@@ -94,17 +94,19 @@ fn check(dir: &Path, manifest: &str) -> (Option<i32>, String) {
 }
 
 /// Asserts the documented outcome; returns the exit status for the tally.
-fn judge(what: &str, status: Option<i32>, err: &str, named: &str) -> i32 {
+fn judge(what: &str, status: Option<i32>, err: &str, named: &[&str]) -> i32 {
     assert!(!err.contains("panicked"), "{what}: a panic reached stderr: {err}");
     let code = status.unwrap_or_else(|| panic!("{what}: check did not finish within 60 s"));
     assert!(matches!(code, 0 | 2), "{what}: exit {code} is not documented for bad input: {err}");
     if code == 2 {
-        assert!(err.starts_with("error: ") && err.contains(named), "{what}: the error names {named}: {err}");
+        // The manifest or the data file it names (a target or feature the file lacks, say).
+        assert!(err.starts_with("error: ") && named.iter().any(|n| err.contains(n)), "{what}: the error names one of {named:?}: {err}");
     }
     code
 }
 
-const TABLES: [(&str, &str, &str); 4] = [
+const TABLES: [(&str, &str, &str); 5] = [
+    ("data-demo/lease-applications.parquet", "defaulted_12m", "binary"),
     ("data-demo/greenhouse-yield.parquet", "yield_kg", "regression"),
     ("tests/data/open/iris.parquet", "species", "multiclass"),
     ("tests/data/open/diabetes.parquet", "progression", "regression"),
@@ -115,9 +117,10 @@ const TABLES: [(&str, &str, &str); 4] = [
 fn mutated_parquet_files_end_in_a_documented_status() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    let foreign = std::fs::read(repo_path("data-demo/lease-applications.parquet")).unwrap();
+    let foreign = std::fs::read(repo_path("tests/data/open/breast_cancer.parquet")).unwrap();
     let mut rng = ChaCha20Rng::seed_from_u64(20261203);
     let mut tally = std::collections::BTreeMap::<(&str, i32), usize>::new();
+    let mut caught_panics = 0;
     for (t, (table, target, task)) in TABLES.iter().enumerate() {
         let manifest =
             format!("[experiment]\nname = \"mutated\"\n\n[data]\npath = \"mutated.parquet\"\ntarget = \"{target}\"\ntask = \"{task}\"\n");
@@ -131,7 +134,9 @@ fn mutated_parquet_files_end_in_a_documented_status() {
             let (bytes, kind) = mutate(&original, &foreign, &mut rng);
             std::fs::write(d.join("mutated.parquet"), &bytes).unwrap();
             let (status, err) = check(d, "m.toml");
-            let code = judge(&format!("{table} mutation {i} ({kind})"), status, &err, "mutated.parquet");
+            let code = judge(&format!("{table} mutation {i} ({kind})"), status, &err, &["mutated.parquet"]);
+            // A panic inside the parquet crate, caught by the guarded read and reported as an error.
+            caught_panics += usize::from(err.contains("the reader failed ("));
             *tally.entry((kind, code)).or_default() += 1;
         }
     }
@@ -139,6 +144,7 @@ fn mutated_parquet_files_end_in_a_documented_status() {
     for ((kind, code), n) in &tally {
         println!("  {kind:<18} exit {code}: {n}");
     }
+    println!("  of which panics inside the parquet crate caught by the guarded read, kept off stderr: {caught_panics}");
     assert_eq!(tally.values().sum::<usize>(), mutations());
 }
 
@@ -187,7 +193,7 @@ fn mutated_manifests_end_in_a_documented_status() {
         };
         std::fs::write(d.join("experiments/mutated.toml"), &bytes).unwrap();
         let (status, err) = check(d, "experiments/mutated.toml");
-        let code = judge(&format!("manifest mutation {i} ({kind})"), status, &err, "mutated");
+        let code = judge(&format!("manifest mutation {i} ({kind})"), status, &err, &["mutated.toml", "data-demo/"]);
         *tally.entry((kind, code)).or_default() += 1;
     }
     println!("manifest mutations (kind, exit status): count");

@@ -61,7 +61,6 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
             ));
         }
         if layout.root.join(crate::store::integrity::FILE).exists() {
-            crate::store::integrity::remove_temporaries(&layout.root);
             crate::store::integrity::check(&layout.root)?;
         }
         return Ok(());
@@ -291,6 +290,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         None => Some(crate::store::lock::acquire(&layout.root, &|holder| on_event(Event::Waiting(holder.to_string())))?),
         Some(_) => None,
     };
+    // The one writer clears what interrupted atomic writes left (shards never do: another shard
+    // may be writing).
+    if options.shard.is_none() {
+        crate::store::integrity::remove_temporaries(&layout.root);
+    }
     prepare_folder(exp, &layout, plan, preprocessor)?;
     let sweep_inputs = SweepInputs {
         layout: &layout,

@@ -582,3 +582,30 @@ pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result
     writer.close().map_err(|e| engine(e.to_string()))?;
     Ok(out)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const CHILD: &str = "TABCARD_GUARDED_PANIC_CHILD";
+    const NAME: &str = "data::parquet::tests::a_panic_inside_a_guarded_read_is_an_error_and_prints_nothing";
+
+    #[test]
+    fn a_panic_inside_a_guarded_read_is_an_error_and_prints_nothing() {
+        if std::env::var_os(CHILD).is_some() {
+            // In a child process, so its stderr can be read: a guarded panic becomes an error...
+            let read: Result<()> = guarded(Path::new("x.parquet"), || panic!("boom inside the reader"));
+            assert!(read.unwrap_err().to_string().contains("the reader failed (boom inside the reader)"));
+            // ...while any other panic still reaches the previous hook.
+            let _ = std::panic::catch_unwind(|| panic!("outside any guarded read"));
+            return;
+        }
+        let exe = std::env::current_exe().unwrap();
+        let out =
+            std::process::Command::new(exe).args(["--exact", NAME, "--nocapture", "--test-threads=1"]).env(CHILD, "1").output().unwrap();
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(out.status.success(), "{err}");
+        assert!(!err.contains("boom inside the reader"), "a guarded panic was printed: {err}");
+        assert!(err.contains("outside any guarded read"), "other panics still print: {err}");
+    }
+}
