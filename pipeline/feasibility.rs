@@ -71,8 +71,9 @@ pub fn input_width_bound(exp: &Experiment) -> usize {
 
 /// Each feature's encoded input columns, at most (see [`input_width_bound`]).
 fn feature_widths(exp: &Experiment) -> impl Iterator<Item = (&str, usize)> {
-    exp.roles.features.iter().map(|f| match exp.summary.columns.iter().find(|c| c.name == f.name) {
-        Some(c) if f.categorical => (f.name.as_str(), c.distinct + 2),
+    let distinct: std::collections::HashMap<&str, usize> = exp.summary.columns.iter().map(|c| (c.name.as_str(), c.distinct)).collect();
+    exp.roles.features.iter().map(move |f| match distinct.get(f.name.as_str()) {
+        Some(d) if f.categorical => (f.name.as_str(), d + 2),
         _ => (f.name.as_str(), 2),
     })
 }

@@ -166,6 +166,21 @@ mod tests {
     }
 
     #[test]
+    fn names_stay_told_apart_when_empty_or_cut() {
+        assert_eq!(markdown_safe(""), "*(empty)*");
+        let (a, b) = (format!("{}a", "x".repeat(250)), format!("{}b", "x".repeat(250)));
+        let (sa, sb) = (markdown_safe(&a), markdown_safe(&b));
+        assert_ne!(sa, sb);
+        assert!(sa.starts_with(&"x".repeat(200)) && sa.contains("… (cut; SHA-256 "), "{sa}");
+        assert_eq!(markdown_safe("short"), "short");
+    }
+
+    #[test]
+    fn multi_line_prose_stays_in_one_cell() {
+        assert_eq!(markdown_cell_text("Ann\n\n| x | y |\n## Approved"), "Ann / &#124; x &#124; y &#124; / \\#\\# Approved");
+    }
+
+    #[test]
     fn markdown_text_cannot_open_links_html_or_rows() {
         let s = markdown_safe("[click](http://x) <script>|\n# Approved");
         for bad in ["<", ">", "\n", "](", "|"] {

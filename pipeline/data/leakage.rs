@@ -85,7 +85,7 @@ fn seen_columns(table: &Table, roles: &Roles) -> Vec<usize> {
     (0..table.columns.len())
         .filter(|&c| {
             let name = &table.columns[c].name;
-            *name == roles.target || roles.features.iter().any(|f| f.name == *name)
+            *name == roles.target || roles.is_feature(name)
         })
         .collect()
 }
@@ -214,6 +214,7 @@ mod tests {
         Roles {
             target: "y".into(),
             features: features.iter().map(|f| Feature { name: f.to_string(), categorical: false }).collect(),
+            feature_index: features.iter().enumerate().map(|(i, f)| (f.to_string(), i)).collect(),
             ids: ids.iter().map(|s| s.to_string()).collect(),
             groups: Vec::new(),
             dropped: Vec::new(),

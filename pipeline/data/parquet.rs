@@ -248,6 +248,8 @@ pub struct ParquetSource {
     /// same on a 10,000-column file as on a 10-column one.
     metadata: ArrowReaderMetadata,
     fields: Vec<Field>,
+    /// Column name -> position in the file, so that looking a column up costs the same at any width.
+    index: HashMap<String, usize>,
     rows: usize,
     identity: (u64, Option<std::time::SystemTime>),
 }
@@ -272,7 +274,8 @@ impl ParquetSource {
                 .map_err(|e| Error::data(path, None, format!("not a readable Parquet file: {e}")))?;
             Ok((metadata, builder.schema().fields().iter().map(|f| f.as_ref().clone()).collect::<Vec<_>>(), rows))
         })?;
-        Ok(ParquetSource { path: path.to_path_buf(), file, metadata, fields, rows, identity })
+        let index = fields.iter().enumerate().map(|(i, f)| (f.name().clone(), i)).collect();
+        Ok(ParquetSource { path: path.to_path_buf(), file, metadata, fields, index, rows, identity })
     }
 
     pub fn path(&self) -> &Path {
@@ -304,7 +307,7 @@ impl ParquetSource {
 
     /// Whether the column holds strings (plain or dictionary-encoded).
     pub fn is_text(&self, name: &str) -> bool {
-        self.fields.iter().find(|f| f.name() == name).is_some_and(|f| matches!(empty_values(f.data_type()), ColumnValues::Text { .. }))
+        self.index.get(name).is_some_and(|&i| matches!(empty_values(self.fields[i].data_type()), ColumnValues::Text { .. }))
     }
 
     fn changed(&self) -> Error {
@@ -361,10 +364,16 @@ impl ParquetSource {
         guarded(path, || {
             let builder = self.reader()?;
             let schema = builder.schema().clone();
-            if let Some(missing) = names.iter().find(|n| schema.field_with_name(n).is_err()) {
-                return Err(Error::data(path, Some(missing), "is not in the file"));
+            let mut wanted = Vec::with_capacity(names.len());
+            for name in names {
+                match self.index.get(*name) {
+                    Some(&i) => wanted.push(i),
+                    None => return Err(Error::data(path, Some(name), "is not in the file")),
+                }
             }
-            let wanted: Vec<usize> = (0..schema.fields().len()).filter(|&i| names.contains(&schema.field(i).name().as_str())).collect();
+            // In file order, each once.
+            wanted.sort_unstable();
+            wanted.dedup();
             let mut columns: Vec<Builder> = wanted.iter().map(|&i| Builder::new(schema.field(i))).collect();
             let mask = parquet::arrow::ProjectionMask::roots(builder.parquet_schema(), wanted.iter().copied());
             let reader = builder

@@ -200,19 +200,22 @@ impl Preprocessor {
         Ok(out.finish())
     }
 
-    /// Encodes each row list of `parts` into its own matrix, reading `source` one feature column at
-    /// a time: only the matrices and one decoded column are ever held. Bit for bit what
+    /// Encodes each row list of `parts` into its own matrix, reading `source` a few feature columns
+    /// at a time (`columns_per_read`): only the matrices and those decoded columns are ever held. Bit for bit what
     /// [`Preprocessor::transform`] gives for each part on the whole table.
     pub fn transform_source(&self, source: &dyn ColumnSource, parts: &[&[usize]]) -> Result<Vec<(Matrix, TransformReport)>> {
         let width = self.width();
         let mut outs: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(width, rows)).collect();
         let mut offset = 0;
-        for enc in &self.inputs {
-            let col = source.column(enc.name())?;
-            for out in &mut outs {
-                out.encode(enc, &col, offset, source.path())?;
+        for window in self.inputs.chunks(super::source::columns_per_read(source.rows(), 1)) {
+            let names: Vec<&str> = window.iter().map(InputEncoding::name).collect();
+            let columns = source.columns(&names)?;
+            for (enc, col) in window.iter().zip(&columns) {
+                for out in &mut outs {
+                    out.encode(enc, col, offset, source.path())?;
+                }
+                offset += enc.width();
             }
-            offset += enc.width();
         }
         Ok(outs.into_iter().map(Encoded::finish).collect())
     }

@@ -47,13 +47,26 @@ pub struct Roles {
     pub split_column: Option<String>,
     /// The column whose rows stay in one split (`split.group`), never a feature.
     pub split_group: Option<String>,
+    /// Each feature's position in `features`, so lookups stay constant-time on tables of
+    /// thousands of columns.
+    pub feature_index: std::collections::HashMap<String, usize>,
 }
 
 impl Roles {
+    /// Whether `column` is a feature.
+    pub fn is_feature(&self, column: &str) -> bool {
+        self.feature_index.contains_key(column)
+    }
+
+    /// The feature named `column`, if it is one.
+    pub fn feature(&self, column: &str) -> Option<&Feature> {
+        self.feature_index.get(column).map(|&i| &self.features[i])
+    }
+
     pub fn role_of(&self, column: &str) -> &'static str {
         if column == self.target {
             "target"
-        } else if self.features.iter().any(|f| f.name == column) {
+        } else if self.is_feature(column) {
             "feature"
         } else if self.ids.iter().any(|c| c == column) {
             "id"
@@ -69,8 +82,8 @@ impl Roles {
     }
 }
 
-fn require_column(names: &[String], file: &Path, name: &str, key: &str) -> Result<()> {
-    if names.iter().any(|n| n == name) {
+fn require_column(names: &[String], present: &std::collections::HashSet<&str>, file: &Path, name: &str, key: &str) -> Result<()> {
+    if present.contains(name) {
         return Ok(());
     }
     let hint = nearest(name, names.iter().map(String::as_str)).map(|n| format!(" (did you mean `{n}`?)")).unwrap_or_default();
@@ -98,7 +111,8 @@ pub fn resolve(m: &Manifest, table: &Table, file: &Path) -> Result<(Roles, Targe
 /// text: every name the manifest gives must be a column.
 pub fn resolve_names(m: &Manifest, names: &[String], is_text: impl Fn(&str) -> bool, file: &Path) -> Result<Roles> {
     let d = &m.data;
-    require_column(names, file, &d.target, "data.target")?;
+    let present: std::collections::HashSet<&str> = names.iter().map(String::as_str).collect();
+    require_column(names, &present, file, &d.target, "data.target")?;
     for (list, key) in [
         (&d.features, "data.features"),
         (&d.drop, "data.drop"),
@@ -107,20 +121,24 @@ pub fn resolve_names(m: &Manifest, names: &[String], is_text: impl Fn(&str) -> b
         (&d.group_columns, "data.group_columns"),
     ] {
         for name in list {
-            require_column(names, file, name, key)?;
+            require_column(names, &present, file, name, key)?;
         }
     }
     let split = &m.split;
     for (name, key) in [(&split.column, "split.column"), (&split.group, "split.group")] {
         if let Some(name) = name {
-            require_column(names, file, name, key)?;
+            require_column(names, &present, file, name, key)?;
         }
     }
+    fn listed(list: &[String]) -> std::collections::HashSet<&str> {
+        list.iter().map(String::as_str).collect()
+    }
+    let (drop, ids, groups, categorical) = (listed(&d.drop), listed(&d.ids), listed(&d.group_columns), listed(&d.categorical));
     let excluded = |name: &str| {
         name == d.target
-            || d.drop.iter().any(|c| c == name)
-            || d.ids.iter().any(|c| c == name)
-            || d.group_columns.iter().any(|c| c == name)
+            || drop.contains(name)
+            || ids.contains(name)
+            || groups.contains(name)
             || split.column.as_deref() == Some(name)
             || split.group.as_deref() == Some(name)
     };
@@ -129,19 +147,20 @@ pub fn resolve_names(m: &Manifest, names: &[String], is_text: impl Fn(&str) -> b
     if feature_names.is_empty() {
         return Err(Error::data(file, None, "no feature columns remain after removing the target, ids, groups and dropped columns"));
     }
-    let features = feature_names
+    let features: Vec<Feature> = feature_names
         .into_iter()
         .map(|name| {
-            let categorical = is_text(&name) || d.categorical.contains(&name);
+            let categorical = is_text(&name) || categorical.contains(name.as_str());
             Feature { name, categorical }
         })
         .collect();
     Ok(Roles {
+        feature_index: features.iter().enumerate().map(|(i, f)| (f.name.clone(), i)).collect(),
         target: d.target.clone(),
         features,
         ids: d.ids.clone(),
         groups: d.group_columns.clone(),
-        dropped: names.iter().filter(|n| d.drop.contains(n)).cloned().collect(),
+        dropped: names.iter().filter(|n| drop.contains(n.as_str())).cloned().collect(),
         split_column: split.column.clone(),
         split_group: split.group.clone(),
     })

@@ -45,7 +45,7 @@ struct Findings {
 }
 
 fn findings_of(col: &Column, roles: &Roles, keys: &[String], splits: &Splits, file: &Path) -> Result<Findings> {
-    let feature = roles.features.iter().find(|f| f.name == col.name);
+    let feature = roles.feature(&col.name);
     let mut found = Findings {
         summary: summarise_column(col, roles, feature.is_some_and(|f| f.categorical)),
         encoding: None,
@@ -88,18 +88,20 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
         None => split_by(&target, &m.split, None, file)?,
     };
 
-    // A few columns at a time, as many as there are worker threads: read in table order (the
-    // content hash needs that order) and hashed on one thread while the others check, summarise
-    // and fit them. Each column's findings depend on that column alone, so the thread count
+    // A few columns at a time, at least as many as there are worker threads (more on short
+    // tables, see `columns_per_read`): read in table order (the content hash needs that order)
+    // and hashed on one thread while the others check, summarise and fit them. Each column's findings depend on that column alone, so the thread count
     // changes no result, and the first error in table order is the one reported.
     let keys = leakage::key_columns(&roles);
     let mut hasher = ContentHasher::new(rows, names.len());
     let mut summaries = Vec::with_capacity(names.len());
     let mut encodings: HashMap<&str, InputEncoding> = HashMap::new();
-    let mut constant: Vec<&str> = Vec::new();
+    let mut constant: std::collections::HashSet<&str> = std::collections::HashSet::new();
     let mut crossings: HashMap<&str, KeyCrossing> = HashMap::new();
-    for window in names.chunks(rayon::current_num_threads().max(1)) {
-        let columns = window.iter().map(|name| source.column(name)).collect::<Result<Vec<_>>>()?;
+    let per_read = super::source::columns_per_read(rows, rayon::current_num_threads());
+    for window in names.chunks(per_read) {
+        let wanted: Vec<&str> = window.iter().map(String::as_str).collect();
+        let columns = source.columns(&wanted)?;
         let (_, findings) = rayon::join(
             || columns.iter().for_each(|col| hasher.add(col)),
             || columns.par_iter().map(|col| findings_of(col, &roles, &keys, &splits, file)).collect::<Vec<_>>(),
@@ -110,7 +112,7 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
                 encodings.insert(name, encoding);
             }
             if found.constant_on_training {
-                constant.push(name);
+                constant.insert(name);
             }
             if let Some(crossing) = found.crossing {
                 crossings.insert(name, crossing);
@@ -120,8 +122,7 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
     }
 
     // Then the rows, a chunk at a time, for their digests over the features and the target.
-    let seen: Vec<&str> =
-        names.iter().filter(|n| **n == roles.target || roles.features.iter().any(|f| f.name == **n)).map(String::as_str).collect();
+    let seen: Vec<&str> = names.iter().filter(|n| **n == roles.target || roles.is_feature(n)).map(String::as_str).collect();
     let mut digests = Vec::with_capacity(rows);
     source.for_each_chunk(&seen, &mut |_, chunk| {
         digests.extend(leakage::row_digests(chunk, &roles));

@@ -150,7 +150,7 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target, row_digests: &[u
         .columns
         .iter()
         .map(|c| {
-            let categorical = roles.features.iter().any(|f| f.name == c.name && f.categorical);
+            let categorical = roles.feature(&c.name).is_some_and(|f| f.categorical);
             summarise_column(c, roles, categorical)
         })
         .collect();
