@@ -68,7 +68,7 @@ enum Command {
         jobs: Option<usize>,
         /// Train only shard K of N of the run list (0 <= K < N, run i belongs to shard i mod N), e.g. one task of a job array.
         #[arg(long, value_name = "K/N")]
-        shard: Option<tabcard::shard::Shard>,
+        shard: Option<tabcard::sweep::shard::Shard>,
     },
     /// Write a SLURM job array that trains the experiment shard by shard on a cluster, plus the merge job; --submit hands both to sbatch.
     #[command(
@@ -343,7 +343,8 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             Done::text(commands::predict::run(&model, &input, &out, &options)?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
-            let resources = tabcard::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };
+            let resources =
+                tabcard::sweep::slurm::TaskResources { cpus_per_task, memory: mem, time_limit: time, partition, account, modules };
             let options = commands::slurm::SlurmOptions { results_root: results, resources, runs_per_task, executable, submit };
             Done::text(commands::slurm::run(&manifest, &options)?)
         }

@@ -52,7 +52,7 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
     assert!(out.status.success(), "{}", stderr(&out));
     let folder = experiment_folder(&dir.path().join("results")).unwrap();
     let exp = tabcard::experiment::open(&manifest).unwrap();
-    let prepared = tabcard::prepared::Prepared::new(exp).unwrap();
+    let prepared = tabcard::experiment::prepared::Prepared::new(exp).unwrap();
     let width = prepared.exp.preprocessor.width();
     let outputs = prepared.exp.head().outputs();
     for config in &prepared.plan.configs {
@@ -60,13 +60,13 @@ fn the_estimate_counts_the_parameters_the_trainer_reports() {
         let metrics: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(folder.join("runs").join(&run.id).join("result.json")).unwrap()).unwrap();
         assert_eq!(
-            tabcard::feasibility::parameter_count(config, width, outputs),
+            tabcard::experiment::feasibility::parameter_count(config, width, outputs),
             metrics["parameter_count"].as_u64().unwrap(),
             "{}",
             config.id
         );
     }
-    assert!(tabcard::feasibility::input_width_bound(&prepared.exp) >= width);
+    assert!(tabcard::experiment::feasibility::input_width_bound(&prepared.exp) >= width);
 }
 
 #[test]

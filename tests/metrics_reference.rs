@@ -6,6 +6,7 @@
 use serde_json::Value;
 use tabcard::metrics::calibration::reliability_bins;
 use tabcard::metrics::classification::*;
+use tabcard::metrics::registry::{self, classification_metrics as scalar_metrics};
 use tabcard::metrics::regression;
 
 fn reference() -> Value {
@@ -113,7 +114,7 @@ fn regression_metrics_match_scikit_learn() {
     let r = reference();
     let case = &r["regression"];
     let (truth, predicted) = (floats(&case["truth"]), floats(&case["predicted"]));
-    let m = regression::scalar_metrics(&truth, &predicted);
+    let m = registry::regression_metrics(&truth, &predicted);
     for key in ["rmse", "mae", "r2"] {
         close(key, m[key], case["expected"][key].as_f64().unwrap());
     }

@@ -9,8 +9,8 @@ mod common;
 use std::path::Path;
 use tabcard::data::prep::Preprocessor;
 use tabcard::experiment::open;
-use tabcard::plan::RunConfig;
-use tabcard::train::{train, RunData};
+use tabcard::training::RunConfig;
+use tabcard::training::{train, RunData};
 
 fn experiment(dir: &Path, file: &str, target: &str, task: &str, extra: &str) -> tabcard::experiment::Experiment {
     let src = common::repo_path(&format!("tests/data/open/{file}"));

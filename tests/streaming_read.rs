@@ -150,7 +150,7 @@ fn the_streamed_experiment_equals_the_in_memory_one_bit_for_bit() {
     assert!(whole_summary.duplicate_rows.unwrap() > 0);
     assert!(preprocessor.output_names.iter().any(|n| n == "plan:missing"), "{:?}", preprocessor.output_names);
 
-    let prepared = tabcard::prepared::Prepared::new(streamed).unwrap();
+    let prepared = tabcard::experiment::prepared::Prepared::new(streamed).unwrap();
     let bits = |m: &tabcard::data::prep::Matrix| m.data.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
     for (rows_of, built) in [(&splits.train, &prepared.train_x), (&splits.validation, &prepared.validation_x)] {
         let (whole, _) = preprocessor.transform(&table, rows_of, &path).unwrap();

@@ -9,9 +9,9 @@ use tabcard::nn::engine::Engine;
 use tabcard::nn::layers::{dropout, tensor_from, BatchNorm, BN_EPS};
 use tabcard::nn::loss::{self, objective_and_gradient, Objective};
 use tabcard::nn::mlp::{Mlp, Mode};
-use tabcard::plan::RunConfig;
 use tabcard::rng::{Purpose, Stream};
-use tabcard::train::{train, train_with_dtype, Head, Labels, Outcome, RunData};
+use tabcard::training::RunConfig;
+use tabcard::training::{train, train_with_dtype, Head, Labels, Outcome, RunData};
 
 fn head(task: Task, classes: usize) -> Head {
     Head { task, classes, loss: RegressionLoss::Mse, huber_delta: 1.0 }
@@ -364,11 +364,11 @@ fn lease_matrices() -> (Matrix, Labels, Matrix, Labels) {
     )
     .unwrap();
     let exp = tabcard::experiment::open(&dir.path().join("m.toml")).unwrap();
-    let p = tabcard::prepared::Prepared::new(exp).unwrap();
+    let p = tabcard::experiment::prepared::Prepared::new(exp).unwrap();
     (p.train_x, p.train_y, p.validation_x, p.validation_y)
 }
 
-fn weight_norm(r: &tabcard::train::RunResult) -> f64 {
+fn weight_norm(r: &tabcard::training::RunResult) -> f64 {
     r.tensors.iter().filter(|t| t.name.ends_with(".weight")).flat_map(|t| t.values.iter()).map(|&v| (v as f64).powi(2)).sum::<f64>().sqrt()
 }
 

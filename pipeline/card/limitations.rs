@@ -5,54 +5,8 @@
 
 use serde::Serialize;
 
+use super::evidence::Evidence;
 use crate::format::sig;
-
-/// The figures the rules read, gathered once from the stored results ([`super::evidence`]).
-#[derive(Debug, Clone, Default)]
-pub struct Evidence {
-    pub classification: bool,
-    pub train_rows: usize,
-    pub parameter_count: usize,
-    /// (label, rows in the whole table, share) of the rarest class, for classifiers.
-    pub minority: Option<(String, usize, f64)>,
-    pub metric: String,
-    pub higher_is_better: bool,
-    /// The scale the selection metric's spread and gap are judged against, and what it is: 1 for
-    /// metrics bounded in [0, 1], the class-prior log loss for log loss, the target's standard
-    /// deviation for RMSE and MAE.
-    pub scale: (f64, String),
-    /// Mean and standard deviation across seeds of the selected configuration's validation metric.
-    pub selected: Option<(f64, f64)>,
-    /// The same for the linear baseline.
-    pub baseline: Option<(f64, f64)>,
-    /// Train minus validation of the selection metric, oriented so positive means "train better".
-    pub gap: Option<f64>,
-    pub test_ece: Option<f64>,
-    /// The test metric that says whether the model beats chance (ROC AUC, or R² for regression):
-    /// (name, value, interval lower, interval upper, the value chance gives).
-    pub chance: Option<(String, f64, f64, f64, f64)>,
-    pub test_rows: usize,
-    /// Classifiers: (label, test rows) of the class with the fewest test rows.
-    pub test_smallest_class: Option<(String, usize)>,
-    /// Test metrics whose 95% bootstrap interval has zero width.
-    pub degenerate_intervals: Vec<String>,
-    /// (feature, missing share) of every feature.
-    pub missing: Vec<(String, f64)>,
-    /// (feature, number of levels with fewer than RARE_LEVEL_ROWS rows) for categorical features.
-    pub rare_levels: Vec<(String, usize)>,
-    /// (grid key, selected value, its position, number of distinct ordered values searched).
-    pub grid: Vec<(String, String, usize, usize)>,
-    /// Configurations with fewer parameters than the selected one whose validation mean is
-    /// within one standard error of it: (label, parameters, mean). Empty under the
-    /// one-standard-error rule, which already picks the smallest of them.
-    pub simpler_within_noise: Vec<(String, usize, f64)>,
-    /// (test, validation) rows identical to a training row.
-    pub duplicated_into_evaluation: (usize, usize),
-    pub constant_on_training: Vec<String>,
-    /// (column, values crossing splits, distinct values, evaluation rows sharing a training value).
-    pub crossing_keys: Vec<(String, usize, usize, usize)>,
-    pub failed_runs: usize,
-}
 
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Limitation {

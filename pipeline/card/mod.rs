@@ -16,11 +16,11 @@ use std::path::Path;
 use crate::data::prep::{InputEncoding, Preprocessor};
 use crate::data::summary::DataSummary;
 use crate::error::{Error, Result};
+use crate::experiment::plan::{config_label, Plan, PlannedConfig};
 use crate::experiment::ExperimentRecord;
 use crate::format::{fixed, sig};
 use crate::manifest::{Manifest, SelectionRule, Task};
 use crate::numerics::NumericsFingerprint;
-use crate::plan::{config_label, Plan, PlannedConfig};
 use crate::selection::{standard_error, Selection, Spread};
 use crate::store::run::{read_run, StoredRun};
 use crate::store::timing::TimingRecord;
@@ -503,7 +503,7 @@ fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun)
     let (model, training) = (&selected_cfg.config.model, &selected_cfg.config.training);
     let selected_summary = st.selection.configs.iter().find(|c| c.config_id == st.selection.selected_config);
     let regularizer_rows =
-        crate::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
+        crate::training::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
     let grid_rows = st
         .manifest
         .sweep

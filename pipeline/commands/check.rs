@@ -5,19 +5,19 @@ use std::fmt::Write;
 use std::path::Path;
 
 use crate::error::Result;
+use crate::experiment::plan;
 use crate::experiment::{open, Experiment};
-use crate::plan;
 use crate::text::terminal_safe;
 
 /// Checks the experiment; `jobs` is the worker count the memory estimate assumes.
 pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
-    let estimate = crate::feasibility::estimate(&exp, &plan, crate::feasibility::input_width_bound(&exp), jobs);
-    let available = crate::feasibility::available_bytes();
-    crate::feasibility::require(&estimate, available, manifest_path)?;
+    let estimate = crate::experiment::feasibility::estimate(&exp, &plan, crate::experiment::feasibility::input_width_bound(&exp), jobs);
+    let available = crate::experiment::feasibility::available_bytes();
+    crate::experiment::feasibility::require(&estimate, available, manifest_path)?;
     let mut out = report(&exp, &plan);
-    let _ = writeln!(out, "memory       {}", crate::feasibility::describe(&estimate, available));
+    let _ = writeln!(out, "memory       {}", crate::experiment::feasibility::describe(&estimate, available));
     let m = &exp.manifest;
     let json = serde_json::json!({
         "experiment": m.experiment.name,

@@ -67,7 +67,7 @@ fn load_folder(folder: &Path) -> Result<Side> {
 
 fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     let exp = crate::experiment::open(path)?;
-    let plan = crate::plan::build(&exp.manifest, &exp.fingerprint)?;
+    let plan = crate::experiment::plan::build(&exp.manifest, &exp.fingerprint)?;
     // The same resolved form a results folder stores as manifest.json.
     let value = serde_json::to_value(&exp.manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
     let mut flat = BTreeMap::new();

@@ -6,9 +6,9 @@ use std::fmt::Write;
 use std::path::Path;
 
 use crate::error::{Error, Result};
+use crate::experiment::plan::config_label;
 use crate::experiment::ExperimentRecord;
 use crate::format::fixed;
-use crate::plan::config_label;
 use crate::selection::Selection;
 use crate::store::ledger::{read_verifications, VerificationEntry};
 use crate::store::timing::TimingRecord;

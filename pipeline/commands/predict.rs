@@ -17,7 +17,7 @@ use crate::data::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
 use crate::experiment::ExperimentRecord;
 use crate::manifest::Task;
-use crate::model::ScoringModel;
+use crate::selection::scoring::ScoringModel;
 use crate::selection::Selection;
 use crate::store::run::{is_run_folder, read_run};
 use crate::store::{read_json, write_atomic, Layout};

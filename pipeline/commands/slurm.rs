@@ -8,9 +8,11 @@ use std::process::Command;
 
 use crate::error::{Error, Result};
 use crate::experiment::open;
-use crate::plan;
-use crate::slurm::{array_script, merge_script, parse_max_array_size, task_count, ScriptInputs, TaskResources, DEFAULT_MAX_ARRAY_SIZE};
+use crate::experiment::plan;
 use crate::store::{create_dir, write_atomic, Layout};
+use crate::sweep::slurm::{
+    array_script, merge_script, parse_max_array_size, task_count, ScriptInputs, TaskResources, DEFAULT_MAX_ARRAY_SIZE,
+};
 
 pub struct SlurmOptions {
     pub results_root: PathBuf,
@@ -59,7 +61,7 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
         return Err(Error::Usage("--cpus-per-task must be at least 1".into()));
     }
     let results_root = absolute(&options.results_root)?;
-    crate::slurm::check_directive_values(r, &results_root).map_err(Error::Usage)?;
+    crate::sweep::slurm::check_directive_values(r, &results_root).map_err(Error::Usage)?;
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
     let manifest = absolute(manifest_path)?;

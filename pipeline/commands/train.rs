@@ -7,15 +7,15 @@ use std::time::Instant;
 
 use crate::data::prep::Preprocessor;
 use crate::error::{Error, Result};
+use crate::experiment::plan::Plan;
+use crate::experiment::prepared::Prepared;
 use crate::experiment::{open, Experiment};
 use crate::format::fixed;
-use crate::plan::Plan;
-use crate::prepared::Prepared;
 use crate::selection::Selection;
-use crate::shard::Shard;
 use crate::store::ledger::{self, LedgerEntry};
 use crate::store::timing::{phase, Phase, TimingRecord};
 use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
+use crate::sweep::shard::Shard;
 use crate::sweep::{self, Event, SweepInputs};
 
 #[derive(Clone)]
@@ -101,7 +101,7 @@ fn table(selection: &Selection) -> String {
         let _ = writeln!(
             out,
             "{:<36} {:>8} {:>6}  {:>20}  {:>22}{mark}",
-            crate::text::terminal_safe(&crate::plan::config_label(&c.overrides, c.baseline)),
+            crate::text::terminal_safe(&crate::experiment::plan::config_label(&c.overrides, c.baseline)),
             c.parameter_count,
             seeds,
             v,
@@ -259,11 +259,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
     let environment = crate::numerics::current()?;
     let exp = open(manifest_path)?;
-    crate::feasibility::return_freed_memory();
+    crate::experiment::feasibility::return_freed_memory();
     let mut phases = vec![Phase { name: phase::SCAN.into(), seconds: started.elapsed().as_secs_f64() }];
     let building = Instant::now();
     let mut prepared = Prepared::new(exp)?;
-    crate::feasibility::return_freed_memory();
+    crate::experiment::feasibility::return_freed_memory();
     phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
@@ -271,8 +271,8 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let planned_runs = options.shard.map(|s| s.size(plan.runs.len())).unwrap_or(plan.runs.len());
     let options = &TrainOptions { jobs: crate::threads::workers(options.jobs, planned_runs)?, ..options.clone() };
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
-    let estimate = crate::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
-    crate::feasibility::require(&estimate, crate::feasibility::available_bytes(), manifest_path)?;
+    let estimate = crate::experiment::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
+    crate::experiment::feasibility::require(&estimate, crate::experiment::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
     on_event(Event::Header(format!(
         "experiment {} ({}): {} runs planned, results in {}",
@@ -312,7 +312,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let report = sweep::run(&sweep_inputs, on_event)?;
     // Selection reads validation and test rows only.
     prepared.train_x = Default::default();
-    crate::feasibility::return_freed_memory();
+    crate::experiment::feasibility::return_freed_memory();
     phases.push(Phase { name: phase::SWEEP.into(), seconds: sweeping.elapsed().as_secs_f64() });
     if let Some(shard) = options.shard {
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));

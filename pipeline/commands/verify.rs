@@ -12,12 +12,12 @@ use std::path::{Path, PathBuf};
 use rayon::prelude::*;
 
 use crate::error::{Error, Result};
+use crate::experiment::plan::Plan;
+use crate::experiment::prepared::Prepared;
 use crate::experiment::{open, open_with_data, ExperimentRecord};
 use crate::fingerprint::{file_sha256, sha256_hex};
 use crate::manifest::{LoadedManifest, Manifest};
 use crate::numerics::NumericsFingerprint;
-use crate::plan::Plan;
-use crate::prepared::Prepared;
 use crate::selection::Selection;
 use crate::store::run::{read_run, StoredRun, ENVIRONMENT};
 use crate::store::weights::tensor_digests;

@@ -2,8 +2,6 @@
 //! `[1 - p, p]`); labels are class indices. The predicted class is the arg-max, first index winning
 //! ties, so a binary prediction is positive when p > 0.5.
 
-use super::MetricSet;
-
 /// Per-class precision, recall, F1 and support; a zero denominator gives 0 (as scikit-learn's
 /// `zero_division=0`).
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -212,17 +210,6 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f6
         }
     }
     best.map(|(_, t, tpr, fpr)| (t, tpr, fpr))
-}
-
-/// Every classification metric of the registry's table (binary when `k == 2`), by name.
-pub fn scalar_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
-    let predicted = predicted_classes(probs, k);
-    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
-        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
-    let task = if k == 2 { crate::task::Task::Binary } else { crate::task::Task::Multiclass };
-    let scored =
-        super::registry::Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
-    super::registry::scalar_metrics(task, &scored)
 }
 
 #[cfg(test)]

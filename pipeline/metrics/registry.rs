@@ -141,6 +141,22 @@ pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
     table(task).iter().map(|m| (m.name.to_string(), (m.compute)(scored))).collect()
 }
 
+/// Every classification metric of the table (binary when `k == 2`) of class probabilities
+/// (`k` per row) against class indices, by name.
+pub fn classification_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
+    let predicted = super::classification::predicted_classes(probs, k);
+    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
+        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+    let task = if k == 2 { Task::Binary } else { Task::Multiclass };
+    let scored = Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
+    scalar_metrics(task, &scored)
+}
+
+/// Every regression metric of the table, by name.
+pub fn regression_metrics(truth: &[f64], predicted: &[f64]) -> MetricSet {
+    scalar_metrics(Task::Regression, &Scored::Values { truth, predicted })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,7 +1,5 @@
 //! Regression metrics: RMSE, MAE and R2.
 
-use super::MetricSet;
-
 pub fn rmse(truth: &[f64], predicted: &[f64]) -> Option<f64> {
     (!truth.is_empty()).then(|| (truth.iter().zip(predicted).map(|(t, p)| (t - p).powi(2)).sum::<f64>() / truth.len() as f64).sqrt())
 }
@@ -28,11 +26,6 @@ pub fn r2(truth: &[f64], predicted: &[f64]) -> Option<f64> {
     } else {
         1.0 - ss_res / ss_tot
     })
-}
-
-/// Every regression metric of the registry's table, by name.
-pub fn scalar_metrics(truth: &[f64], predicted: &[f64]) -> MetricSet {
-    super::registry::scalar_metrics(crate::task::Task::Regression, &super::registry::Scored::Values { truth, predicted })
 }
 
 #[cfg(test)]

@@ -16,8 +16,8 @@ use crate::fingerprint::sha256_hex;
 use crate::metrics::MetricSet;
 use crate::nn::mlp::NamedTensor;
 use crate::numerics::NumericsFingerprint;
-use crate::plan::RunConfig;
-use crate::train::{EpochRecord, Head, Outcome, TargetScaling};
+use crate::training::RunConfig;
+use crate::training::{EpochRecord, Head, Outcome, TargetScaling};
 
 /// The record of one run (`result.json`): outcome, epochs, size, metrics and weight digests.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -209,7 +209,7 @@ pub struct StoredRun {
 }
 
 /// Every stored run of the plan, in plan order (runs without a folder yet are left out).
-pub fn read_runs(layout: &Layout, plan: &crate::plan::Plan) -> Result<Vec<StoredRun>> {
+pub fn read_runs(layout: &Layout, plan: &crate::experiment::plan::Plan) -> Result<Vec<StoredRun>> {
     let mut out = Vec::new();
     for spec in &plan.runs {
         if let Some(r) = read_run(layout, &spec.id)? {

@@ -24,9 +24,9 @@ use tabcard::data::prep::{Matrix, Preprocessor};
 use tabcard::data::roles::Feature;
 use tabcard::data::table::Table;
 use tabcard::manifest::{Activation, ModelSpec, Optimizer, RegressionLoss, Task, TrainingSpec};
-use tabcard::plan::RunConfig;
 use tabcard::rng::{Purpose, Stream};
-use tabcard::train::{train, Head, Labels, RunData};
+use tabcard::training::RunConfig;
+use tabcard::training::{train, Head, Labels, RunData};
 
 fn arg<T: std::str::FromStr>(args: &[String], name: &str, default: T) -> T {
     args.iter().position(|a| a == name).and_then(|i| args.get(i + 1)).and_then(|v| v.parse().ok()).unwrap_or(default)

@@ -7,10 +7,10 @@ use crate::data::prep::{Matrix, Preprocessor};
 use crate::error::Result;
 use crate::nn::engine::{Engine, EVAL_BLOCK};
 use crate::nn::mlp::Mlp;
-use crate::plan::RunConfig;
 use crate::rng::{Purpose, Stream};
 use crate::store::run::StoredRun;
-use crate::train::{Head, TargetScaling};
+use crate::training::RunConfig;
+use crate::training::{Head, TargetScaling};
 
 pub struct ScoringModel {
     pub head: Head,

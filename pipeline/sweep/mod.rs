@@ -2,18 +2,21 @@
 //! Runs whose folder is already complete are reused, never retrained; a failing or diverging run
 //! is recorded with its reason and the others go on. Workers share the matrices read-only.
 
+pub mod shard;
+pub mod slurm;
+
 use rayon::prelude::*;
 use std::time::Instant;
 
 use crate::data::prep::Preprocessor;
 use crate::error::{Error, Result};
+use crate::experiment::plan::{Plan, RunSpec};
 use crate::numerics::NumericsFingerprint;
-use crate::plan::{Plan, RunSpec};
-use crate::shard::Shard;
 use crate::store::run::{read_run, sweep_stale_partials, write_run, RunArtifacts, RunRecord};
 use crate::store::weights::{tensor_digests, weights_digest};
 use crate::store::Layout;
-use crate::train::{train, Head, Outcome, RunData};
+use crate::sweep::shard::Shard;
+use crate::training::{train, Head, Outcome, RunData};
 
 /// Progress notifications, for a display the caller owns (`main.rs`).
 #[derive(Debug, Clone)]
@@ -50,7 +53,11 @@ pub struct RunReport {
 
 impl RunReport {
     pub fn new(inputs: &SweepInputs<'_>, spec: &RunSpec, record: &RunRecord, seconds: f64) -> Self {
-        let label = inputs.plan.config(&spec.config_id).map(|c| crate::plan::config_label(&c.overrides, c.baseline)).unwrap_or_default();
+        let label = inputs
+            .plan
+            .config(&spec.config_id)
+            .map(|c| crate::experiment::plan::config_label(&c.overrides, c.baseline))
+            .unwrap_or_default();
         RunReport {
             run_id: spec.id.clone(),
             label,
@@ -85,7 +92,7 @@ pub struct SweepReport {
     pub failed: Vec<(String, String)>,
 }
 
-fn planned_config<'a>(inputs: &'a SweepInputs<'_>, spec: &RunSpec) -> Result<&'a crate::plan::PlannedConfig> {
+fn planned_config<'a>(inputs: &'a SweepInputs<'_>, spec: &RunSpec) -> Result<&'a crate::experiment::plan::PlannedConfig> {
     inputs.plan.config(&spec.config_id).ok_or_else(|| Error::Internal(format!("run {} names no configuration of its plan", spec.id)))
 }
 
@@ -93,7 +100,7 @@ fn planned_config<'a>(inputs: &'a SweepInputs<'_>, spec: &RunSpec) -> Result<&'a
 pub struct TrainedRun {
     pub record: RunRecord,
     pub tensors: Vec<crate::nn::mlp::NamedTensor>,
-    pub history: Vec<crate::train::EpochRecord>,
+    pub history: Vec<crate::training::EpochRecord>,
     pub validation_outputs: Vec<f64>,
     pub seconds: f64,
 }

@@ -4,9 +4,9 @@
 
 use crate::data::prep::Matrix;
 use crate::error::Result;
+use crate::experiment::plan::{self, Plan};
 use crate::experiment::Experiment;
-use crate::plan::{self, Plan};
-use crate::train::{Labels, RunData};
+use crate::training::{Labels, RunData};
 
 pub struct Prepared {
     pub exp: Experiment,

@@ -3,12 +3,16 @@
 //! manifest's metric; and one evaluation of the selected configuration on the test split, with
 //! seeded bootstrap intervals for the selected run's test metrics.
 
+pub mod scoring;
+
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
 use std::collections::BTreeMap;
 
 use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
+use crate::experiment::plan::Plan;
+use crate::experiment::prepared::Prepared;
 use crate::manifest::SelectionRule;
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
@@ -16,11 +20,9 @@ use crate::metrics::classification::youden_threshold;
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
-use crate::model::ScoringModel;
-use crate::plan::Plan;
-use crate::prepared::Prepared;
+use crate::selection::scoring::ScoringModel;
 use crate::store::run::StoredRun;
-use crate::train::Labels;
+use crate::training::Labels;
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Spread {

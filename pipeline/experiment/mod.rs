@@ -4,6 +4,10 @@
 //! rows. The data file stays open and is never held decoded: the first pass ([`crate::data::scan`])
 //! reads it a column at a time, and the matrices are built from it later, a column at a time.
 
+pub mod feasibility;
+pub mod plan;
+pub mod prepared;
+
 use std::path::{Path, PathBuf};
 
 use crate::data::parquet::ParquetSource;
@@ -179,17 +183,17 @@ impl Experiment {
     }
 
     /// Targets of the given rows, aligned with a matrix of those rows.
-    pub fn labels(&self, rows: &[usize]) -> crate::train::Labels {
+    pub fn labels(&self, rows: &[usize]) -> crate::training::Labels {
         match &self.target {
             Target::Classes { labels, rows: classes } => {
-                crate::train::Labels::Classes { rows: rows.iter().map(|&r| classes[r]).collect(), classes: labels.len() }
+                crate::training::Labels::Classes { rows: rows.iter().map(|&r| classes[r]).collect(), classes: labels.len() }
             }
-            Target::Values(v) => crate::train::Labels::Values(rows.iter().map(|&r| v[r]).collect()),
+            Target::Values(v) => crate::training::Labels::Values(rows.iter().map(|&r| v[r]).collect()),
         }
     }
 
-    pub fn head(&self) -> crate::train::Head {
-        crate::train::Head {
+    pub fn head(&self) -> crate::training::Head {
+        crate::training::Head {
             task: self.manifest.data.task,
             classes: self.target.class_count(),
             loss: self.manifest.training.loss,

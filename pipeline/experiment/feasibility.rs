@@ -7,8 +7,8 @@
 use std::fmt::Write;
 
 use crate::error::{Error, Result};
+use crate::experiment::plan::{Plan, PlannedConfig};
 use crate::experiment::Experiment;
-use crate::plan::{Plan, PlannedConfig};
 
 /// Bytes per trainable parameter in one worker: the engine's weights and gradients (f32), the
 /// optimizer's two moments (f64), the model's own copy, the copy handed over at start and at

@@ -1,0 +1,14 @@
+//! Training one run: its settings ([`RunConfig`]), what the task's network outputs ([`Head`],
+//! [`Labels`]), the seeded training loop ([`train`]), what a run leaves ([`RunResult`]) and the
+//! regularizers a run can use, described once for the manifest and the card.
+
+pub mod config;
+pub mod head;
+pub mod record;
+pub mod regularizers;
+pub mod run;
+
+pub use config::RunConfig;
+pub use head::{Head, Labels, TargetScaling, OBJECTIVE};
+pub use record::{EpochRecord, Outcome, RunResult};
+pub use run::{train, train_with_dtype, RunData};
