@@ -17,6 +17,7 @@ pub mod metrics;
 pub mod nn;
 pub mod numerics;
 pub mod provenance;
+pub mod results;
 pub mod rng;
 pub mod selection;
 pub mod store;

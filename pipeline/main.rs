@@ -2,13 +2,14 @@
 //! exit codes. The only place that talks to the terminal (including the progress bar).
 
 use clap::{Parser, Subcommand};
-use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 use tabcard::commands;
 use tabcard::error::exit;
-use tabcard::sweep::Event;
+
+mod progress;
+use progress::{note, progress_display};
 
 #[derive(Parser)]
 #[command(
@@ -197,94 +198,6 @@ enum Command {
         #[arg(long, default_value_t = 20261202)]
         seed: u64,
     },
-}
-
-/// One line on stderr; a closed stderr (`tabcard train ... 2>&1 | head`) must not stop the work.
-fn note(text: &str) {
-    use std::io::Write;
-    let _ = writeln!(std::io::stderr(), "{text}");
-}
-
-/// Progress on stderr while `train` or `verify` works: the header at once; on a terminal a live
-/// bar (runs done of planned, best validation value so far, elapsed, estimate); otherwise one
-/// plain line per finished run (logs, SLURM). `--quiet` shows neither.
-fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
-    let terminal = std::io::stderr().is_terminal() && !quiet;
-    let bar = if terminal { indicatif::ProgressBar::new(0) } else { indicatif::ProgressBar::hidden() };
-    bar.set_style(
-        indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} runs  {msg}  {elapsed} elapsed, about {eta} left")
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-    );
-    struct State {
-        done: usize,
-        pending: usize,
-        failed: usize,
-        metric: String,
-        higher_is_better: bool,
-        best: Option<(f64, String)>,
-    }
-    let state = std::sync::Mutex::new(State { done: 0, pending: 0, failed: 0, metric: String::new(), higher_is_better: true, best: None });
-    let handle = bar.clone();
-    let on_event = move |event: Event| {
-        let Ok(mut s) = state.lock() else { return };
-        match event {
-            Event::Header(text) => {
-                if !quiet {
-                    handle.suspend(|| note(&text));
-                }
-            }
-            // Shown even under --quiet: a command that waits must say for whom, or it looks hung.
-            Event::Waiting(text) => handle.suspend(|| note(&text)),
-            Event::Planned { pending, reused, metric, higher_is_better } => {
-                (s.pending, s.metric, s.higher_is_better) = (pending, metric, higher_is_better);
-                handle.set_length(pending as u64);
-                if !quiet && !terminal {
-                    note(&format!("{pending} runs to train, {reused} already stored"));
-                }
-            }
-            Event::Finished(run) => {
-                s.done += 1;
-                if !run.outcome.is_completed() {
-                    s.failed += 1;
-                }
-                if let Some(v) = run.metric {
-                    let better = s.best.as_ref().is_none_or(|(b, _)| if s.higher_is_better { v > *b } else { v < *b });
-                    if better {
-                        s.best = Some((v, format!("{} seed {}", run.label, run.seed)));
-                    }
-                }
-                let metric = match run.metric {
-                    Some(v) => format!("validation {} {}", s.metric, tabcard::format::fixed(v, 4)),
-                    None => format!("validation {} undefined", s.metric),
-                };
-                let outcome = if run.outcome.is_completed() { "completed".to_string() } else { run.outcome.describe() };
-                let verdict = run.verdict.map(|v| format!(", {v}")).unwrap_or_default();
-                if terminal {
-                    let best = s
-                        .best
-                        .as_ref()
-                        .map(|(v, who)| {
-                            format!("best {} {} ({})", s.metric, tabcard::format::fixed(*v, 4), tabcard::text::terminal_cell(who, 40))
-                        })
-                        .unwrap_or_default();
-                    let failed = if s.failed > 0 { format!(", {} failed", s.failed) } else { String::new() };
-                    handle.set_message(format!("{best}{failed}"));
-                    handle.inc(1);
-                } else if !quiet {
-                    note(&format!(
-                        "[{}/{}] run {} seed {} {}: {outcome}, {metric}, {:.1} s{verdict}",
-                        s.done,
-                        s.pending,
-                        run.run_id,
-                        run.seed,
-                        tabcard::text::terminal_safe(&run.label),
-                        run.seconds
-                    ));
-                }
-            }
-        }
-    };
-    (bar, on_event)
 }
 
 fn default_jobs() -> usize {

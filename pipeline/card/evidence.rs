@@ -114,7 +114,7 @@ pub fn gather(
     let task = manifest.data.task;
     let dir = direction(task, m).unwrap_or(Direction::Maximise);
     let higher = dir == Direction::Maximise;
-    let selected_summary = selection.configs.iter().find(|c| c.config_id == selection.selected_config);
+    let selected_summary = selection.selected_summary();
     let baseline_summary = selection.configs.iter().find(|c| c.baseline);
     let t = &selection.test;
     let chance_metric = if task == Task::Regression { ("r2", 0.0) } else { ("roc_auc", 0.5) };

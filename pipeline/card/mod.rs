@@ -14,16 +14,14 @@ use std::collections::BTreeMap;
 use std::path::Path;
 
 use crate::data::prep::{InputEncoding, Preprocessor};
-use crate::data::summary::DataSummary;
 use crate::error::{Error, Result};
-use crate::experiment::plan::{config_label, Plan, PlannedConfig};
-use crate::experiment::ExperimentRecord;
+use crate::experiment::plan::{config_label, PlannedConfig};
 use crate::format::{fixed, sig};
 use crate::manifest::{Manifest, SelectionRule, Task};
 use crate::numerics::NumericsFingerprint;
+use crate::results::StoredResults;
 use crate::selection::{standard_error, Selection, Spread};
-use crate::store::run::{read_run, StoredRun};
-use crate::store::timing::TimingRecord;
+use crate::store::run::StoredRun;
 use crate::store::{read_json, write_atomic, Layout};
 use crate::text::{code_span, markdown_line as md_line, markdown_safe as md, markdown_text as md_text};
 use limitations::{derive, Limitation};
@@ -182,31 +180,6 @@ fn value_text(v: &Value) -> String {
     md(&v.to_string())
 }
 
-fn load(layout: &Layout) -> Result<Stored> {
-    layout.check_format()?;
-    let manifest: Manifest = read_json(&layout.manifest())?;
-    let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
-    let record: ExperimentRecord = read_json(&layout.experiment())?;
-    if crate::fingerprint::sha256_hex(stored.as_bytes()) != record.manifest_sha256 {
-        return Err(Error::store(
-            layout.manifest(),
-            "does not match the manifest hash recorded in experiment.json (it was edited after training)",
-        ));
-    }
-    let plan: Plan = read_json(&layout.plan())?;
-    let runs: Vec<StoredRun> = plan.runs.iter().filter_map(|r| read_run(layout, &r.id).transpose()).collect::<Result<_>>()?;
-    Ok(Stored {
-        manifest,
-        record,
-        summary: read_json(&layout.data_summary())?,
-        selection: read_json(&layout.selection())?,
-        timing: crate::store::timing::read(&layout.timing())?,
-        preprocessor: read_json(&layout.preprocessor())?,
-        plan,
-        runs,
-    })
-}
-
 fn figure_name(key: &str) -> String {
     let slug: String = key.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '-' }).collect();
     format!("grid-{slug}.svg")
@@ -313,19 +286,6 @@ fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredR
     Ok(out)
 }
 
-/// Everything the card is made from, read once from the results folder.
-struct Stored {
-    manifest: Manifest,
-    record: ExperimentRecord,
-    summary: DataSummary,
-    plan: Plan,
-    selection: Selection,
-    /// `None` for a folder whose timing record is missing (it is outside the integrity list).
-    timing: Option<TimingRecord>,
-    preprocessor: Preprocessor,
-    runs: Vec<StoredRun>,
-}
-
 fn about(m: &Manifest) -> About {
     let e = &m.experiment;
     let stated = |s: &str| if s.trim().is_empty() { "not stated".to_string() } else { md_text(s) };
@@ -419,7 +379,7 @@ fn preprocessing(p: &Preprocessor) -> (String, Vec<Row>) {
     (line, rows)
 }
 
-fn data_section(st: &Stored) -> DataSection {
+fn data_section(st: &StoredResults) -> DataSection {
     let (summary, record) = (&st.summary, &st.record);
     let column_rows = summary
         .columns
@@ -499,9 +459,9 @@ fn data_section(st: &Stored) -> DataSection {
     }
 }
 
-fn capacity(st: &Stored, selected_cfg: &PlannedConfig, selected_run: &StoredRun) -> Capacity {
+fn capacity(st: &StoredResults, selected_cfg: &PlannedConfig, selected_run: &StoredRun) -> Capacity {
     let (model, training) = (&selected_cfg.config.model, &selected_cfg.config.training);
-    let selected_summary = st.selection.configs.iter().find(|c| c.config_id == st.selection.selected_config);
+    let selected_summary = st.selection.selected_summary();
     let regularizer_rows =
         crate::training::regularizers::REGULARIZERS.iter().map(|r| Row::of([r.name.to_string(), (r.setting)(model, training)])).collect();
     let grid_rows = st
@@ -608,7 +568,7 @@ fn selection_text(sel: &Selection, direction: &str) -> String {
     }
 }
 
-fn results(st: &Stored, limitations: &[Limitation]) -> Results {
+fn results(st: &StoredResults, limitations: &[Limitation]) -> Results {
     let sel = &st.selection;
     let m = &sel.metric;
     let task = st.manifest.data.task;
@@ -638,7 +598,7 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
             Row { cells }
         })
         .collect();
-    let selected_summary = sel.configs.iter().find(|c| c.config_id == sel.selected_config);
+    let selected_summary = sel.selected_summary();
     let baseline_summary = sel.configs.iter().find(|c| c.baseline);
     let baseline_line = match (selected_summary.and_then(|s| s.validation.get(m)), baseline_summary.and_then(|s| s.validation.get(m))) {
         (Some(n), Some(b)) => format!(
@@ -770,7 +730,7 @@ fn results(st: &Stored, limitations: &[Limitation]) -> Results {
     }
 }
 
-fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
+fn provenance(st: &StoredResults, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
     let timing = st.timing.as_ref();
     let folder = layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
     Provenance {
@@ -815,7 +775,7 @@ fn provenance(st: &Stored, layout: &Layout, environment: &NumericsFingerprint) -
 }
 
 fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
-    let st = load(layout)?;
+    let st = StoredResults::read(layout)?;
     let sel = &st.selection;
     let selected_runs: Vec<&StoredRun> =
         st.runs.iter().filter(|r| r.record.config_id == sel.selected_config && r.record.outcome.is_completed()).collect();

@@ -6,20 +6,14 @@ use std::path::Path;
 
 use crate::card::write_card;
 use crate::error::Result;
-use crate::store::Layout;
+use crate::results::Sealed;
 
 pub fn run(results_folder: &Path, templates: Option<&Path>) -> Result<String> {
-    let layout = Layout::new(results_folder);
     // A `card` killed mid-write leaves temporaries, or a card and figures its list does not name
     // yet: the evidence decides, and the rendered files are written anew and sealed.
-    crate::store::integrity::remove_temporaries(&layout.root);
-    let repaired = match layout.check_sealed() {
-        Ok(_) => None,
-        Err(strict) => {
-            layout.check_sealed_evidence()?;
-            Some(strict)
-        }
-    };
+    let folder = Sealed::open_evidence(results_folder)?;
+    let repaired = folder.check_all().err();
+    let layout = folder.layout;
     let digest = write_card(&layout, templates)?;
     let note = repaired
         .map(|e| {

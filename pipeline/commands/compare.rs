@@ -12,8 +12,8 @@ use std::path::Path;
 use crate::error::Result;
 use crate::format::fixed;
 use crate::manifest::Task;
+use crate::results::Sealed;
 use crate::selection::{ConfigSummary, Selection};
-use crate::store::{read_json, Layout};
 use crate::text::terminal_safe;
 
 fn flatten(prefix: &str, v: &Value, out: &mut BTreeMap<String, Value>) {
@@ -48,19 +48,18 @@ fn is_manifest(path: &Path) -> bool {
 }
 
 fn load_folder(folder: &Path) -> Result<Side> {
-    let layout = Layout::new(folder);
-    layout.check_sealed()?;
-    let manifest: Value = read_json(&layout.manifest())?;
+    let sealed = Sealed::open(folder)?;
     let mut flat = BTreeMap::new();
-    flatten("", &manifest, &mut flat);
-    let record: crate::experiment::ExperimentRecord = read_json(&layout.experiment())?;
+    flatten("", &sealed.manifest_value()?, &mut flat);
+    let selection = sealed.selection()?;
+    let record = sealed.record;
     Ok(Side {
         fingerprint: record.fingerprint,
         task: record.task,
         file_sha256: record.data.file_sha256,
         content_sha256: record.data.content_sha256,
         manifest: flat,
-        selection: Some(read_json(&layout.selection())?),
+        selection: Some(selection),
         runs: None,
     })
 }
@@ -72,9 +71,7 @@ fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     let value = serde_json::to_value(&exp.manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
     let mut flat = BTreeMap::new();
     flatten("", &value, &mut flat);
-    let layout = Layout::new(results_root.join(exp.short_id()));
-    let (stored, new): (Vec<_>, Vec<_>) =
-        plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)));
+    let (stored, new) = crate::results::stored_and_new_runs(&results_root.join(exp.short_id()), &plan);
     Ok(Side {
         fingerprint: exp.fingerprint.clone(),
         task: exp.manifest.data.task,
@@ -95,7 +92,7 @@ fn load(path: &Path, results_root: &Path) -> Result<Side> {
 }
 
 fn selected(s: &Selection) -> Option<&ConfigSummary> {
-    s.configs.iter().find(|c| c.config_id == s.selected_config)
+    s.selected_summary()
 }
 
 pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {

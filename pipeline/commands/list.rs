@@ -7,12 +7,9 @@ use std::path::Path;
 
 use crate::error::{Error, Result};
 use crate::experiment::plan::config_label;
-use crate::experiment::ExperimentRecord;
 use crate::format::fixed;
-use crate::selection::Selection;
+use crate::results::Listing;
 use crate::store::ledger::{read_verifications, VerificationEntry};
-use crate::store::timing::TimingRecord;
-use crate::store::{read_json, Layout};
 use crate::text::terminal_cell;
 
 /// One listed experiment.
@@ -33,12 +30,8 @@ struct Listed {
     integrity_error: Option<String>,
 }
 
-fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed> {
-    layout.check_format()?;
-    let record: ExperimentRecord = read_json(&layout.experiment())?;
-    // Nothing from a folder is shown as fact before it matches its integrity list.
-    let sealed = layout.root.join(crate::store::integrity::FILE).exists();
-    let integrity_error = if sealed { crate::store::integrity::check(&layout.root).err().map(|e| e.to_string()) } else { None };
+fn listed(folder: &Path, verifications: &[VerificationEntry]) -> Result<Listed> {
+    let Listing { record, sealed, integrity_error, selection, timing } = Listing::read(folder)?;
     let verified = match verifications.iter().rev().find(|v| v.fingerprint == record.fingerprint) {
         _ if integrity_error.is_some() => "TAMPERED",
         _ if !sealed => "in progress",
@@ -46,16 +39,13 @@ fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed
         Some(_) => "FAILED",
         None => "no",
     };
-    let selection: Option<Selection> =
-        if layout.selection().exists() && integrity_error.is_none() { Some(read_json(&layout.selection())?) } else { None };
-    let timing: Option<TimingRecord> = crate::store::timing::read(&layout.timing()).ok().flatten();
     let selected = selection
         .as_ref()
-        .and_then(|s| s.configs.iter().find(|c| c.config_id == s.selected_config))
+        .and_then(|s| s.selected_summary())
         .map(|c| config_label(&c.overrides, c.baseline))
         .unwrap_or_else(|| if integrity_error.is_some() { "-".into() } else { "(not selected yet)".into() });
     Ok(Listed {
-        folder: crate::store::folder_name(&layout.root),
+        folder: crate::store::folder_name(folder),
         fingerprint: record.fingerprint,
         name: record.name,
         trained_at: timing.map(|t| t.trained_at),
@@ -69,13 +59,13 @@ fn listed(layout: &Layout, verifications: &[VerificationEntry]) -> Result<Listed
 
 pub fn run(results_root: &Path) -> Result<super::Report> {
     let entries = std::fs::read_dir(results_root).map_err(|e| Error::io(results_root, "read the results root", e))?;
-    let mut folders: Vec<_> = entries.flatten().map(|e| e.path()).filter(|p| p.join("format.json").exists()).collect();
+    let mut folders: Vec<_> = entries.flatten().map(|e| e.path()).filter(|p| Listing::is_results_folder(p)).collect();
     folders.sort();
     let verifications = read_verifications(results_root)?;
     let mut listed_ok = Vec::new();
     let mut problems = Vec::new();
     for folder in &folders {
-        match listed(&Layout::new(folder), &verifications) {
+        match listed(folder, &verifications) {
             Ok(l) => listed_ok.push(l),
             Err(e) => problems.push(format!("{}: {e}", folder.display())),
         }

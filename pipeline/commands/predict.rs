@@ -15,12 +15,11 @@ use crate::data::prep::InputEncoding;
 use crate::data::summary::DataSummary;
 use crate::data::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
-use crate::experiment::ExperimentRecord;
 use crate::manifest::Task;
+use crate::results::Sealed;
 use crate::selection::scoring::ScoringModel;
-use crate::selection::Selection;
-use crate::store::run::{is_run_folder, read_run};
-use crate::store::{read_json, write_atomic, Layout};
+use crate::store::run::is_run_folder;
+use crate::store::write_atomic;
 use crate::text::terminal_safe;
 
 pub struct PredictOptions {
@@ -57,18 +56,15 @@ pub fn check_output(output: &Path, input: &Path, force: bool) -> Result<OutputFo
 }
 
 /// (experiment folder, run id) for a run folder or an experiment's results folder.
-fn locate(target: &Path) -> Result<(Layout, String)> {
+fn locate(target: &Path) -> Result<(Sealed, String)> {
     if is_run_folder(target) {
         let id = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         let root = target.parent().and_then(Path::parent).ok_or_else(|| Error::store(target, "is not inside a results folder"))?;
-        let layout = Layout::new(root);
-        layout.check_sealed()?;
-        return Ok((layout, id));
+        return Ok((Sealed::open(root)?, id));
     }
-    let layout = Layout::new(target);
-    layout.check_sealed()?;
-    let selection: Selection = read_json(&layout.selection())?;
-    Ok((layout, selection.selected_run))
+    let folder = Sealed::open(target)?;
+    let selected = folder.selection()?.selected_run;
+    Ok((folder, selected))
 }
 
 fn numeric_kind(c: &Column) -> bool {
@@ -122,10 +118,10 @@ fn passthrough(col: &Column) -> ArrayRef {
 
 /// Scores `input` and returns the output columns and the summary.
 pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(Vec<(String, ArrayRef)>, String)> {
-    let (layout, run_id) = locate(target)?;
-    let record: ExperimentRecord = read_json(&layout.experiment())?;
-    let summary: DataSummary = read_json(&layout.data_summary())?;
-    let run = read_run(&layout, &run_id)?.ok_or_else(|| Error::store(layout.run(&run_id), "is missing"))?;
+    let (folder, run_id) = locate(target)?;
+    let summary: DataSummary = folder.summary()?;
+    let run = folder.run(&run_id)?;
+    let record = &folder.record;
     if !run.record.outcome.is_completed() {
         return Err(Error::store(&run.dir, format!("holds no model: the run {}", run.record.outcome.describe())));
     }

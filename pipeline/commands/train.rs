@@ -11,10 +11,11 @@ use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
 use crate::experiment::{open, Experiment};
 use crate::format::fixed;
+use crate::results::{Folder, Sealed};
 use crate::selection::Selection;
 use crate::store::ledger::{self, LedgerEntry};
 use crate::store::timing::{phase, Phase, TimingRecord};
-use crate::store::{read_json, write_atomic, write_json, FormatRecord, Layout};
+use crate::store::{write_atomic, write_json, FormatRecord, Layout};
 use crate::sweep::shard::Shard;
 use crate::sweep::{self, Event, SweepInputs};
 
@@ -51,18 +52,7 @@ fn runs_json(plan: &Plan, report: &sweep::SweepReport) -> serde_json::Value {
 /// still match its integrity list before anything else happens.
 fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: &Preprocessor) -> Result<()> {
     let canonical = crate::manifest::canonical_json(&exp.manifest);
-    if layout.format().exists() {
-        layout.check_format()?;
-        let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
-        if stored != canonical {
-            return Err(Error::store(
-                layout.manifest(),
-                "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain",
-            ));
-        }
-        if layout.root.join(crate::store::integrity::FILE).exists() {
-            crate::store::integrity::check(&layout.root)?;
-        }
+    if !matches!(Folder::inspect(layout, &canonical)?, Folder::New) {
         return Ok(());
     }
     crate::store::create_dir(&layout.root)?;
@@ -159,7 +149,7 @@ fn select_and_record(
     mut phases: Vec<Phase>,
 ) -> Result<(Selection, String)> {
     let selecting = Instant::now();
-    let runs = crate::store::run::read_runs(layout, &prepared.plan)?;
+    let runs = Folder::stored_runs(layout, &prepared.plan)?;
     let selection = crate::selection::derive(prepared, &runs)?;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     write_json(&layout.selection(), &selection)?;
@@ -293,7 +283,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     // The one writer clears what interrupted atomic writes left (shards never do: another shard
     // may be writing).
     if options.shard.is_none() {
-        crate::store::integrity::remove_temporaries(&layout.root);
+        crate::store::remove_temporaries(&layout.root);
     }
     prepare_folder(exp, &layout, plan, preprocessor)?;
     let sweep_inputs = SweepInputs {
@@ -318,10 +308,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));
     }
     // A sweep killed between its selection and the seal of its integrity list finishes both now.
-    let nothing_new = report.trained.is_empty() && layout.selection().exists() && layout.root.join(crate::store::integrity::FILE).exists();
+    let nothing_new = report.trained.is_empty() && Folder::is_sealed(&layout);
     let (selection, results_digest) = if nothing_new {
         // Nothing was trained: the stored results stand, once they match their integrity list.
-        (read_json(&layout.selection())?, crate::store::integrity::check(&layout.root)?)
+        let sealed = Sealed::open(&layout.root)?;
+        (sealed.selection()?, sealed.digest)
     } else {
         // Asked once: the timing record and the ledger line name the same commit.
         let git = crate::provenance::git_state(manifest_path);

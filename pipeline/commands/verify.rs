@@ -14,14 +14,14 @@ use rayon::prelude::*;
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
-use crate::experiment::{open, open_with_data, ExperimentRecord};
-use crate::fingerprint::{file_sha256, sha256_hex};
-use crate::manifest::{LoadedManifest, Manifest};
+use crate::experiment::{open, open_with_data};
+use crate::fingerprint::file_sha256;
+use crate::manifest::LoadedManifest;
 use crate::numerics::NumericsFingerprint;
+use crate::results::Sealed;
 use crate::selection::Selection;
-use crate::store::run::{read_run, StoredRun, ENVIRONMENT};
+use crate::store::run::StoredRun;
 use crate::store::weights::tensor_digests;
-use crate::store::{read_json, Layout};
 use crate::sweep::{in_pool, train_run, Event, RunReport, SweepInputs, TrainedRun};
 
 pub struct VerifyOptions {
@@ -123,34 +123,33 @@ fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
 }
 
 pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<VerifyOutcome> {
-    let folder = results_folder(target, &options.results_root)?;
-    let layout = Layout::new(&folder);
-    let digest = layout.check_sealed()?;
-    let record: ExperimentRecord = read_json(&layout.experiment())?;
-    let manifest_text = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
-    let manifest_hash = sha256_hex(manifest_text.as_bytes());
-    if manifest_hash != record.manifest_sha256 {
-        return Err(Error::store(
-            layout.manifest(),
-            format!("was edited after training: its SHA-256 is {manifest_hash}, experiment.json records {}", record.manifest_sha256),
-        ));
-    }
-    let manifest: Manifest =
-        serde_json::from_str(&manifest_text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
+    let sealed = Sealed::open(&results_folder(target, &options.results_root)?)?;
+    let (layout, digest, record) = (&sealed.layout, sealed.digest.clone(), &sealed.record);
+    let manifest = sealed.manifest()?;
     let manifest_path = locate_manifest(&record.manifest_path, &layout.root);
     let data_path = match &options.data {
         Some(p) => p.clone(),
         None => manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path),
     };
-    let file_hash = file_sha256(&data_path)?;
-    if file_hash != record.data.file_sha256 {
-        return Err(Error::data(
+    let changed = |file_hash: &str| {
+        Error::data(
             &data_path,
             None,
             format!("has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256),
-        ));
+        )
+    };
+    // The file is hashed once, by the first pass; a file that fails the first pass is hashed
+    // again only to say whether it is the recorded one.
+    let exp = match open_with_data(LoadedManifest { path: manifest_path, manifest, overridden_by_grid: Vec::new() }, data_path.clone()) {
+        Ok(exp) => exp,
+        Err(e) => match file_sha256(&data_path) {
+            Ok(hash) if hash != record.data.file_sha256 => return Err(changed(&hash)),
+            _ => return Err(e),
+        },
+    };
+    if exp.data.file_sha256 != record.data.file_sha256 {
+        return Err(changed(&exp.data.file_sha256));
     }
-    let exp = open_with_data(LoadedManifest { path: manifest_path, manifest, overridden_by_grid: Vec::new() }, data_path.clone())?;
     if exp.data.content_sha256 != record.data.content_sha256 {
         return Err(Error::data(
             &data_path,
@@ -159,21 +158,21 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         ));
     }
     let prepared = Prepared::with_fingerprint(exp, &record.fingerprint)?;
-    let stored_plan: Plan = read_json(&layout.plan())?;
+    let stored_plan: Plan = sealed.plan()?;
     if stored_plan != prepared.plan {
         return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));
     }
-    let stored_prep: crate::data::prep::Preprocessor = read_json(&layout.preprocessor())?;
+    let stored_prep = sealed.preprocessor()?;
     if stored_prep != prepared.exp.preprocessor {
         return Err(Error::store(layout.preprocessor(), "differs from the preprocessor refitted on the training rows"));
     }
-    let selection: Selection = read_json(&layout.selection())?;
+    let selection: Selection = sealed.selection()?;
     let specs: Vec<_> = prepared.plan.runs.iter().filter(|r| options.all || r.config_id == selection.selected_config).collect();
 
     let now = crate::numerics::current()?;
     let jobs = crate::threads::workers(options.jobs, specs.len())?;
     let inputs = SweepInputs {
-        layout: &layout,
+        layout,
         plan: &prepared.plan,
         head: prepared.exp.head(),
         data: prepared.run_data(),
@@ -196,7 +195,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
             .par_iter()
             .map(|spec| {
                 let verdict = (|| {
-                    let stored = read_run(&layout, &spec.id)?.ok_or_else(|| Error::store(layout.run(&spec.id), "is missing"))?;
+                    let stored = sealed.run(&spec.id)?;
                     let fresh = train_run(&inputs, spec)?;
                     let differences = compare_run(&stored, &fresh)?;
                     let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
@@ -221,7 +220,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         record.data.content_sha256
     );
     let _ = writeln!(out, "manifest  matches its recorded SHA-256 {}", record.manifest_sha256);
-    let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| read_json(&layout.run(&s.id).join(ENVIRONMENT)).ok());
+    let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| sealed.environment(&s.id));
     match recorded_env {
         Some(recorded) => {
             let promised = recorded.promises_same_bits_as(&now);
@@ -263,7 +262,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         }
     }
     // The selection and its one test evaluation, re-derived from the stored runs.
-    let derived = crate::store::run::read_runs(&layout, &prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
+    let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
     let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
     match derived {
         Ok(derived) if as_value(&derived)? == as_value(&selection)? => {
@@ -281,9 +280,9 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
             let _ = writeln!(out, "\nselection CANNOT be re-derived from the stored runs: {e}");
         }
     }
-    match crate::card::render(&layout, None, &digest) {
+    match crate::card::render(layout, None, &digest) {
         Ok((card, _)) => {
-            let stored_card = std::fs::read_to_string(layout.card()).map_err(|e| Error::io(layout.card(), "read", e))?;
+            let stored_card = sealed.card_text()?;
             let _ = if card == stored_card {
                 writeln!(out, "card      matches the card rendered from the stored evidence")
             } else {

@@ -135,6 +135,11 @@ fn best_rule() -> String {
 }
 
 impl Selection {
+    /// The selected configuration's summary across seeds.
+    pub fn selected_summary(&self) -> Option<&ConfigSummary> {
+        self.configs.iter().find(|c| c.config_id == self.selected_config)
+    }
+
     /// A train-minus-validation gap of the selection metric (as `ConfigSummary::gap` stores it),
     /// signed so that positive always means worse on validation, whichever way the metric points.
     pub fn worse_on_validation(&self, train_minus_validation: f64) -> f64 {

@@ -17,7 +17,7 @@
 
 use std::path::Path;
 
-use super::write_atomic;
+use super::files::write_atomic;
 use crate::error::{Error, Result};
 use crate::fingerprint::{file_sha256, sha256_hex};
 

@@ -104,7 +104,7 @@ fn stale_because(text: &str, modified: Option<SystemTime>) -> Option<&'static st
 /// Takes the lock of the results folder `folder`, waiting while a live process holds it;
 /// `on_wait` is told the holder once.
 pub fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
-    crate::store::create_dir(folder)?;
+    super::files::create_dir(folder)?;
     let path = folder.join(FILE);
     let mut told = false;
     loop {

@@ -9,7 +9,9 @@ use std::collections::BTreeMap;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
-use super::{read_json, to_json, weights, Layout};
+use super::files::{read_json, to_json};
+use super::layout::Layout;
+use super::weights;
 use crate::data::prep::Preprocessor;
 use crate::error::{Error, Result};
 use crate::fingerprint::sha256_hex;

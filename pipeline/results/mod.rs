@@ -1,0 +1,241 @@
+//! The one reader of a stored results folder. Commands never read a results file, nor check a
+//! folder against its integrity list, except through here (`tests/layering.rs` checks it):
+//! - [`Sealed::open`]: a finished folder, every file checked against `integrity.sha256`, its
+//!   layout version, and the stored manifest against the hash `experiment.json` records; then
+//!   typed reads of its parts ([`Sealed::open_evidence`]: the same where only rendered files may
+//!   differ, for `card`, which renders them anew);
+//! - [`StoredResults::read`]: everything the card is made from, without the integrity check (the
+//!   card is rendered while `train` seals the folder);
+//! - [`Folder::inspect`]: what `train` finds before it writes (nothing, a folder in progress, a
+//!   sealed folder) and [`Listing::read`], a folder as `list` shows it.
+
+use std::path::Path;
+
+use crate::data::prep::Preprocessor;
+use crate::data::summary::DataSummary;
+use crate::error::{Error, Result};
+use crate::experiment::plan::Plan;
+use crate::experiment::ExperimentRecord;
+use crate::manifest::Manifest;
+use crate::numerics::NumericsFingerprint;
+use crate::selection::{ConfigSummary, Selection};
+use crate::store::run::{read_run, StoredRun};
+use crate::store::timing::TimingRecord;
+use crate::store::{integrity, read_json, Layout};
+
+/// The stored canonical manifest, checked against the SHA-256 `experiment.json` records for it.
+fn checked_manifest_text(layout: &Layout, record: &ExperimentRecord) -> Result<String> {
+    let text = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
+    let hash = crate::fingerprint::sha256_hex(text.as_bytes());
+    if hash != record.manifest_sha256 {
+        return Err(Error::store(
+            layout.manifest(),
+            format!("was edited after training: its SHA-256 is {hash}, experiment.json records {}", record.manifest_sha256),
+        ));
+    }
+    Ok(text)
+}
+
+/// A finished results folder that matched its integrity list when it was opened.
+pub struct Sealed {
+    pub layout: Layout,
+    /// The results digest (SHA-256 of the evidence lines of the list).
+    pub digest: String,
+    pub record: ExperimentRecord,
+    manifest_text: String,
+}
+
+impl Sealed {
+    /// Opens `folder` after checking every file against its list, its layout version and the
+    /// stored manifest's hash.
+    pub fn open(folder: &Path) -> Result<Self> {
+        Self::opened(Layout::new(folder), false)
+    }
+
+    /// As [`Sealed::open`], where the card and figures may differ from the list (they are about
+    /// to be rendered anew); temporaries of interrupted writes are removed first.
+    pub fn open_evidence(folder: &Path) -> Result<Self> {
+        let layout = Layout::new(folder);
+        integrity::remove_temporaries(&layout.root);
+        Self::opened(layout, true)
+    }
+
+    fn opened(layout: Layout, rendered_may_differ: bool) -> Result<Self> {
+        let digest = if rendered_may_differ { layout.check_sealed_evidence()? } else { layout.check_sealed()? };
+        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        let manifest_text = checked_manifest_text(&layout, &record)?;
+        Ok(Sealed { layout, digest, record, manifest_text })
+    }
+
+    /// Whether every file, rendered ones included, matches the list (the first difference as the
+    /// error otherwise).
+    pub fn check_all(&self) -> Result<String> {
+        self.layout.check_sealed()
+    }
+
+    pub fn manifest(&self) -> Result<Manifest> {
+        serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
+    }
+
+    /// The stored manifest as JSON (for key-by-key comparison).
+    pub fn manifest_value(&self) -> Result<serde_json::Value> {
+        serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
+    }
+
+    pub fn selection(&self) -> Result<Selection> {
+        read_json(&self.layout.selection())
+    }
+
+    pub fn summary(&self) -> Result<DataSummary> {
+        read_json(&self.layout.data_summary())
+    }
+
+    pub fn plan(&self) -> Result<Plan> {
+        read_json(&self.layout.plan())
+    }
+
+    pub fn preprocessor(&self) -> Result<Preprocessor> {
+        read_json(&self.layout.preprocessor())
+    }
+
+    /// One stored run; an error when it has no folder.
+    pub fn run(&self, id: &str) -> Result<StoredRun> {
+        read_run(&self.layout, id)?.ok_or_else(|| Error::store(self.layout.run(id), "is missing"))
+    }
+
+    /// The stored runs of `plan`, in plan order.
+    pub fn runs(&self, plan: &Plan) -> Result<Vec<StoredRun>> {
+        crate::store::run::read_runs(&self.layout, plan)
+    }
+
+    /// The environment a run recorded, if it can be read.
+    pub fn environment(&self, run_id: &str) -> Option<NumericsFingerprint> {
+        read_json(&self.layout.run(run_id).join(crate::store::run::ENVIRONMENT)).ok()
+    }
+
+    /// The card as stored.
+    pub fn card_text(&self) -> Result<String> {
+        std::fs::read_to_string(self.layout.card()).map_err(|e| Error::io(self.layout.card(), "read", e))
+    }
+}
+
+/// Everything the card is made from, read once from a results folder (layout version and the
+/// stored manifest's hash checked; the integrity list is the caller's: see the module's doc).
+pub struct StoredResults {
+    pub manifest: Manifest,
+    pub record: ExperimentRecord,
+    pub summary: DataSummary,
+    pub plan: Plan,
+    pub selection: Selection,
+    /// `None` for a folder whose timing record is missing (it is outside the integrity list).
+    pub timing: Option<TimingRecord>,
+    pub preprocessor: Preprocessor,
+    pub runs: Vec<StoredRun>,
+}
+
+impl StoredResults {
+    pub fn read(layout: &Layout) -> Result<Self> {
+        layout.check_format()?;
+        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        let text = checked_manifest_text(layout, &record)?;
+        let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
+        let plan: Plan = read_json(&layout.plan())?;
+        let runs = crate::store::run::read_runs(layout, &plan)?;
+        Ok(StoredResults {
+            manifest,
+            record,
+            summary: read_json(&layout.data_summary())?,
+            selection: read_json(&layout.selection())?,
+            timing: crate::store::timing::read(&layout.timing())?,
+            preprocessor: read_json(&layout.preprocessor())?,
+            plan,
+            runs,
+        })
+    }
+
+    /// The selected configuration's summary across seeds.
+    pub fn selected_summary(&self) -> Option<&ConfigSummary> {
+        self.selection.selected_summary()
+    }
+}
+
+/// What `train` finds where an experiment's folder goes.
+pub enum Folder {
+    /// No experiment files yet (or an interrupted first write: `format.json` comes last).
+    New,
+    /// The experiment files are whole, the sweep is not sealed yet.
+    InProgress,
+    /// Sealed, and every file matches the list: nothing of it is written again.
+    Sealed,
+}
+
+impl Folder {
+    /// Inspects `layout` for the experiment whose canonical manifest is `canonical`: an existing
+    /// folder must hold that manifest, and a sealed one must match its integrity list.
+    pub fn inspect(layout: &Layout, canonical: &str) -> Result<Folder> {
+        if !layout.format().exists() {
+            return Ok(Folder::New);
+        }
+        layout.check_format()?;
+        let stored = std::fs::read_to_string(layout.manifest()).map_err(|e| Error::io(layout.manifest(), "read", e))?;
+        if stored != canonical {
+            return Err(Error::store(
+                layout.manifest(),
+                "differs from the experiment it is named after (the stored manifest was edited); move the folder aside to retrain",
+            ));
+        }
+        if !Self::is_sealed(layout) {
+            return Ok(Folder::InProgress);
+        }
+        integrity::check(&layout.root)?;
+        Ok(Folder::Sealed)
+    }
+
+    /// Whether the folder has its integrity list (its selection and card are written).
+    pub fn is_sealed(layout: &Layout) -> bool {
+        layout.selection().exists() && layout.root.join(integrity::FILE).exists()
+    }
+
+    /// The stored runs of `plan` (while `train` selects: the folder is not sealed yet).
+    pub fn stored_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
+        crate::store::run::read_runs(layout, plan)
+    }
+}
+
+/// The run ids of `plan` already stored in the folder `folder` (which need not exist), and those
+/// a `train` would add.
+pub fn stored_and_new_runs(folder: &Path, plan: &Plan) -> (Vec<String>, Vec<String>) {
+    let layout = Layout::new(folder);
+    plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)))
+}
+
+/// A folder as `list` shows it: its record, and its selection and timing only when it matches
+/// its integrity list.
+pub struct Listing {
+    pub record: ExperimentRecord,
+    /// Whether the folder has its integrity list.
+    pub sealed: bool,
+    /// Why the folder fails its integrity check, when it does.
+    pub integrity_error: Option<String>,
+    pub selection: Option<Selection>,
+    pub timing: Option<TimingRecord>,
+}
+
+impl Listing {
+    pub fn read(folder: &Path) -> Result<Self> {
+        let layout = Layout::new(folder);
+        layout.check_format()?;
+        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        // Nothing from a folder is shown as fact before it matches its integrity list.
+        let sealed = layout.root.join(integrity::FILE).exists();
+        let integrity_error = if sealed { integrity::check(&layout.root).err().map(|e| e.to_string()) } else { None };
+        let selection = if layout.selection().exists() && integrity_error.is_none() { Some(read_json(&layout.selection())?) } else { None };
+        let timing = crate::store::timing::read(&layout.timing()).ok().flatten();
+        Ok(Listing { record, sealed, integrity_error, selection, timing })
+    }
+
+    /// Whether `path` is an experiment's results folder (it holds `format.json`).
+    pub fn is_results_folder(path: &Path) -> bool {
+        Layout::new(path).format().exists()
+    }
+}
