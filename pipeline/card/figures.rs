@@ -1,0 +1,126 @@
+//! The card's SVG figures, built from stored results: learning curves of the selected
+//! configuration, one chart per grid key, the reliability diagram.
+
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+use super::plots::{Chart, Series};
+use crate::error::Result;
+use crate::manifest::Manifest;
+use crate::selection::Selection;
+use crate::store::run::StoredRun;
+
+#[derive(Serialize)]
+pub(crate) struct Figure {
+    pub(crate) file: String,
+    pub(crate) alt: String,
+}
+
+/// Rendered figures: (file name, alt text, SVG).
+pub(crate) type Figures = Vec<(String, String, String)>;
+
+pub(crate) fn figure_name(key: &str) -> String {
+    let slug: String = key.chars().map(|c| if c.is_ascii_alphanumeric() { c } else { '-' }).collect();
+    format!("grid-{slug}.svg")
+}
+
+/// Builds the figures: (file name, alt text, svg).
+pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Figures> {
+    let mut out = Vec::new();
+    let mut series = Vec::new();
+    for (colour, r) in selected_runs.iter().enumerate() {
+        let h = r.history()?;
+        series.push(Series {
+            name: format!("seed {} train", r.record.seed),
+            points: h.iter().map(|e| (e.epoch as f64, e.train_loss)).collect(),
+            errors: None,
+            dashed: false,
+            colour,
+        });
+        series.push(Series {
+            name: format!("seed {} validation", r.record.seed),
+            points: h.iter().map(|e| (e.epoch as f64, e.validation_loss)).collect(),
+            errors: None,
+            dashed: true,
+            colour,
+        });
+    }
+    let chart = Chart {
+        title: "Learning curves, selected configuration".into(),
+        x_label: "epoch".into(),
+        y_label: "loss".into(),
+        series,
+        x_categories: None,
+        diagonal: false,
+        fixed_unit_axes: false,
+    };
+    out.push((
+        "learning-curves.svg".into(),
+        "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration".into(),
+        chart.render(),
+    ));
+
+    let m = &selection.metric;
+    for (key, values) in &manifest.sweep.grid {
+        let others: Vec<&String> = manifest.sweep.grid.keys().filter(|k| *k != key).collect();
+        // Per line of the chart: validation points, their seed sd, training points.
+        type Line = (Vec<(f64, f64)>, Vec<f64>, Vec<(f64, f64)>);
+        let mut lines: BTreeMap<String, Line> = BTreeMap::new();
+        for c in selection.configs.iter().filter(|c| !c.baseline) {
+            let Some(v) = c.overrides.get(key) else { continue };
+            let Some(x) = values.iter().position(|g| g == v) else { continue };
+            let label = if others.is_empty() {
+                "network".to_string()
+            } else {
+                others
+                    .iter()
+                    .map(|k| {
+                        format!("{}={}", k.rsplit('.').next().unwrap_or(k), c.overrides.get(*k).map(|v| v.to_string()).unwrap_or_default())
+                    })
+                    .collect::<Vec<_>>()
+                    .join(" ")
+            };
+            let entry = lines.entry(label).or_default();
+            if let Some(s) = c.validation.get(m) {
+                entry.0.push((x as f64, s.mean));
+                entry.1.push(s.sd);
+            }
+            if let Some(s) = c.train.get(m) {
+                entry.2.push((x as f64, s.mean));
+            }
+        }
+        let mut series = Vec::new();
+        for (colour, (label, (val, sd, train))) in lines.into_iter().enumerate() {
+            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false, colour });
+            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true, colour });
+        }
+        let chart = Chart {
+            title: format!("{m} across {key}"),
+            x_label: key.clone(),
+            y_label: m.clone(),
+            series,
+            x_categories: Some(values.iter().map(|v| v.to_string()).collect()),
+            diagonal: false,
+            fixed_unit_axes: false,
+        };
+        out.push((
+            figure_name(key),
+            format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}"),
+            chart.render(),
+        ));
+    }
+    if !selection.test.reliability.is_empty() {
+        let points: Vec<(f64, f64)> = selection.test.reliability.iter().map(|b| (b.mean_predicted, b.observed)).collect();
+        let chart = Chart {
+            title: "Reliability diagram, selected run, test split".into(),
+            x_label: "mean predicted probability".into(),
+            y_label: "observed share of positives".into(),
+            series: vec![Series { name: "selected run".into(), points, errors: None, dashed: false, colour: 0 }],
+            x_categories: None,
+            diagonal: true,
+            fixed_unit_axes: true,
+        };
+        out.push(("reliability.svg".into(), "observed share of positives against mean predicted probability in 10 equal-width bins closed on the right (row counts in the table below); the dashed diagonal is perfect calibration".into(), chart.render()));
+    }
+    Ok(out)
+}

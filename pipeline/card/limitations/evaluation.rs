@@ -1,0 +1,129 @@
+//! Limitation rules about the evaluation: a small test split, poor calibration, no better than
+//! chance, and the network against its linear baseline.
+
+use super::finding::*;
+use crate::card::evidence::Evidence;
+use crate::format::sig;
+
+/// The network's validation mean against the linear baseline's, with the noise both share.
+struct BaselineComparison {
+    /// How much better the network is (negative: worse), in the metric's units.
+    advantage: f64,
+    /// Twice the combined seed standard deviation.
+    noise: f64,
+}
+
+/// Whether the network's validation mean beats the baseline's, and by more than the noise.
+fn baseline_comparison(e: &Evidence) -> Option<BaselineComparison> {
+    let (net_mean, net_sd) = e.selected?;
+    let (base_mean, base_sd) = e.baseline?;
+    let noise = 2.0 * (net_sd * net_sd + base_sd * base_sd).sqrt();
+    let advantage = if e.higher_is_better { net_mean - base_mean } else { base_mean - net_mean };
+    Some(BaselineComparison { advantage, noise })
+}
+
+const BASELINE_THRESHOLD: &str =
+    "the network ahead of the linear baseline by more than twice the combined seed standard deviation (common practice)";
+
+pub(super) fn small_test_split(e: &Evidence) -> Option<Limitation> {
+    let mut findings = Vec::new();
+    let threshold = if e.classification {
+        if let Some((label, rows)) = &e.test_smallest_class {
+            if *rows < MIN_TEST_ROWS_PER_CLASS {
+                findings.push(format!("the test split of {} rows holds {rows} rows of class \"{label}\"", e.test_rows));
+            }
+        }
+        format!("at least {MIN_TEST_ROWS_PER_CLASS} test rows of every class (common practice)")
+    } else {
+        if e.test_rows < MIN_TEST_ROWS_REGRESSION {
+            findings.push(format!("the test split holds {} rows", e.test_rows));
+        }
+        format!("at least {MIN_TEST_ROWS_REGRESSION} test rows (common practice)")
+    };
+    if !e.degenerate_intervals.is_empty() {
+        findings.push(format!(
+            "the 95% bootstrap intervals of {} have zero width: every resample gave the same value, which shows too few rows rather than certainty",
+            e.degenerate_intervals.join(", ")
+        ));
+    }
+    (!findings.is_empty()).then(|| {
+        Limitation::new(
+            "small_test_split",
+            "The test split is too small to judge the model",
+            findings.join("; "),
+            format!("{threshold}, and bootstrap intervals of non-zero width"),
+        )
+    })
+}
+
+pub(super) fn poor_calibration(e: &Evidence) -> Option<Limitation> {
+    let ece = e.test_ece?;
+    (ece > ECE_LIMIT).then(|| Limitation::new(
+        "poor_calibration",
+        "Probabilities are poorly calibrated",
+        format!("expected calibration error on the test split is {} (10 equal-width bins, right-closed, on top-label confidence; Guo et al. 2017)", sig(ece, 3)),
+        format!("at most {ECE_LIMIT} (common practice)"),
+    ))
+}
+
+pub(super) fn no_better_than_chance(e: &Evidence) -> Option<Limitation> {
+    let (name, value, lower, upper, chance) = e.chance.as_ref()?;
+    (*lower <= *chance).then(|| {
+        Limitation::new(
+            "no_better_than_chance",
+            "The model is not shown to beat chance",
+            format!(
+                "test {name} {} with 95% bootstrap interval [{}, {}], which reaches {} (what a model with no information scores)",
+                sig(*value, 4),
+                sig(*lower, 4),
+                sig(*upper, 4),
+                sig(*chance, 2)
+            ),
+            format!("the interval's lower end above {} (ROC AUC 0.5: Hanley and McNeil 1982; R² 0: predicting the mean)", sig(*chance, 2)),
+        )
+        .serious()
+    })
+}
+
+pub(super) fn baseline_within_noise(e: &Evidence) -> Option<Limitation> {
+    let BaselineComparison { advantage, noise } = baseline_comparison(e)?;
+    let (net_mean, net_sd) = e.selected?;
+    let (base_mean, base_sd) = e.baseline?;
+    (advantage.abs() <= noise).then(|| {
+        Limitation::new(
+            "baseline_within_noise",
+            "The network does not clearly beat the linear baseline",
+            format!(
+                "validation {}: network {} ± {}, linear baseline {} ± {}; the simpler linear model does as well within seed noise",
+                e.metric,
+                sig(net_mean, 4),
+                sig(net_sd, 2),
+                sig(base_mean, 4),
+                sig(base_sd, 2)
+            ),
+            BASELINE_THRESHOLD.into(),
+        )
+    })
+}
+
+pub(super) fn baseline_beats_network(e: &Evidence) -> Option<Limitation> {
+    let BaselineComparison { advantage, noise } = baseline_comparison(e)?;
+    let (net_mean, net_sd) = e.selected?;
+    let (base_mean, base_sd) = e.baseline?;
+    (advantage < -noise).then(|| {
+        Limitation::new(
+            "baseline_beats_network",
+            "The linear baseline beats the network",
+            format!(
+                "validation {}: linear baseline {} ± {}, network {} ± {}; prefer the linear baseline, or revisit the network's settings",
+                e.metric,
+                sig(base_mean, 4),
+                sig(base_sd, 2),
+                sig(net_mean, 4),
+                sig(net_sd, 2)
+            ),
+            BASELINE_THRESHOLD.into(),
+        )
+        .serious()
+    })
+}

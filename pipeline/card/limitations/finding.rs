@@ -1,0 +1,38 @@
+//! What a limitation rule returns ([`Limitation`]) and the thresholds the rules judge by, each
+//! with its source beside the rule that uses it.
+
+use serde::Serialize;
+
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Limitation {
+    pub rule: &'static str,
+    pub title: String,
+    pub finding: String,
+    pub threshold: String,
+    /// Serious enough to change which model a reviewer should prefer, or whether to use one at
+    /// all: the card's headline repeats it.
+    pub serious: bool,
+}
+
+impl Limitation {
+    pub(super) fn new(rule: &'static str, title: &str, finding: String, threshold: String) -> Self {
+        Limitation { rule, title: title.into(), finding, threshold, serious: false }
+    }
+
+    pub(super) fn serious(self) -> Self {
+        Limitation { serious: true, ..self }
+    }
+}
+
+pub const MIN_ROWS_PER_PARAMETER: f64 = 10.0;
+pub const MINORITY_SHARE: f64 = 0.10;
+pub const MIN_TEST_ROWS_PER_CLASS: usize = 30;
+pub const MIN_TEST_ROWS_REGRESSION: usize = 100;
+/// Seed standard deviation above this share of the metric's scale is flagged.
+pub const SEED_SD_SHARE: f64 = 0.01;
+/// A train-validation gap above this share of the metric's scale is flagged.
+pub const GAP_SHARE: f64 = 0.05;
+pub const ECE_LIMIT: f64 = 0.05;
+pub const MISSING_SHARE: f64 = 0.20;
+/// The grid-edge rule applies to keys searched over at least this many ordered values.
+pub const GRID_EDGE_MIN_VALUES: usize = 3;

@@ -1,0 +1,185 @@
+//! The rules that turn a results folder's figures into the card's "known limitations". Each rule
+//! is a function of [`Evidence`], states the figure that triggered it and its threshold with the
+//! threshold's source (a publication, or "common practice" for a rule of thumb), and is tested
+//! both ways: on evidence that triggers it and on evidence that does not.
+
+//!
+//! Rules live by family (`data`, `fit`, `evaluation`); `RULES` lists them in the card's order.
+
+pub mod data;
+pub mod evaluation;
+pub mod finding;
+pub mod fit;
+
+pub use finding::*;
+
+use crate::card::evidence::Evidence;
+use data::*;
+use evaluation::*;
+use fit::*;
+
+pub type Rule = fn(&Evidence) -> Option<Limitation>;
+
+/// Every rule by name, in the order the card lists them (serious ones first).
+pub const RULES: &[(&str, Rule)] = &[
+    ("no_better_than_chance", no_better_than_chance),
+    ("baseline_beats_network", baseline_beats_network),
+    ("small_test_split", small_test_split),
+    ("repeated_key_across_splits", repeated_key_across_splits),
+    ("duplicates_across_splits", duplicates_across_splits),
+    ("few_rows_per_parameter", few_rows_per_parameter),
+    ("small_minority_class", small_minority_class),
+    ("large_seed_spread", large_seed_spread),
+    ("large_generalisation_gap", large_generalisation_gap),
+    ("poor_calibration", poor_calibration),
+    ("many_missing_values", many_missing_values),
+    ("rare_levels", rare_levels),
+    ("constant_on_training_rows", constant_on_training_rows),
+    ("selection_at_grid_edge", selection_at_grid_edge),
+    ("selection_within_noise", selection_within_noise),
+    ("baseline_within_noise", baseline_within_noise),
+    ("failed_runs", failed_runs),
+];
+
+pub fn derive(e: &Evidence) -> Vec<Limitation> {
+    RULES.iter().filter_map(|(_, rule)| rule(e)).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn healthy() -> Evidence {
+        Evidence {
+            classification: true,
+            train_rows: 10_000,
+            parameter_count: 500,
+            minority: Some(("yes".into(), 3000, 0.3)),
+            metric: "roc_auc".into(),
+            higher_is_better: true,
+            scale: (1.0, "the metric's range".into()),
+            selected: Some((0.85, 0.004)),
+            baseline: Some((0.75, 0.002)),
+            gap: Some(0.01),
+            test_ece: Some(0.02),
+            chance: Some(("roc_auc".into(), 0.84, 0.82, 0.86, 0.5)),
+            test_rows: 4000,
+            test_smallest_class: Some(("yes".into(), 1200)),
+            degenerate_intervals: Vec::new(),
+            missing: vec![("a".into(), 0.05)],
+            rare_levels: vec![("c".into(), 0)],
+            grid: vec![("model.dropout".into(), "0.1".into(), 1, 3)],
+            simpler_within_noise: Vec::new(),
+            duplicated_into_evaluation: (0, 0),
+            constant_on_training: Vec::new(),
+            crossing_keys: vec![("bed".into(), 0, 40, 0)],
+            failed_runs: 0,
+        }
+    }
+
+    fn fires(rule: &str, e: &Evidence) -> bool {
+        derive(e).iter().any(|l| l.rule == rule)
+    }
+
+    #[test]
+    fn a_healthy_experiment_triggers_nothing() {
+        assert_eq!(derive(&healthy()), vec![]);
+    }
+
+    #[test]
+    fn each_rule_triggers_on_its_figure_and_only_it() {
+        type Change = Box<dyn Fn(&mut Evidence)>;
+        let cases: Vec<(&str, Change)> = vec![
+            ("few_rows_per_parameter", Box::new(|e| e.parameter_count = 2000)),
+            ("small_minority_class", Box::new(|e| e.minority = Some(("yes".into(), 900, 0.09)))),
+            ("small_test_split", Box::new(|e| e.test_smallest_class = Some(("yes".into(), 29)))),
+            ("small_test_split", Box::new(|e| e.degenerate_intervals = vec!["roc_auc".into()])),
+            ("large_seed_spread", Box::new(|e| e.selected = Some((0.85, 0.011)))),
+            ("large_generalisation_gap", Box::new(|e| e.gap = Some(0.051))),
+            ("poor_calibration", Box::new(|e| e.test_ece = Some(0.09))),
+            ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.435, 0.40, 0.47, 0.5)))),
+            ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.55, 0.49, 0.61, 0.5)))),
+            ("many_missing_values", Box::new(|e| e.missing.push(("b".into(), 0.4)))),
+            ("rare_levels", Box::new(|e| e.rare_levels.push(("d".into(), 2)))),
+            ("constant_on_training_rows", Box::new(|e| e.constant_on_training = vec!["flag".into()])),
+            ("duplicates_across_splits", Box::new(|e| e.duplicated_into_evaluation = (3, 0))),
+            ("repeated_key_across_splits", Box::new(|e| e.crossing_keys[0].1 = 25)),
+            ("selection_at_grid_edge", Box::new(|e| e.grid[0].2 = 2)),
+            ("selection_within_noise", Box::new(|e| e.simpler_within_noise = vec![("hidden=[16]".into(), 401, 0.849)])),
+            ("baseline_within_noise", Box::new(|e| e.baseline = Some((0.845, 0.004)))),
+            ("baseline_beats_network", Box::new(|e| e.baseline = Some((0.87, 0.002)))),
+            ("failed_runs", Box::new(|e| e.failed_runs = 1)),
+        ];
+        for (rule, change) in cases {
+            let mut e = healthy();
+            assert!(!fires(rule, &e), "{rule} fired on healthy evidence");
+            change(&mut e);
+            assert!(fires(rule, &e), "{rule} did not fire");
+            assert_eq!(derive(&e).len(), 1, "{rule}: other rules fired too: {:?}", derive(&e));
+        }
+    }
+
+    #[test]
+    fn every_rule_is_listed_once_under_its_own_name() {
+        let mut names: Vec<&str> = RULES.iter().map(|(n, _)| *n).collect();
+        names.sort_unstable();
+        names.dedup();
+        assert_eq!(names.len(), RULES.len());
+    }
+
+    #[test]
+    fn spread_and_gap_are_judged_on_the_metric_scale() {
+        // Log loss near zero (2.6e-7 ± 2.4e-7) against a class-prior log loss of 0.66: no spread.
+        let mut e = Evidence {
+            metric: "log_loss".into(),
+            higher_is_better: false,
+            scale: (0.66, "the class-prior log loss".into()),
+            selected: Some((2.6e-7, 2.4e-7)),
+            gap: Some(-1e-7),
+            baseline: None,
+            ..healthy()
+        };
+        assert!(!fires("large_seed_spread", &e) && !fires("large_generalisation_gap", &e));
+        e.selected = Some((0.30, 0.01));
+        e.gap = Some(0.05);
+        assert!(fires("large_seed_spread", &e) && fires("large_generalisation_gap", &e));
+        // RMSE on a target with standard deviation 77: 0.5 across seeds is small, 3 is not.
+        let mut e = Evidence {
+            classification: false,
+            metric: "rmse".into(),
+            higher_is_better: false,
+            scale: (77.0, "the target's standard deviation".into()),
+            selected: Some((59.25, 0.5)),
+            gap: Some(1.0),
+            baseline: None,
+            ..healthy()
+        };
+        assert!(!fires("large_seed_spread", &e));
+        e.selected = Some((59.25, 3.0));
+        assert!(fires("large_seed_spread", &e));
+    }
+
+    #[test]
+    fn two_value_grids_never_count_as_an_edge() {
+        let mut e = healthy();
+        e.grid = vec![("model.dropout".into(), "0.2".into(), 1, 2), ("training.weight_decay".into(), "0".into(), 0, 2)];
+        assert!(!fires("selection_at_grid_edge", &e));
+    }
+
+    #[test]
+    fn lower_is_better_metrics_compare_the_baseline_the_right_way() {
+        let mut e = Evidence {
+            classification: false,
+            metric: "rmse".into(),
+            higher_is_better: false,
+            scale: (77.0, "sd".into()),
+            baseline: Some((56.24, 0.92)),
+            selected: Some((59.25, 0.50)),
+            ..healthy()
+        };
+        assert!(fires("baseline_beats_network", &e));
+        assert!(derive(&e)[0].serious);
+        e.baseline = Some((62.5, 0.9));
+        assert!(!fires("baseline_beats_network", &e) && !fires("baseline_within_noise", &e));
+    }
+}

@@ -1,0 +1,73 @@
+//! The provenance section: fingerprints, results digest, the manifest, the environment, the
+//! timing record (checked before it is read), and the commands that verify and retrain.
+
+use serde::Serialize;
+
+use crate::numerics::NumericsFingerprint;
+use crate::results::StoredResults;
+use crate::store::Layout;
+use crate::text::{code_span, markdown_line as md_line, markdown_safe as md};
+
+use crate::card::cells::Row;
+
+#[derive(Serialize)]
+pub(crate) struct Provenance {
+    pub(crate) trained_at: String,
+    pub(crate) fingerprint: String,
+    pub(crate) tool_version: String,
+    manifest_sha256: String,
+    /// SHA-256 of the evidence lines of `integrity.sha256` ([`crate::store::integrity`]).
+    pub(crate) results_digest: String,
+    pub(crate) manifest_path: String,
+    pub(crate) environment: Vec<Row>,
+    pub(crate) git_commit: String,
+    pub(crate) git_dirty: String,
+    pub(crate) jobs: String,
+    pub(crate) results_folder: String,
+    pub(crate) verify_command: String,
+    pub(crate) train_command: String,
+}
+
+pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
+    let timing = st.timing.as_ref();
+    let folder = layout.root.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    Provenance {
+        trained_at: md(&timing.map(|t| t.trained_at.clone()).unwrap_or_else(|| "unknown".into())),
+        fingerprint: st.record.fingerprint.clone(),
+        tool_version: st.record.tool_version.clone(),
+        manifest_sha256: st.record.manifest_sha256.clone(),
+        results_digest: String::new(),
+        manifest_path: code_span(&st.record.manifest_path),
+        environment: vec![
+            Row::of(["tabcard".into(), md_line(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))]),
+            Row::of([
+                "numerics".into(),
+                md_line(&format!(
+                    "kernels {}, dispatch level {} (the level changes speed, never a bit)",
+                    environment.kernel_version, environment.kernel_level
+                )),
+            ]),
+            Row::of([
+                "numerical kernels".into(),
+                md_line(&format!(
+                    "{}; model definition and stored form: candle {}",
+                    environment.kernel_features, environment.candle_version
+                )),
+            ]),
+            Row::of(["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))]),
+            Row::of(["CPU features".into(), md_line(&environment.cpu_features.join(" "))]),
+            Row::of(["C library".into(), md(&environment.libc)]),
+            Row::of(["threads per run".into(), environment.threads_per_run.to_string()]),
+        ],
+        git_commit: code_span(&timing.and_then(|t| t.git_commit.clone()).unwrap_or_else(|| "not in a git repository".into())),
+        git_dirty: match timing.and_then(|t| t.git_dirty) {
+            Some(true) => "yes".into(),
+            Some(false) => "no".into(),
+            None => "unknown".into(),
+        },
+        jobs: timing.map(|t| t.jobs.to_string()).unwrap_or_else(|| "unknown".into()),
+        verify_command: code_span(&format!("tabcard verify {folder}")),
+        results_folder: code_span(&folder),
+        train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.manifest_path)),
+    }
+}

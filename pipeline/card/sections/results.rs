@@ -1,0 +1,259 @@
+//! The results sections: validation across seeds, the selection, the one test evaluation with
+//! its intervals, the decisions at each threshold, reliability and per-group results.
+
+use serde::Serialize;
+
+use crate::card::limitations::Limitation;
+use crate::experiment::plan::config_label;
+use crate::format::{fixed, sig};
+use crate::manifest::{SelectionRule, Task};
+use crate::results::StoredResults;
+use crate::selection::{standard_error, Selection};
+use crate::text::markdown_safe as md;
+
+use crate::card::cells::{spread_text, Row};
+
+/// A confusion matrix with its per-class report, at one decision threshold.
+#[derive(Serialize)]
+pub(crate) struct Decision {
+    pub(crate) title: String,
+    pub(crate) header: Vec<String>,
+    pub(crate) confusion_rows: Vec<Row>,
+    pub(crate) class_rows: Vec<Row>,
+}
+
+/// Selection, validation and test results.
+#[derive(Serialize)]
+pub(crate) struct Results {
+    pub(crate) metric: String,
+    pub(crate) direction: String,
+    pub(crate) selected_label: String,
+    pub(crate) selected_run: String,
+    pub(crate) selected_seed: u64,
+    pub(crate) selection_text: String,
+    pub(crate) headline: String,
+    pub(crate) preference: String,
+    pub(crate) validation_header: Vec<String>,
+    pub(crate) validation_rows: Vec<Row>,
+    pub(crate) baseline_line: String,
+    pub(crate) test_rows: Vec<Row>,
+    pub(crate) test_rows_count: usize,
+    pub(crate) test_classes: String,
+    pub(crate) why_one_run: String,
+    pub(crate) decisions: Vec<Decision>,
+    pub(crate) reliability_rows: Vec<Row>,
+    pub(crate) group_rows: Vec<Row>,
+}
+
+pub(crate) fn decision(
+    title: String,
+    labels: &[String],
+    confusion: &[Vec<usize>],
+    per_class: &[crate::metrics::classification::ClassReport],
+) -> Decision {
+    Decision {
+        title,
+        header: std::iter::once("true \\\\ predicted".to_string()).chain(labels.iter().cloned()).collect(),
+        confusion_rows: confusion
+            .iter()
+            .enumerate()
+            .map(|(i, r)| Row::of(std::iter::once(labels.get(i).cloned().unwrap_or_default()).chain(r.iter().map(|n| n.to_string()))))
+            .collect(),
+        class_rows: per_class
+            .iter()
+            .enumerate()
+            .map(|(i, c)| {
+                Row::of([
+                    labels.get(i).cloned().unwrap_or_default(),
+                    fixed(c.precision, 4),
+                    fixed(c.recall, 4),
+                    fixed(c.f1, 4),
+                    c.support.to_string(),
+                ])
+            })
+            .collect(),
+    }
+}
+
+pub(crate) fn selection_text(sel: &Selection, direction: &str) -> String {
+    let m = &sel.metric;
+    let label =
+        |id: &str| sel.configs.iter().find(|c| c.config_id == id).map(|c| md(&config_label(&c.overrides, c.baseline))).unwrap_or_default();
+    if sel.rule == SelectionRule::OneStandardError.as_str() {
+        let best = sel.configs.iter().find(|c| c.config_id == sel.best_config);
+        let best_text = best
+            .and_then(|b| b.validation.get(m))
+            .map(|s| format!("{} ± {} (sd), standard error {}", fixed(s.mean, 4), fixed(s.sd, 4), sig(standard_error(s), 2)))
+            .unwrap_or_default();
+        let outcome = if sel.best_config == sel.selected_config {
+            "the best configuration is also the smallest within that margin".to_string()
+        } else {
+            format!("the best mean was {} at {best_text}", label(&sel.best_config))
+        };
+        format!("chosen by the one-standard-error rule: the configuration with the fewest parameters whose mean validation {m} across seeds lies within one standard error of the best mean ({direction}; Breiman et al. 1984, common practice); {outcome}")
+    } else {
+        format!("chosen by the best mean validation {m} across seeds ({direction})")
+    }
+}
+
+pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results {
+    let sel = &st.selection;
+    let m = &sel.metric;
+    let task = st.manifest.data.task;
+    let direction = if sel.higher_is_better { "higher is better" } else { "lower is better" };
+    let shown: Vec<&str> = crate::metrics::registry::table(task).iter().filter(|m| m.on_card).map(|m| m.name).collect();
+    let mut validation_header = vec!["configuration".to_string(), "parameters".into(), "seeds".into()];
+    validation_header.extend(shown.iter().map(|s| s.to_string()));
+    validation_header.push(format!("{m}: train better than validation by"));
+    let validation_rows = sel
+        .configs
+        .iter()
+        .map(|c| {
+            let mut label = md(&config_label(&c.overrides, c.baseline));
+            if c.config_id == sel.selected_config {
+                label = format!("**{label}** (selected)");
+            }
+            let seeds =
+                if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
+            let mut cells = vec![label, c.parameter_count.to_string(), seeds];
+            cells.extend(shown.iter().map(|k| spread_text(c.validation.get(*k))));
+            cells.push(
+                c.gap
+                    .as_ref()
+                    .map(|g| format!("{} ± {}", fixed(sel.worse_on_validation(g.mean), 4), fixed(g.sd, 4)))
+                    .unwrap_or_else(|| "–".into()),
+            );
+            Row { cells }
+        })
+        .collect();
+    let selected_summary = sel.selected_summary();
+    let baseline_summary = sel.configs.iter().find(|c| c.baseline);
+    let baseline_line = match (selected_summary.and_then(|s| s.validation.get(m)), baseline_summary.and_then(|s| s.validation.get(m))) {
+        (Some(n), Some(b)) => format!(
+            "Validation {m}: network {} against linear baseline {} (difference {}).",
+            spread_text(Some(n)),
+            spread_text(Some(b)),
+            fixed(n.mean - b.mean, 4)
+        ),
+        _ => "No linear baseline was trained (selection.baseline = false).".into(),
+    };
+    let t = &sel.test;
+    let test_rows = t
+        .metrics
+        .iter()
+        .filter_map(|(k, v)| {
+            let v = (*v)?;
+            let ci = t.intervals.get(k).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
+            Some(Row::of([k.clone(), fixed(v, 4), ci, spread_text(t.across_seeds.get(k))]))
+        })
+        .collect();
+    let headline = match (t.metrics.get(m).copied().flatten(), t.intervals.get(m)) {
+        (Some(v), Some(i)) => format!(
+            "test {m} {} (95% bootstrap interval {} to {}, {} resamples)",
+            fixed(v, 4),
+            fixed(i.lower, 4),
+            fixed(i.upper, 4),
+            i.resamples
+        ),
+        (Some(v), None) => format!("test {m} {}", fixed(v, 4)),
+        _ => format!("test {m} undefined"),
+    };
+    let serious: Vec<&Limitation> = limitations.iter().filter(|l| l.serious).collect();
+    let preference = if serious.iter().any(|l| l.rule == "baseline_beats_network") {
+        "A reviewer should prefer the linear baseline: it beats the selected network on validation data beyond seed noise (see the known limitations).".to_string()
+    } else if serious.iter().any(|l| l.rule == "no_better_than_chance") {
+        "Do not use this model for decisions: its test results are not shown to beat chance (see the known limitations).".to_string()
+    } else {
+        String::new()
+    };
+    let labels: Vec<String> = st.record.class_labels.iter().map(|l| md(l)).collect();
+    let test_classes = if t.confusion.is_empty() {
+        String::new()
+    } else {
+        let counts: Vec<String> = t
+            .confusion
+            .iter()
+            .enumerate()
+            .map(|(i, r)| format!("{} {}", r.iter().sum::<usize>(), labels.get(i).cloned().unwrap_or_default()))
+            .collect();
+        format!(" The test split holds {}.", counts.join(", "))
+    };
+    let mut decisions = Vec::new();
+    if !t.confusion.is_empty() {
+        let default_rule = if task == Task::Binary {
+            "threshold 0.5: positive when the positive-class probability is above 0.5"
+        } else {
+            "the most probable class"
+        };
+        decisions.push(decision(
+            format!("At {default_rule} (accuracy and the other test figures use it)"),
+            &labels,
+            &t.confusion,
+            &t.per_class,
+        ));
+    }
+    if let Some(th) = &t.chosen_threshold {
+        decisions.push(decision(
+            format!(
+                "At threshold {} chosen on the validation rows by Youden's J (largest true-positive rate minus false-positive rate; Youden 1950): positive when the probability is at least {}; on validation, true-positive rate {} and false-positive rate {}",
+                sig(th.threshold, 4), sig(th.threshold, 4), fixed(th.validation_tpr, 4), fixed(th.validation_fpr, 4)
+            ),
+            &labels,
+            &th.confusion,
+            &th.per_class,
+        ));
+    }
+    let reliability_rows = t
+        .reliability
+        .iter()
+        .map(|b| {
+            Row::of([
+                // Closed on the right; the first bin also holds 0.
+                format!("{}{}, {}]", if b.lower == 0.0 { "[" } else { "(" }, sig(b.lower, 2), sig(b.upper, 2)),
+                b.count.to_string(),
+                fixed(b.mean_predicted, 4),
+                fixed(b.observed, 4),
+            ])
+        })
+        .collect();
+    let group_rows = t
+        .groups
+        .iter()
+        .map(|g| {
+            let value = g.metrics.get(m).copied().flatten().map(|v| fixed(v, 4)).unwrap_or_else(|| "undefined".into());
+            let ci = g.intervals.get(m).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
+            Row::of([
+                md(&g.column),
+                md(&g.level),
+                g.rows.to_string(),
+                g.base_rate.map(|b| sig(b, 3)).unwrap_or_else(|| "–".into()),
+                value,
+                ci,
+            ])
+        })
+        .collect();
+    let selected_cfg_label = st.plan.config(&sel.selected_config).map(|c| md(&config_label(&c.overrides, false))).unwrap_or_default();
+    Results {
+        metric: m.clone(),
+        direction: direction.into(),
+        selected_label: selected_cfg_label,
+        selected_run: sel.selected_run.clone(),
+        selected_seed: t.seed,
+        selection_text: selection_text(sel, direction),
+        headline,
+        preference,
+        validation_header,
+        validation_rows,
+        baseline_line,
+        test_rows,
+        test_rows_count: t.rows,
+        test_classes,
+        why_one_run: format!(
+            "The test figures come from one run, the seed of the selected configuration with the best validation {m} (seed {}): a model that ships is one set of weights, and that run's weights are the ones stored and scored. The last column shows every seed of the configuration on the same test rows, so the spread a retraining would bring is visible.",
+            t.seed
+        ),
+        decisions,
+        reliability_rows,
+        group_rows,
+    }
+}
