@@ -1,0 +1,16 @@
+//! Reading a Parquet file into a [`Table`] with the `parquet` crate's Arrow reader. Supported column
+//! types: floats, integers, booleans, strings and dictionary-encoded strings, all with nulls; any
+//! other type is an error naming the column and its type. Data files are read here only.
+
+pub mod checks;
+pub mod columns;
+pub mod file;
+pub mod guard;
+pub mod read;
+pub mod write;
+
+pub use columns::CHUNK_ROWS;
+pub use file::ParquetSource;
+pub use guard::open_regular;
+pub use read::{column_names, read_columns, read_table, read_table_from_bytes};
+pub use write::{encode, WriteOptions};
