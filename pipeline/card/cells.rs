@@ -4,7 +4,6 @@
 use serde::Serialize;
 use serde_json::Value;
 
-use crate::format::fixed;
 use crate::selection::Spread;
 use crate::text::{code_span, markdown_safe as md};
 
@@ -21,7 +20,7 @@ impl Row {
 
 /// A metric's mean ± standard deviation across seeds, 4 decimals.
 pub(crate) fn spread_text(s: Option<&Spread>) -> String {
-    s.map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "–".into())
+    s.map(|s| crate::format::mean_sd(s.mean, s.sd)).unwrap_or_else(|| "–".into())
 }
 
 pub(crate) fn value_text(v: &Value) -> String {

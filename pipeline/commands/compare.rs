@@ -10,7 +10,7 @@ use std::fmt::Write;
 use std::path::Path;
 
 use crate::error::Result;
-use crate::format::fixed;
+use crate::format::{fixed, mean_sd};
 use crate::manifest::Task;
 use crate::results::Sealed;
 use crate::selection::{ConfigSummary, Selection};
@@ -44,7 +44,7 @@ struct Side {
 }
 
 fn is_manifest(path: &Path) -> bool {
-    path.is_file() && path.extension().is_some_and(|e| e == "toml")
+    crate::manifest::is_manifest_path(path)
 }
 
 fn load_folder(folder: &Path) -> Result<Side> {
@@ -175,14 +175,8 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
         let noise = 2.0 * (x.sd * x.sd + y.sd * y.sd).sqrt();
         let within = delta.abs() <= noise;
         let judgement = if within { "within noise (|delta| <= 2 combined sd)" } else { "beyond seed noise" };
-        let _ = writeln!(
-            out,
-            "  {:<18} {:>18} {:>18} {:>9}  {judgement}",
-            m,
-            format!("{} ± {}", fixed(x.mean, 4), fixed(x.sd, 4)),
-            format!("{} ± {}", fixed(y.mean, 4), fixed(y.sd, 4)),
-            fixed(delta, 4)
-        );
+        let _ =
+            writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  {judgement}", m, mean_sd(x.mean, x.sd), mean_sd(y.mean, y.sd), fixed(delta, 4));
         rows.push(serde_json::json!({ "metric": m, "a": x, "b": y, "delta": delta, "within_noise": within }));
     }
     json.insert("validation".into(), Value::Array(rows));

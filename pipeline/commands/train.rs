@@ -10,7 +10,7 @@ use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
 use crate::experiment::{open, Experiment};
-use crate::format::fixed;
+use crate::format::{fixed, mean_sd};
 use crate::results::{Folder, Sealed};
 use crate::selection::Selection;
 use crate::store::ledger::{self, LedgerEntry};
@@ -80,12 +80,8 @@ fn table(selection: &Selection) -> String {
         "worse on validation by"
     );
     for c in &selection.configs {
-        let v = c.validation.get(m).map(|s| format!("{} ± {}", fixed(s.mean, 4), fixed(s.sd, 4))).unwrap_or_else(|| "-".into());
-        let g = c
-            .gap
-            .as_ref()
-            .map(|s| format!("{} ± {}", fixed(selection.worse_on_validation(s.mean), 4), fixed(s.sd, 4)))
-            .unwrap_or_else(|| "-".into());
+        let v = c.validation.get(m).map(|s| mean_sd(s.mean, s.sd)).unwrap_or_else(|| "-".into());
+        let g = c.gap.as_ref().map(|s| mean_sd(selection.worse_on_validation(s.mean), s.sd)).unwrap_or_else(|| "-".into());
         let mark = if c.config_id == selection.selected_config { " *" } else { "" };
         let seeds = if c.runs_failed > 0 { format!("{}+{}f", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
         let _ = writeln!(

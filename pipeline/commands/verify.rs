@@ -41,7 +41,7 @@ pub struct VerifyOutcome {
 /// The results folder a verify target names: the folder itself, or a manifest's folder under the
 /// results root.
 fn results_folder(target: &Path, results_root: &Path) -> Result<PathBuf> {
-    if target.extension().is_some_and(|e| e == "toml") {
+    if crate::manifest::is_manifest_path(target) {
         let exp = open(target)?;
         let folder = results_root.join(exp.short_id());
         if !folder.exists() {

@@ -34,6 +34,11 @@ impl LoadedManifest {
     }
 }
 
+/// Whether a command-line target names a manifest (a `.toml` file) rather than a results folder.
+pub fn is_manifest_path(path: &Path) -> bool {
+    path.extension().is_some_and(|e| e == "toml")
+}
+
 /// Reads, parses, validates and resolves a manifest file.
 pub fn load(path: &Path) -> Result<LoadedManifest> {
     let source = read_source(path)?;

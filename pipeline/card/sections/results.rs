@@ -117,12 +117,7 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
                 if c.runs_failed > 0 { format!("{} ({} failed)", c.runs_completed, c.runs_failed) } else { c.runs_completed.to_string() };
             let mut cells = vec![label, c.parameter_count.to_string(), seeds];
             cells.extend(shown.iter().map(|k| spread_text(c.validation.get(*k))));
-            cells.push(
-                c.gap
-                    .as_ref()
-                    .map(|g| format!("{} ± {}", fixed(sel.worse_on_validation(g.mean), 4), fixed(g.sd, 4)))
-                    .unwrap_or_else(|| "–".into()),
-            );
+            cells.push(c.gap.as_ref().map(|g| crate::format::mean_sd(sel.worse_on_validation(g.mean), g.sd)).unwrap_or_else(|| "–".into()));
             Row { cells }
         })
         .collect();
