@@ -4,6 +4,7 @@
 
 use std::io::IsTerminal;
 
+use tabcard::metrics::registry::{self, Direction};
 use tabcard::sweep::Event;
 
 /// One line on stderr; a closed stderr (`tabcard train ... 2>&1 | head`) must not stop the work.
@@ -27,10 +28,11 @@ pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) 
         pending: usize,
         failed: usize,
         metric: String,
-        higher_is_better: bool,
+        direction: Direction,
         best: Option<(f64, String)>,
     }
-    let state = std::sync::Mutex::new(State { done: 0, pending: 0, failed: 0, metric: String::new(), higher_is_better: true, best: None });
+    let state =
+        std::sync::Mutex::new(State { done: 0, pending: 0, failed: 0, metric: String::new(), direction: Direction::Maximise, best: None });
     let handle = bar.clone();
     let on_event = move |event: Event| {
         let Ok(mut s) = state.lock() else { return };
@@ -42,8 +44,8 @@ pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) 
             }
             // Shown even under --quiet: a command that waits must say for whom, or it looks hung.
             Event::Waiting(text) => handle.suspend(|| note(&text)),
-            Event::Planned { pending, reused, metric, higher_is_better } => {
-                (s.pending, s.metric, s.higher_is_better) = (pending, metric, higher_is_better);
+            Event::Planned { pending, reused, metric, direction } => {
+                (s.pending, s.metric, s.direction) = (pending, metric, direction);
                 handle.set_length(pending as u64);
                 if !quiet && !terminal {
                     note(&format!("{pending} runs to train, {reused} already stored"));
@@ -55,7 +57,7 @@ pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) 
                     s.failed += 1;
                 }
                 if let Some(v) = run.metric {
-                    let better = s.best.as_ref().is_none_or(|(b, _)| if s.higher_is_better { v > *b } else { v < *b });
+                    let better = s.best.as_ref().is_none_or(|(b, _)| registry::better(s.direction, v, *b));
                     if better {
                         s.best = Some((v, format!("{} seed {}", run.label, run.seed)));
                     }

@@ -188,7 +188,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
         pending: specs.len(),
         reused: 0,
         metric: prepared.exp.manifest.selection.metric.clone(),
-        higher_is_better: selection.higher_is_better,
+        direction: crate::metrics::registry::Direction::of_higher_is_better(selection.higher_is_better),
     });
     let verdicts: Vec<(String, u64, Result<Vec<String>>)> = in_pool(jobs, || {
         specs

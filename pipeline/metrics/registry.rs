@@ -15,6 +15,17 @@ pub enum Direction {
     Minimise,
 }
 
+impl Direction {
+    /// The direction a stored `higher_is_better` flag (as `selection.json` records it) names.
+    pub fn of_higher_is_better(higher_is_better: bool) -> Self {
+        if higher_is_better {
+            Direction::Maximise
+        } else {
+            Direction::Minimise
+        }
+    }
+}
+
 /// The scale a metric's seed spread and train-validation gap are judged against.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Scale {

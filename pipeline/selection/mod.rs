@@ -143,10 +143,9 @@ impl Selection {
     /// A train-minus-validation gap of the selection metric (as `ConfigSummary::gap` stores it),
     /// signed so that positive always means worse on validation, whichever way the metric points.
     pub fn worse_on_validation(&self, train_minus_validation: f64) -> f64 {
-        if self.higher_is_better {
-            train_minus_validation
-        } else {
-            -train_minus_validation
+        match crate::metrics::registry::Direction::of_higher_is_better(self.higher_is_better) {
+            crate::metrics::registry::Direction::Maximise => train_minus_validation,
+            crate::metrics::registry::Direction::Minimise => -train_minus_validation,
         }
     }
 }

@@ -31,7 +31,7 @@ pub enum Event {
         pending: usize,
         reused: usize,
         metric: String,
-        higher_is_better: bool,
+        direction: crate::metrics::registry::Direction,
     },
     Finished(RunReport),
 }
@@ -198,13 +198,13 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
             None => pending.push(spec),
         }
     }
-    let higher_is_better = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric)
-        == Some(crate::metrics::registry::Direction::Maximise);
+    let direction = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric)
+        .unwrap_or(crate::metrics::registry::Direction::Minimise);
     on_event(Event::Planned {
         pending: pending.len(),
         reused: report.reused.len(),
         metric: inputs.selection_metric.to_string(),
-        higher_is_better,
+        direction,
     });
     if pending.is_empty() {
         return Ok(report);
