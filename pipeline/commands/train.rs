@@ -106,12 +106,21 @@ fn table(selection: &Selection) -> String {
     out
 }
 
-/// The report of a sharded invocation: what this shard did, and what completes the experiment.
-fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::SweepReport, layout: &Layout, jobs: usize) -> TrainOutcome {
+/// The first lines of every `train` report, sharded or not: the experiment, what happened to
+/// the runs (`runs`), and each failed run with its reason.
+fn report_head(exp: &Experiment, runs: &str, report: &sweep::SweepReport) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
-    let _ = writeln!(
-        out,
+    let _ = writeln!(out, "{runs}");
+    for (id, why) in &report.failed {
+        let _ = writeln!(out, "  run {id} {why}");
+    }
+    out
+}
+
+/// The report of a sharded invocation: what this shard did, and what completes the experiment.
+fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::SweepReport, layout: &Layout, jobs: usize) -> TrainOutcome {
+    let runs = format!(
         "shard {shard}: {} of {} planned runs; {} trained, {} reused, {} failed ({jobs} workers)",
         shard.size(plan.runs.len()),
         plan.runs.len(),
@@ -119,9 +128,7 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
         report.reused.len(),
         report.failed.len()
     );
-    for (id, why) in &report.failed {
-        let _ = writeln!(out, "  run {id} {why}");
-    }
+    let mut out = report_head(exp, &runs, report);
     let _ = writeln!(out, "when every shard has finished, `tabcard train` without --shard selects, tests and writes the card");
     let _ = writeln!(out, "results  {}", layout.root.display());
     let json = serde_json::json!({
@@ -210,23 +217,18 @@ fn summary(
     nothing_new: bool,
     jobs: usize,
 ) -> String {
-    let mut out = String::new();
-    let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
-    if nothing_new {
-        let _ = writeln!(out, "nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len());
+    let runs = if nothing_new {
+        format!("nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len())
     } else {
-        let _ = writeln!(
-            out,
+        format!(
             "runs: {} trained, {} reused, {} failed, {} planned ({jobs} workers)",
             report.trained.len(),
             report.reused.len(),
             report.failed.len(),
             plan.runs.len()
-        );
-    }
-    for (id, why) in &report.failed {
-        let _ = writeln!(out, "  run {id} {why}");
-    }
+        )
+    };
+    let mut out = report_head(exp, &runs, report);
     let _ = writeln!(out);
     out.push_str(&table(selection));
     let _ = writeln!(out, "\nresults  {}", layout.root.display());
