@@ -3,6 +3,7 @@
 
 use serde_json::Value;
 
+use crate::data::roles::Role;
 use crate::data::summary::DataSummary;
 use crate::experiment::plan::{config_label, PlannedConfig};
 use crate::experiment::ExperimentRecord;
@@ -157,11 +158,11 @@ pub fn gather(
         test_rows: t.rows,
         test_smallest_class,
         degenerate_intervals: t.intervals.iter().filter(|(_, i)| i.upper == i.lower).map(|(k, _)| k.clone()).collect(),
-        missing: summary.columns.iter().filter(|c| c.role == "feature").map(|c| (c.name.clone(), c.missing_share)).collect(),
+        missing: summary.columns.iter().filter(|c| c.role == Role::Feature).map(|c| (c.name.clone(), c.missing_share)).collect(),
         rare_levels: summary
             .columns
             .iter()
-            .filter(|c| c.role == "feature" && c.categorical)
+            .filter(|c| c.role == Role::Feature && c.categorical)
             .map(|c| (c.name.clone(), c.rare_levels))
             .collect(),
         grid: grid_positions(manifest, selected),

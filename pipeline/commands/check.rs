@@ -4,6 +4,7 @@
 use std::fmt::Write;
 use std::path::Path;
 
+use crate::data::roles::Role;
 use crate::error::Result;
 use crate::experiment::plan;
 use crate::experiment::{open, Experiment};
@@ -125,13 +126,13 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
         );
     }
     if shown < s.columns.len() {
-        let roles = |r: &str| s.columns[shown..].iter().filter(|c| c.role == r).count();
+        let roles = |r: Role| s.columns[shown..].iter().filter(|c| c.role == r).count();
         let _ = writeln!(
             out,
             "... and {} more columns ({} features, {} others): `check --json` lists every column, as does data-summary.json in the results folder",
             s.columns.len() - shown,
-            roles("feature"),
-            s.columns.len() - shown - roles("feature")
+            roles(Role::Feature),
+            s.columns.len() - shown - roles(Role::Feature)
         );
     }
     let _ = writeln!(out, "types marked * are numeric columns treated as categories (data.categorical); missing is the share of null rows");

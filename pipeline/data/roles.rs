@@ -63,22 +63,63 @@ impl Roles {
         self.feature_index.get(column).map(|&i| &self.features[i])
     }
 
-    pub fn role_of(&self, column: &str) -> &'static str {
+    pub fn role_of(&self, column: &str) -> Role {
         if column == self.target {
-            "target"
+            Role::Target
         } else if self.is_feature(column) {
-            "feature"
+            Role::Feature
         } else if self.ids.iter().any(|c| c == column) {
-            "id"
+            Role::Id
         } else if self.groups.iter().any(|c| c == column) {
-            "group"
+            Role::Group
         } else if self.split_column.as_deref() == Some(column) {
-            "split"
+            Role::Split
         } else if self.split_group.as_deref() == Some(column) {
-            "split group"
+            Role::SplitGroup
         } else {
-            "not used"
+            Role::NotUsed
         }
+    }
+}
+
+/// What a column is for in an experiment, as the data summary records it (the stored names are
+/// the serde renames, unchanged since results layout 2).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum Role {
+    #[serde(rename = "target")]
+    Target,
+    #[serde(rename = "feature")]
+    Feature,
+    #[serde(rename = "id")]
+    Id,
+    #[serde(rename = "group")]
+    Group,
+    #[serde(rename = "split")]
+    Split,
+    #[serde(rename = "split group")]
+    SplitGroup,
+    #[serde(rename = "not used")]
+    NotUsed,
+}
+
+impl Role {
+    /// The role as the card and `check` print it (and as it is stored).
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Role::Target => "target",
+            Role::Feature => "feature",
+            Role::Id => "id",
+            Role::Group => "group",
+            Role::Split => "split",
+            Role::SplitGroup => "split group",
+            Role::NotUsed => "not used",
+        }
+    }
+}
+
+impl std::fmt::Display for Role {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.as_str())
     }
 }
 

@@ -9,7 +9,7 @@ use serde::{Deserialize, Serialize};
 use super::leakage::{duplicate_rows, SplitChecks};
 
 use super::order;
-use super::roles::{Roles, Target};
+use super::roles::{Role, Roles, Target};
 use super::table::{Column, ColumnValues, Table};
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -34,7 +34,7 @@ pub struct ColumnSummary {
     pub name: String,
     pub kind: String,
     pub source_type: String,
-    pub role: String,
+    pub role: Role,
     pub categorical: bool,
     pub missing: usize,
     pub missing_share: f64,
@@ -133,7 +133,7 @@ pub fn summarise_column(col: &Column, roles: &Roles, categorical: bool) -> Colum
         name: col.name.clone(),
         kind: col.kind_name().to_string(),
         source_type: col.source_type.clone(),
-        role: roles.role_of(&col.name).to_string(),
+        role: roles.role_of(&col.name),
         categorical: categorical || col.is_text(),
         missing,
         missing_share: if rows == 0 { 0.0 } else { missing as f64 / rows as f64 },
@@ -161,7 +161,7 @@ pub fn summarise(table: &Table, roles: &Roles, target: &Target, row_digests: &[u
 /// (`leakage::duplicate_rows`), with the warnings a reviewer should see.
 pub fn assemble(rows: usize, columns: Vec<ColumnSummary>, roles: &Roles, target: &Target, duplicates: usize) -> DataSummary {
     let mut warnings = Vec::new();
-    for c in columns.iter().filter(|c| c.role == "feature") {
+    for c in columns.iter().filter(|c| c.role == Role::Feature) {
         if c.distinct <= 1 {
             warnings.push(format!("feature `{}` is constant: it carries no information", c.name));
         }

@@ -120,7 +120,7 @@ pub(crate) fn data_section(st: &StoredResults) -> DataSection {
                 }
             };
             let kind = if c.categorical { format!("{} (categorical)", c.kind) } else { c.kind.clone() };
-            Row::of([md(&c.name), c.role.clone(), kind, format!("{} ({}%)", c.missing, fixed(100.0 * c.missing_share, 1)), detail])
+            Row::of([md(&c.name), c.role.to_string(), kind, format!("{} ({}%)", c.missing, fixed(100.0 * c.missing_share, 1)), detail])
         })
         .collect();
     let class_rows = summary
