@@ -10,7 +10,7 @@ mod common;
 use common::*;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
+use std::process::Command;
 use std::time::{Duration, Instant};
 
 /// Every file under `root` (relative path -> bytes and modification time).
@@ -159,29 +159,7 @@ fn a_forged_timing_record_never_reaches_the_card_and_card_and_verify_agree() {
 
 /// Runs `train` with a deadline: the lock tests must fail, not hang, when a stale lock is honoured.
 fn train_with_deadline(dir: &Path, manifest: &Path, deadline: Duration) -> (Option<i32>, String) {
-    let mut child = bin()
-        .current_dir(dir)
-        .args(["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2", "--quiet"])
-        .stdout(Stdio::null())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    let started = Instant::now();
-    loop {
-        if let Some(status) = child.try_wait().unwrap() {
-            let mut err = String::new();
-            std::io::Read::read_to_string(child.stderr.as_mut().unwrap(), &mut err).unwrap();
-            return (status.code(), err);
-        }
-        if started.elapsed() > deadline {
-            child.kill().unwrap();
-            let _ = child.wait();
-            let mut err = String::new();
-            std::io::Read::read_to_string(child.stderr.as_mut().unwrap(), &mut err).unwrap();
-            return (None, err);
-        }
-        std::thread::sleep(Duration::from_millis(100));
-    }
+    run_within(dir, &["train", manifest.to_str().unwrap(), "--results", "results", "--jobs", "2", "--quiet"], deadline)
 }
 
 /// The folder `train` will write for `manifest` (its short fingerprint, from `check --json`).
@@ -440,22 +418,8 @@ fn bad_paths_are_bad_input_named_where_they_are_set() {
     // A FIFO as the data file: refused at once, never read (a read would block forever).
     let fifo = d.join("data.parquet");
     assert!(Command::new("mkfifo").arg(&fifo).status().unwrap().success());
-    let (status, err) = {
-        let mut child = bin().current_dir(d).args(["check", "m.toml"]).stderr(Stdio::piped()).stdout(Stdio::null()).spawn().unwrap();
-        let started = Instant::now();
-        loop {
-            if let Some(s) = child.try_wait().unwrap() {
-                let mut err = String::new();
-                std::io::Read::read_to_string(child.stderr.as_mut().unwrap(), &mut err).unwrap();
-                break (s.code(), err);
-            }
-            if started.elapsed() > Duration::from_secs(20) {
-                child.kill().unwrap();
-                panic!("check waited on a FIFO");
-            }
-            std::thread::sleep(Duration::from_millis(50));
-        }
-    };
+    let (status, err) = run_within(d, &["check", "m.toml"], Duration::from_secs(20));
+    assert!(status.is_some(), "check waited on a FIFO");
     assert_eq!(status, Some(2), "{err}");
     assert!(err.contains("is not a regular file"), "{err}");
 }

@@ -14,8 +14,7 @@ use common::*;
 use rand_chacha::rand_core::{RngCore, SeedableRng};
 use rand_chacha::ChaCha20Rng;
 use std::path::Path;
-use std::process::Stdio;
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
 fn mutations() -> usize {
     std::env::var("TABCARD_MUTATIONS").ok().and_then(|v| v.parse().ok()).unwrap_or(1000)
@@ -69,28 +68,7 @@ fn mutate(bytes: &[u8], foreign: &[u8], rng: &mut ChaCha20Rng) -> (Vec<u8>, &'st
 
 /// Runs `tabcard check` with a deadline; (exit status or None on a hang, stderr).
 fn check(dir: &Path, manifest: &str) -> (Option<i32>, String) {
-    let mut child = bin()
-        .current_dir(dir)
-        .args(["check", manifest, "--quiet"])
-        .stdout(Stdio::null())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("run tabcard");
-    let started = Instant::now();
-    let status = loop {
-        if let Some(status) = child.try_wait().unwrap() {
-            break status.code();
-        }
-        if started.elapsed() > Duration::from_secs(60) {
-            let _ = child.kill();
-            let _ = child.wait();
-            break None;
-        }
-        std::thread::sleep(Duration::from_millis(5));
-    };
-    let mut err = String::new();
-    let _ = std::io::Read::read_to_string(child.stderr.as_mut().unwrap(), &mut err);
-    (status, err)
+    run_within(dir, &["check", manifest, "--quiet"], Duration::from_secs(60))
 }
 
 /// Asserts the documented outcome; returns the exit status for the tally.

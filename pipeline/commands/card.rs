@@ -10,9 +10,13 @@ use crate::results::Sealed;
 
 pub fn run(results_folder: &Path, templates: Option<&Path>) -> Result<String> {
     // A `card` killed mid-write leaves temporaries, or a card and figures its list does not name
-    // yet: the evidence decides, and the rendered files are written anew and sealed.
-    let folder = Sealed::open_evidence(results_folder)?;
-    let repaired = folder.check_all().err();
+    // yet: the evidence decides, and the rendered files are written anew and sealed. The folder
+    // is hashed twice only in that case.
+    crate::store::remove_temporaries(results_folder);
+    let (folder, repaired) = match Sealed::open(results_folder) {
+        Ok(folder) => (folder, None),
+        Err(strict) => (Sealed::open_evidence(results_folder)?, Some(strict)),
+    };
     let layout = folder.layout;
     let digest = write_card(&layout, templates)?;
     let note = repaired

@@ -49,11 +49,12 @@ fn runs_json(plan: &Plan, report: &sweep::SweepReport) -> serde_json::Value {
 /// last, says they are whole) must hold the same canonical manifest, and its files are never
 /// written again: a later `train` of the same experiment (a comment added to the manifest, the
 /// table re-encoded, the project copied elsewhere) keeps the originals. A sealed folder must also
-/// still match its integrity list before anything else happens.
-fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: &Preprocessor) -> Result<()> {
+/// still match its integrity list before anything else happens. Returns what it found.
+fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: &Preprocessor) -> Result<Folder> {
     let canonical = crate::manifest::canonical_json(&exp.manifest);
-    if !matches!(Folder::inspect(layout, &canonical)?, Folder::New) {
-        return Ok(());
+    let found = Folder::inspect(layout, &canonical)?;
+    if !matches!(found, Folder::New) {
+        return Ok(found);
     }
     crate::store::create_dir(&layout.root)?;
     write_atomic(&layout.manifest(), canonical.as_bytes())?;
@@ -64,7 +65,8 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     write_json(&layout.plan(), plan)?;
     write_json(&layout.preprocessor(), preprocessor)?;
     // format.json last: its presence tells a concurrent `train` that the other files are whole.
-    write_json(&layout.format(), &FormatRecord::current())
+    write_json(&layout.format(), &FormatRecord::current())?;
+    Ok(Folder::New)
 }
 
 fn table(selection: &Selection) -> String {
@@ -283,7 +285,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     if options.shard.is_none() {
         crate::store::remove_temporaries(&layout.root);
     }
-    prepare_folder(exp, &layout, plan, preprocessor)?;
+    let found = prepare_folder(exp, &layout, plan, preprocessor)?;
     let sweep_inputs = SweepInputs {
         layout: &layout,
         plan,
@@ -308,8 +310,12 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     // A sweep killed between its selection and the seal of its integrity list finishes both now.
     let nothing_new = report.trained.is_empty() && Folder::is_sealed(&layout);
     let (selection, results_digest) = if nothing_new {
-        // Nothing was trained: the stored results stand, once they match their integrity list.
-        let sealed = Sealed::open(&layout.root)?;
+        // Nothing was trained: the stored results stand, once they match their integrity list
+        // (checked when the folder was found sealed, or now).
+        let sealed = match found {
+            Folder::Sealed(sealed) => *sealed,
+            _ => Sealed::open(&layout.root)?,
+        };
         (sealed.selection()?, sealed.digest)
     } else {
         // Asked once: the timing record and the ledger line name the same commit.

@@ -86,11 +86,8 @@ pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
     // A data file that is missing or not a table is a manifest problem: name the key and line.
     let problem = match std::fs::metadata(&data_path) {
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => Some("no such file"),
-        Ok(m) if m.is_dir() => Some("is a folder, not a Parquet file"),
-        Ok(m) if !m.is_file() => {
-            Some("is not a regular file (a pipe, socket or device); tabcard reads Parquet tables from regular files only")
-        }
-        _ => None,
+        Ok(meta) => crate::data::parquet::not_a_table_file(&meta),
+        Err(_) => None,
     };
     if let Some(problem) = problem {
         return Err(manifest::key_error(

@@ -18,7 +18,7 @@ use crate::experiment::plan::Plan;
 use crate::experiment::ExperimentRecord;
 use crate::manifest::Manifest;
 use crate::numerics::NumericsFingerprint;
-use crate::selection::{ConfigSummary, Selection};
+use crate::selection::Selection;
 use crate::store::run::{read_run, StoredRun};
 use crate::store::timing::TimingRecord;
 use crate::store::{integrity, read_json, Layout};
@@ -65,12 +65,6 @@ impl Sealed {
         let record: ExperimentRecord = read_json(&layout.experiment())?;
         let manifest_text = checked_manifest_text(&layout, &record)?;
         Ok(Sealed { layout, digest, record, manifest_text })
-    }
-
-    /// Whether every file, rendered ones included, matches the list (the first difference as the
-    /// error otherwise).
-    pub fn check_all(&self) -> Result<String> {
-        self.layout.check_sealed()
     }
 
     pub fn manifest(&self) -> Result<Manifest> {
@@ -152,11 +146,6 @@ impl StoredResults {
             runs,
         })
     }
-
-    /// The selected configuration's summary across seeds.
-    pub fn selected_summary(&self) -> Option<&ConfigSummary> {
-        self.selection.selected_summary()
-    }
 }
 
 /// What `train` finds where an experiment's folder goes.
@@ -165,13 +154,14 @@ pub enum Folder {
     New,
     /// The experiment files are whole, the sweep is not sealed yet.
     InProgress,
-    /// Sealed, and every file matches the list: nothing of it is written again.
-    Sealed,
+    /// Sealed, and every file matched the list when it was opened: nothing of it is written again.
+    Sealed(Box<Sealed>),
 }
 
 impl Folder {
     /// Inspects `layout` for the experiment whose canonical manifest is `canonical`: an existing
-    /// folder must hold that manifest, and a sealed one must match its integrity list.
+    /// folder must hold that manifest, and a sealed one must match its integrity list (it is
+    /// handed back opened, so `train` reads its selection without hashing it again).
     pub fn inspect(layout: &Layout, canonical: &str) -> Result<Folder> {
         if !layout.format().exists() {
             return Ok(Folder::New);
@@ -187,8 +177,7 @@ impl Folder {
         if !Self::is_sealed(layout) {
             return Ok(Folder::InProgress);
         }
-        integrity::check(&layout.root)?;
-        Ok(Folder::Sealed)
+        Ok(Folder::Sealed(Box::new(Sealed::opened(layout.clone(), false)?)))
     }
 
     /// Whether the folder has its integrity list (its selection and card are written).

@@ -24,21 +24,30 @@ use crate::fingerprint::{file_sha256, sha256_hex};
 /// The list's file name in a results folder.
 pub const FILE: &str = "integrity.sha256";
 
+/// Whether a path is a timing record (the experiment's or a run's): never listed, since two
+/// identical sweeps write different ones.
+fn is_timing(path: &str) -> bool {
+    path == "timing.json" || path.ends_with("/timing.json")
+}
+
 /// Whether a file (path relative to the folder, `/`-separated) belongs in the list. Only plain
 /// relative paths qualify: no absolute path, no empty, `.` or `..` component, no dot-entry.
 fn listed(path: &str) -> bool {
     path != FILE
-        && path != "timing.json"
-        && !path.ends_with("/timing.json")
+        && !is_timing(path)
         && !path.starts_with('/')
         && !path.contains('\\')
         && path.split('/').all(|part| !part.is_empty() && !part.starts_with('.'))
 }
 
-/// Entries that may sit in a results folder without being listed: the writer lock while `train`
-/// holds it, and a run being written (`runs/.partial-*`, removed on the next `train`).
-fn tolerated_unlisted(path: &str) -> bool {
-    path == super::lock::FILE || (path.starts_with("runs/.") && !path["runs/".len()..].contains('/'))
+/// Entries that may sit in a results folder without being listed: the list itself, timing
+/// records (regular files), the writer lock while `train` holds it, and a run being written
+/// (`runs/.partial-*`, removed on the next `train`).
+fn tolerated_unlisted(path: &str, kind: std::fs::FileType) -> bool {
+    path == FILE
+        || is_timing(path) && kind.is_file()
+        || path == super::lock::FILE
+        || (path.starts_with("runs/.") && !path["runs/".len()..].contains('/'))
 }
 
 /// A temporary file of an interrupted atomic write (`.<name>.tmp-<pid>-<n>`), safe to delete.
@@ -64,23 +73,19 @@ fn derived(path: &str) -> bool {
     path == "card.md" || path.starts_with("figures/")
 }
 
-/// Every entry under `root` that is not a folder, relative and `/`-separated, sorted by path;
-/// dot-entries included (the caller decides what to do with them), folders of dot-entries walked
-/// only when `hidden` is set. A symbolic link is an entry of its own, never followed.
-fn entries(root: &Path, hidden: bool) -> Result<Vec<(String, std::fs::FileType)>> {
-    fn walk(root: &Path, dir: &Path, hidden: bool, out: &mut Vec<(String, std::fs::FileType)>) -> Result<()> {
+/// Every entry under `root` that is not a folder to walk, relative and `/`-separated, sorted by
+/// path: files, and dot-entries of any kind (a dot-folder is one entry, never walked; the caller
+/// decides what to do with them). A symbolic link is an entry of its own, never followed.
+fn entries(root: &Path) -> Result<Vec<(String, std::fs::FileType)>> {
+    fn walk(root: &Path, dir: &Path, out: &mut Vec<(String, std::fs::FileType)>) -> Result<()> {
         let listing = std::fs::read_dir(dir).map_err(|e| Error::io(dir, "list", e))?;
         for entry in listing {
             let entry = entry.map_err(|e| Error::io(dir, "list", e))?;
             let path = entry.path();
             let kind = entry.file_type().map_err(|e| Error::io(&path, "inspect", e))?;
             let dot = entry.file_name().to_string_lossy().starts_with('.');
-            if kind.is_dir() {
-                if !dot || hidden {
-                    walk(root, &path, hidden, out)?;
-                } else {
-                    out.push((relative(root, &path), kind));
-                }
+            if kind.is_dir() && !dot {
+                walk(root, &path, out)?;
             } else {
                 out.push((relative(root, &path), kind));
             }
@@ -92,14 +97,14 @@ fn entries(root: &Path, hidden: bool) -> Result<Vec<(String, std::fs::FileType)>
         relative.components().map(|c| c.as_os_str().to_string_lossy().into_owned()).collect::<Vec<_>>().join("/")
     }
     let mut out = Vec::new();
-    walk(root, root, hidden, &mut out)?;
+    walk(root, root, &mut out)?;
     out.sort_by(|a, b| a.0.cmp(&b.0));
     Ok(out)
 }
 
 /// Every file the list names under `root`, relative and sorted by path.
 fn files(root: &Path) -> Result<Vec<String>> {
-    Ok(entries(root, false)?.into_iter().map(|(p, _)| p).filter(|p| listed(p)).collect())
+    Ok(entries(root)?.into_iter().map(|(p, _)| p).filter(|p| listed(p)).collect())
 }
 
 fn lines(root: &Path, paths: &[String]) -> Result<String> {
@@ -179,15 +184,12 @@ fn check_parts(root: &Path, rendered_may_differ: bool) -> Result<String> {
         }
     }
     let named: std::collections::BTreeSet<&str> = recorded.iter().map(|(path, _)| path.as_str()).collect();
-    for (path, kind) in entries(root, false)? {
-        if named.contains(path.as_str()) || path == FILE || !listed(&path) && tolerated_unlisted(&path) {
+    for (path, kind) in entries(root)? {
+        if named.contains(path.as_str()) || tolerated_unlisted(&path, kind) {
             continue;
         }
         let name = path.rsplit('/').next().unwrap_or(&path);
-        if rendered_may_differ && (derived(&path) || path.starts_with("figures/") || is_temporary(name)) {
-            continue;
-        }
-        if !listed(&path) && (path == "timing.json" || path.ends_with("/timing.json")) && kind.is_file() {
+        if rendered_may_differ && (derived(&path) || is_temporary(name)) {
             continue;
         }
         let what = if kind.is_symlink() {

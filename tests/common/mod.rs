@@ -4,7 +4,7 @@
 
 use arrow::array::ArrayRef;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::{Command, Output, Stdio};
 use tabcard::data::parquet::{encode, WriteOptions};
 
 pub fn bin() -> Command {
@@ -13,6 +13,32 @@ pub fn bin() -> Command {
 
 pub fn run_in(dir: &Path, args: &[&str]) -> Output {
     bin().current_dir(dir).args(args).output().expect("run tabcard")
+}
+
+/// Runs `tabcard ARGS` in `dir` with a deadline: (exit status, or `None` when it was killed at
+/// the deadline; what it wrote to stderr). Stdout is discarded; stderr is read while the command
+/// runs, so a chatty command cannot block on a full pipe.
+pub fn run_within(dir: &Path, args: &[&str], deadline: std::time::Duration) -> (Option<i32>, String) {
+    let mut child = bin().current_dir(dir).args(args).stdout(Stdio::null()).stderr(Stdio::piped()).spawn().expect("run tabcard");
+    let mut pipe = child.stderr.take().expect("stderr is piped");
+    let reader = std::thread::spawn(move || {
+        let mut text = String::new();
+        let _ = std::io::Read::read_to_string(&mut pipe, &mut text);
+        text
+    });
+    let started = std::time::Instant::now();
+    let status = loop {
+        if let Some(status) = child.try_wait().expect("wait for tabcard") {
+            break status.code();
+        }
+        if started.elapsed() > deadline {
+            let _ = child.kill();
+            let _ = child.wait();
+            break None;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    };
+    (status, reader.join().expect("stderr reader"))
 }
 
 pub fn stderr(o: &Output) -> String {

@@ -9,11 +9,21 @@ use crate::error::{Error, Result};
 /// read forever, a folder or device is never a table). Symbolic links are followed.
 pub fn open_regular(path: &Path) -> Result<std::fs::File> {
     let meta = std::fs::metadata(path).map_err(|e| Error::io(path, "open the data file", e))?;
-    if !meta.is_file() {
-        let kind = if meta.is_dir() { "a folder" } else { "not a regular file (a pipe, socket or device)" };
-        return Err(Error::data(path, None, format!("is {kind}; tabcard reads Parquet tables from regular files only")));
+    if let Some(problem) = not_a_table_file(&meta) {
+        return Err(Error::data(path, None, problem));
     }
     std::fs::File::open(path).map_err(|e| Error::io(path, "open the data file", e))
+}
+
+/// Why an existing path cannot be a Parquet table, if it cannot: a folder, or not a regular file.
+pub fn not_a_table_file(meta: &std::fs::Metadata) -> Option<&'static str> {
+    if meta.is_dir() {
+        Some("is a folder, not a Parquet file")
+    } else if !meta.is_file() {
+        Some("is not a regular file (a pipe, socket or device); tabcard reads Parquet tables from regular files only")
+    } else {
+        None
+    }
 }
 
 thread_local! {
