@@ -26,5 +26,6 @@ pub mod task;
 pub mod text;
 pub mod threads;
 pub mod training;
+pub mod verification;
 
 pub use error::{Error, Result};

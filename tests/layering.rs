@@ -22,6 +22,7 @@ const LAYERS: &[&[&str]] = &[
     &["selection"],
     &["results"],
     &["card"],
+    &["verification"],
     &["commands"],
     &["main", "lib", "progress"],
 ];

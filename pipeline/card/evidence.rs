@@ -7,7 +7,7 @@ use crate::data::roles::Role;
 use crate::data::summary::DataSummary;
 use crate::experiment::plan::{config_label, PlannedConfig};
 use crate::experiment::ExperimentRecord;
-use crate::manifest::{Manifest, Task};
+use crate::manifest::{Manifest, SelectionRule, Task};
 use crate::metrics::registry::{self, direction, Direction, Scale};
 use crate::selection::{simpler_within_one_se, Selection};
 
@@ -129,8 +129,8 @@ pub fn gather(
         .enumerate()
         .map(|(c, row)| (record.class_labels.get(c).cloned().unwrap_or_default(), row.iter().sum::<usize>()))
         .min_by_key(|(_, n)| *n);
-    let simpler_within_noise = match (selection.rule.as_str(), selected_summary) {
-        ("best", Some(chosen)) => simpler_within_one_se(&selection.configs, chosen, m, dir)
+    let simpler_within_noise = match (selection.rule, selected_summary) {
+        (SelectionRule::Best, Some(chosen)) => simpler_within_one_se(&selection.configs, chosen, m, dir)
             .into_iter()
             .filter_map(|c| Some((config_label(&c.overrides, false), c.parameter_count, c.validation.get(m)?.mean)))
             .collect(),

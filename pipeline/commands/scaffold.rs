@@ -7,7 +7,7 @@ use std::fmt::Write;
 use std::path::{Component, Path, PathBuf};
 
 use crate::data::parquet::read_table;
-use crate::data::roles::MAX_MAGNITUDE;
+use crate::data::roles::{Role, MAX_MAGNITUDE};
 use crate::data::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
 use crate::manifest::{EarlyStopping, ModelSpec, SelectionSpec, SplitSpec, SweepSpec, Task, TrainingSpec};
@@ -19,20 +19,12 @@ pub struct ScaffoldOptions {
     pub force: bool,
 }
 
-/// What the scaffold suggests for one column.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Role {
-    Target,
-    Feature,
-    Id,
-    Drop,
-}
-
 struct Profile {
     name: String,
     kind: &'static str,
     missing: f64,
     distinct: usize,
+    /// The role suggested (target, feature, id, or not used: the manifest's `drop`).
     role: Role,
     why: String,
 }
@@ -53,13 +45,13 @@ fn profile(col: &Column, rows: usize, target: &str) -> Profile {
     let (role, why) = if col.name == target {
         (Role::Target, "the column to predict".to_string())
     } else if nulls == rows {
-        (Role::Drop, "every value is null".into())
+        (Role::NotUsed, "every value is null".into())
     } else if d <= 1 {
-        (Role::Drop, "constant: carries no information".into())
+        (Role::NotUsed, "constant: carries no information".into())
     } else if matches!(col.values, ColumnValues::Float(_) | ColumnValues::Float32(_))
         && (0..col.len()).filter(|&r| col.is_valid(r)).filter_map(|r| col.number(r)).any(|x| !x.is_finite() || x.abs() > MAX_MAGNITUDE)
     {
-        (Role::Drop, "holds NaN, infinite or out-of-range values; store missing values as nulls and rescale".into())
+        (Role::NotUsed, "holds NaN, infinite or out-of-range values; store missing values as nulls and rescale".into())
     } else if d == rows && rows > 20 && matches!(col.values, ColumnValues::Int(_) | ColumnValues::Text { .. }) {
         (Role::Id, "unique per row, like an identifier".into())
     } else if col.is_text() {
@@ -179,12 +171,8 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let _ = writeln!(out, "task = \"{}\"  # binary | multiclass | regression (suggested from the target)", task.as_str());
     let _ = writeln!(out, "# Columns: detected type, missing share, distinct values -> suggested role");
     for p in &profiles {
-        let role = match p.role {
-            Role::Target => "target",
-            Role::Feature => "feature",
-            Role::Id => "id",
-            Role::Drop => "drop",
-        };
+        // The manifest's word for a column left out is its `drop` list.
+        let role = if p.role == Role::NotUsed { "drop" } else { p.role.as_str() };
         let _ = writeln!(
             out,
             "#   {:<28} {:<8} {:>6.1}% {:>8} -> {role}: {}",
@@ -196,7 +184,7 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
         );
     }
     let _ = writeln!(out, "ids = {}  # never features; carried into predictions", toml_list(&names(Role::Id)));
-    let _ = writeln!(out, "drop = {}", toml_list(&names(Role::Drop)));
+    let _ = writeln!(out, "drop = {}", toml_list(&names(Role::NotUsed)));
     let _ = writeln!(out, "categorical = []  # numeric columns to treat as categories (text columns always are)");
     let _ = writeln!(out, "features = []  # empty: every column not named as target, id, group or dropped");
     let _ = writeln!(out, "group_columns = []  # columns describing groups of people: per-group test results, never features");

@@ -97,7 +97,7 @@ fn table(selection: &Selection) -> String {
         );
     }
     let failed_note = if selection.configs.iter().any(|c| c.runs_failed > 0) { "; seeds 2+1f: 2 completed, 1 failed" } else { "" };
-    let _ = writeln!(out, "* selected ({} rule); ± is the standard deviation across seeds{failed_note}", selection.rule);
+    let _ = writeln!(out, "* selected ({} rule); ± is the standard deviation across seeds{failed_note}", selection.rule.as_str());
     let t = &selection.test;
     let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
     for (name, value) in &t.metrics {

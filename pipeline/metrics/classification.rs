@@ -139,16 +139,21 @@ pub fn roc_auc(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
     Some(u / (n_pos as f64 * n_neg as f64))
 }
 
-/// Average precision: sum over distinct thresholds (descending) of (R_i - R_{i-1}) * P_i, the
-/// step-wise area under the precision-recall curve (scikit-learn's `average_precision_score`).
-pub fn average_precision(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
-    let n_pos = is_positive.iter().filter(|&&p| p).count();
-    if n_pos == 0 {
-        return None;
-    }
+/// Cumulative counts at one distinct score, walking the scores from highest to lowest: how many
+/// positives and negatives score at or above `threshold`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ThresholdStep {
+    pub threshold: f64,
+    pub true_positives: usize,
+    pub false_positives: usize,
+}
+
+/// One [`ThresholdStep`] per distinct score, highest first; tied scores enter together.
+pub fn threshold_steps(is_positive: &[bool], scores: &[f64]) -> Vec<ThresholdStep> {
     let mut order: Vec<usize> = (0..scores.len()).collect();
     order.sort_by(|&a, &b| scores[b].total_cmp(&scores[a]));
-    let (mut tp, mut fp, mut last_recall, mut ap) = (0usize, 0usize, 0.0, 0.0);
+    let (mut tp, mut fp) = (0usize, 0usize);
+    let mut steps = Vec::new();
     let mut i = 0;
     while i < order.len() {
         let threshold = scores[order[i]];
@@ -160,8 +165,22 @@ pub fn average_precision(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
             }
             i += 1;
         }
-        let recall = tp as f64 / n_pos as f64;
-        let precision = tp as f64 / (tp + fp) as f64;
+        steps.push(ThresholdStep { threshold, true_positives: tp, false_positives: fp });
+    }
+    steps
+}
+
+/// Average precision: sum over distinct thresholds (descending) of (R_i - R_{i-1}) * P_i, the
+/// step-wise area under the precision-recall curve (scikit-learn's `average_precision_score`).
+pub fn average_precision(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
+    let n_pos = is_positive.iter().filter(|&&p| p).count();
+    if n_pos == 0 {
+        return None;
+    }
+    let (mut last_recall, mut ap) = (0.0, 0.0);
+    for step in threshold_steps(is_positive, scores) {
+        let recall = step.true_positives as f64 / n_pos as f64;
+        let precision = step.true_positives as f64 / (step.true_positives + step.false_positives) as f64;
         ap += (recall - last_recall) * precision;
         last_recall = recall;
     }
@@ -180,36 +199,31 @@ pub fn macro_ovr_auc(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
     (!aucs.is_empty()).then(|| aucs.iter().sum::<f64>() / aucs.len() as f64)
 }
 
+/// A threshold with the true- and false-positive rates of predicting positive for p >= threshold.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct OperatingPoint {
+    pub threshold: f64,
+    pub true_positive_rate: f64,
+    pub false_positive_rate: f64,
+}
+
 /// The threshold t maximising Youden's J = TPR - FPR when predicting positive for p >= t
 /// (Youden 1950, "Index for rating diagnostic tests"), over the distinct scores; the highest
-/// such t on ties. Returns (t, TPR, FPR); `None` without both classes.
-pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<(f64, f64, f64)> {
+/// such t on ties. `None` without both classes.
+pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<OperatingPoint> {
     let n_pos = is_positive.iter().filter(|&&p| p).count();
     let n_neg = is_positive.len() - n_pos;
     if n_pos == 0 || n_neg == 0 {
         return None;
     }
-    let mut order: Vec<usize> = (0..scores.len()).collect();
-    order.sort_by(|&a, &b| scores[b].total_cmp(&scores[a]));
-    let (mut tp, mut fp) = (0usize, 0usize);
-    let mut best: Option<(f64, f64, f64, f64)> = None;
-    let mut i = 0;
-    while i < order.len() {
-        let t = scores[order[i]];
-        while i < order.len() && scores[order[i]] == t {
-            if is_positive[order[i]] {
-                tp += 1
-            } else {
-                fp += 1
-            }
-            i += 1;
-        }
-        let (tpr, fpr) = (tp as f64 / n_pos as f64, fp as f64 / n_neg as f64);
-        if best.is_none_or(|(j, ..)| tpr - fpr > j) {
-            best = Some((tpr - fpr, t, tpr, fpr));
+    let mut best: Option<(f64, OperatingPoint)> = None;
+    for step in threshold_steps(is_positive, scores) {
+        let (tpr, fpr) = (step.true_positives as f64 / n_pos as f64, step.false_positives as f64 / n_neg as f64);
+        if best.is_none_or(|(j, _)| tpr - fpr > j) {
+            best = Some((tpr - fpr, OperatingPoint { threshold: step.threshold, true_positive_rate: tpr, false_positive_rate: fpr }));
         }
     }
-    best.map(|(_, t, tpr, fpr)| (t, tpr, fpr))
+    best.map(|(_, point)| point)
 }
 
 #[cfg(test)]
@@ -220,7 +234,10 @@ mod tests {
     fn single_class_auc_is_undefined_not_a_panic() {
         assert_eq!(roc_auc(&[true, true], &[0.1, 0.9]), None);
         assert_eq!(average_precision(&[false, false], &[0.1, 0.9]), None);
-        assert_eq!(youden_threshold(&[false, true], &[0.3, 0.3]), Some((0.3, 1.0, 1.0)));
+        assert_eq!(
+            youden_threshold(&[false, true], &[0.3, 0.3]),
+            Some(OperatingPoint { threshold: 0.3, true_positive_rate: 1.0, false_positive_rate: 1.0 })
+        );
     }
 
     #[test]

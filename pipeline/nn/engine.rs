@@ -9,7 +9,8 @@
 //! against candle's autograd and against finite differences.
 
 use super::dispatch::Level;
-use super::layers::{BN_EPS, BN_MOMENTUM};
+use super::host_ops::{activate, column_sums, derivative, normalise, normalise_backward, Norm};
+use super::layers::BN_EPS;
 use super::matmul::{matmul, View, Workspace};
 use super::mlp::{has_residual, Mlp};
 use super::optim::{Optimizer, Step};
@@ -18,20 +19,6 @@ use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
 use crate::manifest::Activation;
 use crate::rng::Stream;
-
-/// Batch normalisation's parameters, running statistics and per-batch state.
-struct Norm<T> {
-    gamma: Vec<T>,
-    beta: Vec<T>,
-    running_mean: Vec<T>,
-    running_var: Vec<T>,
-    grad_gamma: Vec<T>,
-    grad_beta: Vec<T>,
-    /// (x - mean) / sqrt(var + eps) of the last batch, rows x width.
-    normalised: Vec<T>,
-    mean: Vec<T>,
-    inv_std: Vec<T>,
-}
 
 /// One affine layer with what follows it: batch norm, activation, dropout, residual (hidden
 /// layers), or nothing (the head).
@@ -82,6 +69,13 @@ impl<T: Real> Dense<T> {
         }
         out
     }
+}
+
+/// Which pass a layer walk makes: training (batch statistics, dropout drawn from the stream) or
+/// evaluation (running statistics as sqrt(running_var + eps) per layer, no dropout).
+enum Pass<'a, T> {
+    Training { dropout: &'a mut Stream },
+    Evaluation { running_std: &'a [Option<Vec<T>>] },
 }
 
 pub struct Engine<T> {
@@ -250,29 +244,7 @@ impl<T: Real> Engine<T> {
             for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
                 *v = T::narrow(f64::from(s));
             }
-            for l in 0..self.layers.len() {
-                let (before, rest) = self.layers.split_at_mut(l);
-                let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
-                let layer = &mut rest[0];
-                let (n_in, n_out) = (layer.inputs, layer.outputs);
-                layer.affine(input, b, &mut self.workspace);
-                if !layer.hidden {
-                    continue;
-                }
-                if let (Some(norm), Some(std)) = (&layer.norm, &running_std[l]) {
-                    for row in layer.pre[..b * n_out].chunks_exact_mut(n_out) {
-                        for j in 0..n_out {
-                            row[j] = (row[j] - norm.running_mean[j]) / std[j] * norm.gamma[j] + norm.beta[j];
-                        }
-                    }
-                }
-                activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
-                if layer.residual {
-                    for (o, &i) in layer.out[..b * n_out].iter_mut().zip(&input[..b * n_in]) {
-                        *o += i;
-                    }
-                }
-            }
+            self.walk_layers(b, Pass::Evaluation { running_std: &running_std });
             if let Some(head) = self.layers.last() {
                 result.extend(head.out[..b * outputs].iter().map(|v| v.widen() as f32));
             }
@@ -303,6 +275,13 @@ impl<T: Real> Engine<T> {
                 *v += T::narrow(f64::from((sigma * noise.normal()) as f32));
             }
         }
+        self.walk_layers(b, Pass::Training { dropout });
+    }
+
+    /// Every layer in order over the first `b` rows of `input`: the affine map, then for hidden
+    /// layers batch norm (the batch's statistics in training, the running ones in evaluation), the
+    /// activation, dropout (training only) and the residual connection.
+    fn walk_layers(&mut self, b: usize, mut pass: Pass<'_, T>) {
         for l in 0..self.layers.len() {
             let (before, rest) = self.layers.split_at_mut(l);
             let input: &[T] = if l == 0 { &self.input } else { &before[l - 1].out };
@@ -312,24 +291,39 @@ impl<T: Real> Engine<T> {
             if !layer.hidden {
                 continue;
             }
-            if let Some(norm) = &mut layer.norm {
-                normalise(norm, &mut layer.pre[..b * n_out], b, n_out);
+            match &mut pass {
+                Pass::Training { .. } => {
+                    if let Some(norm) = &mut layer.norm {
+                        normalise(norm, &mut layer.pre[..b * n_out], b, n_out);
+                    }
+                }
+                Pass::Evaluation { running_std } => {
+                    if let (Some(norm), Some(std)) = (&layer.norm, &running_std[l]) {
+                        for row in layer.pre[..b * n_out].chunks_exact_mut(n_out) {
+                            for j in 0..n_out {
+                                row[j] = (row[j] - norm.running_mean[j]) / std[j] * norm.gamma[j] + norm.beta[j];
+                            }
+                        }
+                    }
+                }
             }
             activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
-            if self.dropout > 0.0 {
-                let keep = (1.0 - self.dropout) as f32;
-                let scale = T::narrow(f64::from(1.0 / keep));
-                let mask = &mut layer.mask[..b * n_out];
-                let draws = &mut self.draws[..b * n_out];
-                dropout.fill_u32(draws);
-                // The same decision as `uniform_f32() < keep`, (u >> 8) 2^-24 < keep, in integers:
-                // keep 2^24 is exact, so u >> 8 < ceil(keep 2^24).
-                let threshold = (f64::from(keep) * f64::from(1u32 << 24)).ceil() as u32;
-                for (m, &u) in mask.iter_mut().zip(draws.iter()) {
-                    *m = if (u >> 8) < threshold { scale } else { T::zero() };
-                }
-                for (o, &m) in layer.out[..b * n_out].iter_mut().zip(mask.iter()) {
-                    *o *= m;
+            if let Pass::Training { dropout } = &mut pass {
+                if self.dropout > 0.0 {
+                    let keep = (1.0 - self.dropout) as f32;
+                    let scale = T::narrow(f64::from(1.0 / keep));
+                    let mask = &mut layer.mask[..b * n_out];
+                    let draws = &mut self.draws[..b * n_out];
+                    dropout.fill_u32(draws);
+                    // The same decision as `uniform_f32() < keep`, (u >> 8) 2^-24 < keep, in
+                    // integers: keep 2^24 is exact, so u >> 8 < ceil(keep 2^24).
+                    let threshold = (f64::from(keep) * f64::from(1u32 << 24)).ceil() as u32;
+                    for (m, &u) in mask.iter_mut().zip(draws.iter()) {
+                        *m = if (u >> 8) < threshold { scale } else { T::zero() };
+                    }
+                    for (o, &m) in layer.out[..b * n_out].iter_mut().zip(mask.iter()) {
+                        *o *= m;
+                    }
                 }
             }
             if layer.residual {
@@ -427,136 +421,6 @@ impl<T: Real> Engine<T> {
                 optimizer.update(step, 4 * i + 2, &mut n.gamma, &n.grad_gamma, false);
                 optimizer.update(step, 4 * i + 3, &mut n.beta, &n.grad_beta, false);
             }
-        }
-    }
-}
-
-/// Sums of each column of a rows x `cols` matrix, row by row.
-fn column_sums<T: Real>(m: &[T], cols: usize, out: &mut [T]) {
-    out.fill(T::zero());
-    for row in m.chunks_exact(cols) {
-        for (s, &v) in out.iter_mut().zip(row) {
-            *s += v;
-        }
-    }
-}
-
-/// Batch statistics of `z` (rows x cols) in place: z <- gamma (z - mean) / sqrt(var + eps) + beta
-/// with the biased batch variance; running statistics move by the momentum, with the unbiased
-/// variance (as PyTorch keeps them).
-fn normalise<T: Real>(norm: &mut Norm<T>, z: &mut [T], rows: usize, cols: usize) {
-    let n = T::narrow(rows as f64);
-    let mean = &mut norm.mean;
-    column_sums(z, cols, mean);
-    for m in mean.iter_mut() {
-        *m /= n;
-    }
-    let var = &mut norm.inv_std;
-    var.fill(T::zero());
-    for row in z.chunks_exact(cols) {
-        for ((v, &x), &m) in var.iter_mut().zip(row).zip(mean.iter()) {
-            let c = x - m;
-            *v += c * c;
-        }
-    }
-    let (keep, take_new) = (T::narrow(1.0 - BN_MOMENTUM), T::narrow(BN_MOMENTUM));
-    let unbias = if rows > 1 { T::narrow(rows as f64 / (rows as f64 - 1.0)) } else { T::one() };
-    let eps = T::narrow(BN_EPS);
-    for j in 0..cols {
-        let biased = var[j] / n;
-        norm.running_mean[j] = norm.running_mean[j] * keep + mean[j] * take_new;
-        norm.running_var[j] = norm.running_var[j] * keep + biased * unbias * take_new;
-        var[j] = T::one() / (biased + eps).sqrt();
-    }
-    for (zrow, nrow) in z.chunks_exact_mut(cols).zip(norm.normalised.chunks_exact_mut(cols)) {
-        for j in 0..cols {
-            let x = (zrow[j] - mean[j]) * var[j];
-            nrow[j] = x;
-            zrow[j] = norm.gamma[j] * x + norm.beta[j];
-        }
-    }
-}
-
-/// From the gradient of batch norm's output (in `g`, rows x cols) to that of its input, in
-/// place: dz = gamma inv_std / n (n dy - sum dy - xhat sum(dy xhat)); also d gamma and d beta.
-fn normalise_backward<T: Real>(norm: &mut Norm<T>, g: &mut [T], rows: usize, cols: usize) {
-    column_sums(g, cols, &mut norm.grad_beta);
-    norm.grad_gamma.fill(T::zero());
-    for (grow, nrow) in g.chunks_exact(cols).zip(norm.normalised.chunks_exact(cols)) {
-        for ((s, &dy), &x) in norm.grad_gamma.iter_mut().zip(grow).zip(nrow) {
-            *s += dy * x;
-        }
-    }
-    let n = T::narrow(rows as f64);
-    for (grow, nrow) in g.chunks_exact_mut(cols).zip(norm.normalised.chunks_exact(cols)) {
-        for j in 0..cols {
-            let factor = norm.gamma[j] * norm.inv_std[j] / n;
-            grow[j] = factor * (n * grow[j] - norm.grad_beta[j] - nrow[j] * norm.grad_gamma[j]);
-        }
-    }
-}
-
-const FRAC_1_SQRT_2PI: f64 = 0.398_942_280_401_432_7;
-
-/// `out = f(pre)`; `act` keeps f(pre) too when it is non-empty (sigmoid, tanh).
-fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: &mut [T]) {
-    let half = T::narrow(0.5);
-    let inv_sqrt2 = T::narrow(std::f64::consts::FRAC_1_SQRT_2);
-    let f = |x: T| -> T {
-        match activation {
-            Activation::Relu => {
-                if x > T::zero() {
-                    x
-                } else {
-                    T::zero()
-                }
-            }
-            Activation::Sigmoid => T::one() / (T::one() + (-x).exp()),
-            Activation::Tanh => x.tanh(),
-            Activation::Gelu => half * x * (T::one() + (x * inv_sqrt2).erf()),
-            Activation::Identity => x,
-        }
-    };
-    for (o, &x) in out.iter_mut().zip(pre.iter()) {
-        *o = f(x);
-    }
-    if !act.is_empty() {
-        act[..out.len()].copy_from_slice(out);
-    }
-}
-
-/// In place: `pre <- grad_out * mask * f'(pre)`, one loop per activation so each vectorises.
-fn derivative<T: Real>(activation: Activation, pre: &mut [T], act: &[T], grad_out: &[T], mask: Option<&[T]>) {
-    let half = T::narrow(0.5);
-    let inv_sqrt2 = T::narrow(std::f64::consts::FRAC_1_SQRT_2);
-    let density = T::narrow(FRAC_1_SQRT_2PI);
-    match activation {
-        Activation::Relu => {
-            for (p, &g) in pre.iter_mut().zip(grad_out) {
-                *p = if *p > T::zero() { g } else { T::zero() };
-            }
-        }
-        Activation::Sigmoid => {
-            for ((p, &g), &a) in pre.iter_mut().zip(grad_out).zip(act) {
-                *p = g * (a * (T::one() - a));
-            }
-        }
-        Activation::Tanh => {
-            for ((p, &g), &a) in pre.iter_mut().zip(grad_out).zip(act) {
-                *p = g * (T::one() - a * a);
-            }
-        }
-        Activation::Gelu => {
-            for (p, &g) in pre.iter_mut().zip(grad_out) {
-                let x = *p;
-                *p = g * (half * (T::one() + (x * inv_sqrt2).erf()) + x * density * (-(half * x * x)).exp());
-            }
-        }
-        Activation::Identity => pre.copy_from_slice(grad_out),
-    }
-    if let Some(mask) = mask {
-        for (p, &m) in pre.iter_mut().zip(mask) {
-            *p *= m;
         }
     }
 }

@@ -7,6 +7,7 @@
 
 pub mod dispatch;
 pub mod engine;
+mod host_ops;
 pub mod layers;
 pub mod loss;
 pub mod matmul;

@@ -121,17 +121,13 @@ pub struct Selection {
     pub baseline_config: Option<String>,
     /// The rule that picked `selected_config` (`best` or `one_standard_error`); `best` in
     /// folders of tabcard 0.3, which had no other.
-    #[serde(default = "best_rule")]
-    pub rule: String,
+    #[serde(default)]
+    pub rule: SelectionRule,
     /// The configuration with the best mean validation metric (equal to `selected_config` under
     /// the `best` rule; empty in folders of tabcard 0.3).
     #[serde(default)]
     pub best_config: String,
     pub test: TestEvaluation,
-}
-
-fn best_rule() -> String {
-    "best".into()
 }
 
 impl Selection {
@@ -347,13 +343,13 @@ pub fn evaluate_test(
             let val_out = m.score(validation.0)?;
             let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
             let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
-            youden_threshold(&val_pos, &val_p).map(|(threshold, tpr, fpr)| {
-                let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= threshold) as usize).collect();
+            youden_threshold(&val_pos, &val_p).map(|point| {
+                let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
                 ThresholdReport {
                     rule: "youden_j_on_validation".into(),
-                    threshold,
-                    validation_tpr: tpr,
-                    validation_fpr: fpr,
+                    threshold: point.threshold,
+                    validation_tpr: point.true_positive_rate,
+                    validation_fpr: point.false_positive_rate,
                     confusion: confusion_matrix(rows, &predicted, 2),
                     per_class: per_class(rows, &predicted, 2),
                 }
@@ -435,7 +431,7 @@ pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
         selected_config: picked.selected_config,
         selected_run: picked.selected_run,
         baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
-        rule: m.selection.rule.as_str().into(),
+        rule: m.selection.rule,
         best_config: picked.best_config,
         test,
     })

@@ -79,7 +79,7 @@ pub(crate) fn selection_text(sel: &Selection, direction: &str) -> String {
     let m = &sel.metric;
     let label =
         |id: &str| sel.configs.iter().find(|c| c.config_id == id).map(|c| md(&config_label(&c.overrides, c.baseline))).unwrap_or_default();
-    if sel.rule == SelectionRule::OneStandardError.as_str() {
+    if sel.rule == SelectionRule::OneStandardError {
         let best = sel.configs.iter().find(|c| c.config_id == sel.best_config);
         let best_text = best
             .and_then(|b| b.validation.get(m))

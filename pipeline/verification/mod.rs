@@ -1,0 +1,300 @@
+//! Verification: rerun an experiment from what its results folder records and say, as a typed
+//! [`Verification`], what reproduced. The folder is checked against its integrity list first (a
+//! tampered file is named and nothing is retrained), then the data and the manifest; the runs
+//! are retrained and compared bit for bit, the selection and test metrics re-derived from the
+//! stored runs, the card re-rendered, the results digest compared with the ledger's, and the
+//! environment with the one recorded, because that is the first question an auditor asks.
+//! `commands/verify.rs` prints the result and records the verdict.
+
+mod compare;
+
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::experiment::plan::Plan;
+use crate::experiment::prepared::Prepared;
+use crate::experiment::{open, open_with_data};
+use crate::fingerprint::file_sha256;
+use crate::manifest::LoadedManifest;
+use crate::numerics::NumericsFingerprint;
+use crate::results::Sealed;
+use crate::selection::Selection;
+use crate::store::ledger::VerificationEntry;
+use crate::sweep::{in_pool, train_run, Event, RunReport, SweepInputs};
+use compare::{compare_run, environment_differences};
+
+/// What to verify beyond the selected configuration, and with what.
+pub struct VerifyRequest {
+    /// Retrain every run, not only the selected configuration's.
+    pub all: bool,
+    pub jobs: usize,
+    /// Use this data file instead of the recorded path (it must still match the fingerprints).
+    pub data: Option<PathBuf>,
+}
+
+/// The rerun environment against the recorded one.
+pub enum NumericsCheck {
+    /// The run records no environment to compare with.
+    NotRecorded,
+    Recorded {
+        /// Same tool and kernel versions: identical bits are promised on any CPU.
+        promised: bool,
+        tool_version: String,
+        kernel_version: String,
+        /// One line per differing field, saying whether it bears on the promise.
+        differences: Vec<String>,
+    },
+}
+
+/// One retrained run.
+pub struct RunCheck {
+    pub id: String,
+    pub seed: u64,
+    pub verdict: RunVerdict,
+}
+
+pub enum RunVerdict {
+    /// Weights, history and metrics reproduced bit for bit.
+    Identical,
+    /// Every difference found, first ones first.
+    Differs(Vec<String>),
+    /// The run could not be retrained or read.
+    CannotVerify(String),
+}
+
+/// The stored selection against the one re-derived from the stored runs.
+pub enum SelectionCheck {
+    Matches,
+    Differs,
+    CannotDerive(String),
+}
+
+/// The stored card against the default rendering of the evidence.
+pub enum CardCheck {
+    Matches,
+    /// Expected only after `card --templates` or a changed timing record; not a failure.
+    DiffersFromDefault,
+    CannotRender(String),
+}
+
+/// The folder's results digest against the newest ledger line recording one.
+pub enum LedgerCheck {
+    Matches,
+    Differs { ledgered: String },
+    NotRecorded,
+}
+
+/// Everything a verification found.
+pub struct Verification {
+    pub folder: PathBuf,
+    pub fingerprint: String,
+    pub data_path: PathBuf,
+    pub data_file_sha256: String,
+    pub data_content_sha256: String,
+    pub manifest_sha256: String,
+    pub numerics: NumericsCheck,
+    /// Every run retrained (`true`) or the selected configuration's only.
+    pub all: bool,
+    pub runs: Vec<RunCheck>,
+    pub selection: SelectionCheck,
+    pub card: CardCheck,
+    pub digest: String,
+    pub ledger: LedgerCheck,
+}
+
+impl Verification {
+    /// Every run reproduced, the selection re-derived, the card rendered and the digest is the
+    /// ledger's.
+    pub fn identical(&self) -> bool {
+        self.runs.iter().all(|r| matches!(r.verdict, RunVerdict::Identical))
+            && matches!(self.selection, SelectionCheck::Matches)
+            && !matches!(self.card, CardCheck::CannotRender(_))
+            && !matches!(self.ledger, LedgerCheck::Differs { .. })
+    }
+
+    /// The project folder that holds the results folder (and the ledger).
+    pub fn project_root(&self) -> &Path {
+        self.folder.parent().unwrap_or(Path::new("."))
+    }
+
+    /// The line `verifications.jsonl` records for this verification.
+    pub fn entry(&self) -> VerificationEntry {
+        VerificationEntry {
+            time: crate::provenance::now_rfc3339(),
+            fingerprint: self.fingerprint.clone(),
+            results: crate::store::folder_name(&self.folder),
+            runs_checked: self.runs.len(),
+            identical: self.identical(),
+        }
+    }
+}
+
+/// The results folder a verify target names: the folder itself, or a manifest's folder under the
+/// results root.
+pub fn results_folder(target: &Path, results_root: &Path) -> Result<PathBuf> {
+    if crate::manifest::is_manifest_path(target) {
+        let exp = open(target)?;
+        let folder = results_root.join(exp.short_id());
+        if !folder.exists() {
+            return Err(Error::store(&folder, format!("no results for experiment {} (train it first)", exp.fingerprint)));
+        }
+        return Ok(folder);
+    }
+    Ok(target.to_path_buf())
+}
+
+/// Where the recorded manifest (a path relative to its project root) is now: under the nearest
+/// folder above the results folder that holds it (results usually live inside the project), else
+/// relative to the current folder.
+fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
+    let absolute = results_folder.canonicalize().unwrap_or_else(|_| results_folder.to_path_buf());
+    let found = absolute.ancestors().map(|a| a.join(recorded)).find(|p| p.is_file());
+    found.unwrap_or_else(|| PathBuf::from(recorded))
+}
+
+/// Verify the results folder `folder`: an error when it cannot be verified at all (tampered
+/// folder, changed data or manifest), else what reproduced and what did not.
+pub fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(Event) + Sync)) -> Result<Verification> {
+    let sealed = Sealed::open(folder)?;
+    let (layout, digest, record) = (&sealed.layout, sealed.digest.clone(), &sealed.record);
+    let manifest = sealed.manifest()?;
+    let manifest_path = locate_manifest(&record.manifest_path, &layout.root);
+    let data_path = match &request.data {
+        Some(p) => p.clone(),
+        None => manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path),
+    };
+    let changed = |file_hash: &str| {
+        Error::data(
+            &data_path,
+            None,
+            format!("has changed since training: its SHA-256 is now {file_hash}, the results record {}", record.data.file_sha256),
+        )
+    };
+    // The file is hashed once, by the first pass; a file that fails the first pass is hashed
+    // again only to say whether it is the recorded one.
+    let exp = match open_with_data(LoadedManifest { path: manifest_path, manifest, overridden_by_grid: Vec::new() }, data_path.clone()) {
+        Ok(exp) => exp,
+        Err(e) => match file_sha256(&data_path) {
+            Ok(hash) if hash != record.data.file_sha256 => return Err(changed(&hash)),
+            _ => return Err(e),
+        },
+    };
+    if exp.data.file_sha256 != record.data.file_sha256 {
+        return Err(changed(&exp.data.file_sha256));
+    }
+    if exp.data.content_sha256 != record.data.content_sha256 {
+        return Err(Error::data(
+            &data_path,
+            None,
+            format!("content hash {} differs from the recorded {}", exp.data.content_sha256, record.data.content_sha256),
+        ));
+    }
+    let prepared = Prepared::with_fingerprint(exp, &record.fingerprint)?;
+    let stored_plan: Plan = sealed.plan()?;
+    if stored_plan != prepared.plan {
+        return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));
+    }
+    let stored_prep = sealed.preprocessor()?;
+    if stored_prep != prepared.exp.preprocessor {
+        return Err(Error::store(layout.preprocessor(), "differs from the preprocessor refitted on the training rows"));
+    }
+    let selection: Selection = sealed.selection()?;
+    let specs: Vec<_> = prepared.plan.runs.iter().filter(|r| request.all || r.config_id == selection.selected_config).collect();
+
+    let now = crate::numerics::current()?;
+    let jobs = crate::threads::workers(request.jobs, specs.len())?;
+    let inputs = SweepInputs {
+        layout,
+        plan: &prepared.plan,
+        head: prepared.exp.head(),
+        data: prepared.run_data(),
+        validation_rows: &prepared.exp.splits.validation,
+        preprocessor: &prepared.exp.preprocessor,
+        selection_metric: &prepared.exp.manifest.selection.metric,
+        environment: &now,
+        jobs,
+        shard: None,
+    };
+    on_event(Event::Header(format!("verify {}: retraining {} of {} runs", layout.root.display(), specs.len(), prepared.plan.runs.len())));
+    on_event(Event::Planned {
+        pending: specs.len(),
+        reused: 0,
+        metric: prepared.exp.manifest.selection.metric.clone(),
+        direction: crate::metrics::registry::Direction::of_higher_is_better(selection.higher_is_better),
+    });
+    let runs: Vec<RunCheck> = in_pool(jobs, || {
+        specs
+            .par_iter()
+            .map(|spec| {
+                let differences = (|| {
+                    let stored = sealed.run(&spec.id)?;
+                    let fresh = train_run(&inputs, spec)?;
+                    let differences = compare_run(&stored, &fresh)?;
+                    let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
+                    report.verdict =
+                        Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
+                    on_event(Event::Finished(report));
+                    Ok::<_, Error>(differences)
+                })();
+                let verdict = match differences {
+                    Ok(d) if d.is_empty() => RunVerdict::Identical,
+                    Ok(d) => RunVerdict::Differs(d),
+                    Err(e) => RunVerdict::CannotVerify(e.to_string()),
+                };
+                RunCheck { id: spec.id.clone(), seed: spec.seed, verdict }
+            })
+            .collect()
+    })?;
+
+    let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| sealed.environment(&s.id));
+    let numerics = match recorded_env {
+        Some(recorded) => NumericsCheck::Recorded {
+            promised: recorded.promises_same_bits_as(&now),
+            tool_version: now.tool_version.clone(),
+            kernel_version: now.kernel_version.clone(),
+            differences: environment_differences(&recorded, &now),
+        },
+        None => NumericsCheck::NotRecorded,
+    };
+    // The selection and its one test evaluation, re-derived from the stored runs.
+    let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
+    let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
+    let selection_check = match derived {
+        Ok(derived) if as_value(&derived)? == as_value(&selection)? => SelectionCheck::Matches,
+        Ok(_) => SelectionCheck::Differs,
+        Err(e) => SelectionCheck::CannotDerive(e.to_string()),
+    };
+    let card = match crate::card::render(layout, None, &digest) {
+        Ok((card, _)) if card == sealed.card_text()? => CardCheck::Matches,
+        Ok(_) => CardCheck::DiffersFromDefault,
+        Err(e) => CardCheck::CannotRender(e.to_string()),
+    };
+    let root = layout.root.parent().unwrap_or(Path::new("."));
+    let ledgered = crate::store::ledger::read(root)?
+        .into_iter()
+        .rev()
+        .find(|e| e.fingerprint == record.fingerprint && e.results_digest.is_some())
+        .and_then(|e| e.results_digest);
+    let ledger = match ledgered {
+        Some(d) if d == digest => LedgerCheck::Matches,
+        Some(d) => LedgerCheck::Differs { ledgered: d },
+        None => LedgerCheck::NotRecorded,
+    };
+    Ok(Verification {
+        folder: layout.root.clone(),
+        fingerprint: record.fingerprint.clone(),
+        data_path,
+        data_file_sha256: record.data.file_sha256.clone(),
+        data_content_sha256: record.data.content_sha256.clone(),
+        manifest_sha256: record.manifest_sha256.clone(),
+        numerics,
+        all: request.all,
+        runs,
+        selection: selection_check,
+        card,
+        digest,
+        ledger,
+    })
+}
