@@ -3,8 +3,13 @@
 //!
 //! Data flows one way: manifest + Parquet -> [`experiment::Experiment`] -> [`plan::Plan`] -> runs
 //! -> results store -> card. Everything below `commands` is a library usable without a terminal.
+//!
+//! The public face is what `main.rs`, the tests and the benches name; everything else is
+//! `pub(crate)`, and the `unreachable_pub` lint (an error under CI's `-D warnings`) keeps it so.
 
-pub mod card;
+#![warn(unreachable_pub)]
+
+pub(crate) mod card;
 pub mod commands;
 pub mod data;
 pub mod demo;
@@ -17,15 +22,15 @@ pub mod metrics;
 pub mod nn;
 pub mod numerics;
 pub mod provenance;
-pub mod results;
+pub(crate) mod results;
 pub mod rng;
-pub mod selection;
+pub(crate) mod selection;
 pub mod store;
 pub mod sweep;
-pub mod task;
+pub(crate) mod task;
 pub mod text;
 pub mod threads;
 pub mod training;
-pub mod verification;
+pub(crate) mod verification;
 
 pub use error::{Error, Result};

@@ -13,7 +13,7 @@ use crate::selection::{simpler_within_one_se, Selection};
 
 /// The figures the rules read, gathered once from the stored results by [`gather`].
 #[derive(Debug, Clone, Default)]
-pub struct Evidence {
+pub(crate) struct Evidence {
     pub classification: bool,
     pub train_rows: usize,
     pub parameter_count: usize,
@@ -88,7 +88,7 @@ fn grid_positions(manifest: &Manifest, selected: &PlannedConfig) -> Vec<(String,
 }
 
 /// The scale a metric's seed spread and train-validation gap are judged against, and its name.
-pub fn metric_scale(task: Task, metric: &str, summary: &DataSummary) -> (f64, String) {
+pub(crate) fn metric_scale(task: Task, metric: &str, summary: &DataSummary) -> (f64, String) {
     match registry::find(task, metric).map(|m| m.scale) {
         Some(Scale::ClassPriorLogLoss) => {
             let total: usize = summary.target.classes.iter().map(|c| c.count).sum();
@@ -103,7 +103,7 @@ pub fn metric_scale(task: Task, metric: &str, summary: &DataSummary) -> (f64, St
     }
 }
 
-pub fn gather(
+pub(crate) fn gather(
     manifest: &Manifest,
     record: &ExperimentRecord,
     summary: &DataSummary,

@@ -4,12 +4,12 @@
 //! escaped for markdown before it enters the context; numbers are formatted with fixed digits, so
 //! the card is byte-stable for the same results.
 
-pub mod cells;
-pub mod evidence;
-pub mod figures;
-pub mod limitations;
-pub mod plots;
-pub mod sections;
+pub(crate) mod cells;
+pub(crate) mod evidence;
+pub(crate) mod figures;
+pub(crate) mod limitations;
+pub(crate) mod plots;
+pub(crate) mod sections;
 
 use serde::Serialize;
 
@@ -106,7 +106,7 @@ fn tera(templates: Option<&Path>) -> Result<tera::Tera> {
 }
 
 /// Renders the card text and figures from a results folder without writing anything.
-pub fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -> Result<(String, Vec<(String, String)>)> {
+pub(crate) fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -> Result<(String, Vec<(String, String)>)> {
     let (mut context, figs) = build(layout)?;
     context.provenance.results_digest = results_digest.to_string();
     let ctx = tera::Context::from_serialize(&context).map_err(|e| Error::Internal(format!("card context: {e}")))?;
@@ -124,7 +124,7 @@ pub fn render(layout: &Layout, templates: Option<&Path>, results_digest: &str) -
 
 /// Renders and writes `card.md` and `figures/` (atomically, file by file), naming the results
 /// digest of the evidence, and seals the folder's integrity list. Returns the digest.
-pub fn write_card(layout: &Layout, templates: Option<&Path>) -> Result<String> {
+pub(crate) fn write_card(layout: &Layout, templates: Option<&Path>) -> Result<String> {
     crate::store::integrity::seal(&layout.root, |digest| {
         let (text, figs) = render(layout, templates, digest)?;
         crate::store::create_dir(&layout.figures())?;

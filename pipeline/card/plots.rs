@@ -4,9 +4,7 @@
 
 use std::fmt::Write;
 
-use crate::text::markdown_safe;
-
-pub struct Series {
+pub(crate) struct Series {
     pub name: String,
     pub points: Vec<(f64, f64)>,
     /// Half-widths of error bars, one per point.
@@ -16,7 +14,7 @@ pub struct Series {
     pub colour: usize,
 }
 
-pub struct Chart {
+pub(crate) struct Chart {
     pub title: String,
     pub x_label: String,
     pub y_label: String,
@@ -70,7 +68,7 @@ fn nice_range(lo: f64, hi: f64) -> (f64, f64) {
 }
 
 impl Chart {
-    pub fn render(&self) -> String {
+    pub(crate) fn render(&self) -> String {
         let all: Vec<(f64, f64, f64)> = self
             .series
             .iter()
@@ -213,9 +211,4 @@ impl Chart {
         s.push_str("</svg>\n");
         s
     }
-}
-
-/// Alt text for a figure in the card (escaped for markdown).
-pub fn alt(text: &str) -> String {
-    markdown_safe(text)
 }

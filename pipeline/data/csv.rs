@@ -57,13 +57,9 @@ fn cell(column: &ArrayRef, row: usize, guard: bool) -> Result<String> {
     )))
 }
 
-/// The columns (equal lengths) as CSV text.
-pub fn encode(columns: &[(String, ArrayRef)]) -> Result<String> {
-    encode_with(columns, false)
-}
-
-/// [`encode`], with the spreadsheet formula guard on text cells and column names when `guard`.
-pub fn encode_with(columns: &[(String, ArrayRef)], guard: bool) -> Result<String> {
+/// The columns (equal lengths) as CSV text, with the spreadsheet formula guard on text cells and
+/// column names when `guard`.
+pub(crate) fn encode_with(columns: &[(String, ArrayRef)], guard: bool) -> Result<String> {
     let rows = columns.first().map_or(0, |(_, c)| c.len());
     let mut out = String::new();
     for (i, (name, _)) in columns.iter().enumerate() {
@@ -102,7 +98,7 @@ mod tests {
         assert_eq!(lines[0], "'=name,n,p");
         assert_eq!(lines[1], "\"'=HYPERLINK(\"\"http://x\"\")\",-5,-0.5", "numbers keep their sign");
         assert_eq!(&lines[2..], ["'+1,1,1.0", "'-x,2,2.0", "'@SUM(A1),3,3.0", "plain,4,4.0", "a-b,5,5.0"]);
-        assert!(encode(&columns).unwrap().starts_with("=name,n,p\n\"=HYPERLINK"), "off by default");
+        assert!(encode_with(&columns, false).unwrap().starts_with("=name,n,p\n\"=HYPERLINK"), "off by default");
     }
 
     #[test]
@@ -113,7 +109,7 @@ mod tests {
             ("n".into(), Arc::new(Int64Array::from(vec![Some(-3), Some(0), None]))),
             ("flag".into(), Arc::new(BooleanArray::from(vec![Some(true), Some(false), None]))),
         ];
-        let text = encode(&columns).unwrap();
+        let text = encode_with(&columns, false).unwrap();
         assert_eq!(text, "id,p,n,flag\n\"a,b\",0.1,-3,true\n\"say \"\"hi\"\"\",,0,false\n,1e-7,,\n");
         assert_eq!("1e-7".parse::<f64>().unwrap(), 1e-7);
     }

@@ -2,14 +2,14 @@
 //! target, the data summary, the split and what it lets through, and preprocessing; `scan` is the
 //! first pass over a file, one column (or one chunk of rows) at a time.
 
-pub mod csv;
+pub(crate) mod csv;
 pub mod leakage;
-pub mod order;
+pub(crate) mod order;
 pub mod parquet;
 pub mod prep;
 pub mod roles;
-pub mod scan;
-pub mod source;
+pub(crate) mod scan;
+pub(crate) mod source;
 pub mod split;
 pub mod summary;
 pub mod table;

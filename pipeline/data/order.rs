@@ -8,14 +8,14 @@ use std::hash::{BuildHasherDefault, Hasher};
 /// The `q` quantile (linear interpolation, as [`crate::metrics::bootstrap::quantile_sorted`] on
 /// the values sorted by `f64::total_cmp`), found by selection in linear time; reorders `values`,
 /// which must not be empty.
-pub fn quantile(values: &mut [f64], q: f64) -> f64 {
+pub(crate) fn quantile(values: &mut [f64], q: f64) -> f64 {
     quantiles(values, [q])[0]
 }
 
 /// Several quantiles at once (as [`quantile`] gives each): the order statistics they need are
 /// selected in one pass that splits the values at the middle one and recurses into each side, so
 /// three quantiles cost little more than one. Reorders `values`, which must not be empty.
-pub fn quantiles<const K: usize>(values: &mut [f64], qs: [f64; K]) -> [f64; K] {
+pub(crate) fn quantiles<const K: usize>(values: &mut [f64], qs: [f64; K]) -> [f64; K] {
     let last = values.len() - 1;
     let positions = qs.map(|q| q * last as f64);
     let mut wanted: Vec<usize> = positions.iter().flat_map(|&p| [p.floor() as usize, (p.ceil() as usize).min(last)]).collect();
@@ -45,7 +45,7 @@ fn select_all(values: &mut [f64], offset: usize, wanted: &[usize]) {
 }
 
 /// The least and greatest values by `f64::total_cmp` (so -0.0 is below 0.0, as a sort puts it).
-pub fn min_max(values: &[f64]) -> Option<(f64, f64)> {
+pub(crate) fn min_max(values: &[f64]) -> Option<(f64, f64)> {
     let min = values.iter().copied().min_by(f64::total_cmp)?;
     let max = values.iter().copied().max_by(f64::total_cmp)?;
     Some((min, max))
@@ -54,12 +54,12 @@ pub fn min_max(values: &[f64]) -> Option<(f64, f64)> {
 /// A multiply-and-fold hasher for integer keys: far faster than the default SipHash, and keys are
 /// values from the data or SHA-256 digests, not from an adversary who could gain by colliding them.
 #[derive(Default)]
-pub struct FoldHasher(u64);
+pub(crate) struct FoldHasher(u64);
 
 /// A hash set with [`FoldHasher`].
-pub type FastSet<T> = HashSet<T, BuildHasherDefault<FoldHasher>>;
+pub(crate) type FastSet<T> = HashSet<T, BuildHasherDefault<FoldHasher>>;
 /// A hash map with [`FoldHasher`].
-pub type FastMap<K, V> = std::collections::HashMap<K, V, BuildHasherDefault<FoldHasher>>;
+pub(crate) type FastMap<K, V> = std::collections::HashMap<K, V, BuildHasherDefault<FoldHasher>>;
 
 impl Hasher for FoldHasher {
     fn finish(&self) -> u64 {
@@ -102,7 +102,7 @@ fn mix(mut x: u64) -> u64 {
 /// top byte into 256 buckets, and each bucket is counted in a hash set small enough to stay in
 /// cache (one set over millions of values spent most of its time waiting on memory). Costs 16
 /// bytes a value.
-pub fn distinct(values: &[f64]) -> usize {
+pub(crate) fn distinct(values: &[f64]) -> usize {
     let nans = values.iter().filter(|x| x.is_nan()).count();
     let keys = values.iter().filter(|x| !x.is_nan()).map(|&x| mix((x + 0.0).to_bits()));
     let count_in = |set: &mut FastSet<u64>, bucket: &mut dyn Iterator<Item = u64>| {
@@ -133,7 +133,7 @@ pub fn distinct(values: &[f64]) -> usize {
 
 /// The sum by Neumaier's compensated summation, in the order given: its error does not grow with
 /// the number of values (Neumaier 1974), so a mean over ten million rows keeps its digits.
-pub fn sum(values: impl IntoIterator<Item = f64>) -> f64 {
+pub(crate) fn sum(values: impl IntoIterator<Item = f64>) -> f64 {
     let (mut s, mut c) = (0.0f64, 0.0f64);
     for x in values {
         let t = s + x;

@@ -21,7 +21,7 @@ use crate::manifest::Manifest;
 
 /// Everything the first pass learns.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Scan {
+pub(crate) struct Scan {
     pub rows: usize,
     pub columns: usize,
     /// SHA-256 of the schema and values in row order ([`super::table::Table::content_hash`]).
@@ -65,12 +65,12 @@ fn findings_of(col: &Column, roles: &Roles, keys: &[String], splits: &Splits, fi
 
 /// The most threads the first pass uses: each holds one decoded column and its working copies
 /// (about 32 bytes a row), so more would cost memory the matrices need.
-pub const MAX_SCAN_THREADS: usize = 4;
+pub(crate) const MAX_SCAN_THREADS: usize = 4;
 
 /// Scans `source` for the experiment `m` describes, on its own pool of as many threads as the
 /// process may use, up to [`MAX_SCAN_THREADS`] (the process-wide pool stays single-threaded for
 /// the training kernels). Every result is the same whatever the thread count.
-pub fn scan(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
+pub(crate) fn scan(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
     crate::threads::helper_pool(MAX_SCAN_THREADS, "read the data")?.install(|| scan_in(m, source))
 }
 

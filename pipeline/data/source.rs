@@ -34,7 +34,7 @@ const VALUES_PER_READ: usize = 2 << 20;
 
 /// How many whole columns one read takes for a table of `rows` rows: as many as fit in
 /// [`VALUES_PER_READ`], at least `at_least` (the threads that share them), at most 256.
-pub fn columns_per_read(rows: usize, at_least: usize) -> usize {
+pub(crate) fn columns_per_read(rows: usize, at_least: usize) -> usize {
     (VALUES_PER_READ / rows.max(1)).clamp(at_least.max(1), 256.max(at_least))
 }
 
@@ -79,39 +79,5 @@ impl ColumnSource for ParquetSource {
 
     fn for_each_chunk(&self, names: &[&str], visit: &mut dyn FnMut(usize, &Table) -> Result<()>) -> Result<()> {
         ParquetSource::for_each_chunk(self, names, visit)
-    }
-}
-
-/// A table in memory, named by the file it came from.
-pub struct InMemory<'a> {
-    pub table: &'a Table,
-    pub path: &'a Path,
-}
-
-impl ColumnSource for InMemory<'_> {
-    fn path(&self) -> &Path {
-        self.path
-    }
-
-    fn rows(&self) -> usize {
-        self.table.rows
-    }
-
-    fn names(&self) -> Vec<String> {
-        self.table.columns.iter().map(|c| c.name.clone()).collect()
-    }
-
-    fn is_text(&self, name: &str) -> bool {
-        self.table.column(name).is_some_and(Column::is_text)
-    }
-
-    fn column(&self, name: &str) -> Result<Cow<'_, Column>> {
-        self.table.column(name).map(Cow::Borrowed).ok_or_else(|| Error::data(self.path, Some(name), "is not in the file"))
-    }
-
-    /// The whole table is one chunk.
-    fn for_each_chunk(&self, names: &[&str], visit: &mut dyn FnMut(usize, &Table) -> Result<()>) -> Result<()> {
-        let columns = self.table.columns.iter().filter(|c| names.contains(&c.name.as_str())).cloned().collect();
-        visit(0, &Table { rows: self.table.rows, columns })
     }
 }

@@ -10,7 +10,7 @@ use super::validate::{validate_run_settings, Problem};
 
 /// The settings one configuration of the grid trains with.
 #[derive(Debug, Clone, PartialEq)]
-pub struct GridPoint {
+pub(crate) struct GridPoint {
     /// The grid keys and the values this point gives them (empty without a grid).
     pub overrides: BTreeMap<String, Value>,
     pub model: ModelSpec,
@@ -18,7 +18,7 @@ pub struct GridPoint {
 }
 
 /// Every key a grid may vary: the leaves of the `model` and `training` sections.
-pub fn sweepable_keys() -> Vec<String> {
+pub(crate) fn sweepable_keys() -> Vec<String> {
     fn leaves(prefix: &str, value: &Value, out: &mut Vec<String>) {
         match value {
             Value::Object(map) => {
@@ -62,7 +62,7 @@ fn get_path<'a>(root: &'a Value, dotted: &str) -> Option<&'a Value> {
 }
 
 /// The base settings with `overrides` applied, or a message saying why a value does not fit.
-pub fn apply(base: &Manifest, overrides: &BTreeMap<String, Value>) -> Result<(ModelSpec, TrainingSpec), String> {
+pub(crate) fn apply(base: &Manifest, overrides: &BTreeMap<String, Value>) -> Result<(ModelSpec, TrainingSpec), String> {
     let mut root = serde_json::json!({
         "model": serde_json::to_value(&base.model).map_err(|e| e.to_string())?,
         "training": serde_json::to_value(&base.training).map_err(|e| e.to_string())?,
@@ -83,7 +83,7 @@ fn grid_problem(key: &str, index: Option<usize>, message: String, hint: Option<S
 
 /// Checks grid keys and each value on its own, and rewrites each value in its canonical form (the
 /// form it takes once applied, so `0` and `0.0` for a float setting are the same grid value).
-pub fn normalise(manifest: &mut Manifest) -> Vec<Problem> {
+pub(crate) fn normalise(manifest: &mut Manifest) -> Vec<Problem> {
     let keys = sweepable_keys();
     let mut problems = Vec::new();
     let task = manifest.data.task;
@@ -132,12 +132,12 @@ pub fn normalise(manifest: &mut Manifest) -> Vec<Problem> {
 }
 
 /// The number of grid points (1 without a grid), saturating instead of overflowing.
-pub fn point_count(manifest: &Manifest) -> usize {
+pub(crate) fn point_count(manifest: &Manifest) -> usize {
     manifest.sweep.grid.values().fold(1usize, |n, v| n.saturating_mul(v.len()))
 }
 
 /// The cartesian product of the grid, last key varying fastest, each point validated as a whole.
-pub fn expand(manifest: &Manifest) -> Result<Vec<GridPoint>, Problem> {
+pub(crate) fn expand(manifest: &Manifest) -> Result<Vec<GridPoint>, Problem> {
     let keys: Vec<&String> = manifest.sweep.grid.keys().collect();
     let lists: Vec<&Vec<Value>> = manifest.sweep.grid.values().collect();
     let total = point_count(manifest);
@@ -165,7 +165,7 @@ pub fn expand(manifest: &Manifest) -> Result<Vec<GridPoint>, Problem> {
 }
 /// Keys the manifest sets in their own section that `[sweep.grid]` also sweeps: the grid's values
 /// are the ones trained, so the section's value changes nothing. One sentence per key.
-pub fn overridden_keys(source: &str, manifest: &Manifest) -> Vec<String> {
+pub(crate) fn overridden_keys(source: &str, manifest: &Manifest) -> Vec<String> {
     let Ok(document) = source.parse::<toml::Table>() else { return Vec::new() };
     manifest
         .sweep

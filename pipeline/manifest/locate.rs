@@ -6,14 +6,14 @@ use toml::de::{DeTable, DeValue};
 
 /// A key path as segments; displayed dotted, quoting segments that contain dots.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct KeyPath(pub Vec<String>);
+pub(crate) struct KeyPath(pub Vec<String>);
 
 impl KeyPath {
-    pub fn parse_dotted(dotted: &str) -> Self {
+    pub(crate) fn parse_dotted(dotted: &str) -> Self {
         KeyPath(dotted.split('.').map(str::to_string).collect())
     }
 
-    pub fn child(&self, segment: &str) -> Self {
+    pub(crate) fn child(&self, segment: &str) -> Self {
         let mut v = self.0.clone();
         v.push(segment.to_string());
         KeyPath(v)
@@ -37,7 +37,7 @@ impl std::fmt::Display for KeyPath {
 }
 
 /// 1-based line and column (in characters) of a byte offset.
-pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
+pub(crate) fn line_col(source: &str, offset: usize) -> (usize, usize) {
     let offset = offset.min(source.len());
     let before = &source[..floor_char_boundary(source, offset)];
     let line = before.matches('\n').count() + 1;
@@ -56,7 +56,7 @@ fn floor_char_boundary(s: &str, mut i: usize) -> usize {
 /// The deepest key whose key span, or whose (non-table) value span, contains `offset`. Tables are
 /// searched whether or not their own span covers the offset, because a `[section]` table's span
 /// does not always include its body.
-pub fn key_at(table: &DeTable<'_>, offset: usize) -> Option<(KeyPath, Range<usize>)> {
+pub(crate) fn key_at(table: &DeTable<'_>, offset: usize) -> Option<(KeyPath, Range<usize>)> {
     fn walk(table: &DeTable<'_>, offset: usize, prefix: &KeyPath) -> Option<(KeyPath, Range<usize>)> {
         for (key, value) in table.iter() {
             let path = prefix.child(key.get_ref());
@@ -81,7 +81,7 @@ pub fn key_at(table: &DeTable<'_>, offset: usize) -> Option<(KeyPath, Range<usiz
 }
 
 /// The span of a key path's value (or of the element `index` of an array value).
-pub fn span_of(table: &DeTable<'_>, path: &KeyPath, index: Option<usize>) -> Option<Range<usize>> {
+pub(crate) fn span_of(table: &DeTable<'_>, path: &KeyPath, index: Option<usize>) -> Option<Range<usize>> {
     let mut current = table;
     let (last, parents) = path.0.split_last()?;
     for seg in parents {
@@ -100,7 +100,7 @@ pub fn span_of(table: &DeTable<'_>, path: &KeyPath, index: Option<usize>) -> Opt
 }
 
 /// Levenshtein distance, for "did you mean" hints.
-pub fn edit_distance(a: &str, b: &str) -> usize {
+pub(crate) fn edit_distance(a: &str, b: &str) -> usize {
     let b: Vec<char> = b.chars().collect();
     let mut row: Vec<usize> = (0..=b.len()).collect();
     for (i, ca) in a.chars().enumerate() {
@@ -116,7 +116,7 @@ pub fn edit_distance(a: &str, b: &str) -> usize {
 }
 
 /// The candidate nearest to `word`, if it is close enough to be a plausible misspelling.
-pub fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+pub(crate) fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
     candidates
         .into_iter()
         .map(|c| (edit_distance(word, c), c))

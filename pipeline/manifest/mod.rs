@@ -1,10 +1,10 @@
 //! The experiment manifest: loading a TOML file into a validated, fully resolved [`Manifest`] with
 //! errors that point at file, key, line and column, and its canonical form and hash.
 
-pub mod grid;
-pub mod locate;
-pub mod schema;
-pub mod validate;
+pub(crate) mod grid;
+pub(crate) mod locate;
+pub(crate) mod schema;
+pub(crate) mod validate;
 
 use std::path::{Path, PathBuf};
 use toml::de::DeTable;

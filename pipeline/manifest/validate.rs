@@ -7,7 +7,7 @@ use crate::metrics::registry;
 
 /// One problem found in a manifest.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Problem {
+pub(crate) struct Problem {
     pub key: KeyPath,
     /// Element of an array value the problem belongs to, if any.
     pub index: Option<usize>,
@@ -32,7 +32,7 @@ impl Collector {
 }
 
 /// Checks the parts of a manifest a sweep can vary: model and training settings.
-pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingSpec) -> Vec<Problem> {
+pub(crate) fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingSpec) -> Vec<Problem> {
     let mut c = Collector(Vec::new());
     c.hint(
         !model.hidden.is_empty(),
@@ -117,10 +117,10 @@ pub fn validate_run_settings(task: Task, model: &ModelSpec, training: &TrainingS
 }
 
 /// The columns `predict` writes beside the ids (and `p_<class>` per class probability).
-pub const PREDICT_OUTPUT_COLUMNS: &[&str] = &["prediction", "predicted", "outside_training_range"];
+pub(crate) const PREDICT_OUTPUT_COLUMNS: &[&str] = &["prediction", "predicted", "outside_training_range"];
 
 /// Checks a whole manifest except the grid's values (see `grid.rs`).
-pub fn validate(m: &Manifest) -> Vec<Problem> {
+pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
     let mut c = Collector(Vec::new());
     c.check(!m.experiment.name.trim().is_empty(), "experiment.name", || "must not be empty".into());
     c.check(!m.data.path.trim().is_empty(), "data.path", || "must name a Parquet file".into());

@@ -7,7 +7,7 @@ use crate::rng::{Purpose, Stream};
 
 /// A point estimate with a two-sided percentile interval.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct Interval {
+pub(crate) struct Interval {
     pub estimate: f64,
     pub lower: f64,
     pub upper: f64,
@@ -17,7 +17,7 @@ pub struct Interval {
 }
 
 /// Linear-interpolated quantile of sorted values (numpy's default "linear" method).
-pub fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
+pub(crate) fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
     let pos = q * (sorted.len() - 1) as f64;
     let lo = pos.floor() as usize;
     let hi = pos.ceil() as usize;
@@ -28,7 +28,7 @@ pub fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
 /// evaluates every metric of `metrics` on each index sample, in one pass: each resample is drawn
 /// and scored once, whatever the number of metrics. A metric gets an interval when it is defined
 /// on the full sample and on at least one resample (only those resamples enter its interval).
-pub fn percentile_intervals(
+pub(crate) fn percentile_intervals(
     n: usize,
     resamples: usize,
     level: f64,

@@ -41,7 +41,7 @@ pub struct Kernels<T> {
 }
 
 /// The signature of a tile's kernel (see [`Tile::compute`]).
-pub type TileFn<T> = unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool);
+pub(crate) type TileFn<T> = unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool);
 
 /// One level's tile for element type `T`: its shape and the function that computes it.
 #[derive(Clone, Copy)]
@@ -65,7 +65,7 @@ pub struct Tile<T> {
 /// Safety of every method: the CPU runs the instructions of the implementing type's level, and
 /// `load`/`store` pointers are valid for `WIDTH` elements.
 #[allow(clippy::missing_safety_doc)]
-pub trait Lanes: Copy {
+pub(crate) trait Lanes: Copy {
     type Elem: Copy;
     const WIDTH: usize;
     unsafe fn zero() -> Self;
@@ -222,7 +222,7 @@ unsafe fn scalar_one<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x
 }
 
 /// The scalar kernels: what f64 always uses, and f32 where no vector level runs.
-pub fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
+pub(crate) fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
     Kernels {
         tile: Tile { rows: SCALAR_ROWS, cols: SCALAR_COLS, compute: scalar_tile::<T> },
         across: scalar_across::<T>,
@@ -243,7 +243,7 @@ mod x86 {
     macro_rules! vector_lanes {
         ($name:ident, $register:ty, $width:expr, $features:literal, $zero:ident, $splat:ident, $load:ident, $store:ident, $fma:ident) => {
             #[derive(Clone, Copy)]
-            pub struct $name($register);
+            pub(super) struct $name($register);
 
             impl Lanes for $name {
                 type Elem = f32;
@@ -282,7 +282,7 @@ mod x86 {
 
     /// One lane with the CPU's fused multiply-add instruction.
     #[derive(Clone, Copy)]
-    pub struct Fma1(f32);
+    pub(super) struct Fma1(f32);
 
     impl Lanes for Fma1 {
         type Elem = f32;
@@ -314,41 +314,49 @@ mod x86 {
         }
     }
 
-    pub const ALONG_ROWS: usize = 8;
-    pub const ACROSS_VECTORS: usize = 4;
+    pub(super) const ALONG_ROWS: usize = 8;
+    pub(super) const ACROSS_VECTORS: usize = 4;
 
     #[target_feature(enable = "avx2,fma")]
-    pub unsafe fn fma_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn fma_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
         super::along::<Fma1, ALONG_ROWS>(k, mat, stride, x, out, load)
     }
 
     #[target_feature(enable = "fma")]
-    pub unsafe fn fma_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn fma_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::chain::<Fma1>(k, mat, step, x, out, load)
     }
 
     #[target_feature(enable = "avx2,fma")]
-    pub unsafe fn avx2_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn avx2_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::across::<Ymm, ACROSS_VECTORS>(k, mat, step, x, out, load)
     }
 
     #[target_feature(enable = "avx512f")]
-    pub unsafe fn avx512_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn avx512_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::across::<Zmm, ACROSS_VECTORS>(k, mat, step, x, out, load)
     }
 
-    pub const AVX2_ROWS: usize = 6;
-    pub const AVX2_VECTORS: usize = 2;
-    pub const AVX512_ROWS: usize = 8;
-    pub const AVX512_VECTORS: usize = 2;
+    pub(super) const AVX2_ROWS: usize = 6;
+    pub(super) const AVX2_VECTORS: usize = 2;
+    pub(super) const AVX512_ROWS: usize = 8;
+    pub(super) const AVX512_VECTORS: usize = 2;
 
     #[target_feature(enable = "avx2,fma")]
-    pub unsafe fn avx2_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+    pub(super) unsafe fn avx2_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
         tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 
     #[target_feature(enable = "avx512f")]
-    pub unsafe fn avx512_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+    pub(super) unsafe fn avx512_tile(
+        kc: usize,
+        a: *const f32,
+        strides: (usize, usize),
+        b: *const f32,
+        c: *mut f32,
+        ldc: usize,
+        load: bool,
+    ) {
         tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 }
@@ -361,7 +369,7 @@ mod arm {
     /// Four f32 lanes in one Advanced SIMD register; `vfmaq_f32(acc, a, b)` is acc + a b with one
     /// rounding, lane by lane.
     #[derive(Clone, Copy)]
-    pub struct Quad(float32x4_t);
+    pub(super) struct Quad(float32x4_t);
 
     impl Lanes for Quad {
         type Elem = f32;
@@ -396,7 +404,7 @@ mod arm {
     /// One lane with the scalar fused multiply-add instruction (`fmadd`, part of every aarch64
     /// CPU: `f32::mul_add` compiles to it).
     #[derive(Clone, Copy)]
-    pub struct Fmadd(f32);
+    pub(super) struct Fmadd(f32);
 
     impl Lanes for Fmadd {
         type Elem = f32;
@@ -423,32 +431,32 @@ mod arm {
         }
     }
 
-    pub const ROWS: usize = 8;
-    pub const VECTORS: usize = 2;
-    pub const ALONG_ROWS: usize = 8;
-    pub const ACROSS_VECTORS: usize = 4;
+    pub(super) const ROWS: usize = 8;
+    pub(super) const VECTORS: usize = 2;
+    pub(super) const ALONG_ROWS: usize = 8;
+    pub(super) const ACROSS_VECTORS: usize = 4;
 
     #[target_feature(enable = "neon")]
-    pub unsafe fn neon_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
+    pub(super) unsafe fn neon_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
         tile::<Quad, ROWS, VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 
     #[target_feature(enable = "neon")]
-    pub unsafe fn neon_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn neon_across(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::across::<Quad, ACROSS_VECTORS>(k, mat, step, x, out, load)
     }
 
-    pub unsafe fn fmadd_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn fmadd_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
         super::along::<Fmadd, ALONG_ROWS>(k, mat, stride, x, out, load)
     }
 
-    pub unsafe fn fmadd_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
+    pub(super) unsafe fn fmadd_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::chain::<Fmadd>(k, mat, step, x, out, load)
     }
 }
 
 /// The f32 kernels of `level`. Callers check that the CPU runs the level ([`Level::available`]).
-pub fn f32_kernels(level: Level) -> Kernels<f32> {
+pub(crate) fn f32_kernels(level: Level) -> Kernels<f32> {
     match level {
         Level::Scalar => scalar::<f32>(),
         #[cfg(target_arch = "x86_64")]

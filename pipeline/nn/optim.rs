@@ -150,7 +150,7 @@ fn adam<T: Real>(w: &mut [T], g: &[T], m: &mut [f64], v: &mut [f64], k: &AdamCon
 /// The learning rate at `step` (0-based) of `total` steps: linear warm-up over the first
 /// `warmup_epochs`, then constant, step decay by `step_gamma` every `step_epochs`, or cosine
 /// decay to zero. Uses the pure-Rust `libm`, so the rates are the same on every platform.
-pub fn learning_rate(spec: &TrainingSpec, step: usize, steps_per_epoch: usize) -> f64 {
+pub(crate) fn learning_rate(spec: &TrainingSpec, step: usize, steps_per_epoch: usize) -> f64 {
     let base = spec.learning_rate;
     let warmup = spec.warmup_epochs * steps_per_epoch;
     if step < warmup {

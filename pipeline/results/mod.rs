@@ -37,7 +37,7 @@ fn checked_manifest_text(layout: &Layout, record: &ExperimentRecord) -> Result<S
 }
 
 /// A finished results folder that matched its integrity list when it was opened.
-pub struct Sealed {
+pub(crate) struct Sealed {
     pub layout: Layout,
     /// The results digest (SHA-256 of the evidence lines of the list).
     pub digest: String,
@@ -48,13 +48,13 @@ pub struct Sealed {
 impl Sealed {
     /// Opens `folder` after checking every file against its list, its layout version and the
     /// stored manifest's hash.
-    pub fn open(folder: &Path) -> Result<Self> {
+    pub(crate) fn open(folder: &Path) -> Result<Self> {
         Self::opened(Layout::new(folder), false)
     }
 
     /// As [`Sealed::open`], where the card and figures may differ from the list (they are about
     /// to be rendered anew); temporaries of interrupted writes are removed first.
-    pub fn open_evidence(folder: &Path) -> Result<Self> {
+    pub(crate) fn open_evidence(folder: &Path) -> Result<Self> {
         let layout = Layout::new(folder);
         integrity::remove_temporaries(&layout.root);
         Self::opened(layout, true)
@@ -67,55 +67,55 @@ impl Sealed {
         Ok(Sealed { layout, digest, record, manifest_text })
     }
 
-    pub fn manifest(&self) -> Result<Manifest> {
+    pub(crate) fn manifest(&self) -> Result<Manifest> {
         serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
     }
 
     /// The stored manifest as JSON (for key-by-key comparison).
-    pub fn manifest_value(&self) -> Result<serde_json::Value> {
+    pub(crate) fn manifest_value(&self) -> Result<serde_json::Value> {
         serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
     }
 
-    pub fn selection(&self) -> Result<Selection> {
+    pub(crate) fn selection(&self) -> Result<Selection> {
         read_json(&self.layout.selection())
     }
 
-    pub fn summary(&self) -> Result<DataSummary> {
+    pub(crate) fn summary(&self) -> Result<DataSummary> {
         read_json(&self.layout.data_summary())
     }
 
-    pub fn plan(&self) -> Result<Plan> {
+    pub(crate) fn plan(&self) -> Result<Plan> {
         read_json(&self.layout.plan())
     }
 
-    pub fn preprocessor(&self) -> Result<Preprocessor> {
+    pub(crate) fn preprocessor(&self) -> Result<Preprocessor> {
         read_json(&self.layout.preprocessor())
     }
 
     /// One stored run; an error when it has no folder.
-    pub fn run(&self, id: &str) -> Result<StoredRun> {
+    pub(crate) fn run(&self, id: &str) -> Result<StoredRun> {
         read_run(&self.layout, id)?.ok_or_else(|| Error::store(self.layout.run(id), "is missing"))
     }
 
     /// The stored runs of `plan`, in plan order.
-    pub fn runs(&self, plan: &Plan) -> Result<Vec<StoredRun>> {
+    pub(crate) fn runs(&self, plan: &Plan) -> Result<Vec<StoredRun>> {
         crate::store::run::read_runs(&self.layout, plan)
     }
 
     /// The environment a run recorded, if it can be read.
-    pub fn environment(&self, run_id: &str) -> Option<NumericsFingerprint> {
+    pub(crate) fn environment(&self, run_id: &str) -> Option<NumericsFingerprint> {
         read_json(&self.layout.run(run_id).join(crate::store::run::ENVIRONMENT)).ok()
     }
 
     /// The card as stored.
-    pub fn card_text(&self) -> Result<String> {
+    pub(crate) fn card_text(&self) -> Result<String> {
         std::fs::read_to_string(self.layout.card()).map_err(|e| Error::io(self.layout.card(), "read", e))
     }
 }
 
 /// Everything the card is made from, read once from a results folder (layout version and the
 /// stored manifest's hash checked; the integrity list is the caller's: see the module's doc).
-pub struct StoredResults {
+pub(crate) struct StoredResults {
     pub manifest: Manifest,
     pub record: ExperimentRecord,
     pub summary: DataSummary,
@@ -128,7 +128,7 @@ pub struct StoredResults {
 }
 
 impl StoredResults {
-    pub fn read(layout: &Layout) -> Result<Self> {
+    pub(crate) fn read(layout: &Layout) -> Result<Self> {
         layout.check_format()?;
         let record: ExperimentRecord = read_json(&layout.experiment())?;
         let text = checked_manifest_text(layout, &record)?;
@@ -149,7 +149,7 @@ impl StoredResults {
 }
 
 /// What `train` finds where an experiment's folder goes.
-pub enum Folder {
+pub(crate) enum Folder {
     /// No experiment files yet (or an interrupted first write: `format.json` comes last).
     New,
     /// The experiment files are whole, the sweep is not sealed yet.
@@ -162,7 +162,7 @@ impl Folder {
     /// Inspects `layout` for the experiment whose canonical manifest is `canonical`: an existing
     /// folder must hold that manifest, and a sealed one must match its integrity list (it is
     /// handed back opened, so `train` reads its selection without hashing it again).
-    pub fn inspect(layout: &Layout, canonical: &str) -> Result<Folder> {
+    pub(crate) fn inspect(layout: &Layout, canonical: &str) -> Result<Folder> {
         if !layout.format().exists() {
             return Ok(Folder::New);
         }
@@ -181,26 +181,26 @@ impl Folder {
     }
 
     /// Whether the folder has its integrity list (its selection and card are written).
-    pub fn is_sealed(layout: &Layout) -> bool {
+    pub(crate) fn is_sealed(layout: &Layout) -> bool {
         layout.selection().exists() && layout.root.join(integrity::FILE).exists()
     }
 
     /// The stored runs of `plan` (while `train` selects: the folder is not sealed yet).
-    pub fn stored_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
+    pub(crate) fn stored_runs(layout: &Layout, plan: &Plan) -> Result<Vec<StoredRun>> {
         crate::store::run::read_runs(layout, plan)
     }
 }
 
 /// The run ids of `plan` already stored in the folder `folder` (which need not exist), and those
 /// a `train` would add.
-pub fn stored_and_new_runs(folder: &Path, plan: &Plan) -> (Vec<String>, Vec<String>) {
+pub(crate) fn stored_and_new_runs(folder: &Path, plan: &Plan) -> (Vec<String>, Vec<String>) {
     let layout = Layout::new(folder);
     plan.runs.iter().map(|r| r.id.clone()).partition(|id| crate::store::run::is_run_folder(&layout.run(id)))
 }
 
 /// A folder as `list` shows it: its record, and its selection and timing only when it matches
 /// its integrity list.
-pub struct Listing {
+pub(crate) struct Listing {
     pub record: ExperimentRecord,
     /// Whether the folder has its integrity list.
     pub sealed: bool,
@@ -211,7 +211,7 @@ pub struct Listing {
 }
 
 impl Listing {
-    pub fn read(folder: &Path) -> Result<Self> {
+    pub(crate) fn read(folder: &Path) -> Result<Self> {
         let layout = Layout::new(folder);
         layout.check_format()?;
         let record: ExperimentRecord = read_json(&layout.experiment())?;
@@ -224,7 +224,7 @@ impl Listing {
     }
 
     /// Whether `path` is an experiment's results folder (it holds `format.json`).
-    pub fn is_results_folder(path: &Path) -> bool {
+    pub(crate) fn is_results_folder(path: &Path) -> bool {
         Layout::new(path).format().exists()
     }
 }

@@ -3,7 +3,7 @@
 //! manifest's metric; and one evaluation of the selected configuration on the test split, with
 //! seeded bootstrap intervals for the selected run's test metrics.
 
-pub mod scoring;
+pub(crate) mod scoring;
 
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
@@ -25,14 +25,14 @@ use crate::store::run::StoredRun;
 use crate::training::Labels;
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Spread {
+pub(crate) struct Spread {
     pub mean: f64,
     /// Sample standard deviation across seeds (0 for a single seed).
     pub sd: f64,
     pub n: usize,
 }
 
-pub fn spread(values: &[f64]) -> Option<Spread> {
+pub(crate) fn spread(values: &[f64]) -> Option<Spread> {
     if values.is_empty() {
         return None;
     }
@@ -43,7 +43,7 @@ pub fn spread(values: &[f64]) -> Option<Spread> {
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct ConfigSummary {
+pub(crate) struct ConfigSummary {
     pub config_id: String,
     pub baseline: bool,
     pub overrides: BTreeMap<String, Value>,
@@ -58,7 +58,7 @@ pub struct ConfigSummary {
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct TestEvaluation {
+pub(crate) struct TestEvaluation {
     pub run_id: String,
     pub seed: u64,
     pub rows: usize,
@@ -79,7 +79,7 @@ pub struct TestEvaluation {
 
 /// A decision threshold chosen on validation data and what it does on the test split.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct ThresholdReport {
+pub(crate) struct ThresholdReport {
     /// How the threshold was chosen.
     pub rule: String,
     /// Predict positive when the positive-class probability is at least this.
@@ -92,7 +92,7 @@ pub struct ThresholdReport {
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct GroupMetrics {
+pub(crate) struct GroupMetrics {
     pub column: String,
     pub level: String,
     pub rows: usize,
@@ -106,13 +106,13 @@ pub struct GroupMetrics {
 }
 
 /// A group column's label for each test row (`None` for nulls).
-pub struct GroupColumn {
+pub(crate) struct GroupColumn {
     pub name: String,
     pub labels: Vec<Option<String>>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Selection {
+pub(crate) struct Selection {
     pub metric: String,
     pub higher_is_better: bool,
     pub configs: Vec<ConfigSummary>,
@@ -132,13 +132,13 @@ pub struct Selection {
 
 impl Selection {
     /// The selected configuration's summary across seeds.
-    pub fn selected_summary(&self) -> Option<&ConfigSummary> {
+    pub(crate) fn selected_summary(&self) -> Option<&ConfigSummary> {
         self.configs.iter().find(|c| c.config_id == self.selected_config)
     }
 
     /// A train-minus-validation gap of the selection metric (as `ConfigSummary::gap` stores it),
     /// signed so that positive always means worse on validation, whichever way the metric points.
-    pub fn worse_on_validation(&self, train_minus_validation: f64) -> f64 {
+    pub(crate) fn worse_on_validation(&self, train_minus_validation: f64) -> f64 {
         match crate::metrics::registry::Direction::of_higher_is_better(self.higher_is_better) {
             crate::metrics::registry::Direction::Maximise => train_minus_validation,
             crate::metrics::registry::Direction::Minimise => -train_minus_validation,
@@ -160,7 +160,7 @@ fn spreads<'a>(sets: impl IntoIterator<Item = &'a MetricSet>) -> BTreeMap<String
 }
 
 /// Summaries per configuration, in plan order.
-pub fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSummary> {
+pub(crate) fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSummary> {
     plan.configs
         .iter()
         .map(|c| {
@@ -188,13 +188,13 @@ pub fn summarise(plan: &Plan, runs: &[StoredRun], metric: &str) -> Vec<ConfigSum
 }
 
 /// The standard error of a configuration's mean: its seed standard deviation over sqrt(seeds).
-pub fn standard_error(s: &Spread) -> f64 {
+pub(crate) fn standard_error(s: &Spread) -> f64 {
     s.sd / (s.n.max(1) as f64).sqrt()
 }
 
 /// Non-baseline configurations other than `chosen` with fewer parameters whose mean validation
 /// metric lies within one standard error of `chosen`'s mean (or beyond it, on the better side).
-pub fn simpler_within_one_se<'a>(
+pub(crate) fn simpler_within_one_se<'a>(
     configs: &'a [ConfigSummary],
     chosen: &ConfigSummary,
     metric: &str,
@@ -215,7 +215,7 @@ pub fn simpler_within_one_se<'a>(
 }
 
 /// What [`select`] picked.
-pub struct Picked {
+pub(crate) struct Picked {
     pub configs: Vec<ConfigSummary>,
     pub selected_config: String,
     pub selected_run: String,
@@ -226,7 +226,7 @@ pub struct Picked {
 /// the best, or under `one_standard_error` the one with the fewest parameters within one
 /// standard error of the best (better mean, then plan order, on ties). Within it, the seed with
 /// the best validation value supplies the selected run.
-pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metric: &str, rule: SelectionRule) -> Result<Picked> {
+pub(crate) fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metric: &str, rule: SelectionRule) -> Result<Picked> {
     let dir = direction(task, metric).unwrap_or(Direction::Maximise);
     let configs = summarise(plan, runs, metric);
     let mut best: Option<(&ConfigSummary, f64)> = None;
@@ -271,7 +271,7 @@ pub fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun], metr
 /// Scores the test rows with every seed of the selected configuration; bootstrap intervals for
 /// the selected run, seeded by `bootstrap_seed`.
 #[allow(clippy::too_many_arguments)]
-pub fn evaluate_test(
+pub(crate) fn evaluate_test(
     runs: &[StoredRun],
     selected_config: &str,
     selected_run: &str,
@@ -388,11 +388,11 @@ pub fn evaluate_test(
 
 /// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
 /// working copies (about 60 bytes a test row).
-pub const MAX_BOOTSTRAP_THREADS: usize = 4;
+pub(crate) const MAX_BOOTSTRAP_THREADS: usize = 4;
 
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
 /// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
-pub fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
+pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;

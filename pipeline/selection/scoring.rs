@@ -9,12 +9,10 @@ use crate::nn::engine::{Engine, EVAL_BLOCK};
 use crate::nn::mlp::Mlp;
 use crate::rng::{Purpose, Stream};
 use crate::store::run::StoredRun;
-use crate::training::RunConfig;
 use crate::training::{Head, TargetScaling};
 
-pub struct ScoringModel {
+pub(crate) struct ScoringModel {
     pub head: Head,
-    pub config: RunConfig,
     pub preprocessor: Preprocessor,
     pub scaling: Option<TargetScaling>,
     /// The stored values in the engine that computed them, so scores equal training-time outputs.
@@ -22,7 +20,7 @@ pub struct ScoringModel {
 }
 
 impl ScoringModel {
-    pub fn from_stored(run: &StoredRun) -> Result<Self> {
+    pub(crate) fn from_stored(run: &StoredRun) -> Result<Self> {
         let config = run.config()?;
         let preprocessor = run.preprocessor()?;
         let head = run.record.head;
@@ -30,11 +28,11 @@ impl ScoringModel {
         let mut network = Mlp::new(&config.model, preprocessor.width(), head.outputs(), &mut Stream::new(0, Purpose::Init), DType::F32)?;
         network.load(&run.checked_tensors()?)?;
         let engine = Engine::from_model(&network, EVAL_BLOCK)?;
-        Ok(ScoringModel { head, config, preprocessor, scaling: run.record.target_scaling, engine })
+        Ok(ScoringModel { head, preprocessor, scaling: run.record.target_scaling, engine })
     }
 
     /// Class probabilities (k per row) or predictions for every row of `x`.
-    pub fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
+    pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         crate::numerics::prepare_process();
         let raw = self.engine.evaluate(x);
         Ok(self.head.predictions(&raw, self.scaling))

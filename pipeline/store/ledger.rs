@@ -8,7 +8,7 @@ use std::path::Path;
 use crate::error::{Error, Result};
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct LedgerEntry {
+pub(crate) struct LedgerEntry {
     pub time: String,
     pub experiment: String,
     pub fingerprint: String,
@@ -31,21 +31,21 @@ pub struct LedgerEntry {
     pub results_digest: Option<String>,
 }
 
-pub const FILE: &str = "ledger.jsonl";
+pub(crate) const FILE: &str = "ledger.jsonl";
 
 /// Appends one line with a single write on a file opened for appending.
-pub fn append(results_root: &Path, entry: &LedgerEntry) -> Result<()> {
+pub(crate) fn append(results_root: &Path, entry: &LedgerEntry) -> Result<()> {
     let line = serde_json::to_string(entry).map_err(|e| Error::Internal(format!("ledger line: {e}")))? + "\n";
     append_line(&results_root.join(FILE), line)
 }
 
-pub fn read(results_root: &Path) -> Result<Vec<LedgerEntry>> {
+pub(crate) fn read(results_root: &Path) -> Result<Vec<LedgerEntry>> {
     read_lines(&results_root.join(FILE))
 }
 
 /// One `verify` invocation, appended to `verifications.jsonl` beside the ledger.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct VerificationEntry {
+pub(crate) struct VerificationEntry {
     pub time: String,
     pub fingerprint: String,
     pub results: String,
@@ -53,7 +53,7 @@ pub struct VerificationEntry {
     pub identical: bool,
 }
 
-pub const VERIFICATIONS: &str = "verifications.jsonl";
+pub(crate) const VERIFICATIONS: &str = "verifications.jsonl";
 
 fn append_line(path: &Path, line: String) -> Result<()> {
     let mut f = std::fs::OpenOptions::new().create(true).append(true).open(path).map_err(|e| Error::io(path, "open for appending", e))?;
@@ -61,12 +61,12 @@ fn append_line(path: &Path, line: String) -> Result<()> {
     f.sync_all().map_err(|e| Error::io(path, "sync", e))
 }
 
-pub fn append_verification(results_root: &Path, entry: &VerificationEntry) -> Result<()> {
+pub(crate) fn append_verification(results_root: &Path, entry: &VerificationEntry) -> Result<()> {
     let line = serde_json::to_string(entry).map_err(|e| Error::Internal(format!("ledger line: {e}")))? + "\n";
     append_line(&results_root.join(VERIFICATIONS), line)
 }
 
-pub fn read_verifications(results_root: &Path) -> Result<Vec<VerificationEntry>> {
+pub(crate) fn read_verifications(results_root: &Path) -> Result<Vec<VerificationEntry>> {
     read_lines(&results_root.join(VERIFICATIONS))
 }
 

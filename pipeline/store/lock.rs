@@ -25,18 +25,18 @@ use std::time::{Duration, SystemTime};
 
 use crate::error::{Error, Result};
 
-pub const FILE: &str = ".writer.lock";
+pub(crate) const FILE: &str = ".writer.lock";
 /// How often the holder touches the lock file.
-pub const HEARTBEAT: Duration = Duration::from_secs(60);
+pub(crate) const HEARTBEAT: Duration = Duration::from_secs(60);
 /// How long another host's lock may go untouched before it is taken over.
-pub const STALE_AFTER: Duration = Duration::from_secs(600);
+pub(crate) const STALE_AFTER: Duration = Duration::from_secs(600);
 
 /// The lock lines this process holds right now (a process may hold several folders' locks, and
 /// its threads may wait for each other's).
 static HELD: Mutex<Vec<String>> = Mutex::new(Vec::new());
 
 /// A held lock; released (the file removed) when dropped.
-pub struct WriterLock {
+pub(crate) struct WriterLock {
     path: PathBuf,
     /// The line this process wrote: the lock is removed on drop only while it still holds it.
     holder: String,
@@ -103,7 +103,7 @@ fn stale_because(text: &str, modified: Option<SystemTime>) -> Option<&'static st
 
 /// Takes the lock of the results folder `folder`, waiting while a live process holds it;
 /// `on_wait` is told the holder once.
-pub fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
+pub(crate) fn acquire(folder: &Path, on_wait: &dyn Fn(&str)) -> Result<WriterLock> {
     super::files::create_dir(folder)?;
     let path = folder.join(FILE);
     let mut told = false;

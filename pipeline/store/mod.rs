@@ -4,15 +4,15 @@
 //! `files` holds the primitives (atomic writes, JSON, folders) every other part uses; `layout`
 //! the folder's files and its sealed check; `output` the guard for files users name.
 
-pub mod files;
+pub(crate) mod files;
 pub mod integrity;
-pub mod layout;
-pub mod ledger;
-pub mod lock;
-pub mod output;
+pub(crate) mod layout;
+pub(crate) mod ledger;
+pub(crate) mod lock;
+pub(crate) mod output;
 pub mod run;
-pub mod timing;
-pub mod weights;
+pub(crate) mod timing;
+pub(crate) mod weights;
 
 pub use files::{create_dir, folder_name, read_json, to_json, write_atomic, write_json};
 pub use integrity::remove_temporaries;

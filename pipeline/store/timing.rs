@@ -9,7 +9,7 @@ use std::path::Path;
 use crate::error::{Error, Result};
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct TimingRecord {
+pub(crate) struct TimingRecord {
     /// RFC 3339 UTC time the selection was made.
     pub trained_at: String,
     /// The manifest repository's commit, when the manifest is in git.
@@ -28,27 +28,27 @@ pub struct TimingRecord {
 
 /// One phase of a `train` invocation and its wall time.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Phase {
+pub(crate) struct Phase {
     pub name: String,
     pub seconds: f64,
 }
 
 /// Names of the phases `train` times.
-pub mod phase {
+pub(crate) mod phase {
     /// File hash and the first pass over the data (content hash, checks, summary, split, fit).
-    pub const SCAN: &str = "read, hash and check the data";
+    pub(crate) const SCAN: &str = "read, hash and check the data";
     /// The second pass: the training and validation matrices.
-    pub const MATRICES: &str = "build the training and validation matrices";
-    pub const SWEEP: &str = "train the runs";
+    pub(crate) const MATRICES: &str = "build the training and validation matrices";
+    pub(crate) const SWEEP: &str = "train the runs";
     /// Test matrix, selection and the test evaluation.
-    pub const SELECT: &str = "select and test";
+    pub(crate) const SELECT: &str = "select and test";
 }
 
 impl TimingRecord {
     /// Checks the fields that reach the card. The timing record is outside the integrity list,
     /// so nothing in it is trusted: the time must be an RFC 3339 UTC time as tabcard writes it
     /// (`YYYY-MM-DDTHH:MM:SSZ`), the commit a git object name (40 or 64 hexadecimal digits).
-    pub fn check(&self, path: &Path) -> Result<()> {
+    pub(crate) fn check(&self, path: &Path) -> Result<()> {
         let invalid = |what: String| {
             Error::integrity(
                 path,
@@ -74,7 +74,7 @@ impl TimingRecord {
 }
 
 /// Reads and checks a timing record; `None` when the file is absent.
-pub fn read(path: &Path) -> Result<Option<TimingRecord>> {
+pub(crate) fn read(path: &Path) -> Result<Option<TimingRecord>> {
     if !path.exists() {
         return Ok(None);
     }
@@ -87,7 +87,7 @@ pub fn read(path: &Path) -> Result<Option<TimingRecord>> {
 }
 
 /// `YYYY-MM-DDTHH:MM:SSZ` with every field in its calendar range.
-pub fn is_utc_timestamp(s: &str) -> bool {
+pub(crate) fn is_utc_timestamp(s: &str) -> bool {
     let b = s.as_bytes();
     let digits = |r: std::ops::Range<usize>| -> Option<u32> {
         let part = s.get(r)?;
@@ -105,7 +105,7 @@ pub fn is_utc_timestamp(s: &str) -> bool {
 }
 
 /// A git object name: 40 (SHA-1) or 64 (SHA-256) lowercase hexadecimal digits.
-pub fn is_git_object_name(s: &str) -> bool {
+pub(crate) fn is_git_object_name(s: &str) -> bool {
     (s.len() == 40 || s.len() == 64) && s.bytes().all(|c| c.is_ascii_digit() || (b'a'..=b'f').contains(&c))
 }
 

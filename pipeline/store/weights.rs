@@ -14,7 +14,7 @@ fn le_bytes(values: &[f32]) -> Vec<u8> {
 }
 
 /// SHA-256 of each tensor's shape and little-endian f32 bytes.
-pub fn tensor_digests(tensors: &[NamedTensor]) -> BTreeMap<String, String> {
+pub(crate) fn tensor_digests(tensors: &[NamedTensor]) -> BTreeMap<String, String> {
     tensors
         .iter()
         .map(|t| {
@@ -29,7 +29,7 @@ pub fn tensor_digests(tensors: &[NamedTensor]) -> BTreeMap<String, String> {
 }
 
 /// One digest over every tensor digest in name order.
-pub fn weights_digest(tensors: &[NamedTensor]) -> String {
+pub(crate) fn weights_digest(tensors: &[NamedTensor]) -> String {
     let mut h = Sha256::new();
     for (name, digest) in tensor_digests(tensors) {
         h.update(name.as_bytes());
@@ -40,7 +40,7 @@ pub fn weights_digest(tensors: &[NamedTensor]) -> String {
     hex(&h.finalize())
 }
 
-pub fn encode(tensors: &[NamedTensor]) -> Result<Vec<u8>> {
+pub(crate) fn encode(tensors: &[NamedTensor]) -> Result<Vec<u8>> {
     let buffers: Vec<(String, Vec<usize>, Vec<u8>)> =
         tensors.iter().map(|t| (t.name.clone(), t.shape.clone(), le_bytes(&t.values))).collect();
     let mut views = Vec::with_capacity(buffers.len());
@@ -53,7 +53,7 @@ pub fn encode(tensors: &[NamedTensor]) -> Result<Vec<u8>> {
 }
 
 /// Reads a safetensors file written by [`encode`]; anything else is a store error naming the file.
-pub fn decode(bytes: &[u8], path: &Path) -> Result<Vec<NamedTensor>> {
+pub(crate) fn decode(bytes: &[u8], path: &Path) -> Result<Vec<NamedTensor>> {
     let st = safetensors::SafeTensors::deserialize(bytes)
         .map_err(|e| Error::store(path, format!("unreadable or truncated safetensors file: {e}")))?;
     let mut out = Vec::new();

@@ -2,11 +2,11 @@
 //! [`Labels`]), the seeded training loop ([`train`]), what a run leaves ([`RunResult`]) and the
 //! regularizers a run can use, described once for the manifest and the card.
 
-pub mod config;
-pub mod head;
-pub mod record;
-pub mod regularizers;
-pub mod run;
+pub(crate) mod config;
+pub(crate) mod head;
+pub(crate) mod record;
+pub(crate) mod regularizers;
+pub(crate) mod run;
 
 pub use config::RunConfig;
 pub use head::{Head, Labels, TargetScaling, OBJECTIVE};

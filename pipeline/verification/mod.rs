@@ -26,7 +26,7 @@ use crate::sweep::{in_pool, train_run, Event, RunReport, SweepInputs};
 use compare::{compare_run, environment_differences};
 
 /// What to verify beyond the selected configuration, and with what.
-pub struct VerifyRequest {
+pub(crate) struct VerifyRequest {
     /// Retrain every run, not only the selected configuration's.
     pub all: bool,
     pub jobs: usize,
@@ -35,7 +35,7 @@ pub struct VerifyRequest {
 }
 
 /// The rerun environment against the recorded one.
-pub enum NumericsCheck {
+pub(crate) enum NumericsCheck {
     /// The run records no environment to compare with.
     NotRecorded,
     Recorded {
@@ -49,13 +49,13 @@ pub enum NumericsCheck {
 }
 
 /// One retrained run.
-pub struct RunCheck {
+pub(crate) struct RunCheck {
     pub id: String,
     pub seed: u64,
     pub verdict: RunVerdict,
 }
 
-pub enum RunVerdict {
+pub(crate) enum RunVerdict {
     /// Weights, history and metrics reproduced bit for bit.
     Identical,
     /// Every difference found, first ones first.
@@ -65,14 +65,14 @@ pub enum RunVerdict {
 }
 
 /// The stored selection against the one re-derived from the stored runs.
-pub enum SelectionCheck {
+pub(crate) enum SelectionCheck {
     Matches,
     Differs,
     CannotDerive(String),
 }
 
 /// The stored card against the default rendering of the evidence.
-pub enum CardCheck {
+pub(crate) enum CardCheck {
     Matches,
     /// Expected only after `card --templates` or a changed timing record; not a failure.
     DiffersFromDefault,
@@ -80,14 +80,14 @@ pub enum CardCheck {
 }
 
 /// The folder's results digest against the newest ledger line recording one.
-pub enum LedgerCheck {
+pub(crate) enum LedgerCheck {
     Matches,
     Differs { ledgered: String },
     NotRecorded,
 }
 
 /// Everything a verification found.
-pub struct Verification {
+pub(crate) struct Verification {
     pub folder: PathBuf,
     pub fingerprint: String,
     pub data_path: PathBuf,
@@ -107,7 +107,7 @@ pub struct Verification {
 impl Verification {
     /// Every run reproduced, the selection re-derived, the card rendered and the digest is the
     /// ledger's.
-    pub fn identical(&self) -> bool {
+    pub(crate) fn identical(&self) -> bool {
         self.runs.iter().all(|r| matches!(r.verdict, RunVerdict::Identical))
             && matches!(self.selection, SelectionCheck::Matches)
             && !matches!(self.card, CardCheck::CannotRender(_))
@@ -115,12 +115,12 @@ impl Verification {
     }
 
     /// The project folder that holds the results folder (and the ledger).
-    pub fn project_root(&self) -> &Path {
+    pub(crate) fn project_root(&self) -> &Path {
         self.folder.parent().unwrap_or(Path::new("."))
     }
 
     /// The line `verifications.jsonl` records for this verification.
-    pub fn entry(&self) -> VerificationEntry {
+    pub(crate) fn entry(&self) -> VerificationEntry {
         VerificationEntry {
             time: crate::provenance::now_rfc3339(),
             fingerprint: self.fingerprint.clone(),
@@ -133,7 +133,7 @@ impl Verification {
 
 /// The results folder a verify target names: the folder itself, or a manifest's folder under the
 /// results root.
-pub fn results_folder(target: &Path, results_root: &Path) -> Result<PathBuf> {
+pub(crate) fn results_folder(target: &Path, results_root: &Path) -> Result<PathBuf> {
     if crate::manifest::is_manifest_path(target) {
         let exp = open(target)?;
         let folder = results_root.join(exp.short_id());
@@ -156,7 +156,7 @@ fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
 
 /// Verify the results folder `folder`: an error when it cannot be verified at all (tampered
 /// folder, changed data or manifest), else what reproduced and what did not.
-pub fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(Event) + Sync)) -> Result<Verification> {
+pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(Event) + Sync)) -> Result<Verification> {
     let sealed = Sealed::open(folder)?;
     let (layout, digest, record) = (&sealed.layout, sealed.digest.clone(), &sealed.record);
     let manifest = sealed.manifest()?;

@@ -4,7 +4,7 @@
 use serde::Serialize;
 
 #[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Limitation {
+pub(crate) struct Limitation {
     pub rule: &'static str,
     pub title: String,
     pub finding: String,
@@ -24,15 +24,15 @@ impl Limitation {
     }
 }
 
-pub const MIN_ROWS_PER_PARAMETER: f64 = 10.0;
-pub const MINORITY_SHARE: f64 = 0.10;
-pub const MIN_TEST_ROWS_PER_CLASS: usize = 30;
-pub const MIN_TEST_ROWS_REGRESSION: usize = 100;
+pub(crate) const MIN_ROWS_PER_PARAMETER: f64 = 10.0;
+pub(crate) const MINORITY_SHARE: f64 = 0.10;
+pub(crate) const MIN_TEST_ROWS_PER_CLASS: usize = 30;
+pub(crate) const MIN_TEST_ROWS_REGRESSION: usize = 100;
 /// Seed standard deviation above this share of the metric's scale is flagged.
-pub const SEED_SD_SHARE: f64 = 0.01;
+pub(crate) const SEED_SD_SHARE: f64 = 0.01;
 /// A train-validation gap above this share of the metric's scale is flagged.
-pub const GAP_SHARE: f64 = 0.05;
-pub const ECE_LIMIT: f64 = 0.05;
-pub const MISSING_SHARE: f64 = 0.20;
+pub(crate) const GAP_SHARE: f64 = 0.05;
+pub(crate) const ECE_LIMIT: f64 = 0.05;
+pub(crate) const MISSING_SHARE: f64 = 0.20;
 /// The grid-edge rule applies to keys searched over at least this many ordered values.
-pub const GRID_EDGE_MIN_VALUES: usize = 3;
+pub(crate) const GRID_EDGE_MIN_VALUES: usize = 3;

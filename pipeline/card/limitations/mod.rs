@@ -6,22 +6,22 @@
 //!
 //! Rules live by family (`data`, `fit`, `evaluation`); `RULES` lists them in the card's order.
 
-pub mod data;
-pub mod evaluation;
-pub mod finding;
-pub mod fit;
+pub(crate) mod data;
+pub(crate) mod evaluation;
+pub(crate) mod finding;
+pub(crate) mod fit;
 
-pub use finding::*;
+pub(crate) use finding::*;
 
 use crate::card::evidence::Evidence;
 use data::*;
 use evaluation::*;
 use fit::*;
 
-pub type Rule = fn(&Evidence) -> Option<Limitation>;
+pub(crate) type Rule = fn(&Evidence) -> Option<Limitation>;
 
 /// Every rule by name, in the order the card lists them (serious ones first).
-pub const RULES: &[(&str, Rule)] = &[
+pub(crate) const RULES: &[(&str, Rule)] = &[
     ("no_better_than_chance", no_better_than_chance),
     ("baseline_beats_network", baseline_beats_network),
     ("small_test_split", small_test_split),
@@ -41,7 +41,7 @@ pub const RULES: &[(&str, Rule)] = &[
     ("failed_runs", failed_runs),
 ];
 
-pub fn derive(e: &Evidence) -> Vec<Limitation> {
+pub(crate) fn derive(e: &Evidence) -> Vec<Limitation> {
     RULES.iter().filter_map(|(_, rule)| rule(e)).collect()
 }
 

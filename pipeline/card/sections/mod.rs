@@ -1,8 +1,8 @@
 //! The card's sections, one file each: a typed struct (what the template reads) and the one
 //! function that builds it from the stored results.
 
-pub mod about;
-pub mod capacity;
-pub mod data;
-pub mod provenance;
-pub mod results;
+pub(crate) mod about;
+pub(crate) mod capacity;
+pub(crate) mod data;
+pub(crate) mod provenance;
+pub(crate) mod results;

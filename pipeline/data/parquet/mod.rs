@@ -2,12 +2,12 @@
 //! types: floats, integers, booleans, strings and dictionary-encoded strings, all with nulls; any
 //! other type is an error naming the column and its type. Data files are read here only.
 
-pub mod checks;
-pub mod columns;
-pub mod file;
-pub mod guard;
-pub mod read;
-pub mod write;
+pub(crate) mod checks;
+pub(crate) mod columns;
+pub(crate) mod file;
+pub(crate) mod guard;
+pub(crate) mod read;
+pub(crate) mod write;
 
 pub use columns::CHUNK_ROWS;
 pub use file::ParquetSource;
