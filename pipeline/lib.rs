@@ -21,6 +21,7 @@ pub mod manifest;
 pub mod metrics;
 pub mod nn;
 pub mod numerics;
+pub mod output_schema;
 pub mod provenance;
 pub(crate) mod results;
 pub mod rng;

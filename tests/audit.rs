@@ -115,7 +115,7 @@ fn predict_reproduces_validation_predictions_and_checks_its_input() {
     let scored = read_parquet(&dir.path().join("scored.parquet"));
     let p = scored.column("p_true").unwrap();
     let ids = scored.column("application_id").unwrap();
-    assert!(scored.column("predicted").is_some() && scored.column("outside_training_range").is_some());
+    assert!(scored.column("decision").is_some() && scored.column("outside_training_range").is_some());
     // Bit-for-bit equality with the probabilities recorded at training time.
     let selection: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(folder.join("selection.json")).unwrap()).unwrap();
     let csv =

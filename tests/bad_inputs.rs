@@ -100,6 +100,11 @@ fn target_missing_all_null_partly_null_constant_or_unsupported() {
     let renamed: Vec<(&str, ArrayRef)> = good_columns().into_iter().map(|(n, a)| (if n == "y" { "y2" } else { n }, a)).collect();
     case(renamed, "", "data.parquet: column `y`: named by data.target but not in the file (did you mean `y2`?)");
     case(with(good_columns(), "y", bools(vec![None; 40])), "", "data.parquet: column `y`: is the target but every value is null");
+    case(
+        good_columns(),
+        "\n[decision]\nfavourable = \"no\"\n",
+        "data.parquet: column `y`: has no value `no` named by decision.favourable; its values are [\"false\", \"true\"]",
+    );
     let mut some_null: Vec<Option<bool>> = (0..40).map(|i| Some(i % 2 == 0)).collect();
     some_null[7] = None;
     case(

@@ -244,7 +244,7 @@ fn the_integrity_list_names_only_plain_files_of_the_folder() {
     for path in [outside.to_str().unwrap().to_string(), "../outside.txt".into(), "runs//x".into()] {
         let sha = tabcard::fingerprint::file_sha256(&outside).unwrap();
         std::fs::write(&list, format!("{original}{sha}  {path}\n")).unwrap();
-        verify(&path, "is not `<SHA-256>  <path>` of a listed file");
+        verify(&path, "is not `<SHA-256>  <path>` of a file this list may name");
     }
     std::fs::write(&list, &original).unwrap();
     // An added dot-entry, and a dot-folder.
@@ -498,12 +498,12 @@ fn predict_counts_never_missing_columns_it_imputes_and_refuses_clashing_ids() {
         stdout(&out)
     );
     // An id named like an output column is refused when the manifest is checked.
-    let clash = std::fs::read_to_string(&manifest).unwrap().replace("ids = [\"application_id\"]", "ids = [\"predicted\"]");
+    let clash = std::fs::read_to_string(&manifest).unwrap().replace("ids = [\"application_id\"]", "ids = [\"decision\"]");
     std::fs::write(d.join("clash.toml"), clash).unwrap();
     let out = run_in(d, &["check", "clash.toml"]);
     assert_eq!(out.status.code(), Some(2), "{}", stderr(&out));
     assert!(
-        stderr(&out).contains("key `data.ids[0]`: `predicted` clashes with the name of one of predict's output columns"),
+        stderr(&out).contains("key `data.ids[0]`: `decision` clashes with the name of one of predict's output columns"),
         "{}",
         stderr(&out)
     );

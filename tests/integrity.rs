@@ -12,13 +12,24 @@ use std::path::Path;
 use std::process::Command;
 
 /// The paths `integrity.sha256` lists, in order.
+/// Every file the folder's two lists name: the evidence (`integrity.sha256`), then the records
+/// and rendered files (`records.sha256`).
 fn listed(folder: &Path) -> Vec<String> {
-    std::fs::read_to_string(folder.join("integrity.sha256")).unwrap().lines().map(|l| l.split_once("  ").unwrap().1.to_string()).collect()
+    ["integrity.sha256", "records.sha256"]
+        .iter()
+        .flat_map(|list| {
+            std::fs::read_to_string(folder.join(list))
+                .unwrap()
+                .lines()
+                .map(|l| l.split_once("  ").unwrap().1.to_string())
+                .collect::<Vec<_>>()
+        })
+        .collect()
 }
 
 fn sha256sum_check(folder: &Path) -> Option<bool> {
     Command::new("sha256sum")
-        .args(["-c", "--quiet", "--strict", "integrity.sha256"])
+        .args(["-c", "--quiet", "--strict", "integrity.sha256", "records.sha256"])
         .current_dir(folder)
         .output()
         .ok()
@@ -48,11 +59,19 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     assert!(paths.iter().any(|p| p.starts_with("figures/")) && paths.iter().any(|p| p.ends_with("/weights.safetensors")));
     assert!(!paths.iter().any(|p| p.ends_with("timing.json")), "timing records are left out");
 
-    // The digest: SHA-256 of the evidence lines, named by the card and the ledger.
-    let text = std::fs::read_to_string(folder.join("integrity.sha256")).unwrap();
-    let evidence: String =
-        text.lines().filter(|l| !l.ends_with("  card.md") && !l.contains("  figures/")).map(|l| format!("{l}\n")).collect();
-    let digest = tabcard::fingerprint::sha256_hex(evidence.as_bytes());
+    // Records of place and machine are listed, outside the evidence.
+    let evidence = std::fs::read_to_string(folder.join("integrity.sha256")).unwrap();
+    let records = std::fs::read_to_string(folder.join("records.sha256")).unwrap();
+    for record in ["  location.json", "/environment.json", "  card.md"] {
+        assert!(!evidence.lines().any(|l| l.ends_with(record)), "{record} is outside the evidence");
+        assert!(records.lines().any(|l| l.ends_with(record)), "{record} is in records.sha256");
+    }
+    assert!(paths.iter().any(|p| p == "test-predictions.csv"), "the test split's predictions are evidence");
+
+    // The digest: SHA-256 of the evidence list, named by the card and the ledger.
+    let digest = tabcard::fingerprint::file_sha256(&folder.join("integrity.sha256")).unwrap();
+    let lists = |f: &Path| ["integrity.sha256", "records.sha256"].map(|l| std::fs::read_to_string(f.join(l)).unwrap());
+    let sealed_lists = lists(&folder);
     assert!(std::fs::read_to_string(folder.join("card.md")).unwrap().contains(&format!("`{digest}`")));
     let ledger = std::fs::read_to_string(d.join("results/ledger.jsonl")).unwrap();
     let last: serde_json::Value = serde_json::from_str(ledger.lines().last().unwrap()).unwrap();
@@ -130,7 +149,7 @@ fn every_stored_file_is_under_one_digest_and_tampering_is_named() {
     assert!(stdout(&out).contains("card      matches the card rendered from the stored evidence"), "{}", stdout(&out));
     let out = run_in(d, &["card", folder.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
-    assert_eq!(std::fs::read_to_string(folder.join("integrity.sha256")).unwrap(), text, "re-rendering the card changes no line");
+    assert_eq!(lists(&folder), sealed_lists, "re-rendering the card changes no line");
     // Timing records are outside the list: they may change without breaking the seal.
     std::fs::write(folder.join("timing.json"), "{}\n").unwrap();
     let out = run_in(d, &["compare", folder.to_str().unwrap(), folder.to_str().unwrap()]);

@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 /// Bottom first. A module may use its own layer's module (itself) and any lower layer.
 const LAYERS: &[&[&str]] = &[
     &["error", "task"],
-    &["format", "text", "rng", "fingerprint", "provenance", "threads"],
+    &["format", "text", "rng", "fingerprint", "provenance", "threads", "output_schema"],
     &["metrics"],
     &["manifest"],
     &["data"],

@@ -38,6 +38,8 @@ struct CardContext {
     task: String,
     target: String,
     positive_label: String,
+    /// The deployed decision, leading the card; empty for regression.
+    decision: String,
     data: DataSection,
     capacity: Capacity,
     results: Results,
@@ -77,6 +79,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         } else {
             String::new()
         },
+        decision: sections::decision::lead(&st),
         data: data_section(&st),
         capacity: capacity(&st, selected_cfg, selected_run),
         results: results(&st, &limitations),

@@ -26,7 +26,8 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
         "fingerprint": exp.fingerprint,
         "manifest_sha256": exp.manifest_sha256,
         "tool_version": crate::experiment::TOOL_VERSION,
-        "data": exp.data,
+        "data": { "path": exp.data.path, "file_sha256": exp.data.file_sha256, "content_sha256": exp.data.content_sha256,
+                  "bytes": exp.data.bytes, "outside_project": exp.data_outside_project },
         "split": { "train": exp.splits.train.len(), "validation": exp.splits.validation.len(), "test": exp.splits.test.len() },
         "summary": exp.summary,
         "plan": { "runs": plan.runs.len(), "configurations": plan.configs.len(), "grid": m.sweep.grid, "seeds": m.sweep.seeds },
@@ -57,7 +58,7 @@ pub fn report(exp: &Experiment, plan: &plan::Plan) -> String {
     let _ = writeln!(out, "  data file  sha256 {} ({} bytes)", exp.data.file_sha256, exp.data.bytes);
     let _ = writeln!(out, "  data rows  sha256 {} (schema and values)", exp.data.content_sha256);
     let _ = writeln!(out, "  tool       tabcard {}", crate::experiment::TOOL_VERSION);
-    if exp.data.outside_project {
+    if exp.data_outside_project {
         let _ = writeln!(out, "note: the data file lies outside the project that holds the manifest (its git work tree, or its folder outside git), so it does not travel with a checkout: {}", terminal_safe(&exp.data_path.display().to_string()));
     }
     let s = &exp.summary;

@@ -10,12 +10,13 @@ use std::fmt::Write;
 use std::path::Path;
 use std::sync::Arc;
 
-use crate::data::parquet::{encode, read_table, WriteOptions};
-use crate::data::prep::InputEncoding;
+use crate::data::parquet::{encode_with_metadata, read_table, WriteOptions};
+use crate::data::prep::{InputEncoding, RowFlags};
 use crate::data::summary::DataSummary;
 use crate::data::table::{Column, ColumnValues, Table};
 use crate::error::{Error, Result};
 use crate::manifest::Task;
+use crate::output_schema as schema;
 use crate::results::Sealed;
 use crate::selection::scoring::ScoringModel;
 use crate::store::run::is_run_folder;
@@ -116,8 +117,49 @@ fn passthrough(col: &Column) -> ArrayRef {
     }
 }
 
-/// Scores `input` and returns the output columns and the summary.
-pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(Vec<(String, ArrayRef)>, String)> {
+/// What scored the rows, for the output's metadata (Parquet) or its columns (CSV).
+pub struct Provenance {
+    pub model_id: String,
+    pub results_digest: String,
+    pub experiment: String,
+}
+
+impl Provenance {
+    fn metadata(&self) -> Vec<(String, String)> {
+        vec![
+            (schema::META_SCHEMA_VERSION.into(), schema::VERSION.to_string()),
+            (schema::META_MODEL_ID.into(), self.model_id.clone()),
+            (schema::META_RESULTS_DIGEST.into(), self.results_digest.clone()),
+            (schema::META_EXPERIMENT.into(), self.experiment.clone()),
+        ]
+    }
+
+    /// The CSV form: the same three facts as constant columns.
+    fn columns(&self, rows: usize) -> Vec<(String, ArrayRef)> {
+        let constant = |v: &str| -> ArrayRef { Arc::new(StringArray::from(vec![v; rows])) };
+        vec![
+            (schema::MODEL_ID.into(), constant(&self.model_id)),
+            (schema::RESULTS_DIGEST.into(), constant(&self.results_digest)),
+            (schema::SCHEMA_VERSION.into(), Arc::new(Int64Array::from(vec![i64::from(schema::VERSION); rows]))),
+        ]
+    }
+}
+
+/// A list of column names as one JSON array text (`[]` when empty).
+fn names_json(names: &[String]) -> String {
+    serde_json::to_string(names).unwrap_or_else(|_| "[]".into())
+}
+
+/// What scoring produced: the output columns (scoring-output schema, see
+/// [`crate::output_schema`]), what scored them, and the summary printed.
+pub struct Scored {
+    pub columns: Vec<(String, ArrayRef)>,
+    pub provenance: Provenance,
+    pub report: String,
+}
+
+/// Scores `input` with the stored model `target` names.
+pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Scored> {
     let (folder, run_id) = locate(target)?;
     let summary: DataSummary = folder.summary()?;
     let run = folder.run(&run_id)?;
@@ -125,6 +167,8 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
     if !run.record.outcome.is_completed() {
         return Err(Error::store(&run.dir, format!("holds no model: the run {}", run.record.outcome.describe())));
     }
+    let manifest = folder.manifest()?;
+    let deployed = folder.selection()?.deployed_threshold(folder.layout_version);
     let mut model = ScoringModel::from_stored(&run)?;
     let table = read_table(input)?;
     if table.rows == 0 {
@@ -140,36 +184,58 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
             columns.push((id.clone(), passthrough(col)));
         }
     }
+    columns.push((schema::ROW.into(), Arc::new(Int64Array::from((0..table.rows as i64).collect::<Vec<_>>()))));
     let k = model.head.values_per_row();
+    let labels = &record.class_labels;
     match record.task {
-        Task::Regression => columns.push(("prediction".into(), Arc::new(Float64Array::from(outputs.clone())))),
-        _ => {
-            for (c, label) in record.class_labels.iter().enumerate() {
-                if record.task == Task::Binary && c == 0 {
+        Task::Regression => columns.push((schema::PREDICTION.into(), Arc::new(Float64Array::from(outputs.clone())))),
+        task => {
+            for (c, label) in labels.iter().enumerate() {
+                if task == Task::Binary && c == 0 {
                     continue;
                 }
-                columns
-                    .push((format!("p_{label}"), Arc::new(Float64Array::from(outputs.chunks_exact(k).map(|r| r[c]).collect::<Vec<_>>()))));
+                let p: Vec<f64> = outputs.chunks_exact(k).map(|r| r[c]).collect();
+                columns.push((format!("{}{label}", schema::PROBABILITY_PREFIX), Arc::new(Float64Array::from(p))));
             }
-            let predicted: Vec<String> =
-                outputs.chunks_exact(k).map(|r| record.class_labels[crate::metrics::classification::argmax(r)].clone()).collect();
-            columns.push(("predicted".into(), Arc::new(StringArray::from(predicted))));
+            let decided: Vec<usize> = if task == Task::Binary {
+                outputs.chunks_exact(k).map(|r| usize::from(r[1] >= deployed.value)).collect()
+            } else {
+                outputs.chunks_exact(k).map(crate::metrics::classification::argmax).collect()
+            };
+            columns.push((
+                schema::DECISION.into(),
+                Arc::new(StringArray::from(decided.iter().map(|&c| labels[c].clone()).collect::<Vec<_>>())),
+            ));
+            if task == Task::Binary {
+                columns.push((schema::DECISION_THRESHOLD.into(), Arc::new(Float64Array::from(vec![deployed.value; table.rows]))));
+                let favourable = manifest.decision.as_ref().and_then(|d| d.favourable.as_ref());
+                let flags: Vec<Option<bool>> = decided.iter().map(|&c| favourable.map(|f| labels[c] == *f)).collect();
+                columns.push((schema::DECISION_FAVOURABLE.into(), Arc::new(BooleanArray::from(flags))));
+            }
         }
     }
-    columns.push(("outside_training_range".into(), Arc::new(BooleanArray::from(report.out_of_range.clone()))));
+    columns.push((schema::OUTSIDE_TRAINING_RANGE.into(), Arc::new(BooleanArray::from(report.out_of_range.clone()))));
+    for (name, pick) in [
+        (schema::OUTSIDE_RANGE_COLUMNS, (|f: &RowFlags| &f.out_of_range) as fn(&RowFlags) -> &Vec<String>),
+        (schema::IMPUTED_COLUMNS, |f: &RowFlags| &f.imputed),
+        (schema::UNSEEN_LEVEL_COLUMNS, |f: &RowFlags| &f.unseen_level),
+    ] {
+        let texts: Vec<String> = report.row_flags.iter().map(|f| names_json(pick(f))).collect();
+        columns.push((name.into(), Arc::new(StringArray::from(texts))));
+    }
     if options.keep_extra {
         let used: Vec<&str> =
             model.preprocessor.inputs.iter().map(InputEncoding::name).chain(record.ids.iter().map(String::as_str)).collect();
         for col in table.columns.iter().filter(|c| !used.contains(&c.name.as_str())) {
-            if columns.iter().any(|(n, _)| *n == col.name) {
+            if columns.iter().any(|(n, _)| *n == col.name) || schema::FIXED_NAMES.contains(&col.name.as_str()) {
                 return Err(Error::data(input, Some(&col.name), "clashes with an output column name"));
             }
             columns.push((col.name.clone(), passthrough(col)));
         }
     }
-    // An id named like an output column (`ids = ["predicted"]`) would give two columns of one name.
+    // An id named like an output column (`ids = ["decision"]`) would give two columns of one name.
     for id in &record.ids {
-        if columns.iter().filter(|(n, _)| n == id).count() > 1 {
+        if columns.iter().filter(|(n, _)| n == id).count() > 1 || schema::FIXED_NAMES.contains(&id.as_str()) {
             return Err(Error::data(
                 input,
                 Some(id),
@@ -177,6 +243,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
             ));
         }
     }
+    let provenance = Provenance { model_id: run_id.clone(), results_digest: folder.digest.clone(), experiment: record.fingerprint.clone() };
     let mut out = String::new();
     let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
     let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
@@ -196,15 +263,19 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<(V
             terminal_safe(col)
         );
     }
-    Ok((columns, out))
+    Ok(Scored { columns, provenance, report: out })
 }
 
 pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions) -> Result<String> {
     let format = check_output(output, input, options.force)?;
-    let (columns, mut report) = score(target, input, options)?;
+    let Scored { mut columns, provenance, mut report } = score(target, input, options)?;
     let bytes = match format {
-        OutputFormat::Parquet => encode(columns, WriteOptions::default())?,
-        OutputFormat::Csv => crate::data::csv::encode_with(&columns, options.guard_formulas)?.into_bytes(),
+        OutputFormat::Parquet => encode_with_metadata(columns, WriteOptions::default(), &provenance.metadata())?,
+        OutputFormat::Csv => {
+            let rows = columns.first().map_or(0, |(_, c)| c.len());
+            columns.extend(provenance.columns(rows));
+            crate::data::csv::encode_with(&columns, options.guard_formulas)?.into_bytes()
+        }
     };
     write_atomic(output, &bytes)?;
     let _ = writeln!(report, "wrote     {}", output.display());

@@ -245,6 +245,14 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
         "rule = \"{}\"  # best | one_standard_error (the smallest configuration within one standard error of the best)",
         selection.rule.as_str()
     );
+    if task == Task::Binary {
+        let _ = writeln!(out, "\n[decision]  # the decision the probability feeds");
+        let _ = writeln!(out, "# favourable = \"...\"  # the target value favourable to the person a row describes");
+        let _ = writeln!(
+            out,
+            "threshold = \"youden_j_on_validation\"  # | fixed (with fixed_threshold) | expected_cost (with cost_false_positive, cost_false_negative)"
+        );
+    }
     let sweep = SweepSpec::default();
     let _ = writeln!(out, "\n[sweep]");
     let _ = writeln!(out, "seeds = {:?}  # every configuration is trained once per seed", sweep.seeds);

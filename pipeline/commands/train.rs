@@ -61,6 +61,7 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     let source = std::fs::read(&exp.manifest_path).map_err(|e| Error::io(&exp.manifest_path, "read the manifest", e))?;
     write_atomic(&layout.manifest_source(), &source)?;
     write_json(&layout.experiment(), &exp.record())?;
+    write_json(&layout.location(), &exp.location())?;
     write_json(&layout.data_summary(), &exp.summary)?;
     write_json(&layout.plan(), plan)?;
     write_json(&layout.preprocessor(), preprocessor)?;
@@ -155,8 +156,9 @@ fn select_and_record(
 ) -> Result<(Selection, String)> {
     let selecting = Instant::now();
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
-    let selection = crate::selection::derive(prepared, &runs)?;
+    let crate::selection::Derived { selection, test_predictions } = crate::selection::derive(prepared, &runs)?;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
+    crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
     write_json(&layout.selection(), &selection)?;
     let (git_commit, git_dirty) = git.clone();
     write_json(
@@ -237,7 +239,7 @@ fn summary(
     let _ = writeln!(out, "card     {}", layout.card().display());
     let _ = writeln!(
         out,
-        "digest   {results_digest} (results digest: `sha256sum -c integrity.sha256` in the results folder checks every file)"
+        "digest   {results_digest} (results digest: `sha256sum integrity.sha256`; `sha256sum -c integrity.sha256 records.sha256` in the results folder checks every file)"
     );
     out
 }

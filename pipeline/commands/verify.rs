@@ -25,7 +25,8 @@ pub struct VerifyOutcome {
 
 pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + Sync)) -> Result<VerifyOutcome> {
     let folder = verification::results_folder(target, &options.results_root)?;
-    let request = VerifyRequest { all: options.all, jobs: options.jobs, data: options.data.clone() };
+    let manifest = crate::manifest::is_manifest_path(target).then(|| target.to_path_buf());
+    let request = VerifyRequest { all: options.all, jobs: options.jobs, data: options.data.clone(), manifest };
     let found = verification::verify(&folder, &request, on_event)?;
     let identical = found.identical();
     let mut report = report_text(&found);
@@ -87,14 +88,12 @@ fn report_text(found: &Verification) -> String {
         }
     }
     let _ = match &found.selection {
-        SelectionCheck::Matches => writeln!(
+        SelectionCheck::Matches { test_predictions } => writeln!(
             out,
-            "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals)"
+            "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals){}",
+            if *test_predictions { " and test-predictions.csv" } else { "" }
         ),
-        SelectionCheck::Differs => writeln!(
-            out,
-            "\nselection DIFFERS: selection.json does not match the selection and test metrics re-derived from the stored runs"
-        ),
+        SelectionCheck::Differs(what) => writeln!(out, "\nselection DIFFERS: {what}"),
         SelectionCheck::CannotDerive(e) => writeln!(out, "\nselection CANNOT be re-derived from the stored runs: {e}"),
     };
     let _ = match &found.card {

@@ -90,6 +90,21 @@ pub struct TransformReport {
     /// Rows per column with no value in a column that was never missing in training: imputed,
     /// with no missing-value indicator to tell the network (its scores there are extrapolation).
     pub imputed_unseen_missing: BTreeMap<String, usize>,
+    /// Per row, the columns that flagged it (only from [`Preprocessor::transform`], which scoring
+    /// uses; training's transforms leave it empty).
+    #[serde(skip)]
+    pub row_flags: Vec<RowFlags>,
+}
+
+/// The columns that flagged one scored row, each list in the preprocessor's input order.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct RowFlags {
+    /// Numeric columns whose value lies outside the training range.
+    pub out_of_range: Vec<String>,
+    /// Columns with no value, filled with the training fill value.
+    pub imputed: Vec<String>,
+    /// Categorical columns holding a level unseen in training.
+    pub unseen_level: Vec<String>,
 }
 
 /// Minimum, median (linear interpolation, as `quantile_sorted(_, 0.5)` on the sorted values) and
@@ -190,6 +205,7 @@ impl Preprocessor {
     /// Encodes rows `rows` of `table` (any table with the training columns, by name).
     pub fn transform(&self, table: &Table, rows: &[usize], file: &Path) -> Result<(Matrix, TransformReport)> {
         let mut out = Encoded::new(self.width(), rows);
+        out.report.row_flags = vec![RowFlags::default(); rows.len()];
         let mut offset = 0;
         for enc in &self.inputs {
             let name = enc.name();
@@ -265,6 +281,14 @@ impl<'a> Encoded<'a> {
                     };
                     if !missing && (value < *train_min || value > *train_max) {
                         report.out_of_range[i] = true;
+                        if let Some(flags) = report.row_flags.get_mut(i) {
+                            flags.out_of_range.push(name.to_string());
+                        }
+                    }
+                    if missing {
+                        if let Some(flags) = report.row_flags.get_mut(i) {
+                            flags.imputed.push(name.to_string());
+                        }
                     }
                     let standardised = ((value - mean) / scale) as f32;
                     if !standardised.is_finite() {
@@ -297,6 +321,9 @@ impl<'a> Encoded<'a> {
                 let (mut unseen, mut imputed) = (0usize, 0usize);
                 for (i, &r) in rows.iter().enumerate() {
                     let slot = if !col.is_valid(r) {
+                        if let Some(flags) = report.row_flags.get_mut(i) {
+                            flags.imputed.push(name.to_string());
+                        }
                         if *indicator {
                             m.data[i * width + offset + levels.len() + 1] = 1.0;
                         } else {
@@ -311,6 +338,9 @@ impl<'a> Encoded<'a> {
                     };
                     if slot == unseen_slot {
                         unseen += 1;
+                        if let Some(flags) = report.row_flags.get_mut(i) {
+                            flags.unseen_level.push(name.to_string());
+                        }
                     }
                     m.data[i * width + offset + slot] = 1.0;
                 }

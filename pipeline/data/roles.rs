@@ -338,6 +338,11 @@ pub fn encode_target(m: &Manifest, col: &Column, file: &Path) -> Result<Target> 
                         None => return Err(err(format!("has no value `{pos}` named by data.positive_label; its values are {labels:?}"))),
                     }
                 }
+                if let Some(favourable) = m.decision.as_ref().and_then(|d| d.favourable.as_ref()) {
+                    if !labels.contains(favourable) {
+                        return Err(err(format!("has no value `{favourable}` named by decision.favourable; its values are {labels:?}")));
+                    }
+                }
             } else if labels.len() == 2 {
                 return Err(err("has 2 distinct values; use task = \"binary\"".into()));
             }

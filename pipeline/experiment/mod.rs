@@ -32,12 +32,31 @@ pub struct DataFingerprints {
     /// SHA-256 of the schema and values in row order, independent of the file's encoding.
     pub content_sha256: String,
     pub bytes: u64,
-    /// Whether the file lies outside the project that holds the manifest (the git work tree, or
-    /// the manifest's folder outside git), through `..`, an absolute path or a symlink: such a
-    /// file does not travel with a checkout. No absolute path is recorded. (tabcard 0.3 recorded
-    /// `outside_manifest_folder`, read here under this name.)
-    #[serde(alias = "outside_manifest_folder")]
-    pub outside_project: bool,
+}
+
+/// Where an experiment was trained from (`location.json`): it differs between a git checkout and
+/// a plain copy of the same project, so from results layout 4 it is a record outside the
+/// evidence; layouts 2 and 3 kept it inside `experiment.json`.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Location {
+    /// The manifest's path relative to its project root (the git work tree holding it, or its own
+    /// folder outside git), with `/` separators.
+    pub manifest_path: String,
+    /// Whether the data file lies outside that project, through `..`, an absolute path or a
+    /// symlink: such a file does not travel with a checkout. No absolute path is recorded.
+    pub data_outside_project: bool,
+}
+
+impl Location {
+    /// The location a layout-2 or layout-3 `experiment.json` holds (`manifest_path`, and
+    /// `data.outside_project`, which tabcard 0.3 named `outside_manifest_folder`).
+    pub fn from_old_record(record: &serde_json::Value) -> Location {
+        let data = &record["data"];
+        Location {
+            manifest_path: record["manifest_path"].as_str().unwrap_or_default().to_string(),
+            data_outside_project: data["outside_project"].as_bool().or_else(|| data["outside_manifest_folder"].as_bool()).unwrap_or(false),
+        }
+    }
 }
 
 pub struct Experiment {
@@ -46,6 +65,8 @@ pub struct Experiment {
     pub manifest_sha256: String,
     pub data_path: PathBuf,
     pub data: DataFingerprints,
+    /// Whether the data file lies outside the manifest's project ([`Location`]).
+    pub data_outside_project: bool,
     pub fingerprint: String,
     /// The data file, open: the matrices and the test evaluation read it again, a column at a time.
     pub source: ParquetSource,
@@ -108,16 +129,11 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
     let content = scanned.content_sha256;
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
-    let outside_project = outside(&loaded.path, &data_path);
+    let data_outside_project = outside(&loaded.path, &data_path);
     Ok(Experiment {
         manifest_path: loaded.path,
-        data: DataFingerprints {
-            path: loaded.manifest.data.path.clone(),
-            file_sha256: file_hash,
-            content_sha256: content,
-            bytes,
-            outside_project,
-        },
+        data: DataFingerprints { path: loaded.manifest.data.path.clone(), file_sha256: file_hash, content_sha256: content, bytes },
+        data_outside_project,
         manifest: loaded.manifest,
         manifest_sha256,
         data_path,
@@ -134,14 +150,12 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     })
 }
 
-/// What `experiment.json` records about an experiment.
+/// What `experiment.json` records about an experiment: evidence only, the same wherever the
+/// project lies (its [`Location`] is read beside it).
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ExperimentRecord {
     pub fingerprint: String,
     pub name: String,
-    /// The manifest's path relative to its project root (the git work tree holding it, or its own
-    /// folder outside git), with `/` separators: the same in every checkout.
-    pub manifest_path: String,
     pub manifest_sha256: String,
     pub data: DataFingerprints,
     pub task: crate::manifest::Task,
@@ -154,6 +168,10 @@ pub struct ExperimentRecord {
     /// SHA-256 of the three row lists, so a rerun can show its split is the same.
     pub split_sha256: String,
     pub tool_version: String,
+    /// Where it was trained from: `location.json` from layout 4, this file's own fields before;
+    /// filled in by the results reader.
+    #[serde(skip)]
+    pub location: Location,
 }
 
 impl Experiment {
@@ -162,7 +180,6 @@ impl Experiment {
         ExperimentRecord {
             fingerprint: self.fingerprint.clone(),
             name: self.manifest.experiment.name.clone(),
-            manifest_path: crate::provenance::project_relative(&self.manifest_path),
             manifest_sha256: self.manifest_sha256.clone(),
             data: self.data.clone(),
             task: self.manifest.data.task,
@@ -176,6 +193,15 @@ impl Experiment {
             split_rows: [self.splits.train.len(), self.splits.validation.len(), self.splits.test.len()],
             split_sha256: crate::fingerprint::sha256_hex(split_text.as_bytes()),
             tool_version: TOOL_VERSION.to_string(),
+            location: self.location(),
+        }
+    }
+
+    /// Where this experiment is trained from.
+    pub fn location(&self) -> Location {
+        Location {
+            manifest_path: crate::provenance::project_relative(&self.manifest_path),
+            data_outside_project: self.data_outside_project,
         }
     }
 

@@ -20,6 +20,73 @@ pub struct Manifest {
     pub selection: SelectionSpec,
     #[serde(default)]
     pub sweep: SweepSpec,
+    /// The decision the model's output feeds (binary tasks); absent: Youden's J on validation,
+    /// no favourable outcome declared.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub decision: Option<DecisionSpec>,
+}
+
+/// The declared decision: which outcome favours the person, and how the deployed threshold on
+/// the positive-class probability is set (positive when the probability is at least it).
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DecisionSpec {
+    /// The class label whose outcome is favourable to the person the row describes (for a lease
+    /// default model, the label of "no default").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub favourable: Option<String>,
+    #[serde(default)]
+    pub threshold: ThresholdRule,
+    /// With `threshold = "fixed"`: the threshold itself, in (0, 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fixed_threshold: Option<f64>,
+    /// With `threshold = "expected_cost"`: the cost of a false positive (a row predicted positive
+    /// whose outcome is negative) and of a false negative, in any one unit.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cost_false_positive: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cost_false_negative: Option<f64>,
+}
+
+impl DecisionSpec {
+    /// The threshold the rule gives without looking at data: the fixed one, or the expected-cost
+    /// one, c_FP / (c_FP + c_FN) (Elkan 2001, "The foundations of cost-sensitive learning",
+    /// Theorem 1 with zero cost for correct decisions; it assumes calibrated probabilities).
+    /// `None` for a rule chosen on validation data.
+    pub fn threshold_without_data(&self) -> Option<f64> {
+        match self.threshold {
+            ThresholdRule::YoudenJOnValidation => None,
+            ThresholdRule::Fixed => self.fixed_threshold,
+            ThresholdRule::ExpectedCost => match (self.cost_false_positive, self.cost_false_negative) {
+                (Some(fp), Some(fn_)) => Some(fp / (fp + fn_)),
+                _ => None,
+            },
+        }
+    }
+}
+
+/// How the deployed threshold is set.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ThresholdRule {
+    /// The threshold maximising Youden's J (true-positive rate minus false-positive rate) on the
+    /// validation rows (Youden 1950).
+    #[default]
+    YoudenJOnValidation,
+    /// A threshold the manifest states.
+    Fixed,
+    /// The threshold minimising expected cost from stated costs of errors (Elkan 2001).
+    ExpectedCost,
+}
+
+impl ThresholdRule {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ThresholdRule::YoudenJOnValidation => "youden_j_on_validation",
+            ThresholdRule::Fixed => "fixed",
+            ThresholdRule::ExpectedCost => "expected_cost",
+        }
+    }
 }
 
 /// Who owns the experiment and what the model is for.

@@ -116,8 +116,9 @@ pub(crate) fn validate_run_settings(task: Task, model: &ModelSpec, training: &Tr
     c.0
 }
 
-/// The columns `predict` writes beside the ids (and `p_<class>` per class probability).
-pub(crate) const PREDICT_OUTPUT_COLUMNS: &[&str] = &["prediction", "predicted", "outside_training_range"];
+/// The columns `predict` writes beside the ids, and those reserved for later versions (and
+/// `p_<class>` per class probability, checked when the classes are known).
+use crate::output_schema::FIXED_NAMES as PREDICT_OUTPUT_COLUMNS;
 
 /// Checks a whole manifest except the grid's values (see `grid.rs`).
 pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
@@ -248,7 +249,38 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
         });
     }
     c.check(m.sweep.max_runs >= 1, "sweep.max_runs", || "must be at least 1".into());
+    if let Some(d) = &m.decision {
+        validate_decision(&mut c, m.data.task, d);
+    }
     c.0
+}
+
+/// The declared decision: binary tasks only, each rule with exactly the keys it uses.
+fn validate_decision(c: &mut Collector, task: Task, d: &DecisionSpec) {
+    c.check(task == Task::Binary, "decision", || {
+        format!("only applies to task = \"binary\" (this task is {}): a threshold decides between two classes", task.as_str())
+    });
+    let fixed = d.threshold == ThresholdRule::Fixed;
+    let cost = d.threshold == ThresholdRule::ExpectedCost;
+    match d.fixed_threshold {
+        Some(t) => {
+            c.check(fixed, "decision.fixed_threshold", || "only applies with threshold = \"fixed\"".into());
+            c.check(t > 0.0 && t < 1.0, "decision.fixed_threshold", || format!("must be in (0, 1), got {t:?}"));
+        }
+        None => c.check(!fixed, "decision.threshold", || "\"fixed\" needs decision.fixed_threshold".into()),
+    }
+    for (key, value) in [("decision.cost_false_positive", d.cost_false_positive), ("decision.cost_false_negative", d.cost_false_negative)] {
+        match value {
+            Some(v) => {
+                c.check(cost, key, || "only applies with threshold = \"expected_cost\"".into());
+                c.check(v.is_finite() && v > 0.0, key, || format!("must be a positive number, got {v:?}"));
+            }
+            None => c.check(!cost, "decision.threshold", || format!("\"expected_cost\" needs {key}")),
+        }
+    }
+    if let Some(f) = &d.favourable {
+        c.check(!f.trim().is_empty(), "decision.favourable", || "must name one of the target's two values".into());
+    }
 }
 
 /// The largest seed a manifest may hold: TOML integers are 64-bit signed (TOML 1.0, "Integer"),

@@ -226,6 +226,27 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<Operatin
     best.map(|(_, point)| point)
 }
 
+/// The true- and false-positive rates of predicting positive for p >= `threshold`; `None`
+/// without both classes.
+pub fn operating_point_at(is_positive: &[bool], scores: &[f64], threshold: f64) -> Option<OperatingPoint> {
+    let n_pos = is_positive.iter().filter(|&&p| p).count();
+    let n_neg = is_positive.len() - n_pos;
+    if n_pos == 0 || n_neg == 0 {
+        return None;
+    }
+    let (mut tp, mut fp) = (0usize, 0usize);
+    for (&positive, &p) in is_positive.iter().zip(scores) {
+        if p >= threshold {
+            if positive {
+                tp += 1;
+            } else {
+                fp += 1;
+            }
+        }
+    }
+    Some(OperatingPoint { threshold, true_positive_rate: tp as f64 / n_pos as f64, false_positive_rate: fp as f64 / n_neg as f64 })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -15,7 +15,7 @@ use crate::data::prep::Preprocessor;
 use crate::data::summary::DataSummary;
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
-use crate::experiment::ExperimentRecord;
+use crate::experiment::{ExperimentRecord, Location};
 use crate::manifest::Manifest;
 use crate::numerics::NumericsFingerprint;
 use crate::selection::Selection;
@@ -36,12 +36,24 @@ fn checked_manifest_text(layout: &Layout, record: &ExperimentRecord) -> Result<S
     Ok(text)
 }
 
+/// The experiment record with its location: from `location.json` (layout 4), else from the
+/// fields layouts 2 and 3 kept in `experiment.json` itself.
+fn read_record(layout: &Layout) -> Result<ExperimentRecord> {
+    let value: serde_json::Value = read_json(&layout.experiment())?;
+    let mut record: ExperimentRecord =
+        serde_json::from_value(value.clone()).map_err(|e| Error::store(layout.experiment(), format!("unreadable: {e}")))?;
+    record.location = if layout.location().exists() { read_json(&layout.location())? } else { Location::from_old_record(&value) };
+    Ok(record)
+}
+
 /// A finished results folder that matched its integrity list when it was opened.
 pub(crate) struct Sealed {
     pub layout: Layout,
     /// The results digest (SHA-256 of the evidence lines of the list).
     pub digest: String,
     pub record: ExperimentRecord,
+    /// The results layout version the folder was written in.
+    pub layout_version: u32,
     manifest_text: String,
 }
 
@@ -62,9 +74,10 @@ impl Sealed {
 
     fn opened(layout: Layout, rendered_may_differ: bool) -> Result<Self> {
         let digest = if rendered_may_differ { layout.check_sealed_evidence()? } else { layout.check_sealed()? };
-        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        let record = read_record(&layout)?;
         let manifest_text = checked_manifest_text(&layout, &record)?;
-        Ok(Sealed { layout, digest, record, manifest_text })
+        let layout_version = layout.check_format()?.version;
+        Ok(Sealed { layout, digest, record, layout_version, manifest_text })
     }
 
     pub(crate) fn manifest(&self) -> Result<Manifest> {
@@ -107,6 +120,15 @@ impl Sealed {
         read_json(&self.layout.run(run_id).join(crate::store::run::ENVIRONMENT)).ok()
     }
 
+    /// The stored test-split predictions; `None` in folders before layout 4, which have none.
+    pub(crate) fn test_predictions_text(&self) -> Result<Option<String>> {
+        let path = self.layout.test_predictions();
+        if !path.exists() {
+            return Ok(None);
+        }
+        std::fs::read_to_string(&path).map(Some).map_err(|e| Error::io(&path, "read", e))
+    }
+
     /// The card as stored.
     pub(crate) fn card_text(&self) -> Result<String> {
         std::fs::read_to_string(self.layout.card()).map_err(|e| Error::io(self.layout.card(), "read", e))
@@ -116,6 +138,8 @@ impl Sealed {
 /// Everything the card is made from, read once from a results folder (layout version and the
 /// stored manifest's hash checked; the integrity list is the caller's: see the module's doc).
 pub(crate) struct StoredResults {
+    /// The results layout version the folder was written in.
+    pub layout_version: u32,
     pub manifest: Manifest,
     pub record: ExperimentRecord,
     pub summary: DataSummary,
@@ -129,13 +153,14 @@ pub(crate) struct StoredResults {
 
 impl StoredResults {
     pub(crate) fn read(layout: &Layout) -> Result<Self> {
-        layout.check_format()?;
-        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        let layout_version = layout.check_format()?.version;
+        let record = read_record(layout)?;
         let text = checked_manifest_text(layout, &record)?;
         let manifest: Manifest = serde_json::from_str(&text).map_err(|e| Error::store(layout.manifest(), format!("unreadable: {e}")))?;
         let plan: Plan = read_json(&layout.plan())?;
         let runs = crate::store::run::read_runs(layout, &plan)?;
         Ok(StoredResults {
+            layout_version,
             manifest,
             record,
             summary: read_json(&layout.data_summary())?,
@@ -214,7 +239,7 @@ impl Listing {
     pub(crate) fn read(folder: &Path) -> Result<Self> {
         let layout = Layout::new(folder);
         layout.check_format()?;
-        let record: ExperimentRecord = read_json(&layout.experiment())?;
+        let record = read_record(&layout)?;
         // Nothing from a folder is shown as fact before it matches its integrity list.
         let sealed = layout.root.join(integrity::FILE).exists();
         let integrity_error = if sealed { integrity::check(&layout.root).err().map(|e| e.to_string()) } else { None };

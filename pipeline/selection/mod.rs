@@ -13,11 +13,11 @@ use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
-use crate::manifest::SelectionRule;
+use crate::manifest::{DecisionSpec, SelectionRule, ThresholdRule};
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
-use crate::metrics::classification::youden_threshold;
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
+use crate::metrics::classification::{operating_point_at, youden_threshold};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
 use crate::selection::scoring::ScoringModel;
@@ -77,10 +77,11 @@ pub(crate) struct TestEvaluation {
     pub chosen_threshold: Option<ThresholdReport>,
 }
 
-/// A decision threshold chosen on validation data and what it does on the test split.
+/// The deployed decision threshold (layout 4; in earlier folders a threshold reported beside
+/// the deployed 0.5), its rates on the validation rows and what it does on the test split.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub(crate) struct ThresholdReport {
-    /// How the threshold was chosen.
+    /// How the threshold was set (`youden_j_on_validation`, `fixed`, `expected_cost`).
     pub rule: String,
     /// Predict positive when the positive-class probability is at least this.
     pub threshold: f64,
@@ -89,6 +90,11 @@ pub(crate) struct ThresholdReport {
     pub validation_fpr: f64,
     pub confusion: Vec<Vec<usize>>,
     pub per_class: Vec<ClassReport>,
+    /// The stated costs of a false positive and a false negative (`expected_cost` only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cost_false_positive: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cost_false_negative: Option<f64>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -130,7 +136,30 @@ pub(crate) struct Selection {
     pub test: TestEvaluation,
 }
 
+/// The threshold a binary model decides at, as deployed.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct DeployedThreshold {
+    pub value: f64,
+    /// The threshold report it comes from; `None` for 0.5 in a folder trained before the declared
+    /// decision (layout 4), or when the rule had no validation rows of both classes.
+    pub report: Option<ThresholdReport>,
+}
+
+/// The first results layout whose threshold report is the deployed decision.
+pub(crate) const DECLARED_DECISION_FROM: u32 = 4;
+
 impl Selection {
+    /// The threshold `predict` decides at for a binary model in a folder of layout
+    /// `layout_version`: the recorded rule's from layout 4, else 0.5.
+    pub(crate) fn deployed_threshold(&self, layout_version: u32) -> DeployedThreshold {
+        match &self.test.chosen_threshold {
+            Some(report) if layout_version >= DECLARED_DECISION_FROM => {
+                DeployedThreshold { value: report.threshold, report: Some(report.clone()) }
+            }
+            _ => DeployedThreshold { value: 0.5, report: None },
+        }
+    }
+
     /// The selected configuration's summary across seeds.
     pub(crate) fn selected_summary(&self) -> Option<&ConfigSummary> {
         self.configs.iter().find(|c| c.config_id == self.selected_config)
@@ -281,7 +310,8 @@ pub(crate) fn evaluate_test(
     bootstrap_seed: u64,
     group_columns: &[GroupColumn],
     validation: (&Matrix, &Labels),
-) -> Result<TestEvaluation> {
+    decision: &DecisionSpec,
+) -> Result<(TestEvaluation, Vec<f64>)> {
     let mut per_seed: Vec<MetricSet> = Vec::new();
     let mut selected: Option<(u64, Vec<f64>, ScoringModel)> = None;
     for r in runs.iter().filter(|r| r.record.config_id == selected_config && r.record.outcome.is_completed()) {
@@ -343,15 +373,21 @@ pub(crate) fn evaluate_test(
             let val_out = m.score(validation.0)?;
             let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
             let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
-            youden_threshold(&val_pos, &val_p).map(|point| {
+            let point = match decision.threshold_without_data() {
+                Some(t) => operating_point_at(&val_pos, &val_p, t),
+                None => youden_threshold(&val_pos, &val_p),
+            };
+            point.map(|point| {
                 let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
                 ThresholdReport {
-                    rule: "youden_j_on_validation".into(),
+                    rule: decision.threshold.as_str().into(),
                     threshold: point.threshold,
                     validation_tpr: point.true_positive_rate,
                     validation_fpr: point.false_positive_rate,
                     confusion: confusion_matrix(rows, &predicted, 2),
                     per_class: per_class(rows, &predicted, 2),
+                    cost_false_positive: decision.cost_false_positive.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
+                    cost_false_negative: decision.cost_false_negative.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
                 }
             })
         }
@@ -371,7 +407,7 @@ pub(crate) fn evaluate_test(
         }
         Labels::Values(_) => (Vec::new(), Vec::new(), Vec::new()),
     };
-    Ok(TestEvaluation {
+    let evaluation = TestEvaluation {
         run_id: selected_run.to_string(),
         seed,
         rows: test_y.len(),
@@ -383,16 +419,26 @@ pub(crate) fn evaluate_test(
         per_class: per_class_report,
         groups,
         chosen_threshold,
-    })
+    };
+    Ok((evaluation, outputs))
 }
 
 /// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
 /// working copies (about 60 bytes a test row).
 pub(crate) const MAX_BOOTSTRAP_THREADS: usize = 4;
 
+/// What is derived from the stored runs: the selection, and the selected run's outputs on the
+/// test split (`test-predictions.csv`: row index and outputs only, never a feature or group
+/// value), from which every later analysis can be recomputed.
+pub(crate) struct Derived {
+    pub selection: Selection,
+    pub test_predictions: String,
+}
+
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
-/// run on the test split: what `train` records in `selection.json` and `verify` re-derives.
-pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selection> {
+/// run on the test split: what `train` records in `selection.json` and `test-predictions.csv`, and
+/// `verify` re-derives.
+pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Derived> {
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
@@ -410,7 +456,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selectio
             Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
         .collect::<Result<_>>()?;
-    let test = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?.install(|| {
+    let (test, test_outputs) = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?.install(|| {
         evaluate_test(
             runs,
             &picked.selected_config,
@@ -421,9 +467,12 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selectio
             m.split.seed,
             &groups,
             (&prepared.validation_x, &prepared.validation_y),
+            &m.decision.clone().unwrap_or_default(),
         )
     })?;
-    Ok(Selection {
+    let per_row = runs.first().map_or(1, |r| r.record.head.values_per_row());
+    let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &test_outputs, per_row);
+    let selection = Selection {
         metric: m.selection.metric.clone(),
         higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric)
             == Some(crate::metrics::registry::Direction::Maximise),
@@ -434,5 +483,6 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Selectio
         rule: m.selection.rule,
         best_config: picked.best_config,
         test,
-    })
+    };
+    Ok(Derived { selection, test_predictions })
 }

@@ -9,11 +9,15 @@ use crate::error::{Error, Result};
 
 /// The version of the results layout this tool writes. Version 2 added `integrity.sha256` and
 /// the results digest; version 3 renamed a run's `metrics.json`, `config.json` and `run.json` to
-/// `result.json`, `settings.json` and `checksums.json`.
-pub const FORMAT_VERSION: u32 = 3;
+/// `result.json`, `settings.json` and `checksums.json`. Version 4 keeps the evidence apart from
+/// the records of place and machine (`location.json`, each run's `environment.json`, listed in
+/// `records.sha256` with the card and figures, outside the results digest), stores the test
+/// split's predictions (`test-predictions.csv`) and the declared decision, and admits attached
+/// records (`reviews/`, `monitoring/`).
+pub const FORMAT_VERSION: u32 = 4;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -51,6 +55,10 @@ impl Layout {
     pub fn experiment(&self) -> PathBuf {
         self.root.join("experiment.json")
     }
+    /// Where the experiment was trained from (layout 4; a record outside the evidence).
+    pub fn location(&self) -> PathBuf {
+        self.root.join(super::integrity::LOCATION)
+    }
     pub fn data_summary(&self) -> PathBuf {
         self.root.join("data-summary.json")
     }
@@ -62,6 +70,10 @@ impl Layout {
     }
     pub fn selection(&self) -> PathBuf {
         self.root.join("selection.json")
+    }
+    /// The selected run's outputs on the test split (layout 4).
+    pub fn test_predictions(&self) -> PathBuf {
+        self.root.join("test-predictions.csv")
     }
     pub fn timing(&self) -> PathBuf {
         self.root.join("timing.json")

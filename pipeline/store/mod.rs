@@ -4,7 +4,9 @@
 //! `files` holds the primitives (atomic writes, JSON, folders) every other part uses; `layout`
 //! the folder's files and its sealed check; `output` the guard for files users name.
 
+pub mod attached;
 pub(crate) mod files;
+mod hash_list;
 pub mod integrity;
 pub(crate) mod layout;
 pub(crate) mod ledger;

@@ -55,7 +55,8 @@ pub struct RunArtifacts<'a> {
     pub seconds: f64,
 }
 
-/// The checksum list of a run folder (`checksums.json`): every file but timing, with its SHA-256.
+/// The checksum list of a run folder (`checksums.json`): every evidence file, with its SHA-256
+/// (from layout 4 not the environment record, which lies outside the evidence, nor timing).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct RunIndex {
     pub run_id: String,
@@ -168,7 +169,6 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
         (SETTINGS, to_json(a.config)?),
         (PREPROCESSOR, to_json(a.preprocessor)?),
         (HISTORY, history_csv(a.history).into_bytes()),
-        (ENVIRONMENT, to_json(a.environment)?),
     ];
     if !a.tensors.is_empty() {
         files.push((WEIGHTS, weights::encode(a.tensors)?));
@@ -176,6 +176,8 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
     }
     let index = RunIndex { run_id: id.clone(), files: files.iter().map(|(n, b)| (n.to_string(), sha256_hex(b))).collect() };
     files.push((CHECKSUMS, to_json(&index)?));
+    // Records outside the evidence: where and on what the run was computed, and how long it took.
+    files.push((ENVIRONMENT, to_json(a.environment)?));
     files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds }))?));
 
     let tmp = partial_dir(layout, id);

@@ -32,6 +32,9 @@ pub(crate) struct VerifyRequest {
     pub jobs: usize,
     /// Use this data file instead of the recorded path (it must still match the fingerprints).
     pub data: Option<PathBuf>,
+    /// The manifest the verification was asked for (`verify <manifest>`): its data path is
+    /// resolved from there rather than from the recorded location.
+    pub manifest: Option<PathBuf>,
 }
 
 /// The rerun environment against the recorded one.
@@ -66,8 +69,12 @@ pub(crate) enum RunVerdict {
 
 /// The stored selection against the one re-derived from the stored runs.
 pub(crate) enum SelectionCheck {
-    Matches,
-    Differs,
+    /// Matches `selection.json`, and `test-predictions.csv` when the folder has one (layout 4).
+    Matches {
+        test_predictions: bool,
+    },
+    /// What differs.
+    Differs(String),
     CannotDerive(String),
 }
 
@@ -109,7 +116,7 @@ impl Verification {
     /// ledger's.
     pub(crate) fn identical(&self) -> bool {
         self.runs.iter().all(|r| matches!(r.verdict, RunVerdict::Identical))
-            && matches!(self.selection, SelectionCheck::Matches)
+            && matches!(self.selection, SelectionCheck::Matches { .. })
             && !matches!(self.card, CardCheck::CannotRender(_))
             && !matches!(self.ledger, LedgerCheck::Differs { .. })
     }
@@ -160,7 +167,10 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
     let sealed = Sealed::open(folder)?;
     let (layout, digest, record) = (&sealed.layout, sealed.digest.clone(), &sealed.record);
     let manifest = sealed.manifest()?;
-    let manifest_path = locate_manifest(&record.manifest_path, &layout.root);
+    let manifest_path = match &request.manifest {
+        Some(given) => given.clone(),
+        None => locate_manifest(&record.location.manifest_path, &layout.root),
+    };
     let data_path = match &request.data {
         Some(p) => p.clone(),
         None => manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path),
@@ -261,9 +271,15 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
     // The selection and its one test evaluation, re-derived from the stored runs.
     let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
     let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
+    let stored_test_predictions = sealed.test_predictions_text()?;
     let selection_check = match derived {
-        Ok(derived) if as_value(&derived)? == as_value(&selection)? => SelectionCheck::Matches,
-        Ok(_) => SelectionCheck::Differs,
+        Ok(derived) if as_value(&derived.selection)? != as_value(&selection)? => {
+            SelectionCheck::Differs("selection.json does not match the selection and test metrics re-derived from the stored runs".into())
+        }
+        Ok(derived) if stored_test_predictions.as_ref().is_some_and(|stored| *stored != derived.test_predictions) => {
+            SelectionCheck::Differs("test-predictions.csv does not match the selected run's outputs on the test split, scored anew".into())
+        }
+        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some() },
         Err(e) => SelectionCheck::CannotDerive(e.to_string()),
     };
     let card = match crate::card::render(layout, None, &digest) {

@@ -21,9 +21,10 @@ for side in old new; do
   find "$work/$side" -name timing.json -delete
   rm -f "$work/$side/ledger.jsonl"
 done
-# The card and the integrity list name environment.json's hash and the trained-at time: compare
-# the evidence files, then the cards with those lines masked.
-diff -r -q -x card.md -x integrity.sha256 "$work/old" "$work/new"
+# The card and the lists name environment.json's hash and the trained-at time: compare the
+# evidence files, then the cards with those lines masked. (From layout 4 the evidence list holds
+# no environment and could be compared as it is; records.sha256 names the environment.)
+diff -r -q -x card.md -x integrity.sha256 -x records.sha256 "$work/old" "$work/new"
 for card in "$work"/old/*/card.md; do
   rel="${card#"$work/old/"}"
   diff <(grep -v -e '^\*\*Trained at' -e '^| tabcard |' -e 'results digest' "$card") \

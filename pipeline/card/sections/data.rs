@@ -165,7 +165,7 @@ pub(crate) fn data_section(st: &StoredResults) -> DataSection {
             "relative to the manifest".into()
         },
         bytes: record.data.bytes,
-        outside_project: record.data.outside_project,
+        outside_project: record.location.data_outside_project,
         file_sha256: record.data.file_sha256.clone(),
         content_sha256: record.data.content_sha256.clone(),
         rows: summary.rows,

@@ -4,5 +4,6 @@
 pub(crate) mod about;
 pub(crate) mod capacity;
 pub(crate) mod data;
+pub(crate) mod decision;
 pub(crate) mod provenance;
 pub(crate) mod results;

@@ -18,6 +18,8 @@ pub(crate) struct Provenance {
     manifest_sha256: String,
     /// SHA-256 of the evidence lines of `integrity.sha256` ([`crate::store::integrity`]).
     pub(crate) results_digest: String,
+    /// What the digest covers and how to check it, in the folder's layout.
+    pub(crate) digest_note: String,
     pub(crate) manifest_path: String,
     pub(crate) environment: Vec<Row>,
     pub(crate) git_commit: String,
@@ -37,7 +39,8 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
         tool_version: st.record.tool_version.clone(),
         manifest_sha256: st.record.manifest_sha256.clone(),
         results_digest: String::new(),
-        manifest_path: code_span(&st.record.manifest_path),
+        digest_note: digest_note(crate::store::integrity::folder_version(&layout.root)).into(),
+        manifest_path: code_span(&st.record.location.manifest_path),
         environment: vec![
             Row::of(["tabcard".into(), md_line(&format!("{} (source commit {})", environment.tool_version, environment.tool_commit))]),
             Row::of([
@@ -68,6 +71,18 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
         jobs: timing.map(|t| t.jobs.to_string()).unwrap_or_else(|| "unknown".into()),
         verify_command: code_span(&format!("tabcard verify {folder}")),
         results_folder: code_span(&folder),
-        train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.manifest_path)),
+        train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.location.manifest_path)),
+    }
+}
+
+/// What the results digest covers and how a reader checks it, for a folder of layout `version`.
+pub(crate) fn digest_note(version: u32) -> &'static str {
+    if version >= 4 {
+        "SHA-256 of `integrity.sha256`, the list of the evidence (every stored file but the records of where and on what it was \
+         trained, timing, this card and its figures), so the same experiment has the same digest in any checkout and on any machine; \
+         `sha256sum integrity.sha256` gives it, and `sha256sum -c integrity.sha256 records.sha256` in the results folder checks every file"
+    } else {
+        "SHA-256 of the evidence lines of `integrity.sha256` (every stored file but timing, this card and its figures); check with \
+         `sha256sum -c integrity.sha256` in the results folder"
     }
 }

@@ -188,15 +188,7 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         ));
     }
     if let Some(th) = &t.chosen_threshold {
-        decisions.push(decision(
-            format!(
-                "At threshold {} chosen on the validation rows by Youden's J (largest true-positive rate minus false-positive rate; Youden 1950): positive when the probability is at least {}; on validation, true-positive rate {} and false-positive rate {}",
-                sig(th.threshold, 4), sig(th.threshold, 4), fixed(th.validation_tpr, 4), fixed(th.validation_fpr, 4)
-            ),
-            &labels,
-            &th.confusion,
-            &th.per_class,
-        ));
+        decisions.push(decision(super::decision::threshold_title(th, st.layout_version), &labels, &th.confusion, &th.per_class));
     }
     let reliability_rows = t
         .reliability

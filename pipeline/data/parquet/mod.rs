@@ -13,4 +13,4 @@ pub use columns::CHUNK_ROWS;
 pub use file::ParquetSource;
 pub use guard::{not_a_table_file, open_regular};
 pub use read::{column_names, read_columns, read_table, read_table_from_bytes};
-pub use write::{encode, WriteOptions};
+pub use write::{encode, encode_with_metadata, WriteOptions};

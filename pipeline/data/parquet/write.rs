@@ -21,6 +21,11 @@ impl Default for WriteOptions {
 
 /// Encodes named Arrow arrays of equal length as a Parquet file in memory.
 pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result<Vec<u8>> {
+    encode_with_metadata(columns, options, &[])
+}
+
+/// [`encode`], with key-value metadata in the file's footer.
+pub fn encode_with_metadata(columns: Vec<(String, ArrayRef)>, options: WriteOptions, metadata: &[(String, String)]) -> Result<Vec<u8>> {
     use arrow::record_batch::RecordBatch;
     use parquet::arrow::ArrowWriter;
     use parquet::basic::Compression;
@@ -34,6 +39,10 @@ pub fn encode(columns: Vec<(String, ArrayRef)>, options: WriteOptions) -> Result
     let props = WriterProperties::builder()
         .set_compression(if options.snappy { Compression::SNAPPY } else { Compression::UNCOMPRESSED })
         .set_max_row_group_row_count(Some(options.row_group_rows.max(1)))
+        .set_key_value_metadata(
+            (!metadata.is_empty())
+                .then(|| metadata.iter().map(|(k, v)| parquet::file::metadata::KeyValue::new(k.clone(), v.clone())).collect()),
+        )
         .build();
     let mut out = Vec::new();
     let mut writer = ArrowWriter::try_new(&mut out, schema, Some(props)).map_err(|e| engine(e.to_string()))?;
