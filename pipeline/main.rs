@@ -110,7 +110,7 @@ enum Command {
         submit: bool,
     },
     /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
-    #[command(after_help = "Examples:\n  tabcard verify results/c22daa23f986afde\n  tabcard verify experiments/lease-default.toml --all")]
+    #[command(after_help = "Examples:\n  tabcard verify results/4f13816fd93d258d\n  tabcard verify experiments/lease-default.toml --all")]
     Verify {
         /// A results folder, or a manifest whose results live under --results.
         target: PathBuf,
@@ -129,7 +129,7 @@ enum Command {
         data: Option<PathBuf>,
     },
     /// Score a Parquet file with a stored model (a run folder, or a results folder's selected run).
-    #[command(after_help = "Example:\n  tabcard predict results/c22daa23f986afde new-applications.parquet --out scores.parquet")]
+    #[command(after_help = "Example:\n  tabcard predict results/4f13816fd93d258d new-applications.parquet --out scores.parquet")]
     Predict {
         /// A results folder (its selected run) or one run folder.
         model: PathBuf,
@@ -154,7 +154,7 @@ enum Command {
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
-        after_help = "Examples:\n  tabcard compare results/c22daa23f986afde results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
+        after_help = "Examples:\n  tabcard compare results/4f13816fd93d258d results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
     )]
     Compare {
         /// The first experiment: a results folder or a manifest.
@@ -180,7 +180,7 @@ enum Command {
         results: PathBuf,
     },
     /// Re-render the model card of a results folder from stored results (no retraining).
-    #[command(after_help = "Example:\n  tabcard card results/c22daa23f986afde --templates my-templates/")]
+    #[command(after_help = "Example:\n  tabcard card results/4f13816fd93d258d --templates my-templates/")]
     Card {
         /// The results folder whose card to write.
         results_folder: PathBuf,
@@ -197,6 +197,9 @@ enum Command {
         /// The seed of the invented data.
         #[arg(long, default_value_t = 20261202)]
         seed: u64,
+        /// Replace a table already there that differs from the one this seed gives.
+        #[arg(long)]
+        force: bool,
     },
 }
 
@@ -265,7 +268,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
         Command::History { results } => Done::report(commands::history::run(&results)?),
         Command::List { results } => Done::report(commands::list::run(&results)?),
         Command::Card { results_folder, templates } => Done::text(commands::card::run(&results_folder, templates.as_deref())?),
-        Command::DemoData { folder, seed } => Done::text(commands::demo::run(&folder, seed)?),
+        Command::DemoData { folder, seed, force } => Done::text(commands::demo::run(&folder, seed, force)?),
     })
 }
 

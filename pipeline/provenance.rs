@@ -13,6 +13,80 @@ pub fn git_state(path: &Path) -> (Option<String>, Option<bool>) {
     (commit, dirty)
 }
 
+/// How git sees one file: `--untracked-files=no` in [`git_state`] cannot tell a manifest git has
+/// never seen from a committed one, so each file the card names is asked about by itself.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum GitFileState {
+    /// Tracked, and as the last commit holds it.
+    Committed,
+    /// Tracked or staged, and different from the last commit (or never committed).
+    Changed,
+    /// In the work tree, never added.
+    Untracked,
+    /// Matched by a `.gitignore` rule.
+    Ignored,
+    /// Not in a git work tree (or git is not installed).
+    NotInGit,
+}
+
+impl GitFileState {
+    /// As the card says it.
+    pub fn describe(self) -> &'static str {
+        match self {
+            GitFileState::Committed => "committed",
+            GitFileState::Changed => "changed since the last commit",
+            GitFileState::Untracked => "untracked: git has never seen it",
+            GitFileState::Ignored => "ignored by git",
+            GitFileState::NotInGit => "not in a git repository",
+        }
+    }
+}
+
+/// How git sees the file `path` (a regular file).
+pub fn git_file_state(path: &Path) -> GitFileState {
+    let (Some(dir), Some(name)) = (path.parent(), path.file_name()) else { return GitFileState::NotInGit };
+    let dir = if dir.as_os_str().is_empty() { Path::new(".") } else { dir };
+    let git =
+        |args: &[&str]| Command::new("git").arg("-C").arg(dir).args(args).arg("--").arg(name).output().ok().filter(|o| o.status.success());
+    if Command::new("git")
+        .arg("-C")
+        .arg(dir)
+        .args(["rev-parse", "--is-inside-work-tree"])
+        .output()
+        .ok()
+        .filter(|o| o.status.success())
+        .is_none()
+    {
+        return GitFileState::NotInGit;
+    }
+    let Some(status) = git(&["status", "--porcelain", "--ignored"]) else { return GitFileState::NotInGit };
+    let text = String::from_utf8_lossy(&status.stdout);
+    match text.get(..2) {
+        None => match git(&["ls-files", "--error-unmatch"]) {
+            Some(_) => GitFileState::Committed,
+            None => GitFileState::Untracked,
+        },
+        Some("??") => GitFileState::Untracked,
+        Some("!!") => GitFileState::Ignored,
+        Some(_) => GitFileState::Changed,
+    }
+}
+
+/// `to` relative to the folder `from_dir`, `/`-separated, climbing with `..` where needed (both
+/// made absolute against the current folder first).
+pub fn relative_path(from_dir: &Path, to: &Path) -> String {
+    use std::path::Component;
+    let abs = |p: &Path| std::path::absolute(p).unwrap_or_else(|_| p.to_path_buf());
+    let (from, to) = (abs(from_dir), abs(to));
+    let from: Vec<Component> = from.components().collect();
+    let to_parts: Vec<Component> = to.components().collect();
+    let common = from.iter().zip(&to_parts).take_while(|(a, b)| a == b).count();
+    let mut parts: Vec<String> = std::iter::repeat_n("..".to_string(), from.len() - common).collect();
+    parts.extend(to_parts[common..].iter().map(|c| c.as_os_str().to_string_lossy().into_owned()));
+    parts.join("/")
+}
+
 /// The project a file belongs to: the nearest folder above it holding `.git` (a work tree), or
 /// the file's own folder outside git. `None` when the file's folder cannot be resolved.
 pub fn project_root(path: &Path) -> Option<std::path::PathBuf> {

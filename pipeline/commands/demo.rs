@@ -10,7 +10,10 @@ use crate::store::write_atomic;
 pub const LEASE_ROWS: usize = 24_000;
 pub const GREENHOUSE_ROWS: usize = 6_000;
 
-pub fn run(folder: &Path, seed: u64) -> Result<String> {
+/// Writes both tables into `folder`. A table already there with the same bytes is left as it is;
+/// one with other bytes (another seed, or a file of the user's) is replaced only with `force`,
+/// like every other file a command writes.
+pub fn run(folder: &Path, seed: u64, force: bool) -> Result<String> {
     std::fs::create_dir_all(folder).map_err(|e| crate::error::Error::io(folder, "create the folder", e))?;
     let mut out = String::new();
     for (file, columns) in [
@@ -19,9 +22,11 @@ pub fn run(folder: &Path, seed: u64) -> Result<String> {
     ] {
         let bytes = encode(columns, WriteOptions::default())?;
         let path = folder.join(file);
-        // The demo tables are regenerated in place (they are invented and seeded), but never
-        // inside a results store.
-        crate::store::check_output_path("demo-data", "the demo tables", &path, &[], true)?;
+        if std::fs::read(&path).is_ok_and(|existing| existing == bytes) {
+            out.push_str(&format!("unchanged {} (the same table is already there)\n", path.display()));
+            continue;
+        }
+        crate::store::check_output_path("demo-data", "the demo tables", &path, &[], force)?;
         write_atomic(&path, &bytes)?;
         out.push_str(&format!("wrote {} ({} bytes)\n", path.display(), bytes.len()));
     }

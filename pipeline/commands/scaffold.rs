@@ -4,7 +4,7 @@
 //! the schema's own `Default`s, so they cannot drift). The result passes `check` unchanged.
 
 use std::fmt::Write;
-use std::path::{Component, Path, PathBuf};
+use std::path::{Path, PathBuf};
 
 use crate::data::parquet::read_table;
 use crate::data::roles::{Role, MAX_MAGNITUDE};
@@ -84,14 +84,7 @@ fn task_for(col: &Column, distinct: usize) -> Task {
 
 /// `to` relative to the folder `from_dir`, with `/` separators (both made absolute first).
 fn relative(from_dir: &Path, to: &Path) -> String {
-    let abs = |p: &Path| std::path::absolute(p).unwrap_or_else(|_| p.to_path_buf());
-    let (from, to) = (abs(from_dir), abs(to));
-    let from: Vec<Component> = from.components().collect();
-    let to_parts: Vec<Component> = to.components().collect();
-    let common = from.iter().zip(&to_parts).take_while(|(a, b)| a == b).count();
-    let mut parts: Vec<String> = std::iter::repeat_n("..".to_string(), from.len() - common).collect();
-    parts.extend(to_parts[common..].iter().map(|c| c.as_os_str().to_string_lossy().into_owned()));
-    parts.join("/")
+    crate::provenance::relative_path(from_dir, to)
 }
 
 /// Data-derived text for a TOML comment: control characters (a newline would end the comment

@@ -61,7 +61,7 @@ fn prepare_folder(exp: &Experiment, layout: &Layout, plan: &Plan, preprocessor: 
     let source = std::fs::read(&exp.manifest_path).map_err(|e| Error::io(&exp.manifest_path, "read the manifest", e))?;
     write_atomic(&layout.manifest_source(), &source)?;
     write_json(&layout.experiment(), &exp.record())?;
-    write_json(&layout.location(), &exp.location())?;
+    write_json(&layout.location(), &exp.location(&layout.root))?;
     write_json(&layout.data_summary(), &exp.summary)?;
     write_json(&layout.plan(), plan)?;
     write_json(&layout.preprocessor(), preprocessor)?;

@@ -45,6 +45,16 @@ pub struct Location {
     /// Whether the data file lies outside that project, through `..`, an absolute path or a
     /// symlink: such a file does not travel with a checkout. No absolute path is recorded.
     pub data_outside_project: bool,
+    /// The manifest's path from the results folder (`..`-relative), so `verify` finds it from
+    /// any working folder, in a checkout or a plain copy (absent before tabcard 0.6).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub manifest_from_results: Option<String>,
+    /// How git saw the manifest and the data file when the experiment was trained (absent
+    /// before tabcard 0.6).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub manifest_git: Option<crate::provenance::GitFileState>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub data_git: Option<crate::provenance::GitFileState>,
 }
 
 impl Location {
@@ -55,6 +65,7 @@ impl Location {
         Location {
             manifest_path: record["manifest_path"].as_str().unwrap_or_default().to_string(),
             data_outside_project: data["outside_project"].as_bool().or_else(|| data["outside_manifest_folder"].as_bool()).unwrap_or(false),
+            ..Location::default()
         }
     }
 }
@@ -193,15 +204,19 @@ impl Experiment {
             split_rows: [self.splits.train.len(), self.splits.validation.len(), self.splits.test.len()],
             split_sha256: crate::fingerprint::sha256_hex(split_text.as_bytes()),
             tool_version: TOOL_VERSION.to_string(),
-            location: self.location(),
+            // Written beside it by `train` (`location.json`), which knows the results folder.
+            location: Location::default(),
         }
     }
 
-    /// Where this experiment is trained from.
-    pub fn location(&self) -> Location {
+    /// Where this experiment is trained from, its results going to the folder `results`.
+    pub fn location(&self, results: &Path) -> Location {
         Location {
             manifest_path: crate::provenance::project_relative(&self.manifest_path),
             data_outside_project: self.data_outside_project,
+            manifest_from_results: Some(crate::provenance::relative_path(results, &self.manifest_path)),
+            manifest_git: Some(crate::provenance::git_file_state(&self.manifest_path)),
+            data_git: Some(crate::provenance::git_file_state(&self.data_path)),
         }
     }
 

@@ -88,6 +88,9 @@ pub fn parse(path: &Path, source: &str) -> Result<Manifest> {
     if let Some(p) = validate::validate(&manifest).into_iter().next() {
         return Err(located(p).into());
     }
+    if let Some(p) = ignored_by_split_column(source, &manifest) {
+        return Err(located(p).into());
+    }
     if let Some(p) = grid::normalise(&mut manifest).into_iter().next() {
         return Err(located(p).into());
     }
@@ -114,6 +117,21 @@ pub fn parse(path: &Path, source: &str) -> Result<Manifest> {
         manifest.selection.metric = registry::default_selection_metric(manifest.data.task).to_string();
     }
     Ok(manifest)
+}
+
+/// A split fraction or seed written beside `split.column`, which decides every row's split by
+/// itself: the key would be silently ignored, so it is refused by name.
+fn ignored_by_split_column(source: &str, m: &Manifest) -> Option<Problem> {
+    m.split.column.as_ref()?;
+    let table: toml::Table = source.parse().ok()?;
+    let split = table.get("split")?.as_table()?;
+    let key = ["validation", "test", "seed"].into_iter().find(|k| split.contains_key(*k))?;
+    Some(Problem {
+        key: KeyPath::parse_dotted(&format!("split.{key}")),
+        index: None,
+        message: "has no effect with split.column, which decides every row's split by itself".into(),
+        hint: Some(format!("remove split.{key}, or remove split.column to split at random")),
+    })
 }
 
 /// Grid points x seeds, plus the baseline's seeds.

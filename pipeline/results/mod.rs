@@ -253,3 +253,31 @@ impl Listing {
         Layout::new(path).format().exists()
     }
 }
+
+/// A results folder found by the manifest it was trained from.
+pub(crate) struct FolderOfManifest {
+    pub folder: String,
+    pub data_content_sha256: String,
+    pub tool_version: String,
+}
+
+/// The results folders under `results_root` trained from the manifest whose canonical SHA-256 is
+/// `manifest_sha256`, sorted by folder name: where an experiment's results went when its data
+/// changed since, or another tabcard version trained it.
+pub(crate) fn folders_of_manifest(results_root: &Path, manifest_sha256: &str) -> Vec<FolderOfManifest> {
+    let Ok(entries) = std::fs::read_dir(results_root) else { return Vec::new() };
+    let mut found: Vec<FolderOfManifest> = entries
+        .flatten()
+        .filter(|e| e.path().is_dir())
+        .filter_map(|e| {
+            let record = read_record(&Layout::new(e.path())).ok()?;
+            (record.manifest_sha256 == manifest_sha256).then(|| FolderOfManifest {
+                folder: e.file_name().to_string_lossy().into_owned(),
+                data_content_sha256: record.data.content_sha256,
+                tool_version: record.tool_version,
+            })
+        })
+        .collect();
+    found.sort_by(|a, b| a.folder.cmp(&b.folder));
+    found
+}

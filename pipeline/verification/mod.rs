@@ -15,7 +15,7 @@ use rayon::prelude::*;
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
-use crate::experiment::{open, open_with_data};
+use crate::experiment::{open, open_with_data, Location};
 use crate::fingerprint::file_sha256;
 use crate::manifest::LoadedManifest;
 use crate::numerics::NumericsFingerprint;
@@ -145,20 +145,71 @@ pub(crate) fn results_folder(target: &Path, results_root: &Path) -> Result<PathB
         let exp = open(target)?;
         let folder = results_root.join(exp.short_id());
         if !folder.exists() {
-            return Err(Error::store(&folder, format!("no results for experiment {} (train it first)", exp.fingerprint)));
+            let others = crate::results::folders_of_manifest(results_root, &exp.manifest_sha256);
+            if others.is_empty() {
+                return Err(Error::store(&folder, format!("no results for experiment {} (train it first)", exp.fingerprint)));
+            }
+            let listed: Vec<String> = others
+                .iter()
+                .map(|o| {
+                    let what = if o.data_content_sha256 == exp.data.content_sha256 {
+                        format!("the same data, trained by tabcard {}: verify it with that version", o.tool_version)
+                    } else {
+                        format!(
+                            "other data (content SHA-256 {}): the data changed since; verify it with --data naming the table it was trained on",
+                            o.data_content_sha256
+                        )
+                    };
+                    format!("{} ({what})", results_root.join(&o.folder).display())
+                })
+                .collect();
+            return Err(Error::store(
+                &folder,
+                format!(
+                    "no results for this manifest with the data as it is now (content SHA-256 {}) and this tabcard; results \
+                     for this manifest exist: {}",
+                    exp.data.content_sha256,
+                    listed.join("; ")
+                ),
+            ));
         }
         return Ok(folder);
     }
     Ok(target.to_path_buf())
 }
 
-/// Where the recorded manifest (a path relative to its project root) is now: under the nearest
-/// folder above the results folder that holds it (results usually live inside the project), else
-/// relative to the current folder.
-fn locate_manifest(recorded: &str, results_folder: &Path) -> PathBuf {
+/// Where the recorded manifest is now: at its path from the results folder (recorded from tabcard
+/// 0.6 on, so a plain copy verifies from any working folder), else under the nearest folder
+/// above the results folder that holds its project-relative path (results usually live inside
+/// the project), else relative to the current folder.
+fn locate_manifest(location: &Location, results_folder: &Path) -> PathBuf {
+    if let Some(from_results) = &location.manifest_from_results {
+        let candidate = lexically_normal(&results_folder.join(from_results));
+        if candidate.is_file() {
+            return candidate;
+        }
+    }
+    let recorded = &location.manifest_path;
     let absolute = results_folder.canonicalize().unwrap_or_else(|_| results_folder.to_path_buf());
     let found = absolute.ancestors().map(|a| a.join(recorded)).find(|p| p.is_file());
     found.unwrap_or_else(|| PathBuf::from(recorded))
+}
+
+/// `path` with each `..` taking away the component before it, without asking the file system
+/// (the results folder's path from the manifest climbs out of it that way).
+fn lexically_normal(path: &Path) -> PathBuf {
+    use std::path::Component;
+    let mut out = PathBuf::new();
+    for part in path.components() {
+        match part {
+            Component::ParentDir if matches!(out.components().next_back(), Some(Component::Normal(_))) => {
+                out.pop();
+            }
+            Component::CurDir => {}
+            other => out.push(other.as_os_str()),
+        }
+    }
+    out
 }
 
 /// Verify the results folder `folder`: an error when it cannot be verified at all (tampered
@@ -169,12 +220,24 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
     let manifest = sealed.manifest()?;
     let manifest_path = match &request.manifest {
         Some(given) => given.clone(),
-        None => locate_manifest(&record.location.manifest_path, &layout.root),
+        None => locate_manifest(&record.location, &layout.root),
     };
     let data_path = match &request.data {
         Some(p) => p.clone(),
         None => manifest_path.parent().unwrap_or(Path::new(".")).join(&manifest.data.path),
     };
+    if request.data.is_none() && !data_path.is_file() {
+        return Err(Error::data(
+            &data_path,
+            None,
+            format!(
+                "is not where the results place it (data.path `{}` of the manifest at {}); pass --data FILE to name the table, \
+                 which must still match the recorded file SHA-256",
+                manifest.data.path,
+                manifest_path.display()
+            ),
+        ));
+    }
     let changed = |file_hash: &str| {
         Error::data(
             &data_path,

@@ -2,7 +2,7 @@
 # Scale-out test on a real single-node SLURM cluster: the demo lease sweep submitted as a job
 # array (tabcard slurm --submit, 4 array tasks of 4 runs, then the dependent merge job) must give
 # a results folder byte-identical to a local `--jobs 2` sweep, apart from timing fields
-# (timing.json files, the card's "Trained at" line and the card's line in integrity.sha256). Each task's outcome is read from
+# (timing.json files, the card's "Trained at" line and the card's line in records.sha256). Each task's outcome is read from
 # tabcard's own stored results (the merge job reports 0 runs trained), since without an
 # accounting database there is no sacct.
 #
@@ -68,9 +68,9 @@ fp="$(ls "$work/local" | grep -v ledger.jsonl)"
 [[ -d "$work/cluster-results/$fp" ]] || { echo "FAIL: no results folder $fp from the cluster"; exit 1; }
 for side in local cluster-results; do
   find "$work/$side/$fp" -name card.md -exec sed -i '/Trained at/d' {} +
-  # The card's line in the integrity list follows its "Trained at" line; the evidence lines and
-  # the results digest must agree.
-  sed -i '/  card\.md$/d' "$work/$side/$fp/integrity.sha256"
+  # The card's line in records.sha256 follows its "Trained at" line; the evidence list
+  # (integrity.sha256, whose hash is the results digest) must agree byte for byte.
+  sed -i '/  card\.md$/d' "$work/$side/$fp/records.sha256"
 done
 if diff -r -x timing.json "$work/local/$fp" "$work/cluster-results/$fp"; then
   files="$(find "$work/local/$fp" -type f ! -name timing.json | wc -l)"

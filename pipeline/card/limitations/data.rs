@@ -2,7 +2,7 @@
 //! class, features constant on the training rows, rows and keys that cross splits.
 
 use super::finding::*;
-use crate::card::evidence::Evidence;
+use crate::card::evidence::{ClassShare, Evidence};
 use crate::format::sig;
 
 pub(super) fn many_missing_values(e: &Evidence) -> Option<Limitation> {
@@ -34,30 +34,52 @@ pub(super) fn rare_levels(e: &Evidence) -> Option<Limitation> {
     })
 }
 
+/// The share below which a class of a `k`-class target is flagged: 10%, or half its fair share
+/// 1/k when that is lower.
+pub(crate) fn minority_limit(k: usize) -> f64 {
+    MINORITY_SHARE.min(MINORITY_FAIR_SHARE_FACTOR / k.max(1) as f64)
+}
+
 pub(super) fn small_minority_class(e: &Evidence) -> Option<Limitation> {
-    let (label, rows, share) = e.minority.as_ref()?;
-    (*share < MINORITY_SHARE).then(|| {
+    let limit = minority_limit(e.classes.len());
+    let mut small: Vec<&ClassShare> = e.classes.iter().filter(|c| c.share < limit).collect();
+    small.sort_by(|a, b| a.share.total_cmp(&b.share));
+    let (one, many) = (small.len() == 1, small.len() > 1);
+    (!small.is_empty()).then(|| {
+        let named: Vec<String> = small
+            .iter()
+            .map(|c| format!("class \"{}\" has {} rows ({}% of the table)", c.label, c.rows, sig(100.0 * c.share, 3)))
+            .collect();
         Limitation::new(
             "small_minority_class",
-            "Small minority class",
+            if many { "Small minority classes" } else { "Small minority class" },
+            format!("{}; accuracy at the default threshold says little for {}", named.join(", "), if one { "it" } else { "them" }),
             format!(
-                "class \"{label}\" has {rows} rows ({}% of the table); accuracy at the default threshold says little for it",
-                sig(100.0 * share, 3)
+                "every class at least {}% of the rows: the lower of 10% and half the fair share 1/{} (common practice)",
+                sig(100.0 * limit, 3),
+                e.classes.len()
             ),
-            format!("every class at least {}% of the rows (common practice)", 100.0 * MINORITY_SHARE),
         )
     })
 }
 
 pub(super) fn constant_on_training_rows(e: &Evidence) -> Option<Limitation> {
-    (!e.constant_on_training.is_empty()).then(|| {
+    let (varying, constant) = (&e.constant_on_training, &e.constant_everywhere);
+    (!varying.is_empty() || !constant.is_empty()).then(|| {
+        let mut parts = Vec::new();
+        if !varying.is_empty() {
+            parts.push(format!(
+                "{} take one value on every training row, so the model cannot learn from them, yet they vary in validation or test",
+                varying.join(", ")
+            ));
+        }
+        if !constant.is_empty() {
+            parts.push(format!("{} take one value on every row of the table and carry no information (drop them)", constant.join(", ")));
+        }
         Limitation::new(
             "constant_on_training_rows",
             "Features constant on the training rows",
-            format!(
-                "{} take one value on every training row, so the model cannot learn from them, yet they vary in validation or test",
-                e.constant_on_training.join(", ")
-            ),
+            parts.join("; "),
             "every feature varies on the training rows".into(),
         )
     })

@@ -26,6 +26,10 @@ impl Limitation {
 
 pub(crate) const MIN_ROWS_PER_PARAMETER: f64 = 10.0;
 pub(crate) const MINORITY_SHARE: f64 = 0.10;
+/// A class is also judged against its fair share 1/K: flagged under half of it, so a balanced
+/// many-class table (ten digits at 9.7% to 10.2%) is not flagged for being many-class. Common
+/// practice, a rule of thumb; for two or three classes the 10% floor is the stricter bound.
+pub(crate) const MINORITY_FAIR_SHARE_FACTOR: f64 = 0.5;
 pub(crate) const MIN_TEST_ROWS_PER_CLASS: usize = 30;
 pub(crate) const MIN_TEST_ROWS_REGRESSION: usize = 100;
 /// Seed standard deviation above this share of the metric's scale is flagged.

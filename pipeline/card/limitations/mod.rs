@@ -48,13 +48,17 @@ pub(crate) fn derive(e: &Evidence) -> Vec<Limitation> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::card::evidence::ClassShare;
 
     fn healthy() -> Evidence {
         Evidence {
             classification: true,
             train_rows: 10_000,
             parameter_count: 500,
-            minority: Some(("yes".into(), 3000, 0.3)),
+            classes: vec![
+                ClassShare { label: "no".into(), rows: 7000, share: 0.7 },
+                ClassShare { label: "yes".into(), rows: 3000, share: 0.3 },
+            ],
             metric: "roc_auc".into(),
             higher_is_better: true,
             scale: (1.0, "the metric's range".into()),
@@ -62,6 +66,7 @@ mod tests {
             baseline: Some((0.75, 0.002)),
             gap: Some(0.01),
             test_ece: Some(0.02),
+            test_ece_lower: Some(0.01),
             chance: Some(("roc_auc".into(), 0.84, 0.82, 0.86, 0.5)),
             test_rows: 4000,
             test_smallest_class: Some(("yes".into(), 1200)),
@@ -72,6 +77,7 @@ mod tests {
             simpler_within_noise: Vec::new(),
             duplicated_into_evaluation: (0, 0),
             constant_on_training: Vec::new(),
+            constant_everywhere: Vec::new(),
             crossing_keys: vec![("bed".into(), 0, 40, 0)],
             failed_runs: 0,
         }
@@ -91,12 +97,12 @@ mod tests {
         type Change = Box<dyn Fn(&mut Evidence)>;
         let cases: Vec<(&str, Change)> = vec![
             ("few_rows_per_parameter", Box::new(|e| e.parameter_count = 2000)),
-            ("small_minority_class", Box::new(|e| e.minority = Some(("yes".into(), 900, 0.09)))),
+            ("small_minority_class", Box::new(|e| e.classes[1] = ClassShare { label: "yes".into(), rows: 900, share: 0.09 })),
             ("small_test_split", Box::new(|e| e.test_smallest_class = Some(("yes".into(), 29)))),
             ("small_test_split", Box::new(|e| e.degenerate_intervals = vec!["roc_auc".into()])),
             ("large_seed_spread", Box::new(|e| e.selected = Some((0.85, 0.011)))),
             ("large_generalisation_gap", Box::new(|e| e.gap = Some(0.051))),
-            ("poor_calibration", Box::new(|e| e.test_ece = Some(0.09))),
+            ("poor_calibration", Box::new(|e| (e.test_ece, e.test_ece_lower) = (Some(0.09), Some(0.06)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.435, 0.40, 0.47, 0.5)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.55, 0.49, 0.61, 0.5)))),
             ("many_missing_values", Box::new(|e| e.missing.push(("b".into(), 0.4)))),

