@@ -37,6 +37,11 @@ pub fn fixed(x: f64, decimals: usize) -> String {
 }
 
 /// A mean and its standard deviation across seeds, as every table shows them: `0.8123 ± 0.0040`.
+/// `n` with the noun in the number it takes: "1 CPU", "2 CPUs".
+pub fn count(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
 pub fn mean_sd(mean: f64, sd: f64) -> String {
     format!("{} ± {}", fixed(mean, 4), fixed(sd, 4))
 }

@@ -134,7 +134,7 @@ fn the_minority_rule_spares_balanced_iris_and_flags_the_digit_zero() {
     let zeros = r["digits_zero"]["zeros"].as_u64().unwrap();
     let (card, rules) = rules_for("digits_zero.parquet", &format!("target = \"is_zero\"\ntask = \"binary\"\n{}", fast_training("[1]")));
     assert!(rules.contains("small_minority_class"), "{rules:?}");
-    assert!(card.contains(&format!("class \"true\" has {zeros} rows \\(9.91% of the table\\)")), "{card}");
+    assert!(card.contains(&format!("Class \"true\" has {zeros} rows \\(9.91% of the table\\)")), "{card}");
 }
 
 #[test]
@@ -158,7 +158,7 @@ fn the_minority_rule_judges_a_class_against_its_fair_share_and_names_every_small
         ),
     );
     assert!(rules.contains("small_minority_class"), "{rules:?}");
-    let expected = format!("class \"Fair\" has {fair} rows (2.98% of the table), class \"Good\" has {good} rows (8.81% of the table)");
+    let expected = format!("Class \"Fair\" has {fair} rows (2.98% of the table), class \"Good\" has {good} rows (8.81% of the table)");
     assert!(card.replace('\\', "").contains(&expected), "{card}");
 }
 
@@ -170,8 +170,8 @@ fn a_small_test_split_is_flagged_with_its_class_counts() {
         &format!("target = \"diagnosis\"\ntask = \"binary\"\n\n[split]\ntest = 0.1\n{}", fast_training("[1, 2]")),
     );
     assert!(rules.contains("small_test_split"), "{rules:?}");
-    assert!(card.contains("the test split of 57 rows holds 21 rows of class \"malignant\""), "{card}");
-    assert!(card.contains("The test split holds 36 benign, 21 malignant."));
+    assert!(card.contains("The test split of 57 rows holds 21 rows of class \"malignant\""), "{card}");
+    assert!(card.contains("The test split holds 36 rows of class benign, 21 rows of class malignant."), "{card}");
     // test = 0.3: 171 rows, 64 malignant.
     let (_, rules) = rules_for(
         "breast_cancer.parquet",
@@ -324,4 +324,19 @@ fn the_calibration_rule_is_judged_by_its_interval() {
     let (card, rules) = rules_for("diamonds.parquet", body);
     assert!(rules.contains("poor_calibration"), "{rules:?}");
     assert!(card.contains("by its 95% bootstrap interval"), "{card}");
+}
+
+#[test]
+fn few_rows_per_parameter_fires_only_when_the_capacity_shows_in_the_gap() {
+    // Breast cancer: 341 training rows for a 30-16-1 network (513 parameters, under one row per
+    // parameter), early-stopped: it generalises, and the rule stays silent although the ratio is
+    // far below 10.
+    let (_, rules) = rules_for("breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
+    assert!(!rules.contains("few_rows_per_parameter"), "{rules:?}");
+    // Diabetes: 265 training rows for a 10-256-256-1 network trained 300 epochs without
+    // regularization or early stopping: it fits the training rows and the gap shows.
+    let body = "target = \"progression\"\ntask = \"regression\"\n\n[model]\nhidden = [256, 256]\n\n[training]\nepochs = 300\nbatch_size = 32\nlearning_rate = 0.003\nweight_decay = 0.0\n\n[training.early_stopping]\nenabled = false\n\n[selection]\nbootstrap = 100\nbaseline = false\n\n[sweep]\nseeds = [1]\n";
+    let (card, rules) = rules_for("diabetes.parquet", body);
+    assert!(rules.contains("few_rows_per_parameter"), "{rules:?}\n{card}");
+    assert!(card.contains("and rmse is worse on validation than on training by"), "{card}");
 }

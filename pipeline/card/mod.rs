@@ -67,8 +67,10 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         .ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
     let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
     let evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
-    let limitations: Vec<Limitation> =
-        derive(&evidence).into_iter().map(|l| Limitation { finding: md_line(&l.finding), threshold: md_line(&l.threshold), ..l }).collect();
+    let limitations: Vec<Limitation> = derive(&evidence)
+        .into_iter()
+        .map(|l| Limitation { finding: md_line(&sentence_case(&l.finding)), threshold: md_line(&l.threshold), ..l })
+        .collect();
     let figs = figures(&st.manifest, sel, &selected_runs)?;
     let context = CardContext {
         about: about(&st.manifest),
@@ -136,4 +138,13 @@ pub(crate) fn write_card(layout: &Layout, templates: Option<&Path>) -> Result<St
         }
         write_atomic(&layout.card(), text.as_bytes())
     })
+}
+
+/// A finding as the sentence it is after its bold title: the first letter upper-case.
+fn sentence_case(text: &str) -> String {
+    let mut chars = text.chars();
+    match chars.next() {
+        Some(first) => first.to_uppercase().chain(chars).collect(),
+        None => String::new(),
+    }
 }

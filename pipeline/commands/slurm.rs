@@ -101,10 +101,10 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
     let _ = writeln!(out, "experiment {} ({})", crate::text::terminal_safe(&exp.manifest.experiment.name), exp.fingerprint);
     let _ = writeln!(
         out,
-        "{} runs ({done} already stored) in {tasks} array tasks of up to {} runs, {} CPUs each; MaxArraySize {cap} ({cap_source})",
+        "{} runs ({done} already stored) in {tasks} array tasks of up to {} runs, {} each; MaxArraySize {cap} ({cap_source})",
         plan.runs.len(),
         plan.runs.len().div_ceil(tasks),
-        r.cpus_per_task
+        crate::format::count(r.cpus_per_task, "CPU", "CPUs")
     );
     let _ = writeln!(out, "array script  {}", array_path.display());
     let _ = writeln!(out, "merge script  {}", merge_path.display());

@@ -36,6 +36,8 @@ pub(crate) const MIN_TEST_ROWS_REGRESSION: usize = 100;
 pub(crate) const SEED_SD_SHARE: f64 = 0.01;
 /// A train-validation gap above this share of the metric's scale is flagged.
 pub(crate) const GAP_SHARE: f64 = 0.05;
+/// The gap at which few rows per parameter are said to show: half the large-gap limit.
+pub(crate) const FEW_ROWS_GAP_SHARE: f64 = GAP_SHARE / 2.0;
 pub(crate) const ECE_LIMIT: f64 = 0.05;
 pub(crate) const MISSING_SHARE: f64 = 0.20;
 /// The grid-edge rule applies to keys searched over at least this many ordered values.

@@ -5,14 +5,32 @@ use super::finding::*;
 use crate::card::evidence::Evidence;
 use crate::format::sig;
 
+/// Few rows per parameter matter when the capacity shows: a regularized or early-stopped
+/// network with more parameters than rows may generalise well (most small open tables), so the
+/// rule fires only when the train-validation gap it warns about is visible too, at half the
+/// large-gap limit.
 pub(super) fn few_rows_per_parameter(e: &Evidence) -> Option<Limitation> {
     let ratio = e.train_rows as f64 / e.parameter_count.max(1) as f64;
-    (ratio < MIN_ROWS_PER_PARAMETER).then(|| {
+    let gap = e.gap?;
+    let (scale, what) = &e.scale;
+    let visible = FEW_ROWS_GAP_SHARE * scale;
+    (ratio < MIN_ROWS_PER_PARAMETER && gap > visible).then(|| {
         Limitation::new(
             "few_rows_per_parameter",
-            "Few training rows per parameter",
-            format!("{} training rows for {} parameters: {} rows per parameter", e.train_rows, e.parameter_count, sig(ratio, 3)),
-            format!("at least {MIN_ROWS_PER_PARAMETER} rows per parameter (common practice)"),
+            "Few training rows per parameter, and it shows",
+            format!(
+                "{} training rows for {} parameters ({} rows per parameter), and {} is worse on validation than on training by {}",
+                e.train_rows,
+                e.parameter_count,
+                sig(ratio, 3),
+                e.metric,
+                sig(gap, 3)
+            ),
+            format!(
+                "at least {MIN_ROWS_PER_PARAMETER} rows per parameter, or a gap at most {}% of {what} ({}) (common practice)",
+                100.0 * FEW_ROWS_GAP_SHARE,
+                sig(visible, 3)
+            ),
         )
     })
 }

@@ -96,7 +96,7 @@ mod tests {
     fn each_rule_triggers_on_its_figure_and_only_it() {
         type Change = Box<dyn Fn(&mut Evidence)>;
         let cases: Vec<(&str, Change)> = vec![
-            ("few_rows_per_parameter", Box::new(|e| e.parameter_count = 2000)),
+            ("few_rows_per_parameter", Box::new(|e| (e.parameter_count, e.gap) = (2000, Some(0.03)))),
             ("small_minority_class", Box::new(|e| e.classes[1] = ClassShare { label: "yes".into(), rows: 900, share: 0.09 })),
             ("small_test_split", Box::new(|e| e.test_smallest_class = Some(("yes".into(), 29)))),
             ("small_test_split", Box::new(|e| e.degenerate_intervals = vec!["roc_auc".into()])),

@@ -90,9 +90,9 @@ pub(crate) fn selection_text(sel: &Selection, direction: &str) -> String {
         } else {
             format!("the best mean was {} at {best_text}", label(&sel.best_config))
         };
-        format!("chosen by the one-standard-error rule: the configuration with the fewest parameters whose mean validation {m} across seeds lies within one standard error of the best mean ({direction}; Breiman et al. 1984, common practice); {outcome}")
+        format!("chosen by the one-standard-error rule: the configuration with the fewest parameters whose mean validation {m} across seeds lies within one standard error of the best mean ({direction}; Breiman et al. 1984, common practice; of two with as many parameters, the better mean); {outcome}")
     } else {
-        format!("chosen by the best mean validation {m} across seeds ({direction})")
+        format!("chosen by the best mean validation {m} across seeds ({direction}; of equal means, the first in plan order)")
     }
 }
 
@@ -169,7 +169,13 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
             .confusion
             .iter()
             .enumerate()
-            .map(|(i, r)| format!("{} {}", r.iter().sum::<usize>(), labels.get(i).cloned().unwrap_or_default()))
+            .map(|(i, r)| {
+                format!(
+                    "{} of class {}",
+                    crate::format::count(r.iter().sum::<usize>(), "row", "rows"),
+                    labels.get(i).cloned().unwrap_or_default()
+                )
+            })
             .collect();
         format!(" The test split holds {}.", counts.join(", "))
     };
