@@ -81,8 +81,8 @@ pub(crate) struct TestEvaluation {
 /// the deployed 0.5), its rates on the validation rows and what it does on the test split.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub(crate) struct ThresholdReport {
-    /// How the threshold was set (`youden_j_on_validation`, `fixed`, `expected_cost`).
-    pub rule: String,
+    /// How the threshold was set (stored as `youden_j_on_validation`, `fixed`, `expected_cost`).
+    pub rule: ThresholdRule,
     /// Predict positive when the positive-class probability is at least this.
     pub threshold: f64,
     /// True- and false-positive rates on the validation rows at the threshold.
@@ -380,7 +380,7 @@ pub(crate) fn evaluate_test(
             point.map(|point| {
                 let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
                 ThresholdReport {
-                    rule: decision.threshold.as_str().into(),
+                    rule: decision.threshold,
                     threshold: point.threshold,
                     validation_tpr: point.true_positive_rate,
                     validation_fpr: point.false_positive_rate,
@@ -470,7 +470,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Derived>
             &m.decision.clone().unwrap_or_default(),
         )
     })?;
-    let per_row = runs.first().map_or(1, |r| r.record.head.values_per_row());
+    let per_row = exp.head().values_per_row();
     let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &test_outputs, per_row);
     let selection = Selection {
         metric: m.selection.metric.clone(),

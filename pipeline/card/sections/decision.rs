@@ -10,16 +10,18 @@ use crate::text::code_span;
 
 /// How a threshold rule set the threshold, in a sentence's middle.
 fn rule_phrase(report: &ThresholdReport) -> String {
-    match report.rule.as_str() {
-        r if r == ThresholdRule::Fixed.as_str() => "a fixed threshold stated in the manifest".into(),
-        r if r == ThresholdRule::ExpectedCost.as_str() => format!(
+    match report.rule {
+        ThresholdRule::Fixed => "a fixed threshold stated in the manifest".into(),
+        ThresholdRule::ExpectedCost => format!(
             "the expected-cost threshold c_FP / (c_FP + c_FN) with a false positive costing {} and a false negative {} \
              (Elkan 2001, \"The foundations of cost-sensitive learning\"); it assumes calibrated probabilities, and these are the \
              network's own, not recalibrated",
             report.cost_false_positive.map_or("?".into(), |c| sig(c, 4)),
             report.cost_false_negative.map_or("?".into(), |c| sig(c, 4)),
         ),
-        _ => "set on the validation rows by Youden's J, the largest true-positive rate minus false-positive rate (Youden 1950)".into(),
+        ThresholdRule::YoudenJOnValidation => {
+            "set on the validation rows by Youden's J, the largest true-positive rate minus false-positive rate (Youden 1950)".into()
+        }
     }
 }
 
