@@ -9,6 +9,7 @@
 
 #![warn(unreachable_pub)]
 
+pub mod calibrate;
 pub(crate) mod card;
 pub mod commands;
 pub mod data;

@@ -11,6 +11,7 @@ const LAYERS: &[&[&str]] = &[
     &["error", "task"],
     &["format", "text", "rng", "fingerprint", "provenance", "threads", "output_schema"],
     &["metrics"],
+    &["calibrate"],
     &["manifest"],
     &["data"],
     &["nn", "demo"],
