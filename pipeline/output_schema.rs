@@ -4,13 +4,18 @@
 //! README's table documents each version.
 
 /// The schema version `predict` writes.
-pub const VERSION: u32 = 1;
+pub const VERSION: u32 = 2;
 
 /// The input row's 0-based position in the scored file.
 pub const ROW: &str = "row";
 /// Regression: the predicted value, in the target's units.
 pub const PREDICTION: &str = "prediction";
-/// Classification: `p_<label>`, the probability of a class (binary: the positive class only).
+/// Regression, folders with a prediction interval (layout 5 on): its bounds, prediction minus
+/// and plus the split conformal half-width (schema version 2).
+pub const INTERVAL_LOWER: &str = "interval_lower";
+pub const INTERVAL_UPPER: &str = "interval_upper";
+/// Classification: `p_<label>`, the probability of a class (binary: the positive class only);
+/// calibrated by the folder's map when it holds one (schema version 2).
 pub const PROBABILITY_PREFIX: &str = "p_";
 /// Classification: the class decided (binary: at the deployed threshold; multiclass: the most
 /// probable class).
@@ -33,9 +38,9 @@ pub const RESULTS_DIGEST: &str = "results_digest";
 /// CSV only (Parquet: key-value metadata): this schema's version.
 pub const SCHEMA_VERSION: &str = "scoring_schema";
 
-/// Names the coming capabilities fill: the principal reasons for a row's score, and interval
-/// bounds of a prediction. Reserved now so no id column can take them.
-pub const RESERVED: &[&str] = &["reasons", "interval_lower", "interval_upper"];
+/// Names the coming capabilities fill: the principal reasons for a row's score. Reserved now so
+/// no id column can take them.
+pub const RESERVED: &[&str] = &["reasons"];
 
 /// Parquet key-value metadata keys.
 pub const META_SCHEMA_VERSION: &str = "tabcard.scoring_schema";
@@ -58,9 +63,9 @@ pub const FIXED_NAMES: &[&str] = &[
     MODEL_ID,
     RESULTS_DIGEST,
     SCHEMA_VERSION,
+    INTERVAL_LOWER,
+    INTERVAL_UPPER,
     "reasons",
-    "interval_lower",
-    "interval_upper",
 ];
 
 #[cfg(test)]

@@ -57,6 +57,27 @@ fn case(columns: Vec<(&'static str, ArrayRef)>, manifest_extra: &str, expected: 
 }
 
 #[test]
+fn calibration_needs_enough_validation_rows() {
+    // 40 rows, validation 0.2: 8 validation rows, fewer than isotonic regression's 200.
+    case(
+        good_columns(),
+        "\n[calibration]\nmethod = \"isotonic\"\n",
+        "m.toml:10:1: key `calibration.method`: calibration method \"isotonic\" is fitted on the validation rows and needs at least 200; the validation split has 8 (raise split.validation, or choose a method that needs fewer rows)",
+    );
+    // A 95% split conformal interval needs k = ceil((n + 1) 0.95) <= n: at least 19 rows.
+    let regression = with(good_columns(), "y", float(&(0..40).map(|i| Some(i as f64 * 0.5)).collect::<Vec<_>>()));
+    let dir = tempfile::tempdir().unwrap();
+    write_parquet(&dir.path().join("data.parquet"), regression);
+    let text = manifest("\n[calibration]\ncoverage = 0.95\n").replace("task = \"binary\"", "task = \"regression\"");
+    std::fs::write(dir.path().join("m.toml"), text).unwrap();
+    expect_error(
+        dir.path(),
+        "m.toml",
+        "m.toml:10:1: key `calibration.coverage`: a 0.95 conformal interval is fitted on the validation rows and needs at least 19; the validation split has 8 (raise split.validation, or choose a method that needs fewer rows)",
+    );
+}
+
+#[test]
 fn missing_unreadable_truncated_and_foreign_files() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("m.toml"), manifest("")).unwrap();

@@ -7,7 +7,6 @@ pub mod conformal;
 pub mod isotonic;
 pub mod platt;
 pub mod temperature;
-pub mod wilson;
 
 use serde::{Deserialize, Serialize};
 

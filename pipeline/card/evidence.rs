@@ -42,6 +42,9 @@ pub(crate) struct Evidence {
     pub test_ece: Option<f64>,
     /// The lower bound of its 95% bootstrap interval (none without resamples).
     pub test_ece_lower: Option<f64>,
+    /// Regression with a prediction interval: (declared coverage, test coverage, the upper end
+    /// of its 95% Wilson interval, covered rows, test rows).
+    pub interval_coverage: Option<(f64, f64, f64, usize, usize)>,
     /// The test metric that says whether the model beats chance (ROC AUC, or R² for regression):
     /// (name, value, interval lower, interval upper, the value chance gives).
     pub chance: Option<(String, f64, f64, f64, f64)>,
@@ -167,6 +170,10 @@ pub(crate) fn gather(
         gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| selection.worse_on_validation(g.mean)),
         test_ece: t.metrics.get("ece").copied().flatten(),
         test_ece_lower: t.intervals.get("ece").map(|i| i.lower),
+        interval_coverage: selection
+            .interval
+            .as_ref()
+            .map(|i| (i.coverage, i.test_coverage, i.test_coverage_interval.1, i.test_covered, i.test_rows)),
         chance,
         test_rows: t.rows,
         test_smallest_class,

@@ -4,9 +4,11 @@
 use serde::Serialize;
 use std::collections::BTreeMap;
 
-use super::plots::{Chart, Series};
+use super::plots::{Chart, Mark, Series};
 use crate::error::Result;
 use crate::manifest::Manifest;
+use crate::metrics::calibration::ReliabilityBin;
+use crate::selection::deployed::CALIBRATION_FROM;
 use crate::selection::Selection;
 use crate::store::run::StoredRun;
 
@@ -25,7 +27,7 @@ pub(crate) fn figure_name(key: &str) -> String {
 }
 
 /// Builds the figures: (file name, alt text, svg).
-pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun]) -> Result<Figures> {
+pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs: &[&StoredRun], layout_version: u32) -> Result<Figures> {
     let mut out = Vec::new();
     let mut series = Vec::new();
     for (colour, r) in selected_runs.iter().enumerate() {
@@ -36,6 +38,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             errors: None,
             dashed: false,
             colour,
+            marks: None,
         });
         series.push(Series {
             name: format!("seed {} validation", r.record.seed),
@@ -43,6 +46,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             errors: None,
             dashed: true,
             colour,
+            marks: None,
         });
     }
     let chart = Chart {
@@ -91,8 +95,8 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
         }
         let mut series = Vec::new();
         for (colour, (label, (val, sd, train))) in lines.into_iter().enumerate() {
-            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false, colour });
-            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true, colour });
+            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false, colour, marks: None });
+            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true, colour, marks: None });
         }
         let chart = Chart {
             title: format!("{m} across {key}"),
@@ -109,18 +113,73 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             chart.render(),
         ));
     }
-    if !selection.test.reliability.is_empty() {
-        let points: Vec<(f64, f64)> = selection.test.reliability.iter().map(|b| (b.mean_predicted, b.observed)).collect();
+    if let Some(figure) = reliability_figure(selection, layout_version) {
+        out.push(figure);
+    }
+    Ok(out)
+}
+
+/// A reliability table as a series: one point per bin, its marker's area by the bin's share of
+/// the largest bin's rows, its Wilson interval and its row count drawn.
+fn reliability_series(name: &str, table: &[ReliabilityBin], dashed: bool, colour: usize) -> Series {
+    let largest = table.iter().map(|b| b.count).max().unwrap_or(1).max(1) as f64;
+    Series {
+        name: name.into(),
+        points: table.iter().map(|b| (b.mean_predicted, b.observed)).collect(),
+        errors: None,
+        dashed,
+        colour,
+        marks: Some(
+            table
+                .iter()
+                .map(|b| {
+                    let (lower, upper) = b.observed_interval.unwrap_or((b.observed, b.observed));
+                    Mark { weight: b.count as f64 / largest, lower, upper, label: format!("n={}", b.count) }
+                })
+                .collect(),
+        ),
+    }
+}
+
+/// The reliability diagram: layout 5 on, top-label (the bins ECE uses), with the network's own
+/// probabilities beside the calibrated ones when a map was fitted; layouts 3 and 4, the
+/// positive-class table of binary models.
+fn reliability_figure(selection: &Selection, layout_version: u32) -> Option<(String, String, String)> {
+    let table = &selection.test.reliability;
+    if table.is_empty() {
+        return None;
+    }
+    if layout_version < CALIBRATION_FROM {
         let chart = Chart {
             title: "Reliability diagram, selected run, test split".into(),
             x_label: "mean predicted probability".into(),
             y_label: "observed share of positives".into(),
-            series: vec![Series { name: "selected run".into(), points, errors: None, dashed: false, colour: 0 }],
+            series: vec![reliability_series("selected run", table, false, 0)],
             x_categories: None,
             diagonal: true,
             fixed_unit_axes: true,
         };
-        out.push(("reliability.svg".into(), "observed share of positives against mean predicted probability in 10 equal-width bins closed on the right (row counts in the table below); the dashed diagonal is perfect calibration".into(), chart.render()));
+        return Some(("reliability.svg".into(), "observed share of positives against mean predicted probability in 10 equal-width bins closed on the right; marker area and label: rows; dashed: perfect calibration".into(), chart.render()));
     }
-    Ok(out)
+    let mut series = Vec::new();
+    if let Some(c) = &selection.calibration {
+        series.push(reliability_series("network's own", &c.reliability_before, true, 7));
+        series.push(reliability_series(&format!("calibrated ({})", c.map.method().as_str()), table, false, 0));
+    } else {
+        series.push(reliability_series("selected run", table, false, 0));
+    }
+    let chart = Chart {
+        title: "Reliability diagram (top label), selected run, test split".into(),
+        x_label: "mean confidence (largest class probability)".into(),
+        y_label: "accuracy (share whose top class is right)".into(),
+        series,
+        x_categories: None,
+        diagonal: true,
+        fixed_unit_axes: true,
+    };
+    Some((
+        "reliability.svg".into(),
+        "accuracy against mean confidence in the bins ECE uses; marker area and label: rows; vertical line: 95% Wilson interval; dashed: perfect calibration".into(),
+        chart.render(),
+    ))
 }

@@ -15,6 +15,7 @@ use serde::Serialize;
 
 use figures::{figures, Figure, Figures};
 use sections::about::{about, About};
+use sections::calibration::{calibration, Calibration};
 use sections::capacity::{capacity, Capacity};
 use sections::data::{data_section, DataSection};
 use sections::provenance::{provenance, Provenance};
@@ -43,6 +44,7 @@ struct CardContext {
     data: DataSection,
     capacity: Capacity,
     results: Results,
+    calibration: Calibration,
     figures: Vec<Figure>,
     limitations: Vec<Limitation>,
     provenance: Provenance,
@@ -71,7 +73,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         .into_iter()
         .map(|l| Limitation { finding: md_line(&sentence_case(&l.finding)), threshold: md_line(&l.threshold), ..l })
         .collect();
-    let figs = figures(&st.manifest, sel, &selected_runs)?;
+    let figs = figures(&st.manifest, sel, &selected_runs, st.layout_version)?;
     let context = CardContext {
         about: about(&st.manifest),
         task: st.manifest.data.task.as_str().into(),
@@ -85,6 +87,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         data: data_section(&st),
         capacity: capacity(&st, selected_cfg, selected_run),
         results: results(&st, &limitations),
+        calibration: calibration(&st),
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),

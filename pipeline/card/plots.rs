@@ -12,6 +12,17 @@ pub(crate) struct Series {
     pub dashed: bool,
     /// Palette index; a train and a validation series of the same seed share one colour.
     pub colour: usize,
+    /// Per point, when given: a marker sized by its weight, a vertical interval and a label
+    /// (reliability diagrams: rows per bin and the Wilson interval).
+    pub marks: Option<Vec<Mark>>,
+}
+
+/// How one point is drawn when its rows matter: `weight` in (0, 1] scales the marker's area.
+pub(crate) struct Mark {
+    pub weight: f64,
+    pub lower: f64,
+    pub upper: f64,
+    pub label: String,
 }
 
 pub(crate) struct Chart {
@@ -183,7 +194,28 @@ impl Chart {
                 if !(p.0.is_finite() && p.1.is_finite()) {
                     continue;
                 }
-                let _ = writeln!(s, r#"<circle cx="{}" cy="{}" r="2.5" fill="{colour}"/>"#, f(sx(p.0)), f(sy(p.1)));
+                let mark = series.marks.as_ref().and_then(|m| m.get(j));
+                let radius = mark.map_or(2.5, |m| 2.0 + 7.0 * m.weight.clamp(0.0, 1.0).sqrt());
+                let _ = writeln!(
+                    s,
+                    r#"<circle cx="{}" cy="{}" r="{}" fill="{colour}" fill-opacity="0.6"/>"#,
+                    f(sx(p.0)),
+                    f(sy(p.1)),
+                    f(radius)
+                );
+                if let Some(m) = mark {
+                    let _ = writeln!(
+                        s,
+                        r#"<line x1="{}" y1="{}" x2="{}" y2="{}" stroke="{colour}"/><text x="{}" y="{}" font-size="10">{}</text>"#,
+                        f(sx(p.0)),
+                        f(sy(m.lower)),
+                        f(sx(p.0)),
+                        f(sy(m.upper)),
+                        f(sx(p.0) + radius + 2.0),
+                        f(sy(p.1) + 3.5),
+                        xml(&m.label)
+                    );
+                }
                 if let Some(e) = series.errors.as_ref().map(|e| e[j]).filter(|e| *e > 0.0) {
                     let _ = writeln!(
                         s,

@@ -14,6 +14,7 @@ use crate::text::terminal_safe;
 pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
+    crate::experiment::feasibility::require_calibration_rows(&exp)?;
     let estimate = crate::experiment::feasibility::estimate(&exp, &plan, exp.preprocessor.width(), jobs);
     let available = crate::experiment::feasibility::available_bytes();
     crate::experiment::feasibility::require(&estimate, available, manifest_path)?;

@@ -168,7 +168,12 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
         return Err(Error::store(&run.dir, format!("holds no model: the run {}", run.record.outcome.describe())));
     }
     let manifest = folder.manifest()?;
-    let deployed = folder.selection()?.deployed_threshold(folder.layout_version);
+    let selection = folder.selection()?;
+    let deployed = selection.deployed_threshold(folder.layout_version);
+    // The calibration map and the interval were fitted for the selected run only.
+    let is_selected = run_id == selection.selected_run;
+    let map = selection.calibration.as_ref().filter(|_| is_selected).map(|c| &c.map);
+    let interval = selection.interval.as_ref().filter(|_| is_selected);
     let mut model = ScoringModel::from_stored(&run)?;
     let table = read_table(input)?;
     if table.rows == 0 {
@@ -177,7 +182,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     check_schema(&table, &summary, &model.preprocessor.inputs, input)?;
     let rows: Vec<usize> = (0..table.rows).collect();
     let (x, report) = model.preprocessor.transform(&table, &rows, input)?;
-    let outputs = model.score(&x)?;
+    let outputs = model.score_calibrated(&x, map)?;
     let mut columns: Vec<(String, ArrayRef)> = Vec::new();
     for id in &record.ids {
         if let Some(col) = table.column(id) {
@@ -188,7 +193,14 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     let k = model.head.values_per_row();
     let labels = &record.class_labels;
     match record.task {
-        Task::Regression => columns.push((schema::PREDICTION.into(), Arc::new(Float64Array::from(outputs.clone())))),
+        Task::Regression => {
+            columns.push((schema::PREDICTION.into(), Arc::new(Float64Array::from(outputs.clone()))));
+            if let Some(i) = interval {
+                let bound = |sign: f64| Arc::new(Float64Array::from(outputs.iter().map(|p| p + sign * i.half_width).collect::<Vec<_>>()));
+                columns.push((schema::INTERVAL_LOWER.into(), bound(-1.0)));
+                columns.push((schema::INTERVAL_UPPER.into(), bound(1.0)));
+            }
+        }
         task => {
             for (c, label) in labels.iter().enumerate() {
                 if task == Task::Binary && c == 0 {
@@ -246,6 +258,26 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     let provenance = Provenance { model_id: run_id.clone(), results_digest: folder.digest.clone(), experiment: record.fingerprint.clone() };
     let mut out = String::new();
     let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
+    match (&selection.calibration, interval) {
+        (Some(c), _) if is_selected => {
+            let _ = writeln!(out, "calibrated probabilities through the stored {} map (see the card's Calibration)", c.map.method().as_str());
+        }
+        (_, Some(i)) => {
+            let _ = writeln!(
+                out,
+                "intervals {}% split conformal: prediction -+ {} (interval_lower, interval_upper)",
+                crate::format::sig(100.0 * i.coverage, 4),
+                crate::format::sig(i.half_width, 6)
+            );
+        }
+        (Some(_), None) | (None, None) if !is_selected && folder.layout_version >= crate::selection::deployed::CALIBRATION_FROM => {
+            let _ = writeln!(
+                out,
+                "note      run {run_id} is not the selected run: its own probabilities or predictions, without the selected run's calibration map or interval"
+            );
+        }
+        _ => {}
+    }
     let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
     if report.unseen_levels.is_empty() {
         let _ = writeln!(out, "unseen    no category levels unseen in training");

@@ -246,6 +246,14 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
             "threshold = \"youden_j_on_validation\"  # | fixed (with fixed_threshold) | expected_cost (with cost_false_positive, cost_false_negative)"
         );
     }
+    let _ = writeln!(out, "\n[calibration]  # fitted on the validation rows after selection; no trained bit moves");
+    if task == Task::Regression {
+        let _ =
+            writeln!(out, "coverage = {}  # of the split conformal prediction interval predict writes", crate::manifest::DEFAULT_COVERAGE);
+    } else {
+        let methods = if task == Task::Binary { "none | temperature | platt | isotonic" } else { "none | temperature" };
+        let _ = writeln!(out, "method = \"none\"  # {methods}: how the probabilities are recalibrated");
+    }
     let sweep = SweepSpec::default();
     let _ = writeln!(out, "\n[sweep]");
     let _ = writeln!(out, "seeds = {:?}  # every configuration is trained once per seed", sweep.seeds);

@@ -156,7 +156,8 @@ fn select_and_record(
 ) -> Result<(Selection, String)> {
     let selecting = Instant::now();
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
-    let crate::selection::Derived { selection, test_predictions } = crate::selection::derive(prepared, &runs)?;
+    let crate::selection::Derived { selection, test_predictions } =
+        crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
     write_json(&layout.selection(), &selection)?;
@@ -263,6 +264,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let planned_runs = options.shard.map(|s| s.size(plan.runs.len())).unwrap_or(plan.runs.len());
     let options = &TrainOptions { jobs: crate::threads::workers(options.jobs, planned_runs)?, ..options.clone() };
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
+    crate::experiment::feasibility::require_calibration_rows(exp)?;
     let estimate = crate::experiment::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
     crate::experiment::feasibility::require(&estimate, crate::experiment::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));

@@ -10,6 +10,32 @@ use crate::error::{Error, Result};
 use crate::experiment::plan::{Plan, PlannedConfig};
 use crate::experiment::Experiment;
 
+/// Whether the validation split holds enough rows for `[calibration]`: the method's minimum for
+/// a classifier's map, and for a regression interval at least the n with
+/// ceil((n + 1) coverage) <= n. Checked by `check` and before `train` writes anything.
+pub fn require_calibration_rows(exp: &Experiment) -> Result<()> {
+    use crate::manifest::Task;
+    let spec = exp.manifest.calibration.clone().unwrap_or_default();
+    let rows = exp.splits.validation.len();
+    let (key, minimum, what) = match exp.manifest.data.task {
+        Task::Regression => {
+            let coverage = spec.coverage();
+            let minimum = crate::calibrate::conformal::minimum_rows(coverage);
+            ("calibration.coverage", minimum, format!("a {coverage} conformal interval"))
+        }
+        _ => ("calibration.method", spec.method.minimum_rows(), format!("calibration method \"{}\"", spec.method.as_str())),
+    };
+    if rows >= minimum {
+        return Ok(());
+    }
+    Err(crate::manifest::key_error(
+        &exp.manifest_path,
+        key,
+        format!("{what} is fitted on the validation rows and needs at least {minimum}; the validation split has {rows}"),
+        Some("raise split.validation, or choose a method that needs fewer rows".into()),
+    ))
+}
+
 /// Bytes per trainable parameter in one worker: the engine's weights and gradients (f32), the
 /// optimizer's two moments (f64), the model's own copy, the copy handed over at start and at
 /// the end, the best epoch's snapshot and the stored tensors.

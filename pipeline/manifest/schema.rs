@@ -24,6 +24,37 @@ pub struct Manifest {
     /// no favourable outcome declared.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub decision: Option<DecisionSpec>,
+    /// What is fitted on held-out rows after training: a classifier's probability map, a
+    /// regression model's prediction interval; absent: no map, 90% intervals.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calibration: Option<CalibrationSpec>,
+}
+
+/// Coverage of a regression model's prediction interval when the manifest names none.
+pub const DEFAULT_COVERAGE: f64 = 0.9;
+
+/// `[calibration]`: fitted on the validation rows of the selected run, after selection, so no
+/// trained bit moves.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CalibrationSpec {
+    /// Classifiers: how probabilities are recalibrated (`none`, `temperature`, `platt`,
+    /// `isotonic`).
+    #[serde(default)]
+    pub method: crate::calibrate::CalibrationMethod,
+    /// Regression: the coverage 1 - alpha of the split conformal interval, in (0, 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub coverage: Option<f64>,
+    /// Classifiers: a reliability table per class (one against the rest) beside the top-label one.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub per_class_reliability: bool,
+}
+
+impl CalibrationSpec {
+    /// The interval coverage a regression model gets.
+    pub fn coverage(&self) -> f64 {
+        self.coverage.unwrap_or(DEFAULT_COVERAGE)
+    }
 }
 
 /// The declared decision: which outcome favours the person, and how the deployed threshold on

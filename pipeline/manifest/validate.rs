@@ -252,7 +252,30 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
     if let Some(d) = &m.decision {
         validate_decision(&mut c, m.data.task, d);
     }
+    if let Some(cal) = &m.calibration {
+        validate_calibration(&mut c, m.data.task, cal);
+    }
     c.0
+}
+
+/// `[calibration]`: a method for classifiers (binary-only maps on binary tasks), a coverage in
+/// (0, 1) for regression.
+fn validate_calibration(c: &mut Collector, task: Task, cal: &CalibrationSpec) {
+    use crate::calibrate::CalibrationMethod;
+    let regression = task == Task::Regression;
+    c.check(!(regression && cal.method != CalibrationMethod::None), "calibration.method", || {
+        "applies to classifiers; a regression model gets a conformal prediction interval (calibration.coverage)".into()
+    });
+    c.check(regression || task == Task::Binary || cal.method.applies_to(3), "calibration.method", || {
+        format!("\"{}\" applies to binary models only; use \"temperature\" for a multiclass model", cal.method.as_str())
+    });
+    if let Some(coverage) = cal.coverage {
+        c.check(regression, "calibration.coverage", || {
+            format!("applies to regression (this task is {}): it is the coverage of a prediction interval", task.as_str())
+        });
+        c.check(coverage > 0.0 && coverage < 1.0, "calibration.coverage", || format!("must be in (0, 1), got {coverage:?}"));
+    }
+    c.check(!(regression && cal.per_class_reliability), "calibration.per_class_reliability", || "applies to classifiers".into());
 }
 
 /// The declared decision: binary tasks only, each rule with exactly the keys it uses.

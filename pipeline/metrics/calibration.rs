@@ -1,7 +1,8 @@
-//! Calibration: expected calibration error on top-label confidence, and reliability-diagram data
-//! on the positive-class probability for binary models. Both use one binning: `bins` equal-width
-//! bins closed on the right, ((m-1)/M, m/M], with 0 in the first (Guo et al. 2017, section 2; the
-//! "uniform" strategy of scikit-learn's `calibration_curve`).
+//! Calibration measured: the top-label reliability table and the expected calibration error
+//! computed from it, so the one recomputes the other exactly, and one-against-the-rest tables per
+//! class. Every table uses one binning: `bins` equal-width bins closed on the right,
+//! ((m-1)/M, m/M], with 0 in the first (Guo et al. 2017, section 2; the "uniform" strategy of
+//! scikit-learn's `calibration_curve`).
 
 /// One bin of a reliability diagram.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -11,6 +12,63 @@ pub struct ReliabilityBin {
     pub count: usize,
     pub mean_predicted: f64,
     pub observed: f64,
+    /// 95% Wilson interval of `observed` (tables of results layout 5 on).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub observed_interval: Option<(f64, f64)>,
+}
+
+/// The top-label reliability table: per bin of top-label confidence (the largest class
+/// probability), its rows, mean confidence and accuracy (the share whose top label is the true
+/// class) with a 95% Wilson interval. Empty bins are left out. [`ece_from_table`] of it is the
+/// expected calibration error.
+pub fn top_label_table(labels: &[usize], probs: &[f64], k: usize, bins: usize) -> Vec<ReliabilityBin> {
+    let mut count = vec![0usize; bins];
+    let mut confidence = vec![0.0; bins];
+    let mut correct = vec![0usize; bins];
+    for (row, &y) in probs.chunks_exact(k).zip(labels) {
+        let top = super::classification::argmax(row);
+        let b = bin_of(row[top], bins);
+        count[b] += 1;
+        confidence[b] += row[top];
+        correct[b] += (top == y) as usize;
+    }
+    table(&count, &confidence, &correct, bins)
+}
+
+fn table(count: &[usize], predicted: &[f64], hits: &[usize], bins: usize) -> Vec<ReliabilityBin> {
+    (0..bins)
+        .filter(|&b| count[b] > 0)
+        .map(|b| ReliabilityBin {
+            lower: b as f64 / bins as f64,
+            upper: (b + 1) as f64 / bins as f64,
+            count: count[b],
+            mean_predicted: predicted[b] / count[b] as f64,
+            observed: hits[b] as f64 / count[b] as f64,
+            observed_interval: Some(super::wilson::interval(hits[b], count[b], super::wilson::Z95)),
+        })
+        .collect()
+}
+
+/// The expected calibration error of a reliability table over `rows` rows: each bin's
+/// |observed - mean predicted| weighted by its share of rows, summed in bin order.
+pub fn ece_from_table(table: &[ReliabilityBin], rows: usize) -> f64 {
+    let n = rows as f64;
+    table.iter().map(|b| (b.count as f64 / n) * (b.observed - b.mean_predicted).abs()).sum()
+}
+
+/// One class against the rest: the class's probability binned, with the share of rows of that
+/// class per bin and its Wilson interval.
+pub fn class_table(labels: &[usize], probs: &[f64], k: usize, class: usize, bins: usize) -> Vec<ReliabilityBin> {
+    let mut count = vec![0usize; bins];
+    let mut predicted = vec![0.0; bins];
+    let mut hits = vec![0usize; bins];
+    for (row, &y) in probs.chunks_exact(k).zip(labels) {
+        let b = bin_of(row[class], bins);
+        count[b] += 1;
+        predicted[b] += row[class];
+        hits[b] += (y == class) as usize;
+    }
+    table(&count, &predicted, &hits, bins)
 }
 
 /// Index of the right-closed equal-width bin holding `x` in [0, 1]: the number of interior edges
@@ -24,33 +82,18 @@ pub fn bin_of(x: f64, bins: usize) -> usize {
 /// ECE with `bins` right-closed equal-width bins over top-label confidence (the largest class
 /// probability), each bin's |accuracy - mean confidence| weighted by its share of rows
 /// (Guo et al. 2017, "On Calibration of Modern Neural Networks", eq. 3 with bins
-/// I_m = ((m-1)/M, m/M]).
+/// I_m = ((m-1)/M, m/M]): [`ece_from_table`] of [`top_label_table`].
 pub fn expected_calibration_error(labels: &[usize], probs: &[f64], k: usize, bins: usize) -> Option<f64> {
     if labels.is_empty() || bins == 0 {
         return None;
     }
-    let mut count = vec![0usize; bins];
-    let mut confidence = vec![0.0; bins];
-    let mut correct = vec![0.0; bins];
-    for (row, &y) in probs.chunks_exact(k).zip(labels) {
-        let top = super::classification::argmax(row);
-        let b = bin_of(row[top], bins);
-        count[b] += 1;
-        confidence[b] += row[top];
-        correct[b] += (top == y) as u8 as f64;
-    }
-    let n = labels.len() as f64;
-    Some(
-        (0..bins)
-            .filter(|&b| count[b] > 0)
-            .map(|b| (count[b] as f64 / n) * (correct[b] / count[b] as f64 - confidence[b] / count[b] as f64).abs())
-            .sum(),
-    )
+    Some(ece_from_table(&top_label_table(labels, probs, k, bins), labels.len()))
 }
 
 /// Observed positive share against mean predicted probability in `bins` right-closed equal-width
 /// bins ([`bin_of`]) on the positive-class probability, as the "uniform" strategy of
-/// scikit-learn's `calibration_curve` bins. Empty bins are left out.
+/// scikit-learn's `calibration_curve` bins. Empty bins are left out. The binary table of results
+/// layouts 3 and 4, kept so their folders re-derive bit for bit; no interval.
 pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -> Vec<ReliabilityBin> {
     let mut count = vec![0usize; bins];
     let mut predicted = vec![0.0; bins];
@@ -69,6 +112,7 @@ pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -
             count: count[b],
             mean_predicted: predicted[b] / count[b] as f64,
             observed: observed[b] / count[b] as f64,
+            observed_interval: None,
         })
         .collect()
 }

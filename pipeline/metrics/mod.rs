@@ -7,6 +7,7 @@ pub mod calibration;
 pub mod classification;
 pub mod registry;
 pub mod regression;
+pub mod wilson;
 
 use std::collections::BTreeMap;
 

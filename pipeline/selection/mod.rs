@@ -3,23 +3,28 @@
 //! manifest's metric; and one evaluation of the selected configuration on the test split, with
 //! seeded bootstrap intervals for the selected run's test metrics.
 
+pub(crate) mod deployed;
 pub(crate) mod scoring;
 
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
 use std::collections::BTreeMap;
 
+use crate::calibrate::{self, CalibrationMap, CalibrationMethod};
 use crate::data::prep::Matrix;
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
-use crate::manifest::{DecisionSpec, SelectionRule, ThresholdRule};
+use crate::manifest::{CalibrationSpec, DecisionSpec, SelectionRule, ThresholdRule};
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
-use crate::metrics::calibration::{reliability_bins, ReliabilityBin};
+use crate::metrics::calibration::{class_table, reliability_bins, top_label_table, ReliabilityBin};
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::classification::{operating_point_at, youden_threshold};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
+use crate::selection::deployed::{
+    fit_interval, CalibrationReport, IntervalReport, CALIBRATION_FROM, CALIBRATION_METRICS, FITTED_ON_VALIDATION,
+};
 use crate::selection::scoring::ScoringModel;
 use crate::store::run::StoredRun;
 use crate::training::Labels;
@@ -66,7 +71,12 @@ pub(crate) struct TestEvaluation {
     pub intervals: BTreeMap<String, Interval>,
     /// Test metrics of every seed of the selected configuration, aggregated.
     pub across_seeds: BTreeMap<String, Spread>,
+    /// Layout 5 on: the top-label table ECE is computed from, for every classifier; layouts 3
+    /// and 4: the positive-class table of binary models.
     pub reliability: Vec<ReliabilityBin>,
+    /// One table per class against the rest, when `[calibration] per_class_reliability` asks.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub reliability_per_class: Vec<ClassReliability>,
     pub confusion: Vec<Vec<usize>>,
     pub per_class: Vec<ClassReport>,
     /// Test metrics of the selected run per level of each group column named in the manifest.
@@ -134,6 +144,19 @@ pub(crate) struct Selection {
     #[serde(default)]
     pub best_config: String,
     pub test: TestEvaluation,
+    /// Layout 5 on, classifiers with `[calibration] method`: the fitted map.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calibration: Option<CalibrationReport>,
+    /// Layout 5 on, regression: the split conformal prediction interval.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub interval: Option<IntervalReport>,
+}
+
+/// A class's one-against-the-rest reliability table.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct ClassReliability {
+    pub class: usize,
+    pub bins: Vec<ReliabilityBin>,
 }
 
 /// The threshold a binary model decides at, as deployed.
@@ -297,52 +320,109 @@ pub(crate) fn select(task: crate::manifest::Task, plan: &Plan, runs: &[StoredRun
     Ok(Picked { configs, selected_config, selected_run: run_id, best_config })
 }
 
-/// Scores the test rows with every seed of the selected configuration; bootstrap intervals for
-/// the selected run, seeded by `bootstrap_seed`.
-#[allow(clippy::too_many_arguments)]
+/// What the test evaluation is given beside the runs and the test rows.
+pub(crate) struct EvaluationInputs<'a> {
+    pub bootstrap: usize,
+    pub bootstrap_seed: u64,
+    pub group_columns: &'a [GroupColumn],
+    pub validation: (&'a Matrix, &'a Labels),
+    pub decision: &'a DecisionSpec,
+    pub calibration: &'a CalibrationSpec,
+    /// The results layout derived for: calibration, intervals and top-label tables from 5 on.
+    pub layout_version: u32,
+}
+
+/// What [`evaluate_test`] derived.
+pub(crate) struct Evaluated {
+    pub test: TestEvaluation,
+    /// The selected run's deployed outputs on the test rows (calibrated when a map was fitted).
+    pub outputs: Vec<f64>,
+    pub calibration: Option<CalibrationReport>,
+    pub interval: Option<IntervalReport>,
+}
+
+/// One seed of the selected configuration, scored as deployed.
+struct SeedScores {
+    seed: u64,
+    run_id: String,
+    model: ScoringModel,
+    map: Option<CalibrationMap>,
+    /// The network's own outputs on the test rows, and the deployed ones.
+    raw_outputs: Vec<f64>,
+    outputs: Vec<f64>,
+}
+
+fn class_rows(labels: &Labels) -> Option<(&[usize], usize)> {
+    match labels {
+        Labels::Classes { rows, classes } => Some((rows, *classes)),
+        Labels::Values(_) => None,
+    }
+}
+
+/// Scores one run on the test rows as deployed: its map (fitted on its own validation outputs)
+/// applied when `method` asks for one.
+fn score_seed(run: &StoredRun, test_x: &Matrix, validation: (&Matrix, &Labels), method: CalibrationMethod) -> Result<SeedScores> {
+    let mut model = ScoringModel::from_stored(run)?;
+    let raw_test: Vec<f32> = model.raw(test_x);
+    let raw_outputs = model.head.predictions(&raw_test, model.scaling);
+    let map = match class_rows(validation.1) {
+        Some((rows, classes)) if method != CalibrationMethod::None => {
+            let raw_val: Vec<f64> = model.raw(validation.0).into_iter().map(f64::from).collect();
+            calibrate::fit(method, &raw_val, rows, classes).map_err(|e| Error::Usage(format!("[calibration] method: {e}")))?
+        }
+        _ => None,
+    };
+    let outputs = match &map {
+        Some(m) => m.apply(&raw_test.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), model.head.classes),
+        None => raw_outputs.clone(),
+    };
+    Ok(SeedScores { seed: run.record.seed, run_id: run.record.run_id.clone(), model, map, raw_outputs, outputs })
+}
+
+/// Scores the test rows with every seed of the selected configuration as deployed (each seed
+/// with its own calibration map when the manifest asks for one); bootstrap intervals for the
+/// selected run, seeded by `bootstrap_seed`; the regression interval of the selected run.
 pub(crate) fn evaluate_test(
     runs: &[StoredRun],
     selected_config: &str,
     selected_run: &str,
     test_x: &Matrix,
     test_y: &Labels,
-    bootstrap: usize,
-    bootstrap_seed: u64,
-    group_columns: &[GroupColumn],
-    validation: (&Matrix, &Labels),
-    decision: &DecisionSpec,
-) -> Result<(TestEvaluation, Vec<f64>)> {
+    inputs: &EvaluationInputs,
+) -> Result<Evaluated> {
+    let current = inputs.layout_version >= CALIBRATION_FROM;
+    let method = if current { inputs.calibration.method } else { CalibrationMethod::None };
     let mut per_seed: Vec<MetricSet> = Vec::new();
-    let mut selected: Option<(u64, Vec<f64>, ScoringModel)> = None;
+    let mut selected: Option<SeedScores> = None;
     for r in runs.iter().filter(|r| r.record.config_id == selected_config && r.record.outcome.is_completed()) {
-        let mut model = ScoringModel::from_stored(r)?;
-        let outputs = model.score(test_x)?;
-        per_seed.push(model.head.metrics(&outputs, test_y));
-        if r.record.run_id == selected_run {
-            selected = Some((r.record.seed, outputs, model));
+        let scores = score_seed(r, test_x, inputs.validation, method)?;
+        per_seed.push(scores.model.head.metrics(&scores.outputs, test_y));
+        if scores.run_id == selected_run {
+            selected = Some(scores);
         }
     }
-    let (seed, outputs, model) =
+    let SeedScores { seed, mut model, map, raw_outputs, outputs, .. } =
         selected.ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
     let head = model.head;
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
-    let subset = |idx: &[usize]| -> (Vec<f64>, Labels) {
-        let sub_out: Vec<f64> = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
+    let subset = |out: &[f64], idx: &[usize]| -> (Vec<f64>, Labels) {
+        let sub_out: Vec<f64> = idx.iter().flat_map(|&i| out[i * k..(i + 1) * k].iter().copied()).collect();
         let sub_y = match test_y {
             Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
             Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
         };
         (sub_out, sub_y)
     };
+    let (bootstrap, bootstrap_seed) = (inputs.bootstrap, inputs.bootstrap_seed);
     let mut groups = Vec::new();
-    for g in group_columns {
+    for g in inputs.group_columns {
         let mut levels: BTreeMap<String, Vec<usize>> = BTreeMap::new();
         for (i, l) in g.labels.iter().enumerate() {
             levels.entry(l.clone().unwrap_or_else(|| "(missing)".into())).or_default().push(i);
         }
         for (level, idx) in levels {
-            let (o, y) = subset(&idx);
+            let (o, y) = subset(&outputs, &idx);
             let base_rate = match &y {
                 Labels::Classes { rows, classes: 2 } => Some(rows.iter().filter(|&&c| c == 1).count() as f64 / rows.len().max(1) as f64),
                 Labels::Values(v) => Some(v.iter().sum::<f64>() / v.len().max(1) as f64),
@@ -350,7 +430,7 @@ pub(crate) fn evaluate_test(
             };
             let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, |within| {
                 let rows: Vec<usize> = within.iter().map(|&i| idx[i]).collect();
-                let (sub_out, sub_y) = subset(&rows);
+                let (sub_out, sub_y) = subset(&outputs, &rows);
                 head.metrics(&sub_out, &sub_y)
             });
             groups.push(GroupMetrics {
@@ -364,13 +444,14 @@ pub(crate) fn evaluate_test(
         }
     }
     let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-        let (sub_out, sub_y) = subset(idx);
+        let (sub_out, sub_y) = subset(&outputs, idx);
         head.metrics(&sub_out, &sub_y)
     });
-    let chosen_threshold = match (test_y, validation.1) {
+    let (validation_x, validation_y) = inputs.validation;
+    let decision = inputs.decision;
+    let chosen_threshold = match (test_y, validation_y) {
         (Labels::Classes { rows, classes: 2 }, Labels::Classes { rows: val_rows, .. }) => {
-            let mut m = model;
-            let val_out = m.score(validation.0)?;
+            let val_out = model.score_calibrated(validation_x, map.as_ref())?;
             let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
             let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
             let point = match decision.threshold_without_data() {
@@ -393,21 +474,53 @@ pub(crate) fn evaluate_test(
         }
         _ => None,
     };
-    let (reliability, confusion, per_class_report) = match test_y {
+    let (reliability, reliability_per_class, confusion, per_class_report) = match test_y {
         Labels::Classes { rows, classes } => {
             let predicted = predicted_classes(&outputs, *classes);
-            let reliability = if *classes == 2 {
+            let (table, per_class_tables) = if current {
+                let per_class_tables = if inputs.calibration.per_class_reliability {
+                    (0..*classes).map(|c| ClassReliability { class: c, bins: class_table(rows, &outputs, *classes, c, 10) }).collect()
+                } else {
+                    Vec::new()
+                };
+                (top_label_table(rows, &outputs, *classes, 10), per_class_tables)
+            } else if *classes == 2 {
                 let is_pos: Vec<bool> = rows.iter().map(|&y| y == 1).collect();
                 let p: Vec<f64> = outputs.chunks_exact(2).map(|r| r[1]).collect();
-                reliability_bins(&is_pos, &p, 10)
+                (reliability_bins(&is_pos, &p, 10), Vec::new())
             } else {
-                Vec::new()
+                (Vec::new(), Vec::new())
             };
-            (reliability, confusion_matrix(rows, &predicted, *classes), per_class(rows, &predicted, *classes))
+            (table, per_class_tables, confusion_matrix(rows, &predicted, *classes), per_class(rows, &predicted, *classes))
         }
-        Labels::Values(_) => (Vec::new(), Vec::new(), Vec::new()),
+        Labels::Values(_) => (Vec::new(), Vec::new(), Vec::new(), Vec::new()),
     };
-    let evaluation = TestEvaluation {
+    let calibration = match (&map, test_y) {
+        (Some(map), Labels::Classes { rows, classes }) => {
+            let before = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
+                let (sub_out, sub_y) = subset(&raw_outputs, idx);
+                let mut m = head.metrics(&sub_out, &sub_y);
+                m.retain(|name, _| CALIBRATION_METRICS.contains(&name.as_str()));
+                m
+            });
+            Some(CalibrationReport {
+                map: map.clone(),
+                fitted_on: FITTED_ON_VALIDATION.into(),
+                rows: validation_y.len(),
+                before,
+                reliability_before: top_label_table(rows, &raw_outputs, *classes, 10),
+            })
+        }
+        _ => None,
+    };
+    let interval = match (test_y, validation_y) {
+        (Labels::Values(test_v), Labels::Values(val_v)) if current => {
+            let val_out = model.score(validation_x)?;
+            Some(fit_interval((&val_out, val_v), (&outputs, test_v), inputs.calibration.coverage())?)
+        }
+        _ => None,
+    };
+    let test = TestEvaluation {
         run_id: selected_run.to_string(),
         seed,
         rows: test_y.len(),
@@ -415,12 +528,13 @@ pub(crate) fn evaluate_test(
         intervals,
         across_seeds: spreads(&per_seed),
         reliability,
+        reliability_per_class,
         confusion,
         per_class: per_class_report,
         groups,
         chosen_threshold,
     };
-    Ok((evaluation, outputs))
+    Ok(Evaluated { test, outputs, calibration, interval })
 }
 
 /// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
@@ -437,8 +551,8 @@ pub(crate) struct Derived {
 
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
 /// run on the test split: what `train` records in `selection.json` and `test-predictions.csv`, and
-/// `verify` re-derives.
-pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Derived> {
+/// `verify` re-derives, as results layout `layout_version` records them.
+pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u32) -> Result<Derived> {
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
@@ -456,22 +570,20 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Derived>
             Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
         })
         .collect::<Result<_>>()?;
-    let (test, test_outputs) = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?.install(|| {
-        evaluate_test(
-            runs,
-            &picked.selected_config,
-            &picked.selected_run,
-            &test_x,
-            &test_y,
-            m.selection.bootstrap,
-            m.split.seed,
-            &groups,
-            (&prepared.validation_x, &prepared.validation_y),
-            &m.decision.clone().unwrap_or_default(),
-        )
-    })?;
+    let calibration = m.calibration.clone().unwrap_or_default();
+    let inputs = EvaluationInputs {
+        bootstrap: m.selection.bootstrap,
+        bootstrap_seed: m.split.seed,
+        group_columns: &groups,
+        validation: (&prepared.validation_x, &prepared.validation_y),
+        decision: &m.decision.clone().unwrap_or_default(),
+        calibration: &calibration,
+        layout_version,
+    };
+    let evaluated = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?
+        .install(|| evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, &inputs))?;
     let per_row = exp.head().values_per_row();
-    let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &test_outputs, per_row);
+    let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &evaluated.outputs, per_row);
     let selection = Selection {
         metric: m.selection.metric.clone(),
         higher_is_better: crate::metrics::registry::direction(m.data.task, &m.selection.metric)
@@ -482,7 +594,9 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun]) -> Result<Derived>
         baseline_config: plan.configs.iter().find(|c| c.baseline).map(|c| c.id.clone()),
         rule: m.selection.rule,
         best_config: picked.best_config,
-        test,
+        test: evaluated.test,
+        calibration: evaluated.calibration,
+        interval: evaluated.interval,
     };
     Ok(Derived { selection, test_predictions })
 }

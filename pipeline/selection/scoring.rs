@@ -1,8 +1,9 @@
 //! A stored model ready to score rows: its configuration, head, preprocessor and weights, loaded
-//! from a run folder.
+//! from a run folder, and with the calibration map fitted for it, what is deployed.
 
 use candle_core::DType;
 
+use crate::calibrate::CalibrationMap;
 use crate::data::prep::{Matrix, Preprocessor};
 use crate::error::Result;
 use crate::nn::engine::{Engine, EVAL_BLOCK};
@@ -33,8 +34,24 @@ impl ScoringModel {
 
     /// Class probabilities (k per row) or predictions for every row of `x`.
     pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
-        crate::numerics::prepare_process();
-        let raw = self.engine.evaluate(x);
+        let raw = self.raw(x);
         Ok(self.head.predictions(&raw, self.scaling))
+    }
+
+    /// The network's raw outputs (logits, or the standardised prediction) for every row of `x`.
+    pub(crate) fn raw(&mut self, x: &Matrix) -> Vec<f32> {
+        crate::numerics::prepare_process();
+        self.engine.evaluate(x)
+    }
+
+    /// Probabilities through `map` when one is given, else as [`ScoringModel::score`].
+    pub(crate) fn score_calibrated(&mut self, x: &Matrix, map: Option<&CalibrationMap>) -> Result<Vec<f64>> {
+        match map {
+            Some(map) => {
+                let raw: Vec<f64> = self.raw(x).into_iter().map(f64::from).collect();
+                Ok(map.apply(&raw, self.head.classes))
+            }
+            None => self.score(x),
+        }
     }
 }

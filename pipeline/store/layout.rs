@@ -14,10 +14,10 @@ use crate::error::{Error, Result};
 /// `records.sha256` with the card and figures, outside the results digest), stores the test
 /// split's predictions (`test-predictions.csv`) and the declared decision, and admits attached
 /// records (`reviews/`, `monitoring/`).
-pub const FORMAT_VERSION: u32 = 4;
+pub const FORMAT_VERSION: u32 = 5;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]

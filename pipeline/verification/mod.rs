@@ -332,7 +332,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         None => NumericsCheck::NotRecorded,
     };
     // The selection and its one test evaluation, re-derived from the stored runs.
-    let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs));
+    let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs, sealed.layout_version));
     let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
     let stored_test_predictions = sealed.test_predictions_text()?;
     let selection_check = match derived {

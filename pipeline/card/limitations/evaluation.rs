@@ -73,6 +73,26 @@ pub(super) fn poor_calibration(e: &Evidence) -> Option<Limitation> {
     ))
 }
 
+/// The prediction interval covers fewer test targets than declared, beyond what the test
+/// split's size explains: the declared coverage lies above the Wilson interval of the observed.
+pub(super) fn interval_undercoverage(e: &Evidence) -> Option<Limitation> {
+    let (declared, observed, upper, covered, rows) = e.interval_coverage?;
+    (declared > upper).then(|| {
+        Limitation::new(
+            "interval_undercoverage",
+            "Prediction intervals cover less than declared",
+            format!(
+                "the {}% interval covered {covered} of {rows} test targets ({}%; at most {}% by the 95% Wilson interval): the test rows \
+                 are not exchangeable with the validation rows it was fitted on (a drift, a time or group split), so its width is too narrow",
+                sig(100.0 * declared, 4),
+                sig(100.0 * observed, 4),
+                sig(100.0 * upper, 4)
+            ),
+            "the declared coverage inside the 95% Wilson interval of the test coverage (split conformal guarantee, Lei et al. 2018)".into(),
+        )
+    })
+}
+
 pub(super) fn no_better_than_chance(e: &Evidence) -> Option<Limitation> {
     let (name, value, lower, upper, chance) = e.chance.as_ref()?;
     (*lower <= *chance).then(|| {

@@ -32,6 +32,7 @@ pub(crate) const RULES: &[(&str, Rule)] = &[
     ("large_seed_spread", large_seed_spread),
     ("large_generalisation_gap", large_generalisation_gap),
     ("poor_calibration", poor_calibration),
+    ("interval_undercoverage", interval_undercoverage),
     ("many_missing_values", many_missing_values),
     ("rare_levels", rare_levels),
     ("constant_on_training_rows", constant_on_training_rows),
@@ -67,6 +68,7 @@ mod tests {
             gap: Some(0.01),
             test_ece: Some(0.02),
             test_ece_lower: Some(0.01),
+            interval_coverage: None,
             chance: Some(("roc_auc".into(), 0.84, 0.82, 0.86, 0.5)),
             test_rows: 4000,
             test_smallest_class: Some(("yes".into(), 1200)),
@@ -103,6 +105,7 @@ mod tests {
             ("large_seed_spread", Box::new(|e| e.selected = Some((0.85, 0.011)))),
             ("large_generalisation_gap", Box::new(|e| e.gap = Some(0.051))),
             ("poor_calibration", Box::new(|e| (e.test_ece, e.test_ece_lower) = (Some(0.09), Some(0.06)))),
+            ("interval_undercoverage", Box::new(|e| e.interval_coverage = Some((0.9, 0.8, 0.85, 160, 200)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.435, 0.40, 0.47, 0.5)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.55, 0.49, 0.61, 0.5)))),
             ("many_missing_values", Box::new(|e| e.missing.push(("b".into(), 0.4)))),
@@ -123,6 +126,15 @@ mod tests {
             assert!(fires(rule, &e), "{rule} did not fire");
             assert_eq!(derive(&e).len(), 1, "{rule}: other rules fired too: {:?}", derive(&e));
         }
+    }
+
+    #[test]
+    fn interval_coverage_within_noise_does_not_fire() {
+        let mut e = healthy();
+        e.interval_coverage = Some((0.9, 0.88, 0.92, 176, 200));
+        assert!(!fires("interval_undercoverage", &e));
+        e.interval_coverage = Some((0.9, 0.97, 0.99, 194, 200));
+        assert!(!fires("interval_undercoverage", &e), "over-coverage is not a shortfall");
     }
 
     #[test]

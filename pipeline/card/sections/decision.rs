@@ -8,16 +8,20 @@ use crate::results::StoredResults;
 use crate::selection::{ThresholdReport, DECLARED_DECISION_FROM};
 use crate::text::code_span;
 
-/// How a threshold rule set the threshold, in a sentence's middle.
-fn rule_phrase(report: &ThresholdReport) -> String {
+/// How a threshold rule set the threshold, in a sentence's middle; `calibrated` names the map
+/// the probabilities went through, if any.
+fn rule_phrase(report: &ThresholdReport, calibrated: Option<&str>) -> String {
     match report.rule {
         ThresholdRule::Fixed => "a fixed threshold stated in the manifest".into(),
         ThresholdRule::ExpectedCost => format!(
             "the expected-cost threshold c_FP / (c_FP + c_FN) with a false positive costing {} and a false negative {} \
-             (Elkan 2001, \"The foundations of cost-sensitive learning\"); it assumes calibrated probabilities, and these are the \
-             network's own, not recalibrated",
+             (Elkan 2001, \"The foundations of cost-sensitive learning\"); it assumes calibrated probabilities, and these {}",
             report.cost_false_positive.map_or("?".into(), |c| sig(c, 4)),
             report.cost_false_negative.map_or("?".into(), |c| sig(c, 4)),
+            match calibrated {
+                Some(method) => format!("are recalibrated by {method} (see Calibration)"),
+                None => "are the network's own, not recalibrated".into(),
+            }
         ),
         ThresholdRule::YoudenJOnValidation => {
             "set on the validation rows by Youden's J, the largest true-positive rate minus false-positive rate (Youden 1950)".into()
@@ -38,7 +42,7 @@ pub(crate) fn lead(st: &StoredResults) -> String {
                 Some(report) => format!(
                     "a row is predicted {positive} when its probability of {positive} is at least **{}**, the deployed threshold: {}.",
                     sig(deployed.value, 4),
-                    rule_phrase(report)
+                    rule_phrase(report, st.selection.calibration.as_ref().map(|c| c.map.method().as_str()))
                 ),
                 None if st.layout_version < DECLARED_DECISION_FROM => format!(
                     "a row is predicted {positive} when its probability of {positive} is above **0.5**: this folder was trained \
@@ -67,12 +71,12 @@ pub(crate) fn lead(st: &StoredResults) -> String {
 }
 
 /// The title of the confusion matrix at a reported threshold.
-pub(crate) fn threshold_title(report: &ThresholdReport, layout_version: u32) -> String {
+pub(crate) fn threshold_title(report: &ThresholdReport, layout_version: u32, calibrated: Option<&str>) -> String {
     let role = if layout_version >= DECLARED_DECISION_FROM { "the deployed threshold" } else { "threshold" };
     format!(
         "At {role} {}, {}: positive when the probability is at least {}; on validation, true-positive rate {} and false-positive rate {}",
         sig(report.threshold, 4),
-        rule_phrase(report),
+        rule_phrase(report, calibrated),
         sig(report.threshold, 4),
         crate::format::fixed(report.validation_tpr, 4),
         crate::format::fixed(report.validation_fpr, 4)

@@ -2,6 +2,7 @@
 //! function that builds it from the stored results.
 
 pub(crate) mod about;
+pub(crate) mod calibration;
 pub(crate) mod capacity;
 pub(crate) mod data;
 pub(crate) mod decision;

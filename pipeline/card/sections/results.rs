@@ -1,5 +1,5 @@
 //! The results sections: validation across seeds, the selection, the one test evaluation with
-//! its intervals, the decisions at each threshold, reliability and per-group results.
+//! its intervals, the decisions at each threshold and per-group results.
 
 use serde::Serialize;
 
@@ -41,7 +41,6 @@ pub(crate) struct Results {
     pub(crate) test_classes: String,
     pub(crate) why_one_run: String,
     pub(crate) decisions: Vec<Decision>,
-    pub(crate) reliability_rows: Vec<Row>,
     pub(crate) group_rows: Vec<Row>,
 }
 
@@ -194,21 +193,13 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         ));
     }
     if let Some(th) = &t.chosen_threshold {
-        decisions.push(decision(super::decision::threshold_title(th, st.layout_version), &labels, &th.confusion, &th.per_class));
+        decisions.push(decision(
+            super::decision::threshold_title(th, st.layout_version, sel.calibration.as_ref().map(|c| c.map.method().as_str())),
+            &labels,
+            &th.confusion,
+            &th.per_class,
+        ));
     }
-    let reliability_rows = t
-        .reliability
-        .iter()
-        .map(|b| {
-            Row::of([
-                // Closed on the right; the first bin also holds 0.
-                format!("{}{}, {}]", if b.lower == 0.0 { "[" } else { "(" }, sig(b.lower, 2), sig(b.upper, 2)),
-                b.count.to_string(),
-                fixed(b.mean_predicted, 4),
-                fixed(b.observed, 4),
-            ])
-        })
-        .collect();
     let group_rows = t
         .groups
         .iter()
@@ -246,7 +237,6 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
             t.seed
         ),
         decisions,
-        reliability_rows,
         group_rows,
     }
 }
