@@ -1,6 +1,7 @@
-//! Calibration and prediction intervals end to end: the stored reliability table recomputes the
-//! stored ECE; a fitted map reaches `predict` and the deployed threshold and is re-derived by
-//! `verify`; split conformal intervals cover what Lei et al. (2018) promise on scikit-learn's
+//! Calibration, prediction intervals and seed ensembles end to end: the stored reliability table
+//! recomputes the stored ECE; a fitted map reaches `predict` and the deployed threshold and is
+//! re-derived by `verify`; an ensemble's outputs are its members' mean bit for bit; split
+//! conformal intervals cover what Lei et al. (2018) promise on scikit-learn's
 //! diabetes table (tests/data/open/diabetes.parquet, exported from the scikit-learn 1.9.1 wheel by
 //! tests/data/open/export_from_scikit_learn.py).
 
@@ -197,4 +198,69 @@ fn split_conformal_intervals_cover_as_promised_on_diabetes() {
         held_out.len()
     );
     assert!(mean >= low - mc && mean <= high + mc, "mean coverage {mean} outside [{low}, {high}] +- {mc}");
+}
+
+/// The p_ columns (or the prediction) of a `predict` CSV output, per row, in file order.
+fn scored_outputs(path: &Path) -> Vec<Vec<f64>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let header: Vec<&str> = text.lines().next().unwrap().split(',').collect();
+    let cols: Vec<usize> = header.iter().enumerate().filter(|(_, h)| h.starts_with("p_") || **h == "prediction").map(|(i, _)| i).collect();
+    text.lines()
+        .skip(1)
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            cols.iter().map(|&i| cells[i].parse().unwrap()).collect()
+        })
+        .collect()
+}
+
+/// Trains `manifest` (with `[selection] ensemble = true`), scores `data` with the folder and with
+/// each member run alone, and checks the folder's outputs are the members' mean bit for bit
+/// (summed in member order, then divided), on every row and on the stored test predictions.
+fn ensemble_is_the_mean_of_its_members(dir: &Path, manifest: &Path, data: &str) {
+    let folder = trained(dir, manifest);
+    let selection = json(&folder.join("selection.json"));
+    let members: Vec<String> =
+        selection["ensemble"]["members"].as_array().unwrap().iter().map(|m| m.as_str().unwrap().to_string()).collect();
+    assert!(members.len() >= 2);
+    let score = |target: &Path, out: &str| {
+        let o = run_in(dir, &["predict", target.to_str().unwrap(), data, "--out", out]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        scored_outputs(&dir.join(out))
+    };
+    let ensemble = score(&folder, "ensemble.csv");
+    let alone: Vec<Vec<Vec<f64>>> =
+        members.iter().enumerate().map(|(i, id)| score(&folder.join("runs").join(id), &format!("member-{i}.csv"))).collect();
+    for (row, values) in ensemble.iter().enumerate() {
+        for (c, v) in values.iter().enumerate() {
+            let mean = alone.iter().map(|m| m[row][c]).fold(0.0, |a, b| a + b) / members.len() as f64;
+            assert_eq!(v.to_bits(), mean.to_bits(), "row {row}: the ensemble's output is its members' mean");
+        }
+    }
+    // The stored test predictions are the ensemble's (binary: the stored [1 - p, p] hold p last).
+    for (row, outputs) in predictions(&folder.join("test-predictions.csv")) {
+        assert_eq!(outputs.last().unwrap().to_bits(), ensemble[row].last().unwrap().to_bits(), "test row {row}");
+    }
+    let out = run_in(dir, &["verify", folder.to_str().unwrap(), "--all"]);
+    assert!(out.status.success(), "verify re-derives the ensemble: {}{}", stdout(&out), stderr(&out));
+}
+
+#[test]
+fn a_seed_ensemble_is_the_mean_of_its_stored_members_on_the_lease_demo_and_diabetes() {
+    let dir = tempfile::tempdir().unwrap();
+    let m = small_lease_experiment(dir.path(), 3000, "");
+    let text = std::fs::read_to_string(&m).unwrap().replace("[selection]\n", "[selection]\nensemble = true\n")
+        + "\n[calibration]\nmethod = \"temperature\"\n";
+    std::fs::write(&m, text).unwrap();
+    ensemble_is_the_mean_of_its_members(dir.path(), &m, "leases.parquet");
+
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::copy(repo_path("tests/data/open/diabetes.parquet"), dir.path().join("diabetes.parquet")).unwrap();
+    let m = dir.path().join("m.toml");
+    std::fs::write(
+        &m,
+        "[experiment]\nname = \"diabetes\"\naffects_people = false\n\n[data]\npath = \"diabetes.parquet\"\ntarget = \"progression\"\ntask = \"regression\"\n\n[model]\nhidden = [16]\n\n[training]\nepochs = 60\nbatch_size = 32\nlearning_rate = 0.01\n\n[selection]\nbootstrap = 200\nensemble = true\n\n[sweep]\nseeds = [1, 2, 3]\n",
+    )
+    .unwrap();
+    ensemble_is_the_mean_of_its_members(dir.path(), &m, "diabetes.parquet");
 }

@@ -10,6 +10,7 @@ use std::fmt::Write;
 use std::path::Path;
 use std::sync::Arc;
 
+use crate::calibrate::CalibrationMap;
 use crate::data::parquet::{encode_with_metadata, read_table, WriteOptions};
 use crate::data::prep::{InputEncoding, RowFlags};
 use crate::data::summary::DataSummary;
@@ -18,6 +19,7 @@ use crate::error::{Error, Result};
 use crate::manifest::Task;
 use crate::output_schema as schema;
 use crate::results::Sealed;
+use crate::selection::deployed::mean_outputs;
 use crate::selection::scoring::ScoringModel;
 use crate::store::run::is_run_folder;
 use crate::store::write_atomic;
@@ -57,15 +59,17 @@ pub fn check_output(output: &Path, input: &Path, force: bool) -> Result<OutputFo
 }
 
 /// (experiment folder, run id) for a run folder or an experiment's results folder.
-fn locate(target: &Path) -> Result<(Sealed, String)> {
+/// The sealed folder, the run to score, and whether the target was the whole results folder
+/// (which deploys the ensemble when the selection holds one).
+fn locate(target: &Path) -> Result<(Sealed, String, bool)> {
     if is_run_folder(target) {
         let id = target.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
         let root = target.parent().and_then(Path::parent).ok_or_else(|| Error::store(target, "is not inside a results folder"))?;
-        return Ok((Sealed::open(root)?, id));
+        return Ok((Sealed::open(root)?, id, false));
     }
     let folder = Sealed::open(target)?;
     let selected = folder.selection()?.selected_run;
-    Ok((folder, selected))
+    Ok((folder, selected, true))
 }
 
 fn numeric_kind(c: &Column) -> bool {
@@ -160,7 +164,7 @@ pub struct Scored {
 
 /// Scores `input` with the stored model `target` names.
 pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Scored> {
-    let (folder, run_id) = locate(target)?;
+    let (folder, run_id, whole_folder) = locate(target)?;
     let summary: DataSummary = folder.summary()?;
     let run = folder.run(&run_id)?;
     let record = &folder.record;
@@ -172,8 +176,16 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     let deployed = selection.deployed_threshold(folder.layout_version);
     // The calibration map and the interval were fitted for the selected run only.
     let is_selected = run_id == selection.selected_run;
-    let map = selection.calibration.as_ref().filter(|_| is_selected).map(|c| &c.map);
-    let interval = selection.interval.as_ref().filter(|_| is_selected);
+    // A seed ensemble is deployed when the whole folder is named; each member keeps its own map.
+    let ensemble = selection.ensemble.as_ref().filter(|_| whole_folder);
+    let member_map = |id: &str| -> Option<&CalibrationMap> {
+        match &selection.ensemble {
+            Some(e) => e.members.iter().position(|m| m == id).and_then(|i| e.maps.get(i)),
+            None => selection.calibration.as_ref().filter(|_| id == selection.selected_run).map(|c| &c.map),
+        }
+    };
+    let map = member_map(&run_id);
+    let interval = selection.interval.as_ref().filter(|_| if selection.ensemble.is_some() { ensemble.is_some() } else { is_selected });
     let mut model = ScoringModel::from_stored(&run)?;
     let table = read_table(input)?;
     if table.rows == 0 {
@@ -182,7 +194,17 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     check_schema(&table, &summary, &model.preprocessor.inputs, input)?;
     let rows: Vec<usize> = (0..table.rows).collect();
     let (x, report) = model.preprocessor.transform(&table, &rows, input)?;
-    let outputs = model.score_calibrated(&x, map)?;
+    let outputs = match ensemble {
+        Some(e) => {
+            let mut scored = Vec::with_capacity(e.members.len());
+            for id in &e.members {
+                let mut member = ScoringModel::from_stored(&folder.run(id)?)?;
+                scored.push(member.score_calibrated(&x, member_map(id))?);
+            }
+            mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>())
+        }
+        None => model.score_calibrated(&x, map)?,
+    };
     let mut columns: Vec<(String, ArrayRef)> = Vec::new();
     for id in &record.ids {
         if let Some(col) = table.column(id) {
@@ -255,28 +277,44 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             ));
         }
     }
-    let provenance = Provenance { model_id: run_id.clone(), results_digest: folder.digest.clone(), experiment: record.fingerprint.clone() };
+    let model_id = match ensemble {
+        Some(e) => format!("ensemble:{}", e.members.join("+")),
+        None => run_id.clone(),
+    };
+    let provenance = Provenance { model_id, results_digest: folder.digest.clone(), experiment: record.fingerprint.clone() };
     let mut out = String::new();
-    let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
-    match (&selection.calibration, interval) {
-        (Some(c), _) if is_selected => {
-            let _ = writeln!(out, "calibrated probabilities through the stored {} map (see the card's Calibration)", c.map.method().as_str());
-        }
-        (_, Some(i)) => {
+    match ensemble {
+        Some(e) => {
             let _ = writeln!(
                 out,
-                "intervals {}% split conformal: prediction -+ {} (interval_lower, interval_upper)",
-                crate::format::sig(100.0 * i.coverage, 4),
-                crate::format::sig(i.half_width, 6)
+                "scored    {} rows with the mean of {} seeds (runs {}) of experiment {}",
+                table.rows,
+                e.members.len(),
+                e.members.join(", "),
+                &record.fingerprint[..16]
             );
         }
-        (Some(_), None) | (None, None) if !is_selected && folder.layout_version >= crate::selection::deployed::CALIBRATION_FROM => {
-            let _ = writeln!(
-                out,
-                "note      run {run_id} is not the selected run: its own probabilities or predictions, without the selected run's calibration map or interval"
-            );
+        None => {
+            let _ = writeln!(out, "scored    {} rows with run {} of experiment {}", table.rows, run_id, &record.fingerprint[..16]);
         }
-        _ => {}
+    }
+    if let Some(c) = selection.calibration.as_ref().filter(|_| map.is_some() || ensemble.is_some()) {
+        let _ = writeln!(out, "calibrated probabilities through the stored {} map (see the card's Calibration)", c.map.method().as_str());
+    }
+    if let Some(i) = interval {
+        let _ = writeln!(
+            out,
+            "intervals {}% split conformal: prediction -+ {} (interval_lower, interval_upper)",
+            crate::format::sig(100.0 * i.coverage, 4),
+            crate::format::sig(i.half_width, 6)
+        );
+    }
+    let deployed_model = if selection.ensemble.is_some() { ensemble.is_some() } else { is_selected };
+    if !deployed_model && folder.layout_version >= crate::selection::deployed::CALIBRATION_FROM {
+        let _ = writeln!(
+            out,
+            "note      run {run_id} alone is not the deployed model (name the results folder for it): no prediction interval, and no calibration map unless it is the run's own"
+        );
     }
     let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
     if report.unseen_levels.is_empty() {

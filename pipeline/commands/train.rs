@@ -100,7 +100,21 @@ fn table(selection: &Selection) -> String {
     let failed_note = if selection.configs.iter().any(|c| c.runs_failed > 0) { "; seeds 2+1f: 2 completed, 1 failed" } else { "" };
     let _ = writeln!(out, "* selected ({} rule); ± is the standard deviation across seeds{failed_note}", selection.rule.as_str());
     let t = &selection.test;
-    let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
+    match &selection.ensemble {
+        Some(e) => {
+            let _ = writeln!(
+                out,
+                "\ndeployed: the mean of the {} seeds of the selected configuration (selected run {}, seed {}), test split ({} rows, evaluated once):",
+                e.members.len(),
+                t.run_id,
+                t.seed,
+                t.rows
+            );
+        }
+        None => {
+            let _ = writeln!(out, "\nselected run {} (seed {}), test split ({} rows, evaluated once):", t.run_id, t.seed, t.rows);
+        }
+    }
     for (name, value) in &t.metrics {
         let Some(v) = value else { continue };
         let ci = t.intervals.get(name).map(|i| format!("  95% CI [{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_default();

@@ -446,11 +446,15 @@ pub struct SelectionSpec {
     /// How the configuration is picked from the validation summaries.
     #[serde(default, skip_serializing_if = "SelectionRule::is_best")]
     pub rule: SelectionRule,
+    /// Deploy the mean of every seed's outputs of the selected configuration (a seed ensemble;
+    /// Lakshminarayanan, Pritzel & Blundell, NeurIPS 2017) instead of its best seed alone.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub ensemble: bool,
 }
 
 impl Default for SelectionSpec {
     fn default() -> Self {
-        SelectionSpec { metric: String::new(), baseline: true, bootstrap: default_bootstrap(), rule: SelectionRule::Best }
+        SelectionSpec { metric: String::new(), baseline: true, bootstrap: default_bootstrap(), rule: SelectionRule::Best, ensemble: false }
     }
 }
 

@@ -249,6 +249,9 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
         });
     }
     c.check(m.sweep.max_runs >= 1, "sweep.max_runs", || "must be at least 1".into());
+    c.check(!m.selection.ensemble || m.sweep.seeds.len() >= 2, "selection.ensemble", || {
+        format!("averages the selected configuration's seeds, and sweep.seeds lists {}: list at least two", m.sweep.seeds.len())
+    });
     if let Some(d) = &m.decision {
         validate_decision(&mut c, m.data.task, d);
     }

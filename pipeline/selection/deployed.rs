@@ -36,6 +36,29 @@ pub(crate) struct CalibrationReport {
     pub reliability_before: Vec<ReliabilityBin>,
 }
 
+/// A seed ensemble: the mean of every seed's deployed outputs of the selected configuration
+/// (Lakshminarayanan, Pritzel & Blundell, NeurIPS 2017, without their adversarial training), and
+/// the single best-validation run beside it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct EnsembleReport {
+    /// The member runs, in the order their outputs are summed.
+    pub members: Vec<String>,
+    /// Each member's own calibration map (the same order), when `[calibration]` fits one.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub maps: Vec<CalibrationMap>,
+    /// Test figures of the selected run alone, with 95% bootstrap intervals on the same
+    /// resamples as the ensemble's.
+    pub single_run: BTreeMap<String, Interval>,
+}
+
+/// The mean of the members' outputs, element by element: summed in member order, then divided
+/// by their number, so `predict` and `train` give the same bits.
+pub(crate) fn mean_outputs(members: &[&[f64]]) -> Vec<f64> {
+    let Some(first) = members.first() else { return Vec::new() };
+    let n = members.len() as f64;
+    (0..first.len()).map(|i| members.iter().map(|m| m[i]).fold(0.0, |a, b| a + b) / n).collect()
+}
+
 /// A regression model's split conformal interval: prediction +- `half_width`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub(crate) struct IntervalReport {

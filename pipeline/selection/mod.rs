@@ -23,7 +23,8 @@ use crate::metrics::classification::{operating_point_at, youden_threshold};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
 use crate::selection::deployed::{
-    fit_interval, CalibrationReport, IntervalReport, CALIBRATION_FROM, CALIBRATION_METRICS, FITTED_ON_VALIDATION,
+    fit_interval, mean_outputs, CalibrationReport, EnsembleReport, IntervalReport, CALIBRATION_FROM, CALIBRATION_METRICS,
+    FITTED_ON_VALIDATION,
 };
 use crate::selection::scoring::ScoringModel;
 use crate::store::run::StoredRun;
@@ -150,6 +151,10 @@ pub(crate) struct Selection {
     /// Layout 5 on, regression: the split conformal prediction interval.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub interval: Option<IntervalReport>,
+    /// Layout 5 on, `[selection] ensemble`: the seeds whose mean is deployed; the test figures
+    /// above are the ensemble's.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ensemble: Option<EnsembleReport>,
 }
 
 /// A class's one-against-the-rest reliability table.
@@ -328,8 +333,11 @@ pub(crate) struct EvaluationInputs<'a> {
     pub validation: (&'a Matrix, &'a Labels),
     pub decision: &'a DecisionSpec,
     pub calibration: &'a CalibrationSpec,
-    /// The results layout derived for: calibration, intervals and top-label tables from 5 on.
+    /// The results layout derived for: calibration, intervals, ensembles and top-label tables
+    /// from 5 on.
     pub layout_version: u32,
+    /// `[selection] ensemble`: deploy the mean of the selected configuration's seeds.
+    pub ensemble: bool,
 }
 
 /// What [`evaluate_test`] derived.
@@ -339,6 +347,7 @@ pub(crate) struct Evaluated {
     pub outputs: Vec<f64>,
     pub calibration: Option<CalibrationReport>,
     pub interval: Option<IntervalReport>,
+    pub ensemble: Option<EnsembleReport>,
 }
 
 /// One seed of the selected configuration, scored as deployed.
@@ -393,17 +402,36 @@ pub(crate) fn evaluate_test(
     let current = inputs.layout_version >= CALIBRATION_FROM;
     let method = if current { inputs.calibration.method } else { CalibrationMethod::None };
     let mut per_seed: Vec<MetricSet> = Vec::new();
-    let mut selected: Option<SeedScores> = None;
+    let mut members: Vec<SeedScores> = Vec::new();
     for r in runs.iter().filter(|r| r.record.config_id == selected_config && r.record.outcome.is_completed()) {
         let scores = score_seed(r, test_x, inputs.validation, method)?;
         per_seed.push(scores.model.head.metrics(&scores.outputs, test_y));
-        if scores.run_id == selected_run {
-            selected = Some(scores);
-        }
+        members.push(scores);
     }
-    let SeedScores { seed, mut model, map, raw_outputs, outputs, .. } =
-        selected.ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
-    let head = model.head;
+    let chosen = members
+        .iter()
+        .position(|m| m.run_id == selected_run)
+        .ok_or_else(|| Error::Internal(format!("selected run {selected_run} is not among the runs read")))?;
+    let ensemble = current && inputs.ensemble && members.len() >= 2;
+    let (seed, head, map) = (members[chosen].seed, members[chosen].model.head, members[chosen].map.clone());
+    let deployed = |pick: fn(&SeedScores) -> &Vec<f64>| -> Vec<f64> {
+        if ensemble {
+            mean_outputs(&members.iter().map(|m| pick(m).as_slice()).collect::<Vec<_>>())
+        } else {
+            pick(&members[chosen]).clone()
+        }
+    };
+    let (outputs, raw_outputs) = (deployed(|m| &m.outputs), deployed(|m| &m.raw_outputs));
+    // The deployed model's outputs on the validation rows (each member through its own map).
+    let mut validation_outputs = || -> Result<Vec<f64>> {
+        let scored: Vec<Vec<f64>> = if ensemble {
+            members.iter_mut().map(|m| m.model.score_calibrated(inputs.validation.0, m.map.as_ref())).collect::<Result<_>>()?
+        } else {
+            let m = &mut members[chosen];
+            return m.model.score_calibrated(inputs.validation.0, m.map.as_ref());
+        };
+        Ok(mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>()))
+    };
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
     let subset = |out: &[f64], idx: &[usize]| -> (Vec<f64>, Labels) {
@@ -447,11 +475,11 @@ pub(crate) fn evaluate_test(
         let (sub_out, sub_y) = subset(&outputs, idx);
         head.metrics(&sub_out, &sub_y)
     });
-    let (validation_x, validation_y) = inputs.validation;
+    let validation_y = inputs.validation.1;
     let decision = inputs.decision;
     let chosen_threshold = match (test_y, validation_y) {
         (Labels::Classes { rows, classes: 2 }, Labels::Classes { rows: val_rows, .. }) => {
-            let val_out = model.score_calibrated(validation_x, map.as_ref())?;
+            let val_out = validation_outputs()?;
             let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
             let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
             let point = match decision.threshold_without_data() {
@@ -515,11 +543,19 @@ pub(crate) fn evaluate_test(
     };
     let interval = match (test_y, validation_y) {
         (Labels::Values(test_v), Labels::Values(val_v)) if current => {
-            let val_out = model.score(validation_x)?;
+            let val_out = validation_outputs()?;
             Some(fit_interval((&val_out, val_v), (&outputs, test_v), inputs.calibration.coverage())?)
         }
         _ => None,
     };
+    let ensemble = ensemble.then(|| EnsembleReport {
+        members: members.iter().map(|m| m.run_id.clone()).collect(),
+        maps: members.iter().filter_map(|m| m.map.clone()).collect(),
+        single_run: percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
+            let (sub_out, sub_y) = subset(&members[chosen].outputs, idx);
+            head.metrics(&sub_out, &sub_y)
+        }),
+    });
     let test = TestEvaluation {
         run_id: selected_run.to_string(),
         seed,
@@ -534,7 +570,7 @@ pub(crate) fn evaluate_test(
         groups,
         chosen_threshold,
     };
-    Ok(Evaluated { test, outputs, calibration, interval })
+    Ok(Evaluated { test, outputs, calibration, interval, ensemble })
 }
 
 /// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
@@ -579,6 +615,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         decision: &m.decision.clone().unwrap_or_default(),
         calibration: &calibration,
         layout_version,
+        ensemble: m.selection.ensemble,
     };
     let evaluated = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?
         .install(|| evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, &inputs))?;
@@ -597,6 +634,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         test: evaluated.test,
         calibration: evaluated.calibration,
         interval: evaluated.interval,
+        ensemble: evaluated.ensemble,
     };
     Ok(Derived { selection, test_predictions })
 }

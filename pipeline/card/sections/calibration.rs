@@ -135,6 +135,16 @@ pub(crate) fn calibration(st: &StoredResults) -> Calibration {
         return Calibration { summary, comparison_rows: Vec::new(), tables };
     }
     let summary = match &sel.calibration {
+        Some(c) if sel.ensemble.is_some() => format!(
+            "Each seed of the ensemble is recalibrated by its own {} map, fitted on the {} {} rows after training (no trained weight moved), and \
+             the ensemble averages the calibrated probabilities; the selected run's map is {}. Those rows also chose the configuration, so \
+             the fit is slightly optimistic; the test split, which played no part, judges it below. `predict`, the deployed threshold and \
+             every test figure on this card use the calibrated probabilities.",
+            c.map.method().as_str(),
+            c.rows,
+            c.fitted_on,
+            map_text(&c.map)
+        ),
         Some(c) => format!(
             "The probabilities are recalibrated by {}, fitted on the {} {} rows after training (no trained weight moved). Those rows also \
              chose the configuration and the seed, so the fit is slightly optimistic; the test split, which played no part, judges it \

@@ -30,6 +30,8 @@ pub(crate) struct Results {
     pub(crate) selected_label: String,
     pub(crate) selected_run: String,
     pub(crate) selected_seed: u64,
+    /// Seeds averaged when a seed ensemble is deployed (0: the selected run alone).
+    pub(crate) ensemble_seeds: usize,
     pub(crate) selection_text: String,
     pub(crate) headline: String,
     pub(crate) preference: String,
@@ -71,6 +73,32 @@ pub(crate) fn decision(
                 ])
             })
             .collect(),
+    }
+}
+
+/// Which model the test figures describe: the selected run alone, or the seed ensemble with the
+/// selected run alone beside it.
+fn why_these_figures(sel: &Selection, m: &str) -> String {
+    let t = &sel.test;
+    match &sel.ensemble {
+        None => format!(
+            "The test figures come from one run, the seed of the selected configuration with the best validation {m} (seed {}): a model that ships is one set of weights, and that run's weights are the ones stored and scored. The last column shows every seed of the configuration on the same test rows, so the spread a retraining would bring is visible.",
+            t.seed
+        ),
+        Some(e) => {
+            let parameters = sel.selected_summary().map(|c| c.parameter_count).unwrap_or(0);
+            let single = match e.single_run.get(m) {
+                Some(i) => format!("{} (95% bootstrap interval {} to {})", fixed(i.estimate, 4), fixed(i.lower, 4), fixed(i.upper, 4)),
+                None => "undefined".into(),
+            };
+            format!(
+                "The deployed model is a seed ensemble (`[selection] ensemble`; Lakshminarayanan, Pritzel & Blundell 2017): the mean of the outputs of all {} seeds of the selected configuration{}, {} parameters in all, and the test figures are the ensemble's. Alone, the seed with the best validation {m} (seed {}) scores test {m} {single} on the same resamples. The last column shows every seed alone.",
+                e.members.len(),
+                if e.maps.is_empty() { "" } else { ", each through its own calibration map" },
+                parameters * e.members.len(),
+                t.seed
+            )
+        }
     }
 }
 
@@ -223,6 +251,7 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         selected_label: selected_cfg_label,
         selected_run: sel.selected_run.clone(),
         selected_seed: t.seed,
+        ensemble_seeds: sel.ensemble.as_ref().map_or(0, |e| e.members.len()),
         selection_text: selection_text(sel, direction),
         headline,
         preference,
@@ -232,10 +261,7 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         test_rows,
         test_rows_count: t.rows,
         test_classes,
-        why_one_run: format!(
-            "The test figures come from one run, the seed of the selected configuration with the best validation {m} (seed {}): a model that ships is one set of weights, and that run's weights are the ones stored and scored. The last column shows every seed of the configuration on the same test rows, so the spread a retraining would bring is visible.",
-            t.seed
-        ),
+        why_one_run: why_these_figures(sel, m),
         decisions,
         group_rows,
     }
