@@ -9,6 +9,7 @@
 
 #![warn(unreachable_pub)]
 
+pub(crate) mod analysis;
 pub mod calibrate;
 pub(crate) mod card;
 pub mod commands;

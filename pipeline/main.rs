@@ -151,6 +151,10 @@ enum Command {
         /// program other than a spreadsheet.
         #[arg(long)]
         guard_formulas: bool,
+        /// Binary models: decide at this threshold on the positive-class probability, in (0, 1),
+        /// instead of the deployed one the card states (the output's decision_threshold records it).
+        #[arg(long, allow_negative_numbers = true)]
+        threshold: Option<f64>,
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
@@ -251,11 +255,11 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             let o = outcome?;
             Done { text: o.report, json: Some(o.json), code: if o.identical { exit::OK } else { exit::NOT_VERIFIED } }
         }
-        Command::Predict { model, input, out, keep_extra, force, guard_formulas } => {
+        Command::Predict { model, input, out, keep_extra, force, guard_formulas, threshold } => {
             if guard_formulas && commands::predict::OutputFormat::of(&out)? != commands::predict::OutputFormat::Csv {
                 return Err(tabcard::Error::Usage("--guard-formulas applies to CSV output only (--out ending in .csv)".into()));
             }
-            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas };
+            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas, threshold };
             Done::text(commands::predict::run(&model, &input, &out, &options)?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {

@@ -18,6 +18,8 @@ pub enum Purpose {
     InputNoise,
     Bootstrap,
     DemoData,
+    /// Resampling rows within each group for the disparity intervals.
+    GroupBootstrap,
 }
 
 impl Purpose {
@@ -30,6 +32,7 @@ impl Purpose {
             Purpose::InputNoise => "input-noise",
             Purpose::Bootstrap => "bootstrap",
             Purpose::DemoData => "demo-data",
+            Purpose::GroupBootstrap => "group-bootstrap",
         }
     }
 }

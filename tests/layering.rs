@@ -21,6 +21,7 @@ const LAYERS: &[&[&str]] = &[
     &["store"],
     &["sweep"],
     &["selection"],
+    &["analysis"],
     &["results"],
     &["card"],
     &["verification"],

@@ -45,6 +45,8 @@ pub(crate) struct Evidence {
     /// Regression with a prediction interval: (declared coverage, test coverage, the upper end
     /// of its 95% Wilson interval, covered rows, test rows).
     pub interval_coverage: Option<(f64, f64, f64, usize, usize)>,
+    /// The disparity analysis (`fairness.json`), when the folder has one.
+    pub fairness: Option<crate::analysis::fairness::FairnessReport>,
     /// The test metric that says whether the model beats chance (ROC AUC, or R² for regression):
     /// (name, value, interval lower, interval upper, the value chance gives).
     pub chance: Option<(String, f64, f64, f64, f64)>,
@@ -170,6 +172,7 @@ pub(crate) fn gather(
         gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| selection.worse_on_validation(g.mean)),
         test_ece: t.metrics.get("ece").copied().flatten(),
         test_ece_lower: t.intervals.get("ece").map(|i| i.lower),
+        fairness: None,
         interval_coverage: selection
             .interval
             .as_ref()

@@ -18,6 +18,7 @@ use sections::about::{about, About};
 use sections::calibration::{calibration, Calibration};
 use sections::capacity::{capacity, Capacity};
 use sections::data::{data_section, DataSection};
+use sections::groups::{groups, Groups};
 use sections::provenance::{provenance, Provenance};
 use sections::results::{results, Results};
 use std::collections::BTreeMap;
@@ -45,6 +46,7 @@ struct CardContext {
     capacity: Capacity,
     results: Results,
     calibration: Calibration,
+    groups: Groups,
     figures: Vec<Figure>,
     limitations: Vec<Limitation>,
     provenance: Provenance,
@@ -68,7 +70,8 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         .find(|r| r.record.run_id == sel.selected_run)
         .ok_or_else(|| Error::store(layout.runs(), "the selected run is missing"))?;
     let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
-    let evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
+    let mut evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
+    evidence.fairness = st.fairness.clone();
     let limitations: Vec<Limitation> = derive(&evidence)
         .into_iter()
         .map(|l| Limitation { finding: md_line(&sentence_case(&l.finding)), threshold: md_line(&l.threshold), ..l })
@@ -88,6 +91,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         capacity: capacity(&st, selected_cfg, selected_run),
         results: results(&st, &limitations),
         calibration: calibration(&st),
+        groups: groups(&st),
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),

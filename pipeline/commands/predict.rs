@@ -32,6 +32,8 @@ pub struct PredictOptions {
     pub force: bool,
     /// CSV only: prefix text cells (and names) that a spreadsheet would read as a formula with `'`.
     pub guard_formulas: bool,
+    /// Binary models: decide at this threshold instead of the deployed one.
+    pub threshold: Option<f64>,
 }
 
 /// The file formats `--out` can name by its extension.
@@ -173,7 +175,19 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     }
     let manifest = folder.manifest()?;
     let selection = folder.selection()?;
-    let deployed = selection.deployed_threshold(folder.layout_version);
+    let mut deployed = selection.deployed_threshold(folder.layout_version);
+    if let Some(t) = options.threshold {
+        if record.task != Task::Binary {
+            return Err(Error::Usage(format!(
+                "--threshold applies to binary models; this model is {} (a multiclass model decides the most probable class)",
+                record.task.as_str()
+            )));
+        }
+        if !(t > 0.0 && t < 1.0) {
+            return Err(Error::Usage(format!("--threshold must be in (0, 1), got {t}")));
+        }
+        deployed.value = t;
+    }
     // The calibration map and the interval were fitted for the selected run only.
     let is_selected = run_id == selection.selected_run;
     // A seed ensemble is deployed when the whole folder is named; each member keeps its own map.
@@ -307,6 +321,15 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             "intervals {}% split conformal: prediction -+ {} (interval_lower, interval_upper)",
             crate::format::sig(100.0 * i.coverage, 4),
             crate::format::sig(i.half_width, 6)
+        );
+    }
+    if let Some(t) = options.threshold.filter(|_| record.task == Task::Binary) {
+        let stated = selection.deployed_threshold(folder.layout_version).value;
+        let _ = writeln!(
+            out,
+            "threshold decided at {} (--threshold), not the deployed {} the card states",
+            crate::format::sig(t, 6),
+            crate::format::sig(stated, 6)
         );
     }
     let deployed_model = if selection.ensemble.is_some() { ensemble.is_some() } else { is_selected };

@@ -170,11 +170,15 @@ fn select_and_record(
 ) -> Result<(Selection, String)> {
     let selecting = Instant::now();
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
-    let crate::selection::Derived { selection, test_predictions } =
-        crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
+    let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
+    let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
+    let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
     write_json(&layout.selection(), &selection)?;
+    if let Some(fairness) = &fairness {
+        write_json(&layout.fairness(), fairness)?;
+    }
     let (git_commit, git_dirty) = git.clone();
     write_json(
         &layout.timing(),

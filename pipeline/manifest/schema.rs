@@ -28,6 +28,39 @@ pub struct Manifest {
     /// regression model's prediction interval; absent: no map, 90% intervals.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub calibration: Option<CalibrationSpec>,
+    /// How the decision's disparity across `data.group_columns` is judged; absent: the defaults.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fairness: Option<FairnessSpec>,
+}
+
+/// `[fairness]`: the disparity analysis of the deployed decision across group columns.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FairnessSpec {
+    /// Groups with fewer test rows are reported but not judged (common practice: 30).
+    #[serde(default = "default_minimum_group_rows")]
+    pub minimum_group_rows: usize,
+    /// A true- or false-positive rate gap larger than this, beyond its interval, is flagged
+    /// (common practice: 0.1).
+    #[serde(default = "default_rate_gap")]
+    pub rate_gap: f64,
+    /// Pairs of group columns whose combinations are analysed as groups too.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub intersections: Vec<Vec<String>>,
+}
+
+fn default_minimum_group_rows() -> usize {
+    30
+}
+
+fn default_rate_gap() -> f64 {
+    0.1
+}
+
+impl Default for FairnessSpec {
+    fn default() -> Self {
+        FairnessSpec { minimum_group_rows: default_minimum_group_rows(), rate_gap: default_rate_gap(), intersections: Vec::new() }
+    }
 }
 
 /// Coverage of a regression model's prediction interval when the manifest names none.

@@ -258,7 +258,27 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
     if let Some(cal) = &m.calibration {
         validate_calibration(&mut c, m.data.task, cal);
     }
+    if let Some(f) = &m.fairness {
+        validate_fairness(&mut c, &m.data.group_columns, f);
+    }
     c.0
+}
+
+/// `[fairness]`: a positive minimum group size, a gap in (0, 1), intersections of two distinct
+/// group columns.
+fn validate_fairness(c: &mut Collector, group_columns: &[String], f: &FairnessSpec) {
+    c.check(f.minimum_group_rows >= 1, "fairness.minimum_group_rows", || "must be at least 1".into());
+    c.check(f.rate_gap > 0.0 && f.rate_gap < 1.0, "fairness.rate_gap", || format!("must be in (0, 1), got {:?}", f.rate_gap));
+    for pair in &f.intersections {
+        c.check(pair.len() == 2 && pair[0] != pair[1], "fairness.intersections", || {
+            format!("each entry names two different group columns, got {pair:?}")
+        });
+        for name in pair {
+            c.check(group_columns.contains(name), "fairness.intersections", || {
+                format!("`{name}` is not one of data.group_columns ({group_columns:?})")
+            });
+        }
+    }
 }
 
 /// `[calibration]`: a method for classifiers (binary-only maps on binary tasks), a coverage in

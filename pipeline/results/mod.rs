@@ -121,6 +121,16 @@ impl Sealed {
     }
 
     /// The stored test-split predictions; `None` in folders before layout 4, which have none.
+    /// `fairness.json`, when the folder has one (layout 5 with group columns).
+    pub(crate) fn fairness(&self) -> Result<Option<crate::analysis::fairness::FairnessReport>> {
+        let path = self.layout.fairness();
+        if path.exists() {
+            Ok(Some(read_json(&path)?))
+        } else {
+            Ok(None)
+        }
+    }
+
     pub(crate) fn test_predictions_text(&self) -> Result<Option<String>> {
         let path = self.layout.test_predictions();
         if !path.exists() {
@@ -149,6 +159,8 @@ pub(crate) struct StoredResults {
     pub timing: Option<TimingRecord>,
     pub preprocessor: Preprocessor,
     pub runs: Vec<StoredRun>,
+    /// `fairness.json` (layout 5 with group columns).
+    pub fairness: Option<crate::analysis::fairness::FairnessReport>,
 }
 
 impl StoredResults {
@@ -167,6 +179,7 @@ impl StoredResults {
             selection: read_json(&layout.selection())?,
             timing: crate::store::timing::read(&layout.timing())?,
             preprocessor: read_json(&layout.preprocessor())?,
+            fairness: if layout.fairness().exists() { Some(read_json(&layout.fairness())?) } else { None },
             plan,
             runs,
         })

@@ -18,7 +18,7 @@ use crate::experiment::prepared::Prepared;
 use crate::manifest::{CalibrationSpec, DecisionSpec, SelectionRule, ThresholdRule};
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{class_table, reliability_bins, top_label_table, ReliabilityBin};
-use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
+use crate::metrics::classification::{accuracy, balanced_accuracy, confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::classification::{operating_point_at, youden_threshold};
 use crate::metrics::registry::{better, direction, Direction};
 use crate::metrics::MetricSet;
@@ -106,6 +106,10 @@ pub(crate) struct ThresholdReport {
     pub cost_false_positive: Option<f64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub cost_false_negative: Option<f64>,
+    /// Layout 5 on: accuracy and balanced accuracy of the test rows decided at the threshold,
+    /// with 95% bootstrap intervals on the same resamples as the other test figures.
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub metrics: BTreeMap<String, Interval>,
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -488,6 +492,18 @@ pub(crate) fn evaluate_test(
             };
             point.map(|point| {
                 let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
+                let metrics = if current {
+                    percentile_intervals(rows.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
+                        let y: Vec<usize> = idx.iter().map(|&i| rows[i]).collect();
+                        let decided: Vec<usize> = idx.iter().map(|&i| predicted[i]).collect();
+                        MetricSet::from([
+                            ("accuracy".to_string(), accuracy(&y, &decided)),
+                            ("balanced_accuracy".to_string(), balanced_accuracy(&y, &decided, 2)),
+                        ])
+                    })
+                } else {
+                    BTreeMap::new()
+                };
                 ThresholdReport {
                     rule: decision.threshold,
                     threshold: point.threshold,
@@ -497,6 +513,7 @@ pub(crate) fn evaluate_test(
                     per_class: per_class(rows, &predicted, 2),
                     cost_false_positive: decision.cost_false_positive.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
                     cost_false_negative: decision.cost_false_negative.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
+                    metrics,
                 }
             })
         }
@@ -583,6 +600,19 @@ pub(crate) const MAX_BOOTSTRAP_THREADS: usize = 4;
 pub(crate) struct Derived {
     pub selection: Selection,
     pub test_predictions: String,
+    /// The deployed model's outputs on the test rows (k per row), in test-row order.
+    pub test_outputs: Vec<f64>,
+}
+
+/// Each named group column's label for every test row.
+pub(crate) fn group_columns(names: &[String], exp: &crate::experiment::Experiment) -> Result<Vec<GroupColumn>> {
+    names
+        .iter()
+        .map(|name| {
+            let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
+            Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
+        })
+        .collect()
 }
 
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
@@ -597,15 +627,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         .pop()
         .ok_or_else(|| crate::error::Error::Internal("one row list gave no matrix".into()))?;
     let test_y = exp.labels(&exp.splits.test);
-    let groups: Vec<GroupColumn> = exp
-        .roles
-        .groups
-        .iter()
-        .map(|name| {
-            let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
-            Ok(GroupColumn { name: name.clone(), labels: exp.splits.test.iter().map(|&r| col.label(r)).collect() })
-        })
-        .collect::<Result<_>>()?;
+    let groups = group_columns(&exp.roles.groups, exp)?;
     let calibration = m.calibration.clone().unwrap_or_default();
     let inputs = EvaluationInputs {
         bootstrap: m.selection.bootstrap,
@@ -636,5 +658,5 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         interval: evaluated.interval,
         ensemble: evaluated.ensemble,
     };
-    Ok(Derived { selection, test_predictions })
+    Ok(Derived { selection, test_predictions, test_outputs: evaluated.outputs })
 }

@@ -75,6 +75,10 @@ impl Layout {
     pub fn test_predictions(&self) -> PathBuf {
         self.root.join("test-predictions.csv")
     }
+    /// The disparity of the deployed decision across groups (layout 5, with group columns).
+    pub fn fairness(&self) -> PathBuf {
+        self.root.join("fairness.json")
+    }
     pub fn timing(&self) -> PathBuf {
         self.root.join("timing.json")
     }

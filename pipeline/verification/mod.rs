@@ -72,6 +72,8 @@ pub(crate) enum SelectionCheck {
     /// Matches `selection.json`, and `test-predictions.csv` when the folder has one (layout 4).
     Matches {
         test_predictions: bool,
+        /// `fairness.json` re-derived too (layout 5 with group columns).
+        fairness: bool,
     },
     /// What differs.
     Differs(String),
@@ -342,7 +344,19 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         Ok(derived) if stored_test_predictions.as_ref().is_some_and(|stored| *stored != derived.test_predictions) => {
             SelectionCheck::Differs("test-predictions.csv does not match the selected run's outputs on the test split, scored anew".into())
         }
-        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some() },
+        Ok(derived) if sealed.layout_version >= crate::selection::deployed::CALIBRATION_FROM => {
+            let stored = sealed.fairness()?;
+            match crate::analysis::fairness::derive(&prepared, &derived) {
+                Ok(fresh) if fresh == stored => {
+                    SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: stored.is_some() }
+                }
+                Ok(_) => SelectionCheck::Differs(
+                    "fairness.json does not match the disparity analysis re-derived from the deployed model's test outputs".into(),
+                ),
+                Err(e) => SelectionCheck::CannotDerive(e.to_string()),
+            }
+        }
+        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: false },
         Err(e) => SelectionCheck::CannotDerive(e.to_string()),
     };
     let card = match crate::card::render(layout, None, &digest) {

@@ -39,6 +39,9 @@ pub(crate) const GAP_SHARE: f64 = 0.05;
 /// The gap at which few rows per parameter are said to show: half the large-gap limit.
 pub(crate) const FEW_ROWS_GAP_SHARE: f64 = GAP_SHARE / 2.0;
 pub(crate) const ECE_LIMIT: f64 = 0.05;
+/// The four-fifths rule: a selection rate below 4/5 of the most favoured group's is evidence of
+/// adverse impact (US Uniform Guidelines on Employee Selection Procedures, 29 CFR 1607.4(D), 1978).
+pub(crate) const FOUR_FIFTHS: f64 = 0.8;
 pub(crate) const MISSING_SHARE: f64 = 0.20;
 /// The grid-edge rule applies to keys searched over at least this many ordered values.
 pub(crate) const GRID_EDGE_MIN_VALUES: usize = 3;

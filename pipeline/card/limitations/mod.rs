@@ -4,12 +4,13 @@
 //! both ways: on evidence that triggers it and on evidence that does not.
 
 //!
-//! Rules live by family (`data`, `fit`, `evaluation`); `RULES` lists them in the card's order.
+//! Rules live by family (`data`, `fit`, `evaluation`, `groups`); `RULES` lists them in the card's order.
 
 pub(crate) mod data;
 pub(crate) mod evaluation;
 pub(crate) mod finding;
 pub(crate) mod fit;
+pub(crate) mod groups;
 
 pub(crate) use finding::*;
 
@@ -17,6 +18,7 @@ use crate::card::evidence::Evidence;
 use data::*;
 use evaluation::*;
 use fit::*;
+use groups::*;
 
 pub(crate) type Rule = fn(&Evidence) -> Option<Limitation>;
 
@@ -33,6 +35,9 @@ pub(crate) const RULES: &[(&str, Rule)] = &[
     ("large_generalisation_gap", large_generalisation_gap),
     ("poor_calibration", poor_calibration),
     ("interval_undercoverage", interval_undercoverage),
+    ("adverse_impact", adverse_impact),
+    ("error_rate_gap", error_rate_gap),
+    ("group_calibration", group_calibration),
     ("many_missing_values", many_missing_values),
     ("rare_levels", rare_levels),
     ("constant_on_training_rows", constant_on_training_rows),
@@ -49,6 +54,7 @@ pub(crate) fn derive(e: &Evidence) -> Vec<Limitation> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::analysis::fairness::{Estimate, FairnessReport, GroupDisparity, GroupFigures, ADVERSE_IMPACT_RATIO, ECE, FPR_GAP, TPR_GAP};
     use crate::card::evidence::ClassShare;
 
     fn healthy() -> Evidence {
@@ -69,6 +75,7 @@ mod tests {
             test_ece: Some(0.02),
             test_ece_lower: Some(0.01),
             interval_coverage: None,
+            fairness: None,
             chance: Some(("roc_auc".into(), 0.84, 0.82, 0.86, 0.5)),
             test_rows: 4000,
             test_smallest_class: Some(("yes".into(), 1200)),
@@ -106,6 +113,10 @@ mod tests {
             ("large_generalisation_gap", Box::new(|e| e.gap = Some(0.051))),
             ("poor_calibration", Box::new(|e| (e.test_ece, e.test_ece_lower) = (Some(0.09), Some(0.06)))),
             ("interval_undercoverage", Box::new(|e| e.interval_coverage = Some((0.9, 0.8, 0.85, 160, 200)))),
+            ("adverse_impact", Box::new(|e| e.fairness = Some(groups_with(&[(ADVERSE_IMPACT_RATIO, 0.7, 0.62, 0.78)], true)))),
+            ("adverse_impact", Box::new(|e| e.fairness = Some(groups_with(&[(ADVERSE_IMPACT_RATIO, 0.78, 0.7, 0.86)], true)))),
+            ("error_rate_gap", Box::new(|e| e.fairness = Some(groups_with(&[(TPR_GAP, -0.2, -0.28, -0.12)], true)))),
+            ("group_calibration", Box::new(|e| e.fairness = Some(groups_with(&[(ECE, 0.09, 0.06, 0.12)], true)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.435, 0.40, 0.47, 0.5)))),
             ("no_better_than_chance", Box::new(|e| e.chance = Some(("roc_auc".into(), 0.55, 0.49, 0.61, 0.5)))),
             ("many_missing_values", Box::new(|e| e.missing.push(("b".into(), 0.4)))),
@@ -126,6 +137,94 @@ mod tests {
             assert!(fires(rule, &e), "{rule} did not fire");
             assert_eq!(derive(&e).len(), 1, "{rule}: other rules fired too: {:?}", derive(&e));
         }
+    }
+
+    /// A disparity report of one column: reference group `a` and group `b` with `figures`
+    /// (name, value, lower, upper); `b` judged or not.
+    fn groups_with(figures: &[(&str, f64, f64, f64)], judged: bool) -> FairnessReport {
+        let group = |level: &str, judged: bool, figures: &[(&str, f64, f64, f64)]| GroupFigures {
+            level: level.into(),
+            rows: if judged { 500 } else { 20 },
+            judged,
+            base_rate: 0.2,
+            confusion: None,
+            figures: figures.iter().map(|(n, v, l, u)| (n.to_string(), Estimate { value: *v, lower: *l, upper: *u })).collect(),
+        };
+        FairnessReport {
+            threshold: Some(0.5),
+            favourable: Some("no".into()),
+            favourable_is_positive: false,
+            minimum_group_rows: 30,
+            rate_gap: 0.1,
+            resamples: 1000,
+            columns: vec![GroupDisparity {
+                column: "region".into(),
+                reference: Some("a".into()),
+                groups: vec![group("a", true, &[(ADVERSE_IMPACT_RATIO, 1.0, 1.0, 1.0)]), group("b", judged, figures)],
+            }],
+        }
+    }
+
+    #[test]
+    fn group_rules_stay_silent_within_their_limits_or_on_groups_not_judged() {
+        let silent: Vec<(&str, FairnessReport)> = vec![
+            ("adverse_impact", groups_with(&[(ADVERSE_IMPACT_RATIO, 0.85, 0.74, 0.95)], true)),
+            ("adverse_impact", groups_with(&[(ADVERSE_IMPACT_RATIO, 0.5, 0.3, 0.7)], false)),
+            ("adverse_impact", FairnessReport { favourable: None, ..groups_with(&[(ADVERSE_IMPACT_RATIO, 0.5, 0.3, 0.7)], true) }),
+            ("error_rate_gap", groups_with(&[(TPR_GAP, -0.2, -0.35, 0.02)], true)),
+            ("error_rate_gap", groups_with(&[(FPR_GAP, 0.12, 0.05, 0.2)], true)),
+            ("group_calibration", groups_with(&[(ECE, 0.09, 0.04, 0.12)], true)),
+        ];
+        for (rule, report) in silent {
+            let mut e = healthy();
+            e.fairness = Some(report);
+            assert!(!fires(rule, &e), "{rule} fired: {:?}", derive(&e));
+        }
+        // Calibration within a group is not flagged as a group finding when it fails overall.
+        let mut e = healthy();
+        e.fairness = Some(groups_with(&[(ECE, 0.09, 0.06, 0.12)], true));
+        e.test_ece = Some(0.08);
+        assert!(!fires("group_calibration", &e));
+    }
+
+    /// Groups drawn with equal base rates and equal score distributions: the four-fifths rule and
+    /// the error-rate rule stay silent in at least 95 of 100 seeds (each seed two groups of 500
+    /// test rows, 200 resamples within groups).
+    #[test]
+    fn group_rules_stay_silent_on_groups_drawn_alike() {
+        use crate::analysis::fairness::{analyse, Decision};
+        use crate::rng::{Purpose, Stream};
+        let mut silent = [0usize; 2];
+        for seed in 0..100u64 {
+            let mut stream = Stream::new(seed, Purpose::DemoData);
+            let (mut y, mut probs, mut labels) = (Vec::new(), Vec::new(), Vec::new());
+            for i in 0..1000 {
+                let positive = stream.uniform() < 0.3;
+                // Box-Muller from two uniforms: the same score distribution in both groups.
+                let (u, v) = (stream.uniform().max(1e-12), stream.uniform());
+                let noise = (-2.0 * u.ln()).sqrt() * (2.0 * std::f64::consts::PI * v).cos();
+                let p = (0.3 + if positive { 0.25 } else { -0.1 } + 0.15 * noise).clamp(0.001, 0.999);
+                y.push(positive as usize);
+                probs.extend([1.0 - p, p]);
+                labels.push(Some(if i % 2 == 0 { "a" } else { "b" }.to_string()));
+            }
+            let report = analyse(
+                crate::manifest::Task::Binary,
+                &[crate::selection::GroupColumn { name: "g".into(), labels }],
+                &crate::training::Labels::Classes { rows: y, classes: 2 },
+                &probs,
+                Some(Decision { threshold: 0.35, favourable: Some("no".into()), favourable_is_positive: false }),
+                &crate::manifest::FairnessSpec::default(),
+                200,
+                seed,
+            );
+            let mut e = healthy();
+            e.fairness = report;
+            silent[0] += !fires("adverse_impact", &e) as usize;
+            silent[1] += !fires("error_rate_gap", &e) as usize;
+        }
+        eprintln!("groups drawn alike, 100 seeds: adverse_impact silent {}, error_rate_gap silent {}", silent[0], silent[1]);
+        assert!(silent[0] >= 95 && silent[1] >= 95, "{silent:?}");
     }
 
     #[test]

@@ -65,7 +65,14 @@ pub(crate) fn lead(st: &StoredResults) -> String {
                 }
                 None => String::new(),
             };
-            threshold + &favourable
+            let both_on_validation = match (&st.selection.calibration, &deployed.report) {
+                (Some(c), Some(r)) if r.rule == ThresholdRule::YoudenJOnValidation => format!(
+                    " The threshold and the {} calibration map were both fitted on the same validation rows that chose the model.",
+                    c.map.method().as_str()
+                ),
+                _ => String::new(),
+            };
+            threshold + &favourable + &both_on_validation
         }
     }
 }

@@ -6,5 +6,6 @@ pub(crate) mod calibration;
 pub(crate) mod capacity;
 pub(crate) mod data;
 pub(crate) mod decision;
+pub(crate) mod groups;
 pub(crate) mod provenance;
 pub(crate) mod results;

@@ -160,15 +160,33 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         _ => "No linear baseline was trained (selection.baseline = false).".into(),
     };
     let t = &sel.test;
-    let test_rows = t
-        .metrics
-        .iter()
-        .filter_map(|(k, v)| {
-            let v = (*v)?;
-            let ci = t.intervals.get(k).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
-            Some(Row::of([k.clone(), fixed(v, 4), ci, spread_text(t.across_seeds.get(k))]))
+    // Layout 5 on, binary: the decision figures at the deployed threshold lead, and the same
+    // figures at 0.5 (the argmax every seed's column uses) are named so.
+    let at_threshold = t.chosen_threshold.as_ref().filter(|th| !th.metrics.is_empty());
+    let mut test_rows: Vec<Row> = at_threshold
+        .map(|th| {
+            th.metrics
+                .iter()
+                .map(|(k, i)| {
+                    Row::of([
+                        format!("{k} at the deployed threshold {}", sig(th.threshold, 4)),
+                        fixed(i.estimate, 4),
+                        format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4)),
+                        "–".into(),
+                    ])
+                })
+                .collect()
         })
-        .collect();
+        .unwrap_or_default();
+    test_rows.extend(t.metrics.iter().filter_map(|(k, v)| {
+        let v = (*v)?;
+        let ci = t.intervals.get(k).map(|i| format!("[{}, {}]", fixed(i.lower, 4), fixed(i.upper, 4))).unwrap_or_else(|| "–".into());
+        let name = match at_threshold {
+            Some(th) if th.metrics.contains_key(k) => format!("{k} at 0.5"),
+            _ => k.clone(),
+        };
+        Some(Row::of([name, fixed(v, 4), ci, spread_text(t.across_seeds.get(k))]))
+    }));
     let headline = match (t.metrics.get(m).copied().flatten(), t.intervals.get(m)) {
         (Some(v), Some(i)) => format!(
             "test {m} {} (95% bootstrap interval {} to {}, {} resamples)",
@@ -207,26 +225,42 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         format!(" The test split holds {}.", counts.join(", "))
     };
     let mut decisions = Vec::new();
-    if !t.confusion.is_empty() {
-        let default_rule = if task == Task::Binary {
-            "threshold 0.5: positive when the positive-class probability is above 0.5"
-        } else {
-            "the most probable class"
-        };
-        decisions.push(decision(
-            format!("At {default_rule} (accuracy and the other test figures use it)"),
-            &labels,
-            &t.confusion,
-            &t.per_class,
-        ));
-    }
-    if let Some(th) = &t.chosen_threshold {
+    if let Some(th) = at_threshold {
+        // Layout 5 on: the deployed decision first, 0.5 beside it for comparison.
         decisions.push(decision(
             super::decision::threshold_title(th, st.layout_version, sel.calibration.as_ref().map(|c| c.map.method().as_str())),
             &labels,
             &th.confusion,
             &th.per_class,
         ));
+        decisions.push(decision(
+            "For comparison, at threshold 0.5: positive when the positive-class probability is above 0.5 (the figures named \"at 0.5\" and every seed's column use it)".into(),
+            &labels,
+            &t.confusion,
+            &t.per_class,
+        ));
+    } else {
+        if !t.confusion.is_empty() {
+            let default_rule = if task == Task::Binary {
+                "threshold 0.5: positive when the positive-class probability is above 0.5"
+            } else {
+                "the most probable class"
+            };
+            decisions.push(decision(
+                format!("At {default_rule} (accuracy and the other test figures use it)"),
+                &labels,
+                &t.confusion,
+                &t.per_class,
+            ));
+        }
+        if let Some(th) = &t.chosen_threshold {
+            decisions.push(decision(
+                super::decision::threshold_title(th, st.layout_version, sel.calibration.as_ref().map(|c| c.map.method().as_str())),
+                &labels,
+                &th.confusion,
+                &th.per_class,
+            ));
+        }
     }
     let group_rows = t
         .groups

@@ -1,0 +1,5 @@
+//! Analyses of the deployed model computed after selection from the stored runs and the test
+//! split: each a file, each seeded from the experiment's seed, stored as evidence and re-derived
+//! by `verify`. Today: the disparity of the deployed decision across groups (`fairness.rs`).
+
+pub(crate) mod fairness;
