@@ -52,7 +52,7 @@ fn the_four_fifths_rule_finds_the_berkeley_admissions_disparity() {
     let m = d.join("m.toml");
     std::fs::write(
         &m,
-        "[experiment]\nname = \"admissions\"\naffects_people = true\n\n[data]\npath = \"ucb_admissions.parquet\"\ntarget = \"admitted\"\ntask = \"binary\"\nfeatures = [\"Dept\"]\ngroup_columns = [\"Gender\"]\n\n[model]\nhidden = [8]\n\n[training]\nepochs = 30\nbatch_size = 64\nlearning_rate = 0.01\n\n[selection]\nbootstrap = 300\n\n[decision]\nfavourable = \"true\"\nthreshold = \"fixed\"\nfixed_threshold = 0.5\n\n[sweep]\nseeds = [1, 2]\n",
+        "[experiment]\nname = \"admissions\"\naffects_people = true\n\n[data]\npath = \"ucb_admissions.parquet\"\ntarget = \"admitted\"\ntask = \"binary\"\nfeatures = [\"Dept\"]\ngroup_columns = [\"Gender\"]\n\n[model]\nhidden = [8]\n\n[training]\nepochs = 30\nbatch_size = 64\nlearning_rate = 0.01\n\n[selection]\nbootstrap = 300\n\n[decision]\nfavourable = \"true\"\nthreshold = \"fixed\"\nfixed_threshold = 0.5\n\n[fairness]\nproxy_check = true\n\n[sweep]\nseeds = [1, 2]\n",
     )
     .unwrap();
     let folder = trained(d, &m);
@@ -95,6 +95,17 @@ fn the_four_fifths_rule_finds_the_berkeley_admissions_disparity() {
         ratio["upper"].as_f64().unwrap()
     );
     assert!(ratio["upper"].as_f64().unwrap() < 0.8, "beyond sampling noise too");
+    // The department tells the applicant's gender apart well above chance (women applied mostly
+    // to C to F): the proxy check says so.
+    let probe = &fairness["proxies"][0]["roc_auc"];
+    eprintln!(
+        "UCB admissions, proxy check: department -> gender ROC AUC {:.4} [{:.4}, {:.4}]",
+        probe["value"].as_f64().unwrap(),
+        probe["lower"].as_f64().unwrap(),
+        probe["upper"].as_f64().unwrap()
+    );
+    assert!(probe["lower"].as_f64().unwrap() > 0.6, "{probe}");
+    assert!(card.contains("A linear probe on the network's"));
 
     let out = run_in(d, &["verify", folder.to_str().unwrap()]);
     assert!(out.status.success() && stdout(&out).contains("matches fairness.json"), "{}{}", stdout(&out), stderr(&out));

@@ -10,6 +10,7 @@
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 
+pub(crate) use super::estimate::Estimate;
 use crate::error::Result;
 use crate::manifest::{FairnessSpec, Task};
 use crate::metrics::bootstrap::quantile_sorted;
@@ -17,14 +18,6 @@ use crate::metrics::calibration::{ece_from_table, top_label_table};
 use crate::rng::{Purpose, Stream};
 use crate::selection::GroupColumn;
 use crate::training::Labels;
-
-/// A figure with its 95% percentile interval (the bounds equal the value without resamples).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub(crate) struct Estimate {
-    pub value: f64,
-    pub lower: f64,
-    pub upper: f64,
-}
 
 /// One group's figures at the deployed decision.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -69,6 +62,9 @@ pub(crate) struct FairnessReport {
     pub rate_gap: f64,
     pub resamples: usize,
     pub columns: Vec<GroupDisparity>,
+    /// `[fairness] proxy_check`: a linear probe's test ROC AUC for each group column.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub proxies: Vec<super::proxy::ProxyCheck>,
 }
 
 /// Figure names, as stored.
@@ -288,6 +284,7 @@ pub(crate) fn analyse(
         rate_gap: spec.rate_gap,
         resamples,
         columns,
+        proxies: Vec::new(),
     })
 }
 
@@ -312,7 +309,27 @@ pub(crate) fn derive(
         _ => None,
     };
     let spec = m.fairness.clone().unwrap_or_default();
-    Ok(analyse(m.data.task, &groups, &test_y, &derived.test_outputs, decision, &spec, m.selection.bootstrap, m.split.seed))
+    let mut report = analyse(m.data.task, &groups, &test_y, &derived.test_outputs, decision, &spec, m.selection.bootstrap, m.split.seed);
+    if let Some(report) = report.as_mut().filter(|_| spec.proxy_check) {
+        // The training matrix is encoded anew: the prepared one may have been released after the sweep.
+        let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.test])?.into_iter();
+        let (Some((train_x, _)), Some((test_x, _))) = (matrices.next(), matrices.next()) else {
+            return Err(crate::error::Error::Internal("two row lists gave fewer matrices".into()));
+        };
+        for name in &exp.roles.groups {
+            let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
+            let label =
+                |rows: &[usize]| -> Vec<String> { rows.iter().map(|&r| col.label(r).unwrap_or_else(|| "(missing)".into())).collect() };
+            report.proxies.push(super::proxy::check(
+                name,
+                (&train_x, &label(&exp.splits.train)),
+                (&test_x, &label(&exp.splits.test)),
+                m.selection.bootstrap,
+                m.split.seed,
+            ));
+        }
+    }
+    Ok(report)
 }
 
 #[cfg(test)]
@@ -348,5 +365,37 @@ mod tests {
         assert_eq!(g.reference.as_deref(), Some("b"));
         assert_eq!(g.groups[0].figures[ADVERSE_IMPACT_RATIO].value, 0.5);
         assert_eq!(g.groups[0].figures[SELECTION_RATE].value, 0.3);
+    }
+
+    #[test]
+    fn an_intersection_is_analysed_as_groups_of_its_own() {
+        let (mut y, mut probs, mut a, mut b) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+        for i in 0..400 {
+            y.push(i % 3 == 0);
+            let p = if i % 4 == 0 { 0.8 } else { 0.2 };
+            probs.extend([1.0 - p, p]);
+            a.push(Some(if i % 2 == 0 { "x" } else { "y" }.to_string()));
+            b.push(if i % 5 == 0 { None } else { Some("u".to_string()) });
+        }
+        let spec = FairnessSpec { intersections: vec![vec!["a".into(), "b".into()]], ..FairnessSpec::default() };
+        let report = analyse(
+            Task::Binary,
+            &[GroupColumn { name: "a".into(), labels: a }, GroupColumn { name: "b".into(), labels: b }],
+            &Labels::Classes { rows: y.into_iter().map(usize::from).collect(), classes: 2 },
+            &probs,
+            Some(Decision { threshold: 0.5, favourable: None, favourable_is_positive: true }),
+            &spec,
+            20,
+            4,
+        )
+        .unwrap();
+        let columns: Vec<&str> = report.columns.iter().map(|c| c.column.as_str()).collect();
+        assert_eq!(columns, ["a", "b", "a & b"]);
+        let levels: Vec<(&str, usize)> = report.columns[2].groups.iter().map(|g| (g.level.as_str(), g.rows)).collect();
+        assert_eq!(levels, [("x & (missing)", 40), ("x & u", 160), ("y & (missing)", 40), ("y & u", 160)]);
+        // Rows i % 4 == 0 are decided positive: all of them lie in group x.
+        let x = &report.columns[0].groups[0];
+        assert_eq!(x.figures[SELECTION_RATE].value, 0.5);
+        assert_eq!(report.columns[0].groups[1].figures[SELECTION_RATE].value, 0.0);
     }
 }

@@ -47,6 +47,10 @@ pub struct FairnessSpec {
     /// Pairs of group columns whose combinations are analysed as groups too.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub intersections: Vec<Vec<String>>,
+    /// Also fit a linear probe from the network's inputs to each group column (training rows)
+    /// and report how well it predicts the group on the test rows.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub proxy_check: bool,
 }
 
 fn default_minimum_group_rows() -> usize {
@@ -59,7 +63,12 @@ fn default_rate_gap() -> f64 {
 
 impl Default for FairnessSpec {
     fn default() -> Self {
-        FairnessSpec { minimum_group_rows: default_minimum_group_rows(), rate_gap: default_rate_gap(), intersections: Vec::new() }
+        FairnessSpec {
+            minimum_group_rows: default_minimum_group_rows(),
+            rate_gap: default_rate_gap(),
+            intersections: Vec::new(),
+            proxy_check: false,
+        }
     }
 }
 

@@ -157,6 +157,7 @@ mod tests {
             minimum_group_rows: 30,
             rate_gap: 0.1,
             resamples: 1000,
+            proxies: Vec::new(),
             columns: vec![GroupDisparity {
                 column: "region".into(),
                 reference: Some("a".into()),

@@ -25,6 +25,8 @@ pub(crate) struct Groups {
     /// Empty: no section (no group columns, or a folder before layout 5).
     pub(crate) summary: String,
     pub(crate) tables: Vec<GroupTable>,
+    /// One sentence per group column probed (`[fairness] proxy_check`).
+    pub(crate) proxies: Vec<String>,
     pub(crate) caveat: String,
 }
 
@@ -51,7 +53,9 @@ fn summary(f: &FairnessReport, positive: &str) -> String {
 }
 
 pub(crate) fn groups(st: &StoredResults) -> Groups {
-    let Some(f) = &st.fairness else { return Groups { summary: String::new(), tables: Vec::new(), caveat: String::new() } };
+    let Some(f) = &st.fairness else {
+        return Groups { summary: String::new(), tables: Vec::new(), proxies: Vec::new(), caveat: String::new() };
+    };
     let positive = st.record.class_labels.get(1).map(|l| code_span(l)).unwrap_or_default();
     let regression = st.manifest.data.task == crate::manifest::Task::Regression;
     let tables = f
@@ -112,7 +116,30 @@ pub(crate) fn groups(st: &StoredResults) -> Groups {
         })
         .collect();
     let caveat = "These criteria can conflict: when base rates differ between groups, no imperfect model can equalise calibration within groups and both error rates at once (Kleinberg, Mullainathan & Raghavan 2017; Chouldechova 2017), so a reviewer weighs which matters for this decision. The analysis informs that review; it is not a legal finding, and the standard that applies is set by local law and licensed practice.".to_string();
+    let proxies = f
+        .proxies
+        .iter()
+        .map(|p| match &p.roc_auc {
+            Some(auc) => format!(
+                "A linear probe on the network's {} inputs, fitted on the {} training rows, tells the {} groups of {} apart on the {} test rows with ROC AUC {}{} (0.5: the inputs say nothing about the group; 1: they reveal it{}).",
+                p.inputs,
+                p.train_rows,
+                p.groups,
+                md(&p.column),
+                p.test_rows,
+                cell(Some(auc)),
+                if p.groups > 2 { ", macro one-against-the-rest" } else { "" },
+                if auc.lower > 0.6 { "; here a network can treat the groups differently without being given the column" } else { "" }
+            ),
+            None => format!(
+                "{} was not probed: it has fewer than two groups, a group missing from the test rows, or more than {} inputs.",
+                md(&p.column),
+                crate::analysis::proxy::MAX_PROBE_INPUTS
+            ),
+        })
+        .collect();
     Groups {
+        proxies,
         summary: if regression {
             format!("Each group's figures come from its test rows; intervals are 95% percentile intervals of {} resamples drawn within each group. Groups with fewer than {} test rows are shown but not judged (common practice).", f.resamples, f.minimum_group_rows)
         } else {
