@@ -20,6 +20,8 @@ pub enum Purpose {
     DemoData,
     /// Resampling rows within each group for the disparity intervals.
     GroupBootstrap,
+    /// Permuting a feature's values across test rows, and the resamples its importance is judged on.
+    Permutation,
 }
 
 impl Purpose {
@@ -33,6 +35,7 @@ impl Purpose {
             Purpose::Bootstrap => "bootstrap",
             Purpose::DemoData => "demo-data",
             Purpose::GroupBootstrap => "group-bootstrap",
+            Purpose::Permutation => "permutation",
         }
     }
 }

@@ -5,4 +5,5 @@
 
 pub(crate) mod estimate;
 pub(crate) mod fairness;
+pub(crate) mod importance;
 pub(crate) mod proxy;

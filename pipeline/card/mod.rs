@@ -19,6 +19,7 @@ use sections::calibration::{calibration, Calibration};
 use sections::capacity::{capacity, Capacity};
 use sections::data::{data_section, DataSection};
 use sections::groups::{groups, Groups};
+use sections::importance::{importance, Importance};
 use sections::provenance::{provenance, Provenance};
 use sections::results::{results, Results};
 use std::collections::BTreeMap;
@@ -47,6 +48,7 @@ struct CardContext {
     results: Results,
     calibration: Calibration,
     groups: Groups,
+    importance: Importance,
     figures: Vec<Figure>,
     limitations: Vec<Limitation>,
     provenance: Provenance,
@@ -92,6 +94,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         results: results(&st, &limitations),
         calibration: calibration(&st),
         groups: groups(&st),
+        importance: importance(&st),
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),

@@ -172,12 +172,16 @@ fn select_and_record(
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
+    let importance = crate::analysis::importance::derive(prepared, &derived, &runs)?;
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
     write_json(&layout.selection(), &selection)?;
     if let Some(fairness) = &fairness {
         write_json(&layout.fairness(), fairness)?;
+    }
+    if let Some(importance) = &importance {
+        write_json(&layout.importance(), importance)?;
     }
     let (git_commit, git_dirty) = git.clone();
     write_json(

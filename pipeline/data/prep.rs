@@ -64,7 +64,7 @@ impl InputEncoding {
         }
     }
 
-    fn width(&self) -> usize {
+    pub fn width(&self) -> usize {
         match self {
             InputEncoding::Numeric { indicator, .. } => 1 + *indicator as usize,
             InputEncoding::Categorical { levels, indicator, .. } => levels.len() + 1 + *indicator as usize,

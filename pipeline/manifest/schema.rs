@@ -31,6 +31,28 @@ pub struct Manifest {
     /// How the decision's disparity across `data.group_columns` is judged; absent: the defaults.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub fairness: Option<FairnessSpec>,
+    /// What drives the model: the analyses' settings; absent: the defaults.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub analysis: Option<AnalysisSpec>,
+}
+
+/// `[analysis]`: permutation importance of each raw feature on the test rows.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AnalysisSpec {
+    /// Permutations of each feature (each on its own bootstrap resample of the test rows).
+    #[serde(default = "default_permutation_repeats")]
+    pub permutation_repeats: usize,
+}
+
+fn default_permutation_repeats() -> usize {
+    20
+}
+
+impl Default for AnalysisSpec {
+    fn default() -> Self {
+        AnalysisSpec { permutation_repeats: default_permutation_repeats() }
+    }
 }
 
 /// `[fairness]`: the disparity analysis of the deployed decision across group columns.

@@ -261,6 +261,11 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
     if let Some(f) = &m.fairness {
         validate_fairness(&mut c, &m.data.group_columns, f);
     }
+    if let Some(a) = &m.analysis {
+        c.check((2..=1000).contains(&a.permutation_repeats), "analysis.permutation_repeats", || {
+            format!("must be from 2 to 1000 (an interval needs repeats), got {}", a.permutation_repeats)
+        });
+    }
     c.0
 }
 

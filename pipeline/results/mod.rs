@@ -121,6 +121,16 @@ impl Sealed {
     }
 
     /// The stored test-split predictions; `None` in folders before layout 4, which have none.
+    /// `importance.json`, when the folder has one (layout 5).
+    pub(crate) fn importance(&self) -> Result<Option<crate::analysis::importance::ImportanceReport>> {
+        let path = self.layout.importance();
+        if path.exists() {
+            Ok(Some(read_json(&path)?))
+        } else {
+            Ok(None)
+        }
+    }
+
     /// `fairness.json`, when the folder has one (layout 5 with group columns).
     pub(crate) fn fairness(&self) -> Result<Option<crate::analysis::fairness::FairnessReport>> {
         let path = self.layout.fairness();
@@ -161,6 +171,8 @@ pub(crate) struct StoredResults {
     pub runs: Vec<StoredRun>,
     /// `fairness.json` (layout 5 with group columns).
     pub fairness: Option<crate::analysis::fairness::FairnessReport>,
+    /// `importance.json` (layout 5).
+    pub importance: Option<crate::analysis::importance::ImportanceReport>,
 }
 
 impl StoredResults {
@@ -180,6 +192,7 @@ impl StoredResults {
             timing: crate::store::timing::read(&layout.timing())?,
             preprocessor: read_json(&layout.preprocessor())?,
             fairness: if layout.fairness().exists() { Some(read_json(&layout.fairness())?) } else { None },
+            importance: if layout.importance().exists() { Some(read_json(&layout.importance())?) } else { None },
             plan,
             runs,
         })

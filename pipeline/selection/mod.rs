@@ -5,6 +5,7 @@
 
 pub(crate) mod deployed;
 pub(crate) mod scoring;
+pub(crate) mod serving;
 
 use serde::{Deserialize, Serialize};
 use serde_json::Value;

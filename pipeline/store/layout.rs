@@ -79,6 +79,10 @@ impl Layout {
     pub fn fairness(&self) -> PathBuf {
         self.root.join("fairness.json")
     }
+    /// Permutation importance of each raw feature (layout 5).
+    pub fn importance(&self) -> PathBuf {
+        self.root.join("importance.json")
+    }
     pub fn timing(&self) -> PathBuf {
         self.root.join("timing.json")
     }

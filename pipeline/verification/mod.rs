@@ -74,6 +74,8 @@ pub(crate) enum SelectionCheck {
         test_predictions: bool,
         /// `fairness.json` re-derived too (layout 5 with group columns).
         fairness: bool,
+        /// `importance.json` re-derived too (layout 5).
+        importance: bool,
     },
     /// What differs.
     Differs(String),
@@ -334,7 +336,12 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         None => NumericsCheck::NotRecorded,
     };
     // The selection and its one test evaluation, re-derived from the stored runs.
-    let derived = sealed.runs(&prepared.plan).and_then(|runs| crate::selection::derive(&prepared, &runs, sealed.layout_version));
+    let stored_runs = sealed.runs(&prepared.plan);
+    let derived = match &stored_runs {
+        Ok(runs) => crate::selection::derive(&prepared, runs, sealed.layout_version),
+        // Shown as the reason the selection cannot be re-derived, as the error itself would be.
+        Err(e) => Err(Error::Usage(e.to_string())),
+    };
     let as_value = |s: &Selection| serde_json::to_value(s).map_err(|e| Error::Internal(format!("serialising the selection: {e}")));
     let stored_test_predictions = sealed.test_predictions_text()?;
     let selection_check = match derived {
@@ -346,17 +353,24 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         }
         Ok(derived) if sealed.layout_version >= crate::selection::deployed::CALIBRATION_FROM => {
             let stored = sealed.fairness()?;
-            match crate::analysis::fairness::derive(&prepared, &derived) {
-                Ok(fresh) if fresh == stored => {
-                    SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: stored.is_some() }
-                }
-                Ok(_) => SelectionCheck::Differs(
+            let stored_importance = sealed.importance()?;
+            let runs = stored_runs.as_deref().unwrap_or(&[]);
+            match (crate::analysis::fairness::derive(&prepared, &derived), crate::analysis::importance::derive(&prepared, &derived, runs)) {
+                (Ok(fresh), _) if fresh != stored => SelectionCheck::Differs(
                     "fairness.json does not match the disparity analysis re-derived from the deployed model's test outputs".into(),
                 ),
-                Err(e) => SelectionCheck::CannotDerive(e.to_string()),
+                (Ok(_), Ok(fresh)) if fresh != stored_importance => SelectionCheck::Differs(
+                    "importance.json does not match the permutation importance re-derived from the deployed model".into(),
+                ),
+                (Ok(_), Ok(_)) => SelectionCheck::Matches {
+                    test_predictions: stored_test_predictions.is_some(),
+                    fairness: stored.is_some(),
+                    importance: stored_importance.is_some(),
+                },
+                (Err(e), _) | (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
             }
         }
-        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: false },
+        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: false, importance: false },
         Err(e) => SelectionCheck::CannotDerive(e.to_string()),
     };
     let card = match crate::card::render(layout, None, &digest) {

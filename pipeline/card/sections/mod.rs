@@ -7,5 +7,6 @@ pub(crate) mod capacity;
 pub(crate) mod data;
 pub(crate) mod decision;
 pub(crate) mod groups;
+pub(crate) mod importance;
 pub(crate) mod provenance;
 pub(crate) mod results;
