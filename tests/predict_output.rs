@@ -7,7 +7,7 @@ mod common;
 use common::*;
 use std::path::Path;
 
-/// The scoring-output schema, version 1, for the lease test table (README, "Scoring output"):
+/// The scoring-output schema, version 2, for the lease test table (no interval columns: binary) (README, "Scoring output"):
 /// names in order and Arrow types, as a Parquet reader sees them.
 const PARQUET_SCHEMA: &[(&str, &str)] = &[
     ("application_id", "Int64"),
