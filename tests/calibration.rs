@@ -7,7 +7,7 @@
 
 mod common;
 
-use arrow::array::{Array, Float64Array};
+use arrow::array::Float64Array;
 use common::*;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
@@ -34,16 +34,7 @@ fn predictions(path: &Path) -> Vec<(usize, Vec<f64>)> {
 
 /// Every value of the float64 column `name` of a Parquet file.
 fn float_column(path: &Path, name: &str) -> Vec<f64> {
-    let file = std::fs::File::open(path).unwrap();
-    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
-    let mut out = Vec::new();
-    for batch in reader {
-        let batch = batch.unwrap();
-        let col = batch.column_by_name(name).unwrap_or_else(|| panic!("no column {name}"));
-        let values = col.as_any().downcast_ref::<Float64Array>().unwrap_or_else(|| panic!("{name} is not float64"));
-        out.extend((0..values.len()).map(|i| values.value(i)));
-    }
-    out
+    parquet_column(path, name, |a: &Float64Array, i| a.value(i))
 }
 
 /// ECE = sum over the table's bins of rows/n x |observed - mean predicted|, from selection.json.

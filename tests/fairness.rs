@@ -8,7 +8,7 @@
 
 mod common;
 
-use arrow::array::{Array, StringArray};
+use arrow::array::StringArray;
 use common::*;
 use serde_json::Value;
 use std::collections::BTreeMap;
@@ -19,29 +19,11 @@ fn json(path: &Path) -> Value {
 }
 
 fn string_column(path: &Path, name: &str) -> Vec<String> {
-    let file = std::fs::File::open(path).unwrap();
-    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
-    let mut out = Vec::new();
-    for batch in reader {
-        let batch = batch.unwrap();
-        let col = batch.column_by_name(name).unwrap();
-        let values = col.as_any().downcast_ref::<StringArray>().unwrap();
-        out.extend((0..values.len()).map(|i| values.value(i).to_string()));
-    }
-    out
+    parquet_column(path, name, |a: &StringArray, i| a.value(i).to_string())
 }
 
 fn bool_column(path: &Path, name: &str) -> Vec<bool> {
-    let file = std::fs::File::open(path).unwrap();
-    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
-    let mut out = Vec::new();
-    for batch in reader {
-        let batch = batch.unwrap();
-        let col = batch.column_by_name(name).unwrap();
-        let values = col.as_any().downcast_ref::<arrow::array::BooleanArray>().unwrap();
-        out.extend((0..values.len()).map(|i| values.value(i)));
-    }
-    out
+    parquet_column(path, name, |a: &arrow::array::BooleanArray, i| a.value(i))
 }
 
 #[test]

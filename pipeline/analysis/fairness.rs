@@ -298,7 +298,11 @@ pub(crate) fn derive(
     let m = &exp.manifest;
     let groups = crate::selection::group_columns(&exp.roles.groups, exp)?;
     let test_y = exp.labels(&exp.splits.test);
-    let labels = &exp.record().class_labels;
+    // The class labels straight from the target (the experiment record would hash the splits).
+    let labels: &[String] = match &exp.target {
+        crate::data::roles::Target::Classes { labels, .. } => labels,
+        crate::data::roles::Target::Values(_) => &[],
+    };
     let decision = match m.data.task {
         Task::Binary => {
             let threshold = derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value;

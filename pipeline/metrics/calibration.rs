@@ -22,20 +22,25 @@ pub struct ReliabilityBin {
 /// class) with a 95% Wilson interval. Empty bins are left out. [`ece_from_table`] of it is the
 /// expected calibration error.
 pub fn top_label_table(labels: &[usize], probs: &[f64], k: usize, bins: usize) -> Vec<ReliabilityBin> {
-    let mut count = vec![0usize; bins];
-    let mut confidence = vec![0.0; bins];
-    let mut correct = vec![0usize; bins];
-    for (row, &y) in probs.chunks_exact(k).zip(labels) {
+    let points = probs.chunks_exact(k).zip(labels).map(|(row, &y)| {
         let top = super::classification::argmax(row);
-        let b = bin_of(row[top], bins);
-        count[b] += 1;
-        confidence[b] += row[top];
-        correct[b] += (top == y) as usize;
-    }
-    table(&count, &confidence, &correct, bins)
+        (row[top], top == y)
+    });
+    table(points, bins, true)
 }
 
-fn table(count: &[usize], predicted: &[f64], hits: &[usize], bins: usize) -> Vec<ReliabilityBin> {
+/// One table from (predicted value, hit) points: per non-empty bin of the predicted value, its
+/// rows, mean predicted value and share of hits, with the share's Wilson interval when asked.
+fn table(points: impl Iterator<Item = (f64, bool)>, bins: usize, with_interval: bool) -> Vec<ReliabilityBin> {
+    let mut count = vec![0usize; bins];
+    let mut predicted = vec![0.0; bins];
+    let mut hits = vec![0usize; bins];
+    for (p, hit) in points {
+        let b = bin_of(p, bins);
+        count[b] += 1;
+        predicted[b] += p;
+        hits[b] += hit as usize;
+    }
     (0..bins)
         .filter(|&b| count[b] > 0)
         .map(|b| ReliabilityBin {
@@ -44,7 +49,7 @@ fn table(count: &[usize], predicted: &[f64], hits: &[usize], bins: usize) -> Vec
             count: count[b],
             mean_predicted: predicted[b] / count[b] as f64,
             observed: hits[b] as f64 / count[b] as f64,
-            observed_interval: Some(super::wilson::interval(hits[b], count[b], super::wilson::Z95)),
+            observed_interval: with_interval.then(|| super::wilson::interval(hits[b], count[b], super::wilson::Z95)),
         })
         .collect()
 }
@@ -59,16 +64,7 @@ pub fn ece_from_table(table: &[ReliabilityBin], rows: usize) -> f64 {
 /// One class against the rest: the class's probability binned, with the share of rows of that
 /// class per bin and its Wilson interval.
 pub fn class_table(labels: &[usize], probs: &[f64], k: usize, class: usize, bins: usize) -> Vec<ReliabilityBin> {
-    let mut count = vec![0usize; bins];
-    let mut predicted = vec![0.0; bins];
-    let mut hits = vec![0usize; bins];
-    for (row, &y) in probs.chunks_exact(k).zip(labels) {
-        let b = bin_of(row[class], bins);
-        count[b] += 1;
-        predicted[b] += row[class];
-        hits[b] += (y == class) as usize;
-    }
-    table(&count, &predicted, &hits, bins)
+    table(probs.chunks_exact(k).zip(labels).map(|(row, &y)| (row[class], y == class)), bins, true)
 }
 
 /// Index of the right-closed equal-width bin holding `x` in [0, 1]: the number of interior edges
@@ -95,26 +91,7 @@ pub fn expected_calibration_error(labels: &[usize], probs: &[f64], k: usize, bin
 /// scikit-learn's `calibration_curve` bins. Empty bins are left out. The binary table of results
 /// layouts 3 and 4, kept so their folders re-derive bit for bit; no interval.
 pub fn reliability_bins(is_positive: &[bool], p_positive: &[f64], bins: usize) -> Vec<ReliabilityBin> {
-    let mut count = vec![0usize; bins];
-    let mut predicted = vec![0.0; bins];
-    let mut observed = vec![0.0; bins];
-    for (&y, &p) in is_positive.iter().zip(p_positive) {
-        let b = bin_of(p, bins);
-        count[b] += 1;
-        predicted[b] += p;
-        observed[b] += y as u8 as f64;
-    }
-    (0..bins)
-        .filter(|&b| count[b] > 0)
-        .map(|b| ReliabilityBin {
-            lower: b as f64 / bins as f64,
-            upper: (b + 1) as f64 / bins as f64,
-            count: count[b],
-            mean_predicted: predicted[b] / count[b] as f64,
-            observed: observed[b] / count[b] as f64,
-            observed_interval: None,
-        })
-        .collect()
+    table(p_positive.iter().copied().zip(is_positive.iter().copied()), bins, false)
 }
 
 #[cfg(test)]

@@ -54,6 +54,21 @@ pub fn write_parquet(path: &Path, columns: Vec<(&str, ArrayRef)>) {
     std::fs::write(path, bytes).unwrap();
 }
 
+/// Every value of the column `name` of a Parquet file, read as the Arrow array type `A` and
+/// taken out of it by `value` (row by row, in file order).
+pub fn parquet_column<A: arrow::array::Array + 'static, T>(path: &Path, name: &str, value: impl Fn(&A, usize) -> T) -> Vec<T> {
+    let file = std::fs::File::open(path).unwrap();
+    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
+    let mut out = Vec::new();
+    for batch in reader {
+        let batch = batch.unwrap();
+        let col = batch.column_by_name(name).unwrap_or_else(|| panic!("no column {name}"));
+        let values = col.as_any().downcast_ref::<A>().unwrap_or_else(|| panic!("{name} is not of the expected type"));
+        out.extend((0..values.len()).map(|i| value(values, i)));
+    }
+    out
+}
+
 pub fn repo_path(rel: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join(rel)
 }
