@@ -252,6 +252,78 @@ impl<T: Real> Engine<T> {
         result
     }
 
+    /// Evaluation-mode outputs and input gradients of every row of `x`, in blocks of
+    /// [`EVAL_BLOCK`] rows: running statistics for batch norm, no dropout, no noise, as
+    /// [`Engine::evaluate`]. For each row, `seed(outputs, weights)` sets the weights of its outputs
+    /// (for instance 1 on the one logit of a binary head), and the row's gradient is that of
+    /// sum_j weight_j output_j with respect to its inputs. Returns (outputs, rows x outputs;
+    /// gradients, rows x inputs) in the engine's precision. Parameter gradients are not touched.
+    pub fn input_gradients(&mut self, x: &Matrix, seed: &mut dyn FnMut(&[T], &mut [T])) -> (Vec<T>, Vec<T>) {
+        assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
+        let k = self.layers.last().map_or(0, |l| l.outputs);
+        let d = self.inputs;
+        let mut outputs = Vec::with_capacity(x.rows * k);
+        let mut gradients = Vec::with_capacity(x.rows * d);
+        let eps = T::narrow(BN_EPS);
+        // d/dz of gamma (z - mean) / std + beta, per batch-norm layer.
+        let running_std: Vec<Option<Vec<T>>> =
+            self.layers.iter().map(|l| l.norm.as_ref().map(|n| n.running_var.iter().map(|&v| (v + eps).sqrt()).collect())).collect();
+        let slopes: Vec<Option<Vec<T>>> = self
+            .layers
+            .iter()
+            .zip(&running_std)
+            .map(|(l, std)| l.norm.as_ref().zip(std.as_ref()).map(|(n, s)| n.gamma.iter().zip(s).map(|(&g, &s)| g / s).collect()))
+            .collect();
+        for start in (0..x.rows).step_by(EVAL_BLOCK) {
+            let b = (x.rows - start).min(EVAL_BLOCK);
+            for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
+                *v = T::narrow(f64::from(s));
+            }
+            self.walk_layers(b, Pass::Evaluation { running_std: &running_std });
+            if let Some(head) = self.layers.last() {
+                let logits = &head.out[..b * k];
+                outputs.extend_from_slice(logits);
+                for (row, g) in logits.chunks_exact(k).zip(self.grad_out[..b * k].chunks_exact_mut(k)) {
+                    seed(row, g);
+                }
+            }
+            for l in (0..self.layers.len()).rev() {
+                let layer = &mut self.layers[l];
+                let (n_in, n_out) = (layer.inputs, layer.outputs);
+                let grad_out = &self.grad_out[..b * n_out];
+                let grad_z: &[T] = if layer.hidden {
+                    let pre = &mut layer.pre[..b * n_out];
+                    derivative(self.activation, pre, &layer.act, grad_out, None);
+                    if let Some(slope) = &slopes[l] {
+                        for row in pre.chunks_exact_mut(n_out) {
+                            for (g, &s) in row.iter_mut().zip(slope) {
+                                *g *= s;
+                            }
+                        }
+                    }
+                    pre
+                } else {
+                    grad_out
+                };
+                matmul(
+                    &mut self.grad_in[..b * n_in],
+                    View::new(grad_z, b, n_out),
+                    View::new(&layer.weight, n_in, n_out).t(),
+                    false,
+                    &mut self.workspace,
+                );
+                if layer.residual {
+                    for (g, &o) in self.grad_in[..b * n_in].iter_mut().zip(grad_out) {
+                        *g += o;
+                    }
+                }
+                std::mem::swap(&mut self.grad_out, &mut self.grad_in);
+            }
+            gradients.extend_from_slice(&self.grad_out[..b * d]);
+        }
+        (outputs, gradients)
+    }
+
     /// Every parameter's gradient from the last backward pass, under the model's names.
     pub fn gradients(&self) -> Values<T> {
         self.layers.iter().flat_map(|l| l.parameters().into_iter().map(|(name, _, grad)| (name, grad.to_vec()))).collect()
