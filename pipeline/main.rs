@@ -155,6 +155,17 @@ enum Command {
         /// instead of the deployed one the card states (the output's decision_threshold records it).
         #[arg(long, allow_negative_numbers = true)]
         threshold: Option<f64>,
+        /// Add each row's principal reasons, at most N (default 4, the US Regulation B practice):
+        /// the features that moved its log-odds (classifiers) or prediction (regression) most, by
+        /// integrated gradients from a reference row; columns reasons, reason_features,
+        /// reason_contributions, reasons_gap.
+        #[arg(long, value_name = "N", num_args = 0..=1, default_missing_value = "4", allow_negative_numbers = true)]
+        reasons: Option<i64>,
+        /// The reference row reasons are measured from: `median` (the training median row) or
+        /// `threshold` (binary: the mean of training rows scored at or just above the deployed
+        /// threshold).
+        #[arg(long, value_enum, default_value = "median", requires = "reasons")]
+        reference: ReferenceArg,
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
@@ -255,11 +266,20 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             let o = outcome?;
             Done { text: o.report, json: Some(o.json), code: if o.identical { exit::OK } else { exit::NOT_VERIFIED } }
         }
-        Command::Predict { model, input, out, keep_extra, force, guard_formulas, threshold } => {
+        Command::Predict { model, input, out, keep_extra, force, guard_formulas, threshold, reasons, reference } => {
+            let reasons = match reasons {
+                Some(n) if n < 1 => {
+                    return Err(tabcard::error::Error::Usage(format!(
+                        "--reasons must be at least 1, got {n} (Regulation B practice is 4, the default)"
+                    )))
+                }
+                Some(n) => Some((n as usize, reference.into())),
+                None => None,
+            };
             if guard_formulas && commands::predict::OutputFormat::of(&out)? != commands::predict::OutputFormat::Csv {
                 return Err(tabcard::Error::Usage("--guard-formulas applies to CSV output only (--out ending in .csv)".into()));
             }
-            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas, threshold };
+            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas, threshold, reasons };
             Done::text(commands::predict::run(&model, &input, &out, &options)?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
@@ -312,6 +332,22 @@ fn main() -> ExitCode {
         Err(e) => {
             note(&format!("error: {}", tabcard::text::terminal_safe(&e.to_string())));
             ExitCode::from(e.exit_code())
+        }
+    }
+}
+
+/// `--reference`.
+#[derive(Debug, Clone, Copy, clap::ValueEnum)]
+enum ReferenceArg {
+    Median,
+    Threshold,
+}
+
+impl From<ReferenceArg> for commands::predict::ReferenceChoice {
+    fn from(r: ReferenceArg) -> Self {
+        match r {
+            ReferenceArg::Median => commands::predict::ReferenceChoice::Median,
+            ReferenceArg::Threshold => commands::predict::ReferenceChoice::Threshold,
         }
     }
 }

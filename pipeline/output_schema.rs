@@ -4,7 +4,7 @@
 //! README's table documents each version.
 
 /// The schema version `predict` writes.
-pub const VERSION: u32 = 2;
+pub const VERSION: u32 = 3;
 
 /// The input row's 0-based position in the scored file.
 pub const ROW: &str = "row";
@@ -38,15 +38,26 @@ pub const RESULTS_DIGEST: &str = "results_digest";
 /// CSV only (Parquet: key-value metadata): this schema's version.
 pub const SCHEMA_VERSION: &str = "scoring_schema";
 
-/// Names the coming capabilities fill: the principal reasons for a row's score. Reserved now so
-/// no id column can take them.
-pub const RESERVED: &[&str] = &["reasons"];
+/// With `--reasons N` (schema version 3): the row's principal reasons, each a JSON array, most
+/// important first: the reason texts (`[reasons]` in the manifest, else the column name), the
+/// features, and their contributions (integrated gradients: log-odds for classifiers, target
+/// units for regression; positive toward the positive or explained class, or a higher
+/// prediction); and |sum of all contributions - (f(row) - f(reference))|, the completeness gap.
+pub const REASONS: &str = "reasons";
+pub const REASON_FEATURES: &str = "reason_features";
+pub const REASON_CONTRIBUTIONS: &str = "reason_contributions";
+pub const REASONS_GAP: &str = "reasons_gap";
+
+/// Names reserved for coming capabilities (none today).
+pub const RESERVED: &[&str] = &[];
 
 /// Parquet key-value metadata keys.
 pub const META_SCHEMA_VERSION: &str = "tabcard.scoring_schema";
 pub const META_MODEL_ID: &str = "tabcard.model_id";
 pub const META_RESULTS_DIGEST: &str = "tabcard.results_digest";
 pub const META_EXPERIMENT: &str = "tabcard.experiment";
+/// With `--reasons`: the reference row, the integration steps and the completeness tolerance.
+pub const META_REASONS: &str = "tabcard.reasons";
 
 /// Every fixed output name (probability columns aside), reserved ones included: an id column may
 /// take none of them.
@@ -65,7 +76,10 @@ pub const FIXED_NAMES: &[&str] = &[
     SCHEMA_VERSION,
     INTERVAL_LOWER,
     INTERVAL_UPPER,
-    "reasons",
+    REASONS,
+    REASON_FEATURES,
+    REASON_CONTRIBUTIONS,
+    REASONS_GAP,
 ];
 
 #[cfg(test)]

@@ -1,9 +1,16 @@
 //! Analyses of the deployed model computed after selection from the stored runs and the test
-//! split: each a file, each seeded from the experiment's seed, stored as evidence and re-derived
-//! by `verify`. Today: the disparity of the deployed decision across groups (`fairness.rs`) and
-//! how well the network's inputs predict each group column (`proxy.rs`), stored together.
+//! split: each a file, each seeded from the experiment's seed (or free of randomness), stored as
+//! evidence and re-derived by `verify`: the disparity of the deployed decision across groups
+//! (`fairness.rs`, with the proxy probe of `proxy.rs`), permutation importance
+//! (`importance.rs`), and what moves the output (`sensitivity.rs`: reference rows, the
+//! sensitivity table, integrated gradients and principal reasons).
 
+pub(crate) mod attribution;
 pub(crate) mod estimate;
 pub(crate) mod fairness;
 pub(crate) mod importance;
 pub(crate) mod proxy;
+pub(crate) mod reasons;
+pub(crate) mod reference;
+pub(crate) mod sensitivity;
+pub(crate) mod shifts;

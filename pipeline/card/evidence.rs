@@ -47,6 +47,12 @@ pub(crate) struct Evidence {
     pub interval_coverage: Option<(f64, f64, f64, usize, usize)>,
     /// The disparity analysis (`fairness.json`), when the folder has one.
     pub fairness: Option<crate::analysis::fairness::FairnessReport>,
+    /// Permutation importance (`importance.json`), when the folder has one.
+    pub importance: Option<crate::analysis::importance::ImportanceReport>,
+    /// The sensitivity analysis (`sensitivity.json`), when the folder has one.
+    pub sensitivity: Option<crate::analysis::sensitivity::SensitivityReport>,
+    /// Features the manifest lists as not to be used for decisions (`[analysis] sensitive`).
+    pub sensitive: Vec<String>,
     /// The test metric that says whether the model beats chance (ROC AUC, or R² for regression):
     /// (name, value, interval lower, interval upper, the value chance gives).
     pub chance: Option<(String, f64, f64, f64, f64)>,
@@ -173,6 +179,9 @@ pub(crate) fn gather(
         test_ece: t.metrics.get("ece").copied().flatten(),
         test_ece_lower: t.intervals.get("ece").map(|i| i.lower),
         fairness: None,
+        importance: None,
+        sensitivity: None,
+        sensitive: manifest.analysis.as_ref().map(|a| a.sensitive.clone()).unwrap_or_default(),
         interval_coverage: selection
             .interval
             .as_ref()

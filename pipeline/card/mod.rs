@@ -22,6 +22,7 @@ use sections::groups::{groups, Groups};
 use sections::importance::{importance, Importance};
 use sections::provenance::{provenance, Provenance};
 use sections::results::{results, Results};
+use sections::sensitivity::{sensitivity, Sensitivity};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -49,6 +50,7 @@ struct CardContext {
     calibration: Calibration,
     groups: Groups,
     importance: Importance,
+    sensitivity: Sensitivity,
     figures: Vec<Figure>,
     limitations: Vec<Limitation>,
     provenance: Provenance,
@@ -74,6 +76,8 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
     let environment: NumericsFingerprint = read_json(&selected_run.dir.join(crate::store::run::ENVIRONMENT))?;
     let mut evidence = evidence::gather(&st.manifest, &st.record, &st.summary, sel, selected_cfg, selected_run.record.parameter_count);
     evidence.fairness = st.fairness.clone();
+    evidence.importance = st.importance.clone();
+    evidence.sensitivity = st.sensitivity.clone();
     let limitations: Vec<Limitation> = derive(&evidence)
         .into_iter()
         .map(|l| Limitation { finding: md_line(&sentence_case(&l.finding)), threshold: md_line(&l.threshold), ..l })
@@ -95,6 +99,7 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         calibration: calibration(&st),
         groups: groups(&st),
         importance: importance(&st),
+        sensitivity: sensitivity(&st),
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),

@@ -15,6 +15,7 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
     let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
     crate::experiment::feasibility::require_calibration_rows(&exp)?;
+    crate::experiment::feasibility::require_known_features(&exp)?;
     let estimate = crate::experiment::feasibility::estimate(&exp, &plan, exp.preprocessor.width(), jobs);
     let available = crate::experiment::feasibility::available_bytes();
     crate::experiment::feasibility::require(&estimate, available, manifest_path)?;

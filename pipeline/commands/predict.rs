@@ -34,6 +34,26 @@ pub struct PredictOptions {
     pub guard_formulas: bool,
     /// Binary models: decide at this threshold instead of the deployed one.
     pub threshold: Option<f64>,
+    /// Give each row its principal reasons, at most this many, from this reference.
+    pub reasons: Option<(usize, ReferenceChoice)>,
+}
+
+/// The reference row principal reasons are measured from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ReferenceChoice {
+    /// The training median row.
+    Median,
+    /// Binary models: the mean of the training rows scored at or just above the deployed threshold.
+    Threshold,
+}
+
+impl ReferenceChoice {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ReferenceChoice::Median => "median",
+            ReferenceChoice::Threshold => "threshold",
+        }
+    }
 }
 
 /// The file formats `--out` can name by its extension.
@@ -128,6 +148,8 @@ pub struct Provenance {
     pub model_id: String,
     pub results_digest: String,
     pub experiment: String,
+    /// With `--reasons`: how they were computed.
+    pub reasons: Option<String>,
 }
 
 impl Provenance {
@@ -138,6 +160,9 @@ impl Provenance {
             (schema::META_RESULTS_DIGEST.into(), self.results_digest.clone()),
             (schema::META_EXPERIMENT.into(), self.experiment.clone()),
         ]
+        .into_iter()
+        .chain(self.reasons.iter().map(|r| (schema::META_REASONS.into(), r.clone())))
+        .collect()
     }
 
     /// The CSV form: the same three facts as constant columns.
@@ -295,8 +320,22 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
         Some(e) => format!("ensemble:{}", e.members.join("+")),
         None => run_id.clone(),
     };
-    let provenance = Provenance { model_id, results_digest: folder.digest.clone(), experiment: record.fingerprint.clone() };
     let mut out = String::new();
+    let mut reasons_meta = None;
+    let mut reasons_line = String::new();
+    if let Some((n, choice)) = options.reasons {
+        let members: Vec<String> = match ensemble {
+            Some(e) => e.members.clone(),
+            None => vec![run_id.clone()],
+        };
+        let classes = crate::analysis::sensitivity::explained_classes(record.task, &outputs, k);
+        let (mut cols, meta, line) = reason_columns(&folder, &manifest, &members, model, &x, &classes, n, choice)?;
+        columns.append(&mut cols);
+        reasons_meta = Some(meta);
+        reasons_line = line;
+    }
+    let provenance =
+        Provenance { model_id, results_digest: folder.digest.clone(), experiment: record.fingerprint.clone(), reasons: reasons_meta };
     match ensemble {
         Some(e) => {
             let _ = writeln!(
@@ -339,6 +378,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             "note      run {run_id} alone is not the deployed model (name the results folder for it): no prediction interval, and no calibration map unless it is the run's own"
         );
     }
+    out.push_str(&reasons_line);
     let _ = writeln!(out, "flagged   {} rows with a number outside the training range", report.out_of_range_rows);
     if report.unseen_levels.is_empty() {
         let _ = writeln!(out, "unseen    no category levels unseen in training");
@@ -357,6 +397,97 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
         );
     }
     Ok(Scored { columns, provenance, report: out })
+}
+
+/// The principal-reason columns for every row of `x` (see [`crate::output_schema::REASONS`]), the
+/// metadata text saying how they were computed, and the report's lines. `model` is the scored
+/// run, reused when it is the only member.
+#[allow(clippy::too_many_arguments)]
+fn reason_columns(
+    folder: &Sealed,
+    manifest: &crate::manifest::Manifest,
+    members: &[String],
+    model: ScoringModel,
+    x: &crate::data::prep::Matrix,
+    classes: &[usize],
+    n: usize,
+    choice: ReferenceChoice,
+) -> Result<(Vec<(String, ArrayRef)>, String, String)> {
+    use crate::analysis::attribution::{integrated_gradients, mean, Explained};
+    use crate::analysis::reasons::{principal, Toward};
+    use crate::analysis::reference::ThresholdReference;
+    if n == 0 {
+        return Err(Error::Usage("--reasons must be at least 1 (Regulation B practice is 4, the default)".into()));
+    }
+    let Some(sensitivity) = folder.sensitivity()? else {
+        return Err(Error::store(
+            &folder.layout.root,
+            format!(
+                "holds no reference rows (results layout {}; they came with layout {}): retrain it with this version to score reasons",
+                folder.layout_version,
+                crate::analysis::sensitivity::SENSITIVITY_FROM
+            ),
+        ));
+    };
+    let reference = match (choice, &sensitivity.references.threshold) {
+        (ReferenceChoice::Median, _) => sensitivity.references.median.clone(),
+        (ReferenceChoice::Threshold, Some(ThresholdReference::Available { values, .. })) => values.clone(),
+        (ReferenceChoice::Threshold, Some(ThresholdReference::Unavailable { reason })) => {
+            return Err(Error::Usage(format!(
+                "--reference threshold: this experiment has no threshold reference: {reason} (lower analysis.reference_rows in the manifest and retrain, or use --reference median)"
+            )))
+        }
+        (ReferenceChoice::Threshold, None) => {
+            return Err(Error::Usage("--reference threshold applies to binary models; use --reference median".into()));
+        }
+    };
+    let steps = manifest.analysis.clone().unwrap_or_default().integration_steps();
+    let explained = Explained::of(&model.head, model.scaling.map(|s| s.std));
+    let mut networks = vec![model];
+    if members.len() > 1 {
+        networks = members.iter().map(|id| ScoringModel::from_stored(&folder.run(id)?)).collect::<Result<_>>()?;
+    }
+    let parts =
+        networks.iter_mut().map(|m| integrated_gradients(m, explained, x, &reference, classes, steps)).collect::<Result<Vec<_>>>()?;
+    let attr = if parts.len() == 1 { parts.into_iter().next().unwrap_or_else(|| mean(Vec::new())) } else { mean(parts) };
+    let preprocessor = folder.preprocessor()?;
+    let widths: Vec<usize> = preprocessor.inputs.iter().map(InputEncoding::width).collect();
+    let names: Vec<String> = preprocessor.inputs.iter().map(|e| e.name().to_string()).collect();
+    let texts: Vec<String> =
+        names.iter().map(|f| manifest.reasons.as_ref().and_then(|r| r.get(f)).cloned().unwrap_or_else(|| f.clone())).collect();
+    let record = &folder.record;
+    let favourable = manifest.decision.as_ref().and_then(|d| d.favourable.as_ref());
+    let toward = Toward::of(record.task, &record.class_labels, favourable);
+    let (mut reason_texts, mut features, mut contributions) = (Vec::new(), Vec::new(), Vec::new());
+    for row in attr.per_feature(&widths) {
+        let chosen = principal(&row, toward, n);
+        reason_texts.push(names_json(&chosen.iter().map(|&(f, _)| texts[f].clone()).collect::<Vec<_>>()));
+        features.push(names_json(&chosen.iter().map(|&(f, _)| names[f].clone()).collect::<Vec<_>>()));
+        contributions.push(serde_json::to_string(&chosen.iter().map(|&(_, c)| c).collect::<Vec<_>>()).unwrap_or_else(|_| "[]".into()));
+    }
+    let columns: Vec<(String, ArrayRef)> = vec![
+        (schema::REASONS.into(), Arc::new(StringArray::from(reason_texts))),
+        (schema::REASON_FEATURES.into(), Arc::new(StringArray::from(features))),
+        (schema::REASON_CONTRIBUTIONS.into(), Arc::new(StringArray::from(contributions))),
+        (schema::REASONS_GAP.into(), Arc::new(Float64Array::from(attr.gap.clone()))),
+    ];
+    let worst = attr.gap.iter().copied().fold(0.0, f64::max);
+    let refined = attr.steps.iter().filter(|&&s| s > steps).count();
+    let explains = if record.task == Task::Regression { "the prediction" } else { "the log-odds" };
+    let meta = format!(
+        "integrated gradients of {explains} from the {} reference, {steps} midpoint steps (rows missing the completeness tolerance integrated again with 4 and 16 times as many); worst completeness gap {worst:e}",
+        choice.as_str()
+    );
+    let mut line = String::new();
+    let _ = writeln!(line, "reasons   up to {n} per row: {}", toward.describe(record.task, &record.class_labels, favourable));
+    let _ = writeln!(
+        line,
+        "          integrated gradients of {explains} from the training {} row, {steps} steps ({refined} rows again with more); worst completeness gap {} (tolerance {})",
+        if choice == ReferenceChoice::Median { "median" } else { "threshold" },
+        crate::format::sig(worst, 3),
+        crate::format::sig(sensitivity.attributions.tolerance, 3)
+    );
+    Ok((columns, meta, line))
 }
 
 pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions) -> Result<String> {

@@ -173,6 +173,7 @@ fn select_and_record(
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
     let importance = crate::analysis::importance::derive(prepared, &derived, &runs)?;
+    let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs)?;
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
@@ -183,6 +184,7 @@ fn select_and_record(
     if let Some(importance) = &importance {
         write_json(&layout.importance(), importance)?;
     }
+    write_json(&layout.sensitivity(), &sensitivity)?;
     let (git_commit, git_dirty) = git.clone();
     write_json(
         &layout.timing(),
@@ -287,6 +289,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let options = &TrainOptions { jobs: crate::threads::workers(options.jobs, planned_runs)?, ..options.clone() };
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
     crate::experiment::feasibility::require_calibration_rows(exp)?;
+    crate::experiment::feasibility::require_known_features(exp)?;
     let estimate = crate::experiment::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
     crate::experiment::feasibility::require(&estimate, crate::experiment::feasibility::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));

@@ -36,6 +36,30 @@ pub fn require_calibration_rows(exp: &Experiment) -> Result<()> {
     ))
 }
 
+/// Whether every feature `[reasons]` gives a text for and `[analysis] sensitive` lists is one of
+/// the model's features. Checked by `check` and before `train` writes anything.
+pub fn require_known_features(exp: &Experiment) -> Result<()> {
+    let m = &exp.manifest;
+    let known: Vec<&str> = exp.preprocessor.inputs.iter().map(|e| e.name()).collect();
+    let named = m
+        .reasons
+        .iter()
+        .flatten()
+        .map(|(f, _)| (format!("reasons.{f}"), f))
+        .chain(m.analysis.iter().flat_map(|a| a.sensitive.iter().map(|f| ("analysis.sensitive".to_string(), f))));
+    for (key, feature) in named {
+        if !known.contains(&feature.as_str()) {
+            return Err(crate::manifest::key_error(
+                &exp.manifest_path,
+                &key,
+                format!("names `{}`, which is not one of the model's features", crate::text::terminal_safe(feature)),
+                Some(format!("the features are: {}", known.join(", "))),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Bytes per trainable parameter in one worker: the engine's weights and gradients (f32), the
 /// optimizer's two moments (f64), the model's own copy, the copy handed over at start and at
 /// the end, the best epoch's snapshot and the stored tensors.

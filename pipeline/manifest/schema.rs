@@ -34,24 +34,69 @@ pub struct Manifest {
     /// What drives the model: the analyses' settings; absent: the defaults.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub analysis: Option<AnalysisSpec>,
+    /// `[reasons]`: the text a scored row's principal reason gives for each feature (a feature
+    /// with none keeps its column name).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reasons: Option<std::collections::BTreeMap<String, String>>,
 }
 
-/// `[analysis]`: permutation importance of each raw feature on the test rows.
+/// `[analysis]`: permutation importance of each raw feature on the test rows, the sensitivity
+/// table and curves, and the reference rows principal reasons are measured from. The keys added
+/// after `permutation_repeats` are optional, so a manifest without them keeps its canonical hash.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct AnalysisSpec {
     /// Permutations of each feature (each on its own bootstrap resample of the test rows).
     #[serde(default = "default_permutation_repeats")]
     pub permutation_repeats: usize,
+    /// Partial dependence and ICE curves for this many of the most important features (default 6).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub curve_features: Option<usize>,
+    /// Binary models: training rows scored at or just above the deployed threshold that the
+    /// threshold reference averages, at least (default 30).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reference_rows: Option<usize>,
+    /// Steps of the integrated-gradients path integral (midpoint rule; default 32).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub integration_steps: Option<usize>,
+    /// Features a reviewer listed as not to be used for decisions though they stay inputs (for
+    /// instance proxies); the card flags the model when it leans on one.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub sensitive: Vec<String>,
 }
 
 fn default_permutation_repeats() -> usize {
     20
 }
 
+/// Curves drawn by default: the six most important features.
+pub const DEFAULT_CURVE_FEATURES: usize = 6;
+/// Rows the threshold reference averages by default.
+pub const DEFAULT_REFERENCE_ROWS: usize = 30;
+/// Integrated-gradients steps by default.
+pub const DEFAULT_INTEGRATION_STEPS: usize = 32;
+
+impl AnalysisSpec {
+    pub fn curve_features(&self) -> usize {
+        self.curve_features.unwrap_or(DEFAULT_CURVE_FEATURES)
+    }
+    pub fn reference_rows(&self) -> usize {
+        self.reference_rows.unwrap_or(DEFAULT_REFERENCE_ROWS)
+    }
+    pub fn integration_steps(&self) -> usize {
+        self.integration_steps.unwrap_or(DEFAULT_INTEGRATION_STEPS)
+    }
+}
+
 impl Default for AnalysisSpec {
     fn default() -> Self {
-        AnalysisSpec { permutation_repeats: default_permutation_repeats() }
+        AnalysisSpec {
+            permutation_repeats: default_permutation_repeats(),
+            curve_features: None,
+            reference_rows: None,
+            integration_steps: None,
+            sensitive: Vec::new(),
+        }
     }
 }
 

@@ -265,6 +265,21 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
         c.check((2..=1000).contains(&a.permutation_repeats), "analysis.permutation_repeats", || {
             format!("must be from 2 to 1000 (an interval needs repeats), got {}", a.permutation_repeats)
         });
+        if let Some(n) = a.curve_features {
+            c.check((1..=50).contains(&n), "analysis.curve_features", || format!("must be from 1 to 50, got {n}"));
+        }
+        if let Some(n) = a.reference_rows {
+            c.check((1..=1_000_000).contains(&n), "analysis.reference_rows", || format!("must be from 1 to 1000000, got {n}"));
+        }
+        if let Some(n) = a.integration_steps {
+            c.check((4..=4096).contains(&n), "analysis.integration_steps", || format!("must be from 4 to 4096, got {n}"));
+        }
+        for name in &a.sensitive {
+            c.check(!name.trim().is_empty(), "analysis.sensitive", || "names a feature; an empty name was given".into());
+        }
+    }
+    for (feature, text) in m.reasons.iter().flatten() {
+        c.check(!text.trim().is_empty(), &format!("reasons.{feature}"), || "must be a reason text; it is empty".into());
     }
     c.0
 }

@@ -131,6 +131,16 @@ impl Sealed {
         }
     }
 
+    /// `sensitivity.json`, when the folder has one (layout 6).
+    pub(crate) fn sensitivity(&self) -> Result<Option<crate::analysis::sensitivity::SensitivityReport>> {
+        let path = self.layout.sensitivity();
+        if path.exists() {
+            Ok(Some(read_json(&path)?))
+        } else {
+            Ok(None)
+        }
+    }
+
     /// `fairness.json`, when the folder has one (layout 5 with group columns).
     pub(crate) fn fairness(&self) -> Result<Option<crate::analysis::fairness::FairnessReport>> {
         let path = self.layout.fairness();
@@ -173,6 +183,8 @@ pub(crate) struct StoredResults {
     pub fairness: Option<crate::analysis::fairness::FairnessReport>,
     /// `importance.json` (layout 5).
     pub importance: Option<crate::analysis::importance::ImportanceReport>,
+    /// `sensitivity.json` (layout 6).
+    pub sensitivity: Option<crate::analysis::sensitivity::SensitivityReport>,
 }
 
 impl StoredResults {
@@ -193,6 +205,7 @@ impl StoredResults {
             preprocessor: read_json(&layout.preprocessor())?,
             fairness: if layout.fairness().exists() { Some(read_json(&layout.fairness())?) } else { None },
             importance: if layout.importance().exists() { Some(read_json(&layout.importance())?) } else { None },
+            sensitivity: if layout.sensitivity().exists() { Some(read_json(&layout.sensitivity())?) } else { None },
             plan,
             runs,
         })

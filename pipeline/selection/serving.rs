@@ -37,6 +37,16 @@ impl Deployed {
         Ok(Deployed { members })
     }
 
+    /// The training target's standard deviation (regression), the unit of the prediction's scaling.
+    pub(crate) fn target_std(&self) -> Option<f64> {
+        self.members[0].0.scaling.map(|s| s.std)
+    }
+
+    /// Each member's network (one for a single run), without its calibration map.
+    pub(crate) fn networks(&mut self) -> impl Iterator<Item = &mut ScoringModel> {
+        self.members.iter_mut().map(|(m, _)| m)
+    }
+
     pub(crate) fn head(&self) -> Head {
         self.members[0].0.head
     }

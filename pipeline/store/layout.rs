@@ -13,11 +13,12 @@ use crate::error::{Error, Result};
 /// the records of place and machine (`location.json`, each run's `environment.json`, listed in
 /// `records.sha256` with the card and figures, outside the results digest), stores the test
 /// split's predictions (`test-predictions.csv`) and the declared decision, and admits attached
-/// records (`reviews/`, `monitoring/`).
-pub const FORMAT_VERSION: u32 = 5;
+/// records (`reviews/`, `monitoring/`). Version 5 added calibration, `fairness.json` and
+/// `importance.json`; version 6 adds `sensitivity.json`.
+pub const FORMAT_VERSION: u32 = 6;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -82,6 +83,10 @@ impl Layout {
     /// Permutation importance of each raw feature (layout 5).
     pub fn importance(&self) -> PathBuf {
         self.root.join("importance.json")
+    }
+    /// Reference rows, the sensitivity table and integrated gradients of the test rows (layout 6).
+    pub fn sensitivity(&self) -> PathBuf {
+        self.root.join("sensitivity.json")
     }
     pub fn timing(&self) -> PathBuf {
         self.root.join("timing.json")

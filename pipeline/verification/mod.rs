@@ -76,6 +76,8 @@ pub(crate) enum SelectionCheck {
         fairness: bool,
         /// `importance.json` re-derived too (layout 5).
         importance: bool,
+        /// `sensitivity.json` re-derived too (layout 6).
+        sensitivity: bool,
     },
     /// What differs.
     Differs(String),
@@ -362,15 +364,35 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
                 (Ok(_), Ok(fresh)) if fresh != stored_importance => SelectionCheck::Differs(
                     "importance.json does not match the permutation importance re-derived from the deployed model".into(),
                 ),
+                (Ok(_), Ok(_)) if sealed.layout_version >= crate::analysis::sensitivity::SENSITIVITY_FROM => {
+                    match (sealed.sensitivity()?, crate::analysis::sensitivity::derive(&prepared, &derived, runs)) {
+                        (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
+                        (stored_sensitivity, Ok(fresh)) if stored_sensitivity.as_ref() != Some(&fresh) => SelectionCheck::Differs(
+                            "sensitivity.json does not match the reference rows, sensitivity table and integrated gradients re-derived from the deployed model".into(),
+                        ),
+                        (_, Ok(_)) => SelectionCheck::Matches {
+                            test_predictions: stored_test_predictions.is_some(),
+                            fairness: stored.is_some(),
+                            importance: stored_importance.is_some(),
+                            sensitivity: true,
+                        },
+                    }
+                }
                 (Ok(_), Ok(_)) => SelectionCheck::Matches {
                     test_predictions: stored_test_predictions.is_some(),
                     fairness: stored.is_some(),
                     importance: stored_importance.is_some(),
+                    sensitivity: false,
                 },
                 (Err(e), _) | (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
             }
         }
-        Ok(_) => SelectionCheck::Matches { test_predictions: stored_test_predictions.is_some(), fairness: false, importance: false },
+        Ok(_) => SelectionCheck::Matches {
+            test_predictions: stored_test_predictions.is_some(),
+            fairness: false,
+            importance: false,
+            sensitivity: false,
+        },
         Err(e) => SelectionCheck::CannotDerive(e.to_string()),
     };
     let card = match crate::card::render(layout, None, &digest) {

@@ -7,6 +7,7 @@
 //! Rules live by family (`data`, `fit`, `evaluation`, `groups`); `RULES` lists them in the card's order.
 
 pub(crate) mod data;
+pub(crate) mod drivers;
 pub(crate) mod evaluation;
 pub(crate) mod finding;
 pub(crate) mod fit;
@@ -16,6 +17,7 @@ pub(crate) use finding::*;
 
 use crate::card::evidence::Evidence;
 use data::*;
+use drivers::*;
 use evaluation::*;
 use fit::*;
 use groups::*;
@@ -38,6 +40,8 @@ pub(crate) const RULES: &[(&str, Rule)] = &[
     ("adverse_impact", adverse_impact),
     ("error_rate_gap", error_rate_gap),
     ("group_calibration", group_calibration),
+    ("leans_on_sensitive_feature", leans_on_sensitive_feature),
+    ("sharp_sensitivity", sharp_sensitivity),
     ("many_missing_values", many_missing_values),
     ("rare_levels", rare_levels),
     ("constant_on_training_rows", constant_on_training_rows),
@@ -76,6 +80,9 @@ mod tests {
             test_ece_lower: Some(0.01),
             interval_coverage: None,
             fairness: None,
+            importance: None,
+            sensitivity: None,
+            sensitive: Vec::new(),
             chance: Some(("roc_auc".into(), 0.84, 0.82, 0.86, 0.5)),
             test_rows: 4000,
             test_smallest_class: Some(("yes".into(), 1200)),

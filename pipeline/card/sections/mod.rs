@@ -10,3 +10,4 @@ pub(crate) mod groups;
 pub(crate) mod importance;
 pub(crate) mod provenance;
 pub(crate) mod results;
+pub(crate) mod sensitivity;

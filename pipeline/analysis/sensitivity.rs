@@ -1,0 +1,139 @@
+//! `sensitivity.json` (layout 6): what moves the deployed model's output, stored as evidence and
+//! re-derived by `verify`: the reference rows principal reasons are measured from
+//! (`reference.rs`), the sensitivity table (`shifts.rs`), and integrated gradients of every test
+//! row from the training median row (`attribution.rs`): how often each feature is among a row's
+//! principal reasons, its mean contribution's size, and the worst completeness gap met.
+
+use serde::{Deserialize, Serialize};
+
+use super::attribution::COMPLETENESS_TOLERANCE;
+use super::reasons::{principal, Toward, DEFAULT_REASONS};
+use super::reference::{indicator_inputs, median_row, threshold_row, References};
+use super::shifts::FeatureShifts;
+use crate::error::{Error, Result};
+use crate::manifest::Task;
+use crate::selection::serving::Deployed;
+
+/// The first results layout with `sensitivity.json`.
+pub(crate) const SENSITIVITY_FROM: u32 = 6;
+
+/// One feature's integrated gradients over the test rows.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct FeatureAttribution {
+    pub feature: String,
+    /// Mean |contribution| over the test rows, in the explained output's units.
+    pub mean_size: f64,
+    /// Share of test rows that give the feature as one of their principal reasons.
+    pub reason_share: f64,
+}
+
+/// Integrated gradients of the test rows from the median reference.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct TestAttributions {
+    /// What the contributions explain: `log-odds` or `prediction` (target units).
+    pub explains: String,
+    pub steps: usize,
+    pub tolerance: f64,
+    /// Largest |sum of a row's contributions - (f(x) - f(reference))| over the test rows.
+    pub worst_gap: f64,
+    /// Rows integrated again with more steps to meet the tolerance, and rows that still miss it.
+    pub refined_rows: usize,
+    pub rows_over_tolerance: usize,
+    /// Reasons per row counted in `reason_share`.
+    pub reasons: usize,
+    pub toward: String,
+    /// Largest mean size first.
+    pub features: Vec<FeatureAttribution>,
+}
+
+/// `sensitivity.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct SensitivityReport {
+    pub references: References,
+    /// The unit of a regression model's changes: the training target's standard deviation.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub target_std: Option<f64>,
+    pub shifts: Vec<FeatureShifts>,
+    pub attributions: TestAttributions,
+}
+
+/// The explained class of each row: the most probable under `outputs` (multiclass), else 0.
+pub(crate) fn explained_classes(task: Task, outputs: &[f64], k: usize) -> Vec<usize> {
+    match task {
+        Task::Multiclass => outputs.chunks_exact(k).map(crate::metrics::classification::argmax).collect(),
+        _ => vec![0; outputs.len() / k.max(1)],
+    }
+}
+
+/// The analysis of a derived selection, as `train` stores it and `verify` re-derives it.
+pub(crate) fn derive(
+    prepared: &crate::experiment::prepared::Prepared,
+    derived: &crate::selection::Derived,
+    runs: &[crate::store::run::StoredRun],
+) -> Result<SensitivityReport> {
+    let exp = &prepared.exp;
+    let m = &exp.manifest;
+    let task = m.data.task;
+    let analysis = m.analysis.clone().unwrap_or_default();
+    let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.test])?.into_iter();
+    let (Some((train_x, _)), Some((test_x, _))) = (matrices.next(), matrices.next()) else {
+        return Err(Error::Internal("two row lists gave fewer matrices".into()));
+    };
+    let mut model = Deployed::load(&derived.selection, runs)?;
+    let k = model.head().values_per_row();
+    let inputs = &exp.preprocessor.inputs;
+    let median = median_row(&train_x, &indicator_inputs(inputs));
+    let threshold = match task {
+        Task::Binary => {
+            let t = derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value;
+            let scores: Vec<f64> = model.score(&train_x)?.chunks_exact(k).map(|r| r[1]).collect();
+            Some(threshold_row(&train_x, &scores, t, analysis.reference_rows()))
+        }
+        _ => None,
+    };
+    let classes = explained_classes(task, &derived.test_outputs, k);
+    let shifts = super::shifts::table(&mut model, task, inputs, &test_x, &classes)?;
+    let steps = analysis.integration_steps();
+    let attr = super::attribution::deployed(&mut model, &test_x, &median, &classes, steps)?;
+    let widths: Vec<usize> = inputs.iter().map(|e| e.width()).collect();
+    let per_feature = attr.per_feature(&widths);
+    let labels: &[String] = match &exp.target {
+        crate::data::roles::Target::Classes { labels, .. } => labels,
+        crate::data::roles::Target::Values(_) => &[],
+    };
+    let favourable = m.decision.as_ref().and_then(|d| d.favourable.as_ref());
+    let toward = Toward::of(task, labels, favourable);
+    let rows = per_feature.len().max(1) as f64;
+    let mut features: Vec<FeatureAttribution> = inputs
+        .iter()
+        .enumerate()
+        .map(|(f, e)| FeatureAttribution {
+            feature: e.name().to_string(),
+            mean_size: per_feature.iter().map(|r| r[f].abs()).sum::<f64>() / rows,
+            reason_share: per_feature.iter().filter(|r| principal(r, toward, DEFAULT_REASONS).iter().any(|&(g, _)| g == f)).count() as f64
+                / rows,
+        })
+        .collect();
+    features.sort_by(|a, b| b.mean_size.total_cmp(&a.mean_size));
+    let tolerance = match task {
+        Task::Regression => COMPLETENESS_TOLERANCE * model.target_std().unwrap_or(1.0),
+        _ => COMPLETENESS_TOLERANCE,
+    };
+    let attributions = TestAttributions {
+        explains: if task == Task::Regression { "prediction".into() } else { "log-odds".into() },
+        steps,
+        tolerance,
+        worst_gap: attr.gap.iter().copied().fold(0.0, f64::max),
+        refined_rows: attr.steps.iter().filter(|&&s| s > steps).count(),
+        rows_over_tolerance: attr.gap.iter().filter(|&&g| g > tolerance).count(),
+        reasons: DEFAULT_REASONS,
+        toward: toward.describe(task, labels, favourable),
+        features,
+    };
+    Ok(SensitivityReport {
+        references: References { median, threshold },
+        target_std: if task == Task::Regression { model.target_std() } else { None },
+        shifts,
+        attributions,
+    })
+}
