@@ -47,6 +47,8 @@ pub const REASONS: &str = "reasons";
 pub const REASON_FEATURES: &str = "reason_features";
 pub const REASON_CONTRIBUTIONS: &str = "reason_contributions";
 pub const REASONS_GAP: &str = "reasons_gap";
+/// With `--reasons`: f(row) - f(reference), the move the contributions split.
+pub const REASONS_TOTAL: &str = "reasons_total";
 
 /// Names reserved for coming capabilities (none today).
 pub const RESERVED: &[&str] = &[];
@@ -80,6 +82,7 @@ pub const FIXED_NAMES: &[&str] = &[
     REASON_FEATURES,
     REASON_CONTRIBUTIONS,
     REASONS_GAP,
+    REASONS_TOTAL,
 ];
 
 #[cfg(test)]

@@ -169,7 +169,7 @@ fn predict_writes_the_documented_scoring_schema_with_the_deployed_decision() {
         .collect();
     let selection: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(folder.join("selection.json")).unwrap()).unwrap();
     let digest = tabcard::fingerprint::file_sha256(&folder.join("integrity.sha256")).unwrap();
-    assert_eq!(meta["tabcard.scoring_schema"], "2");
+    assert_eq!(meta["tabcard.scoring_schema"], "3");
     assert_eq!(meta["tabcard.model_id"], selection["selected_run"].as_str().unwrap());
     assert_eq!(meta["tabcard.results_digest"], digest);
     assert!(folder.file_name().unwrap().to_str().unwrap().starts_with(&meta["tabcard.experiment"][..16]));

@@ -6,7 +6,7 @@
 //! probability: the logit of a binary head, log p_c - log(1 - p_c) of class c for a multiclass
 //! one, and the prediction in target units for regression. Completeness (the attributions sum to
 //! f(x) - f(x')) holds for the exact integral; a row whose midpoint sum misses it by more than the
-//! tolerance is integrated again with four and then sixteen times the steps, and the gap left is
+//! tolerance is integrated again with 4, 16 and then 64 times the steps, and the gap left is
 //! reported per row. Nothing here is random.
 
 use crate::data::prep::Matrix;
@@ -18,9 +18,19 @@ use crate::training::Head;
 /// more steps: 0.01 in log-odds (about a quarter of a percentage point of probability near 0.5),
 /// or 0.01 training standard deviations of the target for regression.
 pub(crate) const COMPLETENESS_TOLERANCE: f64 = 0.01;
+/// ... or this share of the row's move |f(x) - f(x')|, whichever is larger: a ReLU network's
+/// gradient jumps where a unit switches, and a long path over many switches needs a tolerance
+/// that grows with it.
+pub(crate) const RELATIVE_TOLERANCE: f64 = 0.001;
 
-/// Refinements tried on a row that misses the tolerance: the steps times 4, then times 16.
-const REFINEMENTS: [usize; 2] = [4, 16];
+/// The completeness tolerance of a row whose explained output moves by `difference`; `base` is
+/// [`COMPLETENESS_TOLERANCE`] in the explained output's units.
+pub(crate) fn row_tolerance(base: f64, difference: f64) -> f64 {
+    base.max(RELATIVE_TOLERANCE * difference.abs())
+}
+
+/// Refinements tried on a row that misses the tolerance: the steps times 4, 16, then 64.
+const REFINEMENTS: [usize; 3] = [4, 16, 64];
 
 /// Points integrated per engine call (rows x steps), bounding the memory of one call.
 const POINTS_PER_CALL: usize = 8192;
@@ -183,7 +193,7 @@ pub(crate) fn integrated_gradients(
         _ => COMPLETENESS_TOLERANCE,
     };
     for factor in REFINEMENTS {
-        let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r] > tolerance).collect();
+        let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r] > row_tolerance(tolerance, difference[r])).collect();
         if missed.is_empty() {
             break;
         }

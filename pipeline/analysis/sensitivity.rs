@@ -6,7 +6,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::attribution::COMPLETENESS_TOLERANCE;
+use super::attribution::{row_tolerance, COMPLETENESS_TOLERANCE, RELATIVE_TOLERANCE};
 use super::reasons::{principal, Toward, DEFAULT_REASONS};
 use super::reference::{indicator_inputs, median_row, threshold_row, References};
 use super::shifts::FeatureShifts;
@@ -33,7 +33,9 @@ pub(crate) struct TestAttributions {
     /// What the contributions explain: `log-odds` or `prediction` (target units).
     pub explains: String,
     pub steps: usize,
+    /// A row's tolerance: the larger of this and `relative_tolerance` times its move.
     pub tolerance: f64,
+    pub relative_tolerance: f64,
     /// Largest |sum of a row's contributions - (f(x) - f(reference))| over the test rows.
     pub worst_gap: f64,
     /// Rows integrated again with more steps to meet the tolerance, and rows that still miss it.
@@ -123,9 +125,10 @@ pub(crate) fn derive(
         explains: if task == Task::Regression { "prediction".into() } else { "log-odds".into() },
         steps,
         tolerance,
+        relative_tolerance: RELATIVE_TOLERANCE,
         worst_gap: attr.gap.iter().copied().fold(0.0, f64::max),
         refined_rows: attr.steps.iter().filter(|&&s| s > steps).count(),
-        rows_over_tolerance: attr.gap.iter().filter(|&&g| g > tolerance).count(),
+        rows_over_tolerance: attr.gap.iter().zip(&attr.difference).filter(|&(&g, &d)| g > row_tolerance(tolerance, d)).count(),
         reasons: DEFAULT_REASONS,
         toward: toward.describe(task, labels, favourable),
         features,

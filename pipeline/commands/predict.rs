@@ -399,6 +399,9 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     Ok(Scored { columns, provenance, report: out })
 }
 
+/// Named output columns.
+type Columns = Vec<(String, ArrayRef)>;
+
 /// The principal-reason columns for every row of `x` (see [`crate::output_schema::REASONS`]), the
 /// metadata text saying how they were computed, and the report's lines. `model` is the scored
 /// run, reused when it is the only member.
@@ -412,7 +415,7 @@ fn reason_columns(
     classes: &[usize],
     n: usize,
     choice: ReferenceChoice,
-) -> Result<(Vec<(String, ArrayRef)>, String, String)> {
+) -> Result<(Columns, String, String)> {
     use crate::analysis::attribution::{integrated_gradients, mean, Explained};
     use crate::analysis::reasons::{principal, Toward};
     use crate::analysis::reference::ThresholdReference;
@@ -465,27 +468,29 @@ fn reason_columns(
         features.push(names_json(&chosen.iter().map(|&(f, _)| names[f].clone()).collect::<Vec<_>>()));
         contributions.push(serde_json::to_string(&chosen.iter().map(|&(_, c)| c).collect::<Vec<_>>()).unwrap_or_else(|_| "[]".into()));
     }
-    let columns: Vec<(String, ArrayRef)> = vec![
+    let columns: Columns = vec![
         (schema::REASONS.into(), Arc::new(StringArray::from(reason_texts))),
         (schema::REASON_FEATURES.into(), Arc::new(StringArray::from(features))),
         (schema::REASON_CONTRIBUTIONS.into(), Arc::new(StringArray::from(contributions))),
         (schema::REASONS_GAP.into(), Arc::new(Float64Array::from(attr.gap.clone()))),
+        (schema::REASONS_TOTAL.into(), Arc::new(Float64Array::from(attr.difference.clone()))),
     ];
     let worst = attr.gap.iter().copied().fold(0.0, f64::max);
     let refined = attr.steps.iter().filter(|&&s| s > steps).count();
     let explains = if record.task == Task::Regression { "the prediction" } else { "the log-odds" };
     let meta = format!(
-        "integrated gradients of {explains} from the {} reference, {steps} midpoint steps (rows missing the completeness tolerance integrated again with 4 and 16 times as many); worst completeness gap {worst:e}",
+        "integrated gradients of {explains} from the {} reference, {steps} midpoint steps (rows missing the completeness tolerance integrated again with 4, 16 and 64 times as many); worst completeness gap {worst:e}",
         choice.as_str()
     );
     let mut line = String::new();
     let _ = writeln!(line, "reasons   up to {n} per row: {}", toward.describe(record.task, &record.class_labels, favourable));
     let _ = writeln!(
         line,
-        "          integrated gradients of {explains} from the training {} row, {steps} steps ({refined} rows again with more); worst completeness gap {} (tolerance {})",
+        "          integrated gradients of {explains} from the training {} row, {steps} steps ({refined} rows again with more); worst completeness gap {} (tolerance {} or {}% of the row's move, whichever is larger)",
         if choice == ReferenceChoice::Median { "median" } else { "threshold" },
         crate::format::sig(worst, 3),
-        crate::format::sig(sensitivity.attributions.tolerance, 3)
+        crate::format::sig(sensitivity.attributions.tolerance, 3),
+        crate::format::sig(100.0 * sensitivity.attributions.relative_tolerance, 3)
     );
     Ok((columns, meta, line))
 }

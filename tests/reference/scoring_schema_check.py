@@ -1,5 +1,5 @@
 """Reads a `tabcard predict` output with pyarrow (an independent Parquet reader) and checks it
-against the scoring-output schema, version 2, as README.md documents it: column names in order,
+against the scoring-output schema, version 3, as README.md documents it: column names in order,
 Arrow types, the key-value metadata, decisions at the deployed threshold, calibrated probabilities
 equal to the stored test predictions (lease demo), and interval bounds at the prediction -+ the
 stored half-width (greenhouse demo). Usage: scoring_schema_check.py scored.parquet RESULTS_FOLDER
@@ -46,7 +46,7 @@ file_meta = pq.ParquetFile(scored).metadata.metadata or {}
 meta = {k.decode(): v.decode() for k, v in file_meta.items() if k.startswith(b"tabcard.")}
 selection = json.loads((folder / "selection.json").read_text())
 digest = hashlib.sha256((folder / "integrity.sha256").read_bytes()).hexdigest()
-assert meta["tabcard.scoring_schema"] == "2", meta
+assert meta["tabcard.scoring_schema"] == "3", meta
 assert meta["tabcard.model_id"] == selection["selected_run"], meta
 assert meta["tabcard.results_digest"] == digest, meta
 rows = table.to_pylist()
@@ -64,4 +64,4 @@ else:
     # The stored test predictions are the deployed (calibrated) probabilities: predict gives them.
     assert all(rows[int(s[0])]["p_true"] == float(s[2]) for s in stored)
     what = f"decisions at {threshold}, {selection.get('calibration', {}).get('map', {}).get('method', 'no')} calibration"
-print(f"scoring schema v2 read by pyarrow: {len(got)} columns, {len(rows)} rows, metadata as documented, {what}, test rows equal to test-predictions.csv")
+print(f"scoring schema v3 read by pyarrow: {len(got)} columns, {len(rows)} rows, metadata as documented, {what}, test rows equal to test-predictions.csv")

@@ -24,7 +24,6 @@ pub(crate) fn sensitivity(st: &StoredResults) -> Sensitivity {
         return Sensitivity { summary: String::new(), attributions: Vec::new(), table_note: String::new(), shifts: Vec::new() };
     };
     let a = &s.attributions;
-    let unit = if a.explains == "prediction" { "target units" } else { "log-odds" };
     let threshold = match &s.references.threshold {
         Some(ThresholdReference::Available { threshold, rows, highest_score, .. }) => format!(
             " `predict --reasons --reference threshold` measures from the mean of the {rows} training rows scored at or just above the deployed threshold {} (up to {}; the comparison US Regulation B's official comment 9(b)(2)-5 describes).",
@@ -37,16 +36,18 @@ pub(crate) fn sensitivity(st: &StoredResults) -> Sensitivity {
         None => String::new(),
     };
     let summary = format!(
-        "Integrated gradients (Sundararajan, Taly & Yan 2017) split each test row's move in {} from the training median row (numeric inputs at their training medians, categories at their training shares) into one contribution per feature, computed on the network's own exact gradients by the midpoint rule with {} steps; a row whose contributions miss the completeness check (they must add up to the row's move) by more than {} is integrated again with 4 and 16 times the steps. Over the {} test rows the worst gap left is {} ({} rows integrated again, {} still over). The share column counts the rows that give the feature among their {} principal reasons: {}. Contributions describe this model's arithmetic around one reference, not causes, and they change with the reference.{}",
+        "Integrated gradients (Sundararajan, Taly & Yan 2017) split each test row's move in {} from the training median row (numeric inputs at their training medians, categories at their training shares) into one contribution per feature, computed on the network's own exact gradients by the midpoint rule with {} steps; a row whose contributions miss the completeness check (they must add up to the row's move) by more than {} or {}% of the move, whichever is larger, is integrated again with 4, 16 and 64 times the steps. Over the {} test rows the worst gap left is {} ({} rows integrated again, {} still over). The share column counts the rows that give the feature among their {} principal reasons: {}. Sizes are in {}. Contributions describe this model's arithmetic around one reference, not causes, and they change with the reference.{}",
         if a.explains == "prediction" { "the prediction" } else { "log-odds (before any calibration map)" },
         a.steps,
         sig(a.tolerance, 3),
+        sig(100.0 * a.relative_tolerance, 3),
         st.selection.test.rows,
         sig(a.worst_gap, 4),
         a.refined_rows,
         a.rows_over_tolerance,
         a.reasons,
         md(&a.toward),
+        if a.explains == "prediction" { "target units" } else { "log-odds" },
         threshold
     );
     let attributions =
