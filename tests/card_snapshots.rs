@@ -1,4 +1,5 @@
-//! The model cards of the two demo experiments, reviewed and committed under tests/snapshots/:
+//! The model cards of the two demo experiments and of one open table (scikit-learn's breast cancer
+//! diagnosis, tests/data/open/breast-cancer.toml), reviewed and committed under tests/snapshots/:
 //! a change to any card wording, figure or rule shows up here as a diff to review. Lines that
 //! depend on the machine, the time or the checkout (training time and workers, results digest,
 //! repository commit, the numerics environment rows) are masked on both sides.
@@ -33,10 +34,13 @@ fn masked(card: &str) -> String {
 }
 
 fn check(experiment: &str) {
+    check_manifest(experiment, &format!("experiments/{experiment}.toml"));
+}
+
+fn check_manifest(experiment: &str, manifest: &str) {
     let dir = tempfile::tempdir().unwrap();
     let results = dir.path().join("results");
-    let manifest = format!("experiments/{experiment}.toml");
-    let out = run_in(&repo_path(""), &["train", &manifest, "--results", results.to_str().unwrap(), "--jobs", "2"]);
+    let out = run_in(&repo_path(""), &["train", manifest, "--results", results.to_str().unwrap(), "--jobs", "2"]);
     assert!(out.status.success(), "{}", stderr(&out));
     let card = std::fs::read_to_string(experiment_folder(&results).unwrap().join("card.md")).unwrap();
     let snapshot = repo_path(&format!("tests/snapshots/{experiment}.card.md"));
@@ -66,4 +70,9 @@ fn the_lease_demo_card_matches_its_reviewed_snapshot() {
 #[test]
 fn the_greenhouse_demo_card_matches_its_reviewed_snapshot() {
     check("greenhouse-yield");
+}
+
+#[test]
+fn the_open_breast_cancer_card_matches_its_reviewed_snapshot() {
+    check_manifest("breast-cancer", "tests/data/open/breast-cancer.toml");
 }

@@ -6,6 +6,7 @@
 //! sensitivity table, integrated gradients and principal reasons).
 
 pub(crate) mod attribution;
+pub(crate) mod curves;
 pub(crate) mod estimate;
 pub(crate) mod fairness;
 pub(crate) mod importance;

@@ -38,6 +38,8 @@ pub(crate) struct TestAttributions {
     pub relative_tolerance: f64,
     /// Largest |sum of a row's contributions - (f(x) - f(reference))| over the test rows.
     pub worst_gap: f64,
+    /// Largest estimated error of one feature's contribution over the test rows.
+    pub worst_estimate: f64,
     /// Rows integrated again with more steps to meet the tolerance, and rows that still miss it.
     pub refined_rows: usize,
     pub rows_over_tolerance: usize,
@@ -57,6 +59,8 @@ pub(crate) struct SensitivityReport {
     pub target_std: Option<f64>,
     pub shifts: Vec<FeatureShifts>,
     pub attributions: TestAttributions,
+    /// Partial dependence and ICE curves of the most important features.
+    pub curves: Vec<super::curves::Curve>,
 }
 
 /// The explained class of each row: the most probable under `outputs` (multiclass), else 0.
@@ -72,6 +76,7 @@ pub(crate) fn derive(
     prepared: &crate::experiment::prepared::Prepared,
     derived: &crate::selection::Derived,
     runs: &[crate::store::run::StoredRun],
+    importance: Option<&super::importance::ImportanceReport>,
 ) -> Result<SensitivityReport> {
     let exp = &prepared.exp;
     let m = &exp.manifest;
@@ -96,8 +101,8 @@ pub(crate) fn derive(
     let classes = explained_classes(task, &derived.test_outputs, k);
     let shifts = super::shifts::table(&mut model, task, inputs, &test_x, &classes)?;
     let steps = analysis.integration_steps();
-    let attr = super::attribution::deployed(&mut model, &test_x, &median, &classes, steps)?;
     let widths: Vec<usize> = inputs.iter().map(|e| e.width()).collect();
+    let attr = super::attribution::deployed(&mut model, &test_x, &median, &classes, &widths, steps)?;
     let per_feature = attr.per_feature(&widths);
     let labels: &[String] = match &exp.target {
         crate::data::roles::Target::Classes { labels, .. } => labels,
@@ -128,12 +133,33 @@ pub(crate) fn derive(
         relative_tolerance: RELATIVE_TOLERANCE,
         worst_gap: attr.gap.iter().copied().fold(0.0, f64::max),
         refined_rows: attr.steps.iter().filter(|&&s| s > steps).count(),
-        rows_over_tolerance: attr.gap.iter().zip(&attr.difference).filter(|&(&g, &d)| g > row_tolerance(tolerance, d)).count(),
+        rows_over_tolerance: (0..attr.gap.len())
+            .filter(|&r| attr.gap[r].max(attr.estimate[r]) > row_tolerance(tolerance, attr.difference[r]))
+            .count(),
+        worst_estimate: attr.estimate.iter().copied().fold(0.0, f64::max),
         reasons: DEFAULT_REASONS,
         toward: toward.describe(task, labels, favourable),
         features,
     };
+    // Curves for the most important features (permutation importance's order; input order when
+    // there is none).
+    let ranked: Vec<usize> = match importance {
+        Some(r) => r.features.iter().filter_map(|f| inputs.iter().position(|e| e.name() == f.feature)).collect(),
+        None => (0..inputs.len()).collect(),
+    };
+    let chosen: Vec<usize> = ranked.into_iter().take(analysis.curve_features()).collect();
+    let training_column = |name: &str| -> Result<super::curves::TrainingColumn> {
+        let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
+        let numeric = inputs.iter().any(|e| e.name() == name && matches!(e, crate::data::prep::InputEncoding::Numeric { .. }));
+        Ok(if numeric {
+            super::curves::TrainingColumn::Values(exp.splits.train.iter().filter_map(|&r| col.number(r)).collect())
+        } else {
+            super::curves::TrainingColumn::Labels(exp.splits.train.iter().map(|&r| col.label(r)).collect())
+        })
+    };
+    let curves = super::curves::curves(&mut model, task, inputs, &test_x, &chosen, &training_column)?;
     Ok(SensitivityReport {
+        curves,
         references: References { median, threshold },
         target_std: if task == Task::Regression { model.target_std() } else { None },
         shifts,

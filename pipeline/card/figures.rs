@@ -39,6 +39,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             dashed: false,
             colour,
             marks: None,
+            background: false,
         });
         series.push(Series {
             name: format!("seed {} validation", r.record.seed),
@@ -47,6 +48,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             dashed: true,
             colour,
             marks: None,
+            background: false,
         });
     }
     let chart = Chart {
@@ -95,8 +97,24 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
         }
         let mut series = Vec::new();
         for (colour, (label, (val, sd, train))) in lines.into_iter().enumerate() {
-            series.push(Series { name: format!("{label} validation"), points: val, errors: Some(sd), dashed: false, colour, marks: None });
-            series.push(Series { name: format!("{label} train"), points: train, errors: None, dashed: true, colour, marks: None });
+            series.push(Series {
+                name: format!("{label} validation"),
+                points: val,
+                errors: Some(sd),
+                dashed: false,
+                colour,
+                marks: None,
+                background: false,
+            });
+            series.push(Series {
+                name: format!("{label} train"),
+                points: train,
+                errors: None,
+                dashed: true,
+                colour,
+                marks: None,
+                background: false,
+            });
         }
         let chart = Chart {
             title: format!("{m} across {key}"),
@@ -129,6 +147,7 @@ fn reliability_series(name: &str, table: &[ReliabilityBin], dashed: bool, colour
         errors: None,
         dashed,
         colour,
+        background: false,
         marks: Some(
             table
                 .iter()
@@ -182,4 +201,81 @@ fn reliability_figure(selection: &Selection, layout_version: u32) -> Option<(Str
         "accuracy against mean confidence in the bins ECE uses; marker area and label: rows; vertical line: 95% Wilson interval; dashed: perfect calibration".into(),
         chart.render(),
     ))
+}
+
+/// The file name of the `rank`-th curve figure (1-based): the rank keeps names of features that
+/// differ only in punctuation apart, and the feature's name, cut to 40 characters, keeps it legible.
+pub(crate) fn curve_figure_name(rank: usize, feature: &str) -> String {
+    let slug: String = feature.chars().take(40).map(|c| if c.is_ascii_alphanumeric() { c } else { '-' }).collect();
+    format!("curve-{rank}-{slug}.svg")
+}
+
+/// One figure per curve of `sensitivity.json`: the partial dependence (markers sized by the
+/// training rows each grid point stands for, labelled with their count) over pale ICE curves.
+pub(crate) fn curve_figures(
+    report: &crate::analysis::sensitivity::SensitivityReport,
+    task: crate::manifest::Task,
+    labels: &[String],
+) -> Figures {
+    let y_label = match task {
+        crate::manifest::Task::Binary => format!("probability of {}", labels.get(1).map(String::as_str).unwrap_or("the positive class")),
+        crate::manifest::Task::Multiclass => "class probability".to_string(),
+        crate::manifest::Task::Regression => "prediction".to_string(),
+    };
+    report
+        .curves
+        .iter()
+        .enumerate()
+        .map(|(rank, c)| {
+            let categorical = c.grid.is_empty();
+            let xs: Vec<f64> = if categorical { (0..c.levels.len()).map(|i| i as f64).collect() } else { c.grid.clone() };
+            let largest = c.training_rows.iter().copied().max().unwrap_or(1).max(1) as f64;
+            let mut series: Vec<Series> = c
+                .ice
+                .iter()
+                .zip(&c.ice_rows)
+                .map(|(ys, r)| Series {
+                    name: format!("test row {r}"),
+                    points: xs.iter().copied().zip(ys.iter().copied()).collect(),
+                    errors: None,
+                    dashed: false,
+                    colour: 7,
+                    marks: None,
+                    background: true,
+                })
+                .collect();
+            for (i, ys) in c.average.iter().enumerate() {
+                let name = if c.average.len() > 1 {
+                    format!("mean p({})", labels.get(i).map(String::as_str).unwrap_or("?"))
+                } else {
+                    "mean over test rows".to_string()
+                };
+                let marks = (i == 0).then(|| {
+                    ys.iter()
+                        .zip(&c.training_rows)
+                        .map(|(&y, &n)| Mark { weight: n as f64 / largest, lower: y, upper: y, label: format!("n={n}") })
+                        .collect()
+                });
+                series.push(Series {
+                    name,
+                    points: xs.iter().copied().zip(ys.iter().copied()).collect(),
+                    errors: None,
+                    dashed: false,
+                    colour: i,
+                    marks,
+                    background: false,
+                });
+            }
+            let chart = Chart {
+                title: format!("Partial dependence on {}", c.feature),
+                x_label: c.feature.clone(),
+                y_label: y_label.clone(),
+                series,
+                x_categories: categorical.then(|| c.levels.clone()),
+                diagonal: false,
+                fixed_unit_axes: false,
+            };
+            (curve_figure_name(rank + 1, &c.feature), format!("partial dependence of the {y_label} on {}", c.feature), chart.render())
+        })
+        .collect()
 }

@@ -82,7 +82,9 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         .into_iter()
         .map(|l| Limitation { finding: md_line(&sentence_case(&l.finding)), threshold: md_line(&l.threshold), ..l })
         .collect();
-    let figs = figures(&st.manifest, sel, &selected_runs, st.layout_version)?;
+    let mut figs = figures(&st.manifest, sel, &selected_runs, st.layout_version)?;
+    let curve_figs =
+        st.sensitivity.as_ref().map(|s| figures::curve_figures(s, st.manifest.data.task, &st.record.class_labels)).unwrap_or_default();
     let context = CardContext {
         about: about(&st.manifest),
         task: st.manifest.data.task.as_str().into(),
@@ -99,11 +101,12 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         calibration: calibration(&st),
         groups: groups(&st),
         importance: importance(&st),
-        sensitivity: sensitivity(&st),
+        sensitivity: sensitivity(&st, &curve_figs),
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),
     };
+    figs.extend(curve_figs);
     Ok((context, figs))
 }
 

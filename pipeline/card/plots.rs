@@ -15,6 +15,9 @@ pub(crate) struct Series {
     /// Per point, when given: a marker sized by its weight, a vertical interval and a label
     /// (reliability diagrams: rows per bin and the Wilson interval).
     pub marks: Option<Vec<Mark>>,
+    /// Drawn thin and pale, without point markers or a legend entry (ICE curves behind a
+    /// partial dependence).
+    pub background: bool,
 }
 
 /// How one point is drawn when its rows matter: `weight` in (0, 1] scales the marker's area.
@@ -184,6 +187,15 @@ impl Chart {
                 .filter(|p| p.0.is_finite() && p.1.is_finite())
                 .map(|p| format!("{},{}", f(sx(p.0)), f(sy(p.1))))
                 .collect();
+            if series.background {
+                let _ = writeln!(
+                    s,
+                    r#"<polyline class="series background" data-series="{}" points="{}" fill="none" stroke="{colour}" stroke-width="0.7" stroke-opacity="0.35"/>"#,
+                    xml(&series.name),
+                    pts.join(" ")
+                );
+                continue;
+            }
             let _ = writeln!(
                 s,
                 r#"<polyline class="series" data-series="{}" points="{}" fill="none" stroke="{colour}" stroke-width="1.8"{dash}/>"#,
@@ -227,6 +239,7 @@ impl Chart {
                     );
                 }
             }
+            let i = i - self.series[..i].iter().filter(|s| s.background).count();
             let ly = TOP + 14.0 + 18.0 * i as f64;
             let _ = writeln!(
                 s,

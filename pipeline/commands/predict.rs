@@ -450,11 +450,13 @@ fn reason_columns(
     if members.len() > 1 {
         networks = members.iter().map(|id| ScoringModel::from_stored(&folder.run(id)?)).collect::<Result<_>>()?;
     }
-    let parts =
-        networks.iter_mut().map(|m| integrated_gradients(m, explained, x, &reference, classes, steps)).collect::<Result<Vec<_>>>()?;
-    let attr = if parts.len() == 1 { parts.into_iter().next().unwrap_or_else(|| mean(Vec::new())) } else { mean(parts) };
     let preprocessor = folder.preprocessor()?;
     let widths: Vec<usize> = preprocessor.inputs.iter().map(InputEncoding::width).collect();
+    let parts = networks
+        .iter_mut()
+        .map(|m| integrated_gradients(m, explained, x, &reference, classes, &widths, steps))
+        .collect::<Result<Vec<_>>>()?;
+    let attr = if parts.len() == 1 { parts.into_iter().next().unwrap_or_else(|| mean(Vec::new())) } else { mean(parts) };
     let names: Vec<String> = preprocessor.inputs.iter().map(|e| e.name().to_string()).collect();
     let texts: Vec<String> =
         names.iter().map(|f| manifest.reasons.as_ref().and_then(|r| r.get(f)).cloned().unwrap_or_else(|| f.clone())).collect();

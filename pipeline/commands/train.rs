@@ -173,7 +173,7 @@ fn select_and_record(
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
     let importance = crate::analysis::importance::derive(prepared, &derived, &runs)?;
-    let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs)?;
+    let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs, importance.as_ref())?;
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;

@@ -56,7 +56,7 @@ pub struct AnalysisSpec {
     /// threshold reference averages, at least (default 30).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub reference_rows: Option<usize>,
-    /// Steps of the integrated-gradients path integral (midpoint rule; default 32).
+    /// Intervals of the integrated-gradients path integral (trapezoid rule, even; default 32).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub integration_steps: Option<usize>,
     /// Features a reviewer listed as not to be used for decisions though they stay inputs (for

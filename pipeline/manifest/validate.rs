@@ -272,7 +272,9 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
             c.check((1..=1_000_000).contains(&n), "analysis.reference_rows", || format!("must be from 1 to 1000000, got {n}"));
         }
         if let Some(n) = a.integration_steps {
-            c.check((4..=4096).contains(&n), "analysis.integration_steps", || format!("must be from 4 to 4096, got {n}"));
+            c.check((4..=4096).contains(&n) && n % 2 == 0, "analysis.integration_steps", || {
+                format!("must be an even number from 4 to 4096 (the error estimate uses every other point), got {n}")
+            });
         }
         for name in &a.sensitive {
             c.check(!name.trim().is_empty(), "analysis.sensitive", || "names a feature; an empty name was given".into());

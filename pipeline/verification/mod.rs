@@ -364,8 +364,8 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
                 (Ok(_), Ok(fresh)) if fresh != stored_importance => SelectionCheck::Differs(
                     "importance.json does not match the permutation importance re-derived from the deployed model".into(),
                 ),
-                (Ok(_), Ok(_)) if sealed.layout_version >= crate::analysis::sensitivity::SENSITIVITY_FROM => {
-                    match (sealed.sensitivity()?, crate::analysis::sensitivity::derive(&prepared, &derived, runs)) {
+                (Ok(_), Ok(fresh_importance)) if sealed.layout_version >= crate::analysis::sensitivity::SENSITIVITY_FROM => {
+                    match (sealed.sensitivity()?, crate::analysis::sensitivity::derive(&prepared, &derived, runs, fresh_importance.as_ref())) {
                         (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
                         (stored_sensitivity, Ok(fresh)) if stored_sensitivity.as_ref() != Some(&fresh) => SelectionCheck::Differs(
                             "sensitivity.json does not match the reference rows, sensitivity table and integrated gradients re-derived from the deployed model".into(),
