@@ -231,7 +231,7 @@ pub(crate) fn integrated_gradients(
         _ => COMPLETENESS_TOLERANCE,
     };
     for factor in REFINEMENTS {
-        let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r].max(2.0 * estimate[r]) > row_tolerance(tolerance, difference[r])).collect();
+        let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r].max(estimate[r]) > row_tolerance(tolerance, difference[r])).collect();
         if missed.is_empty() {
             break;
         }
