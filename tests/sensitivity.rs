@@ -207,3 +207,49 @@ fn leaning_on_a_listed_feature_fires_for_department_not_for_gender_at_berkeley()
         assert_eq!(card.contains("rule `leans_on_sensitive_feature`"), fires, "{listed}: {}", importance["features"]);
     }
 }
+
+/// `sharp_sensitivity` both ways on open tables: Fisher's iris (scikit-learn's `load_iris`,
+/// exported by tests/data/open/export_from_scikit_learn.py), whose versicolor and virginica are
+/// told apart by petal size over a narrow band (a tenth of a training standard deviation of
+/// petal length, 0.18 cm across all three species, is a large step near that band), fires it even
+/// for a small network with weight decay; the diabetes progression table (Efron et al. 2004, same
+/// exporter), a smooth regression, does not (0.25 target sd would need a local slope of 2.5 target
+/// sds per input sd).
+#[test]
+fn a_sharp_response_is_flagged_on_iris_and_not_on_diabetes() {
+    for (file, body, fires) in [
+        (
+            "iris.parquet",
+            "target = \"species\"\ntask = \"multiclass\"\n\n[model]\nhidden = [8]\n\n[training]\nepochs = 60\nbatch_size = 16\nlearning_rate = 0.01\nweight_decay = 0.05\n",
+            true,
+        ),
+        ("diabetes.parquet", "target = \"progression\"\ntask = \"regression\"\n\n[model]\nhidden = [32, 32]\n\n[training]\nepochs = 100\nbatch_size = 32\nlearning_rate = 0.003\n", false),
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::copy(repo_path(&format!("tests/data/open/{file}")), d.join(file)).unwrap();
+        let m = d.join("m.toml");
+        std::fs::write(
+            &m,
+            format!("[experiment]\nname = \"sharp\"\n\n[data]\npath = \"{file}\"\n{body}\n[selection]\nbaseline = false\nbootstrap = 100\n\n[sweep]\nseeds = [1]\n"),
+        )
+        .unwrap();
+        let folder = trained(d, &m);
+        let card = std::fs::read_to_string(folder.join("card.md")).unwrap();
+        let s = json(&folder.join("sensitivity.json"));
+        let tenth: Vec<(String, f64)> = s["shifts"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|f| {
+                let worst = f["effects"].as_array().unwrap()[2..].iter().map(|e| e["p90_size"].as_f64().unwrap()).fold(0.0, f64::max);
+                (f["feature"].as_str().unwrap().to_string(), worst)
+            })
+            .collect();
+        eprintln!("{file}: 90th percentile change under a 0.1 sd shift {tenth:?}");
+        assert_eq!(card.contains("rule `sharp_sensitivity`"), fires, "{file}: {tenth:?}");
+        if fires {
+            assert!(card.contains("Petal\\_length\\_cm") && card.contains("petal\\_width\\_cm"), "the petal measurements are named");
+        }
+    }
+}
