@@ -126,6 +126,24 @@ pub fn find(task: Task, name: &str) -> Option<&'static Metric> {
     table(task).iter().find(|m| m.name == name)
 }
 
+/// What a metric says, in plain words, for the card's readers (the definitions the metric
+/// modules implement).
+pub fn meaning(name: &str) -> Option<&'static str> {
+    Some(match name {
+        "roc_auc" => "ROC AUC is the chance that a randomly chosen positive row is scored above a randomly chosen negative one (0.5 is chance, 1 is perfect; for several classes, the mean of each class against the rest)",
+        "average_precision" => "average precision is the precision averaged over every recall level as the threshold falls, the area under the precision-recall curve (chance is the positive class's share)",
+        "log_loss" => "log loss is the mean of minus the natural log of the probability given to the true class; lower is better, 0 is perfect, and confident mistakes cost most",
+        "brier" => "the Brier score is the mean squared difference between the predicted probabilities and what happened (1 for the true class, 0 otherwise; binary: the positive class only); lower is better",
+        "ece" => "ECE (expected calibration error) is the gap between the predicted probability of the decided class and how often that class is right, averaged over 10 equal-width bins weighted by their rows; lower is better",
+        "accuracy" => "accuracy is the share of rows whose decided class is right",
+        "balanced_accuracy" => "balanced accuracy is the mean over classes of the share of each class's rows decided right, so a rare class counts as much as a common one",
+        "rmse" => "RMSE is the square root of the mean squared error, in the target's units; lower is better and large errors weigh most",
+        "mae" => "MAE is the mean absolute error, in the target's units; lower is better",
+        "r2" => "R² is the share of the target's variance on these rows that the predictions explain (0: no better than the mean; 1: perfect; it can be negative)",
+        _ => return None,
+    })
+}
+
 /// Metric names for a task, the default selection metric first.
 pub fn names(task: Task) -> Vec<&'static str> {
     table(task).iter().map(|m| m.name).collect()

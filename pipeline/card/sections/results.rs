@@ -40,6 +40,8 @@ pub(crate) struct Results {
     pub(crate) baseline_line: String,
     pub(crate) test_rows: Vec<Row>,
     pub(crate) test_rows_count: usize,
+    /// One plain-language line per metric the test table shows.
+    pub(crate) meanings: Vec<String>,
     pub(crate) test_classes: String,
     pub(crate) why_one_run: String,
     pub(crate) decisions: Vec<Decision>,
@@ -294,9 +296,23 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
         baseline_line,
         test_rows,
         test_rows_count: t.rows,
+        meanings: t
+            .metrics
+            .keys()
+            .filter_map(|k| crate::metrics::registry::meaning(k))
+            .map(|m| {
+                format!("{}.", upper_first(&m.replace("the target's units", &format!("the units of {}", md(&st.manifest.data.target)))))
+            })
+            .collect(),
         test_classes,
         why_one_run: why_these_figures(sel, m),
         decisions,
         group_rows,
     }
+}
+
+/// `s` with its first letter in upper case.
+fn upper_first(s: &str) -> String {
+    let mut c = s.chars();
+    c.next().map(|f| f.to_uppercase().chain(c).collect()).unwrap_or_default()
 }
