@@ -100,7 +100,7 @@ fn contributions_add_up_on_every_row_of_an_open_table_and_exactly_for_the_linear
     eprintln!("breast cancer: worst completeness gap over 569 rows {worst:e}");
     assert!(texts_used, "the [reasons] text appears where the feature is a reason");
 
-    // The linear baseline: the gradient is constant along the path, so the midpoint rule is exact
+    // The linear baseline: the gradient is constant along the path, so the trapezoid rule is exact
     // and the gap is f32 rounding only.
     let plan = json(&folder.join("plan.json"));
     let baseline_config = plan["configs"].as_array().unwrap().iter().find(|c| c["baseline"] == true).unwrap()["id"].clone();

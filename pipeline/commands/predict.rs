@@ -478,19 +478,21 @@ fn reason_columns(
         (schema::REASONS_TOTAL.into(), Arc::new(Float64Array::from(attr.difference.clone()))),
     ];
     let worst = attr.gap.iter().copied().fold(0.0, f64::max);
+    let worst_estimate = attr.estimate.iter().copied().fold(0.0, f64::max);
     let refined = attr.steps.iter().filter(|&&s| s > steps).count();
     let explains = if record.task == Task::Regression { "the prediction" } else { "the log-odds" };
     let meta = format!(
-        "integrated gradients of {explains} from the {} reference, {steps} midpoint steps (rows missing the completeness tolerance integrated again with 4, 16 and 64 times as many); worst completeness gap {worst:e}",
+        "integrated gradients of {explains} from the {} reference, trapezoid rule over {steps} intervals (rows missing the completeness or error-estimate tolerance integrated again with 4, 16 and 64 times as many); worst completeness gap {worst:e}, worst error estimate {worst_estimate:e}",
         choice.as_str()
     );
     let mut line = String::new();
     let _ = writeln!(line, "reasons   up to {n} per row: {}", toward.describe(record.task, &record.class_labels, favourable));
     let _ = writeln!(
         line,
-        "          integrated gradients of {explains} from the training {} row, {steps} steps ({refined} rows again with more); worst completeness gap {} (tolerance {} or {}% of the row's move, whichever is larger)",
+        "          integrated gradients of {explains} from the training {} row, {steps} intervals ({refined} rows again with more); worst completeness gap {}, worst error estimate {} (tolerance {} or {}% of the row's move, whichever is larger)",
         if choice == ReferenceChoice::Median { "median" } else { "threshold" },
         crate::format::sig(worst, 3),
+        crate::format::sig(worst_estimate, 3),
         crate::format::sig(sensitivity.attributions.tolerance, 3),
         crate::format::sig(100.0 * sensitivity.attributions.relative_tolerance, 3)
     );

@@ -15,7 +15,12 @@ selection.json):
   network (GELU, tanh, sigmoid); for a ReLU network at most 1% of them may lie beyond it (see the
   comment at the assertion).
 
+- with a fourth argument, predictions with reasons scored by the folder's linear baseline run (no
+  hidden layer): every contribution equals w . (x - x') over the feature's inputs exactly, up to
+  float32 rounding (1e-5 relative), for the first 200 rows.
+
 usage: explain_check.py <results folder> <table.parquet> <predictions with reasons.parquet>
+                        [<predictions with reasons by the linear baseline run.parquet>]
 """
 
 import json
@@ -280,3 +285,25 @@ print(
     f"{features_compared - len(beyond)} of {features_compared} contributions on {rows} rows equal a 10,000-step quadrature within the row tolerance "
     f"(largest difference {worst_feature:.2e}; the quadrature's own completeness gap {worst_sum:.1e})"
 )
+
+# 4. The linear baseline: integrated gradients are exactly w . (x - x').
+if len(sys.argv) > 4:
+    plan = load_json("plan.json")
+    baseline = next(c["id"] for c in plan["configs"] if c.get("baseline"))
+    run_id = next(r["id"] for r in plan["runs"] if r["config_id"] == baseline)
+    linear = safetensors(folder / "runs" / run_id / "weights.safetensors")
+    w = linear["output.weight"][:, 0] * (scaling["std"] if task == "regression" else 1.0)
+    scored_linear = pq.read_table(sys.argv[4])
+    assert pq.read_metadata(sys.argv[4]).metadata[b"tabcard.model_id"].decode() == run_id, "the fourth file was scored by the baseline run"
+    compared, worst_linear = 0, 0.0
+    for r in range(rows):
+        exact = (E[r] - reference) * w
+        per_feature = np.array([exact[s : s + w_].sum() for s, w_ in zip(starts, widths)])
+        listed = json.loads(scored_linear.column("reason_features")[r].as_py())
+        values = json.loads(scored_linear.column("reason_contributions")[r].as_py())
+        for f, v in zip(listed, values):
+            d = abs(per_feature[names.index(f)] - v)
+            assert d <= 1e-5 * max(1.0, abs(v)), f"linear baseline, row {r}, {f}: tabcard {v} vs w.(x - x') {per_feature[names.index(f)]}"
+            worst_linear = max(worst_linear, d)
+            compared += 1
+    print(f"explain check (linear baseline {run_id}): {compared} contributions on {rows} rows equal w.(x - x') within {worst_linear:.1e}")
