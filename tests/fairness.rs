@@ -93,24 +93,6 @@ fn the_four_fifths_rule_finds_the_berkeley_admissions_disparity() {
     assert!(out.status.success() && stdout(&out).contains("matches fairness.json"), "{}{}", stdout(&out), stderr(&out));
 }
 
-/// The cells of one CSV line (RFC 4180 quoting: a quoted cell may hold commas and "" for ").
-fn csv_cells(line: &str) -> Vec<String> {
-    let (mut cells, mut cell, mut quoted, mut chars) = (Vec::new(), String::new(), false, line.chars().peekable());
-    while let Some(c) = chars.next() {
-        match (c, quoted) {
-            ('"', true) if chars.peek() == Some(&'"') => {
-                cell.push('"');
-                chars.next();
-            }
-            ('"', _) => quoted = !quoted,
-            (',', false) => cells.push(std::mem::take(&mut cell)),
-            _ => cell.push(c),
-        }
-    }
-    cells.push(cell);
-    cells
-}
-
 #[test]
 fn predict_decides_at_the_deployed_threshold_or_a_stated_one_and_refuses_a_bad_one() {
     let dir = tempfile::tempdir().unwrap();
@@ -125,9 +107,7 @@ fn predict_decides_at_the_deployed_threshold_or_a_stated_one_and_refuses_a_bad_o
         args.extend_from_slice(extra);
         let o = run_in(d, &args);
         assert!(o.status.success(), "{}", stderr(&o));
-        let text = std::fs::read_to_string(d.join(out)).unwrap();
-        let header: Vec<String> = text.lines().next().unwrap().split(',').map(str::to_string).collect();
-        text.lines().skip(1).map(|l| header.iter().cloned().zip(csv_cells(l)).collect()).collect()
+        csv_rows(&d.join(out))
     };
     for (extra, threshold) in [(vec![], deployed), (vec!["--threshold", "0.3"], 0.3)] {
         let rows = scored(&extra, &format!("scored-{threshold}.csv"));

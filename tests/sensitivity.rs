@@ -15,36 +15,6 @@ fn json(path: &Path) -> Value {
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
 
-/// Every row of a predictions CSV as (column name -> cell).
-fn csv_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
-    let mut reader = csv_reader(path);
-    let header: Vec<String> = reader.next().unwrap();
-    reader.map(|cells| header.iter().cloned().zip(cells).collect()).collect()
-}
-
-/// A minimal CSV reader for tabcard's own output (quoted cells with doubled quotes).
-fn csv_reader(path: &Path) -> impl Iterator<Item = Vec<String>> {
-    let text = std::fs::read_to_string(path).unwrap();
-    let mut rows = Vec::new();
-    let (mut row, mut cell, mut quoted, mut chars) = (Vec::new(), String::new(), false, text.chars().peekable());
-    while let Some(c) = chars.next() {
-        match (c, quoted) {
-            ('"', true) if chars.peek() == Some(&'"') => {
-                cell.push('"');
-                chars.next();
-            }
-            ('"', _) => quoted = !quoted,
-            (',', false) => row.push(std::mem::take(&mut cell)),
-            ('\n', false) => {
-                row.push(std::mem::take(&mut cell));
-                rows.push(std::mem::take(&mut row));
-            }
-            (c, _) => cell.push(c),
-        }
-    }
-    rows.into_iter()
-}
-
 fn breast_cancer_experiment(d: &Path) -> std::path::PathBuf {
     std::fs::copy(repo_path("tests/data/open/breast_cancer.parquet"), d.join("breast_cancer.parquet")).unwrap();
     let m = d.join("m.toml");

@@ -56,6 +56,14 @@ impl Explained {
         }
     }
 
+    /// [`COMPLETENESS_TOLERANCE`] in the explained output's units.
+    pub(crate) fn tolerance(self) -> f64 {
+        match self {
+            Explained::Prediction { std } => COMPLETENESS_TOLERANCE * std,
+            _ => COMPLETENESS_TOLERANCE,
+        }
+    }
+
     /// The explained value of one row's raw outputs (class `c` for multiclass); the prediction's
     /// mean is left out, as it cancels in every difference.
     fn value(self, z: &[f32], c: usize) -> f64 {
@@ -226,10 +234,7 @@ pub(crate) fn integrated_gradients(
     let mut estimate: Vec<f64> =
         per_input.chunks_exact(d.max(1)).zip(coarse.chunks_exact(d.max(1))).map(|(f, c)| error_estimate(f, c, widths)).collect();
     let mut used = vec![steps; x.rows];
-    let tolerance = match explained {
-        Explained::Prediction { std } => COMPLETENESS_TOLERANCE * std,
-        _ => COMPLETENESS_TOLERANCE,
-    };
+    let tolerance = explained.tolerance();
     for factor in REFINEMENTS {
         let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r].max(estimate[r]) > row_tolerance(tolerance, difference[r])).collect();
         if missed.is_empty() {
@@ -292,7 +297,21 @@ pub(crate) fn deployed(
     steps: usize,
 ) -> Result<Attributions> {
     let explained = Explained::of(&model.head(), model.target_std());
+    of_networks(model.networks(), explained, x, reference, classes, widths, steps)
+}
+
+/// Integrated gradients of every row of `x` from `reference` for one network or the members of a
+/// seed ensemble (the mean of theirs).
+pub(crate) fn of_networks<'a>(
+    networks: impl Iterator<Item = &'a mut ScoringModel>,
+    explained: Explained,
+    x: &Matrix,
+    reference: &[f32],
+    classes: &[usize],
+    widths: &[usize],
+    steps: usize,
+) -> Result<Attributions> {
     let mut parts =
-        model.networks().map(|m| integrated_gradients(m, explained, x, reference, classes, widths, steps)).collect::<Result<Vec<_>>>()?;
+        networks.map(|m| integrated_gradients(m, explained, x, reference, classes, widths, steps)).collect::<Result<Vec<_>>>()?;
     Ok(if parts.len() == 1 { parts.remove(0) } else { mean(parts) })
 }

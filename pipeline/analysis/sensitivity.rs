@@ -6,7 +6,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::attribution::{row_tolerance, COMPLETENESS_TOLERANCE, RELATIVE_TOLERANCE};
+use super::attribution::{row_tolerance, RELATIVE_TOLERANCE};
 use super::reasons::{principal, Toward, DEFAULT_REASONS};
 use super::reference::{indicator_inputs, median_row, threshold_row, References};
 use super::shifts::FeatureShifts;
@@ -122,10 +122,7 @@ pub(crate) fn derive(
         })
         .collect();
     features.sort_by(|a, b| b.mean_size.total_cmp(&a.mean_size));
-    let tolerance = match task {
-        Task::Regression => COMPLETENESS_TOLERANCE * model.target_std().unwrap_or(1.0),
-        _ => COMPLETENESS_TOLERANCE,
-    };
+    let tolerance = super::attribution::Explained::of(&model.head(), model.target_std()).tolerance();
     let attributions = TestAttributions {
         explains: if task == Task::Regression { "prediction".into() } else { "log-odds".into() },
         steps,

@@ -416,7 +416,7 @@ fn reason_columns(
     n: usize,
     choice: ReferenceChoice,
 ) -> Result<(Columns, String, String)> {
-    use crate::analysis::attribution::{integrated_gradients, mean, Explained};
+    use crate::analysis::attribution::{of_networks, Explained};
     use crate::analysis::reasons::{principal, Toward};
     use crate::analysis::reference::ThresholdReference;
     if n == 0 {
@@ -452,11 +452,7 @@ fn reason_columns(
     }
     let preprocessor = folder.preprocessor()?;
     let widths: Vec<usize> = preprocessor.inputs.iter().map(InputEncoding::width).collect();
-    let parts = networks
-        .iter_mut()
-        .map(|m| integrated_gradients(m, explained, x, &reference, classes, &widths, steps))
-        .collect::<Result<Vec<_>>>()?;
-    let attr = if parts.len() == 1 { parts.into_iter().next().unwrap_or_else(|| mean(Vec::new())) } else { mean(parts) };
+    let attr = of_networks(networks.iter_mut(), explained, x, &reference, classes, &widths, steps)?;
     let names: Vec<String> = preprocessor.inputs.iter().map(|e| e.name().to_string()).collect();
     let texts: Vec<String> =
         names.iter().map(|f| manifest.reasons.as_ref().and_then(|r| r.get(f)).cloned().unwrap_or_else(|| f.clone())).collect();

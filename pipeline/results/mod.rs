@@ -120,37 +120,22 @@ impl Sealed {
         read_json(&self.layout.run(run_id).join(crate::store::run::ENVIRONMENT)).ok()
     }
 
-    /// The stored test-split predictions; `None` in folders before layout 4, which have none.
     /// `importance.json`, when the folder has one (layout 5).
     pub(crate) fn importance(&self) -> Result<Option<crate::analysis::importance::ImportanceReport>> {
-        let path = self.layout.importance();
-        if path.exists() {
-            Ok(Some(read_json(&path)?))
-        } else {
-            Ok(None)
-        }
+        read_optional(&self.layout.importance())
     }
 
     /// `sensitivity.json`, when the folder has one (layout 6).
     pub(crate) fn sensitivity(&self) -> Result<Option<crate::analysis::sensitivity::SensitivityReport>> {
-        let path = self.layout.sensitivity();
-        if path.exists() {
-            Ok(Some(read_json(&path)?))
-        } else {
-            Ok(None)
-        }
+        read_optional(&self.layout.sensitivity())
     }
 
     /// `fairness.json`, when the folder has one (layout 5 with group columns).
     pub(crate) fn fairness(&self) -> Result<Option<crate::analysis::fairness::FairnessReport>> {
-        let path = self.layout.fairness();
-        if path.exists() {
-            Ok(Some(read_json(&path)?))
-        } else {
-            Ok(None)
-        }
+        read_optional(&self.layout.fairness())
     }
 
+    /// The stored test-split predictions; `None` in folders before layout 4, which have none.
     pub(crate) fn test_predictions_text(&self) -> Result<Option<String>> {
         let path = self.layout.test_predictions();
         if !path.exists() {
@@ -203,9 +188,9 @@ impl StoredResults {
             selection: read_json(&layout.selection())?,
             timing: crate::store::timing::read(&layout.timing())?,
             preprocessor: read_json(&layout.preprocessor())?,
-            fairness: if layout.fairness().exists() { Some(read_json(&layout.fairness())?) } else { None },
-            importance: if layout.importance().exists() { Some(read_json(&layout.importance())?) } else { None },
-            sensitivity: if layout.sensitivity().exists() { Some(read_json(&layout.sensitivity())?) } else { None },
+            fairness: read_optional(&layout.fairness())?,
+            importance: read_optional(&layout.importance())?,
+            sensitivity: read_optional(&layout.sensitivity())?,
             plan,
             runs,
         })
@@ -319,4 +304,14 @@ pub(crate) fn folders_of_manifest(results_root: &Path, manifest_sha256: &str) ->
         .collect();
     found.sort_by(|a, b| a.folder.cmp(&b.folder));
     found
+}
+
+/// An evidence file a folder holds only from some layout on, or only for some experiments: `None`
+/// when it is absent.
+fn read_optional<T: serde::de::DeserializeOwned>(path: &std::path::Path) -> Result<Option<T>> {
+    if path.exists() {
+        Ok(Some(read_json(path)?))
+    } else {
+        Ok(None)
+    }
 }

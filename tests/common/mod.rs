@@ -148,3 +148,29 @@ pub fn copy_dir(from: &Path, to: &Path) {
         }
     }
 }
+
+/// The cells of one CSV line (RFC 4180 quoting: a quoted cell may hold commas and "" for ").
+pub fn csv_cells(line: &str) -> Vec<String> {
+    let (mut cells, mut cell, mut quoted, mut chars) = (Vec::new(), String::new(), false, line.chars().peekable());
+    while let Some(c) = chars.next() {
+        match (c, quoted) {
+            ('"', true) if chars.peek() == Some(&'"') => {
+                cell.push('"');
+                chars.next();
+            }
+            ('"', _) => quoted = !quoted,
+            (',', false) => cells.push(std::mem::take(&mut cell)),
+            _ => cell.push(c),
+        }
+    }
+    cells.push(cell);
+    cells
+}
+
+/// Every row of a CSV file tabcard wrote (no line breaks inside cells) as (column name -> cell).
+pub fn csv_rows(path: &Path) -> Vec<std::collections::BTreeMap<String, String>> {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    let header = csv_cells(lines.next().unwrap_or(""));
+    lines.map(|l| header.iter().cloned().zip(csv_cells(l)).collect()).collect()
+}
