@@ -144,6 +144,10 @@ pub mod exit {
     pub const NOT_VERIFIED: u8 = 6;
     /// The machine refused what tabcard needs (worker threads).
     pub const ENVIRONMENT: u8 = 7;
+    /// `monitor`: a check reads "watch".
+    pub const MONITOR_WATCH: u8 = 8;
+    /// `monitor`: a check reads "act" (a scheduler's alert).
+    pub const MONITOR_ACT: u8 = 9;
 }
 
 impl From<ManifestError> for Error {

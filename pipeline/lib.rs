@@ -21,6 +21,7 @@ pub mod fingerprint;
 pub mod format;
 pub mod manifest;
 pub mod metrics;
+pub mod monitor;
 pub mod nn;
 pub mod numerics;
 pub mod output_schema;

@@ -203,6 +203,26 @@ enum Command {
         #[arg(long)]
         templates: Option<PathBuf>,
     },
+    /// Set a batch of new rows (and its outcomes, when it holds the target) against the population the model was trained on; record the result beside the experiment.
+    #[command(
+        after_help = "Examples:\n  tabcard monitor results/4f13816fd93d258d applications-2027-01.parquet\n  tabcard monitor experiments/lease-default.toml outcomes-2027-01.parquet --outcomes\n  tabcard monitor results/4f13816fd93d258d --history\n\nExit status: 0 stable, 8 watch, 9 act (6 when a batch monitored again does not reproduce its record)."
+    )]
+    Monitor {
+        /// A results folder, or a manifest whose results live under --results.
+        target: PathBuf,
+        /// The batch (Parquet) with the model's feature columns, and the target once outcomes are known.
+        #[arg(required_unless_present = "history")]
+        batch: Option<PathBuf>,
+        /// Require the target column and compare the batch's outcomes with the card's test figures.
+        #[arg(long)]
+        outcomes: bool,
+        /// Print every recorded batch of the folder, oldest first, instead of monitoring one.
+        #[arg(long, conflicts_with_all = ["batch", "outcomes"])]
+        history: bool,
+        /// The results root, where a manifest's results folder is looked up and monitoring.jsonl is kept.
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
+    },
     /// Write the invented demo tables (lease defaults, greenhouse yield) as Parquet.
     #[command(after_help = "Example:\n  tabcard demo-data data-demo")]
     DemoData {
@@ -292,6 +312,21 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
         Command::History { results } => Done::report(commands::history::run(&results)?),
         Command::List { results } => Done::report(commands::list::run(&results)?),
         Command::Card { results_folder, templates } => Done::text(commands::card::run(&results_folder, templates.as_deref())?),
+        Command::Monitor { target, batch, outcomes, history, results } => {
+            let o = match batch {
+                Some(batch) if !history => {
+                    commands::monitor::run(&target, &batch, &commands::monitor::MonitorOptions { results_root: results, outcomes })?
+                }
+                _ => commands::monitor::history(&target, &results)?,
+            };
+            let code = match (o.reproduced, o.status) {
+                (false, _) => exit::NOT_VERIFIED,
+                (_, Some("act")) => exit::MONITOR_ACT,
+                (_, Some("watch")) => exit::MONITOR_WATCH,
+                _ => exit::OK,
+            };
+            Done { text: o.report, json: Some(o.json), code }
+        }
         Command::DemoData { folder, seed, force } => Done::text(commands::demo::run(&folder, seed, force)?),
     })
 }
@@ -309,9 +344,10 @@ fn main() -> ExitCode {
             | Command::Compare { .. }
             | Command::History { .. }
             | Command::List { .. }
+            | Command::Monitor { .. }
     );
     if json && !reports_json {
-        note("error: --json is available for check, train, verify, compare, history and list, not for this command");
+        note("error: --json is available for check, train, verify, compare, history, list and monitor, not for this command");
         return ExitCode::from(exit::BAD_INPUT);
     }
     match run(cli) {
@@ -325,6 +361,8 @@ fn main() -> ExitCode {
             match done.code {
                 exit::RUNS_FAILED => note("error: some runs failed or diverged (see above)"),
                 exit::NOT_VERIFIED => note("error: verification found differences (see above)"),
+                exit::MONITOR_ACT => note("monitor: a check reads act (see above)"),
+                exit::MONITOR_WATCH => note("monitor: a check reads watch (see above)"),
                 _ => {}
             }
             ExitCode::from(done.code)

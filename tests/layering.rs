@@ -25,6 +25,7 @@ const LAYERS: &[&[&str]] = &[
     &["results"],
     &["card"],
     &["verification"],
+    &["monitor"],
     &["commands"],
     &["main", "lib", "progress"],
 ];

@@ -10,6 +10,7 @@ pub(crate) mod curves;
 pub(crate) mod estimate;
 pub(crate) mod fairness;
 pub(crate) mod importance;
+pub(crate) mod profile;
 pub(crate) mod proxy;
 pub(crate) mod reasons;
 pub(crate) mod reference;

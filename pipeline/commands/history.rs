@@ -6,13 +6,14 @@ use std::path::Path;
 
 use crate::error::Result;
 use crate::format::fixed;
-use crate::store::ledger::{read, read_verifications};
+use crate::store::ledger::{read, read_monitoring, read_verifications};
 use crate::text::terminal_cell;
 
 pub fn run(results_root: &Path) -> Result<super::Report> {
     let entries = read(results_root)?;
     let verifications = read_verifications(results_root)?;
-    let json = serde_json::json!({ "selections": entries, "verifications": verifications });
+    let monitoring = read_monitoring(results_root)?;
+    let json = serde_json::json!({ "selections": entries, "verifications": verifications, "monitoring": monitoring });
     let mut out = String::new();
     if entries.is_empty() {
         let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
@@ -20,9 +21,13 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     }
     let _ = writeln!(
         out,
-        "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} verified",
-        "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric"
+        "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} monitored",
+        "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric", "verified"
     );
+    let latest_monitoring = |fingerprint: &str| match monitoring.iter().rev().find(|m| m.fingerprint == fingerprint) {
+        Some(m) => format!("{} ({})", m.status, m.time),
+        None => "-".into(),
+    };
     for e in &entries {
         let commit = match (&e.git_commit, e.git_dirty) {
             (Some(c), Some(true)) => format!("{}+", &c[..8.min(c.len())]),
@@ -37,7 +42,7 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
         };
         let _ = writeln!(
             out,
-            "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {}",
+            "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} {}",
             e.time,
             terminal_cell(&e.experiment, 28),
             &e.fingerprint[..16],
@@ -45,7 +50,8 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
             e.runs_trained,
             e.runs_reused,
             metric,
-            verified
+            verified,
+            latest_monitoring(&e.fingerprint)
         );
     }
     Ok(super::Report { text: out, json })

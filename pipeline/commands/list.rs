@@ -9,7 +9,7 @@ use crate::error::{Error, Result};
 use crate::experiment::plan::config_label;
 use crate::format::fixed;
 use crate::results::Listing;
-use crate::store::ledger::{read_verifications, VerificationEntry};
+use crate::store::ledger::{read_monitoring, read_verifications, MonitoringEntry, VerificationEntry};
 use crate::text::terminal_cell;
 
 /// One listed experiment.
@@ -28,9 +28,12 @@ struct Listed {
     verified: String,
     /// Why the folder fails its integrity check, when it does.
     integrity_error: Option<String>,
+    /// The latest monitored batch's status (`stable`, `watch`, `act`) and when it was recorded.
+    monitored: Option<String>,
+    monitored_at: Option<String>,
 }
 
-fn listed(folder: &Path, verifications: &[VerificationEntry]) -> Result<Listed> {
+fn listed(folder: &Path, verifications: &[VerificationEntry], monitoring: &[MonitoringEntry]) -> Result<Listed> {
     let Listing { record, sealed, integrity_error, selection, timing } = Listing::read(folder)?;
     let verified = match verifications.iter().rev().find(|v| v.fingerprint == record.fingerprint) {
         _ if integrity_error.is_some() => "TAMPERED",
@@ -44,7 +47,10 @@ fn listed(folder: &Path, verifications: &[VerificationEntry]) -> Result<Listed> 
         .and_then(|s| s.selected_summary())
         .map(|c| config_label(&c.overrides, c.baseline))
         .unwrap_or_else(|| if integrity_error.is_some() { "-".into() } else { "(not selected yet)".into() });
+    let latest = monitoring.iter().rev().find(|m| m.fingerprint == record.fingerprint);
     Ok(Listed {
+        monitored: latest.map(|m| m.status.clone()),
+        monitored_at: latest.map(|m| m.time.clone()),
         folder: crate::store::folder_name(folder),
         fingerprint: record.fingerprint,
         name: record.name,
@@ -62,10 +68,11 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     let mut folders: Vec<_> = entries.flatten().map(|e| e.path()).filter(|p| Listing::is_results_folder(p)).collect();
     folders.sort();
     let verifications = read_verifications(results_root)?;
+    let monitoring = read_monitoring(results_root)?;
     let mut listed_ok = Vec::new();
     let mut problems = Vec::new();
     for folder in &folders {
-        match listed(folder, &verifications) {
+        match listed(folder, &verifications, &monitoring) {
             Ok(l) => listed_ok.push(l),
             Err(e) => problems.push(format!("{}: {e}", folder.display())),
         }
@@ -76,20 +83,24 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     } else {
         let _ = writeln!(
             out,
-            "{:<16}  {:<28} {:<20}  {:<32} {:<24} verified",
-            "fingerprint", "experiment", "trained at", "selected configuration", "test metric"
+            "{:<16}  {:<28} {:<20}  {:<32} {:<24} {:<11} monitored",
+            "fingerprint", "experiment", "trained at", "selected configuration", "test metric", "verified"
         );
         for l in &listed_ok {
             let headline = l.test_value.map(|v| format!("{} {}", l.metric, fixed(v, 4))).unwrap_or_else(|| "-".into());
             let _ = writeln!(
                 out,
-                "{:<16}  {:<28} {:<20}  {:<32} {:<24} {}",
+                "{:<16}  {:<28} {:<20}  {:<32} {:<24} {:<11} {}",
                 l.folder,
                 terminal_cell(&l.name, 28),
                 l.trained_at.as_deref().unwrap_or("-"),
                 terminal_cell(&l.selected, 32),
                 headline,
-                l.verified
+                l.verified,
+                match (&l.monitored, &l.monitored_at) {
+                    (Some(s), Some(t)) => format!("{s} ({t})"),
+                    _ => "-".into(),
+                }
             );
         }
         for l in listed_ok.iter().filter(|l| l.integrity_error.is_some()) {

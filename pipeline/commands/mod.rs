@@ -8,6 +8,7 @@ pub mod compare;
 pub mod demo;
 pub mod history;
 pub mod list;
+pub mod monitor;
 pub mod predict;
 pub mod scaffold;
 pub mod slurm;

@@ -174,6 +174,7 @@ fn select_and_record(
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
     let importance = crate::analysis::importance::derive(prepared, &derived, &runs)?;
     let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs, importance.as_ref())?;
+    let profile = crate::analysis::profile::derive(prepared, &derived)?;
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
@@ -185,6 +186,7 @@ fn select_and_record(
         write_json(&layout.importance(), importance)?;
     }
     write_json(&layout.sensitivity(), &sensitivity)?;
+    write_json(&layout.profile(), &profile)?;
     let (git_commit, git_dirty) = git.clone();
     write_json(
         &layout.timing(),

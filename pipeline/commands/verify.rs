@@ -88,13 +88,14 @@ fn report_text(found: &Verification) -> String {
         }
     }
     let _ = match &found.selection {
-        SelectionCheck::Matches { test_predictions, fairness, importance, sensitivity } => writeln!(
+        SelectionCheck::Matches { test_predictions, fairness, importance, sensitivity, profile } => writeln!(
             out,
-            "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals){}{}{}{}",
+            "\nselection re-derived from the stored runs: matches selection.json (selected run, validation summaries, test metrics and intervals){}{}{}{}{}",
             if *test_predictions { " and test-predictions.csv" } else { "" },
             if *fairness { ", and the disparity analysis matches fairness.json" } else { "" },
             if *importance { ", and the permutation importance matches importance.json" } else { "" },
-            if *sensitivity { ", and the reference rows, sensitivity table and integrated gradients match sensitivity.json" } else { "" }
+            if *sensitivity { ", and the reference rows, sensitivity table and integrated gradients match sensitivity.json" } else { "" },
+            if *profile { ", and the reference population monitoring compares with matches profile.json" } else { "" }
         ),
         SelectionCheck::Differs(what) => writeln!(out, "\nselection DIFFERS: {what}"),
         SelectionCheck::CannotDerive(e) => writeln!(out, "\nselection CANNOT be re-derived from the stored runs: {e}"),

@@ -38,6 +38,43 @@ pub struct Manifest {
     /// with none keeps its column name).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub reasons: Option<std::collections::BTreeMap<String, String>>,
+    /// `[monitoring]`: when `monitor` reads a batch's drift as watch or act; absent: the defaults.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub monitoring: Option<MonitoringSpec>,
+}
+
+/// `[monitoring]`: the thresholds `monitor` judges a batch by. A column's population reads
+/// "watch" when its stability index reaches `psi_watch` and "act" at `psi_act` (0.1 and 0.25 are
+/// common practice), each only when the chi-square test also rejects "same population" at
+/// `alpha` (our choice: 0.01), so a small batch's noise does not raise an alarm.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MonitoringSpec {
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub psi_watch: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub psi_act: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub alpha: Option<f64>,
+}
+
+/// The stability index at which a population reads "watch" (common practice).
+pub const DEFAULT_PSI_WATCH: f64 = 0.1;
+/// The stability index at which a population reads "act" (common practice).
+pub const DEFAULT_PSI_ACT: f64 = 0.25;
+/// The level of the tests that gate every monitoring status (our choice).
+pub const DEFAULT_MONITOR_ALPHA: f64 = 0.01;
+
+impl MonitoringSpec {
+    pub fn psi_watch(&self) -> f64 {
+        self.psi_watch.unwrap_or(DEFAULT_PSI_WATCH)
+    }
+    pub fn psi_act(&self) -> f64 {
+        self.psi_act.unwrap_or(DEFAULT_PSI_ACT)
+    }
+    pub fn alpha(&self) -> f64 {
+        self.alpha.unwrap_or(DEFAULT_MONITOR_ALPHA)
+    }
 }
 
 /// `[analysis]`: permutation importance of each raw feature on the test rows, the sensitivity

@@ -280,6 +280,14 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
             c.check(!name.trim().is_empty(), "analysis.sensitive", || "names a feature; an empty name was given".into());
         }
     }
+    if let Some(mon) = &m.monitoring {
+        let (watch, act, alpha) = (mon.psi_watch(), mon.psi_act(), mon.alpha());
+        c.check(watch > 0.0 && watch.is_finite(), "monitoring.psi_watch", || format!("must be a positive number, got {watch}"));
+        c.check(act > watch && act.is_finite(), "monitoring.psi_act", || {
+            format!("must be larger than monitoring.psi_watch ({watch}), got {act}")
+        });
+        c.check(alpha > 0.0 && alpha < 0.5, "monitoring.alpha", || format!("must be in (0, 0.5), got {alpha}"));
+    }
     for (feature, text) in m.reasons.iter().flatten() {
         c.check(!text.trim().is_empty(), &format!("reasons.{feature}"), || "must be a reason text; it is empty".into());
     }

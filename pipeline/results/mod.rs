@@ -130,6 +130,11 @@ impl Sealed {
         read_optional(&self.layout.sensitivity())
     }
 
+    /// `profile.json`, when the folder has one (layout 7).
+    pub(crate) fn profile(&self) -> Result<Option<crate::analysis::profile::ReferenceProfile>> {
+        read_optional(&self.layout.profile())
+    }
+
     /// `fairness.json`, when the folder has one (layout 5 with group columns).
     pub(crate) fn fairness(&self) -> Result<Option<crate::analysis::fairness::FairnessReport>> {
         read_optional(&self.layout.fairness())
@@ -142,6 +147,21 @@ impl Sealed {
             return Ok(None);
         }
         std::fs::read_to_string(&path).map(Some).map_err(|e| Error::io(&path, "read", e))
+    }
+
+    /// The attached records of `kind` (`monitoring`, `reviews`), each checked against its own
+    /// list first, in name order.
+    pub(crate) fn attached(&self, kind: &str) -> Result<Vec<crate::store::attached::AttachedRecord>> {
+        Ok(crate::store::attached::check(&self.layout.root)?.into_iter().filter(|r| r.kind == kind).collect())
+    }
+
+    /// One JSON file of an attached record (checked by [`Sealed::attached`]).
+    pub(crate) fn attached_json<T: serde::de::DeserializeOwned>(
+        &self,
+        record: &crate::store::attached::AttachedRecord,
+        file: &str,
+    ) -> Result<T> {
+        read_json(&self.layout.root.join(&record.kind).join(&record.name).join(file))
     }
 
     /// The card as stored.

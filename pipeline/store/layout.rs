@@ -14,11 +14,12 @@ use crate::error::{Error, Result};
 /// `records.sha256` with the card and figures, outside the results digest), stores the test
 /// split's predictions (`test-predictions.csv`) and the declared decision, and admits attached
 /// records (`reviews/`, `monitoring/`). Version 5 added calibration, `fairness.json` and
-/// `importance.json`; version 6 adds `sensitivity.json`.
-pub const FORMAT_VERSION: u32 = 6;
+/// `importance.json`; version 6 `sensitivity.json`; version 7 adds `profile.json`, the reference
+/// population `monitor` compares batches with.
+pub const FORMAT_VERSION: u32 = 7;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -87,6 +88,10 @@ impl Layout {
     /// Reference rows, the sensitivity table and integrated gradients of the test rows (layout 6).
     pub fn sensitivity(&self) -> PathBuf {
         self.root.join("sensitivity.json")
+    }
+    /// The reference population monitoring compares batches with (layout 7).
+    pub fn profile(&self) -> PathBuf {
+        self.root.join("profile.json")
     }
     pub fn timing(&self) -> PathBuf {
         self.root.join("timing.json")

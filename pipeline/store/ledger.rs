@@ -70,6 +70,38 @@ pub(crate) fn read_verifications(results_root: &Path) -> Result<Vec<Verification
     read_lines(&results_root.join(VERIFICATIONS))
 }
 
+/// One monitoring record, appended to `monitoring.jsonl` beside the ledger when `monitor` writes it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct MonitoringEntry {
+    pub time: String,
+    pub fingerprint: String,
+    pub results: String,
+    /// The record's folder name under `monitoring/`.
+    pub record: String,
+    pub batch_sha256: String,
+    pub rows: usize,
+    /// `stable`, `watch` or `act`.
+    pub status: String,
+    /// The largest feature stability index and its column.
+    pub worst_feature: Option<String>,
+    pub worst_psi: Option<f64>,
+    /// The score's stability index.
+    pub score_psi: f64,
+    /// SHA-256 of the record's `contents.sha256`.
+    pub record_digest: String,
+}
+
+pub(crate) const MONITORING: &str = "monitoring.jsonl";
+
+pub(crate) fn append_monitoring(results_root: &Path, entry: &MonitoringEntry) -> Result<()> {
+    let line = serde_json::to_string(entry).map_err(|e| Error::Internal(format!("monitoring line: {e}")))? + "\n";
+    append_line(&results_root.join(MONITORING), line)
+}
+
+pub(crate) fn read_monitoring(results_root: &Path) -> Result<Vec<MonitoringEntry>> {
+    read_lines(&results_root.join(MONITORING))
+}
+
 fn read_lines<T: serde::de::DeserializeOwned>(path: &Path) -> Result<Vec<T>> {
     let text = match std::fs::read_to_string(path) {
         Ok(t) => t,

@@ -78,6 +78,8 @@ pub(crate) enum SelectionCheck {
         importance: bool,
         /// `sensitivity.json` re-derived too (layout 6).
         sensitivity: bool,
+        /// `profile.json` re-derived too (layout 7).
+        profile: bool,
     },
     /// What differs.
     Differs(String),
@@ -370,11 +372,27 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
                         (stored_sensitivity, Ok(fresh)) if stored_sensitivity.as_ref() != Some(&fresh) => SelectionCheck::Differs(
                             "sensitivity.json does not match the reference rows, sensitivity table and integrated gradients re-derived from the deployed model".into(),
                         ),
+                        (_, Ok(_)) if sealed.layout_version >= crate::analysis::profile::PROFILE_FROM => {
+                            match (sealed.profile()?, crate::analysis::profile::derive(&prepared, &derived)) {
+                                (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
+                                (stored_profile, Ok(fresh)) if stored_profile.as_ref() != Some(&fresh) => SelectionCheck::Differs(
+                                    "profile.json does not match the reference population re-derived from the training rows and the deployed model's test outputs".into(),
+                                ),
+                                (_, Ok(_)) => SelectionCheck::Matches {
+                                    test_predictions: stored_test_predictions.is_some(),
+                                    fairness: stored.is_some(),
+                                    importance: stored_importance.is_some(),
+                                    sensitivity: true,
+                                    profile: true,
+                                },
+                            }
+                        }
                         (_, Ok(_)) => SelectionCheck::Matches {
                             test_predictions: stored_test_predictions.is_some(),
                             fairness: stored.is_some(),
                             importance: stored_importance.is_some(),
                             sensitivity: true,
+                            profile: false,
                         },
                     }
                 }
@@ -383,6 +401,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
                     fairness: stored.is_some(),
                     importance: stored_importance.is_some(),
                     sensitivity: false,
+                    profile: false,
                 },
                 (Err(e), _) | (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
             }
@@ -392,6 +411,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
             fairness: false,
             importance: false,
             sensitivity: false,
+            profile: false,
         },
         Err(e) => SelectionCheck::CannotDerive(e.to_string()),
     };

@@ -1,0 +1,306 @@
+//! `profile.json` (layout 7): the reference population monitoring compares new batches with, stored
+//! as evidence so `monitor` needs the results folder only. Each raw feature is binned on the
+//! training split, the deployed model's score on the test split:
+//! - a number: edges at the deciles of the non-missing training values, `numpy.quantile` with
+//!   `method="linear"` (its default, Hyndman and Fan's type 7) computed as numpy computes it; tied
+//!   edges merged; bins closed on the right, `(-inf, e1], (e1, e2], ..., (e_last, +inf)`; then a
+//!   missing bin;
+//! - a category: one bin per training level (most frequent first), then an unseen bin and a
+//!   missing bin, both empty in training by construction of the first.
+//!
+//! The score is P(positive class) for a binary model, the prediction for a regression model
+//! (decile bins as above, no missing bin in use), and the decided class for a multiclass model.
+//! Nothing here is random; `verify` re-derives the file.
+
+use std::collections::HashMap;
+
+use serde::{Deserialize, Serialize};
+
+use crate::data::prep::InputEncoding;
+use crate::data::table::{Column, ColumnValues};
+use crate::error::Result;
+use crate::manifest::Task;
+
+/// The first results layout with `profile.json`.
+pub(crate) const PROFILE_FROM: u32 = 7;
+
+/// The quantiles numeric edges are placed at.
+pub(crate) const DECILES: [f64; 9] = [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9];
+
+/// How a column's values fall into bins.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(crate) enum Bins {
+    /// `edges.len() + 1` value bins closed on the right, then the missing bin.
+    Numeric {
+        edges: Vec<f64>,
+        /// Smallest and largest non-missing value of the reference rows.
+        min: f64,
+        max: f64,
+    },
+    /// One bin per level, then the unseen bin, then the missing bin.
+    Levels { levels: Vec<String> },
+}
+
+impl Bins {
+    /// Every bin, value bins first, then (levels) unseen, then missing.
+    pub(crate) fn len(&self) -> usize {
+        match self {
+            Bins::Numeric { edges, .. } => edges.len() + 2,
+            Bins::Levels { levels } => levels.len() + 2,
+        }
+    }
+
+    pub(crate) fn missing_bin(&self) -> usize {
+        self.len() - 1
+    }
+
+    /// The unseen-level bin of a categorical column.
+    pub(crate) fn unseen_bin(&self) -> Option<usize> {
+        matches!(self, Bins::Levels { .. }).then(|| self.len() - 2)
+    }
+
+    /// The bin of a number (`None` or not finite: missing).
+    pub(crate) fn of_number(&self, value: Option<f64>) -> usize {
+        match (self, value) {
+            (Bins::Numeric { edges, .. }, Some(v)) if v.is_finite() => edges.partition_point(|e| *e < v),
+            _ => self.missing_bin(),
+        }
+    }
+
+    /// A short label per bin, for tables and figures.
+    pub(crate) fn labels(&self) -> Vec<String> {
+        let mut out = Vec::with_capacity(self.len());
+        match self {
+            Bins::Numeric { edges, .. } => {
+                let g = |x: f64| crate::format::sig(x, 4);
+                if edges.is_empty() {
+                    out.push("every value".into());
+                } else {
+                    out.push(format!("<= {}", g(edges[0])));
+                    for w in edges.windows(2) {
+                        out.push(format!("({}, {}]", g(w[0]), g(w[1])));
+                    }
+                    out.push(format!("> {}", g(edges[edges.len() - 1])));
+                }
+            }
+            Bins::Levels { levels } => {
+                out.extend(levels.iter().cloned());
+                out.push("(unseen level)".into());
+            }
+        }
+        out.push("(missing)".into());
+        out
+    }
+}
+
+/// One binned column and its reference counts.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct BinnedColumn {
+    pub name: String,
+    pub bins: Bins,
+    /// Rows per bin, in [`Bins::len`] order.
+    pub counts: Vec<u64>,
+}
+
+/// `profile.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct ReferenceProfile {
+    /// How the numeric edges were placed, in words.
+    pub method: String,
+    /// Rows the features were counted on (the training split).
+    pub training_rows: usize,
+    /// Rows the score was counted on (the test split).
+    pub test_rows: usize,
+    /// Every raw feature, in input order.
+    pub features: Vec<BinnedColumn>,
+    /// What the score is: `probability of <label>`, `prediction` or `decided class`.
+    pub score_means: String,
+    pub score: BinnedColumn,
+}
+
+pub(crate) const METHOD: &str = "numeric edges: numpy.quantile(values, [0.1, ..., 0.9], method=\"linear\") of the non-missing reference values, tied edges merged; bins closed on the right: (-inf, e1], (e1, e2], ..., (e_last, +inf); then a missing bin. Categories: one bin per training level, then unseen, then missing";
+
+/// numpy's `quantile(sorted, q, method="linear")`, computed as numpy computes it: virtual index
+/// `(n - 1) q`, and its `_lerp`, which interpolates from the upper neighbour when the fraction is
+/// at least one half, so the edges equal numpy's to the last bit.
+pub(crate) fn numpy_linear_quantile(sorted: &[f64], q: f64) -> f64 {
+    let n = sorted.len();
+    let virtual_index = (n - 1) as f64 * q;
+    let below = virtual_index.floor();
+    let lo = (below as usize).min(n - 1);
+    let hi = (lo + 1).min(n - 1);
+    let t = virtual_index - below;
+    let (a, b) = (sorted[lo], sorted[hi]);
+    let diff = b - a;
+    if t >= 0.5 {
+        b - diff * (1.0 - t)
+    } else {
+        a + diff * t
+    }
+}
+
+/// Decile bins of the values (any order; none missing).
+pub(crate) fn numeric_bins(mut values: Vec<f64>) -> Bins {
+    values.sort_by(f64::total_cmp);
+    if values.is_empty() {
+        return Bins::Numeric { edges: Vec::new(), min: f64::NAN, max: f64::NAN };
+    }
+    let mut edges: Vec<f64> = DECILES.iter().map(|&q| numpy_linear_quantile(&values, q)).collect();
+    edges.dedup();
+    Bins::Numeric { edges, min: values[0], max: values[values.len() - 1] }
+}
+
+/// Assigns the rows of a column (or of a chunk of one) to bins, looking text levels up once per
+/// level rather than once per row.
+pub(crate) struct Binner<'a> {
+    bins: &'a Bins,
+    levels: HashMap<&'a str, usize>,
+}
+
+impl<'a> Binner<'a> {
+    pub(crate) fn new(bins: &'a Bins) -> Self {
+        let levels = match bins {
+            Bins::Levels { levels } => levels.iter().enumerate().map(|(i, l)| (l.as_str(), i)).collect(),
+            Bins::Numeric { .. } => HashMap::new(),
+        };
+        Binner { bins, levels }
+    }
+
+    fn of_label(&self, label: Option<&str>) -> usize {
+        match label {
+            None => self.bins.missing_bin(),
+            Some(l) => self.levels.get(l).copied().unwrap_or(self.bins.len() - 2),
+        }
+    }
+
+    /// Adds every row of `col` to `counts`.
+    pub(crate) fn tally(&self, col: &Column, counts: &mut [u64]) {
+        match (self.bins, &col.values) {
+            (Bins::Levels { .. }, ColumnValues::Text { codes, levels }) => {
+                let by_code: Vec<usize> = levels.iter().map(|l| self.of_label(Some(l))).collect();
+                for (r, &code) in codes.iter().enumerate() {
+                    let bin = if col.is_valid(r) { by_code[code as usize] } else { self.bins.missing_bin() };
+                    counts[bin] += 1;
+                }
+            }
+            (Bins::Levels { .. }, _) => {
+                for r in 0..col.len() {
+                    counts[self.of_label(col.label(r).as_deref())] += 1;
+                }
+            }
+            (Bins::Numeric { .. }, _) => {
+                for r in 0..col.len() {
+                    counts[self.bins.of_number(col.number(r))] += 1;
+                }
+            }
+        }
+    }
+}
+
+/// The score a model's outputs (k per row) are profiled by, one value per row: P(positive) for a
+/// binary model, the prediction for regression, the decided class index for multiclass.
+pub(crate) fn scores(task: Task, outputs: &[f64], k: usize) -> Vec<f64> {
+    match task {
+        Task::Binary => outputs.chunks_exact(k).map(|r| r[1]).collect(),
+        Task::Regression => outputs.to_vec(),
+        Task::Multiclass => outputs.chunks_exact(k).map(|r| crate::metrics::classification::argmax(r) as f64).collect(),
+    }
+}
+
+/// Adds scores (as [`scores`] gives them) to the score's bins.
+pub(crate) fn tally_scores(task: Task, bins: &Bins, scores: &[f64], counts: &mut [u64]) {
+    for &s in scores {
+        let bin = if task == Task::Multiclass { s as usize } else { bins.of_number(Some(s)) };
+        counts[bin] += 1;
+    }
+}
+
+/// The profile of an experiment: features on the training rows, the score on the test rows'
+/// deployed outputs.
+pub(crate) fn derive(prepared: &crate::experiment::prepared::Prepared, derived: &crate::selection::Derived) -> Result<ReferenceProfile> {
+    let exp = &prepared.exp;
+    let task = exp.manifest.data.task;
+    let train = &exp.splits.train;
+    let mut features = Vec::with_capacity(exp.preprocessor.inputs.len());
+    for enc in &exp.preprocessor.inputs {
+        let col = crate::data::source::ColumnSource::column(&exp.source, enc.name())?;
+        let bins = match enc {
+            InputEncoding::Numeric { .. } => numeric_bins(train.iter().filter_map(|&r| col.number(r)).collect()),
+            InputEncoding::Categorical { levels, .. } => Bins::Levels { levels: levels.clone() },
+        };
+        let mut counts = vec![0u64; bins.len()];
+        let binner = Binner::new(&bins);
+        for &r in train {
+            let bin = match &bins {
+                Bins::Numeric { .. } => bins.of_number(col.number(r)),
+                Bins::Levels { .. } => binner.of_label(col.label(r).as_deref()),
+            };
+            counts[bin] += 1;
+        }
+        features.push(BinnedColumn { name: enc.name().to_string(), bins, counts });
+    }
+    let labels: Vec<String> = match &exp.target {
+        crate::data::roles::Target::Classes { labels, .. } => labels.clone(),
+        crate::data::roles::Target::Values(_) => Vec::new(),
+    };
+    let k = match task {
+        Task::Regression => 1,
+        _ => labels.len(),
+    };
+    let test_scores = scores(task, &derived.test_outputs, k);
+    let (score_means, bins) = match task {
+        Task::Binary => (format!("probability of {}", labels.get(1).cloned().unwrap_or_default()), numeric_bins(test_scores.clone())),
+        Task::Regression => ("prediction".to_string(), numeric_bins(test_scores.clone())),
+        Task::Multiclass => ("decided class".to_string(), Bins::Levels { levels: labels.clone() }),
+    };
+    let mut counts = vec![0u64; bins.len()];
+    tally_scores(task, &bins, &test_scores, &mut counts);
+    Ok(ReferenceProfile {
+        method: METHOD.into(),
+        training_rows: train.len(),
+        test_rows: test_scores.len(),
+        features,
+        score_means,
+        score: BinnedColumn { name: "score".into(), bins, counts },
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn linear_quantiles_match_numpy_worked_values() {
+        // numpy.quantile([1, 2, 3, 4], [0.1, 0.5, 0.9]) = [1.3, 2.5, 3.7] (from memory; the
+        // CI check compares every stored edge with numpy itself).
+        let v = [1.0, 2.0, 3.0, 4.0];
+        assert!((numpy_linear_quantile(&v, 0.1) - 1.3).abs() < 1e-15);
+        assert_eq!(numpy_linear_quantile(&v, 0.5), 2.5);
+        assert!((numpy_linear_quantile(&v, 0.9) - 3.7).abs() < 1e-15);
+        assert_eq!(numpy_linear_quantile(&[5.0], 0.3), 5.0);
+    }
+
+    #[test]
+    fn tied_edges_merge_and_bins_close_on_the_right() {
+        let bins = numeric_bins(vec![1.0; 5].into_iter().chain([2.0, 3.0]).collect());
+        let Bins::Numeric { edges, .. } = &bins else { panic!() };
+        assert!(edges.windows(2).all(|w| w[0] < w[1]), "{edges:?}");
+        assert_eq!(edges[0], 1.0);
+        assert_eq!(bins.of_number(Some(1.0)), 0, "a value on an edge falls in the bin it closes");
+        assert_eq!(bins.of_number(Some(1.1)), 1, "edges 1, 1.2, 1.8, 2.4");
+        assert_eq!(edges.len(), 4);
+        assert_eq!(bins.of_number(None), bins.missing_bin());
+        assert_eq!(bins.of_number(Some(f64::NAN)), bins.missing_bin());
+        let levels = Bins::Levels { levels: vec!["a".into(), "b".into()] };
+        let col = Column {
+            name: "c".into(),
+            source_type: "utf8".into(),
+            values: ColumnValues::Text { codes: vec![0, 1, 2, 0], levels: vec!["b".into(), "a".into(), "zz".into()] },
+            valid: Some(vec![true, true, true, false]),
+        };
+        let mut counts = vec![0; levels.len()];
+        Binner::new(&levels).tally(&col, &mut counts);
+        assert_eq!(counts, vec![1, 1, 1, 1], "a, b, unseen, missing");
+    }
+}
