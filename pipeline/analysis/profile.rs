@@ -117,6 +117,77 @@ pub(crate) struct ReferenceProfile {
     /// What the score is: `probability of <label>`, `prediction` or `decided class`.
     pub score_means: String,
     pub score: BinnedColumn,
+    /// Calibration in the large on the test split (and, binary, on each side of the deployed
+    /// threshold): what a batch's outcomes are set against.
+    pub calibration: Vec<CalibrationSummary>,
+}
+
+/// Mean prediction against mean outcome over a set of rows.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub(crate) struct CalibrationSummary {
+    /// Which rows and which quantity, in words.
+    pub what: String,
+    pub rows: usize,
+    pub mean_predicted: f64,
+    pub observed: f64,
+    /// The variance of the mean residual (outcome minus prediction): their sample variance over
+    /// the rows.
+    pub residual_variance: f64,
+}
+
+impl CalibrationSummary {
+    fn of(what: String, predicted: &[f64], observed: &[f64]) -> Self {
+        let n = predicted.len();
+        let nf = n.max(1) as f64;
+        let mean_predicted = predicted.iter().sum::<f64>() / nf;
+        let mean_observed = observed.iter().sum::<f64>() / nf;
+        let gap = mean_observed - mean_predicted;
+        let sum_sq = observed.iter().zip(predicted).map(|(y, p)| (y - p - gap) * (y - p - gap)).sum::<f64>();
+        let residual_variance = if n > 1 { sum_sq / (nf - 1.0) / nf } else { 0.0 };
+        CalibrationSummary { what, rows: n, mean_predicted, observed: mean_observed, residual_variance }
+    }
+
+    /// Observed minus predicted.
+    pub(crate) fn gap(&self) -> f64 {
+        self.observed - self.mean_predicted
+    }
+}
+
+/// Calibration in the large of outputs (k per row) against labels: per class the mean
+/// probability against the class's share (binary: the positive class only, also on each side of
+/// `threshold`), for regression the mean prediction against the mean outcome.
+pub(crate) fn calibration_summaries(
+    outputs: &[f64],
+    labels: &crate::training::Labels,
+    class_labels: &[String],
+    threshold: Option<f64>,
+) -> Vec<CalibrationSummary> {
+    use crate::training::Labels;
+    match labels {
+        Labels::Values(y) => vec![CalibrationSummary::of("mean outcome, every row".into(), outputs, y)],
+        Labels::Classes { rows, classes } => {
+            let k = *classes;
+            let mut out = Vec::new();
+            for c in usize::from(k == 2)..k {
+                let p: Vec<f64> = outputs.chunks_exact(k).map(|r| r[c]).collect();
+                let y: Vec<f64> = rows.iter().map(|&l| f64::from(u8::from(l == c))).collect();
+                let label = class_labels.get(c).cloned().unwrap_or_default();
+                out.push(CalibrationSummary::of(format!("share of {label}, every row"), &p, &y));
+                if let (Some(t), 2) = (threshold, k) {
+                    let t_text = crate::format::sig(t, 4);
+                    for (side, above) in
+                        [(format!("decided {label} (p >= {t_text})"), true), (format!("not decided {label} (p < {t_text})"), false)]
+                    {
+                        let idx: Vec<usize> = (0..p.len()).filter(|&i| (p[i] >= t) == above).collect();
+                        let sp: Vec<f64> = idx.iter().map(|&i| p[i]).collect();
+                        let sy: Vec<f64> = idx.iter().map(|&i| y[i]).collect();
+                        out.push(CalibrationSummary::of(format!("share of {label}, {side}"), &sp, &sy));
+                    }
+                }
+            }
+            out
+        }
+    }
 }
 
 pub(crate) const METHOD: &str = "numeric edges: numpy.quantile(values, [0.1, ..., 0.9], method=\"linear\") of the non-missing reference values, tied edges merged; bins closed on the right: (-inf, e1], (e1, e2], ..., (e_last, +inf); then a missing bin. Categories: one bin per training level, then unseen, then missing";
@@ -256,7 +327,10 @@ pub(crate) fn derive(prepared: &crate::experiment::prepared::Prepared, derived: 
     };
     let mut counts = vec![0u64; bins.len()];
     tally_scores(task, &bins, &test_scores, &mut counts);
+    let threshold = (task == Task::Binary).then(|| derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value);
+    let calibration = calibration_summaries(&derived.test_outputs, &exp.labels(&exp.splits.test), &labels, threshold);
     Ok(ReferenceProfile {
+        calibration,
         method: METHOD.into(),
         training_rows: train.len(),
         test_rows: test_scores.len(),

@@ -161,6 +161,7 @@ pub fn run(target: &Path, batch: &Path, options: &MonitorOptions) -> Result<Moni
             &record.class_labels,
             threshold,
             model.target_std(),
+            &profile.calibration,
             manifest.selection.bootstrap,
             seed,
             thresholds.alpha,

@@ -6,24 +6,27 @@
 //! Rules (each names the figure that set it):
 //! - a metric reads "act" when the batch's whole interval lies on the worse side of the test
 //!   interval, "watch" when only the batch's estimate does;
-//! - calibration reads "watch" when the observed count differs from the expected one at level
-//!   alpha (a normal approximation to the sum of Bernoulli outcomes, variance Σ p(1 - p); for
-//!   regression the mean residual over its standard error), "act" when it also differs by at
-//!   least [`CALIBRATION_ACT_GAP`] (probability) or that many target standard deviations (our
+//! - calibration compares the batch's gap (observed minus predicted) with the test split's gap,
+//!   stored in `profile.json`: no model is perfectly calibrated, and a large batch would detect
+//!   the test split's own small gap; what monitoring asks is whether the gap changed. It reads
+//!   "watch" when the change differs from zero at level alpha (normal approximation, the
+//!   variance of each mean residual from its rows), "act" when the change is also at least
+//!   [`CALIBRATION_ACT_GAP`] (a probability, or that many target standard deviations; our
 //!   choice).
 
 use serde::{Deserialize, Serialize};
 
 use super::batch::Observed;
 use super::status::{Status, Verdict};
+use crate::analysis::profile::{calibration_summaries, CalibrationSummary};
 use crate::format::sig;
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::registry::{self, Direction};
 use crate::selection::Selection;
 use crate::training::{Head, Labels};
 
-/// A calibration gap at least this large (observed minus predicted share, or mean residual in
-/// target standard deviations), when significant, reads "act" (our choice).
+/// A change of the calibration gap at least this large (a probability, or target standard
+/// deviations), when significant, reads "act" (our choice).
 pub(crate) const CALIBRATION_ACT_GAP: f64 = 0.05;
 
 /// One card metric on the batch against the test split.
@@ -36,14 +39,12 @@ pub(crate) struct MetricCheck {
     pub verdict: Verdict,
 }
 
-/// Mean prediction against the observed outcome over a set of rows.
+/// Calibration in the large on the batch against the same on the test split.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub(crate) struct CalibrationCheck {
-    /// Which rows and which quantity, in words.
-    pub what: String,
-    pub rows: usize,
-    pub mean_predicted: f64,
-    pub observed: f64,
+    pub batch: CalibrationSummary,
+    pub test: Option<CalibrationSummary>,
+    /// (batch gap - test gap) over its standard error.
     pub z: f64,
     pub p_value: f64,
     pub verdict: Verdict,
@@ -95,44 +96,33 @@ pub(crate) fn two_sided_normal(z: f64) -> f64 {
     libm::erfc(z.abs() / std::f64::consts::SQRT_2)
 }
 
-fn calibration_check(what: String, predicted: &[f64], observed: &[f64], sd_unit: Option<f64>, alpha: f64) -> CalibrationCheck {
-    let n = predicted.len();
-    let nf = n.max(1) as f64;
-    let mean_predicted = predicted.iter().sum::<f64>() / nf;
-    let mean_observed = observed.iter().sum::<f64>() / nf;
-    let gap = mean_observed - mean_predicted;
-    let standard_error = match sd_unit {
-        // Regression: the residuals' standard deviation over √n.
-        Some(_) => {
-            let residuals: Vec<f64> = observed.iter().zip(predicted).map(|(y, p)| y - p).collect();
-            let var = residuals.iter().map(|r| (r - gap) * (r - gap)).sum::<f64>() / (nf - 1.0).max(1.0);
-            (var / nf).sqrt()
-        }
-        // A sum of Bernoulli outcomes with these probabilities, as a share.
-        None => predicted.iter().map(|p| p * (1.0 - p)).sum::<f64>().sqrt() / nf,
-    };
-    let z = if standard_error > 0.0 { gap / standard_error } else { 0.0 };
-    let p_value = if n == 0 { 1.0 } else { two_sided_normal(z) };
+fn calibration_check(batch: CalibrationSummary, test: Option<CalibrationSummary>, sd_unit: Option<f64>, alpha: f64) -> CalibrationCheck {
+    let test_gap = test.as_ref().map_or(0.0, CalibrationSummary::gap);
+    let change = batch.gap() - test_gap;
+    let standard_error = (batch.residual_variance + test.as_ref().map_or(0.0, |t| t.residual_variance)).sqrt();
+    let z = if standard_error > 0.0 { change / standard_error } else { 0.0 };
+    let p_value = if batch.rows == 0 || test.as_ref().is_some_and(|t| t.rows == 0) { 1.0 } else { two_sided_normal(z) };
     let size = match sd_unit {
-        Some(sd) if sd > 0.0 => gap.abs() / sd,
-        _ => gap.abs(),
+        Some(sd) if sd > 0.0 => change.abs() / sd,
+        _ => change.abs(),
     };
     let unit = if sd_unit.is_some() { " target sd" } else { "" };
     let figures = format!(
-        "{what}: observed {}, predicted {} (gap {}{unit}, p = {})",
-        sig(mean_observed, 4),
-        sig(mean_predicted, 4),
+        "{}: observed - predicted {} on the batch, {} on the test split (change {}{unit}, p = {})",
+        batch.what,
+        sig(batch.gap(), 3),
+        test.as_ref().map_or("-".into(), |t| sig(t.gap(), 3)),
         sig(size, 3),
         sig(p_value, 3)
     );
-    let verdict = if n > 0 && p_value < alpha && size >= CALIBRATION_ACT_GAP {
+    let verdict = if p_value < alpha && size >= CALIBRATION_ACT_GAP {
         Verdict { status: Status::Act, reason: format!("{figures}: significant at {alpha} and at least {CALIBRATION_ACT_GAP}") }
-    } else if n > 0 && p_value < alpha {
+    } else if p_value < alpha {
         Verdict { status: Status::Watch, reason: format!("{figures}: significant at {alpha}") }
     } else {
         Verdict::stable(figures)
     };
-    CalibrationCheck { what, rows: n, mean_predicted, observed: mean_observed, z, p_value, verdict }
+    CalibrationCheck { batch, test, z, p_value, verdict }
 }
 
 /// What the deployed model's outcomes on the batch say, set against the test figures of `selection`.
@@ -144,6 +134,7 @@ pub(crate) fn judge(
     class_labels: &[String],
     threshold: Option<f64>,
     target_std: Option<f64>,
+    reference: &[CalibrationSummary],
     resamples: usize,
     seed: u64,
     alpha: f64,
@@ -173,37 +164,13 @@ pub(crate) fn judge(
             Some(MetricCheck { metric: m.name.to_string(), higher_is_better: higher, batch, test, verdict })
         })
         .collect();
-    let mut calibration = Vec::new();
-    match &observed.labels {
-        Labels::Values(y) => {
-            calibration.push(calibration_check(
-                "mean outcome, every row".into(),
-                &observed.outputs,
-                y,
-                Some(target_std.unwrap_or(1.0)),
-                alpha,
-            ));
-        }
-        Labels::Classes { rows, classes } => {
-            let first = if *classes == 2 { 1 } else { 0 };
-            for c in first..*classes {
-                let p: Vec<f64> = observed.outputs.chunks_exact(k).map(|r| r[c]).collect();
-                let y: Vec<f64> = rows.iter().map(|&l| f64::from(u8::from(l == c))).collect();
-                let label = class_labels.get(c).cloned().unwrap_or_default();
-                calibration.push(calibration_check(format!("share of {label}, every row"), &p, &y, None, alpha));
-                if let (Some(t), 2) = (threshold, *classes) {
-                    for (side, above) in [
-                        (format!("decided {label} (p >= {})", sig(t, 4)), true),
-                        (format!("not decided {label} (p < {})", sig(t, 4)), false),
-                    ] {
-                        let idx: Vec<usize> = (0..p.len()).filter(|&i| (p[i] >= t) == above).collect();
-                        let sp: Vec<f64> = idx.iter().map(|&i| p[i]).collect();
-                        let sy: Vec<f64> = idx.iter().map(|&i| y[i]).collect();
-                        calibration.push(calibration_check(format!("share of {label}, {side}"), &sp, &sy, None, alpha));
-                    }
-                }
-            }
-        }
-    }
+    let sd_unit = (task == crate::manifest::Task::Regression).then(|| target_std.unwrap_or(1.0));
+    let calibration = calibration_summaries(&observed.outputs, &observed.labels, class_labels, threshold)
+        .into_iter()
+        .map(|batch| {
+            let test = reference.iter().find(|t| t.what == batch.what).cloned();
+            calibration_check(batch, test, sd_unit, alpha)
+        })
+        .collect();
     Outcomes { rows: n, unlabelled: observed.unlabelled, resamples, bootstrap_seed: seed, metrics, calibration }
 }

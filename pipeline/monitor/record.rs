@@ -176,16 +176,21 @@ pub(crate) fn markdown(report: &MonitorReport, recorded: &Recorded) -> String {
                 m.verdict.status.as_str()
             );
         }
-        let _ = writeln!(out, "\n| calibration | rows | predicted | observed | p-value | status |");
-        let _ = writeln!(out, "| --- | --- | --- | --- | --- | --- |");
+        let _ = writeln!(
+            out,
+            "\nCalibration in the large: observed minus predicted on the batch against the same on the test split (the change's p-value from a normal approximation).\n"
+        );
+        let _ = writeln!(out, "| rows | batch: predicted → observed | test split: predicted → observed | p-value of the change | status |");
+        let _ = writeln!(out, "| --- | --- | --- | --- | --- |");
         for c in &o.calibration {
             let _ = writeln!(
                 out,
-                "| {} | {} | {} | {} | {} | **{}** |",
-                markdown_cell_text(&c.what),
-                c.rows,
-                sig(c.mean_predicted, 4),
-                sig(c.observed, 4),
+                "| {} ({}) | {} → {} | {} | {} | **{}** |",
+                markdown_cell_text(&c.batch.what),
+                c.batch.rows,
+                sig(c.batch.mean_predicted, 4),
+                sig(c.batch.observed, 4),
+                c.test.as_ref().map_or("-".into(), |t| format!("{} → {}", sig(t.mean_predicted, 4), sig(t.observed, 4))),
                 sig(c.p_value, 3),
                 c.verdict.status.as_str()
             );

@@ -119,7 +119,11 @@ fn overall(verdicts: &[&Verdict]) -> Verdict {
     let setting: Vec<&str> = verdicts.iter().filter(|v| v.status == worst).map(|v| v.reason.as_str()).collect();
     let reason = match worst {
         Status::Stable => format!("all {} checks read stable", verdicts.len()),
-        _ => format!("{} of {} checks read {}: {}", setting.len(), verdicts.len(), worst.as_str(), setting.join("; ")),
+        _ => {
+            let shown = setting.iter().take(3).copied().collect::<Vec<_>>().join("; ");
+            let more = if setting.len() > 3 { format!("; and {} more (see the report)", setting.len() - 3) } else { String::new() };
+            format!("{} of {} checks read {}: {shown}{more}", setting.len(), verdicts.len(), worst.as_str())
+        }
     };
     Verdict { status: worst, reason }
 }
