@@ -1,7 +1,7 @@
 //! Benchmark measurements (not tests), called by `tests/bench/run.sh`; each prints one JSON line.
 //!
 //! ```text
-//! bench data ROWS COLS OUT.parquet          synthetic table: x00.. float32 features, y = 0/1 (seed 2026)
+//! bench data ROWS COLS OUT.parquet [--no-target]  synthetic table: x00.. float32 features, y = 0/1 (seed 2026)
 //! bench train DATA --hidden 256,256 --batch 256 --epochs 3 [--dropout P] [--bn] [--cols K]
 //!       [--train-rows N] [--regression]    one single-threaded run, the reference AdamW settings;
 //!                                           timed: `--epochs` epochs after one warm-up epoch
@@ -50,12 +50,14 @@ fn synthetic(rows: usize, cols: usize) -> (Vec<f32>, Vec<usize>) {
     (x, y)
 }
 
-fn write_data(rows: usize, cols: usize, out: &Path) {
+fn write_data(rows: usize, cols: usize, out: &Path, with_target: bool) {
     let (x, y) = synthetic(rows, cols);
     let mut columns: Vec<(String, ArrayRef)> = (0..cols)
         .map(|c| (format!("x{c:02}"), Arc::new(Float32Array::from((0..rows).map(|r| x[r * cols + c]).collect::<Vec<f32>>())) as ArrayRef))
         .collect();
-    columns.push(("y".into(), Arc::new(Int64Array::from(y.iter().map(|&v| v as i64).collect::<Vec<i64>>()))));
+    if with_target {
+        columns.push(("y".into(), Arc::new(Int64Array::from(y.iter().map(|&v| v as i64).collect::<Vec<i64>>()))));
+    }
     let bytes = encode(columns, WriteOptions::default()).expect("encode");
     std::fs::write(out, &bytes).expect("write");
     println!("{{\"rows\": {rows}, \"cols\": {cols}, \"bytes\": {}}}", bytes.len());
@@ -344,7 +346,9 @@ fn main() {
     tabcard::numerics::prepare_process();
     let args: Vec<String> = std::env::args().collect();
     match args.get(1).map(String::as_str) {
-        Some("data") => write_data(args[2].parse().expect("rows"), args[3].parse().expect("cols"), Path::new(&args[4])),
+        Some("data") => {
+            write_data(args[2].parse().expect("rows"), args[3].parse().expect("cols"), Path::new(&args[4]), !flag(&args, "--no-target"))
+        }
         Some("train") => bench_train(&args),
         Some("hash") => bench_hash(&args),
         Some("load") => bench_load(&args),

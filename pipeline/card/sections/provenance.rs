@@ -30,6 +30,8 @@ pub(crate) struct Provenance {
     pub(crate) results_folder: String,
     pub(crate) verify_command: String,
     pub(crate) train_command: String,
+    /// Layout 7 on: how new batches are set against the stored reference population.
+    pub(crate) monitor_command: Option<String>,
 }
 
 pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &NumericsFingerprint) -> Provenance {
@@ -76,6 +78,8 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
         },
         jobs: timing.map(|t| t.jobs.to_string()).unwrap_or_else(|| "unknown".into()),
         verify_command: code_span(&format!("tabcard verify {folder}")),
+        monitor_command: (st.layout_version >= crate::analysis::profile::PROFILE_FROM)
+            .then(|| code_span(&format!("tabcard monitor {folder} <batch.parquet>"))),
         results_folder: code_span(&folder),
         train_command: code_span(&format!("tabcard train {} --results <empty folder>", st.record.location.manifest_path)),
     }
