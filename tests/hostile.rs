@@ -552,3 +552,24 @@ fn files_that_once_made_the_parquet_crate_panic_give_one_line_errors() {
     }
     assert!(seen >= 3);
 }
+
+#[test]
+fn a_forged_and_resealed_reference_profile_is_caught_by_verify() {
+    // A forger who moves a decile edge of profile.json (so that a drifting batch would read
+    // stable) and rewrites the integrity list changes the results digest, and verify, which
+    // re-derives the profile from the training rows, names the file.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let manifest = small_lease_experiment(d, 600, "");
+    let folder = trained(d, &manifest);
+    let path = folder.join("profile.json");
+    let mut profile: serde_json::Value = serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
+    let edges = profile["features"][0]["bins"]["edges"].as_array_mut().unwrap();
+    let first = edges[0].as_f64().unwrap();
+    edges[0] = (first - 1.0).into();
+    std::fs::write(&path, serde_json::to_vec_pretty(&profile).unwrap()).unwrap();
+    reseal(&folder);
+    let out = run_in(d, &["verify", folder.to_str().unwrap(), "--quiet"]);
+    assert_eq!(out.status.code(), Some(6), "{}{}", stdout(&out), stderr(&out));
+    assert!(stdout(&out).contains("profile.json does not match the reference population"), "{}", stdout(&out));
+}

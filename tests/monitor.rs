@@ -183,6 +183,10 @@ fn a_batch_monitored_again_reproduces_its_record_and_the_history_shows_every_bat
     assert_eq!(stdout(&history).lines().filter(|l| l.contains("batch-")).count(), 2, "{}", stdout(&history));
     let listed = stdout(&run_in(dir.path(), &["list", "--results", "results"]));
     assert!(listed.contains("stable ("), "list shows the latest status: {listed}");
+    // verify re-derives profile.json, and the attached records do not disturb it.
+    let verified = run_in(dir.path(), &["verify", folder_copy.to_str().unwrap(), "--quiet"]);
+    assert!(verified.status.success(), "{}{}", stdout(&verified), stderr(&verified));
+    assert!(stdout(&verified).contains("matches profile.json"), "{}", stdout(&verified));
     // A tampered record is named, and nothing more is written.
     let newest = std::fs::read_dir(folder_copy.join("monitoring")).unwrap().map(|e| e.unwrap().path()).max().unwrap();
     let report_path = newest.join("report.json");
