@@ -22,9 +22,10 @@ struct Cli {
     /// Print no progress (header, bar or per-run lines) on stderr; reports and errors still print.
     #[arg(long, global = true)]
     quiet: bool,
-    /// Print the report as one JSON document instead of text (check, train, verify, compare,
-    /// history, list); fields are listed in README, "Machine-readable output".
-    #[arg(long, global = true)]
+    /// Print the report as one JSON document instead of text; only check, train, verify, compare,
+    /// history, list and monitor have one (each also takes `--json` after its name); fields are
+    /// listed in README, "Machine-readable output".
+    #[arg(long)]
     json: bool,
     #[command(subcommand)]
     command: Command,
@@ -50,6 +51,9 @@ enum Command {
     /// Validate a manifest and its data; print fingerprints, data summary, split checks, run plan and memory estimate.
     #[command(after_help = "Example:\n  tabcard check experiments/lease-default.toml")]
     Check {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// The experiment manifest (TOML).
         manifest: PathBuf,
     },
@@ -58,6 +62,9 @@ enum Command {
         after_help = "Examples:\n  tabcard train experiments/lease-default.toml\n  tabcard train experiments/lease-default.toml --jobs 8 --results /shared/results"
     )]
     Train {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// The experiment manifest (TOML).
         manifest: PathBuf,
         /// Folder holding one results folder per experiment fingerprint, and the ledger.
@@ -112,6 +119,9 @@ enum Command {
     /// Rerun an experiment from its results folder (or manifest) and compare every tensor, history row and metric.
     #[command(after_help = "Examples:\n  tabcard verify results/4f13816fd93d258d\n  tabcard verify experiments/lease-default.toml --all")]
     Verify {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// A results folder, or a manifest whose results live under --results.
         target: PathBuf,
         /// Retrain every run, not only the selected configuration's.
@@ -172,6 +182,9 @@ enum Command {
         after_help = "Examples:\n  tabcard compare results/4f13816fd93d258d results/8e1f0c2a9b7d4e11\n  tabcard compare experiments/lease-default.toml experiments/lease-wider.toml"
     )]
     Compare {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// The first experiment: a results folder or a manifest.
         a: PathBuf,
         /// The second experiment: a results folder or a manifest.
@@ -183,6 +196,9 @@ enum Command {
     /// List every recorded train invocation and whether it was verified.
     #[command(after_help = "Example:\n  tabcard history --results results")]
     History {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// The results root holding ledger.jsonl.
         #[arg(long, default_value = "results")]
         results: PathBuf,
@@ -190,6 +206,9 @@ enum Command {
     /// List the experiments in a results root: fingerprint, name, date, selected configuration, headline, verified or not.
     #[command(after_help = "Example:\n  tabcard list --results results")]
     List {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// The results root.
         #[arg(long, default_value = "results")]
         results: PathBuf,
@@ -208,6 +227,9 @@ enum Command {
         after_help = "Examples:\n  tabcard monitor results/4f13816fd93d258d applications-2027-01.parquet\n  tabcard monitor experiments/lease-default.toml outcomes-2027-01.parquet --outcomes\n  tabcard monitor results/4f13816fd93d258d --history\n\nExit status: 0 stable, 8 watch, 9 act (6 when a batch monitored again does not reproduce its record)."
     )]
     Monitor {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
         /// A results folder, or a manifest whose results live under --results.
         target: PathBuf,
         /// The batch (Parquet) with the model's feature columns, and the target once outcomes are known.
@@ -265,8 +287,8 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
         Command::Scaffold { data, target, out, force } => {
             Done::text(commands::scaffold::run(&data, &commands::scaffold::ScaffoldOptions { target, out, force })?)
         }
-        Command::Check { manifest } => Done::report(commands::check::run(&manifest, default_jobs())?),
-        Command::Train { manifest, results, jobs, shard } => {
+        Command::Check { manifest, .. } => Done::report(commands::check::run(&manifest, default_jobs())?),
+        Command::Train { manifest, results, jobs, shard, .. } => {
             let jobs = tabcard::threads::workers(jobs.unwrap_or_else(default_jobs), tabcard::threads::MAX_WORKERS)?;
             tabcard::threads::limit_to(jobs);
             let (bar, on_event) = progress_display(quiet);
@@ -276,7 +298,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             let o = outcome?;
             Done { text: o.report, json: Some(o.json), code: if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK } }
         }
-        Command::Verify { target, all, results, jobs, data } => {
+        Command::Verify { target, all, results, jobs, data, .. } => {
             let jobs = tabcard::threads::workers(jobs.unwrap_or_else(default_jobs), tabcard::threads::MAX_WORKERS)?;
             tabcard::threads::limit_to(jobs);
             let options = commands::verify::VerifyOptions { all, jobs, data, results_root: results };
@@ -308,11 +330,11 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             let options = commands::slurm::SlurmOptions { results_root: results, resources, runs_per_task, executable, submit };
             Done::text(commands::slurm::run(&manifest, &options)?)
         }
-        Command::Compare { a, b, results } => Done::report(commands::compare::run(&a, &b, &results)?),
-        Command::History { results } => Done::report(commands::history::run(&results)?),
-        Command::List { results } => Done::report(commands::list::run(&results)?),
+        Command::Compare { a, b, results, .. } => Done::report(commands::compare::run(&a, &b, &results)?),
+        Command::History { results, .. } => Done::report(commands::history::run(&results)?),
+        Command::List { results, .. } => Done::report(commands::list::run(&results)?),
         Command::Card { results_folder, templates } => Done::text(commands::card::run(&results_folder, templates.as_deref())?),
-        Command::Monitor { target, batch, outcomes, history, results } => {
+        Command::Monitor { target, batch, outcomes, history, results, .. } => {
             let o = match batch {
                 Some(batch) if !history => {
                     commands::monitor::run(&target, &batch, &commands::monitor::MonitorOptions { results_root: results, outcomes })?
@@ -335,7 +357,17 @@ fn main() -> ExitCode {
     use std::io::Write;
     tabcard::numerics::prepare_process();
     let cli = Cli::parse();
-    let json = cli.json;
+    let json = cli.json
+        || matches!(
+            cli.command,
+            Command::Check { json: true, .. }
+                | Command::Train { json: true, .. }
+                | Command::Verify { json: true, .. }
+                | Command::Compare { json: true, .. }
+                | Command::History { json: true, .. }
+                | Command::List { json: true, .. }
+                | Command::Monitor { json: true, .. }
+        );
     let reports_json = matches!(
         cli.command,
         Command::Check { .. }

@@ -153,19 +153,28 @@ fn json_reports_parse_and_carry_their_documented_fields() {
     assert_eq!(compare["manifest_changes"].as_array().unwrap().len(), 0);
     assert!(compare["validation"].as_array().unwrap().iter().all(|r| r["within_noise"] == true));
     // Commands without a JSON report say so before doing anything.
-    let out = run_in(dir.path(), &["--json", "demo-data", "somewhere"]);
-    assert_eq!(out.status.code(), Some(2));
-    assert!(!dir.path().join("somewhere").exists());
+    for args in [&["--json", "demo-data", "somewhere"][..], &["demo-data", "somewhere", "--json"][..]] {
+        let out = run_in(dir.path(), args);
+        assert_eq!(out.status.code(), Some(2), "{args:?}");
+        assert!(!dir.path().join("somewhere").exists());
+    }
+    let after = json_of(&run_in(dir.path(), &["list", "--results", "results", "--json"]));
+    assert_eq!(after["experiments"][0]["verified"], "yes", "--json after the command's name");
 }
 
 #[test]
 fn every_command_has_help_with_an_example_and_described_arguments() {
     let dir = tempfile::tempdir().unwrap();
-    for command in ["scaffold", "check", "train", "slurm", "verify", "predict", "compare", "history", "list", "card", "demo-data"] {
+    let with_json = ["check", "train", "verify", "compare", "history", "list", "monitor"];
+    for command in
+        ["scaffold", "check", "train", "slurm", "verify", "predict", "compare", "history", "list", "monitor", "card", "demo-data"]
+    {
         let out = run_in(dir.path(), &[command, "--help"]);
         assert!(out.status.success());
         let help = stdout(&out);
         assert!(help.contains("Example"), "{command} --help has no example:\n{help}");
+        // Only the commands with a JSON report advertise `--json`, and they take it after their name.
+        assert_eq!(help.contains("--json"), with_json.contains(&command), "{command} --help:\n{help}");
         // clap prints an argument without a description as a bare name: every argument line must
         // carry text after its name.
         for line in help.lines().filter(|l| l.starts_with("  <") || l.starts_with("      --") || l.starts_with("  -")) {
