@@ -244,3 +244,43 @@ fn check_stays_short_on_a_wide_table() {
     let json = json_of(&run_in(dir.path(), &["--json", "check", "m.toml"]));
     assert_eq!(json["summary"]["columns"].as_array().unwrap().len(), 3051);
 }
+
+#[test]
+fn compare_judges_metrics_only_between_models_of_one_table_and_target() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let a = small_lease_experiment(d, 800, "");
+    let text = std::fs::read_to_string(&a).unwrap();
+    std::fs::write(d.join("b.toml"), text.replace("hidden = [16]", "hidden = [32]").replace("small-lease", "small-lease-wider")).unwrap();
+    let folder_a = trained(d, &a);
+    let folder_of = |name: &str| {
+        std::fs::read_dir(d.join("results"))
+            .unwrap()
+            .map(|e| e.unwrap().path())
+            .find(|p| p.is_dir() && std::fs::read_to_string(p.join("manifest.json")).unwrap().contains(name))
+            .unwrap()
+    };
+    assert!(run_in(d, &["train", "b.toml", "--results", "results", "--quiet"]).status.success());
+    let folder_b = folder_of("small-lease-wider");
+    let same = stdout(&run_in(d, &["compare", folder_a.to_str().unwrap(), folder_b.to_str().unwrap()]));
+    assert!(same.contains("selected configurations: A ") && same.contains("), B "), "both selected configurations are named: {same}");
+    assert!(same.contains("(95% bootstrap interval"), "test intervals are shown: {same}");
+    assert!(!same.contains("not judged"), "{same}");
+    assert!(same.contains("within noise") || same.contains("better, beyond seed noise"), "{same}");
+    // Another table and target: the figures are shown, never judged against seed noise.
+    std::fs::copy(repo_path("tests/data/open/breast_cancer.parquet"), d.join("breast_cancer.parquet")).unwrap();
+    std::fs::write(
+        d.join("bc.toml"),
+        "[experiment]\nname = \"bc\"\n[data]\npath = \"breast_cancer.parquet\"\ntarget = \"diagnosis\"\ntask = \"binary\"\n[model]\nhidden = [8]\n[training]\nepochs = 5\n[selection]\nbootstrap = 100\n[sweep]\nseeds = [1, 2]\n",
+    )
+    .unwrap();
+    assert!(run_in(d, &["train", "bc.toml", "--results", "results", "--quiet"]).status.success());
+    let folder_bc = folder_of("\"bc\"");
+    let out = run_in(d, &["compare", folder_a.to_str().unwrap(), folder_bc.to_str().unwrap()]);
+    let report = stdout(&out);
+    assert!(report.contains("metrics: shown, not judged: A predicts `defaulted_12m` and B `diagnosis`"), "{report}");
+    assert!(!report.contains("beyond seed noise") && !report.contains("within noise"), "{report}");
+    let j = json_of(&run_in(d, &["compare", folder_a.to_str().unwrap(), folder_bc.to_str().unwrap(), "--json"]));
+    assert!(j["not_judged"].as_str().unwrap().contains("diagnosis"));
+    assert!(j["validation"].as_array().unwrap().iter().all(|r| r["within_noise"].is_null()));
+}

@@ -10,8 +10,10 @@ use std::fmt::Write;
 use std::path::Path;
 
 use crate::error::Result;
+use crate::experiment::plan::config_label;
 use crate::format::{fixed, mean_sd};
 use crate::manifest::Task;
+use crate::metrics::registry;
 use crate::results::Sealed;
 use crate::selection::{ConfigSummary, Selection};
 use crate::text::terminal_safe;
@@ -34,6 +36,7 @@ fn flatten(prefix: &str, v: &Value, out: &mut BTreeMap<String, Value>) {
 struct Side {
     fingerprint: String,
     task: Task,
+    target: String,
     file_sha256: String,
     content_sha256: String,
     manifest: BTreeMap<String, Value>,
@@ -50,12 +53,16 @@ fn is_manifest(path: &Path) -> bool {
 fn load_folder(folder: &Path) -> Result<Side> {
     let sealed = Sealed::open(folder)?;
     let mut flat = BTreeMap::new();
-    flatten("", &sealed.manifest_value()?, &mut flat);
+    // Through the manifest type, as a manifest file is read below, so both sides show defaults alike.
+    let manifest = sealed.manifest()?;
+    let value = serde_json::to_value(&manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
+    flatten("", &value, &mut flat);
     let selection = sealed.selection()?;
     let record = sealed.record;
     Ok(Side {
         fingerprint: record.fingerprint,
         task: record.task,
+        target: manifest.data.target.clone(),
         file_sha256: record.data.file_sha256,
         content_sha256: record.data.content_sha256,
         manifest: flat,
@@ -75,6 +82,7 @@ fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     Ok(Side {
         fingerprint: exp.fingerprint.clone(),
         task: exp.manifest.data.task,
+        target: exp.manifest.data.target.clone(),
         file_sha256: exp.data.file_sha256.clone(),
         content_sha256: exp.data.content_sha256.clone(),
         manifest: flat,
@@ -103,13 +111,14 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
     let _ = writeln!(out, "B  {} ({})", b.display(), &sb.fingerprint[..16]);
     json.insert("a".into(), serde_json::json!({ "path": a.display().to_string(), "fingerprint": sa.fingerprint }));
     json.insert("b".into(), serde_json::json!({ "path": b.display().to_string(), "fingerprint": sb.fingerprint }));
-    let _ = writeln!(out, "\nmanifest changes (resolved, defaults filled):");
+    let _ = writeln!(out, "\nmanifest changes (resolved):");
     let keys: std::collections::BTreeSet<&String> = sa.manifest.keys().chain(sb.manifest.keys()).collect();
     let mut changes = Vec::new();
     for k in keys {
         let (va, vb) = (sa.manifest.get(k), sb.manifest.get(k));
         if va != vb {
-            let show = |v: Option<&Value>| v.map(|v| terminal_safe(&v.to_string())).unwrap_or_else(|| "(absent)".into());
+            // A resolved manifest leaves out a key only when it holds its default.
+            let show = |v: Option<&Value>| v.map(|v| terminal_safe(&v.to_string())).unwrap_or_else(|| "(not set: the default)".into());
             let _ = writeln!(out, "  {k}: {} -> {}", show(va), show(vb));
             changes.push(serde_json::json!({ "key": k, "a": va, "b": vb }));
         }
@@ -159,8 +168,32 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
         json.insert("metrics_not_compared".into(), Value::String(format!("tasks differ: {} and {}", sa.task.as_str(), sb.task.as_str())));
         return Ok(super::Report { text: out, json: Value::Object(json) });
     }
-    let _ = writeln!(out, "\nselected configurations, validation (mean ± sd across seeds) and test:");
+    // Metrics of two experiments are judged against seed noise only when they predict the same
+    // target from the same table: otherwise their validation and test rows differ, and a metric
+    // difference mixes the models with the data.
+    let unrelated = match (sa.target == sb.target, sa.content_sha256 == sb.content_sha256) {
+        (false, _) => Some(format!("A predicts `{}` and B `{}`", terminal_safe(&sa.target), terminal_safe(&sb.target))),
+        (true, false) => {
+            Some("A and B were trained on different data (the content SHA-256 differs), so their validation and test rows differ".into())
+        }
+        (true, true) => None,
+    };
     let (ca, cb) = (selected(sel_a), selected(sel_b));
+    let label = |c: Option<&ConfigSummary>| c.map(|c| config_label(&c.overrides, c.baseline)).unwrap_or_else(|| "-".into());
+    let _ = writeln!(
+        out,
+        "\nselected configurations: A {} (run {}), B {} (run {})",
+        label(ca),
+        sel_a.selected_run,
+        label(cb),
+        sel_b.selected_run
+    );
+    json.insert("selected".into(), serde_json::json!({ "a": label(ca), "b": label(cb) }));
+    if let Some(why) = &unrelated {
+        let _ = writeln!(out, "metrics: shown, not judged: {why}");
+        json.insert("not_judged".into(), Value::String(why.clone()));
+    }
+    let _ = writeln!(out, "\nvalidation (mean ± sd across seeds):");
     let metrics: std::collections::BTreeSet<&String> = ca
         .map(|c| c.validation.keys().collect::<Vec<_>>())
         .unwrap_or_default()
@@ -174,16 +207,47 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
         let delta = y.mean - x.mean;
         let noise = 2.0 * (x.sd * x.sd + y.sd * y.sd).sqrt();
         let within = delta.abs() <= noise;
-        let judgement = if within { "within noise (|delta| <= 2 combined sd)" } else { "beyond seed noise" };
+        let better = match registry::direction(sa.task, m) {
+            Some(d) if registry::better(d, y.mean, x.mean) => "B",
+            Some(_) => "A",
+            None => "?",
+        };
+        let judgement = match (&unrelated, within) {
+            (Some(_), _) => "not judged (see above)".to_string(),
+            (None, true) => "within noise (|delta| <= 2 combined sd)".to_string(),
+            (None, false) => format!("{better} better, beyond seed noise"),
+        };
         let _ =
             writeln!(out, "  {:<18} {:>18} {:>18} {:>9}  {judgement}", m, mean_sd(x.mean, x.sd), mean_sd(y.mean, y.sd), fixed(delta, 4));
-        rows.push(serde_json::json!({ "metric": m, "a": x, "b": y, "delta": delta, "within_noise": within }));
+        rows.push(serde_json::json!({
+            "metric": m, "a": x, "b": y, "delta": delta,
+            "within_noise": unrelated.is_none().then_some(within),
+            "better": (unrelated.is_none() && !within).then_some(better),
+        }));
     }
     json.insert("validation".into(), Value::Array(rows));
     let m = &sel_a.metric;
     if let (Some(x), Some(y)) = (sel_a.test.metrics.get(m).copied().flatten(), sel_b.test.metrics.get(m).copied().flatten()) {
-        let _ = writeln!(out, "  test {m}: A {} B {} (delta {})", fixed(x, 4), fixed(y, 4), fixed(y - x, 4));
-        json.insert("test".into(), serde_json::json!({ "metric": m, "a": x, "b": y }));
+        let interval = |s: &Selection| {
+            s.test
+                .intervals
+                .get(m)
+                .map(|i| format!(" (95% bootstrap interval {} to {})", fixed(i.lower, 4), fixed(i.upper, 4)))
+                .unwrap_or_default()
+        };
+        let _ = writeln!(
+            out,
+            "test {m}: A {}{}, B {}{} (B - A {})",
+            fixed(x, 4),
+            interval(sel_a),
+            fixed(y, 4),
+            interval(sel_b),
+            fixed(y - x, 4)
+        );
+        json.insert(
+            "test".into(),
+            serde_json::json!({ "metric": m, "a": x, "b": y, "a_interval": sel_a.test.intervals.get(m), "b_interval": sel_b.test.intervals.get(m) }),
+        );
     }
     Ok(super::Report { text: out, json: Value::Object(json) })
 }

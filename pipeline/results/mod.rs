@@ -84,11 +84,6 @@ impl Sealed {
         serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
     }
 
-    /// The stored manifest as JSON (for key-by-key comparison).
-    pub(crate) fn manifest_value(&self) -> Result<serde_json::Value> {
-        serde_json::from_str(&self.manifest_text).map_err(|e| Error::store(self.layout.manifest(), format!("unreadable: {e}")))
-    }
-
     pub(crate) fn selection(&self) -> Result<Selection> {
         read_json(&self.layout.selection())
     }
