@@ -184,15 +184,29 @@ fn a_small_test_split_is_flagged_with_its_class_counts() {
 fn a_model_that_cannot_beat_chance_is_flagged() {
     // Sleepstudy: every subject is observed on every day (Belenky et al. 2003's design), so the
     // subject alone says nothing about whether a row is from day 5 or later.
-    let (card, rules) = rules_for(
+    let dir = tempfile::tempdir().unwrap();
+    let m = open_manifest(
+        dir.path(),
         "sleepstudy.parquet",
         &format!("target = \"late\"\ntask = \"binary\"\nfeatures = [\"Subject\"]\n{}", fast_training("[1, 2]")),
     );
+    let (card, rules) = card_rules(dir.path(), &m);
     assert!(rules.contains("no_better_than_chance"), "{rules:?}");
     assert!(card.contains("**Reviewer's attention:** Do not use this model for decisions"), "{card}");
+    // `list` carries the card's warning.
+    let listed = stdout(&run_in(dir.path(), &["list", "--results", "results"]));
+    assert!(listed.contains("its card says do not use"), "{listed}");
     // Breast cancer's diagnosis is well predicted (ROC AUC near 0.99).
-    let (_, rules) = rules_for("breast_cancer.parquet", &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")));
+    let dir = tempfile::tempdir().unwrap();
+    let m = open_manifest(
+        dir.path(),
+        "breast_cancer.parquet",
+        &format!("target = \"diagnosis\"\ntask = \"binary\"\n{}", fast_training("[1, 2]")),
+    );
+    let (_, rules) = card_rules(dir.path(), &m);
     assert!(!rules.contains("no_better_than_chance"), "{rules:?}");
+    let listed: Value = serde_json::from_slice(&run_in(dir.path(), &["list", "--results", "results", "--json"]).stdout).unwrap();
+    assert!(listed["experiments"][0]["card_warning"].is_null(), "{listed}");
 }
 
 fn subjects(exp: &tabcard::experiment::Experiment, rows: &[usize]) -> BTreeSet<String> {

@@ -147,7 +147,17 @@ fn json_reports_parse_and_carry_their_documented_fields() {
     let list = json_of(&run_in(dir.path(), &["--json", "list", "--results", "results"]));
     let listed = &list["experiments"][0];
     assert_eq!(listed["fingerprint"], check["fingerprint"]);
-    assert_eq!(listed["verified"], "yes");
+    assert_eq!(listed["verified"]["status"], "yes");
+    let latest = &listed["verified"]["latest"];
+    assert_eq!(
+        (latest["runs_checked"].as_u64(), latest["runs_planned"].as_u64(), latest["all"].as_bool()),
+        (Some(2), Some(4), Some(false))
+    );
+    assert!(latest["machine"].as_str().is_some_and(|m| !m.is_empty()) && latest["tool_version"].is_string());
+    assert_eq!(listed["manifest"], "small.toml");
+    let text = stdout(&run_in(dir.path(), &["list", "--results", "results"]));
+    assert!(text.contains("yes: 2 of 4 runs on "), "what was verified is said: {text}");
+    assert!(stdout(&run_in(dir.path(), &["history", "--results", "results"])).contains("yes: 2 of 4 runs on "));
     assert!(listed["test_value"].as_f64().is_some());
     let compare = json_of(&run_in(dir.path(), &["--json", "compare", &folder, &folder]));
     assert_eq!(compare["manifest_changes"].as_array().unwrap().len(), 0);
@@ -159,7 +169,7 @@ fn json_reports_parse_and_carry_their_documented_fields() {
         assert!(!dir.path().join("somewhere").exists());
     }
     let after = json_of(&run_in(dir.path(), &["list", "--results", "results", "--json"]));
-    assert_eq!(after["experiments"][0]["verified"], "yes", "--json after the command's name");
+    assert_eq!(after["experiments"][0]["verified"]["status"], "yes", "--json after the command's name");
 }
 
 #[test]

@@ -310,7 +310,8 @@ fn list_never_shows_a_tampered_folder_as_verified() {
     let out = run_in(d, &["verify", folder.to_str().unwrap(), "--quiet"]);
     assert!(out.status.success(), "{}", stdout(&out));
     let listed = stdout(&run_in(d, &["list"]));
-    assert!(listed.lines().nth(1).unwrap().split_whitespace().rev().nth(1) == Some("yes"), "verified, not monitored yet: {listed}");
+    assert!(listed.lines().nth(1).unwrap().contains(" yes: 2 of 4 runs on "), "verified, not monitored yet: {listed}");
+    assert!(listed.lines().nth(1).unwrap().trim_end().ends_with(" -"), "not monitored yet: {listed}");
     let selection = folder.join("selection.json");
     let text = std::fs::read_to_string(&selection).unwrap();
     let value: serde_json::Value = serde_json::from_str(&text).unwrap();
@@ -320,11 +321,12 @@ fn list_never_shows_a_tampered_folder_as_verified() {
     std::fs::write(&selection, serde_json::to_vec_pretty(&edited).unwrap()).unwrap();
     let out = run_in(d, &["list"]);
     let listed = stdout(&out);
-    assert!(listed.lines().nth(1).unwrap().split_whitespace().rev().nth(1) == Some("TAMPERED"), "{listed}");
+    assert!(listed.lines().nth(1).unwrap().contains(" TAMPERED ") && !listed.contains("yes: "), "{listed}");
     assert!(!listed.contains("0.9700"), "the forged figure is not shown: {listed}");
     assert!(listed.contains("selection.json: was changed after it was recorded"), "{listed}");
     let json: serde_json::Value = serde_json::from_slice(&run_in(d, &["list", "--json"]).stdout).unwrap();
-    assert_eq!(json["experiments"][0]["verified"], "TAMPERED");
+    assert_eq!(json["experiments"][0]["verified"]["status"], "TAMPERED");
+    assert!(json["experiments"][0]["verified"]["latest"].is_null(), "no verification shown for a tampered folder");
 }
 
 #[test]

@@ -1,5 +1,6 @@
 //! `tabcard history [--results DIR]`: the ledger: every completed selection with its time,
-//! experiment, fingerprint, git commit, selected metric, and whether it has been verified.
+//! experiment, fingerprint, git commit, selected metric, what its latest verification checked
+//! (runs of runs planned, when) and its latest monitoring status.
 
 use std::fmt::Write;
 use std::path::Path;
@@ -36,8 +37,8 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
         };
         let metric = e.selected_value.map(|v| format!("{} {}", e.selection_metric, fixed(v, 4))).unwrap_or_else(|| "-".into());
         let verified = match verifications.iter().rev().find(|v| v.fingerprint == e.fingerprint) {
-            Some(v) if v.identical => format!("yes ({})", v.time),
-            Some(v) => format!("FAILED ({})", v.time),
+            Some(v) if v.identical => format!("yes: {}", v.describe()),
+            Some(v) => format!("FAILED: {}", v.describe()),
             None => "no".into(),
         };
         let _ = writeln!(

@@ -272,6 +272,8 @@ pub(crate) struct Listing {
     pub integrity_error: Option<String>,
     pub selection: Option<Selection>,
     pub timing: Option<TimingRecord>,
+    /// The card as stored, only when the folder matches its lists.
+    pub card: Option<String>,
 }
 
 impl Listing {
@@ -284,7 +286,8 @@ impl Listing {
         let integrity_error = if sealed { integrity::check(&layout.root).err().map(|e| e.to_string()) } else { None };
         let selection = if layout.selection().exists() && integrity_error.is_none() { Some(read_json(&layout.selection())?) } else { None };
         let timing = crate::store::timing::read(&layout.timing()).ok().flatten();
-        Ok(Listing { record, sealed, integrity_error, selection, timing })
+        let card = if sealed && integrity_error.is_none() { std::fs::read_to_string(layout.card()).ok() } else { None };
+        Ok(Listing { record, sealed, integrity_error, selection, timing, card })
     }
 
     /// Whether `path` is an experiment's results folder (it holds `format.json`).

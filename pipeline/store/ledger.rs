@@ -51,6 +51,28 @@ pub(crate) struct VerificationEntry {
     pub results: String,
     pub runs_checked: usize,
     pub identical: bool,
+    /// The runs of the experiment's plan (absent in lines written before tabcard 0.9).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub runs_planned: Option<usize>,
+    /// Every run retrained (`--all`), or the selected configuration's only.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub all: Option<bool>,
+    /// The verifying tabcard and the machine it ran on (architecture, OS, dispatch level).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub tool_version: Option<String>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub machine: Option<String>,
+}
+
+impl VerificationEntry {
+    /// What was verified, in words: `3 of 15 runs on 2026-12-03` (`3 runs on ...` for old lines).
+    pub(crate) fn describe(&self) -> String {
+        let runs = match self.runs_planned {
+            Some(planned) => format!("{} of {planned} runs", self.runs_checked),
+            None => format!("{} runs", self.runs_checked),
+        };
+        format!("{runs} on {}", self.time.get(..10).unwrap_or(&self.time))
+    }
 }
 
 pub(crate) const VERIFICATIONS: &str = "verifications.jsonl";

@@ -112,6 +112,10 @@ pub(crate) struct Verification {
     pub numerics: NumericsCheck,
     /// Every run retrained (`true`) or the selected configuration's only.
     pub all: bool,
+    /// The runs of the experiment's plan.
+    pub runs_planned: usize,
+    /// This tabcard and the machine verifying (architecture, OS, dispatch level).
+    pub verifier: (String, String),
     pub runs: Vec<RunCheck>,
     pub selection: SelectionCheck,
     pub card: CardCheck,
@@ -142,6 +146,10 @@ impl Verification {
             results: crate::store::folder_name(&self.folder),
             runs_checked: self.runs.len(),
             identical: self.identical(),
+            runs_planned: Some(self.runs_planned),
+            all: Some(self.all),
+            tool_version: Some(self.verifier.0.clone()),
+            machine: Some(self.verifier.1.clone()),
         }
     }
 }
@@ -432,6 +440,8 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         None => LedgerCheck::NotRecorded,
     };
     Ok(Verification {
+        runs_planned: prepared.plan.runs.len(),
+        verifier: (now.tool_version.clone(), format!("{} {}, kernels at {}", now.target_arch, now.target_os, now.kernel_level)),
         folder: layout.root.clone(),
         fingerprint: record.fingerprint.clone(),
         data_path,

@@ -13,6 +13,14 @@ use crate::text::markdown_safe as md;
 
 use crate::card::cells::{spread_text, Row};
 
+/// The card's sentence for a model whose test results are not shown to beat chance (`list` looks
+/// for it).
+pub(crate) const DO_NOT_USE: &str =
+    "Do not use this model for decisions: its test results are not shown to beat chance (see the known limitations).";
+/// The card's sentence when the linear baseline beats the selected network (`list` looks for it).
+pub(crate) const PREFER_BASELINE: &str =
+    "A reviewer should prefer the linear baseline: it beats the selected network on validation data beyond seed noise (see the known limitations).";
+
 /// A confusion matrix with its per-class report, at one decision threshold.
 #[derive(Serialize)]
 pub(crate) struct Decision {
@@ -202,9 +210,9 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
     };
     let serious: Vec<&Limitation> = limitations.iter().filter(|l| l.serious).collect();
     let preference = if serious.iter().any(|l| l.rule == "baseline_beats_network") {
-        "A reviewer should prefer the linear baseline: it beats the selected network on validation data beyond seed noise (see the known limitations).".to_string()
+        PREFER_BASELINE.to_string()
     } else if serious.iter().any(|l| l.rule == "no_better_than_chance") {
-        "Do not use this model for decisions: its test results are not shown to beat chance (see the known limitations).".to_string()
+        DO_NOT_USE.to_string()
     } else {
         String::new()
     };
