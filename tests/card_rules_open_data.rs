@@ -354,3 +354,25 @@ fn few_rows_per_parameter_fires_only_when_the_capacity_shows_in_the_gap() {
     assert!(rules.contains("few_rows_per_parameter"), "{rules:?}\n{card}");
     assert!(card.contains("and rmse is worse on validation than on training by"), "{card}");
 }
+
+#[test]
+fn classes_never_predicted_and_a_baseline_that_wins_other_metrics_are_flagged() {
+    // ggplot2's mpg, the vehicle class from engine displacement and highway mileage only: seven
+    // classes of 5 to 62 cars. Two inputs cannot tell every class apart, and the small network
+    // selected on log loss gives minivans (2 test cars) and pickups (7) to no test car, as the
+    // stored confusion matrix shows; the multinomial baseline is worse on log loss but better
+    // calibrated (validation ECE 0.079 ± 0.003 against the network's 0.133 ± 0.016).
+    let body = "target = \"class\"\ntask = \"multiclass\"\nfeatures = [\"displ\", \"hwy\"]\n\n[model]\nhidden = [16]\n\n[training]\nepochs = 40\nbatch_size = 32\nlearning_rate = 0.01\n\n[selection]\nbootstrap = 300\n\n[sweep]\nseeds = [1, 2]\n";
+    let (card, rules) = rules_for("mpg.parquet", body);
+    assert!(rules.contains("class_never_predicted"), "{rules:?}");
+    assert!(card.contains("gives no test row the class \"minivan\""), "{card}");
+    assert!(rules.contains("baseline_better_on_other_metrics"), "{rules:?}");
+    assert!(card.contains("the network was selected on log\\_loss, on which it is ahead of the baseline"), "{card}");
+    // Iris: three separable species, every one predicted, the network ahead on every metric.
+    let body = body.replace("target = \"class\"", "target = \"species\"").replace(
+        "features = [\"displ\", \"hwy\"]",
+        "features = [\"sepal_length_cm\", \"sepal_width_cm\", \"petal_length_cm\", \"petal_width_cm\"]",
+    );
+    let (_, rules) = rules_for("iris.parquet", &body);
+    assert!(!rules.contains("class_never_predicted") && !rules.contains("baseline_better_on_other_metrics"), "{rules:?}");
+}

@@ -37,6 +37,12 @@ pub(crate) struct Evidence {
     pub selected: Option<(f64, f64)>,
     /// The same for the linear baseline.
     pub baseline: Option<(f64, f64)>,
+    /// Every other card metric with both validation spreads: (metric, higher is better, network
+    /// (mean, sd), linear baseline (mean, sd)).
+    pub baseline_other_metrics: Vec<(String, bool, (f64, f64), (f64, f64))>,
+    /// Classifiers: classes with test rows that the deployed decision never gives on the test
+    /// split, with their test rows.
+    pub never_predicted: Vec<(String, usize)>,
     /// Train minus validation of the selection metric, oriented so positive means "train better".
     pub gap: Option<f64>,
     pub test_ece: Option<f64>,
@@ -152,6 +158,30 @@ pub(crate) fn gather(
         .enumerate()
         .map(|(c, row)| (record.class_labels.get(c).cloned().unwrap_or_default(), row.iter().sum::<usize>()))
         .min_by_key(|(_, n)| *n);
+    let baseline_other_metrics = match (selected_summary, baseline_summary) {
+        (Some(net), Some(base)) => registry::table(task)
+            .iter()
+            .filter(|metric| metric.on_card && metric.name != m.as_str())
+            .filter_map(|metric| {
+                let (n, b) = (net.validation.get(metric.name)?, base.validation.get(metric.name)?);
+                Some((metric.name.to_string(), metric.direction == Direction::Maximise, (n.mean, n.sd), (b.mean, b.sd)))
+            })
+            .collect(),
+        _ => Vec::new(),
+    };
+    // The decision as deployed: a binary model's at its threshold (when the folder records one),
+    // otherwise the most probable class.
+    let deployed_confusion = match (task, &t.chosen_threshold) {
+        (Task::Binary, Some(report)) if !report.confusion.is_empty() => &report.confusion,
+        _ => &t.confusion,
+    };
+    let never_predicted = (0..deployed_confusion.len())
+        .filter_map(|c| {
+            let rows: usize = deployed_confusion[c].iter().sum();
+            let predicted: usize = deployed_confusion.iter().map(|row| row.get(c).copied().unwrap_or(0)).sum();
+            (rows > 0 && predicted == 0).then(|| (record.class_labels.get(c).cloned().unwrap_or_default(), rows))
+        })
+        .collect();
     let simpler_within_noise = match (selection.rule, selected_summary) {
         (SelectionRule::Best, Some(chosen)) => simpler_within_one_se(&selection.configs, chosen, m, dir)
             .into_iter()
@@ -175,6 +205,8 @@ pub(crate) fn gather(
         scale: metric_scale(task, m, summary),
         selected: selected_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
         baseline: baseline_summary.and_then(|s| s.validation.get(m)).map(|s| (s.mean, s.sd)),
+        baseline_other_metrics,
+        never_predicted,
         gap: selected_summary.and_then(|s| s.gap.as_ref()).map(|g| selection.worse_on_validation(g.mean)),
         test_ece: t.metrics.get("ece").copied().flatten(),
         test_ece_lower: t.intervals.get("ece").map(|i| i.lower),

@@ -1,5 +1,6 @@
 //! Limitation rules about the evaluation: a small test split, poor calibration, no better than
-//! chance, and the network against its linear baseline.
+//! chance, the network against its linear baseline (on the selection metric, and on every other
+//! card metric), and classes the deployed decision never gives.
 
 use super::finding::*;
 use crate::card::evidence::Evidence;
@@ -153,4 +154,61 @@ pub(super) fn baseline_beats_network(e: &Evidence) -> Option<Limitation> {
         )
         .serious()
     })
+}
+
+const OTHER_METRICS_THRESHOLD: &str = "the linear baseline ahead of the network on another card metric by more than twice the combined seed standard deviation of its validation means (common practice); when metrics disagree the selection metric decides what is deployed, so the reviewer should judge whether the metrics the baseline wins matter more for this decision";
+
+/// The selection metric may favour the network while another card metric favours the baseline
+/// beyond seed noise (a probability-quality metric such as log loss against a decision metric
+/// such as balanced accuracy): the card says so and which model each metric prefers.
+pub(super) fn baseline_better_on_other_metrics(e: &Evidence) -> Option<Limitation> {
+    // When the selection metric already prefers the baseline, `baseline_beats_network` says so.
+    if baseline_comparison(e).is_some_and(|c| c.advantage < -c.noise) {
+        return None;
+    }
+    let wins: Vec<String> = e
+        .baseline_other_metrics
+        .iter()
+        .filter(|(_, higher, (nm, ns), (bm, bs))| {
+            let advantage = if *higher { bm - nm } else { nm - bm };
+            advantage > 2.0 * (ns * ns + bs * bs).sqrt()
+        })
+        .map(|(name, _, (nm, ns), (bm, bs))| {
+            format!("{name}: linear baseline {} ± {}, network {} ± {}", sig(*bm, 4), sig(*bs, 2), sig(*nm, 4), sig(*ns, 2))
+        })
+        .collect();
+    if wins.is_empty() {
+        return None;
+    }
+    let on_selection = match baseline_comparison(e) {
+        Some(c) if c.advantage > c.noise => "ahead of the baseline beyond seed noise",
+        Some(_) => "level with the baseline within seed noise",
+        None => "compared without the baseline",
+    };
+    Some(Limitation::new(
+        "baseline_better_on_other_metrics",
+        "The linear baseline wins on other metrics",
+        format!(
+            "validation {}; the network was selected on {}, on which it is {on_selection}: prefer the network if {} is what the decision needs, the baseline if the metrics it wins matter more",
+            wins.join("; "),
+            e.metric,
+            e.metric
+        ),
+        OTHER_METRICS_THRESHOLD.into(),
+    ))
+}
+
+/// A classifier whose deployed decision never gives some class on the test split, though the
+/// class has test rows: for those rows the model cannot be right.
+pub(super) fn class_never_predicted(e: &Evidence) -> Option<Limitation> {
+    if e.never_predicted.is_empty() {
+        return None;
+    }
+    let classes: Vec<String> = e.never_predicted.iter().map(|(label, rows)| format!("\"{label}\" ({rows} test rows)")).collect();
+    Some(Limitation::new(
+        "class_never_predicted",
+        "Some classes are never predicted",
+        format!("the deployed decision gives no test row the class {}; every row of those classes is misclassified", classes.join(", ")),
+        "every class with test rows predicted for at least one test row".into(),
+    ))
 }

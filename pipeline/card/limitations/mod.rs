@@ -29,6 +29,7 @@ pub(crate) const RULES: &[(&str, Rule)] = &[
     ("no_better_than_chance", no_better_than_chance),
     ("baseline_beats_network", baseline_beats_network),
     ("small_test_split", small_test_split),
+    ("class_never_predicted", class_never_predicted),
     ("repeated_key_across_splits", repeated_key_across_splits),
     ("duplicates_across_splits", duplicates_across_splits),
     ("few_rows_per_parameter", few_rows_per_parameter),
@@ -48,6 +49,7 @@ pub(crate) const RULES: &[(&str, Rule)] = &[
     ("selection_at_grid_edge", selection_at_grid_edge),
     ("selection_within_noise", selection_within_noise),
     ("baseline_within_noise", baseline_within_noise),
+    ("baseline_better_on_other_metrics", baseline_better_on_other_metrics),
     ("failed_runs", failed_runs),
 ];
 
@@ -75,6 +77,8 @@ mod tests {
             scale: (1.0, "the metric's range".into()),
             selected: Some((0.85, 0.004)),
             baseline: Some((0.75, 0.002)),
+            baseline_other_metrics: vec![("balanced_accuracy".into(), true, (0.80, 0.005), (0.72, 0.004))],
+            never_predicted: Vec::new(),
             gap: Some(0.01),
             test_ece: Some(0.02),
             test_ece_lower: Some(0.01),
@@ -136,6 +140,8 @@ mod tests {
             ("baseline_within_noise", Box::new(|e| e.baseline = Some((0.845, 0.004)))),
             ("baseline_beats_network", Box::new(|e| e.baseline = Some((0.87, 0.002)))),
             ("failed_runs", Box::new(|e| e.failed_runs = 1)),
+            ("baseline_better_on_other_metrics", Box::new(|e| e.baseline_other_metrics[0].3 = (0.82, 0.004))),
+            ("class_never_predicted", Box::new(|e| e.never_predicted = vec![("yes".into(), 1200)])),
         ];
         for (rule, change) in cases {
             let mut e = healthy();
