@@ -20,6 +20,16 @@ pub(crate) struct ClassShare {
     pub share: f64,
 }
 
+/// One validation metric of the selected network and of the linear baseline: (mean, sd) across
+/// seeds each.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct MetricPair {
+    pub metric: String,
+    pub higher_is_better: bool,
+    pub network: (f64, f64),
+    pub baseline: (f64, f64),
+}
+
 #[derive(Debug, Clone, Default)]
 pub(crate) struct Evidence {
     pub classification: bool,
@@ -37,9 +47,8 @@ pub(crate) struct Evidence {
     pub selected: Option<(f64, f64)>,
     /// The same for the linear baseline.
     pub baseline: Option<(f64, f64)>,
-    /// Every other card metric with both validation spreads: (metric, higher is better, network
-    /// (mean, sd), linear baseline (mean, sd)).
-    pub baseline_other_metrics: Vec<(String, bool, (f64, f64), (f64, f64))>,
+    /// Every other card metric with both validation spreads.
+    pub baseline_other_metrics: Vec<MetricPair>,
     /// Classifiers: classes with test rows that the deployed decision never gives on the test
     /// split, with their test rows.
     pub never_predicted: Vec<(String, usize)>,
@@ -164,7 +173,12 @@ pub(crate) fn gather(
             .filter(|metric| metric.on_card && metric.name != m.as_str())
             .filter_map(|metric| {
                 let (n, b) = (net.validation.get(metric.name)?, base.validation.get(metric.name)?);
-                Some((metric.name.to_string(), metric.direction == Direction::Maximise, (n.mean, n.sd), (b.mean, b.sd)))
+                Some(MetricPair {
+                    metric: metric.name.to_string(),
+                    higher_is_better: metric.direction == Direction::Maximise,
+                    network: (n.mean, n.sd),
+                    baseline: (b.mean, b.sd),
+                })
             })
             .collect(),
         _ => Vec::new(),

@@ -169,12 +169,14 @@ pub(super) fn baseline_better_on_other_metrics(e: &Evidence) -> Option<Limitatio
     let wins: Vec<String> = e
         .baseline_other_metrics
         .iter()
-        .filter(|(_, higher, (nm, ns), (bm, bs))| {
-            let advantage = if *higher { bm - nm } else { nm - bm };
+        .filter(|p| {
+            let ((nm, ns), (bm, bs)) = (p.network, p.baseline);
+            let advantage = if p.higher_is_better { bm - nm } else { nm - bm };
             advantage > 2.0 * (ns * ns + bs * bs).sqrt()
         })
-        .map(|(name, _, (nm, ns), (bm, bs))| {
-            format!("{name}: linear baseline {} ± {}, network {} ± {}", sig(*bm, 4), sig(*bs, 2), sig(*nm, 4), sig(*ns, 2))
+        .map(|p| {
+            let ((nm, ns), (bm, bs)) = (p.network, p.baseline);
+            format!("{}: linear baseline {} ± {}, network {} ± {}", p.metric, sig(bm, 4), sig(bs, 2), sig(nm, 4), sig(ns, 2))
         })
         .collect();
     if wins.is_empty() {

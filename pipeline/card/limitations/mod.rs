@@ -61,7 +61,7 @@ pub(crate) fn derive(e: &Evidence) -> Vec<Limitation> {
 mod tests {
     use super::*;
     use crate::analysis::fairness::{Estimate, FairnessReport, GroupDisparity, GroupFigures, ADVERSE_IMPACT_RATIO, ECE, FPR_GAP, TPR_GAP};
-    use crate::card::evidence::ClassShare;
+    use crate::card::evidence::{ClassShare, MetricPair};
 
     fn healthy() -> Evidence {
         Evidence {
@@ -77,7 +77,12 @@ mod tests {
             scale: (1.0, "the metric's range".into()),
             selected: Some((0.85, 0.004)),
             baseline: Some((0.75, 0.002)),
-            baseline_other_metrics: vec![("balanced_accuracy".into(), true, (0.80, 0.005), (0.72, 0.004))],
+            baseline_other_metrics: vec![MetricPair {
+                metric: "balanced_accuracy".into(),
+                higher_is_better: true,
+                network: (0.80, 0.005),
+                baseline: (0.72, 0.004),
+            }],
             never_predicted: Vec::new(),
             gap: Some(0.01),
             test_ece: Some(0.02),
@@ -140,7 +145,7 @@ mod tests {
             ("baseline_within_noise", Box::new(|e| e.baseline = Some((0.845, 0.004)))),
             ("baseline_beats_network", Box::new(|e| e.baseline = Some((0.87, 0.002)))),
             ("failed_runs", Box::new(|e| e.failed_runs = 1)),
-            ("baseline_better_on_other_metrics", Box::new(|e| e.baseline_other_metrics[0].3 = (0.82, 0.004))),
+            ("baseline_better_on_other_metrics", Box::new(|e| e.baseline_other_metrics[0].baseline = (0.82, 0.004))),
             ("class_never_predicted", Box::new(|e| e.never_predicted = vec![("yes".into(), 1200)])),
         ];
         for (rule, change) in cases {
