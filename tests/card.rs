@@ -52,6 +52,8 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
         assert!(page.contains(needle), "card lacks {needle}");
     }
     let figures = ["learning-curves.svg", "grid-model-dropout.svg", "reliability.svg"];
+    let selection: serde_json::Value = serde_json::from_slice(&std::fs::read(folder.join("selection.json")).unwrap()).unwrap();
+    let selected_config = selection["selected_config"].clone();
     for f in figures {
         assert!(page.contains(&format!("src=\"figures/{f}\"")), "card does not show {f}");
         let svg = std::fs::read_to_string(folder.join("figures").join(f)).unwrap();
@@ -69,6 +71,23 @@ fn the_card_has_every_section_figures_and_is_reproducible() {
         assert!(points >= 2, "{f}: a series with {points} points");
         if f == "learning-curves.svg" {
             assert!(series.contains(&"seed 1 train") && series.contains(&"seed 2 validation"), "{series:?}");
+            // Each seed's kept epoch is marked, at the epoch its run record names.
+            for seed in [1, 2] {
+                let kept =
+                    series.iter().find(|s| s.starts_with(&format!("seed {seed}: kept epoch "))).unwrap_or_else(|| panic!("{series:?}"));
+                let epoch: usize = kept.split("kept epoch ").nth(1).unwrap().split(',').next().unwrap().parse().unwrap();
+                let recorded = std::fs::read_dir(folder.join("runs"))
+                    .unwrap()
+                    .map(|e| {
+                        serde_json::from_slice::<serde_json::Value>(&std::fs::read(e.unwrap().path().join("result.json")).unwrap()).unwrap()
+                    })
+                    .find(|r| r["seed"] == seed && r["config_id"] == selected_config)
+                    .unwrap();
+                assert_eq!(recorded["best_epoch"], epoch, "seed {seed}");
+            }
+        }
+        if f == "grid-model-dropout.svg" {
+            assert!(series.contains(&"selected configuration") && series.contains(&"linear baseline, validation"), "{series:?}");
         }
     }
 

@@ -50,6 +50,19 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             marks: None,
             background: false,
         });
+        // The epoch whose weights were kept (early stopping keeps the best validation epoch).
+        if let Some(kept) = h.iter().find(|e| e.epoch == r.record.best_epoch) {
+            let stop = if r.record.stopped_early { format!(", stopped at {}", r.record.epochs_run) } else { String::new() };
+            series.push(Series {
+                name: format!("seed {}: kept epoch {}{stop}", r.record.seed, kept.epoch),
+                points: vec![(kept.epoch as f64, kept.validation_loss)],
+                errors: None,
+                dashed: false,
+                colour,
+                marks: Some(vec![Mark { weight: 0.15, lower: kept.validation_loss, upper: kept.validation_loss, label: "kept".into() }]),
+                background: false,
+            });
+        }
     }
     let chart = Chart {
         title: "Learning curves, selected configuration".into(),
@@ -62,7 +75,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
     };
     out.push((
         "learning-curves.svg".into(),
-        "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration".into(),
+        "training (solid) and validation (dashed) loss per epoch for every seed of the selected configuration; a circle labelled kept marks the epoch whose weights each seed kept (the legend says where early stopping ended a run)".into(),
         chart.render(),
     ));
 
@@ -96,6 +109,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
             }
         }
         let mut series = Vec::new();
+        let line_count = lines.len();
         for (colour, (label, (val, sd, train))) in lines.into_iter().enumerate() {
             series.push(Series {
                 name: format!("{label} validation"),
@@ -116,6 +130,32 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
                 background: false,
             });
         }
+        // The selected configuration's point, and the linear baseline as a level line.
+        if let Some(chosen) = selection.selected_summary() {
+            let x = chosen.overrides.get(key).and_then(|v| values.iter().position(|g| g == v));
+            if let (Some(x), Some(v)) = (x, chosen.validation.get(m)) {
+                series.push(Series {
+                    name: "selected configuration".into(),
+                    points: vec![(x as f64, v.mean)],
+                    errors: None,
+                    dashed: false,
+                    colour: line_count.min(6),
+                    marks: Some(vec![Mark { weight: 0.15, lower: v.mean, upper: v.mean, label: "selected".into() }]),
+                    background: false,
+                });
+            }
+        }
+        if let Some(base) = selection.configs.iter().find(|c| c.baseline).and_then(|c| c.validation.get(m)) {
+            series.push(Series {
+                name: "linear baseline, validation".into(),
+                points: (0..values.len()).map(|x| (x as f64, base.mean)).collect(),
+                errors: None,
+                dashed: true,
+                colour: 7,
+                marks: None,
+                background: false,
+            });
+        }
         let chart = Chart {
             title: format!("{m} across {key}"),
             x_label: key.clone(),
@@ -127,7 +167,7 @@ pub(crate) fn figures(manifest: &Manifest, selection: &Selection, selected_runs:
         };
         out.push((
             figure_name(key),
-            format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}"),
+            format!("validation (solid, mean ± sd across seeds) and training (dashed) {m} for each value of {key}; a circle labelled selected marks the selected configuration, a grey dashed line the linear baseline's validation mean"),
             chart.render(),
         ));
     }

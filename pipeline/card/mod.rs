@@ -102,7 +102,8 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         groups: groups(&st),
         importance: importance(&st),
         sensitivity: sensitivity(&st, &curve_figs),
-        figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: md(a) }).collect(),
+        // Captions are sentences of our own that embed names: escaped, never cut.
+        figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: crate::text::markdown_line(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),
     };

@@ -57,8 +57,8 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
             Row::of([
                 "numerical kernels".into(),
                 md_line(&format!(
-                    "{}; model definition and stored form: candle {}",
-                    environment.kernel_features, environment.candle_version
+                    "tabcard's own portable matrix kernels, version {}: each output of a matrix product is one fused multiply-add chain in a fixed order, at every dispatch level, so the level changes no bit (README, \"What is reproducible, and where\"); model definition and stored form: candle {}",
+                    environment.kernel_version, environment.candle_version
                 )),
             ]),
             Row::of(["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))]),
