@@ -260,6 +260,13 @@ enum Command {
     },
 }
 
+/// The regular file standard output is redirected to, where the system says (Linux's
+/// `/proc/self/fd/1`); `None` for a terminal, a pipe or another system.
+fn redirected_stdout() -> Option<PathBuf> {
+    let path = std::fs::read_link("/proc/self/fd/1").ok()?;
+    std::fs::metadata(&path).ok()?.is_file().then_some(path)
+}
+
 fn default_jobs() -> usize {
     std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1)
 }
@@ -285,7 +292,8 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
     let quiet = cli.quiet;
     Ok(match cli.command {
         Command::Scaffold { data, target, out, force } => {
-            Done::text(commands::scaffold::run(&data, &commands::scaffold::ScaffoldOptions { target, out, force })?)
+            let stdout_file = if out.is_none() { redirected_stdout() } else { None };
+            Done::text(commands::scaffold::run(&data, &commands::scaffold::ScaffoldOptions { target, out, force, stdout_file })?)
         }
         Command::Check { manifest, .. } => Done::report(commands::check::run(&manifest, default_jobs())?),
         Command::Train { manifest, results, jobs, shard, .. } => {

@@ -294,3 +294,59 @@ fn compare_judges_metrics_only_between_models_of_one_table_and_target() {
     assert!(j["not_judged"].as_str().unwrap().contains("diagnosis"));
     assert!(j["validation"].as_array().unwrap().iter().all(|r| r["within_noise"].is_null()));
 }
+
+#[test]
+fn scaffold_picks_a_target_named_like_one_sets_aside_a_split_column_and_follows_a_redirect() {
+    use arrow::array::{Int64Array, StringArray};
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Breast cancer (scikit-learn 1.9.1) with its own split assignment appended as the last
+    // column, as some published copies carry it: the split column is neither target nor feature.
+    let file = std::fs::File::open(repo_path("tests/data/open/breast_cancer.parquet")).unwrap();
+    let reader = parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder::try_new(file).unwrap().build().unwrap();
+    let batches: Vec<_> = reader.map(Result::unwrap).collect();
+    let table = arrow::compute::concat_batches(&batches[0].schema(), &batches).unwrap();
+    let rows = table.num_rows();
+    let split: StringArray = (0..rows).map(|r| Some(["train", "train", "train", "valid", "test"][r % 5])).collect();
+    let schema = table.schema();
+    let mut columns: Vec<(&str, arrow::array::ArrayRef)> =
+        schema.fields().iter().map(|f| f.name().as_str()).zip(table.columns().iter().cloned()).collect();
+    columns.push(("split", std::sync::Arc::new(split)));
+    write_parquet(&d.join("cancer.parquet"), columns);
+    let text = stdout(&run_in(d, &["scaffold", "cancer.parquet"]));
+    assert!(
+        text.contains("target = \"diagnosis\"") && text.contains("chosen because its name says it is what the table predicts"),
+        "{text}"
+    );
+    assert!(text.contains("split") && text.contains("looks like a split assignment (test, train, valid)"), "{text}");
+    assert!(text.contains("drop = [\"split\"]"), "{text}");
+    assert!(text.contains("# [split.labels] train = [\"train\"], validation = [\"valid\"], test = [\"test\"]"), "{text}");
+    // A penguin-like table whose last column is the study year: the species is the target.
+    let n = 60;
+    write_parquet(
+        &d.join("birds.parquet"),
+        vec![
+            ("species", std::sync::Arc::new((0..n).map(|i| Some(["adelie", "gentoo", "chinstrap"][i % 3])).collect::<StringArray>()) as _),
+            ("bill_mm", std::sync::Arc::new((0..n).map(|i| Some(30.0 + (i % 17) as f64)).collect::<arrow::array::Float64Array>()) as _),
+            ("year", std::sync::Arc::new(Int64Array::from((0..n).map(|i| 2007 + (i % 3) as i64).collect::<Vec<_>>())) as _),
+        ],
+    );
+    let text = stdout(&run_in(d, &["scaffold", "birds.parquet"]));
+    assert!(text.contains("target = \"species\""), "{text}");
+    // Printed into a file in another folder, the data path is relative to that file.
+    std::fs::create_dir(d.join("experiments")).unwrap();
+    let manifest = d.join("experiments/birds.toml");
+    let status = common::bin()
+        .current_dir(d)
+        .args(["scaffold", "birds.parquet"])
+        .stdout(std::fs::File::create(&manifest).unwrap())
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let text = std::fs::read_to_string(&manifest).unwrap();
+    if cfg!(target_os = "linux") {
+        assert!(text.contains("path = \"../birds.parquet\"  # relative to this manifest"), "{text}");
+        let check = run_in(d, &["check", "experiments/birds.toml"]);
+        assert!(check.status.success(), "{}", stderr(&check));
+    }
+}

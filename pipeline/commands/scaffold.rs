@@ -1,7 +1,9 @@
 //! `tabcard scaffold <data.parquet>`: a commented starter manifest written from the data itself:
 //! every column with its detected type, missing share and distinct count and a suggested role,
-//! the task inferred from the target, and every section with its documented defaults (taken from
-//! the schema's own `Default`s, so they cannot drift). The result passes `check` unchanged.
+//! the target (a column named like one, else the last that can be one, and why), a split column
+//! set aside and shown as `[split] column`, the task inferred from the target, and every section
+//! with its documented defaults (taken from the schema's own `Default`s, so they cannot drift).
+//! The result passes `check` unchanged.
 
 use std::fmt::Write;
 use std::path::{Path, PathBuf};
@@ -17,6 +19,59 @@ pub struct ScaffoldOptions {
     pub target: Option<String>,
     pub out: Option<PathBuf>,
     pub force: bool,
+    /// Without `--out`: the file standard output is redirected to, when the caller can tell
+    /// (`tabcard scaffold data.parquet > experiments/x.toml`), so the data path is relative to it.
+    pub stdout_file: Option<PathBuf>,
+}
+
+/// Column names that usually hold what a table is made to predict (compared in lower case; also
+/// any name ending in `_target`, `_label` or `_outcome`).
+const TARGET_NAMES: &[&str] =
+    &["target", "label", "y", "outcome", "class", "response", "diagnosis", "species", "churn", "survived", "fraud", "default", "defaulted"];
+
+/// Values of a column that assigns rows to splits (compared in lower case).
+const SPLIT_WORDS: &[&str] = &["train", "training", "valid", "validation", "val", "dev", "test", "testing", "holdout"];
+
+fn named_like_a_target(name: &str) -> bool {
+    let lower = name.to_ascii_lowercase();
+    TARGET_NAMES.contains(&lower.as_str()) || ["_target", "_label", "_outcome"].iter().any(|s| lower.ends_with(s))
+}
+
+/// The levels of a text column whose every value is a split word and which holds at least two
+/// of them: a split assignment, never a target or a feature.
+fn split_levels(col: &Column) -> Option<Vec<String>> {
+    let ColumnValues::Text { .. } = col.values else { return None };
+    let mut levels = std::collections::BTreeSet::new();
+    for r in 0..col.len() {
+        if let Some(l) = col.label(r) {
+            if !SPLIT_WORDS.contains(&l.to_ascii_lowercase().as_str()) {
+                return None;
+            }
+            levels.insert(l);
+        }
+    }
+    (levels.len() >= 2).then(|| levels.into_iter().collect())
+}
+
+/// The target when `--target` is not given, and why: a column named like a target, else the last
+/// column that can be one (not a split assignment, an identifier, constant or all null).
+fn choose_target(table: &Table) -> Option<(String, String)> {
+    let usable = |c: &&Column| {
+        let d = distinct(c);
+        split_levels(c).is_none()
+            && c.null_count() < table.rows
+            && d > 1
+            && !(d == table.rows && table.rows > 20 && !matches!(c.values, ColumnValues::Float(_) | ColumnValues::Float32(_)))
+    };
+    if let Some(c) = table.columns.iter().filter(usable).find(|c| named_like_a_target(&c.name)) {
+        return Some((
+            c.name.clone(),
+            "chosen because its name says it is what the table predicts; pass --target to choose another".into(),
+        ));
+    }
+    table.columns.iter().rev().find(usable).map(|c| {
+        (c.name.clone(), "the last column that can be a target (no column is named like one); pass --target to choose another".into())
+    })
 }
 
 struct Profile {
@@ -44,6 +99,8 @@ fn profile(col: &Column, rows: usize, target: &str) -> Profile {
     let d = distinct(col);
     let (role, why) = if col.name == target {
         (Role::Target, "the column to predict".to_string())
+    } else if let Some(levels) = split_levels(col) {
+        (Role::NotUsed, format!("looks like a split assignment ({}): see `column` under [split]", levels.join(", ")))
     } else if nulls == rows {
         (Role::NotUsed, "every value is null".into())
     } else if d <= 1 {
@@ -128,15 +185,25 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
             }
             t.clone()
         }
-        None => table.columns.last().map(|c| c.name.clone()).ok_or_else(|| Error::data(data, None, "has no columns"))?,
+        None => choose_target(table).map(|(t, _)| t).ok_or_else(|| Error::data(data, None, "has no column that can be a target"))?,
+    };
+    let target_why = match &options.target {
+        Some(_) => "given by --target".to_string(),
+        None => choose_target(table).map(|(_, why)| why).unwrap_or_default(),
     };
     let profiles: Vec<Profile> = table.columns.iter().map(|c| profile(c, table.rows, &target)).collect();
     let target_profile =
         profiles.iter().find(|p| p.role == Role::Target).ok_or_else(|| Error::Internal("the target has no profile".into()))?;
     let target_col = table.column(&target).ok_or_else(|| Error::Internal("the target vanished".into()))?;
     let task = task_for(target_col, target_profile.distinct);
-    let folder = options.out.as_ref().and_then(|o| o.parent()).filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let manifest_file = options.out.as_ref().or(options.stdout_file.as_ref());
+    let folder = manifest_file.and_then(|o| o.parent()).filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
     let data_path = relative(folder, data);
+    let path_note = if manifest_file.is_some() {
+        "relative to this manifest".to_string()
+    } else {
+        "relative to the folder scaffold ran in: move it with the manifest, or use --out, which makes it relative to the file".to_string()
+    };
     let stem = data.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "experiment".into());
     let names = |role: Role| -> Vec<String> { profiles.iter().filter(|p| p.role == role).map(|p| p.name.clone()).collect() };
 
@@ -159,8 +226,15 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
         writeln!(out, "affects_people = true  # true adds the cautions for decisions about people (credit, insurance, health) to the card");
 
     let _ = writeln!(out, "\n[data]");
-    let _ = writeln!(out, "path = {}  # relative to this manifest", toml_string(&data_path));
-    let _ = writeln!(out, "target = {}  # {}, {} distinct values", toml_string(&target), target_profile.kind, target_profile.distinct);
+    let _ = writeln!(out, "path = {}  # {path_note}", toml_string(&data_path));
+    let _ = writeln!(
+        out,
+        "target = {}  # {}, {} distinct values; {}",
+        toml_string(&target),
+        target_profile.kind,
+        target_profile.distinct,
+        comment_safe(&target_why)
+    );
     let _ = writeln!(out, "task = \"{}\"  # binary | multiclass | regression (suggested from the target)", task.as_str());
     let _ = writeln!(out, "# Columns: detected type, missing share, distinct values -> suggested role");
     for p in &profiles {
@@ -187,7 +261,29 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
 
     let split = SplitSpec::default();
     section(&mut out, "split", &split, &[("stratify", "keep class shares equal across splits (classification)")], &[])?;
-    let _ = writeln!(out, "# column = \"period\"  # take the split from a column (values train / validation / test) instead");
+    match table.columns.iter().find_map(|c| split_levels(c).map(|levels| (c, levels))) {
+        Some((col, levels)) => {
+            let pick = |words: &[&str]| -> Vec<String> {
+                levels.iter().filter(|l| words.contains(&l.to_ascii_lowercase().as_str())).cloned().collect()
+            };
+            let _ = writeln!(
+                out,
+                "# This table carries its own split in {}: to use it, remove validation, test and seed above and set",
+                comment_safe(&toml_string(&col.name))
+            );
+            let _ = writeln!(out, "# column = {}", comment_safe(&toml_string(&col.name)));
+            let _ = writeln!(
+                out,
+                "# [split.labels] train = {}, validation = {}, test = {}",
+                comment_safe(&toml_list(&pick(&["train", "training"]))),
+                comment_safe(&toml_list(&pick(&["valid", "validation", "val", "dev"]))),
+                comment_safe(&toml_list(&pick(&["test", "testing", "holdout"])))
+            );
+        }
+        None => {
+            let _ = writeln!(out, "# column = \"period\"  # take the split from a column (values train / validation / test) instead");
+        }
+    }
     let _ = writeln!(out, "# group = \"customer_id\"  # keep every row of one value in one split");
 
     section(
