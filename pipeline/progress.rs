@@ -18,7 +18,9 @@ pub fn note(text: &str) {
 /// plain line per finished run (logs, SLURM). `--quiet` shows neither.
 pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) + Sync) {
     let terminal = std::io::stderr().is_terminal() && !quiet;
-    let bar = if terminal { indicatif::ProgressBar::new(0) } else { indicatif::ProgressBar::hidden() };
+    // Drawn only once the runs to train are known, and only when there are some: a bar of 0/0
+    // runs would show as full before anything happened.
+    let bar = indicatif::ProgressBar::hidden();
     bar.set_style(
         indicatif::ProgressStyle::with_template("{bar:30} {pos}/{len} runs  {msg}  {elapsed} elapsed, about {eta} left")
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
@@ -44,11 +46,18 @@ pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) 
             }
             // Shown even under --quiet: a command that waits must say for whom, or it looks hung.
             Event::Waiting(text) => handle.suspend(|| note(&text)),
-            Event::Planned { pending, reused, metric, direction } => {
+            Event::Planned { pending, reused, metric, direction, retraining } => {
                 (s.pending, s.metric, s.direction) = (pending, metric, direction);
                 handle.set_length(pending as u64);
+                if terminal && pending > 0 {
+                    handle.set_draw_target(indicatif::ProgressDrawTarget::stderr());
+                }
                 if !quiet && !terminal {
-                    note(&format!("{pending} runs to train, {reused} already stored"));
+                    if retraining {
+                        note(&format!("{pending} runs to retrain and compare with the stored ones"));
+                    } else {
+                        note(&format!("{pending} runs to train, {reused} already stored"));
+                    }
                 }
             }
             Event::Finished(run) => {
@@ -73,7 +82,13 @@ pub fn progress_display(quiet: bool) -> (indicatif::ProgressBar, impl Fn(Event) 
                         .best
                         .as_ref()
                         .map(|(v, who)| {
-                            format!("best {} {} ({})", s.metric, tabcard::format::fixed(*v, 4), tabcard::text::terminal_cell(who, 40))
+                            // One run's value: selection compares configurations by their seed means.
+                            format!(
+                                "best single run {} {} ({})",
+                                s.metric,
+                                tabcard::format::fixed(*v, 4),
+                                tabcard::text::terminal_cell(who, 40)
+                            )
                         })
                         .unwrap_or_default();
                     let failed = if s.failed > 0 { format!(", {} failed", s.failed) } else { String::new() };

@@ -27,10 +27,15 @@ fn train_and_verify_print_one_progress_line_per_run_and_nothing_when_quiet() {
     for (i, l) in runs.iter().enumerate() {
         assert!(l.starts_with(&format!("[{}/6] run ", i + 1)) && l.contains("completed, validation roc_auc "), "{l}");
     }
+    assert!(err.contains("6 runs to train, 0 already stored"), "{err}");
+    // The phase after training says what it does, since it can take long on a large table.
+    let last_run = lines.iter().rposition(|l| l.starts_with('[')).unwrap();
+    assert!(lines[last_run + 1..].iter().any(|l| l.starts_with("select and test: the selection rule over 3 configurations")), "{err}");
     let folder = experiment_folder(&dir.path().join("results")).unwrap();
     let out = run_in(dir.path(), &["verify", folder.to_str().unwrap()]);
     assert!(out.status.success(), "{}", stderr(&out));
     assert_eq!(stderr(&out).lines().filter(|l| l.starts_with('[') && l.ends_with(", identical")).count(), 2, "{}", stderr(&out));
+    assert!(stderr(&out).contains("2 runs to retrain and compare with the stored ones"), "verify trains nothing to keep: {}", stderr(&out));
 
     let quiet = tempfile::tempdir().unwrap();
     let manifest = small_lease_experiment(quiet.path(), 1200, "");

@@ -351,6 +351,12 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     } else {
         // Asked once: the timing record and the ledger line name the same commit.
         let git = crate::provenance::git_state(manifest_path);
+        on_event(Event::Header(format!(
+            "select and test: the selection rule over {} configurations, one evaluation of the selected run on {} test rows with {} bootstrap resamples, calibration, fairness, importance, sensitivity, the monitoring profile and the card",
+            plan.configs.len(),
+            exp.splits.test.len(),
+            exp.manifest.selection.bootstrap
+        )));
         let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started, phases)?;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
         ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;

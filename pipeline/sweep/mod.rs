@@ -32,6 +32,8 @@ pub enum Event {
         reused: usize,
         metric: String,
         direction: crate::metrics::registry::Direction,
+        /// Runs retrained to be compared with stored ones (`verify`), not trained to be kept.
+        retraining: bool,
     },
     Finished(RunReport),
 }
@@ -205,6 +207,7 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
         reused: report.reused.len(),
         metric: inputs.selection_metric.to_string(),
         direction,
+        retraining: false,
     });
     if pending.is_empty() {
         return Ok(report);

@@ -312,6 +312,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         reused: 0,
         metric: prepared.exp.manifest.selection.metric.clone(),
         direction: crate::metrics::registry::Direction::of_higher_is_better(selection.higher_is_better),
+        retraining: true,
     });
     let runs: Vec<RunCheck> = in_pool(jobs, || {
         specs
