@@ -41,7 +41,6 @@ impl Plan {
     }
 }
 
-/// The linear baseline: no hidden layer, no architectural regularizer, same training settings.
 /// A configuration's short label: its grid overrides as `key=value` (last key segment), or
 /// "linear baseline" / "base configuration".
 pub fn config_label(overrides: &std::collections::BTreeMap<String, serde_json::Value>, baseline: bool) -> String {
@@ -54,6 +53,7 @@ pub fn config_label(overrides: &std::collections::BTreeMap<String, serde_json::V
     overrides.iter().map(|(k, v)| format!("{}={}", k.rsplit('.').next().unwrap_or(k), v)).collect::<Vec<_>>().join(" ")
 }
 
+/// The linear baseline: no hidden layer, no architectural regularizer, same training settings.
 pub fn baseline_config(manifest: &Manifest) -> RunConfig {
     RunConfig {
         model: ModelSpec {

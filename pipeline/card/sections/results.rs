@@ -161,12 +161,19 @@ pub(crate) fn results(st: &StoredResults, limitations: &[Limitation]) -> Results
     let selected_summary = sel.selected_summary();
     let baseline_summary = sel.configs.iter().find(|c| c.baseline);
     let baseline_line = match (selected_summary.and_then(|s| s.validation.get(m)), baseline_summary.and_then(|s| s.validation.get(m))) {
-        (Some(n), Some(b)) => format!(
-            "Validation {m}: network {} against linear baseline {} (difference {}).",
-            spread_text(Some(n)),
-            spread_text(Some(b)),
-            fixed(n.mean - b.mean, 4)
-        ),
+        (Some(n), Some(b)) => {
+            let model = match st.record.task {
+                Task::Binary => "logistic regression",
+                Task::Multiclass => "multinomial (softmax) logistic regression",
+                Task::Regression => "linear regression",
+            };
+            format!(
+                "Validation {m}: network {} against linear baseline {} (difference {}). The linear baseline is {model} on the same preprocessed inputs: the network with no hidden layer and no dropout, batch norm, residual or input noise, trained with the manifest's [training] settings (grid values aside) and the same seeds. It is judged on validation only: the test split is used once, for the selected run, so the baseline has no test figure.",
+                spread_text(Some(n)),
+                spread_text(Some(b)),
+                fixed(n.mean - b.mean, 4)
+            )
+        }
         _ => "No linear baseline was trained (selection.baseline = false).".into(),
     };
     let t = &sel.test;
