@@ -30,7 +30,7 @@ fn verify_passes_and_fails_for_the_right_reasons() {
     assert!(stdout(&ok).contains("identical bits are promised on any CPU"));
     assert_eq!(stdout(&ok).matches(": identical (weights, history, metrics)").count(), 2, "two seeds of the selected configuration");
     let history = run_in(dir.path(), &["history", "--results", "results"]);
-    assert!(stdout(&history).contains("small-lease") && stdout(&history).contains("yes ("), "{}", stdout(&history));
+    assert!(stdout(&history).contains("small-lease") && stdout(&history).contains("yes: 2 of 4 runs on "), "{}", stdout(&history));
 
     // (c) the stored manifest edited.
     let edited = dir.path().join("edited");
