@@ -219,9 +219,17 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
     let _ = writeln!(out, "# The suggested roles below come from the data alone: confirm each before training.");
     let _ = writeln!(out, "\n[experiment]");
     let _ = writeln!(out, "name = {}  # the results folder is named by the experiment's fingerprint, not by this", toml_string(&stem));
-    for key in ["description", "intended_use", "out_of_scope", "owner", "trained_by", "data_period", "population"] {
+    for key in
+        ["description", "intended_use", "out_of_scope", "owner", "trained_by", "data_period", "population", "model_name", "model_version"]
+    {
         let _ = writeln!(out, "{key} = \"\"");
     }
+    let _ = writeln!(
+        out,
+        "known_limitations = \"\"  # what the team knows that no rule can see (how rows were selected, what the target leaves out)"
+    );
+    let _ = writeln!(out, "monitoring_plan = \"\"  # which batches are monitored, how often, who reads the records, what an act triggers");
+    let _ = writeln!(out, "# replaces = \"<fingerprint>\"  # the experiment fingerprint of the model this one replaces");
     let _ =
         writeln!(out, "affects_people = true  # true adds the cautions for decisions about people (credit, insurance, health) to the card");
 

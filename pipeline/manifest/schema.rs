@@ -292,6 +292,23 @@ pub struct ExperimentInfo {
     /// Who trained the model (person or team), for the card's sign-off block.
     #[serde(default, skip_serializing_if = "String::is_empty")]
     pub trained_by: String,
+    /// The model's name in the team's inventory ("lease-default-scorer"), for the card.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub model_name: String,
+    /// Its version in that inventory ("2.1"), for the card.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub model_version: String,
+    /// The experiment fingerprint (16 to 64 hexadecimal digits) of the model this one replaces.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub replaces: String,
+    /// Limitations the team knows of that no rule can see (how the rows were selected, what the
+    /// target leaves out), shown first under the card's known limitations.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub known_limitations: String,
+    /// How the model will be watched after approval: which batches, how often, who reads the
+    /// monitoring records and what an "act" triggers.
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub monitoring_plan: String,
 }
 
 pub use crate::task::Task;

@@ -280,6 +280,12 @@ pub(crate) fn validate(m: &Manifest) -> Vec<Problem> {
             c.check(!name.trim().is_empty(), "analysis.sensitive", || "names a feature; an empty name was given".into());
         }
     }
+    let replaces = &m.experiment.replaces;
+    c.check(
+        replaces.is_empty() || ((16..=64).contains(&replaces.len()) && replaces.bytes().all(|b| b.is_ascii_hexdigit())),
+        "experiment.replaces",
+        || format!("must be the experiment fingerprint of the replaced model (16 to 64 hexadecimal digits), got {replaces:?}"),
+    );
     if let Some(mon) = &m.monitoring {
         let (watch, act, alpha) = (mon.psi_watch(), mon.psi_act(), mon.alpha());
         c.check(watch > 0.0 && watch.is_finite(), "monitoring.psi_watch", || format!("must be a positive number, got {watch}"));

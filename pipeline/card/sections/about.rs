@@ -18,6 +18,12 @@ pub(crate) struct About {
     pub(crate) population: String,
     pub(crate) affects_people: bool,
     pub(crate) group_columns: Vec<String>,
+    /// Inventory name and version, when the manifest gives them.
+    pub(crate) model: String,
+    pub(crate) replaces: String,
+    /// The team's own known limitations and monitoring plan (empty when not written).
+    pub(crate) team_limitations: String,
+    pub(crate) monitoring_plan: String,
 }
 
 pub(crate) fn about(m: &Manifest) -> About {
@@ -36,5 +42,14 @@ pub(crate) fn about(m: &Manifest) -> About {
         population: stated(&e.population),
         affects_people: e.affects_people,
         group_columns: m.data.group_columns.iter().map(|g| md(g)).collect(),
+        model: match (e.model_name.trim(), e.model_version.trim()) {
+            ("", "") => String::new(),
+            (name, "") => crate::text::markdown_cell_text(name),
+            ("", version) => format!("version {}", crate::text::markdown_cell_text(version)),
+            (name, version) => format!("{}, version {}", crate::text::markdown_cell_text(name), crate::text::markdown_cell_text(version)),
+        },
+        replaces: if e.replaces.is_empty() { String::new() } else { format!("`{}`", e.replaces) },
+        team_limitations: md_text(&e.known_limitations),
+        monitoring_plan: md_text(&e.monitoring_plan),
     }
 }
