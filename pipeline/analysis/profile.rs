@@ -315,10 +315,7 @@ pub(crate) fn derive(prepared: &crate::experiment::prepared::Prepared, derived: 
         crate::data::roles::Target::Classes { labels, .. } => labels.clone(),
         crate::data::roles::Target::Values(_) => Vec::new(),
     };
-    let k = match task {
-        Task::Regression => 1,
-        _ => labels.len(),
-    };
+    let k = exp.head().values_per_row();
     let test_scores = scores(task, &derived.test_outputs, k);
     let (score_means, bins) = match task {
         Task::Binary => (format!("probability of {}", labels.get(1).cloned().unwrap_or_default()), numeric_bins(test_scores.clone())),

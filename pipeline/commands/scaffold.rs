@@ -175,7 +175,7 @@ fn section<T: serde::Serialize>(out: &mut String, title: &str, defaults: &T, com
 
 /// The manifest text for `data` (written to `out` when given; the data path is relative to it).
 pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> Result<String> {
-    let target = match &options.target {
+    let (target, target_why) = match &options.target {
         Some(t) => {
             if table.column(t).is_none() {
                 let hint = crate::manifest::locate::nearest(t, table.columns.iter().map(|c| c.name.as_str()))
@@ -183,13 +183,9 @@ pub fn manifest_text(data: &Path, table: &Table, options: &ScaffoldOptions) -> R
                     .unwrap_or_default();
                 return Err(Error::data(data, Some(t), format!("named by --target but not in the file{hint}")));
             }
-            t.clone()
+            (t.clone(), "given by --target".to_string())
         }
-        None => choose_target(table).map(|(t, _)| t).ok_or_else(|| Error::data(data, None, "has no column that can be a target"))?,
-    };
-    let target_why = match &options.target {
-        Some(_) => "given by --target".to_string(),
-        None => choose_target(table).map(|(_, why)| why).unwrap_or_default(),
+        None => choose_target(table).ok_or_else(|| Error::data(data, None, "has no column that can be a target"))?,
     };
     let profiles: Vec<Profile> = table.columns.iter().map(|c| profile(c, table.rows, &target)).collect();
     let target_profile =

@@ -23,7 +23,7 @@ use crate::format::sig;
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::registry::{self, Direction};
 use crate::selection::Selection;
-use crate::training::{Head, Labels};
+use crate::training::Head;
 
 /// A change of the calibration gap at least this large (a probability, or target standard
 /// deviations), when significant, reads "act" (our choice).
@@ -58,15 +58,6 @@ pub(crate) struct Outcomes {
     pub bootstrap_seed: u64,
     pub metrics: Vec<MetricCheck>,
     pub calibration: Vec<CalibrationCheck>,
-}
-
-fn subset(outputs: &[f64], labels: &Labels, k: usize, idx: &[usize]) -> (Vec<f64>, Labels) {
-    let out = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
-    let labels = match labels {
-        Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
-        Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
-    };
-    (out, labels)
 }
 
 fn metric_verdict(name: &str, higher: bool, batch: &Interval, test: Option<&Interval>) -> Verdict {
@@ -143,7 +134,7 @@ pub(crate) fn judge(
     let n = observed.labels.len();
     let bootstrap = || {
         percentile_intervals(n, resamples, 0.95, seed, |idx| {
-            let (o, y) = subset(&observed.outputs, &observed.labels, k, idx);
+            let (o, y) = crate::training::head::rows_of(&observed.outputs, &observed.labels, k, idx);
             head.metrics(&o, &y)
         })
     };

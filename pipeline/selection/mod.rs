@@ -439,14 +439,7 @@ pub(crate) fn evaluate_test(
     };
     let metrics = head.metrics(&outputs, test_y);
     let k = head.values_per_row();
-    let subset = |out: &[f64], idx: &[usize]| -> (Vec<f64>, Labels) {
-        let sub_out: Vec<f64> = idx.iter().flat_map(|&i| out[i * k..(i + 1) * k].iter().copied()).collect();
-        let sub_y = match test_y {
-            Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
-            Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
-        };
-        (sub_out, sub_y)
-    };
+    let subset = |out: &[f64], idx: &[usize]| crate::training::head::rows_of(out, test_y, k, idx);
     let (bootstrap, bootstrap_seed) = (inputs.bootstrap, inputs.bootstrap_seed);
     let mut groups = Vec::new();
     for g in inputs.group_columns {

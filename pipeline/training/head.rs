@@ -27,6 +27,17 @@ impl Labels {
     }
 }
 
+/// The outputs (`k` per row) and labels of rows `idx`, in that order; repeats allowed, as in a
+/// bootstrap resample.
+pub(crate) fn rows_of(outputs: &[f64], labels: &Labels, k: usize, idx: &[usize]) -> (Vec<f64>, Labels) {
+    let out = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
+    let labels = match labels {
+        Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
+        Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
+    };
+    (out, labels)
+}
+
 /// Regression targets are standardised with the training rows' mean and standard deviation.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct TargetScaling {
