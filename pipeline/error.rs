@@ -148,6 +148,10 @@ pub mod exit {
     pub const MONITOR_WATCH: u8 = 8;
     /// `monitor`: a check reads "act" (a scheduler's alert).
     pub const MONITOR_ACT: u8 = 9;
+    /// `verify`: the bits reproduce, but a recorded review does not hold (bad signature, unknown
+    /// or mismatched signer, another folder's review, a card changed after review, expired,
+    /// separation of duties, or no allowed-signers file to check signers against).
+    pub const REVIEW_PROBLEM: u8 = 10;
 }
 
 impl From<ManifestError> for Error {

@@ -27,6 +27,7 @@ pub mod numerics;
 pub mod output_schema;
 pub mod provenance;
 pub(crate) mod results;
+pub mod review;
 pub mod rng;
 pub(crate) mod selection;
 pub mod store;

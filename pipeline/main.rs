@@ -23,7 +23,7 @@ struct Cli {
     #[arg(long, global = true)]
     quiet: bool,
     /// Print the report as one JSON document instead of text; only check, train, verify, compare,
-    /// history, list and monitor have one (each also takes `--json` after its name); fields are
+    /// history, list, monitor and log-check have one (each also takes `--json` after its name); fields are
     /// listed in README, "Machine-readable output".
     #[arg(long)]
     json: bool,
@@ -137,6 +137,10 @@ enum Command {
         /// Data file to use instead of the recorded path (it must match the recorded fingerprints).
         #[arg(long)]
         data: Option<PathBuf>,
+        /// The allowed-signers file (ssh-keygen's format) recorded reviews are checked against
+        /// (default: $TABCARD_ALLOWED_SIGNERS, else allowed_signers at the results root).
+        #[arg(long, value_name = "FILE")]
+        allowed_signers: Option<PathBuf>,
     },
     /// Score a Parquet file with a stored model (a run folder, or a results folder's selected run).
     #[command(after_help = "Example:\n  tabcard predict results/4f13816fd93d258d new-applications.parquet --out scores.parquet")]
@@ -176,6 +180,25 @@ enum Command {
         /// threshold).
         #[arg(long, value_enum, default_value = "median", requires = "reasons")]
         reference: ReferenceArg,
+        /// Append this scoring to a hash-chained decision log (JSON lines: time, model, results
+        /// digest, input content hash, rows, threshold, decision counts), its latest line's hash
+        /// also recorded under the results folder's decisions/; `tabcard log-check` checks it.
+        #[arg(long, value_name = "FILE")]
+        log: Option<PathBuf>,
+    },
+    /// Check a decision log `predict --log` kept: every line's link to the one before, and the heads its results folders recorded.
+    #[command(
+        after_help = "Example:\n  tabcard log-check decisions.jsonl --results results\n\nExit status: 0 the log holds, 6 it does not (the first broken line, a removed tail or a rewritten chain is named)."
+    )]
+    LogCheck {
+        /// Print the report as one JSON document instead of text (fields: README, "Machine-readable output").
+        #[arg(long)]
+        json: bool,
+        /// The decision log.
+        log: PathBuf,
+        /// The results root holding the results folders that scored.
+        #[arg(long, default_value = "results")]
+        results: PathBuf,
     },
     /// Show what differs between two experiments, given as results folders or manifests: manifest keys, data and, for results, metrics; for manifests, which runs would be new.
     #[command(
@@ -202,6 +225,10 @@ enum Command {
         /// The results root holding ledger.jsonl.
         #[arg(long, default_value = "results")]
         results: PathBuf,
+        /// The allowed-signers file (ssh-keygen's format) recorded reviews are checked against
+        /// (default: $TABCARD_ALLOWED_SIGNERS, else allowed_signers at the results root).
+        #[arg(long, value_name = "FILE")]
+        allowed_signers: Option<PathBuf>,
     },
     /// List the experiments in a results root: fingerprint, name, date, selected configuration, headline, verified or not.
     #[command(after_help = "Example:\n  tabcard list --results results")]
@@ -244,6 +271,50 @@ enum Command {
         /// The results root, where a manifest's results folder is looked up and monitoring.jsonl is kept.
         #[arg(long, default_value = "results")]
         results: PathBuf,
+    },
+    /// Record a signed review of a results folder's card (developer, validator or approver), as an attached record that never changes the evidence.
+    #[command(
+        after_help = "Examples:\n  tabcard review results/4f13816fd93d258d --role validator --decision approved --valid-until 2027-06-30 --key ~/.ssh/id_ed25519\n  tabcard review results/4f13816fd93d258d --role approver --decision approved-with-conditions --conditions 'monthly monitoring' --statement-out review.json\n  ssh-keygen -Y sign -n tabcard-review -f ~/.ssh/id_ed25519 review.json\n  tabcard review results/4f13816fd93d258d --statement review.json --signature review.json.sig\n\nverify and history check every review against an allowed-signers file (ssh-keygen's format): --allowed-signers, else $TABCARD_ALLOWED_SIGNERS, else allowed_signers at the results root."
+    )]
+    Review {
+        /// The results folder whose card was reviewed.
+        results_folder: PathBuf,
+        /// The reviewer's duty for this model.
+        #[arg(long, value_enum, required_unless_present = "statement")]
+        role: Option<tabcard::review::statement::Role>,
+        /// What the reviewer decided.
+        #[arg(long, value_enum, required_unless_present = "statement")]
+        decision: Option<tabcard::review::statement::Decision>,
+        /// The conditions of approved-with-conditions (signed with the decision).
+        #[arg(long)]
+        conditions: Option<String>,
+        /// A text file with the reviewer's note (its text is signed with the decision).
+        #[arg(long)]
+        note: Option<PathBuf>,
+        /// The last day the review stands, YYYY-MM-DD (UTC); verify and history report it expired after.
+        #[arg(long, value_name = "DATE")]
+        valid_until: Option<String>,
+        /// Your identity as the allowed-signers file names you (default: git's user.email, else USER).
+        #[arg(long)]
+        signer: Option<String>,
+        /// Sign with this unencrypted Ed25519 OpenSSH private key.
+        #[arg(long, conflicts_with_all = ["statement_out", "statement"], required_unless_present_any = ["statement_out", "statement"])]
+        key: Option<PathBuf>,
+        /// Write the statement here instead, to sign with `ssh-keygen -Y sign -n tabcard-review` (any key it can use).
+        #[arg(long, conflicts_with = "statement")]
+        statement_out: Option<PathBuf>,
+        /// Replace --statement-out if it exists.
+        #[arg(long, requires = "statement_out")]
+        force: bool,
+        /// Attach this statement (written by --statement-out) ...
+        #[arg(long, requires = "signature", conflicts_with_all = ["role", "decision", "conditions", "note", "valid_until", "signer"])]
+        statement: Option<PathBuf>,
+        /// ... with this armoured SSH signature of it (ssh-keygen's `.sig`).
+        #[arg(long, requires = "statement")]
+        signature: Option<PathBuf>,
+        /// The allowed-signers file the new review is checked against (it is recorded either way).
+        #[arg(long, value_name = "FILE")]
+        allowed_signers: Option<PathBuf>,
     },
     /// Write the invented demo tables (lease defaults, greenhouse yield) as Parquet.
     #[command(after_help = "Example:\n  tabcard demo-data data-demo")]
@@ -306,17 +377,22 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             let o = outcome?;
             Done { text: o.report, json: Some(o.json), code: if o.failed_runs > 0 { exit::RUNS_FAILED } else { exit::OK } }
         }
-        Command::Verify { target, all, results, jobs, data, .. } => {
+        Command::Verify { target, all, results, jobs, data, allowed_signers, .. } => {
             let jobs = tabcard::threads::workers(jobs.unwrap_or_else(default_jobs), tabcard::threads::MAX_WORKERS)?;
             tabcard::threads::limit_to(jobs);
-            let options = commands::verify::VerifyOptions { all, jobs, data, results_root: results };
+            let options = commands::verify::VerifyOptions { all, jobs, data, results_root: results, allowed_signers };
             let (bar, on_event) = progress_display(quiet);
             let outcome = commands::verify::run(&target, &options, &on_event);
             bar.finish_and_clear();
             let o = outcome?;
-            Done { text: o.report, json: Some(o.json), code: if o.identical { exit::OK } else { exit::NOT_VERIFIED } }
+            let code = match (o.identical, o.reviews_hold) {
+                (false, _) => exit::NOT_VERIFIED,
+                (true, false) => exit::REVIEW_PROBLEM,
+                (true, true) => exit::OK,
+            };
+            Done { text: o.report, json: Some(o.json), code }
         }
-        Command::Predict { model, input, out, keep_extra, force, guard_formulas, threshold, reasons, reference } => {
+        Command::Predict { model, input, out, keep_extra, force, guard_formulas, threshold, reasons, reference, log } => {
             let reasons = match reasons {
                 Some(n) if n < 1 => {
                     return Err(tabcard::error::Error::Usage(format!(
@@ -329,7 +405,10 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             if guard_formulas && commands::predict::OutputFormat::of(&out)? != commands::predict::OutputFormat::Csv {
                 return Err(tabcard::Error::Usage("--guard-formulas applies to CSV output only (--out ending in .csv)".into()));
             }
-            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas, threshold, reasons };
+            if let Some(log) = &log {
+                tabcard::store::check_output_path("--log", "the decision log", log, &[&input, &out], true)?;
+            }
+            let options = commands::predict::PredictOptions { keep_extra, force, guard_formulas, threshold, reasons, log };
             Done::text(commands::predict::run(&model, &input, &out, &options)?)
         }
         Command::Slurm { manifest, results, cpus_per_task, runs_per_task, mem, time, partition, account, modules, executable, submit } => {
@@ -339,7 +418,7 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
             Done::text(commands::slurm::run(&manifest, &options)?)
         }
         Command::Compare { a, b, results, .. } => Done::report(commands::compare::run(&a, &b, &results)?),
-        Command::History { results, .. } => Done::report(commands::history::run(&results)?),
+        Command::History { results, allowed_signers, .. } => Done::report(commands::history::run(&results, allowed_signers.as_deref())?),
         Command::List { results, .. } => Done::report(commands::list::run(&results)?),
         Command::Card { results_folder, templates } => Done::text(commands::card::run(&results_folder, templates.as_deref())?),
         Command::Monitor { target, batch, outcomes, history, results, .. } => {
@@ -356,6 +435,36 @@ fn run(cli: Cli) -> tabcard::Result<Done> {
                 _ => exit::OK,
             };
             Done { text: o.report, json: Some(o.json), code }
+        }
+        Command::Review {
+            results_folder,
+            role,
+            decision,
+            conditions,
+            note,
+            valid_until,
+            signer,
+            key,
+            statement_out,
+            force,
+            statement,
+            signature,
+            allowed_signers,
+        } => {
+            use commands::review::Signing;
+            let signing = match (key, statement_out, statement, signature) {
+                (Some(key), _, _, _) => Signing::Key(key),
+                (_, Some(path), _, _) => Signing::StatementOut { path, force },
+                (_, _, Some(statement), Some(signature)) => Signing::Signed { statement, signature },
+                _ => return Err(tabcard::Error::Usage("review needs --key, --statement-out, or --statement with --signature".into())),
+            };
+            let options =
+                commands::review::ReviewOptions { role, decision, conditions, note, valid_until, signer, signing, allowed_signers };
+            Done::text(commands::review::run(&results_folder, &options)?)
+        }
+        Command::LogCheck { log, results, .. } => {
+            let o = commands::log_check::run(&log, &results)?;
+            Done { text: o.report, json: Some(o.json), code: if o.holds { exit::OK } else { exit::NOT_VERIFIED } }
         }
         Command::DemoData { folder, seed, force } => Done::text(commands::demo::run(&folder, seed, force)?),
     })
@@ -375,6 +484,7 @@ fn main() -> ExitCode {
                 | Command::History { json: true, .. }
                 | Command::List { json: true, .. }
                 | Command::Monitor { json: true, .. }
+                | Command::LogCheck { json: true, .. }
         );
     let reports_json = matches!(
         cli.command,
@@ -385,9 +495,10 @@ fn main() -> ExitCode {
             | Command::History { .. }
             | Command::List { .. }
             | Command::Monitor { .. }
+            | Command::LogCheck { .. }
     );
     if json && !reports_json {
-        note("error: --json is available for check, train, verify, compare, history, list and monitor, not for this command");
+        note("error: --json is available for check, train, verify, compare, history, list, monitor and log-check, not for this command");
         return ExitCode::from(exit::BAD_INPUT);
     }
     match run(cli) {

@@ -118,6 +118,61 @@ fn civil_from_days(days: i64) -> (i64, u32, u32) {
     (yoe + era * 400 + (m <= 2) as i64, m, d)
 }
 
+/// Days since 1970-01-01 of a civil date, after Howard Hinnant's `days_from_civil`.
+fn days_from_civil(y: i64, m: u32, d: u32) -> i64 {
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = y.div_euclid(400);
+    let yoe = y.rem_euclid(400);
+    let mp = if m > 2 { m - 3 } else { m + 9 } as i64;
+    let doy = (153 * mp + 2) / 5 + d as i64 - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+/// Days since 1970-01-01 of a `YYYY-MM-DD` date; `None` when it is not one (February 30th is not).
+pub fn date_days(text: &str) -> Option<i64> {
+    let b = text.as_bytes();
+    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
+        return None;
+    }
+    let (y, m, d) = (text[..4].parse::<i64>().ok()?, text[5..7].parse::<u32>().ok()?, text[8..].parse::<u32>().ok()?);
+    let days = days_from_civil(y, m, d);
+    (civil_from_days(days) == (y, m, d) && text[..4].bytes().all(|c| c.is_ascii_digit())).then_some(days)
+}
+
+/// Unix seconds of an RFC 3339 UTC timestamp as [`rfc3339`] writes it (`YYYY-MM-DDTHH:MM:SSZ`).
+pub fn rfc3339_seconds(text: &str) -> Option<i64> {
+    let (date, time) = text.split_once('T')?;
+    let time = time.strip_suffix('Z')?;
+    let parts: Vec<i64> = time.split(':').map(|p| if p.len() == 2 { p.parse().ok() } else { None }).collect::<Option<_>>()?;
+    match parts[..] {
+        [h, m, s] if h < 24 && m < 60 && s < 60 => Some(date_days(date)? * 86_400 + h * 3600 + m * 60 + s),
+        _ => None,
+    }
+}
+
+/// Today's date (UTC) as days since 1970-01-01.
+pub fn today_days() -> i64 {
+    std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0).div_euclid(86_400)
+}
+
+/// A day count as `YYYY-MM-DD`.
+pub fn date_text(days: i64) -> String {
+    let (y, m, d) = civil_from_days(days);
+    format!("{y:04}-{m:02}-{d:02}")
+}
+
+/// Who is training or reviewing here: git's `user.email` for the repository holding `path`, else
+/// the login name (`USER`); `None` when neither is set.
+pub fn user_identity(path: &Path) -> Option<String> {
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let email = Command::new("git").arg("-C").arg(dir).args(["config", "user.email"]).output().ok().filter(|o| o.status.success());
+    email
+        .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
+        .filter(|e| !e.is_empty())
+        .or_else(|| std::env::var("USER").ok().filter(|u| !u.is_empty()))
+}
+
 /// RFC 3339 UTC timestamp of a Unix time in seconds.
 pub fn rfc3339(unix_seconds: i64) -> String {
     let (y, m, d) = civil_from_days(unix_seconds.div_euclid(86_400));
@@ -153,5 +208,12 @@ mod tests {
         // 30 years of 365 days + 7 leap days = 10957 days to 2000-01-01, + 59 days).
         assert_eq!(rfc3339(951_782_400), "2000-02-29T00:00:00Z");
         assert_eq!(rfc3339(1_800_000_000), "2027-01-15T08:00:00Z");
+        assert_eq!(rfc3339_seconds("2027-01-15T08:00:00Z"), Some(1_800_000_000));
+        assert_eq!(date_days("2000-02-29"), Some(951_782_400 / 86_400));
+        assert_eq!(date_text(951_782_400 / 86_400), "2000-02-29");
+        for bad in ["2001-02-29", "2026-13-01", "2026-1-01", "+026-01-01", "2026-01-01T"] {
+            assert_eq!(date_days(bad), None, "{bad}");
+        }
+        assert_eq!(rfc3339_seconds("2027-01-15T24:00:00Z"), None);
     }
 }

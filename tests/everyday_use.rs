@@ -180,10 +180,23 @@ fn json_reports_parse_and_carry_their_documented_fields() {
 #[test]
 fn every_command_has_help_with_an_example_and_described_arguments() {
     let dir = tempfile::tempdir().unwrap();
-    let with_json = ["check", "train", "verify", "compare", "history", "list", "monitor"];
-    for command in
-        ["scaffold", "check", "train", "slurm", "verify", "predict", "compare", "history", "list", "monitor", "card", "demo-data"]
-    {
+    let with_json = ["check", "train", "verify", "compare", "history", "list", "monitor", "log-check"];
+    for command in [
+        "scaffold",
+        "check",
+        "train",
+        "slurm",
+        "verify",
+        "predict",
+        "compare",
+        "history",
+        "list",
+        "monitor",
+        "card",
+        "review",
+        "log-check",
+        "demo-data",
+    ] {
         let out = run_in(dir.path(), &[command, "--help"]);
         assert!(out.status.success());
         let help = stdout(&out);

@@ -23,6 +23,7 @@ const LAYERS: &[&[&str]] = &[
     &["selection"],
     &["analysis"],
     &["results"],
+    &["review"],
     &["card"],
     &["verification"],
     &["monitor"],

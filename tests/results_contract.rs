@@ -82,7 +82,7 @@ fn attached_records_leave_card_predict_and_verify_working_and_are_checked_by_the
     let evidence_list = std::fs::read(folder.join("integrity.sha256")).unwrap();
     let review = tabcard::store::attached::attach(
         &folder,
-        "reviews",
+        "comparisons",
         "2026-12-03-model-risk",
         &[("review.json", b"{\"decision\": \"approved\"}\n")],
     )
@@ -104,7 +104,7 @@ fn attached_records_leave_card_predict_and_verify_working_and_are_checked_by_the
     assert_eq!(std::fs::read(folder.join("integrity.sha256")).unwrap(), evidence_list);
 
     // One byte flipped inside either record is named by its path.
-    for file in ["reviews/2026-12-03-model-risk/review.json", "monitoring/2027-01/figures/drift.svg"] {
+    for file in ["comparisons/2026-12-03-model-risk/review.json", "monitoring/2027-01/figures/drift.svg"] {
         let path = folder.join(file);
         let original = std::fs::read(&path).unwrap();
         let mut flipped = original.clone();
@@ -118,7 +118,7 @@ fn attached_records_leave_card_predict_and_verify_working_and_are_checked_by_the
         std::fs::write(&path, &original).unwrap();
     }
     // A stray file elsewhere is still named, and so is a loose file beside the records.
-    for stray in ["notes.txt", "reviews/loose.txt"] {
+    for stray in ["notes.txt", "monitoring/loose.txt"] {
         std::fs::write(folder.join(stray), "x").unwrap();
         let out = run_in(d, &["verify", f]);
         assert_eq!(out.status.code(), Some(6), "{}", stderr(&out));
@@ -126,6 +126,21 @@ fn attached_records_leave_card_predict_and_verify_working_and_are_checked_by_the
         std::fs::remove_file(folder.join(stray)).unwrap();
     }
     let out = run_in(d, &["verify", f]);
+    assert!(out.status.success(), "{}", stderr(&out));
+
+    // A review record is judged by itself (tests/reviews.rs): one that no longer matches its own
+    // list, or a loose file under reviews/, is a review that does not hold (verify exits 10,
+    // naming it), never a reason to refuse the model.
+    std::fs::create_dir_all(folder.join("reviews")).unwrap();
+    std::fs::write(folder.join("reviews/loose.txt"), "x").unwrap();
+    let out = run_in(d, &["verify", f]);
+    assert_eq!(out.status.code(), Some(10), "{}{}", stdout(&out), stderr(&out));
+    assert!(
+        stdout(&out).contains("loose.txt: review: RECORD CHANGED") && stdout(&out).contains("is not a sealed record"),
+        "{}",
+        stdout(&out)
+    );
+    let out = run_in(d, &["predict", f, "leases.parquet", "--out", "scored-again.parquet"]);
     assert!(out.status.success(), "{}", stderr(&out));
 }
 

@@ -21,7 +21,9 @@ use sections::data::{data_section, DataSection};
 use sections::groups::{groups, Groups};
 use sections::importance::{importance, Importance};
 use sections::provenance::{provenance, Provenance};
+use sections::replaced::{replaced, Replaced};
 use sections::results::{results, Results};
+use sections::review::{reviews, Reviews};
 use sections::sensitivity::{sensitivity, Sensitivity};
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -54,6 +56,8 @@ struct CardContext {
     figures: Vec<Figure>,
     limitations: Vec<Limitation>,
     provenance: Provenance,
+    reviews: Reviews,
+    replaced: Replaced,
 }
 
 const TEMPLATES: &[(&str, &str)] = &[
@@ -106,6 +110,8 @@ fn build(layout: &Layout) -> Result<(CardContext, Figures)> {
         figures: figs.iter().map(|(f, a, _)| Figure { file: f.clone(), alt: crate::text::markdown_line(a) }).collect(),
         limitations,
         provenance: provenance(&st, layout, &environment),
+        reviews: reviews(layout)?,
+        replaced: replaced(layout, &st.manifest.experiment.replaces)?,
     };
     figs.extend(curve_figs);
     Ok((context, figs))

@@ -1,20 +1,45 @@
 //! `tabcard history [--results DIR]`: the ledger: every completed selection with its time,
 //! experiment, fingerprint, git commit, selected metric, what its latest verification checked
-//! (runs of runs planned, when) and its latest monitoring status.
+//! (runs of runs planned, when), its latest monitoring status, and whether its recorded reviews
+//! hold today against the allowed-signers file.
 
 use std::fmt::Write;
 use std::path::Path;
 
+use std::collections::BTreeMap;
+
 use crate::error::Result;
 use crate::format::fixed;
+use crate::review::judge::{judge_folder, Judgement};
 use crate::store::ledger::{read, read_monitoring, read_verifications};
 use crate::text::terminal_cell;
 
-pub fn run(results_root: &Path) -> Result<super::Report> {
+pub fn run(results_root: &Path, allowed_signers: Option<&Path>) -> Result<super::Report> {
     let entries = read(results_root)?;
     let verifications = read_verifications(results_root)?;
     let monitoring = read_monitoring(results_root)?;
-    let json = serde_json::json!({ "selections": entries, "verifications": verifications, "monitoring": monitoring });
+    let signers = crate::review::allowed_signers::locate(allowed_signers, results_root)?;
+    // Reviews are judged for each experiment's latest selection: its digest is the folder's.
+    let mut reviews: BTreeMap<String, Vec<Judgement>> = BTreeMap::new();
+    for (i, e) in entries.iter().enumerate() {
+        let latest = !entries[i + 1..].iter().any(|later| later.fingerprint == e.fingerprint);
+        let folder = results_root.join(&e.results);
+        if let (true, Some(digest), true) = (latest, &e.results_digest, folder.is_dir()) {
+            let today = crate::provenance::today_days();
+            let trained_by = crate::results::trainers(&folder);
+            let judged = judge_folder(&folder, &e.fingerprint, digest, &trained_by, signers.as_ref(), today)?;
+            if !judged.is_empty() {
+                reviews.insert(e.fingerprint.clone(), judged);
+            }
+        }
+    }
+    let json = serde_json::json!({
+        "selections": entries,
+        "verifications": verifications,
+        "monitoring": monitoring,
+        "reviews": reviews,
+        "allowed_signers": signers.as_ref().map(|s| s.path.display().to_string()),
+    });
     let mut out = String::new();
     if entries.is_empty() {
         let _ = writeln!(out, "no experiments recorded in {}", results_root.display());
@@ -22,9 +47,20 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
     }
     let _ = writeln!(
         out,
-        "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} monitored",
-        "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric", "verified"
+        "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} {:<24} reviews",
+        "time", "experiment", "fingerprint", "commit", "new", "reused", "selected metric", "verified", "monitored"
     );
+    let reviewed = |fingerprint: &str| match reviews.get(fingerprint) {
+        None => "-".to_string(),
+        Some(r) => {
+            let holding = r.iter().filter(|j| j.holds()).count();
+            if holding == r.len() {
+                format!("{holding} hold")
+            } else {
+                format!("{holding} of {} hold", r.len())
+            }
+        }
+    };
     let latest_monitoring = |fingerprint: &str| match monitoring.iter().rev().find(|m| m.fingerprint == fingerprint) {
         Some(m) => format!("{} ({})", m.status, m.time),
         None => "-".into(),
@@ -43,7 +79,7 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
         };
         let _ = writeln!(
             out,
-            "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} {}",
+            "{:<20}  {:<28} {:<16} {:<10} {:>6} {:>6}  {:<22} {:<28} {:<24} {}",
             e.time,
             terminal_cell(&e.experiment, 28),
             &e.fingerprint[..16],
@@ -52,8 +88,13 @@ pub fn run(results_root: &Path) -> Result<super::Report> {
             e.runs_reused,
             metric,
             verified,
-            latest_monitoring(&e.fingerprint)
+            latest_monitoring(&e.fingerprint),
+            reviewed(&e.fingerprint)
         );
+    }
+    for (fingerprint, judged) in &reviews {
+        let _ = writeln!(out, "\nreviews of {}:", &fingerprint[..16.min(fingerprint.len())]);
+        crate::commands::verify::reviews_lines(&mut out, judged, signers.as_ref());
     }
     Ok(super::Report { text: out, json })
 }

@@ -21,6 +21,7 @@ use crate::output_schema as schema;
 use crate::results::Sealed;
 use crate::selection::deployed::mean_outputs;
 use crate::selection::scoring::ScoringModel;
+use crate::store::decision_log::{self, Scoring};
 use crate::store::run::is_run_folder;
 use crate::store::write_atomic;
 use crate::text::terminal_safe;
@@ -36,6 +37,8 @@ pub struct PredictOptions {
     pub threshold: Option<f64>,
     /// Give each row its principal reasons, at most this many, from this reference.
     pub reasons: Option<(usize, ReferenceChoice)>,
+    /// Append this scoring to the hash-chained decision log at this path.
+    pub log: Option<std::path::PathBuf>,
 }
 
 /// The reference row principal reasons are measured from.
@@ -187,6 +190,10 @@ pub struct Scored {
     pub columns: Vec<(String, ArrayRef)>,
     pub provenance: Provenance,
     pub report: String,
+    /// What the decision log records of this scoring.
+    pub scoring: Scoring,
+    /// The results folder that scored.
+    pub results_folder: std::path::PathBuf,
 }
 
 /// Scores `input` with the stored model `target` names.
@@ -253,6 +260,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     columns.push((schema::ROW.into(), Arc::new(Int64Array::from((0..table.rows as i64).collect::<Vec<_>>()))));
     let k = model.head.values_per_row();
     let labels = &record.class_labels;
+    let mut decision_counts = std::collections::BTreeMap::new();
     match record.task {
         Task::Regression => {
             columns.push((schema::PREDICTION.into(), Arc::new(Float64Array::from(outputs.clone()))));
@@ -275,6 +283,9 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             } else {
                 outputs.chunks_exact(k).map(crate::metrics::classification::argmax).collect()
             };
+            for &c in &decided {
+                *decision_counts.entry(labels[c].clone()).or_insert(0) += 1;
+            }
             columns.push((
                 schema::DECISION.into(),
                 Arc::new(StringArray::from(decided.iter().map(|&c| labels[c].clone()).collect::<Vec<_>>())),
@@ -396,7 +407,17 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             terminal_safe(col)
         );
     }
-    Ok(Scored { columns, provenance, report: out })
+    let scoring = Scoring {
+        fingerprint: record.fingerprint.clone(),
+        model_id: provenance.model_id.clone(),
+        results: crate::store::folder_name(&folder.layout.root),
+        results_digest: folder.digest.clone(),
+        input_sha256: table.content_hash(),
+        rows: table.rows,
+        threshold: (record.task == Task::Binary).then_some(deployed.value),
+        decisions: (record.task != Task::Regression).then_some(decision_counts),
+    };
+    Ok(Scored { columns, provenance, report: out, scoring, results_folder: folder.layout.root.clone() })
 }
 
 /// Named output columns.
@@ -497,7 +518,7 @@ fn reason_columns(
 
 pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions) -> Result<String> {
     let format = check_output(output, input, options.force)?;
-    let Scored { mut columns, provenance, mut report } = score(target, input, options)?;
+    let Scored { mut columns, provenance, mut report, scoring, results_folder } = score(target, input, options)?;
     let bytes = match format {
         OutputFormat::Parquet => encode_with_metadata(columns, WriteOptions::default(), &provenance.metadata())?,
         OutputFormat::Csv => {
@@ -508,5 +529,19 @@ pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions)
     };
     write_atomic(output, &bytes)?;
     let _ = writeln!(report, "wrote     {}", output.display());
+    if let Some(log) = &options.log {
+        let head = decision_log::append(log, scoring)
+            .map_err(|e| Error::store(log, format!("{e} (the predictions were written to {})", output.display())))?;
+        decision_log::record_head(&results_folder, &head)?;
+        let _ = writeln!(
+            report,
+            "logged    line {} of {} (chain {}), its SHA-256 also recorded in {}/{}/",
+            head.seq,
+            log.display(),
+            head.chain,
+            results_folder.display(),
+            decision_log::KIND
+        );
+    }
     Ok(report)
 }

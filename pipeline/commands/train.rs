@@ -198,6 +198,7 @@ fn select_and_record(
             wall_seconds: started.elapsed().as_secs_f64(),
             run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
             phases,
+            trained_by: crate::provenance::user_identity(&prepared.exp.manifest_path),
         },
     )?;
     let digest = crate::card::write_card(layout, None)?;
@@ -234,6 +235,43 @@ fn ledger_entry(
         results_digest: Some(results_digest.to_string()),
         tool_version: crate::experiment::TOOL_VERSION.to_string(),
     }
+}
+
+/// When the manifest names the experiment this model replaces and its results folder is under the
+/// results root, records `compare`'s report against it (`comparisons/replaces-<fp16>/`, an
+/// attached record: the evidence and its digest do not change) and renders the card again to
+/// show it. A folder whose fingerprint does not begin with `replaces` is not that experiment.
+/// Returns the line the report prints; a replaced folder that cannot be compared (it fails its
+/// integrity check, say) is named there and does not undo the training.
+fn compare_with_replaced(replaces: &str, results_root: &Path, layout: &Layout) -> Result<String> {
+    use crate::card::sections::replaced::{record_name, FILE, KIND};
+    if replaces.is_empty() {
+        return Ok(String::new());
+    }
+    let folder = results_root.join(replaces[..16].to_ascii_lowercase());
+    let is_it = crate::results::fingerprint_of(&folder).is_some_and(|f| f.starts_with(&replaces.to_ascii_lowercase()));
+    if !is_it {
+        return Ok(format!(
+            "replaces  {replaces}: no such results folder under {}, so no comparison was recorded\n",
+            results_root.display()
+        ));
+    }
+    if layout.root.join(KIND).join(record_name(replaces)).exists() {
+        return Ok(String::new());
+    }
+    let report = match super::compare::run(&folder, &layout.root, results_root) {
+        Ok(report) => report,
+        Err(e) => return Ok(format!("replaces  {}: cannot be compared ({e}); no comparison was recorded\n", folder.display())),
+    };
+    let json = serde_json::to_vec_pretty(&report.json).map_err(|e| Error::Internal(format!("comparison: {e}")))?;
+    let record = crate::store::attached::attach(
+        &layout.root,
+        KIND,
+        &record_name(replaces),
+        &[(FILE, &json), ("compare.txt", report.text.as_bytes())],
+    )?;
+    crate::card::write_card(layout, None)?;
+    Ok(format!("replaces  {}: compared, recorded in {KIND}/{} and shown in the card\n", folder.display(), record.name))
 }
 
 /// The terminal report of a completed `train`.
@@ -340,6 +378,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     }
     // A sweep killed between its selection and the seal of its integrity list finishes both now.
     let nothing_new = report.trained.is_empty() && Folder::is_sealed(&layout);
+    let mut replaced_note = String::new();
     let (selection, results_digest) = if nothing_new {
         // Nothing was trained: the stored results stand, once they match their integrity list
         // (checked when the folder was found sealed, or now).
@@ -360,9 +399,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started, phases)?;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
         ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;
+        replaced_note = compare_with_replaced(&m.experiment.replaces, &options.results_root, &layout)?;
         recorded
     };
-    let out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);
+    let mut out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);
+    out.push_str(&replaced_note);
     let json = serde_json::json!({
         "experiment": m.experiment.name,
         "fingerprint": exp.fingerprint,

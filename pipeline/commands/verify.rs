@@ -15,11 +15,15 @@ pub struct VerifyOptions {
     /// Use this data file instead of the recorded path (it must still match the fingerprints).
     pub data: Option<PathBuf>,
     pub results_root: PathBuf,
+    /// The allowed-signers file reviews are judged with (see [`crate::review::allowed_signers::locate`]).
+    pub allowed_signers: Option<PathBuf>,
 }
 
 pub struct VerifyOutcome {
     pub report: String,
     pub identical: bool,
+    /// Every recorded review holds (true when there are none).
+    pub reviews_hold: bool,
     pub json: serde_json::Value,
 }
 
@@ -27,16 +31,64 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
     let folder = verification::results_folder(target, &options.results_root)?;
     let manifest = crate::manifest::is_manifest_path(target).then(|| target.to_path_buf());
     let request = VerifyRequest { all: options.all, jobs: options.jobs, data: options.data.clone(), manifest };
+    // The allowed-signers file is read first: a named file that cannot be read stops before any
+    // retraining.
+    let results_root = folder.parent().unwrap_or(Path::new("."));
+    let signers = crate::review::allowed_signers::locate(options.allowed_signers.as_deref(), results_root)?;
     let found = verification::verify(&folder, &request, on_event)?;
     let identical = found.identical();
+    let trained_by = crate::results::trainers(&found.folder);
+    let reviews = crate::review::judge::judge_folder(
+        &found.folder,
+        &found.fingerprint,
+        &found.digest,
+        &trained_by,
+        signers.as_ref(),
+        crate::provenance::today_days(),
+    )?;
+    let reviews_hold = reviews.iter().all(|r| r.holds());
     let mut report = report_text(&found);
+    reviews_text(&mut report, &reviews, signers.as_ref());
     // The verdict stands whether or not it can be recorded (a read-only store): say both.
     let recorded = crate::store::ledger::append_verification(found.project_root(), &found.entry());
     if let Err(e) = &recorded {
         let _ = writeln!(report, "warning   this verification could not be recorded in {}: {e}", crate::store::ledger::VERIFICATIONS);
     }
-    let json = report_json(&found, recorded.is_ok());
-    Ok(VerifyOutcome { report, identical, json })
+    let mut json = report_json(&found, recorded.is_ok());
+    json["reviews"] = serde_json::to_value(&reviews).unwrap_or_default();
+    json["reviews_hold"] = serde_json::Value::Bool(reviews_hold);
+    Ok(VerifyOutcome { report, identical, reviews_hold, json })
+}
+
+/// The recorded reviews' verdicts, one line each, after the bits' verdict.
+pub(crate) fn reviews_text(
+    out: &mut String,
+    reviews: &[crate::review::judge::Judgement],
+    signers: Option<&crate::review::allowed_signers::AllowedSigners>,
+) {
+    if reviews.is_empty() {
+        let _ = writeln!(out, "reviews   none recorded");
+        return;
+    }
+    reviews_lines(out, reviews, signers);
+}
+
+/// The reviews' verdicts as `verify` and `history` print them: the allowed-signers file, then one
+/// line per record.
+pub(crate) fn reviews_lines(
+    out: &mut String,
+    reviews: &[crate::review::judge::Judgement],
+    signers: Option<&crate::review::allowed_signers::AllowedSigners>,
+) {
+    let against = match signers {
+        Some(s) => format!("signers from {}", s.path.display()),
+        None => "no allowed-signers file (--allowed-signers, $TABCARD_ALLOWED_SIGNERS or allowed_signers at the results root)".into(),
+    };
+    let holding = reviews.iter().filter(|r| r.holds()).count();
+    let _ = writeln!(out, "reviews   {holding} of {} hold (checked against {against}):", reviews.len());
+    for r in reviews {
+        let _ = writeln!(out, "  {}: {}", r.record, crate::text::terminal_safe(&r.describe()));
+    }
 }
 
 /// The verification as the text report `verify` prints.

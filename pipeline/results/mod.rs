@@ -165,6 +165,23 @@ impl Sealed {
     }
 }
 
+/// Who trained the experiment in the folder at `root`, as its files say: the timing record's
+/// `trained_by` (git's `user.email` or the login name at training, from tabcard 0.10) and the
+/// stored manifest's `[experiment] trained_by`, where given. A file that cannot be read names
+/// nobody here: its integrity is `verify`'s to judge.
+pub(crate) fn trainers(root: &Path) -> Vec<String> {
+    let layout = Layout::new(root);
+    let timing = crate::store::timing::read(&layout.timing()).ok().flatten().and_then(|t| t.trained_by);
+    let manifest = read_json::<Manifest>(&layout.manifest()).ok();
+    let named = manifest.map(|m| m.experiment.trained_by.trim().to_string()).filter(|t| !t.is_empty());
+    timing.into_iter().chain(named).collect()
+}
+
+/// The experiment fingerprint `experiment.json` of the folder at `root` records, if it can be read.
+pub(crate) fn fingerprint_of(root: &Path) -> Option<String> {
+    read_json::<serde_json::Value>(&Layout::new(root).experiment()).ok()?["fingerprint"].as_str().map(String::from)
+}
+
 /// Everything the card is made from, read once from a results folder (layout version and the
 /// stored manifest's hash checked; the integrity list is the caller's: see the module's doc).
 pub(crate) struct StoredResults {

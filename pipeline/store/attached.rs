@@ -1,5 +1,7 @@
 //! Attached records: what is added to a results folder after training without touching its
-//! evidence, such as reviews (`reviews/`) and monitoring reports (`monitoring/`). Each record is
+//! evidence: reviews (`reviews/`), monitoring reports (`monitoring/`), the heads of decision
+//! logs (`decisions/`) and the comparison with a replaced model recorded at training
+//! (`comparisons/`). Each record is
 //! one sub-folder `<kind>/<name>/` sealed by its own list, `contents.sha256`, in the format
 //! `sha256sum -c` reads; the record's digest is the SHA-256 of that list. A record is written
 //! whole into a hidden folder and renamed into place, so a reader sees it complete or not at all.
@@ -14,7 +16,7 @@ use crate::error::{Error, Result};
 use crate::fingerprint::{file_sha256, sha256_hex};
 
 /// The folders of attached records at the top of a results folder.
-pub const KINDS: &[&str] = &["reviews", "monitoring"];
+pub const KINDS: &[&str] = &["reviews", "monitoring", "decisions", "comparisons"];
 
 /// The list that seals one record, inside its folder.
 pub const CONTENTS: &str = "contents.sha256";
@@ -72,38 +74,63 @@ pub fn attach(root: &Path, kind: &str, name: &str, files: &[(&str, &[u8])]) -> R
     Ok(AttachedRecord { kind: kind.into(), name: name.into(), digest: sha256_hex(list.as_bytes()) })
 }
 
+/// Kinds whose records are judged one by one by their own checks rather than by the folder's:
+/// a review that does not hold is a finding about the review (`review::judge` names it, and
+/// `verify` exits 10), never a reason to refuse the model.
+pub const JUDGED_ONE_BY_ONE: &[&str] = &["reviews"];
+
 /// Checks every attached record of the folder against its own list and returns them, sorted by
 /// kind and name; the first file that differs, is gone or is not listed is named.
 pub fn check(root: &Path) -> Result<Vec<AttachedRecord>> {
+    check_kinds(root, KINDS)
+}
+
+/// [`check`] for the kinds the folder's own check covers (all but [`JUDGED_ONE_BY_ONE`]).
+pub fn check_for_folder(root: &Path) -> Result<Vec<AttachedRecord>> {
+    let kinds: Vec<&str> = KINDS.iter().copied().filter(|k| !JUDGED_ONE_BY_ONE.contains(k)).collect();
+    check_kinds(root, &kinds)
+}
+
+fn check_kinds(root: &Path, kinds: &[&str]) -> Result<Vec<AttachedRecord>> {
     let mut records = Vec::new();
-    for kind in KINDS {
-        let kind_dir = root.join(kind);
-        let Ok(meta) = std::fs::symlink_metadata(&kind_dir) else { continue };
-        if !meta.is_dir() {
-            return Err(Error::integrity(&kind_dir, "is not a folder: it is where attached records are kept"));
-        }
-        let mut names: Vec<_> = std::fs::read_dir(&kind_dir)
-            .map_err(|e| Error::io(&kind_dir, "list", e))?
-            .map(|e| e.map(|e| e.file_name().to_string_lossy().into_owned()))
-            .collect::<std::io::Result<_>>()
-            .map_err(|e| Error::io(&kind_dir, "list", e))?;
-        names.sort();
-        for name in names {
-            let dir = kind_dir.join(&name);
-            let is_dir = std::fs::symlink_metadata(&dir).is_ok_and(|m| m.is_dir());
-            if name.starts_with(PARTIAL) && is_dir {
-                continue;
-            }
-            if !is_dir || !name_ok(&name) {
-                return Err(Error::integrity(
-                    &dir,
-                    format!("is not a sealed record: {kind}/ holds only record folders with their {CONTENTS}"),
-                ));
-            }
-            records.push(check_record(&dir, kind, &name)?);
+    for kind in kinds {
+        for (_, record) in check_each(root, kind)? {
+            records.push(record?);
         }
     }
     Ok(records)
+}
+
+/// Every entry under `<kind>/`, by name, each with its own verdict: the record, or what is wrong
+/// with it (a loose file, a changed, missing or unlisted file). Only a `<kind>` that is not a
+/// folder, or cannot be listed, fails the whole call.
+pub fn check_each(root: &Path, kind: &str) -> Result<Vec<(String, Result<AttachedRecord>)>> {
+    let kind_dir = root.join(kind);
+    let Ok(meta) = std::fs::symlink_metadata(&kind_dir) else { return Ok(Vec::new()) };
+    if !meta.is_dir() {
+        return Err(Error::integrity(&kind_dir, "is not a folder: it is where attached records are kept"));
+    }
+    let mut names: Vec<_> = std::fs::read_dir(&kind_dir)
+        .map_err(|e| Error::io(&kind_dir, "list", e))?
+        .map(|e| e.map(|e| e.file_name().to_string_lossy().into_owned()))
+        .collect::<std::io::Result<_>>()
+        .map_err(|e| Error::io(&kind_dir, "list", e))?;
+    names.sort();
+    let mut out = Vec::new();
+    for name in names {
+        let dir = kind_dir.join(&name);
+        let is_dir = std::fs::symlink_metadata(&dir).is_ok_and(|m| m.is_dir());
+        if name.starts_with(PARTIAL) && is_dir {
+            continue;
+        }
+        let verdict = if !is_dir || !name_ok(&name) {
+            Err(Error::integrity(&dir, format!("is not a sealed record: {kind}/ holds only record folders with their {CONTENTS}")))
+        } else {
+            check_record(&dir, kind, &name)
+        };
+        out.push((name, verdict));
+    }
+    Ok(out)
 }
 
 fn check_record(dir: &Path, kind: &str, name: &str) -> Result<AttachedRecord> {

@@ -161,7 +161,8 @@ pub fn seal(root: &Path, render: impl FnOnce(&str) -> Result<()>) -> Result<Stri
 }
 
 /// Checks every file of the folder against its lists, and every attached record against its
-/// own, and returns the results digest; the first file that differs, is gone or is not listed
+/// own (reviews aside: `review::judge` judges each, see `attached::JUDGED_ONE_BY_ONE`), and
+/// returns the results digest; the first file that differs, is gone or is not listed
 /// is named in the error.
 pub fn check(root: &Path) -> Result<String> {
     check_parts(root, false)
@@ -200,7 +201,7 @@ fn check_parts(root: &Path, rendered_may_differ: bool) -> Result<String> {
         let list_name = if split && part(&path, version) != Part::Evidence { RECORDS_FILE } else { FILE };
         return Err(hash_list::unlisted(root, &path, kind, list_name));
     }
-    attached::check(root)?;
+    attached::check_for_folder(root)?;
     Ok(sha256_hex(evidence_lines.as_bytes()))
 }
 

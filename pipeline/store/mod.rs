@@ -5,6 +5,7 @@
 //! the folder's files and its sealed check; `output` the guard for files users name.
 
 pub mod attached;
+pub mod decision_log;
 pub(crate) mod files;
 mod hash_list;
 pub mod integrity;

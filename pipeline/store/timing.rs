@@ -24,6 +24,10 @@ pub(crate) struct TimingRecord {
     /// Wall time of each phase of the invocation, in order (absent before tabcard 0.5).
     #[serde(default)]
     pub phases: Vec<Phase>,
+    /// Who trained: git's `user.email` in the manifest's repository, else the login name
+    /// (absent before tabcard 0.10); review checks name a validator or approver who is this person.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub trained_by: Option<String>,
 }
 
 /// One phase of a `train` invocation and its wall time.

@@ -9,5 +9,7 @@ pub(crate) mod decision;
 pub(crate) mod groups;
 pub(crate) mod importance;
 pub(crate) mod provenance;
+pub(crate) mod replaced;
 pub(crate) mod results;
+pub(crate) mod review;
 pub(crate) mod sensitivity;
