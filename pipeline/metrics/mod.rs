@@ -5,6 +5,7 @@
 pub(crate) mod bootstrap;
 pub mod calibration;
 pub mod classification;
+pub mod ranked;
 pub mod registry;
 pub mod regression;
 pub mod wilson;

@@ -5,6 +5,7 @@
 
 use super::calibration::expected_calibration_error;
 use super::classification as c;
+use super::ranked::ClassRankings;
 use super::regression as r;
 use super::MetricSet;
 use crate::task::Task;
@@ -38,10 +39,22 @@ pub enum Scale {
 }
 
 /// What a metric is computed from: class probabilities (row-major, `k` per row) with their
-/// labels and arg-max predictions, or predicted and true values.
+/// labels and arg-max predictions, or predicted and true values. A bootstrap resample may bring
+/// its sample's rankings and its row counts (`ranks`), so its rank metrics take linear time.
 pub enum Scored<'a> {
-    Classes { labels: &'a [usize], probs: &'a [f64], k: usize, predicted: &'a [usize], is_positive: &'a [bool], p_positive: &'a [f64] },
-    Values { truth: &'a [f64], predicted: &'a [f64] },
+    Classes {
+        labels: &'a [usize],
+        probs: &'a [f64],
+        k: usize,
+        predicted: &'a [usize],
+        is_positive: &'a [bool],
+        p_positive: &'a [f64],
+        ranks: Option<(&'a ClassRankings, &'a [u32])>,
+    },
+    Values {
+        truth: &'a [f64],
+        predicted: &'a [f64],
+    },
 }
 
 pub struct Metric {
@@ -74,6 +87,14 @@ fn values(s: &Scored, f: impl Fn(&[f64], &[f64]) -> Option<f64>) -> Option<f64> 
     }
 }
 
+/// A rank metric: from the resample's counts when the sample was ranked, else by sorting.
+fn ranked(s: &Scored, counted: fn(&ClassRankings, &[u32]) -> Option<f64>, sorted: fn(&Scored) -> Option<f64>) -> Option<f64> {
+    match s {
+        Scored::Classes { ranks: Some((rankings, counts)), .. } => counted(rankings, counts),
+        _ => sorted(s),
+    }
+}
+
 const fn metric(name: &'static str, direction: Direction, on_card: bool, scale: Scale, compute: fn(&Scored) -> Option<f64>) -> Metric {
     Metric { name, direction, on_card, scale, compute }
 }
@@ -89,8 +110,10 @@ const ECE: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| expected_ca
 
 /// Binary, in card column order; the first is the default selection metric.
 const BINARY: &[Metric] = &[
-    metric("roc_auc", Maximise, true, Scale::Unit, |s| positives(s, c::roc_auc)),
-    metric("average_precision", Maximise, true, Scale::Unit, |s| positives(s, c::average_precision)),
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| ranked(s, ClassRankings::roc_auc, |s| positives(s, c::roc_auc))),
+    metric("average_precision", Maximise, true, Scale::Unit, |s| {
+        ranked(s, ClassRankings::average_precision, |s| positives(s, c::average_precision))
+    }),
     metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
     metric("brier", Minimise, true, Scale::Unit, BRIER),
     metric("ece", Minimise, true, Scale::Unit, ECE),
@@ -102,7 +125,9 @@ const MULTICLASS: &[Metric] = &[
     metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
     metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
     metric("balanced_accuracy", Maximise, true, Scale::Unit, BALANCED_ACCURACY),
-    metric("roc_auc", Maximise, true, Scale::Unit, |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k))),
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| {
+        ranked(s, ClassRankings::roc_auc, |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k)))
+    }),
     metric("ece", Minimise, true, Scale::Unit, ECE),
     metric("brier", Minimise, false, Scale::Unit, BRIER),
 ];
@@ -173,11 +198,22 @@ pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
 /// Every classification metric of the table (binary when `k == 2`) of class probabilities
 /// (`k` per row) against class indices, by name.
 pub fn classification_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
+    classification_metrics_ranked(labels, probs, k, None)
+}
+
+/// [`classification_metrics`] of a bootstrap resample given as its rows (`labels`, `probs`) and,
+/// when its sample was ranked, as that ranking with the resample's count of each sample row: the
+/// same bits, with the rank metrics in linear time (`ranked`).
+pub fn classification_metrics_ranked(labels: &[usize], probs: &[f64], k: usize, ranks: Option<(&ClassRankings, &[u32])>) -> MetricSet {
     let predicted = super::classification::predicted_classes(probs, k);
-    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
-        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+    // With a ranking, the rank metrics never read the positive-class columns.
+    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) = if k == 2 && ranks.is_none() {
+        labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip()
+    } else {
+        (Vec::new(), Vec::new())
+    };
     let task = if k == 2 { Task::Binary } else { Task::Multiclass };
-    let scored = Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive };
+    let scored = Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive, ranks };
     scalar_metrics(task, &scored)
 }
 

@@ -130,14 +130,9 @@ pub(crate) fn judge(
     seed: u64,
     alpha: f64,
 ) -> Outcomes {
-    let k = head.values_per_row();
     let n = observed.labels.len();
-    let bootstrap = || {
-        percentile_intervals(n, resamples, 0.95, seed, |idx| {
-            let (o, y) = crate::training::head::rows_of(&observed.outputs, &observed.labels, k, idx);
-            head.metrics(&o, &y)
-        })
-    };
+    let scorer = crate::training::head::ResampleScorer::new(head, &observed.outputs, &observed.labels);
+    let bootstrap = || percentile_intervals(n, resamples, 0.95, seed, |idx| scorer.metrics(idx));
     // The resamples are scored on a few helper threads; the intervals are the same at any count.
     let intervals = match crate::threads::helper_pool(crate::selection::MAX_BOOTSTRAP_THREADS, "score bootstrap resamples") {
         Ok(pool) => pool.install(bootstrap),

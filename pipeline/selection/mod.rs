@@ -29,6 +29,7 @@ use crate::selection::deployed::{
 };
 use crate::selection::scoring::ScoringModel;
 use crate::store::run::StoredRun;
+use crate::training::head::ResampleScorer;
 use crate::training::Labels;
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -454,11 +455,9 @@ pub(crate) fn evaluate_test(
                 Labels::Values(v) => Some(v.iter().sum::<f64>() / v.len().max(1) as f64),
                 Labels::Classes { .. } => None,
             };
-            let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, |within| {
-                let rows: Vec<usize> = within.iter().map(|&i| idx[i]).collect();
-                let (sub_out, sub_y) = subset(&outputs, &rows);
-                head.metrics(&sub_out, &sub_y)
-            });
+            // The level's rows in level order: a resample of them is the same rows as before.
+            let scorer = ResampleScorer::new(head, &o, &y);
+            let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, |within| scorer.metrics(within));
             groups.push(GroupMetrics {
                 column: g.name.clone(),
                 level,
@@ -469,10 +468,8 @@ pub(crate) fn evaluate_test(
             });
         }
     }
-    let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-        let (sub_out, sub_y) = subset(&outputs, idx);
-        head.metrics(&sub_out, &sub_y)
-    });
+    let scorer = ResampleScorer::new(head, &outputs, test_y);
+    let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| scorer.metrics(idx));
     let validation_y = inputs.validation.1;
     let decision = inputs.decision;
     let chosen_threshold = match (test_y, validation_y) {

@@ -4,7 +4,7 @@
 # target (the drift pass: schema check, file SHA-256, one streamed read, binning of every feature,
 # scoring in chunks, the record). Whole command, process start to exit, best of REPS, on the
 # machine's cores; peak resident memory from /usr/bin/time, set against the batch's f32 matrix
-# (rows x 64 x 4 bytes). Then the same with outcomes on 100,000 labelled rows (the bootstrap's
+# (rows x 64 x 4 bytes). Then the same with outcomes on 1,000,000 labelled rows (the bootstrap's
 # 200 resamples of every card metric dominate). BENCHMARKS.md records the figures.
 #
 #   bash tests/bench/monitor.sh            REPS=5 bash tests/bench/monitor.sh
@@ -19,7 +19,7 @@ reps="${REPS:-3}"
 rows=1000000
 [[ -f $work/train.parquet ]] || "$gen" data 20000 64 "$work/train.parquet" >/dev/null
 [[ -f $work/batch.parquet ]] || "$gen" data "$rows" 64 "$work/batch.parquet" --no-target >/dev/null
-[[ -f $work/labelled.parquet ]] || "$gen" data 100000 64 "$work/labelled.parquet" >/dev/null
+[[ -f $work/labelled-1m.parquet ]] || "$gen" data "$rows" 64 "$work/labelled-1m.parquet" >/dev/null
 cat > "$work/bench.toml" <<'TOML'
 [experiment]
 name = "monitor-64"
@@ -53,12 +53,12 @@ measure() { # best "seconds peak_kib" of $reps runs of tabcard monitor on $1
   echo "$best"
 }
 drift=$(measure "$work/batch.parquet")
-outcomes=$(measure "$work/labelled.parquet")
+outcomes=$(measure "$work/labelled-1m.parquet")
 python3 - "$drift" "$outcomes" "$rows" <<'PY'
 import sys
 (s, kib), (so, kibo), rows = sys.argv[1].split(), sys.argv[2].split(), int(sys.argv[3])
 matrix = rows * 64 * 4
 print(f"monitor, {rows:,} rows x 64 float32 features, [64, 64] ReLU, no target: {float(s):.2f} s (target 10 s), "
       f"peak RSS {int(kib) / 1024:.0f} MiB = {int(kib) * 1024 / matrix:.2f}x the batch's f32 matrix ({matrix / 2**20:.0f} MiB; target 1.5x)")
-print(f"monitor with outcomes, 100,000 labelled rows, 200 bootstrap resamples: {float(so):.2f} s, peak RSS {int(kibo) / 1024:.0f} MiB")
+print(f"monitor with outcomes, {rows:,} labelled rows, 200 bootstrap resamples: {float(so):.2f} s, peak RSS {int(kibo) / 1024:.0f} MiB")
 PY

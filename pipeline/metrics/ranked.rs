@@ -1,0 +1,204 @@
+//! Rank metrics of bootstrap resamples in linear time. A resample draws rows of one sample with
+//! replacement, so it is the sample's rows with counts; sorting the sample's scores once gives
+//! every resample's order. ROC AUC and average precision of a resample then walk the sample's
+//! tie groups in that order, weighting each by the resample's counts, instead of sorting the
+//! resample's scores again.
+//!
+//! The bits are those of [`super::classification::roc_auc`] and
+//! [`super::classification::average_precision`] on the resample's rows:
+//! - ROC AUC sums average ranks, which are halves of whole numbers. Every partial sum is exact in
+//!   f64 while the rank sum stays below 2^53, so its order does not matter; [`Ranking::new`]
+//!   refuses samples where it could exceed that (about 94 million rows), and the caller sorts.
+//! - Average precision walks the distinct scores from the highest, with whole-number counts, in
+//!   the order the sorting form walks them, and does the same floating-point operations.
+
+/// One sample's rows ordered by score, with its tie groups (runs of equal scores).
+#[derive(Debug, Clone)]
+pub struct Ranking {
+    /// Row indices by ascending score (`f64::total_cmp`, as the sorting forms order them).
+    order: Vec<u32>,
+    /// Where each tie group starts in `order`, then `order.len()`.
+    starts: Vec<u32>,
+    positive: Vec<bool>,
+}
+
+/// The most rows a ranking takes: the largest rank sum, n(n + 1)/2, stays below 2^53, where every
+/// sum of halves of whole numbers is exact.
+pub const MAX_ROWS: usize = 94_906_265;
+
+impl Ranking {
+    /// The ranking of `scores` with each row's class (`positive`); `None` beyond [`MAX_ROWS`].
+    pub fn new(positive: Vec<bool>, scores: &[f64]) -> Option<Self> {
+        if scores.len() > MAX_ROWS || positive.len() != scores.len() {
+            return None;
+        }
+        let mut order: Vec<u32> = (0..scores.len() as u32).collect();
+        order.sort_by(|&a, &b| scores[a as usize].total_cmp(&scores[b as usize]));
+        let mut starts = Vec::new();
+        let mut i = 0;
+        while i < order.len() {
+            starts.push(i as u32);
+            let first = scores[order[i] as usize];
+            // Equal as the sorting forms compare them (`==`: -0.0 ties with 0.0).
+            while i < order.len() && scores[order[i] as usize] == first {
+                i += 1;
+            }
+        }
+        starts.push(order.len() as u32);
+        Some(Ranking { order, starts, positive })
+    }
+
+    /// Each tie group's (rows, positives) in the resample with `counts` per sample row, lowest
+    /// scores first; groups the resample does not draw are left out.
+    fn groups<'a>(&'a self, counts: &'a [u32]) -> impl DoubleEndedIterator<Item = (u64, u64)> + 'a {
+        self.starts.windows(2).filter_map(move |w| {
+            let (mut rows, mut positives) = (0u64, 0u64);
+            for &r in &self.order[w[0] as usize..w[1] as usize] {
+                let c = counts[r as usize] as u64;
+                rows += c;
+                if self.positive[r as usize] {
+                    positives += c;
+                }
+            }
+            (rows > 0).then_some((rows, positives))
+        })
+    }
+
+    /// ROC AUC of the resample, as [`super::classification::roc_auc`] gives it on its rows.
+    pub fn roc_auc(&self, counts: &[u32]) -> Option<f64> {
+        let (mut before, mut rank_sum, mut n_pos) = (0u64, 0.0f64, 0u64);
+        let mut n = 0u64;
+        for (rows, positives) in self.groups(counts) {
+            // The group holds ranks before+1 ..= before+rows; each of its rows gets their mean.
+            let rank = (before + before + rows - 1) as f64 / 2.0 + 1.0;
+            rank_sum += rank * positives as f64;
+            before += rows;
+            n_pos += positives;
+            n += rows;
+        }
+        let n_neg = n - n_pos;
+        if n_pos == 0 || n_neg == 0 {
+            return None;
+        }
+        let n_pos = n_pos as usize;
+        let u = rank_sum - (n_pos * (n_pos + 1)) as f64 / 2.0;
+        Some(u / (n_pos as f64 * n_neg as f64))
+    }
+
+    /// Average precision of the resample, as [`super::classification::average_precision`] gives it.
+    pub fn average_precision(&self, counts: &[u32]) -> Option<f64> {
+        let n_pos: u64 = self.order.iter().filter(|&&r| self.positive[r as usize]).map(|&r| counts[r as usize] as u64).sum();
+        if n_pos == 0 {
+            return None;
+        }
+        let (mut tp, mut fp) = (0usize, 0usize);
+        let (mut last_recall, mut ap) = (0.0, 0.0);
+        for (rows, positives) in self.groups(counts).rev() {
+            tp += positives as usize;
+            fp += (rows - positives) as usize;
+            let recall = tp as f64 / n_pos as usize as f64;
+            let precision = tp as f64 / (tp + fp) as f64;
+            ap += (recall - last_recall) * precision;
+            last_recall = recall;
+        }
+        Some(ap)
+    }
+}
+
+/// The rankings a classifier's rank metrics need: binary, the positive class's probability;
+/// multiclass, each class against the rest.
+#[derive(Debug, Clone)]
+pub struct ClassRankings {
+    pub k: usize,
+    pub per_class: Vec<Ranking>,
+}
+
+impl ClassRankings {
+    /// `None` when the sample is too large to rank exactly ([`MAX_ROWS`]).
+    pub fn new(labels: &[usize], probs: &[f64], k: usize) -> Option<Self> {
+        let classes: Vec<usize> = if k == 2 { vec![1] } else { (0..k).collect() };
+        let per_class = classes
+            .into_iter()
+            .map(|c| {
+                let scores: Vec<f64> = probs.chunks_exact(k).map(|r| r[c]).collect();
+                Ranking::new(labels.iter().map(|&y| y == c).collect(), &scores)
+            })
+            .collect::<Option<Vec<_>>>()?;
+        Some(ClassRankings { k, per_class })
+    }
+
+    /// Binary ROC AUC, or the macro one-vs-rest mean over the classes where it is defined (as
+    /// [`super::classification::macro_ovr_auc`]).
+    pub fn roc_auc(&self, counts: &[u32]) -> Option<f64> {
+        if self.k == 2 {
+            return self.per_class[0].roc_auc(counts);
+        }
+        let aucs: Vec<f64> = self.per_class.iter().filter_map(|r| r.roc_auc(counts)).collect();
+        (!aucs.is_empty()).then(|| aucs.iter().sum::<f64>() / aucs.len() as f64)
+    }
+
+    /// Binary average precision (`None` for more classes, which have none).
+    pub fn average_precision(&self, counts: &[u32]) -> Option<f64> {
+        (self.k == 2).then(|| self.per_class[0].average_precision(counts)).flatten()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::metrics::classification::{average_precision, macro_ovr_auc, roc_auc};
+    use crate::rng::{Purpose, Stream};
+
+    /// Scores on a coarse grid (many ties, a -0.0 beside 0.0), resampled with replacement: the
+    /// counted forms give the sorting forms' bits on every resample.
+    #[test]
+    fn counted_rank_metrics_equal_the_sorting_forms_bit_for_bit() {
+        let mut stream = Stream::new(7, Purpose::Bootstrap);
+        let n = 400;
+        let mut scores: Vec<f64> = (0..n).map(|_| (stream.below(37) as f64) / 36.0).collect();
+        scores[3] = -0.0;
+        scores[4] = 0.0;
+        let labels: Vec<usize> = (0..n).map(|i| usize::from(stream.below(100) < 20 + (scores[i] * 60.0) as u64)).collect();
+        let positive: Vec<bool> = labels.iter().map(|&y| y == 1).collect();
+        let ranking = Ranking::new(positive.clone(), &scores).unwrap();
+        for _ in 0..200 {
+            let draw = 1 + stream.below(n as u64) as usize;
+            let idx: Vec<usize> = (0..draw).map(|_| stream.below(n as u64) as usize).collect();
+            let mut counts = vec![0u32; n];
+            for &i in &idx {
+                counts[i] += 1;
+            }
+            let (p, s): (Vec<bool>, Vec<f64>) = idx.iter().map(|&i| (positive[i], scores[i])).unzip();
+            assert_eq!(ranking.roc_auc(&counts).map(f64::to_bits), roc_auc(&p, &s).map(f64::to_bits));
+            assert_eq!(ranking.average_precision(&counts).map(f64::to_bits), average_precision(&p, &s).map(f64::to_bits));
+        }
+        // Multiclass: three classes' probabilities, macro one-vs-rest.
+        let k = 3;
+        let probs: Vec<f64> = (0..n)
+            .flat_map(|_| {
+                let a = stream.below(9) as f64 + 1.0;
+                let b = stream.below(9) as f64 + 1.0;
+                let c = stream.below(9) as f64 + 1.0;
+                [a / (a + b + c), b / (a + b + c), c / (a + b + c)]
+            })
+            .collect();
+        let classes: Vec<usize> = (0..n).map(|_| stream.below(3) as usize).collect();
+        let rankings = ClassRankings::new(&classes, &probs, k).unwrap();
+        for _ in 0..100 {
+            let idx: Vec<usize> = (0..n).map(|_| stream.below(n as u64) as usize).collect();
+            let mut counts = vec![0u32; n];
+            for &i in &idx {
+                counts[i] += 1;
+            }
+            let y: Vec<usize> = idx.iter().map(|&i| classes[i]).collect();
+            let pr: Vec<f64> = idx.iter().flat_map(|&i| probs[i * k..(i + 1) * k].to_vec()).collect();
+            assert_eq!(rankings.roc_auc(&counts).map(f64::to_bits), macro_ovr_auc(&y, &pr, k).map(f64::to_bits));
+            assert_eq!(rankings.average_precision(&counts), None);
+        }
+        // A resample of one class has no ROC AUC, and none without positives has no precision.
+        let mut only_negatives = vec![0u32; n];
+        only_negatives[labels.iter().position(|&y| y == 0).unwrap()] = 3;
+        assert_eq!(ranking.roc_auc(&only_negatives), None);
+        assert_eq!(ranking.average_precision(&only_negatives), None);
+    }
+}
