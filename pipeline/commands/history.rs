@@ -10,7 +10,7 @@ use std::collections::BTreeMap;
 
 use crate::error::Result;
 use crate::format::fixed;
-use crate::review::judge::{judge_folder, Judgement};
+use crate::review::judge::Judgement;
 use crate::store::ledger::{read, read_monitoring, read_verifications};
 use crate::text::terminal_cell;
 
@@ -25,9 +25,7 @@ pub fn run(results_root: &Path, allowed_signers: Option<&Path>) -> Result<super:
         let latest = !entries[i + 1..].iter().any(|later| later.fingerprint == e.fingerprint);
         let folder = results_root.join(&e.results);
         if let (true, Some(digest), true) = (latest, &e.results_digest, folder.is_dir()) {
-            let today = crate::provenance::today_days();
-            let trained_by = crate::results::trainers(&folder);
-            let judged = judge_folder(&folder, &e.fingerprint, digest, &trained_by, signers.as_ref(), today)?;
+            let judged = super::review::judge_reviews(&folder, &e.fingerprint, digest, signers.as_ref())?;
             if !judged.is_empty() {
                 reviews.insert(e.fingerprint.clone(), judged);
             }

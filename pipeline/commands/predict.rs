@@ -190,8 +190,8 @@ pub struct Scored {
     pub columns: Vec<(String, ArrayRef)>,
     pub provenance: Provenance,
     pub report: String,
-    /// What the decision log records of this scoring.
-    pub scoring: Scoring,
+    /// What the decision log records of this scoring (only with `--log`).
+    pub scoring: Option<Scoring>,
     /// The results folder that scored.
     pub results_folder: std::path::PathBuf,
 }
@@ -260,7 +260,8 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     columns.push((schema::ROW.into(), Arc::new(Int64Array::from((0..table.rows as i64).collect::<Vec<_>>()))));
     let k = model.head.values_per_row();
     let labels = &record.class_labels;
-    let mut decision_counts = std::collections::BTreeMap::new();
+    // Rows per decided class (by index), for the decision log.
+    let mut decision_counts = vec![0usize; labels.len()];
     match record.task {
         Task::Regression => {
             columns.push((schema::PREDICTION.into(), Arc::new(Float64Array::from(outputs.clone()))));
@@ -284,7 +285,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
                 outputs.chunks_exact(k).map(crate::metrics::classification::argmax).collect()
             };
             for &c in &decided {
-                *decision_counts.entry(labels[c].clone()).or_insert(0) += 1;
+                decision_counts[c] += 1;
             }
             columns.push((
                 schema::DECISION.into(),
@@ -407,7 +408,8 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             terminal_safe(col)
         );
     }
-    let scoring = Scoring {
+    // Only a logged scoring hashes the input table.
+    let scoring = options.log.is_some().then(|| Scoring {
         fingerprint: record.fingerprint.clone(),
         model_id: provenance.model_id.clone(),
         results: crate::store::folder_name(&folder.layout.root),
@@ -415,8 +417,9 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
         input_sha256: table.content_hash(),
         rows: table.rows,
         threshold: (record.task == Task::Binary).then_some(deployed.value),
-        decisions: (record.task != Task::Regression).then_some(decision_counts),
-    };
+        decisions: (record.task != Task::Regression)
+            .then(|| labels.iter().zip(&decision_counts).filter(|(_, &n)| n > 0).map(|(l, &n)| (l.clone(), n)).collect()),
+    });
     Ok(Scored { columns, provenance, report: out, scoring, results_folder: folder.layout.root.clone() })
 }
 
@@ -529,7 +532,7 @@ pub fn run(target: &Path, input: &Path, output: &Path, options: &PredictOptions)
     };
     write_atomic(output, &bytes)?;
     let _ = writeln!(report, "wrote     {}", output.display());
-    if let Some(log) = &options.log {
+    if let (Some(log), Some(scoring)) = (&options.log, scoring) {
         let head = decision_log::append(log, scoring)
             .map_err(|e| Error::store(log, format!("{e} (the predictions were written to {})", output.display())))?;
         decision_log::record_head(&results_folder, &head)?;

@@ -10,7 +10,8 @@ use std::path::{Path, PathBuf};
 use crate::error::{Error, Result};
 use crate::results::Sealed;
 use crate::review::allowed_signers;
-use crate::review::judge::judge_folder;
+use crate::review::allowed_signers::AllowedSigners;
+use crate::review::judge::{judge_folder, Judgement};
 use crate::review::record;
 use crate::review::signature::{self, NAMESPACE};
 use crate::review::statement::{card_sha256, Decision, Role, Statement, FORMAT};
@@ -92,6 +93,13 @@ fn check_signed(folder: &Sealed, statement_path: &Path, signature_path: &Path) -
     Ok((statement, bytes, armoured))
 }
 
+/// Every review recorded in the results folder at `root` (fingerprint and results digest as its
+/// check or the ledger gives them), judged today against `signers` and the folder's trainers:
+/// what `review`, `verify` and `history` report.
+pub(crate) fn judge_reviews(root: &Path, fingerprint: &str, digest: &str, signers: Option<&AllowedSigners>) -> Result<Vec<Judgement>> {
+    judge_folder(root, fingerprint, digest, &crate::results::trainers(root), signers, crate::provenance::today_days())
+}
+
 pub fn run(folder_path: &Path, options: &ReviewOptions) -> Result<String> {
     let folder = Sealed::open(folder_path)?;
     let mut out = String::new();
@@ -144,15 +152,7 @@ pub fn run(folder_path: &Path, options: &ReviewOptions) -> Result<String> {
     // Judge the new review as verify and history will (other reviews are theirs to report).
     let results_root = folder.layout.root.parent().unwrap_or(Path::new("."));
     let signers = allowed_signers::locate(options.allowed_signers.as_deref(), results_root)?;
-    let trained_by = crate::results::trainers(&folder.layout.root);
-    let judged = judge_folder(
-        &folder.layout.root,
-        &folder.record.fingerprint,
-        &folder.digest,
-        &trained_by,
-        signers.as_ref(),
-        crate::provenance::today_days(),
-    )?;
+    let judged = judge_reviews(&folder.layout.root, &folder.record.fingerprint, &folder.digest, signers.as_ref())?;
     if let Some(j) = judged.iter().find(|j| j.record == written.name) {
         let _ = writeln!(out, "check      {}", crate::text::terminal_safe(&j.describe()));
     }

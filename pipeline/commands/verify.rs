@@ -37,15 +37,7 @@ pub fn run(target: &Path, options: &VerifyOptions, on_event: &(dyn Fn(Event) + S
     let signers = crate::review::allowed_signers::locate(options.allowed_signers.as_deref(), results_root)?;
     let found = verification::verify(&folder, &request, on_event)?;
     let identical = found.identical();
-    let trained_by = crate::results::trainers(&found.folder);
-    let reviews = crate::review::judge::judge_folder(
-        &found.folder,
-        &found.fingerprint,
-        &found.digest,
-        &trained_by,
-        signers.as_ref(),
-        crate::provenance::today_days(),
-    )?;
+    let reviews = super::review::judge_reviews(&found.folder, &found.fingerprint, &found.digest, signers.as_ref())?;
     let reviews_hold = reviews.iter().all(|r| r.holds());
     let mut report = report_text(&found);
     reviews_text(&mut report, &reviews, signers.as_ref());

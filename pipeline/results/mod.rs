@@ -145,9 +145,10 @@ impl Sealed {
     }
 
     /// The attached records of `kind` (`monitoring`, `reviews`), each checked against its own
-    /// list first, in name order.
+    /// list first, in name order; records of other kinds are not read (a review that does not
+    /// hold never stops a reader of monitoring records).
     pub(crate) fn attached(&self, kind: &str) -> Result<Vec<crate::store::attached::AttachedRecord>> {
-        Ok(crate::store::attached::check(&self.layout.root)?.into_iter().filter(|r| r.kind == kind).collect())
+        crate::store::attached::check_each(&self.layout.root, kind)?.into_iter().map(|(_, record)| record).collect()
     }
 
     /// One JSON file of an attached record (checked by [`Sealed::attached`]).
@@ -179,7 +180,7 @@ pub(crate) fn trainers(root: &Path) -> Vec<String> {
 
 /// The experiment fingerprint `experiment.json` of the folder at `root` records, if it can be read.
 pub(crate) fn fingerprint_of(root: &Path) -> Option<String> {
-    read_json::<serde_json::Value>(&Layout::new(root).experiment()).ok()?["fingerprint"].as_str().map(String::from)
+    read_record(&Layout::new(root)).ok().map(|r| r.fingerprint)
 }
 
 /// Everything the card is made from, read once from a results folder (layout version and the

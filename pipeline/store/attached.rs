@@ -79,13 +79,9 @@ pub fn attach(root: &Path, kind: &str, name: &str, files: &[(&str, &[u8])]) -> R
 /// `verify` exits 10), never a reason to refuse the model.
 pub const JUDGED_ONE_BY_ONE: &[&str] = &["reviews"];
 
-/// Checks every attached record of the folder against its own list and returns them, sorted by
-/// kind and name; the first file that differs, is gone or is not listed is named.
-pub fn check(root: &Path) -> Result<Vec<AttachedRecord>> {
-    check_kinds(root, KINDS)
-}
-
-/// [`check`] for the kinds the folder's own check covers (all but [`JUDGED_ONE_BY_ONE`]).
+/// Checks every attached record of the kinds the folder's own check covers (all but
+/// [`JUDGED_ONE_BY_ONE`]) against its own list and returns them, sorted by kind and name; the
+/// first file that differs, is gone or is not listed is named.
 pub fn check_for_folder(root: &Path) -> Result<Vec<AttachedRecord>> {
     let kinds: Vec<&str> = KINDS.iter().copied().filter(|k| !JUDGED_ONE_BY_ONE.contains(k)).collect();
     check_kinds(root, &kinds)
@@ -156,6 +152,7 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let root = dir.path();
         let record = attach(root, "reviews", "2026-12-03-risk", &[("review.json", b"{}"), ("notes/a.md", b"ok")]).unwrap();
+        let check = |root: &Path| check_kinds(root, KINDS);
         assert_eq!(check(root).unwrap(), vec![record.clone()]);
         assert!(attach(root, "reviews", "2026-12-03-risk", &[]).is_err(), "written once");
         std::fs::write(root.join("reviews/2026-12-03-risk/notes/a.md"), "OK").unwrap();
