@@ -20,6 +20,7 @@ pub mod experiment;
 pub mod fingerprint;
 pub mod format;
 pub mod manifest;
+pub mod memory;
 pub mod metrics;
 pub mod monitor;
 pub mod nn;

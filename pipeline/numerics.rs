@@ -1,4 +1,4 @@
-//! What the bits of a trained model depend on, and keeping each run's arithmetic single-threaded.
+//! What the bits of a trained model depend on, and keeping candle's own kernels single-threaded.
 //!
 //! Every number that reaches a stored result comes from tabcard's own code: matrix products from
 //! the portable kernels (`nn/matmul.rs`, one fused multiply-add chain per output in a fixed order,
@@ -63,8 +63,11 @@ pub struct NumericsFingerprint {
     /// record: they choose the dispatch level, which changes no bit.
     pub cpu_features: Vec<String>,
     pub libc: String,
-    /// Threads each run computes with (always 1).
-    pub threads_per_run: usize,
+    /// Threads each run computed with: always 1 before tabcard 0.11, which no longer writes it.
+    /// A run's products may now be split across threads; how many is speed only, recorded in
+    /// the timing records (outside every list), so that this record is the same at any `--jobs`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threads_per_run: Option<usize>,
 }
 
 impl NumericsFingerprint {
@@ -127,7 +130,7 @@ pub fn current() -> Result<NumericsFingerprint> {
         target_os: std::env::consts::OS.to_string(),
         cpu_features: cpu_features(),
         libc: libc_version(),
-        threads_per_run: 1,
+        threads_per_run: None,
     })
 }
 

@@ -1,6 +1,9 @@
-//! Thread pools for work whose results do not depend on how many threads share it (the first pass
-//! over the data, bootstrap resamples). The process-wide rayon pool stays single-threaded for the
-//! training kernels (`numerics::prepare_process`), so such work runs on a pool of its own.
+//! Thread pools for work whose results do not depend on how many threads share it: runs (each on
+//! a worker, its products split across the pool's idle threads by `nn/spread.rs`), the first pass
+//! over the data, bootstrap resamples. The process-wide rayon pool stays single-threaded
+//! (`numerics::prepare_process`), so such work runs on a pool of its own.
+
+use std::sync::Mutex;
 
 use std::sync::atomic::{AtomicUsize, Ordering};
 
@@ -15,12 +18,18 @@ pub fn limit_to(threads: usize) {
     LIMIT.store(threads.max(1), Ordering::Relaxed);
 }
 
-/// A pool of as many threads as the process may use, at most `max` (each thread's working memory
-/// is the caller's reason for a cap) and at most the [`limit_to`] cap; `what` names the work in
-/// the error when threads cannot start.
-pub fn helper_pool(max: usize, what: &str) -> Result<rayon::ThreadPool> {
+/// The share of the memory still available that a helper pool's working copies may take.
+const HELPER_MEMORY_SHARE: u64 = 4;
+
+/// A pool of as many threads as the process may use (the cores, capped by [`limit_to`]), as long
+/// as their working memory, `bytes_per_thread` each, stays within a quarter of the memory still
+/// available ([`crate::memory::available_bytes`]; no memory cap where the system does not say);
+/// `what` names the work in the error when threads cannot start.
+pub fn helper_pool(bytes_per_thread: u64, what: &str) -> Result<rayon::ThreadPool> {
     let available = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let threads = available.min(LIMIT.load(Ordering::Relaxed)).clamp(1, max.max(1));
+    let by_memory = crate::memory::available_bytes()
+        .map_or(usize::MAX, |bytes| usize::try_from(bytes / HELPER_MEMORY_SHARE / bytes_per_thread.max(1)).unwrap_or(usize::MAX));
+    let threads = available.min(LIMIT.load(Ordering::Relaxed)).min(by_memory).max(1);
     rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()
@@ -31,6 +40,19 @@ pub fn helper_pool(max: usize, what: &str) -> Result<rayon::ThreadPool> {
 /// that must run more workers than this machine has cores, e.g. 4 workers on 2 cores to show that
 /// the worker count changes no bit.
 pub const OVERSUBSCRIBE_ENV: &str = "TABCARD_TEST_OVERSUBSCRIBE";
+
+/// Environment variable (tests only): the sweep trains one run at a time on all its threads, so
+/// that a test sees one run's work split across 2, 3 or 4 threads.
+pub const ONE_RUN_AT_A_TIME_ENV: &str = "TABCARD_TEST_ONE_RUN_AT_A_TIME";
+
+/// Runs in flight for `workers` workers: 1 under [`ONE_RUN_AT_A_TIME_ENV`], else `workers`.
+pub fn runs_in_flight(workers: usize) -> usize {
+    if std::env::var_os(ONE_RUN_AT_A_TIME_ENV).is_some() {
+        1
+    } else {
+        workers
+    }
+}
 
 /// The most worker threads any command starts, whatever it is asked.
 pub const MAX_WORKERS: usize = 256;
@@ -47,6 +69,36 @@ pub fn workers(requested: usize, runs: usize) -> Result<usize> {
     Ok(requested.min(runs.max(1)).min(cores).min(MAX_WORKERS))
 }
 
+/// `work(item)` for every item, on a pool of `threads` threads of which `workers` take items one
+/// after another from a shared queue (at most `workers` items in flight); the other threads, and
+/// each worker once the queue is empty, take the pieces the items split their computation into.
+/// Results come back in the items' order. A worker only ever starts an item from its own loop, never
+/// while waiting for a piece (the loops are broadcast to the threads, not queued as stealable jobs),
+/// so an item in flight is never held up behind a whole other item.
+pub fn each_on_workers<I: Sync, R: Send>(threads: usize, workers: usize, items: &[I], work: impl Fn(&I) -> R + Sync) -> Result<Vec<R>> {
+    let threads = threads.max(workers).max(1);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| Error::Environment(format!("cannot start {threads} worker threads: {e}; try a smaller --jobs")))?;
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let done: Mutex<Vec<(usize, R)>> = Mutex::new(Vec::with_capacity(items.len()));
+    pool.broadcast(|context| {
+        if context.index() >= workers.max(1) {
+            return;
+        }
+        loop {
+            let i = next.fetch_add(1, Ordering::Relaxed);
+            let Some(item) = items.get(i) else { break };
+            let result = work(item);
+            done.lock().unwrap_or_else(|poisoned| poisoned.into_inner()).push((i, result));
+        }
+    });
+    let mut done = done.into_inner().unwrap_or_else(|poisoned| poisoned.into_inner());
+    done.sort_by_key(|(i, _)| *i);
+    Ok(done.into_iter().map(|(_, r)| r).collect())
+}
+
 #[cfg(test)]
 mod worker_tests {
     use super::*;
@@ -58,5 +110,22 @@ mod worker_tests {
         assert_eq!(workers(100_000, 3).unwrap(), 3.min(cores));
         assert_eq!(workers(100_000, 100_000).unwrap(), cores.min(MAX_WORKERS));
         assert_eq!(workers(1, 0).unwrap(), 1);
+    }
+
+    #[test]
+    fn items_come_back_in_order_with_at_most_the_workers_in_flight() {
+        let in_flight = std::sync::atomic::AtomicUsize::new(0);
+        let most = std::sync::atomic::AtomicUsize::new(0);
+        let items: Vec<usize> = (0..40).collect();
+        let out = each_on_workers(4, 2, &items, |&i| {
+            let now = in_flight.fetch_add(1, Ordering::SeqCst) + 1;
+            most.fetch_max(now, Ordering::SeqCst);
+            std::thread::sleep(std::time::Duration::from_millis(1));
+            in_flight.fetch_sub(1, Ordering::SeqCst);
+            i * 10
+        })
+        .unwrap();
+        assert_eq!(out, items.iter().map(|i| i * 10).collect::<Vec<_>>());
+        assert!(most.load(Ordering::SeqCst) <= 2);
     }
 }

@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 
 /// Bottom first. A module may use its own layer's module (itself) and any lower layer.
 const LAYERS: &[&[&str]] = &[
-    &["error", "task"],
+    &["error", "task", "memory"],
     &["format", "text", "rng", "fingerprint", "provenance", "threads", "output_schema"],
     &["metrics"],
     &["calibrate"],

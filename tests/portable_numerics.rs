@@ -2,8 +2,10 @@
 //! - a committed golden file of digests (`tests/golden/portable-v1.json`) that a small fixed
 //!   experiment must reproduce at every dispatch level this CPU runs, with one worker or two, and
 //!   restricted to one CPU (`taskset`); this is the check that catches drift across machines;
-//! - the demo lease sweep trained with each forced dispatch level gives identical weights,
-//!   histories and metrics;
+//! - the same experiment trained one run at a time on 1, 2, 3 and 4 threads, with every product
+//!   and element-wise pass split across them, reproduces the same digests;
+//! - the demo lease sweep trained with each forced dispatch level, and on 1, 3 and 4 threads per
+//!   run, gives identical weights, histories and metrics;
 //! - no numerics code reads cache sizes or calls another crate's matrix kernels.
 //!
 //! To regenerate the golden file after a deliberate change of the numerics (which also bumps the
@@ -110,6 +112,28 @@ fn train(mut command: Command, dir: &Path, manifest: &Path, results: &str, jobs:
     path
 }
 
+/// `tabcard` training one run at a time on all the threads `--jobs` asks for (even beyond this
+/// machine's cores), with every product and element-wise pass split into pieces however small.
+fn split_small() -> Command {
+    let mut command = bin();
+    command
+        .env(tabcard::threads::OVERSUBSCRIBE_ENV, "1")
+        .env(tabcard::threads::ONE_RUN_AT_A_TIME_ENV, "1")
+        .env(tabcard::nn::spread::SPLIT_SMALL_ENV, "1");
+    command
+}
+
+/// How many threads computed pieces of each run, from the runs' timing records.
+fn threads_taken(results: &Path) -> Vec<usize> {
+    run_folders(results)
+        .iter()
+        .map(|(_, dir)| {
+            let timing: Value = serde_json::from_slice(&std::fs::read(dir.join("timing.json")).unwrap()).unwrap();
+            timing["threads"].as_u64().expect("a run's timing records its threads") as usize
+        })
+        .collect()
+}
+
 /// `tabcard` restricted to CPU 0 when `taskset` exists (util-linux), else plain.
 fn on_one_cpu() -> (Command, bool) {
     let bin = env!("CARGO_BIN_EXE_tabcard");
@@ -165,6 +189,20 @@ fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restrict
     }
     // 4 configurations x 2 seeds + the linear baseline x 2 seeds.
     assert_eq!(fast.len(), 10 + 1);
+    // One run at a time on 1, 2, 3 and 4 threads (more than this machine may have cores), every
+    // product and pass split however small: the same digests, and the runs' work did go to more
+    // than one thread.
+    for threads in 1..=4usize {
+        let results = format!("threads-{threads}");
+        let path = train(split_small(), dir.path(), &manifest, &results, &threads.to_string(), best);
+        assert_eq!(first_difference(&fast, &digests(&path)), None, "{threads} threads per run vs 2 workers");
+        let taken = threads_taken(&path);
+        assert!(taken.iter().all(|&t| (1..=threads).contains(&t)), "{threads} threads per run: took part {taken:?}");
+        if threads > 1 {
+            assert!(taken.iter().any(|&t| t > 1), "{threads} threads per run: no run's work was split ({taken:?})");
+        }
+        eprintln!("{threads} threads per run: threads that took part, by run: {taken:?}");
+    }
 
     let golden_path = repo_path(GOLDEN);
     if std::env::var_os("TABCARD_WRITE_GOLDEN").is_some() {
@@ -204,28 +242,48 @@ fn run_contents(results: &Path) -> RunContents {
     out
 }
 
-#[test]
-fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level() {
+/// Trains the demo `manifest` in each case and checks every run's weights, history and metrics
+/// are identical across the cases.
+fn demo_is_identical_across(manifest: &Path, cases: Vec<(String, Command, &str, Level)>) {
     let dir = tempfile::tempdir().unwrap();
-    let manifest = repo_path("experiments/lease-default.toml");
-    let mut reference: Option<(Level, RunContents)> = None;
-    for level in Level::available_levels().into_iter().rev() {
-        let results = train(bin(), dir.path(), &manifest, level.name(), "2", level);
+    let mut reference: Option<(String, RunContents)> = None;
+    for (case, command, jobs, level) in cases {
+        let results = train(command, dir.path(), manifest, &case.replace(' ', "-"), jobs, level);
         let contents = run_contents(&results);
-        assert!(contents.len() >= 12, "the demo sweep trains its whole grid ({} runs)", contents.len());
+        assert!(contents.len() >= 6, "the demo sweep trains its whole grid ({} runs)", contents.len());
         match &reference {
-            None => reference = Some((level, contents)),
+            None => reference = Some((case, contents)),
             Some((first, want)) => {
                 assert_eq!(want.keys().collect::<Vec<_>>(), contents.keys().collect::<Vec<_>>());
                 for (run, (weights, history, metrics)) in want {
                     let got = &contents[run];
-                    assert_eq!(weights, &got.0, "run {run}: weights at {} vs {}", first.name(), level.name());
-                    assert_eq!(history, &got.1, "run {run}: history at {} vs {}", first.name(), level.name());
-                    assert_eq!(metrics, &got.2, "run {run}: metrics at {} vs {}", first.name(), level.name());
+                    assert_eq!(weights, &got.0, "run {run}: weights at {first} vs {case}");
+                    assert_eq!(history, &got.1, "run {run}: history at {first} vs {case}");
+                    assert_eq!(metrics, &got.2, "run {run}: metrics at {first} vs {case}");
                 }
             }
         }
     }
+}
+
+/// The fastest level, one run at a time on each of `threads` with every product split.
+fn thread_cases(threads: &[&'static str]) -> Vec<(String, Command, &'static str, Level)> {
+    let best = Level::best();
+    threads.iter().map(|&t| (format!("{} on {t} threads", best.name()), split_small(), t, best)).collect()
+}
+
+#[test]
+fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level_and_thread_count() {
+    // Every level with 2 workers, then the fastest level on 1, 3 and 4 threads per run.
+    let mut cases: Vec<(String, Command, &str, Level)> =
+        Level::available_levels().into_iter().rev().map(|l| (l.name().to_string(), bin(), "2", l)).collect();
+    cases.extend(thread_cases(&["1", "3", "4"]));
+    demo_is_identical_across(&repo_path("experiments/lease-default.toml"), cases);
+}
+
+#[test]
+fn the_demo_greenhouse_sweep_is_identical_at_every_thread_count() {
+    demo_is_identical_across(&repo_path("experiments/greenhouse-yield.toml"), thread_cases(&["1", "2", "3", "4"]));
 }
 
 #[test]

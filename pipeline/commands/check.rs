@@ -17,7 +17,7 @@ pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     crate::experiment::feasibility::require_calibration_rows(&exp)?;
     crate::experiment::feasibility::require_known_features(&exp)?;
     let estimate = crate::experiment::feasibility::estimate(&exp, &plan, exp.preprocessor.width(), jobs);
-    let available = crate::experiment::feasibility::available_bytes();
+    let available = crate::memory::available_bytes();
     crate::experiment::feasibility::require(&estimate, available, manifest_path)?;
     let mut out = report(&exp, &plan);
     let _ = writeln!(out, "memory       {}", crate::experiment::feasibility::describe(&estimate, available));

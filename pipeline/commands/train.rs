@@ -164,7 +164,7 @@ fn select_and_record(
     prepared: &Prepared,
     layout: &Layout,
     git: &GitState,
-    jobs: usize,
+    (jobs, threads): (usize, usize),
     started: Instant,
     mut phases: Vec<Phase>,
 ) -> Result<(Selection, String)> {
@@ -195,6 +195,7 @@ fn select_and_record(
             git_commit,
             git_dirty,
             jobs,
+            threads: Some(threads),
             wall_seconds: started.elapsed().as_secs_f64(),
             run_seconds: runs.iter().map(|r| (r.record.run_id.clone(), r.seconds())).collect(),
             phases,
@@ -326,12 +327,13 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let m = &exp.manifest;
     // No more workers than runs to train (or cores): what the card and the timing record state.
     let planned_runs = options.shard.map(|s| s.size(plan.runs.len())).unwrap_or(plan.runs.len());
+    let threads = crate::threads::workers(options.jobs, crate::threads::MAX_WORKERS)?;
     let options = &TrainOptions { jobs: crate::threads::workers(options.jobs, planned_runs)?, ..options.clone() };
     // Before anything is written: a plan that cannot fit in memory stops here, with the figures.
     crate::experiment::feasibility::require_calibration_rows(exp)?;
     crate::experiment::feasibility::require_known_features(exp)?;
     let estimate = crate::experiment::feasibility::estimate(exp, plan, preprocessor.width(), options.jobs);
-    crate::experiment::feasibility::require(&estimate, crate::experiment::feasibility::available_bytes(), manifest_path)?;
+    crate::experiment::feasibility::require(&estimate, crate::memory::available_bytes(), manifest_path)?;
     let layout = Layout::new(options.results_root.join(exp.short_id()));
     on_event(Event::Header(format!(
         "experiment {} ({}): {} runs planned, results in {}",
@@ -365,6 +367,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
         selection_metric: &m.selection.metric,
         environment: &environment,
         jobs: options.jobs,
+        threads,
         shard: options.shard,
     };
     let sweeping = Instant::now();
@@ -396,7 +399,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
             exp.splits.test.len(),
             exp.manifest.selection.bootstrap
         )));
-        let recorded = select_and_record(&prepared, &layout, &git, options.jobs, started, phases)?;
+        let recorded = select_and_record(&prepared, &layout, &git, (options.jobs, threads), started, phases)?;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
         ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;
         replaced_note = compare_with_replaced(&m.experiment.replaces, &options.results_root, &layout)?;

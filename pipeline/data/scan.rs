@@ -63,15 +63,15 @@ fn findings_of(col: &Column, roles: &Roles, keys: &[String], splits: &Splits, fi
     Ok(found)
 }
 
-/// The most threads the first pass uses: each holds one decoded column and its working copies
-/// (about 32 bytes a row), so more would cost memory the matrices need.
-pub(crate) const MAX_SCAN_THREADS: usize = 4;
+/// Working memory of one first-pass thread per row: one decoded column and its working copies.
+pub(crate) const SCAN_BYTES_PER_ROW: u64 = 32;
 
 /// Scans `source` for the experiment `m` describes, on its own pool of as many threads as the
-/// process may use, up to [`MAX_SCAN_THREADS`] (the process-wide pool stays single-threaded for
-/// the training kernels). Every result is the same whatever the thread count.
+/// process may use and the memory allows ([`crate::threads::helper_pool`]; the process-wide pool
+/// stays single-threaded). Every result is the same whatever the thread count.
 pub(crate) fn scan(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
-    crate::threads::helper_pool(MAX_SCAN_THREADS, "read the data")?.install(|| scan_in(m, source))
+    let per_thread = SCAN_BYTES_PER_ROW.saturating_mul(source.rows() as u64);
+    crate::threads::helper_pool(per_thread, "read the data")?.install(|| scan_in(m, source))
 }
 
 fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {

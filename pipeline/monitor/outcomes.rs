@@ -133,8 +133,9 @@ pub(crate) fn judge(
     let n = observed.labels.len();
     let scorer = crate::training::head::ResampleScorer::new(head, &observed.outputs, &observed.labels);
     let bootstrap = || percentile_intervals(n, resamples, 0.95, seed, |idx| scorer.metrics(idx));
-    // The resamples are scored on a few helper threads; the intervals are the same at any count.
-    let intervals = match crate::threads::helper_pool(crate::selection::MAX_BOOTSTRAP_THREADS, "score bootstrap resamples") {
+    // The resamples are scored on helper threads; the intervals are the same at any count.
+    let per_thread = crate::selection::BOOTSTRAP_BYTES_PER_ROW.saturating_mul(n as u64);
+    let intervals = match crate::threads::helper_pool(per_thread, "score bootstrap resamples") {
         Ok(pool) => pool.install(bootstrap),
         Err(_) => bootstrap(),
     };

@@ -3,13 +3,14 @@
 //! out by hand over the portable matrix multiply of `nn/matmul.rs` (bias and batch-norm
 //! statistics fused into single passes, dropout and activation derivatives applied in place,
 //! every sum in a fixed row order), and the evaluation-mode pass that validation and
-//! `predict` use. A training step allocates nothing and computes single-threaded. candle's
+//! `predict` use. A training step allocates nothing; its products and element-wise passes may be
+//! split across the threads of its pool (`nn/spread.rs`), which changes no bit. candle's
 //! [`Mlp`] stays the model's definition and stored form: the engine starts from its values and
 //! writes its values back into it. `tests/training.rs` checks the engine's gradients and outputs
 //! against candle's autograd and against finite differences.
 
 use super::dispatch::Level;
-use super::host_ops::{activate, column_sums, derivative, normalise, normalise_backward, Norm};
+use super::host_ops::{activate_spread, column_sums, derivative_spread, normalise, normalise_backward, Norm};
 use super::layers::BN_EPS;
 use super::matmul::{matmul, View, Workspace};
 use super::mlp::{has_residual, Mlp};
@@ -114,8 +115,15 @@ pub const EVAL_BLOCK: usize = 256;
 
 impl<T: Real> Engine<T> {
     /// An engine holding `model`'s current values, for training batches of up to `batch` rows,
-    /// computing at the process's dispatch level ([`Level::active`]).
+    /// computing at the process's dispatch level ([`Level::active`]) on the calling thread.
     pub fn from_model(model: &Mlp, batch: usize) -> Result<Self> {
+        Engine::spread_over(model, batch, 1)
+    }
+
+    /// As [`Engine::from_model`], splitting large products and element-wise passes into at most
+    /// `threads` pieces for the threads of the pool it computes on (`nn/spread.rs`): the same bits
+    /// for every `threads`.
+    pub fn spread_over(model: &Mlp, batch: usize, threads: usize) -> Result<Self> {
         let level = Level::active()?;
         let capacity = batch.max(EVAL_BLOCK);
         let spec = &model.spec;
@@ -189,8 +197,13 @@ impl<T: Real> Engine<T> {
             grad_in: zeros(capacity * widest),
             draws: if spec.dropout > 0.0 { vec![0; capacity * widest] } else { Vec::new() },
             rows: 0,
-            workspace: Workspace::new(level),
+            workspace: Workspace::spread_over(level, threads),
         })
+    }
+
+    /// How many threads computed pieces of this engine's work so far (1 when nothing was split).
+    pub fn threads_taken(&self) -> usize {
+        self.workspace.spread().threads_taken()
     }
 
     /// Parameter slots for the optimizer: weight, bias, gamma, beta per layer.
@@ -293,7 +306,7 @@ impl<T: Real> Engine<T> {
                 let grad_out = &self.grad_out[..b * n_out];
                 let grad_z: &[T] = if layer.hidden {
                     let pre = &mut layer.pre[..b * n_out];
-                    derivative(self.activation, pre, &layer.act, grad_out, None);
+                    derivative_spread(self.workspace.spread(), self.activation, pre, &layer.act, grad_out, None);
                     if let Some(slope) = &slopes[l] {
                         for row in pre.chunks_exact_mut(n_out) {
                             for (g, &s) in row.iter_mut().zip(slope) {
@@ -379,7 +392,7 @@ impl<T: Real> Engine<T> {
                     }
                 }
             }
-            activate(self.activation, &mut layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
+            activate_spread(self.workspace.spread(), self.activation, &layer.pre[..b * n_out], &mut layer.act, &mut layer.out[..b * n_out]);
             if let Pass::Training { dropout } = &mut pass {
                 if self.dropout > 0.0 {
                     let keep = (1.0 - self.dropout) as f32;
@@ -426,7 +439,8 @@ impl<T: Real> Engine<T> {
             let grad_out = &self.grad_out[..b * n_out];
             let grad_z: &[T] = if layer.hidden {
                 let pre = &mut layer.pre[..b * n_out];
-                derivative(
+                derivative_spread(
+                    self.workspace.spread(),
                     self.activation,
                     pre,
                     &layer.act,
@@ -487,11 +501,12 @@ impl<T: Real> Engine<T> {
     /// One optimizer update of every parameter; weight decay applies to weight matrices only.
     pub fn update(&mut self, optimizer: &mut Optimizer, step: &Step) {
         for (i, l) in self.layers.iter_mut().enumerate() {
-            optimizer.update(step, 4 * i, &mut l.weight, &l.grad_weight, true);
-            optimizer.update(step, 4 * i + 1, &mut l.bias, &l.grad_bias, false);
+            let spread = self.workspace.spread();
+            optimizer.update(spread, step, 4 * i, &mut l.weight, &l.grad_weight, true);
+            optimizer.update(spread, step, 4 * i + 1, &mut l.bias, &l.grad_bias, false);
             if let Some(n) = &mut l.norm {
-                optimizer.update(step, 4 * i + 2, &mut n.gamma, &n.grad_gamma, false);
-                optimizer.update(step, 4 * i + 3, &mut n.beta, &n.grad_beta, false);
+                optimizer.update(spread, step, 4 * i + 2, &mut n.gamma, &n.grad_gamma, false);
+                optimizer.update(spread, step, 4 * i + 3, &mut n.beta, &n.grad_beta, false);
             }
         }
     }

@@ -2,9 +2,34 @@
 //! forward (batch statistics, updating the running ones) and backward, activations and their
 //! derivatives. Every sum runs in a fixed row order, so results do not depend on the machine.
 
+use rayon::prelude::*;
+
 use super::layers::{BN_EPS, BN_MOMENTUM};
 use super::scalar::Real;
+use super::spread::Spread;
 use crate::manifest::Activation;
+
+/// Elements per stretch of an element-wise pass are a multiple of this (a cache line of f64).
+const STRETCH_ALIGN: usize = 64;
+
+/// Rough cost of one element of an activation or its derivative, in multiply-adds: what decides
+/// whether a pass is worth splitting (speed only).
+fn cost(activation: Activation) -> usize {
+    match activation {
+        Activation::Relu | Activation::Identity => 2,
+        Activation::Sigmoid | Activation::Tanh | Activation::Gelu => 24,
+    }
+}
+
+/// `values[start..start + len]`, or nothing when `values` is empty (an operand the
+/// pass does not use).
+fn part<T>(values: &[T], start: usize, len: usize) -> &[T] {
+    if values.is_empty() {
+        values
+    } else {
+        &values[start..start + len]
+    }
+}
 
 /// Batch normalisation's parameters, running statistics and per-batch state.
 pub(super) struct Norm<T> {
@@ -87,8 +112,23 @@ pub(super) fn normalise_backward<T: Real>(norm: &mut Norm<T>, g: &mut [T], rows:
 
 const FRAC_1_SQRT_2PI: f64 = 0.398_942_280_401_432_7;
 
+/// [`activate`] in stretches of `out` across the threads of `spread`: the same bits.
+pub(super) fn activate_spread<T: Real>(spread: &Spread, activation: Activation, pre: &[T], act: &mut [T], out: &mut [T]) {
+    let stretch = spread.band(out.len(), STRETCH_ALIGN, cost(activation));
+    if stretch >= out.len() {
+        return activate(activation, pre, act, out);
+    }
+    out.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, o)| {
+        spread.note_thread();
+        activate(activation, &pre[i * stretch..i * stretch + o.len()], &mut [], o);
+    });
+    if !act.is_empty() {
+        act[..out.len()].copy_from_slice(out);
+    }
+}
+
 /// `out = f(pre)`; `act` keeps f(pre) too when it is non-empty (sigmoid, tanh).
-pub(super) fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut [T], out: &mut [T]) {
+pub(super) fn activate<T: Real>(activation: Activation, pre: &[T], act: &mut [T], out: &mut [T]) {
     let half = T::narrow(0.5);
     let inv_sqrt2 = T::narrow(std::f64::consts::FRAC_1_SQRT_2);
     let f = |x: T| -> T {
@@ -112,6 +152,26 @@ pub(super) fn activate<T: Real>(activation: Activation, pre: &mut [T], act: &mut
     if !act.is_empty() {
         act[..out.len()].copy_from_slice(out);
     }
+}
+
+/// [`derivative`] in stretches of `pre` across the threads of `spread`: the same bits.
+pub(super) fn derivative_spread<T: Real>(
+    spread: &Spread,
+    activation: Activation,
+    pre: &mut [T],
+    act: &[T],
+    grad_out: &[T],
+    mask: Option<&[T]>,
+) {
+    let stretch = spread.band(pre.len(), STRETCH_ALIGN, cost(activation));
+    if stretch >= pre.len() {
+        return derivative(activation, pre, act, grad_out, mask);
+    }
+    pre.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, p)| {
+        spread.note_thread();
+        let (start, len) = (i * stretch, p.len());
+        derivative(activation, p, part(act, start, len), &grad_out[start..start + len], mask.map(|m| &m[start..start + len]));
+    });
 }
 
 /// In place: `pre <- grad_out * mask * f'(pre)`, one loop per activation so each vectorises.

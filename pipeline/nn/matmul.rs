@@ -12,9 +12,14 @@
 //! this file; nothing reads cache sizes or the core count. The register tiles per dispatch level
 //! live in `nn/microkernel.rs`.
 
+use std::borrow::Cow;
+
+use rayon::prelude::*;
+
 use super::dispatch::Level;
 use super::microkernel::{Kernels, Tile};
 use super::scalar::Real;
+use super::spread::Spread;
 
 /// Inner-dimension block: the length of one stored stretch of each chain.
 const KC: usize = 256;
@@ -23,62 +28,107 @@ const MC: usize = 144;
 /// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 8, 16 and 32).
 const NC: usize = 512;
 
-/// A row-major `rows x cols` matrix in a slice, read as itself or as its transpose.
+/// A matrix in a slice with a row stride and a column stride: a row-major matrix read as itself
+/// ([`View::new`]), as its transpose ([`View::t`]), or a band of either's rows or columns.
 #[derive(Clone, Copy)]
 pub struct View<'a, T> {
     data: &'a [T],
     rows: usize,
     cols: usize,
-    transposed: bool,
+    row_stride: usize,
+    col_stride: usize,
 }
 
-impl<'a, T> View<'a, T> {
+impl<'a, T: Copy> View<'a, T> {
     /// The first `rows * cols` values of `data` as a row-major matrix.
     pub fn new(data: &'a [T], rows: usize, cols: usize) -> Self {
-        assert!(data.len() >= rows * cols, "matrix view of {rows}x{cols} over {} values", data.len());
-        View { data, rows, cols, transposed: false }
+        View::strided(data, rows, cols, cols, 1)
+    }
+
+    /// Every value the view reads lies in `data`: the kernels read through raw pointers and rely
+    /// on it.
+    fn strided(data: &'a [T], rows: usize, cols: usize, row_stride: usize, col_stride: usize) -> Self {
+        let span = if rows == 0 || cols == 0 { 0 } else { (rows - 1) * row_stride + (cols - 1) * col_stride + 1 };
+        assert!(data.len() >= span, "matrix view of {rows}x{cols} (strides {row_stride}, {col_stride}) over {} values", data.len());
+        View { data, rows, cols, row_stride, col_stride }
     }
 
     /// The transpose, without moving any value.
     pub fn t(self) -> Self {
-        View { transposed: !self.transposed, ..self }
+        View { rows: self.cols, cols: self.rows, row_stride: self.col_stride, col_stride: self.row_stride, ..self }
     }
 
     /// (rows, cols) as read.
     pub fn shape(&self) -> (usize, usize) {
-        if self.transposed {
-            (self.cols, self.rows)
-        } else {
-            (self.rows, self.cols)
-        }
+        (self.rows, self.cols)
     }
 
     /// (row stride, column stride) in `data` as read.
     fn strides(&self) -> (usize, usize) {
-        if self.transposed {
-            (1, self.cols)
+        (self.row_stride, self.col_stride)
+    }
+
+    /// Rows `start..start + rows` (at least one row).
+    fn row_band(self, start: usize, rows: usize) -> Self {
+        View::strided(&self.data[start * self.row_stride..], rows, self.cols, self.row_stride, self.col_stride)
+    }
+
+    /// Columns `start..start + cols` (at least one column).
+    fn col_band(self, start: usize, cols: usize) -> Self {
+        View::strided(&self.data[start * self.col_stride..], self.rows, cols, self.row_stride, self.col_stride)
+    }
+
+    /// The values of a one-row or one-column view in order: borrowed where they lie side by side
+    /// (every view the engine builds), gathered otherwise.
+    fn vector(&self) -> Cow<'a, [T]> {
+        let (len, stride) = if self.cols == 1 { (self.rows, self.row_stride) } else { (self.cols, self.col_stride) };
+        if stride == 1 || len <= 1 {
+            Cow::Borrowed(&self.data[..len])
         } else {
-            (self.cols, 1)
+            Cow::Owned((0..len).map(|i| self.data[i * stride]).collect())
         }
     }
 }
 
-/// Packing buffers and the kernels of one dispatch level, for one engine; the buffers grow on
-/// first use, so that repeated products of the same shapes allocate nothing.
-pub struct Workspace<T> {
-    kernels: Kernels<T>,
+/// One thread's packing buffers.
+struct Scratch<T> {
     packed_a: Vec<T>,
     packed_b: Vec<T>,
     edge: Vec<T>,
 }
 
+/// The kernels of one dispatch level, packing buffers for each piece a product may be split into,
+/// and the [`Spread`] that decides the pieces, for one engine; the buffers grow on first use, so
+/// that repeated products of the same shapes allocate nothing.
+pub struct Workspace<T> {
+    kernels: Kernels<T>,
+    scratch: Vec<Scratch<T>>,
+    spread: Spread,
+}
+
 impl<T: Real> Workspace<T> {
-    /// A workspace computing at `level`, which the CPU must run ([`Level::available`]).
+    /// A workspace computing at `level`, which the CPU must run ([`Level::available`]), on one
+    /// thread.
     pub fn new(level: Level) -> Self {
+        Workspace::spread_over(level, 1)
+    }
+
+    /// As [`Workspace::new`], splitting each large product into at most `threads` pieces for the
+    /// threads of the pool it runs in ([`Spread`]): the same bits for every `threads`.
+    pub fn spread_over(level: Level, threads: usize) -> Self {
         assert!(level.available(), "dispatch level {} is not available on this CPU", level.name());
         let kernels = T::kernels(level);
+        let spread = Spread::new(threads);
         let tile = kernels.tile;
-        Workspace { kernels, packed_a: Vec::new(), packed_b: Vec::new(), edge: vec![T::zero(); tile.rows * tile.cols] }
+        let scratch = (0..spread.parts())
+            .map(|_| Scratch { packed_a: Vec::new(), packed_b: Vec::new(), edge: vec![T::zero(); tile.rows * tile.cols] })
+            .collect();
+        Workspace { kernels, scratch, spread }
+    }
+
+    /// How the element-wise passes beside the products are split.
+    pub fn spread(&self) -> &Spread {
+        &self.spread
     }
 }
 
@@ -90,8 +140,11 @@ struct Out<'a, T> {
 }
 
 /// `dst = a b` (or `dst += a b` when `accumulate`), `dst` row-major `m x n` in its first `m * n`
-/// values, in the order the module documentation defines. Panics on mismatched shapes: callers
-/// size every buffer from the same layer widths.
+/// values, in the order the module documentation defines. A product of at least [`PIECE_WORK`]
+/// multiply-adds per piece, computed on a thread of a pool, is split into bands of the
+/// destination's rows (or, for one row, of its columns), one per piece; each output element's
+/// chain lies whole in one piece, so the split changes no bit. Panics on mismatched shapes:
+/// callers size every buffer from the same layer widths.
 pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate: bool, ws: &mut Workspace<T>) {
     let (m, k) = a.shape();
     let (kb, n) = b.shape();
@@ -106,37 +159,68 @@ pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate
         }
         return;
     }
+    let kernels = ws.kernels;
+    let dst = &mut dst[..m * n];
+    let work = m * n * k;
+    let spread = &ws.spread;
+    if m > 1 {
+        // Bands of whole rows, a multiple of the register tile's rows (or of the vector width
+        // across outputs, for a matrix times a vector) apart.
+        let align = if n == 1 { kernels.across_width.max(kernels.along_rows) } else { kernels.tile.rows };
+        let band = spread.band(m, align, work / m);
+        if band < m {
+            return dst.par_chunks_mut(band * n).zip(ws.scratch.par_iter_mut()).enumerate().with_max_len(1).for_each(|(i, (d, s))| {
+                spread.note_thread();
+                product(d, a.row_band(i * band, d.len() / n), b, accumulate, &kernels, s);
+            });
+        }
+    } else {
+        let band = spread.band(n, kernels.across_width.max(kernels.tile.cols), k);
+        if band < n {
+            return dst.par_chunks_mut(band).zip(ws.scratch.par_iter_mut()).enumerate().with_max_len(1).for_each(|(j, (d, s))| {
+                spread.note_thread();
+                product(d, a, b.col_band(j * band, d.len()), accumulate, &kernels, s);
+            });
+        }
+    }
+    product(dst, a, b, accumulate, &kernels, &mut ws.scratch[0]);
+}
+
+/// One piece of a product, on the calling thread: `dst` is `a.rows x b.cols`.
+fn product<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate: bool, kernels: &Kernels<T>, scratch: &mut Scratch<T>) {
+    let m = a.shape().0;
+    let n = b.shape().1;
     // One output column or row: a matrix times a vector, whose one operand is contiguous
     // whichever way it is read. For m = 1 the chains read fma(b(p, j), a(0, p), acc), the same
     // bits as fma(a(0, p), b(p, j), acc).
     let (a_rs, a_cs) = a.strides();
     let (b_rs, b_cs) = b.strides();
     if n == 1 {
-        return matrix_vector(&mut dst[..m], Strided { data: a.data, rows: m, row_stride: a_rs, step: a_cs }, &b.data[..k], accumulate, ws);
+        return matrix_vector(dst, Strided { data: a.data, rows: m, row_stride: a_rs, step: a_cs }, &b.vector(), accumulate, kernels);
     }
     if m == 1 {
-        return matrix_vector(&mut dst[..n], Strided { data: b.data, rows: n, row_stride: b_cs, step: b_rs }, &a.data[..k], accumulate, ws);
+        return matrix_vector(dst, Strided { data: b.data, rows: n, row_stride: b_cs, step: b_rs }, &a.vector(), accumulate, kernels);
     }
+    debug_assert_eq!(dst.len(), m * n);
     // Tiles are `rows x cols`; a product with fewer columns than a tile is computed as its
     // transpose, C^T = B^T A^T, when that leaves fewer lanes idle (same bits either way).
-    let (tr, tc) = (ws.kernels.tile.rows, ws.kernels.tile.cols);
+    let (tr, tc) = (kernels.tile.rows, kernels.tile.cols);
     let lanes = |m: usize, n: usize| m.div_ceil(tr) * tr * n.div_ceil(tc) * tc;
-    let dst = &mut dst[..m * n];
     if n < tc && lanes(n, m) < lanes(m, n) {
-        blocked(Out { data: dst, row_stride: 1, col_stride: n }, b.t(), a.t(), accumulate, ws);
+        blocked(Out { data: dst, row_stride: 1, col_stride: n }, b.t(), a.t(), accumulate, kernels, scratch);
     } else {
-        blocked(Out { data: dst, row_stride: n, col_stride: 1 }, a, b, accumulate, ws);
+        blocked(Out { data: dst, row_stride: n, col_stride: 1 }, a, b, accumulate, kernels, scratch);
     }
 }
 
 /// The blocked product into `out` (`a.rows x b.cols`).
-fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate: bool, ws: &mut Workspace<T>) {
+fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate: bool, kernels: &Kernels<T>, ws: &mut Scratch<T>) {
     let Out { data, row_stride, col_stride } = out;
     let (m, k) = a.shape();
     let n = b.shape().1;
     let (a_rs, a_cs) = a.strides();
     let (b_rs, b_cs) = b.strides();
-    let Tile { rows: tr, cols: tc, compute } = ws.kernels.tile;
+    let Tile { rows: tr, cols: tc, compute } = kernels.tile;
     for jc in (0..n).step_by(NC) {
         let nc = NC.min(n - jc);
         let panels_b = nc.div_ceil(tc);
@@ -217,10 +301,9 @@ struct Strided<'a, T> {
 /// `out[r] = chain over p of fma(mat(r, p), x[p], .)`, started from `out[r]` or +0: vectors
 /// across outputs where they lie side by side, interleaved chains where each output's steps do,
 /// and one chain at a time (the level's own fused multiply-add) for the remainder.
-fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: bool, ws: &Workspace<T>) {
+fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: bool, kernels: &Kernels<T>) {
     let k = x.len();
     let Strided { data, rows, row_stride, step } = mat;
-    let kernels = &ws.kernels;
     let mut done = 0;
     if row_stride == 1 {
         let width = kernels.across_width;
@@ -388,6 +471,56 @@ mod tests {
         // Shapes crossing the inner (KC), row (MC) and column (NC) blocks.
         for (m, k, n) in [(256, 256, 256), (145, 600, 33), (300, 257, 513), (1, 1000, 1), (600, 3, 1100), (37, 513, 600)] {
             check_shape(m, k, n);
+        }
+    }
+
+    /// Products split across 2, 3 and 4 threads (more threads than this machine may have cores),
+    /// in bands that cross the tiles' edges, at every level: the reference's bits, both when the
+    /// pool's threads take the pieces as they come and when each piece is held by a thread of its
+    /// own until all have started (so that every piece is computed by another thread), and then
+    /// as many threads took part as pieces were cut.
+    #[test]
+    fn products_split_across_threads_keep_the_bits_and_use_every_thread() {
+        // (m, k, n): row bands with ragged tile edges, a matrix times a vector (n = 1) cut into
+        // row bands, a row times a matrix (m = 1) cut into column bands.
+        let shapes = [(203, 67, 150), (97, 300, 33), (4001, 150, 1), (1, 3000, 700), (96, 1024, 128)];
+        for threads in [2usize, 3, 4] {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            for &(m, k, n) in &shapes {
+                let a = values(m * k, (m * 31 + k) as u64);
+                let b = values(k * n, (n * 7 + k) as u64);
+                let start = values(m * n, (m + n) as u64);
+                let want = bits(&reference(&a, (m, k), &b, n, Some(&start)));
+                let at = transpose(&a, m, k);
+                for level in Level::available_levels() {
+                    let kernels = f32::kernels(level);
+                    let align = if n == 1 {
+                        kernels.across_width.max(kernels.along_rows)
+                    } else if m == 1 {
+                        kernels.across_width.max(kernels.tile.cols)
+                    } else {
+                        kernels.tile.rows
+                    };
+                    let (len, per_unit) = if m == 1 { (n, k) } else { (m, n * k) };
+                    let cut = pool.install(|| len.div_ceil(Spread::new(threads).band(len, align, per_unit)));
+                    assert!(cut >= 2 && cut <= threads, "{m}x{k}x{n}: {cut} pieces for {threads} threads");
+                    for (x, label) in [(View::new(&a, m, k), "a"), (View::new(&at, k, m).t(), "a transposed")] {
+                        for held in [false, true] {
+                            let mut ws = Workspace::<f32>::spread_over(level, threads);
+                            if held {
+                                ws.spread.meet(cut);
+                            }
+                            let mut got = start.clone();
+                            pool.install(|| matmul(&mut got, x, View::new(&b, k, n), true, &mut ws));
+                            let case = format!("{m}x{k}x{n} ({label}) on {threads} threads at {}", level.name());
+                            assert!(bits(&got) == want, "{case}: differs from the reference");
+                            if held {
+                                assert_eq!(ws.spread().threads_taken(), cut, "{case}: threads that took part");
+                            }
+                        }
+                    }
+                }
+            }
         }
     }
 

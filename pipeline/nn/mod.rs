@@ -1,7 +1,7 @@
 //! The network: the model's definition on candle (layers, configuration, stored tensors, and the
 //! autograd reference the engine is tested against), the hand-written engine that trains,
 //! validates and scores over tabcard's portable matrix kernels (`matmul`, `microkernel`,
-//! `dispatch`), losses, optimizers and learning-rate schedules.
+//! `dispatch`) and the split of one run's work across threads (`spread`), losses, optimizers and learning-rate schedules.
 //! Every random draw comes from a `rng::Stream` passed in; nothing here uses candle's own
 //! (thread-local) random functions.
 
@@ -15,3 +15,4 @@ pub(crate) mod microkernel;
 pub mod mlp;
 pub(crate) mod optim;
 pub(crate) mod scalar;
+pub mod spread;

@@ -12,7 +12,10 @@
 //! by element), rounding the weight back to its precision. Only IEEE-exact operations
 //! (+, *, /, sqrt) are used, so the update is the same on every platform.
 
+use rayon::prelude::*;
+
 use super::scalar::Real;
+use super::spread::Spread;
 use crate::manifest::{Optimizer as Kind, Schedule, TrainingSpec};
 
 pub struct Optimizer {
@@ -48,31 +51,37 @@ impl Optimizer {
     }
 
     /// Updates the parameter in `slot` in place from its gradient; `decays` says whether weight
-    /// decay applies to it.
-    pub fn update<T: Real>(&mut self, step: &Step, slot: usize, w: &mut [T], g: &[T], decays: bool) {
+    /// decay applies to it. Every element's update is independent of the others, so stretches of
+    /// a large parameter go to the threads of `spread` with the same bits.
+    pub fn update<T: Real>(&mut self, spread: &Spread, step: &Step, slot: usize, w: &mut [T], g: &[T], decays: bool) {
         let s = &self.spec;
-        let lr = step.lr;
-        let scale = step.grad_scale;
-        let decay = if decays && s.weight_decay > 0.0 && self.kind != Kind::Adam { 1.0 - lr * s.weight_decay } else { 1.0 };
-        let m = &mut self.first[slot];
-        let v = &mut self.second[slot];
+        let decay = if decays && s.weight_decay > 0.0 && self.kind != Kind::Adam { 1.0 - step.lr * s.weight_decay } else { 1.0 };
+        let (m, v) = (&mut self.first[slot], &mut self.second[slot]);
+        let stretch = spread.band(w.len(), STRETCH_ALIGN, 8);
+        let split = stretch < w.len();
+        let gradient = |i: usize, len: usize| &g[i * stretch..i * stretch + len];
         match self.kind {
             Kind::Sgd => {
-                if s.momentum > 0.0 && m.is_empty() {
-                    *m = vec![0.0; w.len()];
-                }
+                let sgd = Sgd { momentum: s.momentum, nesterov: s.nesterov, first: step.first, lr: step.lr, scale: step.grad_scale, decay };
                 if s.momentum > 0.0 {
-                    for ((wj, &gj), mj) in w.iter_mut().zip(g).zip(m.iter_mut()) {
-                        let gj = gj.widen() * scale;
-                        // PyTorch's convention: the first step's velocity is the gradient itself.
-                        *mj = if step.first { gj } else { s.momentum * *mj + gj };
-                        let update = if s.nesterov { gj + s.momentum * *mj } else { *mj };
-                        *wj = T::narrow(wj.widen() * decay - lr * update);
+                    if m.is_empty() {
+                        *m = vec![0.0; w.len()];
                     }
+                    if split {
+                        w.par_chunks_mut(stretch).zip(m.par_chunks_mut(stretch)).enumerate().with_max_len(1).for_each(|(i, (w, m))| {
+                            spread.note_thread();
+                            sgd.momentum_step(w, gradient(i, w.len()), m);
+                        });
+                    } else {
+                        sgd.momentum_step(w, g, m);
+                    }
+                } else if split {
+                    w.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, w)| {
+                        spread.note_thread();
+                        sgd.plain_step(w, gradient(i, w.len()));
+                    });
                 } else {
-                    for (wj, &gj) in w.iter_mut().zip(g) {
-                        *wj = T::narrow(wj.widen() * decay - lr * (gj.widen() * scale));
-                    }
+                    sgd.plain_step(w, g);
                 }
             }
             Kind::Adam | Kind::Adamw => {
@@ -84,13 +93,55 @@ impl Optimizer {
                     b1: s.beta1,
                     b2: s.beta2,
                     eps: s.epsilon,
-                    step_size: lr / step.bias1,
+                    step_size: step.lr / step.bias1,
                     inv_sqrt_c2: 1.0 / step.bias2.sqrt(),
-                    scale,
+                    scale: step.grad_scale,
                     decay,
                 };
-                adam(w, g, m, v, &k);
+                if split {
+                    w.par_chunks_mut(stretch)
+                        .zip(m.par_chunks_mut(stretch).zip(v.par_chunks_mut(stretch)))
+                        .enumerate()
+                        .with_max_len(1)
+                        .for_each(|(i, (w, (m, v)))| {
+                            spread.note_thread();
+                            adam(w, gradient(i, w.len()), m, v, &k);
+                        });
+                } else {
+                    adam(w, g, m, v, &k);
+                }
             }
+        }
+    }
+}
+
+/// Elements per stretch of a split update are a multiple of this (a cache line of f64).
+const STRETCH_ALIGN: usize = 64;
+
+/// SGD's per-step constants.
+struct Sgd {
+    momentum: f64,
+    nesterov: bool,
+    /// The first step, whose velocity is the gradient itself (PyTorch's convention).
+    first: bool,
+    lr: f64,
+    scale: f64,
+    decay: f64,
+}
+
+impl Sgd {
+    fn momentum_step<T: Real>(&self, w: &mut [T], g: &[T], m: &mut [f64]) {
+        for ((wj, &gj), mj) in w.iter_mut().zip(g).zip(m.iter_mut()) {
+            let gj = gj.widen() * self.scale;
+            *mj = if self.first { gj } else { self.momentum * *mj + gj };
+            let update = if self.nesterov { gj + self.momentum * *mj } else { *mj };
+            *wj = T::narrow(wj.widen() * self.decay - self.lr * update);
+        }
+    }
+
+    fn plain_step<T: Real>(&self, w: &mut [T], g: &[T]) {
+        for (wj, &gj) in w.iter_mut().zip(g) {
+            *wj = T::narrow(wj.widen() * self.decay - self.lr * (gj.widen() * self.scale));
         }
     }
 }

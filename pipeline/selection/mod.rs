@@ -581,9 +581,9 @@ pub(crate) fn evaluate_test(
     Ok(Evaluated { test, outputs, calibration, interval, ensemble })
 }
 
-/// The most threads scoring bootstrap resamples: each holds a resample's rows and its metrics'
-/// working copies (about 60 bytes a test row).
-pub(crate) const MAX_BOOTSTRAP_THREADS: usize = 4;
+/// Working memory of one thread scoring bootstrap resamples, per scored row: a resample's rows
+/// and its metrics' working copies.
+pub(crate) const BOOTSTRAP_BYTES_PER_ROW: u64 = 60;
 
 /// What is derived from the stored runs: the selection, and the selected run's outputs on the
 /// test split (`test-predictions.csv`: row index and outputs only, never a feature or group
@@ -630,7 +630,8 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         layout_version,
         ensemble: m.selection.ensemble,
     };
-    let evaluated = crate::threads::helper_pool(MAX_BOOTSTRAP_THREADS, "score bootstrap resamples")?
+    let per_thread = BOOTSTRAP_BYTES_PER_ROW.saturating_mul(test_x.rows as u64);
+    let evaluated = crate::threads::helper_pool(per_thread, "score bootstrap resamples")?
         .install(|| evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, &inputs))?;
     let per_row = exp.head().values_per_row();
     let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &evaluated.outputs, per_row);

@@ -53,6 +53,8 @@ pub struct RunArtifacts<'a> {
     pub validation_outputs: &'a [f64],
     pub environment: &'a NumericsFingerprint,
     pub seconds: f64,
+    /// Threads that computed pieces of the run: with the seconds, in the run's timing record.
+    pub threads_taken: usize,
 }
 
 /// The checksum list of a run folder (`checksums.json`): every evidence file, with its SHA-256
@@ -178,7 +180,7 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
     files.push((CHECKSUMS, to_json(&index)?));
     // Records outside the evidence: where and on what the run was computed, and how long it took.
     files.push((ENVIRONMENT, to_json(a.environment)?));
-    files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds }))?));
+    files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds, "threads": a.threads_taken }))?));
 
     let tmp = partial_dir(layout, id);
     let final_dir = layout.run(id);

@@ -16,7 +16,11 @@ pub(crate) struct TimingRecord {
     pub git_commit: Option<String>,
     /// Whether that repository had uncommitted changes to tracked files.
     pub git_dirty: Option<bool>,
+    /// Runs trained at once.
     pub jobs: usize,
+    /// Threads the runs shared (absent before tabcard 0.11, when each run computed on one).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threads: Option<usize>,
     /// Wall time of the whole `train` invocation.
     pub wall_seconds: f64,
     /// Training time of every stored run, by run id.

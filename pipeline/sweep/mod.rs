@@ -1,11 +1,11 @@
-//! Runs a plan's pending runs on a rayon pool of `jobs` workers, each run single-threaded inside.
+//! Runs a plan's pending runs on `jobs` workers of a pool of `threads` threads; each run's products
+//! are split across the threads no run occupies (`nn/spread.rs`), with the same bits.
 //! Runs whose folder is already complete are reused, never retrained; a failing or diverging run
 //! is recorded with its reason and the others go on. Workers share the matrices read-only.
 
 pub mod shard;
 pub mod slurm;
 
-use rayon::prelude::*;
 use std::time::Instant;
 
 use crate::data::prep::Preprocessor;
@@ -81,7 +81,11 @@ pub struct SweepInputs<'a> {
     pub preprocessor: &'a Preprocessor,
     pub selection_metric: &'a str,
     pub environment: &'a NumericsFingerprint,
+    /// Runs trained at once.
     pub jobs: usize,
+    /// Threads of the pool the runs share (at least `jobs`): threads no run occupies compute
+    /// pieces of the runs in flight. Speed only.
+    pub threads: usize,
     /// Only this part of the plan's run list (the whole plan when `None`).
     pub shard: Option<Shard>,
 }
@@ -105,6 +109,8 @@ pub struct TrainedRun {
     pub history: Vec<crate::training::EpochRecord>,
     pub validation_outputs: Vec<f64>,
     pub seconds: f64,
+    /// Threads that computed pieces of the run (speed only).
+    pub threads_taken: usize,
 }
 
 /// Trains one run of the plan and builds its record (an engine error becomes a failed outcome).
@@ -134,7 +140,14 @@ pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun>
         Ok(r) => r,
         Err(e) => {
             record.outcome = Outcome::Failed { detail: e.to_string() };
-            return Ok(TrainedRun { record, tensors: Vec::new(), history: Vec::new(), validation_outputs: Vec::new(), seconds });
+            return Ok(TrainedRun {
+                record,
+                tensors: Vec::new(),
+                history: Vec::new(),
+                validation_outputs: Vec::new(),
+                seconds,
+                threads_taken: 1,
+            });
         }
     };
     record.outcome = r.outcome;
@@ -149,7 +162,14 @@ pub fn train_run(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<TrainedRun>
         record.weights_sha256 = weights_digest(&r.tensors);
         record.tensor_sha256 = tensor_digests(&r.tensors);
     }
-    Ok(TrainedRun { record, tensors: r.tensors, history: r.history, validation_outputs: r.validation_outputs, seconds })
+    Ok(TrainedRun {
+        record,
+        tensors: r.tensors,
+        history: r.history,
+        validation_outputs: r.validation_outputs,
+        seconds,
+        threads_taken: r.threads_taken,
+    })
 }
 
 fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<RunReport> {
@@ -168,18 +188,10 @@ fn run_one(inputs: &SweepInputs<'_>, spec: &RunSpec) -> Result<RunReport> {
             validation_outputs: &t.validation_outputs,
             environment: inputs.environment,
             seconds: t.seconds,
+            threads_taken: t.threads_taken,
         },
     )?;
     Ok(report)
-}
-
-/// Runs `f` on a pool of `jobs` workers.
-pub fn in_pool<R: Send>(jobs: usize, f: impl FnOnce() -> R + Send) -> Result<R> {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(jobs.max(1))
-        .build()
-        .map_err(|e| Error::Environment(format!("cannot start {jobs} worker threads: {e}; try a smaller --jobs")))?;
-    Ok(pool.install(f))
 }
 
 /// Trains every run of the plan (or of its shard) that has no complete folder yet.
@@ -212,18 +224,14 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
     if pending.is_empty() {
         return Ok(report);
     }
-    let results: Vec<(String, Result<RunReport>)> = in_pool(inputs.jobs, || {
-        pending
-            .par_iter()
-            .map(|spec| {
-                let r = run_one(inputs, spec);
-                if let Ok(run) = &r {
-                    on_event(Event::Finished(run.clone()));
-                }
-                (spec.id.clone(), r)
-            })
-            .collect()
-    })?;
+    let results: Vec<(String, Result<RunReport>)> =
+        crate::threads::each_on_workers(inputs.threads, crate::threads::runs_in_flight(inputs.jobs), &pending, |spec| {
+            let r = run_one(inputs, spec);
+            if let Ok(run) = &r {
+                on_event(Event::Finished(run.clone()));
+            }
+            (spec.id.clone(), r)
+        })?;
     for (id, r) in results {
         let outcome = r?.outcome;
         if !outcome.is_completed() {

@@ -60,4 +60,6 @@ pub struct RunResult {
     pub validation_metrics: MetricSet,
     /// Per validation row: class probabilities (row-major, k per row) or the prediction.
     pub validation_outputs: Vec<f64>,
+    /// How many threads computed pieces of the run (speed only; kept in the run's timing record).
+    pub threads_taken: usize,
 }

@@ -1,7 +1,8 @@
 //! One seeded run, a pure function: (configuration, seed, matrices) -> [`RunResult`]. Mini-batch
 //! training with the configured optimizer, schedule, clipping and regularizers; early stopping on
 //! validation loss that restores the best epoch's weights; divergence detection. Every random draw
-//! comes from a stream derived from (seed, purpose); the arithmetic is single-threaded.
+//! comes from a stream derived from (seed, purpose); the arithmetic is split across the threads of
+//! the run's pool only where the split changes no bit (`nn/spread.rs`).
 
 use candle_core::DType;
 
@@ -100,7 +101,7 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
     let parameter_count = model.parameter_count();
 
     let batch = t.batch_size.min(n);
-    let mut engine = Engine::<T>::from_model(&model, batch)?;
+    let mut engine = Engine::<T>::spread_over(&model, batch, crate::nn::spread::threads_here())?;
     let mut optimizer = Optimizer::new(t, engine.slot_count());
     let objective = objective(&head, t);
     let targets = row_targets(data.train_y, scaling);
@@ -193,6 +194,7 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
             train_metrics: MetricSet::new(),
             validation_metrics: MetricSet::new(),
             validation_outputs: Vec::new(),
+            threads_taken: engine.threads_taken(),
         });
     }
     let best_epoch = match (&best, t.early_stopping.enabled) {
@@ -222,5 +224,6 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
         train_metrics,
         validation_metrics,
         validation_outputs,
+        threads_taken: engine.threads_taken(),
     })
 }

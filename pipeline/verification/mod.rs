@@ -10,8 +10,6 @@ mod compare;
 
 use std::path::{Path, PathBuf};
 
-use rayon::prelude::*;
-
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
@@ -22,7 +20,7 @@ use crate::numerics::NumericsFingerprint;
 use crate::results::Sealed;
 use crate::selection::Selection;
 use crate::store::ledger::VerificationEntry;
-use crate::sweep::{in_pool, train_run, Event, RunReport, SweepInputs};
+use crate::sweep::{train_run, Event, RunReport, SweepInputs};
 use compare::{compare_run, environment_differences};
 
 /// What to verify beyond the selected configuration, and with what.
@@ -294,6 +292,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
 
     let now = crate::numerics::current()?;
     let jobs = crate::threads::workers(request.jobs, specs.len())?;
+    let threads = crate::threads::workers(request.jobs, crate::threads::MAX_WORKERS)?;
     let inputs = SweepInputs {
         layout,
         plan: &prepared.plan,
@@ -304,6 +303,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         selection_metric: &prepared.exp.manifest.selection.metric,
         environment: &now,
         jobs,
+        threads,
         shard: None,
     };
     on_event(Event::Header(format!("verify {}: retraining {} of {} runs", layout.root.display(), specs.len(), prepared.plan.runs.len())));
@@ -314,28 +314,23 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         direction: crate::metrics::registry::Direction::of_higher_is_better(selection.higher_is_better),
         retraining: true,
     });
-    let runs: Vec<RunCheck> = in_pool(jobs, || {
-        specs
-            .par_iter()
-            .map(|spec| {
-                let differences = (|| {
-                    let stored = sealed.run(&spec.id)?;
-                    let fresh = train_run(&inputs, spec)?;
-                    let differences = compare_run(&stored, &fresh)?;
-                    let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
-                    report.verdict =
-                        Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
-                    on_event(Event::Finished(report));
-                    Ok::<_, Error>(differences)
-                })();
-                let verdict = match differences {
-                    Ok(d) if d.is_empty() => RunVerdict::Identical,
-                    Ok(d) => RunVerdict::Differs(d),
-                    Err(e) => RunVerdict::CannotVerify(e.to_string()),
-                };
-                RunCheck { id: spec.id.clone(), seed: spec.seed, verdict }
-            })
-            .collect()
+    let runs: Vec<RunCheck> = crate::threads::each_on_workers(threads, crate::threads::runs_in_flight(jobs), &specs, |spec| {
+        let differences = (|| {
+            let stored = sealed.run(&spec.id)?;
+            let fresh = train_run(&inputs, spec)?;
+            let differences = compare_run(&stored, &fresh)?;
+            let mut report = RunReport::new(&inputs, spec, &fresh.record, fresh.seconds);
+            report.verdict =
+                Some(if differences.is_empty() { "identical".into() } else { format!("DIFFERS ({} items)", differences.len()) });
+            on_event(Event::Finished(report));
+            Ok::<_, Error>(differences)
+        })();
+        let verdict = match differences {
+            Ok(d) if d.is_empty() => RunVerdict::Identical,
+            Ok(d) => RunVerdict::Differs(d),
+            Err(e) => RunVerdict::CannotVerify(e.to_string()),
+        };
+        RunCheck { id: spec.id.clone(), seed: spec.seed, verdict }
     })?;
 
     let recorded_env: Option<NumericsFingerprint> = specs.first().and_then(|s| sealed.environment(&s.id));

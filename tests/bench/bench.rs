@@ -131,11 +131,17 @@ fn bench_train(args: &[String]) {
     } else {
         (y, vy, HEAD, "roc_auc")
     };
+    // --threads N: the run computes on a pool of N threads, as one run of `train --jobs N` does
+    // (the pool is built outside the timer, as PyTorch's threads are).
+    let threads = arg(args, "--threads", 1usize);
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
     let data = RunData { train_x: &x, train_y: &y, validation_x: &vx, validation_y: &vy };
     let timed_run = |epochs: usize| {
         let config = reference_config(hidden.clone(), batch, epochs, dropout, batch_norm);
         let started = Instant::now();
-        let result = train(head, &config, 1, &data, metric).expect("training");
+        let result =
+            if threads > 1 { pool.install(|| train(head, &config, 1, &data, metric)) } else { train(head, &config, 1, &data, metric) }
+                .expect("training");
         (started.elapsed().as_secs_f64(), result)
     };
     let (one, _) = timed_run(1);
@@ -144,7 +150,8 @@ fn bench_train(args: &[String]) {
     let samples = (x.rows * epochs) as f64;
     let steps = (x.rows.div_ceil(batch) * epochs) as f64;
     println!(
-        "{{\"seconds\": {seconds}, \"samples_per_second\": {}, \"steps_per_second\": {}, \"parameters\": {}, \"validation_{metric}\": {}}}",
+        "{{\"seconds\": {seconds}, \"threads\": {threads}, \"threads_taken\": {}, \"samples_per_second\": {}, \"steps_per_second\": {}, \"parameters\": {}, \"validation_{metric}\": {}}}",
+        result.threads_taken,
         samples / seconds,
         steps / seconds,
         result.parameter_count,

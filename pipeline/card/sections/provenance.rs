@@ -57,14 +57,13 @@ pub(crate) fn provenance(st: &StoredResults, layout: &Layout, environment: &Nume
             Row::of([
                 "numerical kernels".into(),
                 md_line(&format!(
-                    "tabcard's own portable matrix kernels, version {}: each output of a matrix product is one fused multiply-add chain in a fixed order, at every dispatch level, so the level changes no bit (README, \"What is reproducible, and where\"); model definition and stored form: candle {}",
+                    "tabcard's own portable matrix kernels, version {}: each output of a matrix product is one fused multiply-add chain in a fixed order, computed whole by one thread, at every dispatch level, so neither the level nor the thread count changes a bit (README, \"What is reproducible, and where\"); model definition and stored form: candle {}",
                     environment.kernel_version, environment.candle_version
                 )),
             ]),
             Row::of(["target".into(), md(&format!("{} {}", environment.target_arch, environment.target_os))]),
             Row::of(["CPU features".into(), md_line(&environment.cpu_features.join(" "))]),
             Row::of(["C library".into(), md(&environment.libc)]),
-            Row::of(["threads per run".into(), environment.threads_per_run.to_string()]),
         ],
         git_commit: code_span(&timing.and_then(|t| t.git_commit.clone()).unwrap_or_else(|| "not in a git repository".into())),
         git_dirty: match timing.and_then(|t| t.git_dirty) {
