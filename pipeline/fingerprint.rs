@@ -57,6 +57,20 @@ pub fn experiment_fingerprint(manifest_hash: &str, data_content_hash: &str, tool
     hex(&hasher.finalize())
 }
 
+/// The run-inputs digest: SHA-256 over named parts (what decides a run's stored bits besides its
+/// settings and seed), each name and value length-prefixed, in the order given.
+pub fn run_inputs_digest(parts: &[(&str, &[u8])]) -> String {
+    let mut hasher = Sha256::new();
+    hasher.update(b"tabcard-run-inputs-v1");
+    for (name, value) in parts {
+        for bytes in [name.as_bytes(), value] {
+            hasher.update((bytes.len() as u64).to_le_bytes());
+            hasher.update(bytes);
+        }
+    }
+    hex(&hasher.finalize())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -24,7 +24,7 @@ fn manifest_inputs_never_panic() {
         let bytes = std::fs::read(&f).unwrap();
         if let Ok(text) = std::str::from_utf8(&bytes) {
             if let Ok(m) = tabcard::manifest::parse(Path::new("fuzz.toml"), text) {
-                let _ = tabcard::experiment::plan::build(&m, "fuzz");
+                let _ = tabcard::experiment::plan::build(&m, &tabcard::experiment::plan::RunNaming::Inputs("fuzz".into()));
             }
         }
     }

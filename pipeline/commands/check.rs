@@ -13,7 +13,7 @@ use crate::text::terminal_safe;
 /// Checks the experiment; `jobs` is the worker count the memory estimate assumes.
 pub fn run(manifest_path: &Path, jobs: usize) -> Result<super::Report> {
     let exp = open(manifest_path)?;
-    let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
+    let plan = plan::build(&exp.manifest, &exp.run_naming())?;
     crate::experiment::feasibility::require_calibration_rows(&exp)?;
     crate::experiment::feasibility::require_known_features(&exp)?;
     let estimate = crate::experiment::feasibility::estimate(&exp, &plan, exp.preprocessor.width(), jobs);

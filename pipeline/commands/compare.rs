@@ -44,6 +44,8 @@ struct Side {
     selection: Option<Selection>,
     /// Manifests only: (run ids already stored, run ids a `train` would add).
     runs: Option<(Vec<String>, Vec<String>)>,
+    /// Every run id of the plan, in plan order.
+    run_ids: Vec<String>,
 }
 
 fn is_manifest(path: &Path) -> bool {
@@ -58,6 +60,7 @@ fn load_folder(folder: &Path) -> Result<Side> {
     let value = serde_json::to_value(&manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
     flatten("", &value, &mut flat);
     let selection = sealed.selection()?;
+    let run_ids = sealed.plan()?.runs.into_iter().map(|r| r.id).collect();
     let record = sealed.record;
     Ok(Side {
         fingerprint: record.fingerprint,
@@ -68,12 +71,13 @@ fn load_folder(folder: &Path) -> Result<Side> {
         manifest: flat,
         selection: Some(selection),
         runs: None,
+        run_ids,
     })
 }
 
 fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
     let exp = crate::experiment::open(path)?;
-    let plan = crate::experiment::plan::build(&exp.manifest, &exp.fingerprint)?;
+    let plan = crate::experiment::plan::build(&exp.manifest, &exp.run_naming())?;
     // The same resolved form a results folder stores as manifest.json.
     let value = serde_json::to_value(&exp.manifest).map_err(|e| crate::error::Error::Internal(format!("manifest as JSON: {e}")))?;
     let mut flat = BTreeMap::new();
@@ -88,6 +92,7 @@ fn load_manifest(path: &Path, results_root: &Path) -> Result<Side> {
         manifest: flat,
         selection: None,
         runs: Some((stored, new)),
+        run_ids: plan.runs.iter().map(|r| r.id.clone()).collect(),
     })
 }
 
@@ -97,6 +102,23 @@ fn load(path: &Path, results_root: &Path) -> Result<Side> {
     } else {
         load_folder(path)
     }
+}
+
+/// The runs both sides plan under the same id: the same inputs, settings and seed, so the same
+/// bits, trained once and copied (from layout 8, where ids name what decides a run's bits).
+fn shared_runs(a: &Side, b: &Side, out: &mut String, json: &mut serde_json::Map<String, Value>) {
+    let in_b: std::collections::BTreeSet<&String> = b.run_ids.iter().collect();
+    let in_a: std::collections::BTreeSet<&String> = a.run_ids.iter().collect();
+    let shared: Vec<&String> = a.run_ids.iter().filter(|id| in_b.contains(id)).collect();
+    let union = in_a.union(&in_b).count();
+    let _ = writeln!(
+        out,
+        "\nruns: {} of {union} runs shared (the same id: the same inputs, settings and seed, so the same bits); {} only in A, {} only in B",
+        shared.len(),
+        a.run_ids.len() - shared.len(),
+        b.run_ids.len() - shared.len()
+    );
+    json.insert("shared_runs".into(), serde_json::json!(shared));
 }
 
 fn selected(s: &Selection) -> Option<&ConfigSummary> {
@@ -141,6 +163,7 @@ pub fn run(a: &Path, b: &Path, results_root: &Path) -> Result<super::Report> {
         data.insert(key.into(), serde_json::json!({ "a": x, "b": y, "same": x == y }));
     }
     json.insert("data".into(), Value::Object(data));
+    shared_runs(&sa, &sb, &mut out, &mut json);
     for (label, side) in [("A", &sa), ("B", &sb)] {
         if let Some((stored, new)) = &side.runs {
             let _ = writeln!(

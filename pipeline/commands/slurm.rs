@@ -63,7 +63,7 @@ pub fn run(manifest_path: &Path, options: &SlurmOptions) -> Result<String> {
     let results_root = absolute(&options.results_root)?;
     crate::sweep::slurm::check_directive_values(r, &results_root).map_err(Error::Usage)?;
     let exp = open(manifest_path)?;
-    let plan = plan::build(&exp.manifest, &exp.fingerprint)?;
+    let plan = plan::build(&exp.manifest, &exp.run_naming())?;
     let manifest = absolute(manifest_path)?;
     let executable = match &options.executable {
         Some(p) => absolute(p)?,

@@ -41,6 +41,7 @@ fn runs_json(plan: &Plan, report: &sweep::SweepReport) -> serde_json::Value {
         "planned": plan.runs.len(),
         "trained": report.trained,
         "reused": report.reused,
+        "copied": report.copied.iter().map(|c| serde_json::json!({ "run": c.run_id, "from": c.source })).collect::<Vec<_>>(),
         "failed": report.failed.iter().map(|(run, reason)| serde_json::json!({ "run": run, "reason": reason })).collect::<Vec<_>>(),
     })
 }
@@ -290,8 +291,12 @@ fn summary(
     let runs = if nothing_new {
         format!("nothing to train: all {} runs are stored and complete; results unchanged", report.reused.len())
     } else {
+        let copied = match report.copied.len() {
+            0 => String::new(),
+            n => format!(" ({n} of them copied from other experiments' folders)"),
+        };
         format!(
-            "runs: {} trained, {} reused, {} failed, {} planned ({jobs} workers)",
+            "runs: {} trained, {} reused{copied}, {} failed, {} planned ({jobs} workers)",
             report.trained.len(),
             report.reused.len(),
             report.failed.len(),

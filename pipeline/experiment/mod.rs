@@ -179,6 +179,10 @@ pub struct ExperimentRecord {
     /// SHA-256 of the three row lists, so a rerun can show its split is the same.
     pub split_sha256: String,
     pub tool_version: String,
+    /// What the run ids are derived from with each run's settings and seed, from layout 8
+    /// ([`Experiment::run_inputs_sha256`]); before, the run ids came from the fingerprint.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub run_inputs_sha256: Option<String>,
     /// Where it was trained from: `location.json` from layout 4, this file's own fields before;
     /// filled in by the results reader.
     #[serde(skip)]
@@ -186,24 +190,62 @@ pub struct ExperimentRecord {
 }
 
 impl Experiment {
+    /// SHA-256 of the three row lists' JSON.
+    fn split_sha256(&self) -> String {
+        crate::fingerprint::sha256_hex(serde_json::to_string(&self.splits).unwrap_or_default().as_bytes())
+    }
+
+    /// Class labels in index order (binary: negative, positive); empty for regression.
+    fn class_labels(&self) -> Vec<String> {
+        match &self.target {
+            Target::Classes { labels, .. } => labels.clone(),
+            Target::Values(_) => Vec::new(),
+        }
+    }
+
+    /// Everything that decides a run's stored bits besides its settings and seed: the data's
+    /// content, the target and its classes, the split's rows, the preprocessing fitted on the
+    /// training rows, the head, the metric the history records, and the tool and kernel versions.
+    /// Not the rest of the manifest: its name and descriptions, the analyses after training, the
+    /// grid values a run does not take. Run ids derive from it, so two experiments that differ
+    /// only there name the same runs the same way and share them (`store::run::adopt`).
+    pub fn run_inputs_sha256(&self) -> String {
+        fn json(value: &impl serde::Serialize) -> String {
+            serde_json::to_string(value).unwrap_or_default()
+        }
+        crate::fingerprint::run_inputs_digest(&[
+            ("data content", self.data.content_sha256.as_bytes()),
+            ("target", self.manifest.data.target.as_bytes()),
+            ("class labels", json(&self.class_labels()).as_bytes()),
+            ("split rows", self.split_sha256().as_bytes()),
+            ("preprocessor", json(&self.preprocessor).as_bytes()),
+            ("head", json(&self.head()).as_bytes()),
+            ("selection metric", self.manifest.selection.metric.as_bytes()),
+            ("tool version", TOOL_VERSION.as_bytes()),
+            ("kernel version", crate::numerics::KERNEL_VERSION.as_bytes()),
+        ])
+    }
+
+    /// How this experiment's plan names its runs: by [`Experiment::run_inputs_sha256`].
+    pub fn run_naming(&self) -> plan::RunNaming {
+        plan::RunNaming::Inputs(self.run_inputs_sha256())
+    }
+
     pub fn record(&self) -> ExperimentRecord {
-        let split_text = serde_json::to_string(&self.splits).unwrap_or_default();
         ExperimentRecord {
             fingerprint: self.fingerprint.clone(),
             name: self.manifest.experiment.name.clone(),
             manifest_sha256: self.manifest_sha256.clone(),
             data: self.data.clone(),
             task: self.manifest.data.task,
-            class_labels: match &self.target {
-                Target::Classes { labels, .. } => labels.clone(),
-                Target::Values(_) => Vec::new(),
-            },
+            class_labels: self.class_labels(),
             features: self.roles.features.clone(),
             ids: self.roles.ids.clone(),
             groups: self.roles.groups.clone(),
             split_rows: [self.splits.train.len(), self.splits.validation.len(), self.splits.test.len()],
-            split_sha256: crate::fingerprint::sha256_hex(split_text.as_bytes()),
+            split_sha256: self.split_sha256(),
             tool_version: TOOL_VERSION.to_string(),
+            run_inputs_sha256: Some(self.run_inputs_sha256()),
             // Written beside it by `train` (`location.json`), which knows the results folder.
             location: Location::default(),
         }

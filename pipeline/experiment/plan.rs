@@ -1,5 +1,6 @@
 //! The run plan: the grid's configurations (plus the linear baseline) times the seeds, each run
-//! named by a hash of the experiment fingerprint, its resolved configuration and its seed.
+//! named by a hash of what decides its bits (the experiment's run inputs, from layout 8; the
+//! experiment fingerprint before), its resolved configuration and its seed.
 
 use serde::{Deserialize, Serialize};
 use serde_json::Value;
@@ -73,9 +74,19 @@ fn planned(config: RunConfig, baseline: bool, overrides: BTreeMap<String, Value>
     PlannedConfig { id, baseline, overrides, config }
 }
 
+/// What a plan's run ids are derived from, with each run's configuration and seed.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum RunNaming {
+    /// From layout 8: the experiment's run-inputs digest (`Experiment::run_inputs_sha256`), so a
+    /// run that would compute the same bits has the same id in every experiment.
+    Inputs(String),
+    /// Layouts 2 to 7: the experiment fingerprint, so every experiment named its own runs.
+    Fingerprint(String),
+}
+
 /// Expands a validated manifest into its plan. The manifest loader has already checked the grid;
 /// a grid that fails to expand here is an internal error, never an empty plan.
-pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> crate::error::Result<Plan> {
+pub fn build(manifest: &Manifest, naming: &RunNaming) -> crate::error::Result<Plan> {
     let points =
         expand(manifest).map_err(|p| crate::error::Error::Internal(format!("the validated grid does not expand: {}", p.message)))?;
     let mut configs: Vec<PlannedConfig> =
@@ -86,7 +97,10 @@ pub fn build(manifest: &Manifest, experiment_fingerprint: &str) -> crate::error:
     let mut runs = Vec::new();
     for c in &configs {
         for &seed in &manifest.sweep.seeds {
-            let material = format!("{experiment_fingerprint}\n{}\n{seed}", c.config.canonical_json());
+            let material = match naming {
+                RunNaming::Inputs(inputs) => format!("tabcard-run-v1\n{inputs}\n{}\n{seed}", c.config.canonical_json()),
+                RunNaming::Fingerprint(fingerprint) => format!("{fingerprint}\n{}\n{seed}", c.config.canonical_json()),
+            };
             runs.push(RunSpec { id: sha256_hex(material.as_bytes())[..16].to_string(), config_id: c.id.clone(), seed });
         }
     }

@@ -19,14 +19,14 @@ pub struct Prepared {
 
 impl Prepared {
     pub fn new(exp: Experiment) -> Result<Self> {
-        let fingerprint = exp.fingerprint.clone();
-        Self::with_fingerprint(exp, &fingerprint)
+        let naming = exp.run_naming();
+        Self::with_naming(exp, &naming)
     }
 
-    /// With the plan's run ids derived from a recorded experiment fingerprint (verification under
-    /// another tool version keeps the stored run ids).
-    pub fn with_fingerprint(exp: Experiment, fingerprint: &str) -> Result<Self> {
-        let plan = plan::build(&exp.manifest, fingerprint)?;
+    /// With the plan's run ids derived as recorded (verification under another tool version, or of
+    /// an older layout, keeps the stored run ids).
+    pub fn with_naming(exp: Experiment, naming: &plan::RunNaming) -> Result<Self> {
+        let plan = plan::build(&exp.manifest, naming)?;
         let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.validation])?.into_iter();
         let (Some((train_x, _)), Some((validation_x, _))) = (matrices.next(), matrices.next()) else {
             return Err(crate::error::Error::Internal("two row lists gave fewer than two matrices".into()));

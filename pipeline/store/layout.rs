@@ -15,11 +15,13 @@ use crate::error::{Error, Result};
 /// split's predictions (`test-predictions.csv`) and the declared decision, and admits attached
 /// records (`reviews/`, `monitoring/`). Version 5 added calibration, `fairness.json` and
 /// `importance.json`; version 6 `sensitivity.json`; version 7 adds `profile.json`, the reference
-/// population `monitor` compares batches with.
-pub const FORMAT_VERSION: u32 = 7;
+/// population `monitor` compares batches with. Version 8 names runs by what decides their bits
+/// (`experiment.json`'s `run_inputs_sha256` with each run's settings and seed) rather than by the
+/// experiment fingerprint, so a run folder may be a copy of another experiment's identical run.
+pub const FORMAT_VERSION: u32 = 8;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7, 8];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]

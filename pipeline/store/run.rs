@@ -208,6 +208,82 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
     Ok(())
 }
 
+/// Where a run's folder was copied from: the other experiment folder (under the same results
+/// root) that had trained the same run, with the same id and so the same bits.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Adopted {
+    pub run_id: String,
+    pub source: PathBuf,
+}
+
+/// Copies run `id` into `layout` from another experiment folder beside it that holds the same run
+/// complete and intact (its files match its checksum list, and its settings and preprocessing are
+/// byte for byte the ones this run would be trained with); `None` when no folder does. The copy is
+/// written like a trained run (a private temporary folder, then one rename), file by file, never
+/// as a link, so each experiment folder stays whole on its own; its timing record names the
+/// source. A source that fails its check is passed over, never copied.
+pub fn adopt(layout: &Layout, id: &str, settings: &RunConfig, preprocessor: &Preprocessor) -> Result<Option<Adopted>> {
+    let Some(root) = layout.root.parent() else { return Ok(None) };
+    let Ok(entries) = std::fs::read_dir(root) else { return Ok(None) };
+    let mut folders: Vec<PathBuf> =
+        entries.filter_map(|e| e.ok().map(|e| e.path())).filter(|p| p.join("runs").join(id).join(CHECKSUMS).is_file()).collect();
+    folders.sort();
+    let (settings, preprocessor) = (to_json(settings)?, to_json(preprocessor)?);
+    for folder in folders {
+        if folder == layout.root {
+            continue;
+        }
+        let source = Layout::new(folder.clone());
+        let Ok(Some(stored)) = read_run(&source, id) else { continue };
+        let same = |name: &str, want: &[u8]| std::fs::read(stored.dir.join(name)).is_ok_and(|b| b == want);
+        if !same(SETTINGS, &settings) || !same(PREPROCESSOR, &preprocessor) {
+            continue;
+        }
+        copy_run(layout, id, &stored.dir, &folder)?;
+        return Ok(Some(Adopted { run_id: id.to_string(), source: folder }));
+    }
+    Ok(None)
+}
+
+/// Copies the run folder `from` (of the experiment folder `source`) to run `id` of `layout`.
+fn copy_run(layout: &Layout, id: &str, from: &Path, source: &Path) -> Result<()> {
+    let tmp = partial_dir(layout, id);
+    let final_dir = layout.run(id);
+    let result = (|| -> std::io::Result<()> {
+        std::fs::create_dir_all(&tmp)?;
+        let mut names: Vec<String> = std::fs::read_dir(from)?
+            .filter_map(|e| e.ok())
+            .filter(|e| e.path().is_file())
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        for name in names {
+            let bytes = std::fs::read(from.join(&name))?;
+            let bytes = if name == TIMING {
+                // Outside every list: the source's training time, and where the copy came from.
+                let mut timing: serde_json::Value = serde_json::from_slice(&bytes).unwrap_or_else(|_| serde_json::json!({}));
+                timing["copied_from"] = source.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default().into();
+                serde_json::to_vec_pretty(&timing).map_err(std::io::Error::other)?
+            } else {
+                bytes
+            };
+            write_file(&tmp, &name, &bytes)?;
+        }
+        std::fs::File::open(&tmp)?.sync_all()?;
+        match std::fs::rename(&tmp, &final_dir) {
+            Ok(()) => Ok(()),
+            Err(_) if final_dir.join(CHECKSUMS).exists() => std::fs::remove_dir_all(&tmp),
+            Err(e) => Err(e),
+        }?;
+        std::fs::File::open(layout.runs())?.sync_all()
+    })();
+    if let Err(e) = result {
+        let _ = std::fs::remove_dir_all(&tmp);
+        return Err(Error::io(&final_dir, "copy the run folder", e));
+    }
+    Ok(())
+}
+
 /// A run read back from disk, integrity-checked.
 pub struct StoredRun {
     pub dir: PathBuf,

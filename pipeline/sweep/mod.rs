@@ -93,7 +93,10 @@ pub struct SweepInputs<'a> {
 #[derive(Debug, Default)]
 pub struct SweepReport {
     pub trained: Vec<String>,
+    /// Runs not trained: found complete in this folder, or copied from another experiment's.
     pub reused: Vec<String>,
+    /// The reused runs copied from another experiment folder, and from where.
+    pub copied: Vec<crate::store::run::Adopted>,
     /// (run id, reason) of runs that diverged or failed, this time or before.
     pub failed: Vec<(String, String)>,
 }
@@ -209,7 +212,13 @@ pub fn run(inputs: &SweepInputs<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Resul
                 }
                 report.reused.push(spec.id.clone());
             }
-            None => pending.push(spec),
+            None => match crate::store::run::adopt(inputs.layout, &spec.id, &planned_config(inputs, spec)?.config, inputs.preprocessor)? {
+                Some(adopted) => {
+                    report.reused.push(spec.id.clone());
+                    report.copied.push(adopted);
+                }
+                None => pending.push(spec),
+            },
         }
     }
     let direction = crate::metrics::registry::direction(inputs.head.task, inputs.selection_metric)

@@ -12,6 +12,7 @@ use std::path::{Path, PathBuf};
 
 use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
+use crate::experiment::plan::RunNaming;
 use crate::experiment::prepared::Prepared;
 use crate::experiment::{open, open_with_data, Location};
 use crate::fingerprint::file_sha256;
@@ -278,7 +279,11 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
             format!("content hash {} differs from the recorded {}", exp.data.content_sha256, record.data.content_sha256),
         ));
     }
-    let prepared = Prepared::with_fingerprint(exp, &record.fingerprint)?;
+    let naming = match &record.run_inputs_sha256 {
+        Some(inputs) => RunNaming::Inputs(inputs.clone()),
+        None => RunNaming::Fingerprint(record.fingerprint.clone()),
+    };
+    let prepared = Prepared::with_naming(exp, &naming)?;
     let stored_plan: Plan = sealed.plan()?;
     if stored_plan != prepared.plan {
         return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));

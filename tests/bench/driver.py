@@ -272,21 +272,25 @@ def main():
         f.write("\n".join(lines) + "\n")
 
 
-def whole_command_memory(report, w, rows, cols):
-    """Peak RSS and wall time of a whole `tabcard train` (one run, one epoch) on a rows x cols file
-    of float32 features, with the phases its timing record gives; the file is deleted afterwards."""
+def whole_command_memory(report, w, rows, cols, jobs="2", keep=False):
+    """Peak RSS and wall time of a whole `tabcard train` (one run, one epoch) with `--jobs jobs` on
+    a rows x cols file of float32 features, with the phases its timing record gives; the file is
+    deleted afterwards unless `keep`."""
     data = os.path.join(w, f"synthetic-{rows}-x{cols}.parquet")
-    info = run_json([BENCH, "data", str(rows), str(cols), data])
+    if os.path.exists(data) and keep:
+        info = {"bytes": os.path.getsize(data)}
+    else:
+        info = run_json([BENCH, "data", str(rows), str(cols), data])
     scale_manifest = os.path.join(w, f"scale-{rows}.toml")
     manifest(scale_manifest, data, "[256, 256]", 1, "[1]", 256, 0.1, 0.1)
     results = os.path.join(w, f"scale-results-{rows}")
     shutil.rmtree(results, ignore_errors=True)
-    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", "2", "--results", results])
+    seconds, rss = peak_rss_of([TABCARD, "train", scale_manifest, "--jobs", jobs, "--results", results])
     params = cols * 256 + 256 + 256 * 256 + 256 + 256 + 1
     model = params * 4
     full = rows * cols * 4
     train = (rows - 2 * round(rows * 0.1)) * cols * 4
-    report(f"   whole `tabcard train` at {rows:,} x {cols} ({info['bytes'] / 1e9:.2f} GB file, one run, one epoch, --jobs 2): {seconds:.1f} s, peak RSS {rss / 1e6:,.0f} MB")
+    report(f"   whole `tabcard train` at {rows:,} x {cols} ({info['bytes'] / 1e9:.2f} GB file, one run, one epoch, --jobs {jobs}): {seconds:.1f} s, peak RSS {rss / 1e6:,.0f} MB")
     report(f"     = {rss / (full + model):.2f} x (f32 matrix of every row {full / 1e6:,.0f} MB + model {model / 1e6:.2f} MB); "
            f"{rss / (train + model):.2f} x the training split's matrix alone ({train / 1e6:,.0f} MB)")
     timing = [os.path.join(results, d, "timing.json") for d in os.listdir(results) if os.path.isdir(os.path.join(results, d))]
@@ -294,7 +298,8 @@ def whole_command_memory(report, w, rows, cols):
         record = json.load(f)
     phases = ", ".join(f"{p['name']} {p['seconds']:.1f} s" for p in record.get("phases", []))
     report(f"     where the time goes: {phases} (the timing record's wall time, {record['wall_seconds']:.1f} s, ends before the card is written)")
-    os.remove(data)
+    if not keep:
+        os.remove(data)
     shutil.rmtree(results, ignore_errors=True)
 
 

@@ -8,7 +8,7 @@ fuzz_target!(|data: &[u8]| {
     if let Ok(text) = std::str::from_utf8(data) {
         if let Ok(m) = tabcard::manifest::parse(std::path::Path::new("fuzz.toml"), text) {
             let _ = tabcard::manifest::canonical_hash(&m);
-            let _ = tabcard::experiment::plan::build(&m, "fuzz");
+            let _ = tabcard::experiment::plan::build(&m, &tabcard::experiment::plan::RunNaming::Inputs("fuzz".into()));
         }
     }
 });
