@@ -182,28 +182,34 @@ pub fn write_run(layout: &Layout, a: &RunArtifacts<'_>) -> Result<()> {
     files.push((ENVIRONMENT, to_json(a.environment)?));
     files.push((TIMING, to_json(&serde_json::json!({ "seconds": a.seconds, "threads": a.threads_taken }))?));
 
+    place_run(layout, id, "write the run folder", |tmp| {
+        for (name, bytes) in &files {
+            write_file(tmp, name, bytes)?;
+        }
+        Ok(())
+    })
+}
+
+/// Writes run `id`'s files with `fill` into a private temporary folder, syncs it, then renames it
+/// into place in one step (another process that finished the same run first wins: its content is
+/// the same by construction); `what` names the work in the error.
+fn place_run(layout: &Layout, id: &str, what: &'static str, fill: impl FnOnce(&Path) -> std::io::Result<()>) -> Result<()> {
     let tmp = partial_dir(layout, id);
     let final_dir = layout.run(id);
     let result = (|| -> std::io::Result<()> {
         std::fs::create_dir_all(&tmp)?;
-        for (name, bytes) in &files {
-            write_file(&tmp, name, bytes)?;
-        }
+        fill(&tmp)?;
         std::fs::File::open(&tmp)?.sync_all()?;
         match std::fs::rename(&tmp, &final_dir) {
             Ok(()) => Ok(()),
-            // Another process finished the same run first; its content is the same by construction.
-            Err(_) if final_dir.join(CHECKSUMS).exists() => {
-                std::fs::remove_dir_all(&tmp)?;
-                Ok(())
-            }
+            Err(_) if final_dir.join(CHECKSUMS).exists() => std::fs::remove_dir_all(&tmp),
             Err(e) => Err(e),
         }?;
         std::fs::File::open(layout.runs())?.sync_all()
     })();
     if let Err(e) = result {
         let _ = std::fs::remove_dir_all(&tmp);
-        return Err(Error::io(&final_dir, "write the run folder", e));
+        return Err(Error::io(&final_dir, what, e));
     }
     Ok(())
 }
@@ -247,10 +253,7 @@ pub fn adopt(layout: &Layout, id: &str, settings: &RunConfig, preprocessor: &Pre
 
 /// Copies the run folder `from` (of the experiment folder `source`) to run `id` of `layout`.
 fn copy_run(layout: &Layout, id: &str, from: &Path, source: &Path) -> Result<()> {
-    let tmp = partial_dir(layout, id);
-    let final_dir = layout.run(id);
-    let result = (|| -> std::io::Result<()> {
-        std::fs::create_dir_all(&tmp)?;
+    place_run(layout, id, "copy the run folder", |tmp| {
         let mut names: Vec<String> = std::fs::read_dir(from)?
             .filter_map(|e| e.ok())
             .filter(|e| e.path().is_file())
@@ -267,21 +270,10 @@ fn copy_run(layout: &Layout, id: &str, from: &Path, source: &Path) -> Result<()>
             } else {
                 bytes
             };
-            write_file(&tmp, &name, &bytes)?;
+            write_file(tmp, &name, &bytes)?;
         }
-        std::fs::File::open(&tmp)?.sync_all()?;
-        match std::fs::rename(&tmp, &final_dir) {
-            Ok(()) => Ok(()),
-            Err(_) if final_dir.join(CHECKSUMS).exists() => std::fs::remove_dir_all(&tmp),
-            Err(e) => Err(e),
-        }?;
-        std::fs::File::open(layout.runs())?.sync_all()
-    })();
-    if let Err(e) = result {
-        let _ = std::fs::remove_dir_all(&tmp);
-        return Err(Error::io(&final_dir, "copy the run folder", e));
-    }
-    Ok(())
+        Ok(())
+    })
 }
 
 /// A run read back from disk, integrity-checked.
