@@ -11,7 +11,7 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 /// The least work, in multiply-adds or element updates, worth a piece of its own: below it, handing
 /// a piece to another thread costs about what it saves. A speed setting only.
-pub const PIECE_WORK: usize = 1 << 16;
+pub const PIECE_WORK: usize = 1 << 13;
 
 /// Environment variable (tests only): split every product and pass however small, so that the
 /// small networks of the test suite exercise the split.
@@ -116,8 +116,8 @@ mod tests {
         let pool = rayon::ThreadPoolBuilder::new().num_threads(2).build().unwrap();
         pool.install(|| {
             assert_eq!(spread.band(1000, 8, 1 << 20), 256);
-            assert_eq!(spread.band(1000, 8, 100), 1000, "too little work for two pieces");
-            assert_eq!(spread.band(1000, 8, 140), 504, "work for two pieces: 1000 x 140 / 65536");
+            assert_eq!(spread.band(1000, 8, PIECE_WORK / 1000), 1000, "too little work for two pieces");
+            assert_eq!(spread.band(1000, 8, 2 * PIECE_WORK / 1000 + 1), 504, "work for two pieces, not three");
             assert_eq!(spread.band(12, 8, 1 << 20), 12, "fewer units than two aligned bands");
             for len in 1..300 {
                 let band = spread.band(len, 6, 1 << 20);
