@@ -22,6 +22,8 @@ pub enum Purpose {
     GroupBootstrap,
     /// Permuting a feature's values across test rows, and the resamples its importance is judged on.
     Permutation,
+    /// The sample of test rows the heavier analyses after training compute on (`analysis/sample.rs`).
+    AnalysisRows,
 }
 
 impl Purpose {
@@ -36,6 +38,7 @@ impl Purpose {
             Purpose::DemoData => "demo-data",
             Purpose::GroupBootstrap => "group-bootstrap",
             Purpose::Permutation => "permutation",
+            Purpose::AnalysisRows => "analysis-rows",
         }
     }
 }

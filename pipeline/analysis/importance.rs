@@ -38,6 +38,9 @@ pub(crate) struct ImportanceReport {
     /// The deployed model's metric on the test rows, unpermuted.
     pub test_value: f64,
     pub repeats: usize,
+    /// How many test rows it was computed on, when a sample of them (`analysis/sample.rs`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sampled_rows: Option<usize>,
     pub features: Vec<FeatureImportance>,
 }
 
@@ -116,7 +119,7 @@ pub(crate) fn permutation_importance(
         .collect();
     // Most important first; ties keep the input order.
     out.sort_by(|a, b| b.loss.value.total_cmp(&a.loss.value));
-    Ok(Some(ImportanceReport { metric: metric.into(), test_value: sign * base_all, repeats, features: out }))
+    Ok(Some(ImportanceReport { metric: metric.into(), test_value: sign * base_all, repeats, sampled_rows: None, features: out }))
 }
 
 /// The analysis of a derived selection, as `train` stores it in `importance.json` and `verify`
@@ -125,24 +128,28 @@ pub(crate) fn derive(
     prepared: &crate::experiment::prepared::Prepared,
     derived: &crate::selection::Derived,
     runs: &[crate::store::run::StoredRun],
+    layout_version: u32,
 ) -> Result<Option<ImportanceReport>> {
     let exp = &prepared.exp;
     let m = &exp.manifest;
+    let test = &exp.splits.test;
+    let rows = super::sample::rows(test, &super::sample::positions(test.len(), m.split.seed, layout_version));
     let (test_x, _) = exp
         .preprocessor
-        .transform_source(&exp.source, &[&exp.splits.test])?
+        .transform_source(&exp.source, &[&rows])?
         .pop()
         .ok_or_else(|| crate::error::Error::Internal("one row list gave no matrix".into()))?;
     let features: Vec<(String, usize)> = exp.preprocessor.inputs.iter().map(|e| (e.name().to_string(), e.width())).collect();
     let mut model = Deployed::load(&derived.selection, runs)?;
     let repeats = m.analysis.clone().unwrap_or_default().permutation_repeats;
-    permutation_importance(
+    let report = permutation_importance(
         &mut model,
         &test_x,
-        &exp.labels(&exp.splits.test),
+        &exp.labels(&rows),
         &features,
         (&derived.selection.metric, m.data.task),
         repeats,
         m.split.seed,
-    )
+    )?;
+    Ok(report.map(|r| ImportanceReport { sampled_rows: (rows.len() < test.len()).then_some(rows.len()), ..r }))
 }

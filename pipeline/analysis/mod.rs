@@ -3,7 +3,8 @@
 //! evidence and re-derived by `verify`: the disparity of the deployed decision across groups
 //! (`fairness.rs`, with the proxy probe of `proxy.rs`), permutation importance
 //! (`importance.rs`), and what moves the output (`sensitivity.rs`: reference rows, the
-//! sensitivity table, integrated gradients and principal reasons).
+//! sensitivity table, integrated gradients and principal reasons; the heavier of these on at most
+//! `sample::MAX_ROWS` test rows, `sample.rs`).
 
 pub(crate) mod attribution;
 pub(crate) mod curves;
@@ -14,5 +15,6 @@ pub(crate) mod profile;
 pub(crate) mod proxy;
 pub(crate) mod reasons;
 pub(crate) mod reference;
+pub(crate) mod sample;
 pub(crate) mod sensitivity;
 pub(crate) mod shifts;

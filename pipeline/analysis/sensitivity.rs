@@ -61,6 +61,10 @@ pub(crate) struct SensitivityReport {
     pub attributions: TestAttributions,
     /// Partial dependence and ICE curves of the most important features.
     pub curves: Vec<super::curves::Curve>,
+    /// How many test rows the table, the attributions and the curves were computed on, when a
+    /// sample of them (`analysis/sample.rs`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sampled_rows: Option<usize>,
 }
 
 /// The explained class of each row: the most probable under `outputs` (multiclass), else 0.
@@ -77,12 +81,16 @@ pub(crate) fn derive(
     derived: &crate::selection::Derived,
     runs: &[crate::store::run::StoredRun],
     importance: Option<&super::importance::ImportanceReport>,
+    layout_version: u32,
 ) -> Result<SensitivityReport> {
     let exp = &prepared.exp;
     let m = &exp.manifest;
     let task = m.data.task;
     let analysis = m.analysis.clone().unwrap_or_default();
-    let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.test])?.into_iter();
+    let test = &exp.splits.test;
+    let positions = super::sample::positions(test.len(), m.split.seed, layout_version);
+    let analysed = super::sample::rows(test, &positions);
+    let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &analysed])?.into_iter();
     let (Some((train_x, _)), Some((test_x, _))) = (matrices.next(), matrices.next()) else {
         return Err(Error::Internal("two row lists gave fewer matrices".into()));
     };
@@ -98,7 +106,8 @@ pub(crate) fn derive(
         }
         _ => None,
     };
-    let classes = explained_classes(task, &derived.test_outputs, k);
+    let outputs: Vec<f64> = positions.iter().flat_map(|&p| derived.test_outputs[p * k..(p + 1) * k].iter().copied()).collect();
+    let classes = explained_classes(task, &outputs, k);
     let shifts = super::shifts::table(&mut model, task, inputs, &test_x, &classes)?;
     let steps = analysis.integration_steps();
     let widths: Vec<usize> = inputs.iter().map(|e| e.width()).collect();
@@ -161,5 +170,6 @@ pub(crate) fn derive(
         target_std: if task == Task::Regression { model.target_std() } else { None },
         shifts,
         attributions,
+        sampled_rows: (analysed.len() < test.len()).then_some(analysed.len()),
     })
 }

@@ -173,8 +173,8 @@ fn select_and_record(
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
-    let importance = crate::analysis::importance::derive(prepared, &derived, &runs)?;
-    let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs, importance.as_ref())?;
+    let importance = crate::analysis::importance::derive(prepared, &derived, &runs, crate::store::FORMAT_VERSION)?;
+    let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs, importance.as_ref(), crate::store::FORMAT_VERSION)?;
     let profile = crate::analysis::profile::derive(prepared, &derived)?;
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
     phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });

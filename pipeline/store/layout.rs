@@ -17,7 +17,9 @@ use crate::error::{Error, Result};
 /// `importance.json`; version 6 `sensitivity.json`; version 7 adds `profile.json`, the reference
 /// population `monitor` compares batches with. Version 8 names runs by what decides their bits
 /// (`experiment.json`'s `run_inputs_sha256` with each run's settings and seed) rather than by the
-/// experiment fingerprint, so a run folder may be a copy of another experiment's identical run.
+/// experiment fingerprint, so a run folder may be a copy of another experiment's identical run,
+/// and its heavier analyses (importance, sensitivity) use at most 10,000 test rows, a seeded
+/// sample above that (`analysis/sample.rs`).
 pub const FORMAT_VERSION: u32 = 8;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).

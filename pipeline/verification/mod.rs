@@ -368,7 +368,10 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
             let stored = sealed.fairness()?;
             let stored_importance = sealed.importance()?;
             let runs = stored_runs.as_deref().unwrap_or(&[]);
-            match (crate::analysis::fairness::derive(&prepared, &derived), crate::analysis::importance::derive(&prepared, &derived, runs)) {
+            match (
+                crate::analysis::fairness::derive(&prepared, &derived),
+                crate::analysis::importance::derive(&prepared, &derived, runs, sealed.layout_version),
+            ) {
                 (Ok(fresh), _) if fresh != stored => SelectionCheck::Differs(
                     "fairness.json does not match the disparity analysis re-derived from the deployed model's test outputs".into(),
                 ),
@@ -376,7 +379,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
                     "importance.json does not match the permutation importance re-derived from the deployed model".into(),
                 ),
                 (Ok(_), Ok(fresh_importance)) if sealed.layout_version >= crate::analysis::sensitivity::SENSITIVITY_FROM => {
-                    match (sealed.sensitivity()?, crate::analysis::sensitivity::derive(&prepared, &derived, runs, fresh_importance.as_ref())) {
+                    match (sealed.sensitivity()?, crate::analysis::sensitivity::derive(&prepared, &derived, runs, fresh_importance.as_ref(), sealed.layout_version)) {
                         (_, Err(e)) => SelectionCheck::CannotDerive(e.to_string()),
                         (stored_sensitivity, Ok(fresh)) if stored_sensitivity.as_ref() != Some(&fresh) => SelectionCheck::Differs(
                             "sensitivity.json does not match the reference rows, sensitivity table and integrated gradients re-derived from the deployed model".into(),

@@ -19,8 +19,8 @@ pub(crate) fn importance(st: &StoredResults) -> Importance {
     let Some(r) = &st.importance else { return Importance { summary: String::new(), rows: Vec::new() } };
     let shown = r.features.iter().filter(|f| f.shown_to_matter).count();
     let summary = format!(
-        "Permutation importance (Breiman 2001; Fisher, Rudin & Dominici 2019): each feature's values, all its network inputs together, are shuffled across the {} test rows and the deployed model's test {} (here {}) is measured again. The loss is how much worse it gets (positive: worse), the mean of {} permutations; its 95% interval comes from the same permutations scored on bootstrap resamples of the test rows. {} of {} features are shown to matter (interval above 0). A feature can look unimportant when another carries the same information (they share the loss), and importance says how much the model uses a feature, not whether the feature causes the outcome.",
-        st.selection.test.rows,
+        "Permutation importance (Breiman 2001; Fisher, Rudin & Dominici 2019): each feature's values, all its network inputs together, are shuffled across {} and the deployed model's test {} (here {}) is measured again. The loss is how much worse it gets (positive: worse), the mean of {} permutations; its 95% interval comes from the same permutations scored on bootstrap resamples of those rows. {} of {} features are shown to matter (interval above 0). A feature can look unimportant when another carries the same information (they share the loss), and importance says how much the model uses a feature, not whether the feature causes the outcome.",
+        super::sensitivity::rows_note(r.sampled_rows, st.selection.test.rows),
         md(&r.metric),
         sig(r.test_value, 4),
         r.repeats,

@@ -83,12 +83,12 @@ pub(crate) fn sensitivity(st: &StoredResults, curve_figures: &crate::card::figur
         None => String::new(),
     };
     let summary = format!(
-        "Integrated gradients (Sundararajan, Taly & Yan 2017) split each test row's move in {} from the training median row (numeric inputs at their training medians, categories at their training shares) into one contribution per feature, computed on the network's own exact gradients by the trapezoid rule over {} intervals. Two checks guard the integral on every row: completeness (the contributions must add up to the row's move) and an error estimate per feature (the same rule on every other point); a row where either exceeds {} or {}% of the move, whichever is larger, is integrated again with 4, 16 and 64 times the intervals. Over the {} test rows the worst completeness gap left is {} and the worst error estimate {} ({} rows integrated again, {} still over). For a ReLU network the gradient jumps along the path, and a feature's contribution can still be off by somewhat more than its estimate. The share column counts the rows that give the feature among their {} principal reasons: {}. Sizes are in {}. Contributions describe this model's arithmetic around one reference, not causes, and they change with the reference.{}",
+        "Integrated gradients (Sundararajan, Taly & Yan 2017) split each test row's move in {} from the training median row (numeric inputs at their training medians, categories at their training shares) into one contribution per feature, computed on the network's own exact gradients by the trapezoid rule over {} intervals. Two checks guard the integral on every row: completeness (the contributions must add up to the row's move) and an error estimate per feature (the same rule on every other point); a row where either exceeds {} or {}% of the move, whichever is larger, is integrated again with 4, 16 and 64 times the intervals. Over {} the worst completeness gap left is {} and the worst error estimate {} ({} rows integrated again, {} still over). For a ReLU network the gradient jumps along the path, and a feature's contribution can still be off by somewhat more than its estimate. The share column counts the rows that give the feature among their {} principal reasons: {}. Sizes are in {}. Contributions describe this model's arithmetic around one reference, not causes, and they change with the reference.{}",
         if a.explains == "prediction" { "the prediction" } else { "log-odds (before any calibration map)" },
         a.steps,
         sig(a.tolerance, 3),
         sig(100.0 * a.relative_tolerance, 3),
-        st.selection.test.rows,
+        rows_note(s.sampled_rows, st.selection.test.rows),
         sig(a.worst_gap, 4),
         sig(a.worst_estimate, 4),
         a.refined_rows,
@@ -149,5 +149,24 @@ pub(crate) fn sensitivity(st: &StoredResults, curve_figures: &crate::card::figur
             s.curves.len()
         )
     };
+    let (table_note, curves_note) = match s.sampled_rows {
+        Some(n) => {
+            let sampled = format!(
+                " The rows are a seeded sample of {n} of the {} test rows (at most {} from results layout 8; `analysis/sample.rs`).",
+                st.selection.test.rows,
+                crate::analysis::sample::MAX_ROWS
+            );
+            (table_note + &sampled, if curves_note.is_empty() { curves_note } else { curves_note + &sampled })
+        }
+        None => (table_note, curves_note),
+    };
     Sensitivity { summary, attributions, table_note, shifts, swaps, curves, curves_note }
+}
+
+/// "the N test rows", or "a seeded sample of n of the N test rows".
+pub(crate) fn rows_note(sampled: Option<usize>, test_rows: usize) -> String {
+    match sampled {
+        Some(n) => format!("a seeded sample of {n} of the {test_rows} test rows"),
+        None => format!("the {test_rows} test rows"),
+    }
 }
