@@ -91,6 +91,10 @@ pub struct Experiment {
     pub preprocessor: Preprocessor,
     /// Manifest keys the grid overrides, for `check` and `train` to report.
     pub overridden_by_grid: Vec<String>,
+    /// SHA-256 of the three row lists' JSON, hashed once (the lists hold every row).
+    split_sha256: String,
+    /// [`Experiment::run_inputs_sha256`], hashed once.
+    run_inputs_sha256: String,
 }
 
 impl Experiment {
@@ -141,7 +145,7 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
     let content = scanned.content_sha256;
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
     let data_outside_project = outside(&loaded.path, &data_path);
-    Ok(Experiment {
+    let mut exp = Experiment {
         manifest_path: loaded.path,
         data: DataFingerprints { path: loaded.manifest.data.path.clone(), file_sha256: file_hash, content_sha256: content, bytes },
         data_outside_project,
@@ -158,7 +162,12 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
         splits: scanned.splits,
         preprocessor: scanned.preprocessor,
         overridden_by_grid: loaded.overridden_by_grid,
-    })
+        split_sha256: String::new(),
+        run_inputs_sha256: String::new(),
+    };
+    exp.split_sha256 = crate::fingerprint::sha256_hex(serde_json::to_string(&exp.splits).unwrap_or_default().as_bytes());
+    exp.run_inputs_sha256 = exp.hash_run_inputs();
+    Ok(exp)
 }
 
 /// What `experiment.json` records about an experiment: evidence only, the same wherever the
@@ -190,11 +199,6 @@ pub struct ExperimentRecord {
 }
 
 impl Experiment {
-    /// SHA-256 of the three row lists' JSON.
-    fn split_sha256(&self) -> String {
-        crate::fingerprint::sha256_hex(serde_json::to_string(&self.splits).unwrap_or_default().as_bytes())
-    }
-
     /// Class labels in index order (binary: negative, positive); empty for regression.
     fn class_labels(&self) -> Vec<String> {
         match &self.target {
@@ -209,7 +213,12 @@ impl Experiment {
     /// Not the rest of the manifest: its name and descriptions, the analyses after training, the
     /// grid values a run does not take. Run ids derive from it, so two experiments that differ
     /// only there name the same runs the same way and share them (`store::run::adopt`).
-    pub fn run_inputs_sha256(&self) -> String {
+    pub fn run_inputs_sha256(&self) -> &str {
+        &self.run_inputs_sha256
+    }
+
+    /// Computes [`Experiment::run_inputs_sha256`] from the fields it covers.
+    fn hash_run_inputs(&self) -> String {
         fn json(value: &impl serde::Serialize) -> String {
             serde_json::to_string(value).unwrap_or_default()
         }
@@ -217,7 +226,7 @@ impl Experiment {
             ("data content", self.data.content_sha256.as_bytes()),
             ("target", self.manifest.data.target.as_bytes()),
             ("class labels", json(&self.class_labels()).as_bytes()),
-            ("split rows", self.split_sha256().as_bytes()),
+            ("split rows", self.split_sha256.as_bytes()),
             ("preprocessor", json(&self.preprocessor).as_bytes()),
             ("head", json(&self.head()).as_bytes()),
             ("selection metric", self.manifest.selection.metric.as_bytes()),
@@ -228,7 +237,7 @@ impl Experiment {
 
     /// How this experiment's plan names its runs: by [`Experiment::run_inputs_sha256`].
     pub fn run_naming(&self) -> plan::RunNaming {
-        plan::RunNaming::Inputs(self.run_inputs_sha256())
+        plan::RunNaming::Inputs(self.run_inputs_sha256.clone())
     }
 
     pub fn record(&self) -> ExperimentRecord {
@@ -243,9 +252,9 @@ impl Experiment {
             ids: self.roles.ids.clone(),
             groups: self.roles.groups.clone(),
             split_rows: [self.splits.train.len(), self.splits.validation.len(), self.splits.test.len()],
-            split_sha256: self.split_sha256(),
+            split_sha256: self.split_sha256.clone(),
             tool_version: TOOL_VERSION.to_string(),
-            run_inputs_sha256: Some(self.run_inputs_sha256()),
+            run_inputs_sha256: Some(self.run_inputs_sha256.clone()),
             // Written beside it by `train` (`location.json`), which knows the results folder.
             location: Location::default(),
         }

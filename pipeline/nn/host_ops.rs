@@ -118,8 +118,7 @@ pub(super) fn activate_spread<T: Real>(spread: &Spread, activation: Activation, 
     if stretch >= out.len() {
         return activate(activation, pre, act, out);
     }
-    out.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, o)| {
-        spread.note_thread();
+    spread.each(out.par_chunks_mut(stretch).enumerate(), |(i, o)| {
         activate(activation, &pre[i * stretch..i * stretch + o.len()], &mut [], o);
     });
     if !act.is_empty() {
@@ -167,8 +166,7 @@ pub(super) fn derivative_spread<T: Real>(
     if stretch >= pre.len() {
         return derivative(activation, pre, act, grad_out, mask);
     }
-    pre.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, p)| {
-        spread.note_thread();
+    spread.each(pre.par_chunks_mut(stretch).enumerate(), |(i, p)| {
         let (start, len) = (i * stretch, p.len());
         derivative(activation, p, part(act, start, len), &grad_out[start..start + len], mask.map(|m| &m[start..start + len]));
     });

@@ -169,16 +169,14 @@ pub fn matmul<T: Real>(dst: &mut [T], a: View<'_, T>, b: View<'_, T>, accumulate
         let align = if n == 1 { kernels.across_width.max(kernels.along_rows) } else { kernels.tile.rows };
         let band = spread.band(m, align, work / m);
         if band < m {
-            return dst.par_chunks_mut(band * n).zip(ws.scratch.par_iter_mut()).enumerate().with_max_len(1).for_each(|(i, (d, s))| {
-                spread.note_thread();
+            return spread.each(dst.par_chunks_mut(band * n).zip(ws.scratch.par_iter_mut()).enumerate(), |(i, (d, s))| {
                 product(d, a.row_band(i * band, d.len() / n), b, accumulate, &kernels, s);
             });
         }
     } else {
         let band = spread.band(n, kernels.across_width.max(kernels.tile.cols), k);
         if band < n {
-            return dst.par_chunks_mut(band).zip(ws.scratch.par_iter_mut()).enumerate().with_max_len(1).for_each(|(j, (d, s))| {
-                spread.note_thread();
+            return spread.each(dst.par_chunks_mut(band).zip(ws.scratch.par_iter_mut()).enumerate(), |(j, (d, s))| {
                 product(d, a, b.col_band(j * band, d.len()), accumulate, &kernels, s);
             });
         }

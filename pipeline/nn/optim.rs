@@ -68,16 +68,14 @@ impl Optimizer {
                         *m = vec![0.0; w.len()];
                     }
                     if split {
-                        w.par_chunks_mut(stretch).zip(m.par_chunks_mut(stretch)).enumerate().with_max_len(1).for_each(|(i, (w, m))| {
-                            spread.note_thread();
+                        spread.each(w.par_chunks_mut(stretch).zip(m.par_chunks_mut(stretch)).enumerate(), |(i, (w, m))| {
                             sgd.momentum_step(w, gradient(i, w.len()), m);
                         });
                     } else {
                         sgd.momentum_step(w, g, m);
                     }
                 } else if split {
-                    w.par_chunks_mut(stretch).enumerate().with_max_len(1).for_each(|(i, w)| {
-                        spread.note_thread();
+                    spread.each(w.par_chunks_mut(stretch).enumerate(), |(i, w)| {
                         sgd.plain_step(w, gradient(i, w.len()));
                     });
                 } else {
@@ -99,14 +97,12 @@ impl Optimizer {
                     decay,
                 };
                 if split {
-                    w.par_chunks_mut(stretch)
-                        .zip(m.par_chunks_mut(stretch).zip(v.par_chunks_mut(stretch)))
-                        .enumerate()
-                        .with_max_len(1)
-                        .for_each(|(i, (w, (m, v)))| {
-                            spread.note_thread();
+                    spread.each(
+                        w.par_chunks_mut(stretch).zip(m.par_chunks_mut(stretch).zip(v.par_chunks_mut(stretch))).enumerate(),
+                        |(i, (w, (m, v)))| {
                             adam(w, gradient(i, w.len()), m, v, &k);
-                        });
+                        },
+                    );
                 } else {
                     adam(w, g, m, v, &k);
                 }

@@ -9,6 +9,8 @@
 
 use std::sync::atomic::{AtomicU64, Ordering};
 
+use rayon::iter::{IndexedParallelIterator, ParallelIterator};
+
 /// The least work, in multiply-adds or element updates, worth a piece of its own: below it, handing
 /// a piece to another thread costs about what it saves. A speed setting only.
 pub const PIECE_WORK: usize = 1 << 13;
@@ -63,6 +65,14 @@ impl Spread {
             return len;
         }
         len.div_ceil(pieces).next_multiple_of(align)
+    }
+
+    /// `work` on each of `pieces`, one rayon job per piece, noting every thread that takes one.
+    pub fn each<I: IndexedParallelIterator>(&self, pieces: I, work: impl Fn(I::Item) + Sync + Send) {
+        pieces.with_max_len(1).for_each(|piece| {
+            self.note_thread();
+            work(piece)
+        });
     }
 
     /// Records that the calling thread computes a piece.

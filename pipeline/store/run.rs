@@ -233,6 +233,9 @@ pub fn adopt(layout: &Layout, id: &str, settings: &RunConfig, preprocessor: &Pre
     let Ok(entries) = std::fs::read_dir(root) else { return Ok(None) };
     let mut folders: Vec<PathBuf> =
         entries.filter_map(|e| e.ok().map(|e| e.path())).filter(|p| p.join("runs").join(id).join(CHECKSUMS).is_file()).collect();
+    if folders.is_empty() {
+        return Ok(None);
+    }
     folders.sort();
     let (settings, preprocessor) = (to_json(settings)?, to_json(preprocessor)?);
     for folder in folders {
