@@ -14,7 +14,7 @@ use super::shifts::scores;
 use crate::data::prep::{InputEncoding, Matrix};
 use crate::error::Result;
 use crate::manifest::Task;
-use crate::metrics::bootstrap::quantile_sorted;
+use crate::metrics::order_statistics::linear_quantiles;
 use crate::selection::serving::Deployed;
 
 /// Test rows whose ICE curves are stored.
@@ -51,17 +51,15 @@ pub(crate) struct Curve {
 /// The numeric grid of `train_values` (observed training values): the quantiles at [`levels`],
 /// equal values merged, and the training rows nearest each.
 pub(crate) fn numeric_grid(train_values: &[f64]) -> (Vec<f64>, Vec<usize>) {
-    let mut sorted = train_values.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    if sorted.is_empty() {
+    if train_values.is_empty() {
         return (Vec::new(), Vec::new());
     }
-    let mut grid: Vec<f64> = levels().iter().map(|&q| quantile_sorted(&sorted, q)).collect();
+    let mut grid = linear_quantiles(train_values, &levels());
     grid.dedup();
     // Bin edges halfway between neighbouring grid values; a value on an edge goes to the upper bin.
     let edges: Vec<f64> = grid.windows(2).map(|w| (w[0] + w[1]) / 2.0).collect();
     let mut counts = vec![0usize; grid.len()];
-    for v in &sorted {
+    for v in train_values {
         counts[edges.partition_point(|e| e <= v)] += 1;
     }
     (grid, counts)

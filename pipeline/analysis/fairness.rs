@@ -315,19 +315,15 @@ pub(crate) fn derive(
     let spec = m.fairness.clone().unwrap_or_default();
     let mut report = analyse(m.data.task, &groups, &test_y, &derived.test_outputs, decision, &spec, m.selection.bootstrap, m.split.seed);
     if let Some(report) = report.as_mut().filter(|_| spec.proxy_check) {
-        // The training matrix is encoded anew: the prepared one may have been released after the sweep.
-        let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &exp.splits.test])?.into_iter();
-        let (Some((train_x, _)), Some((test_x, _))) = (matrices.next(), matrices.next()) else {
-            return Err(crate::error::Error::Internal("two row lists gave fewer matrices".into()));
-        };
+        let (train_x, test_x) = (&prepared.train_x, &derived.test_x);
         for name in &exp.roles.groups {
             let col = crate::data::source::ColumnSource::column(&exp.source, name)?;
             let label =
                 |rows: &[usize]| -> Vec<String> { rows.iter().map(|&r| col.label(r).unwrap_or_else(|| "(missing)".into())).collect() };
             report.proxies.push(super::proxy::check(
                 name,
-                (&train_x, &label(&exp.splits.train)),
-                (&test_x, &label(&exp.splits.test)),
+                (train_x, &label(&exp.splits.train)),
+                (test_x, &label(&exp.splits.test)),
                 m.selection.bootstrap,
                 m.split.seed,
             ));

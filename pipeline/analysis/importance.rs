@@ -133,23 +133,23 @@ pub(crate) fn derive(
     let exp = &prepared.exp;
     let m = &exp.manifest;
     let test = &exp.splits.test;
-    let rows = super::sample::rows(test, &super::sample::positions(test.len(), m.split.seed, layout_version));
-    let (test_x, _) = exp
-        .preprocessor
-        .transform_source(&exp.source, &[&rows])?
-        .pop()
-        .ok_or_else(|| crate::error::Error::Internal("one row list gave no matrix".into()))?;
+    let positions = super::sample::positions(test.len(), m.split.seed, layout_version);
+    let rows = super::sample::rows(test, &positions);
+    let test_x = super::sample::matrix_rows(&derived.test_x, &positions);
     let features: Vec<(String, usize)> = exp.preprocessor.inputs.iter().map(|e| (e.name().to_string(), e.width())).collect();
     let mut model = Deployed::load(&derived.selection, runs)?;
     let repeats = m.analysis.clone().unwrap_or_default().permutation_repeats;
-    let report = permutation_importance(
-        &mut model,
-        &test_x,
-        &exp.labels(&rows),
-        &features,
-        (&derived.selection.metric, m.data.task),
-        repeats,
-        m.split.seed,
-    )?;
+    let pool = crate::threads::helper_pool(super::SCORING_BYTES_PER_THREAD, "score the permuted rows")?;
+    let report = pool.install(|| {
+        permutation_importance(
+            &mut model,
+            &test_x,
+            &exp.labels(&rows),
+            &features,
+            (&derived.selection.metric, m.data.task),
+            repeats,
+            m.split.seed,
+        )
+    })?;
     Ok(report.map(|r| ImportanceReport { sampled_rows: (rows.len() < test.len()).then_some(rows.len()), ..r }))
 }

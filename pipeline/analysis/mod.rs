@@ -18,3 +18,7 @@ pub(crate) mod reference;
 pub(crate) mod sample;
 pub(crate) mod sensitivity;
 pub(crate) mod shifts;
+
+/// Working memory of one thread scoring an analysis's rows (a copy of the scoring engine and its
+/// share of the outputs): what the helper pools of the analyses are sized by.
+pub(crate) const SCORING_BYTES_PER_THREAD: u64 = 64 << 20;

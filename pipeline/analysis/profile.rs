@@ -12,6 +12,8 @@
 //! (decile bins as above, no missing bin in use), and the decided class for a multiclass model.
 //! Nothing here is random; `verify` re-derives the file.
 
+use crate::metrics::order_statistics::values_at_ranks;
+use rayon::prelude::*;
 use std::collections::HashMap;
 
 use serde::{Deserialize, Serialize};
@@ -195,14 +197,22 @@ pub(crate) const METHOD: &str = "numeric edges: numpy.quantile(values, [0.1, ...
 /// numpy's `quantile(sorted, q, method="linear")`, computed as numpy computes it: virtual index
 /// `(n - 1) q`, and its `_lerp`, which interpolates from the upper neighbour when the fraction is
 /// at least one half, so the edges equal numpy's to the last bit.
+#[cfg(test)]
 pub(crate) fn numpy_linear_quantile(sorted: &[f64], q: f64) -> f64 {
-    let n = sorted.len();
+    let [lo, hi] = numpy_linear_ranks(sorted.len(), q);
+    numpy_linear_between(sorted.len(), q, sorted[lo], sorted[hi])
+}
+
+/// The two sorted positions [`numpy_linear_quantile`] reads for `n` values.
+fn numpy_linear_ranks(n: usize, q: f64) -> [usize; 2] {
+    let lo = (((n - 1) as f64 * q).floor() as usize).min(n - 1);
+    [lo, (lo + 1).min(n - 1)]
+}
+
+/// [`numpy_linear_quantile`] from the two values it reads ([`numpy_linear_ranks`]).
+fn numpy_linear_between(n: usize, q: f64, a: f64, b: f64) -> f64 {
     let virtual_index = (n - 1) as f64 * q;
-    let below = virtual_index.floor();
-    let lo = (below as usize).min(n - 1);
-    let hi = (lo + 1).min(n - 1);
-    let t = virtual_index - below;
-    let (a, b) = (sorted[lo], sorted[hi]);
+    let t = virtual_index - virtual_index.floor();
     let diff = b - a;
     if t >= 0.5 {
         b - diff * (1.0 - t)
@@ -211,15 +221,20 @@ pub(crate) fn numpy_linear_quantile(sorted: &[f64], q: f64) -> f64 {
     }
 }
 
-/// Decile bins of the values (any order; none missing).
-pub(crate) fn numeric_bins(mut values: Vec<f64>) -> Bins {
-    values.sort_by(f64::total_cmp);
-    if values.is_empty() {
+/// Decile bins of the values (any order; none missing), the order statistics found by radix
+/// selection (`metrics::order_statistics`): the edges a sort gives, bit for bit.
+pub(crate) fn numeric_bins(values: &[f64]) -> Bins {
+    let n = values.len();
+    if n == 0 {
         return Bins::Numeric { edges: Vec::new(), min: f64::NAN, max: f64::NAN };
     }
-    let mut edges: Vec<f64> = DECILES.iter().map(|&q| numpy_linear_quantile(&values, q)).collect();
+    let mut ranks: Vec<usize> = DECILES.iter().flat_map(|&q| numpy_linear_ranks(n, q)).collect();
+    ranks.extend([0, n - 1]);
+    let at = values_at_ranks(values, &ranks);
+    let mut edges: Vec<f64> =
+        DECILES.iter().zip(at.chunks_exact(2)).map(|(&q, pair)| numpy_linear_between(n, q, pair[0], pair[1])).collect();
     edges.dedup();
-    Bins::Numeric { edges, min: values[0], max: values[values.len() - 1] }
+    Bins::Numeric { edges, min: at[2 * DECILES.len()], max: at[2 * DECILES.len() + 1] }
 }
 
 /// Assigns the rows of a column (or of a chunk of one) to bins, looking text levels up once per
@@ -287,29 +302,44 @@ pub(crate) fn tally_scores(task: Task, bins: &Bins, scores: &[f64], counts: &mut
     }
 }
 
+/// Working memory of one thread binning a training column, per training row: the column's
+/// observed values and the selection's gathered keys.
+const PROFILE_BYTES_PER_ROW: u64 = 24;
+
+/// One feature's bins and counts over the training rows `train` of its column.
+fn binned_feature(enc: &InputEncoding, col: &Column, train: &[usize]) -> BinnedColumn {
+    let bins = match enc {
+        InputEncoding::Numeric { .. } => numeric_bins(&train.iter().filter_map(|&r| col.number(r)).collect::<Vec<_>>()),
+        InputEncoding::Categorical { levels, .. } => Bins::Levels { levels: levels.clone() },
+    };
+    let mut counts = vec![0u64; bins.len()];
+    let binner = Binner::new(&bins);
+    for &r in train {
+        let bin = match &bins {
+            Bins::Numeric { .. } => bins.of_number(col.number(r)),
+            Bins::Levels { .. } => binner.of_label(col.label(r).as_deref()),
+        };
+        counts[bin] += 1;
+    }
+    BinnedColumn { name: enc.name().to_string(), bins, counts }
+}
+
 /// The profile of an experiment: features on the training rows, the score on the test rows'
 /// deployed outputs.
 pub(crate) fn derive(prepared: &crate::experiment::prepared::Prepared, derived: &crate::selection::Derived) -> Result<ReferenceProfile> {
     let exp = &prepared.exp;
     let task = exp.manifest.data.task;
     let train = &exp.splits.train;
+    // Columns are read a window at a time and binned in parallel, one column per thread.
+    let pool = crate::threads::helper_pool(PROFILE_BYTES_PER_ROW.saturating_mul(train.len() as u64), "bin the training columns")?;
+    let per_read = crate::data::source::columns_per_read(exp.source.rows(), pool.current_num_threads());
     let mut features = Vec::with_capacity(exp.preprocessor.inputs.len());
-    for enc in &exp.preprocessor.inputs {
-        let col = crate::data::source::ColumnSource::column(&exp.source, enc.name())?;
-        let bins = match enc {
-            InputEncoding::Numeric { .. } => numeric_bins(train.iter().filter_map(|&r| col.number(r)).collect()),
-            InputEncoding::Categorical { levels, .. } => Bins::Levels { levels: levels.clone() },
-        };
-        let mut counts = vec![0u64; bins.len()];
-        let binner = Binner::new(&bins);
-        for &r in train {
-            let bin = match &bins {
-                Bins::Numeric { .. } => bins.of_number(col.number(r)),
-                Bins::Levels { .. } => binner.of_label(col.label(r).as_deref()),
-            };
-            counts[bin] += 1;
-        }
-        features.push(BinnedColumn { name: enc.name().to_string(), bins, counts });
+    for window in exp.preprocessor.inputs.chunks(per_read) {
+        let names: Vec<&str> = window.iter().map(InputEncoding::name).collect();
+        let columns = crate::data::source::ColumnSource::columns(&exp.source, &names)?;
+        let binned: Vec<BinnedColumn> =
+            pool.install(|| window.par_iter().zip(columns.par_iter()).map(|(enc, col)| binned_feature(enc, col, train)).collect());
+        features.extend(binned);
     }
     let labels: Vec<String> = match &exp.target {
         crate::data::roles::Target::Classes { labels, .. } => labels.clone(),
@@ -318,8 +348,8 @@ pub(crate) fn derive(prepared: &crate::experiment::prepared::Prepared, derived: 
     let k = exp.head().values_per_row();
     let test_scores = scores(task, &derived.test_outputs, k);
     let (score_means, bins) = match task {
-        Task::Binary => (format!("probability of {}", labels.get(1).cloned().unwrap_or_default()), numeric_bins(test_scores.clone())),
-        Task::Regression => ("prediction".to_string(), numeric_bins(test_scores.clone())),
+        Task::Binary => (format!("probability of {}", labels.get(1).cloned().unwrap_or_default()), numeric_bins(&test_scores)),
+        Task::Regression => ("prediction".to_string(), numeric_bins(&test_scores)),
         Task::Multiclass => ("decided class".to_string(), Bins::Levels { levels: labels.clone() }),
     };
     let mut counts = vec![0u64; bins.len()];
@@ -354,7 +384,7 @@ mod tests {
 
     #[test]
     fn tied_edges_merge_and_bins_close_on_the_right() {
-        let bins = numeric_bins(vec![1.0; 5].into_iter().chain([2.0, 3.0]).collect());
+        let bins = numeric_bins(&vec![1.0; 5].into_iter().chain([2.0, 3.0]).collect::<Vec<_>>());
         let Bins::Numeric { edges, .. } = &bins else { panic!() };
         assert!(edges.windows(2).all(|w| w[0] < w[1]), "{edges:?}");
         assert_eq!(edges[0], 1.0);

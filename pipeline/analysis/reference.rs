@@ -12,7 +12,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::data::prep::{InputEncoding, Matrix};
-use crate::metrics::bootstrap::quantile_sorted;
+use crate::metrics::order_statistics::{column_values_at_ranks, linear_between, linear_ranks};
 
 /// How far above the deployed threshold a training row may score and still count as "just above".
 pub(crate) const THRESHOLD_BAND: f64 = 0.05;
@@ -63,19 +63,23 @@ pub(crate) fn indicator_inputs(inputs: &[InputEncoding]) -> Vec<bool> {
 /// The training median row of `train_x`.
 pub(crate) fn median_row(train_x: &Matrix, indicators: &[bool]) -> Vec<f32> {
     let n = train_x.rows.max(1);
+    let values: Vec<usize> = (0..train_x.cols).filter(|&j| !indicators[j]).collect();
+    let medians: Vec<f32> = if train_x.rows == 0 {
+        vec![0.0; values.len()]
+    } else {
+        // The median of each value input, as quantile_sorted(_, 0.5) of its sorted training values.
+        let last = train_x.rows - 1;
+        let found = column_values_at_ranks(&train_x.data, train_x.cols, &values, &linear_ranks(last, 0.5));
+        found.iter().map(|pair| linear_between(last, 0.5, pair[0], pair[1]) as f32).collect()
+    };
+    let mut medians = medians.into_iter();
     (0..train_x.cols)
         .map(|j| {
-            let column = (0..train_x.rows).map(|r| f64::from(train_x.data[r * train_x.cols + j]));
             if indicators[j] {
-                (column.sum::<f64>() / n as f64) as f32
+                let sum: f64 = (0..train_x.rows).map(|r| f64::from(train_x.data[r * train_x.cols + j])).sum();
+                (sum / n as f64) as f32
             } else {
-                let mut v: Vec<f64> = column.collect();
-                v.sort_by(f64::total_cmp);
-                if v.is_empty() {
-                    0.0
-                } else {
-                    quantile_sorted(&v, 0.5) as f32
-                }
+                medians.next().unwrap_or(0.0)
             }
         })
         .collect()
@@ -85,7 +89,7 @@ pub(crate) fn median_row(train_x: &Matrix, indicators: &[bool]) -> Vec<f32> {
 pub(crate) fn threshold_row(train_x: &Matrix, scores: &[f64], threshold: f64, wanted: usize) -> ThresholdReference {
     let mut above: Vec<usize> = (0..train_x.rows).filter(|&r| scores[r] >= threshold).collect();
     // Lowest score first; ties in row order.
-    above.sort_by(|&a, &b| scores[a].total_cmp(&scores[b]).then(a.cmp(&b)));
+    above.sort_unstable_by(|&a, &b| scores[a].total_cmp(&scores[b]).then(a.cmp(&b)));
     let chosen = &above[..wanted.min(above.len())];
     let highest = chosen.last().map(|&r| scores[r]);
     match highest {

@@ -7,6 +7,7 @@
 //! methods (scikit-learn's `permutation_importance` offers `max_samples` for the same reason);
 //! the intervals of the importance repeats then also carry the sample's noise.
 
+use crate::data::prep::Matrix;
 use crate::rng::{Purpose, Stream};
 
 /// The most test rows the heavier analyses compute on (results layout 8 on).
@@ -31,6 +32,12 @@ pub(crate) fn positions(test_rows: usize, seed: u64, layout_version: u32) -> Vec
 /// The table rows at `positions` of the test split `test`.
 pub(crate) fn rows(test: &[usize], positions: &[usize]) -> Vec<usize> {
     positions.iter().map(|&p| test[p]).collect()
+}
+
+/// The rows at `positions` of the encoded test matrix `test_x`, in that order.
+pub(crate) fn matrix_rows(test_x: &Matrix, positions: &[usize]) -> Matrix {
+    let data = positions.iter().flat_map(|&p| test_x.row(p).iter().copied()).collect();
+    Matrix { rows: positions.len(), cols: test_x.cols, data }
 }
 
 #[cfg(test)]

@@ -10,7 +10,7 @@ use super::attribution::{row_tolerance, RELATIVE_TOLERANCE};
 use super::reasons::{principal, Toward, DEFAULT_REASONS};
 use super::reference::{indicator_inputs, median_row, threshold_row, References};
 use super::shifts::FeatureShifts;
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::manifest::Task;
 use crate::selection::serving::Deployed;
 
@@ -75,8 +75,20 @@ pub(crate) fn explained_classes(task: Task, outputs: &[f64], k: usize) -> Vec<us
     }
 }
 
-/// The analysis of a derived selection, as `train` stores it and `verify` re-derives it.
+/// The analysis of a derived selection, as `train` stores it and `verify` re-derives it; its
+/// scoring and the reference rows' order statistics run on every core a helper pool may take.
 pub(crate) fn derive(
+    prepared: &crate::experiment::prepared::Prepared,
+    derived: &crate::selection::Derived,
+    runs: &[crate::store::run::StoredRun],
+    importance: Option<&super::importance::ImportanceReport>,
+    layout_version: u32,
+) -> Result<SensitivityReport> {
+    crate::threads::helper_pool(super::SCORING_BYTES_PER_THREAD, "score the sensitivity rows")?
+        .install(|| derive_here(prepared, derived, runs, importance, layout_version))
+}
+
+fn derive_here(
     prepared: &crate::experiment::prepared::Prepared,
     derived: &crate::selection::Derived,
     runs: &[crate::store::run::StoredRun],
@@ -90,19 +102,17 @@ pub(crate) fn derive(
     let test = &exp.splits.test;
     let positions = super::sample::positions(test.len(), m.split.seed, layout_version);
     let analysed = super::sample::rows(test, &positions);
-    let mut matrices = exp.preprocessor.transform_source(&exp.source, &[&exp.splits.train, &analysed])?.into_iter();
-    let (Some((train_x, _)), Some((test_x, _))) = (matrices.next(), matrices.next()) else {
-        return Err(Error::Internal("two row lists gave fewer matrices".into()));
-    };
+    let train_x = &prepared.train_x;
+    let test_x = super::sample::matrix_rows(&derived.test_x, &positions);
     let mut model = Deployed::load(&derived.selection, runs)?;
     let k = model.head().values_per_row();
     let inputs = &exp.preprocessor.inputs;
-    let median = median_row(&train_x, &indicator_inputs(inputs));
+    let median = median_row(train_x, &indicator_inputs(inputs));
     let threshold = match task {
         Task::Binary => {
             let t = derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value;
-            let scores: Vec<f64> = model.score(&train_x)?.chunks_exact(k).map(|r| r[1]).collect();
-            Some(threshold_row(&train_x, &scores, t, analysis.reference_rows()))
+            let scores: Vec<f64> = model.score(train_x)?.chunks_exact(k).map(|r| r[1]).collect();
+            Some(threshold_row(train_x, &scores, t, analysis.reference_rows()))
         }
         _ => None,
     };

@@ -171,13 +171,25 @@ fn select_and_record(
 ) -> Result<(Selection, String)> {
     let selecting = Instant::now();
     let runs = Folder::stored_runs(layout, &prepared.plan)?;
+    let mut parts = Vec::new();
+    let mut timed = |name: &str, since: &mut Instant| {
+        parts.push(Phase::part(name, phase::SELECT, since.elapsed().as_secs_f64()));
+        *since = Instant::now();
+    };
+    let mut since = Instant::now();
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
+    timed(phase::EVALUATE, &mut since);
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
+    timed(phase::FAIRNESS, &mut since);
     let importance = crate::analysis::importance::derive(prepared, &derived, &runs, crate::store::FORMAT_VERSION)?;
+    timed(phase::IMPORTANCE, &mut since);
     let sensitivity = crate::analysis::sensitivity::derive(prepared, &derived, &runs, importance.as_ref(), crate::store::FORMAT_VERSION)?;
+    timed(phase::SENSITIVITY, &mut since);
     let profile = crate::analysis::profile::derive(prepared, &derived)?;
+    timed(phase::PROFILE, &mut since);
     let crate::selection::Derived { selection, test_predictions, .. } = derived;
-    phases.push(Phase { name: phase::SELECT.into(), seconds: selecting.elapsed().as_secs_f64() });
+    phases.push(Phase::top(phase::SELECT, selecting.elapsed().as_secs_f64()));
+    phases.extend(parts);
     crate::store::write_atomic(&layout.test_predictions(), test_predictions.as_bytes())?;
     write_json(&layout.selection(), &selection)?;
     if let Some(fairness) = &fairness {
@@ -323,11 +335,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     let environment = crate::numerics::current()?;
     let exp = open(manifest_path)?;
     crate::experiment::feasibility::return_freed_memory();
-    let mut phases = vec![Phase { name: phase::SCAN.into(), seconds: started.elapsed().as_secs_f64() }];
+    let mut phases = vec![Phase::top(phase::SCAN, started.elapsed().as_secs_f64())];
     let building = Instant::now();
-    let mut prepared = Prepared::new(exp)?;
+    let prepared = Prepared::new(exp)?;
     crate::experiment::feasibility::return_freed_memory();
-    phases.push(Phase { name: phase::MATRICES.into(), seconds: building.elapsed().as_secs_f64() });
+    phases.push(Phase::top(phase::MATRICES, building.elapsed().as_secs_f64()));
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     // No more workers than runs to train (or cores): what the card and the timing record state.
@@ -377,10 +389,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     };
     let sweeping = Instant::now();
     let report = sweep::run(&sweep_inputs, on_event)?;
-    // Selection reads validation and test rows only.
-    prepared.train_x = Default::default();
-    crate::experiment::feasibility::return_freed_memory();
-    phases.push(Phase { name: phase::SWEEP.into(), seconds: sweeping.elapsed().as_secs_f64() });
+    phases.push(Phase::top(phase::SWEEP, sweeping.elapsed().as_secs_f64()));
     if let Some(shard) = options.shard {
         return Ok(shard_outcome(exp, plan, shard, &report, &layout, options.jobs));
     }

@@ -6,42 +6,17 @@ use std::collections::HashSet;
 use std::hash::{BuildHasherDefault, Hasher};
 
 /// The `q` quantile (linear interpolation, as [`crate::metrics::bootstrap::quantile_sorted`] on
-/// the values sorted by `f64::total_cmp`), found by selection in linear time; reorders `values`,
-/// which must not be empty.
-pub(crate) fn quantile(values: &mut [f64], q: f64) -> f64 {
+/// the values sorted by `f64::total_cmp`), found by radix selection in linear time
+/// (`metrics::order_statistics`); `values` must not be empty.
+pub(crate) fn quantile(values: &[f64], q: f64) -> f64 {
     quantiles(values, [q])[0]
 }
 
-/// Several quantiles at once (as [`quantile`] gives each): the order statistics they need are
-/// selected in one pass that splits the values at the middle one and recurses into each side, so
-/// three quantiles cost little more than one. Reorders `values`, which must not be empty.
-pub(crate) fn quantiles<const K: usize>(values: &mut [f64], qs: [f64; K]) -> [f64; K] {
-    let last = values.len() - 1;
-    let positions = qs.map(|q| q * last as f64);
-    let mut wanted: Vec<usize> = positions.iter().flat_map(|&p| [p.floor() as usize, (p.ceil() as usize).min(last)]).collect();
-    wanted.sort_unstable();
-    wanted.dedup();
-    select_all(values, 0, &wanted);
-    positions.map(|pos| {
-        let lo = pos.floor() as usize;
-        let below = values[lo];
-        let next = if pos.ceil() as usize > lo { values[lo + 1] } else { below };
-        // The same arithmetic as quantile_sorted, so infinities and -0.0 come out as they did.
-        below + (next - below) * (pos - lo as f64)
-    })
-}
-
-/// Puts the order statistic of every index in `wanted` (sorted, relative to the whole slice,
-/// `offset` being where `values` starts) at its index.
-fn select_all(values: &mut [f64], offset: usize, wanted: &[usize]) {
-    if wanted.is_empty() {
-        return;
-    }
-    let middle = wanted.len() / 2;
-    let at = wanted[middle] - offset;
-    let (left, _, right) = values.select_nth_unstable_by(at, f64::total_cmp);
-    select_all(left, offset, &wanted[..middle]);
-    select_all(right, offset + at + 1, &wanted[middle + 1..]);
+/// Several quantiles at once (as [`quantile`] gives each), from one selection of the order
+/// statistics they need.
+pub(crate) fn quantiles<const K: usize>(values: &[f64], qs: [f64; K]) -> [f64; K] {
+    let found = crate::metrics::order_statistics::linear_quantiles(values, &qs);
+    std::array::from_fn(|i| found[i])
 }
 
 /// The least and greatest values by `f64::total_cmp` (so -0.0 is below 0.0, as a sort puts it).
@@ -168,11 +143,9 @@ mod tests {
             let mut sorted = values.clone();
             sorted.sort_by(f64::total_cmp);
             for q in [0.0, 0.25, 0.5, 0.75, 1.0] {
-                let mut work = values.clone();
-                assert_eq!(quantile(&mut work, q).to_bits(), quantile_sorted(&sorted, q).to_bits(), "n = {n}, q = {q}");
+                assert_eq!(quantile(&values, q).to_bits(), quantile_sorted(&sorted, q).to_bits(), "n = {n}, q = {q}");
             }
-            let mut work = values.clone();
-            let many = quantiles(&mut work, [0.0, 0.25, 0.5, 0.75, 1.0]);
+            let many = quantiles(&values, [0.0, 0.25, 0.5, 0.75, 1.0]);
             for (q, got) in [0.0, 0.25, 0.5, 0.75, 1.0].iter().zip(many) {
                 assert_eq!(got.to_bits(), quantile_sorted(&sorted, *q).to_bits(), "n = {n}, q = {q}, at once");
             }

@@ -108,8 +108,8 @@ pub struct RowFlags {
 }
 
 /// Minimum, median (linear interpolation, as `quantile_sorted(_, 0.5)` on the sorted values) and
-/// maximum of non-empty `values`, by selection instead of a full sort; reorders `values`.
-fn min_median_max(values: &mut [f64]) -> (f64, f64, f64) {
+/// maximum of non-empty `values`, by selection instead of a full sort.
+fn min_median_max(values: &[f64]) -> (f64, f64, f64) {
     let (min, max) = super::order::min_max(values).unwrap_or((f64::NAN, f64::NAN));
     (min, super::order::quantile(values, 0.5), max)
 }
@@ -143,7 +143,7 @@ pub fn fit_feature(col: &Column, f: &Feature, rows: &[usize], file: &Path) -> Re
         if col.is_text() {
             return Err(Error::data(file, Some(&f.name), "is text but was expected to be numeric"));
         }
-        let mut values = observed(col, rows);
+        let values = observed(col, rows);
         if values.is_empty() {
             return Err(Error::data(file, Some(&f.name), "has no values in the training rows"));
         }
@@ -151,7 +151,7 @@ pub fn fit_feature(col: &Column, f: &Feature, rows: &[usize], file: &Path) -> Re
         let mean = values.iter().sum::<f64>() / n;
         let var = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / n;
         let std = var.sqrt();
-        let (train_min, impute, train_max) = min_median_max(&mut values);
+        let (train_min, impute, train_max) = min_median_max(&values);
         Ok(InputEncoding::Numeric {
             name: f.name.clone(),
             impute,
@@ -375,8 +375,7 @@ mod tests {
                 .collect();
             let mut sorted = values.clone();
             sorted.sort_by(f64::total_cmp);
-            let mut work = values.clone();
-            let (min, median, max) = min_median_max(&mut work);
+            let (min, median, max) = min_median_max(&values);
             let want = (sorted[0].to_bits(), quantile_sorted(&sorted, 0.5).to_bits(), sorted[n - 1].to_bits());
             assert_eq!((min.to_bits(), median.to_bits(), max.to_bits()), want, "n = {n}");
         }

@@ -77,15 +77,15 @@ pub const RARE_LEVEL_ROWS: usize = 10;
 /// A column with more than this share missing is flagged (common practice).
 pub const MOSTLY_MISSING_SHARE: f64 = 0.5;
 
-/// Statistics of the values in any order (reordered here). The mean and the standard deviation
+/// Statistics of the values in any order. The mean and the standard deviation
 /// (n - 1 in the denominator) are compensated sums in the order given, the quantiles numpy's
 /// "linear" ones, found by selection.
-pub fn numeric_stats(mut values: Vec<f64>) -> Option<NumericStats> {
+pub fn numeric_stats(values: Vec<f64>) -> Option<NumericStats> {
     let (min, max) = order::min_max(&values)?;
     let n = values.len() as f64;
     let mean = order::sum(values.iter().copied()) / n;
     let var = if values.len() > 1 { order::sum(values.iter().map(|x| (x - mean).powi(2))) / (n - 1.0) } else { 0.0 };
-    let [q25, median, q75] = order::quantiles(&mut values, [0.25, 0.5, 0.75]);
+    let [q25, median, q75] = order::quantiles(&values, [0.25, 0.5, 0.75]);
     Some(NumericStats { min, max, mean, std: var.sqrt(), q25, median, q75 })
 }
 

@@ -22,36 +22,67 @@ pub struct ReliabilityBin {
 /// class) with a 95% Wilson interval. Empty bins are left out. [`ece_from_table`] of it is the
 /// expected calibration error.
 pub fn top_label_table(labels: &[usize], probs: &[f64], k: usize, bins: usize) -> Vec<ReliabilityBin> {
-    let points = probs.chunks_exact(k).zip(labels).map(|(row, &y)| {
-        let top = super::classification::argmax(row);
-        (row[top], top == y)
-    });
-    table(points, bins, true)
+    table(probs.chunks_exact(k).zip(labels).map(|(row, &y)| top_label_point(row, y)), bins, true)
+}
+
+/// One row's top-label point: its largest class probability, and whether that class is `y`.
+pub fn top_label_point(row: &[f64], y: usize) -> (f64, bool) {
+    let top = super::classification::argmax(row);
+    (row[top], top == y)
+}
+
+/// Running sums of a reliability table: per bin, its rows, the sum of their predicted values
+/// (added in the order the rows come) and their hits.
+pub struct BinSums {
+    count: Vec<usize>,
+    predicted: Vec<f64>,
+    hits: Vec<usize>,
+}
+
+impl BinSums {
+    pub fn new(bins: usize) -> Self {
+        BinSums { count: vec![0; bins], predicted: vec![0.0; bins], hits: vec![0; bins] }
+    }
+
+    /// Adds a row of predicted value `p` in bin `bin` ([`bin_of`]).
+    pub fn add(&mut self, bin: usize, p: f64, hit: bool) {
+        self.count[bin] += 1;
+        self.predicted[bin] += p;
+        self.hits[bin] += hit as usize;
+    }
+
+    /// Per non-empty bin, its rows, mean predicted value and share of hits, with the share's
+    /// Wilson interval when asked.
+    pub fn table(&self, with_interval: bool) -> Vec<ReliabilityBin> {
+        let bins = self.count.len();
+        (0..bins)
+            .filter(|&b| self.count[b] > 0)
+            .map(|b| ReliabilityBin {
+                lower: b as f64 / bins as f64,
+                upper: (b + 1) as f64 / bins as f64,
+                count: self.count[b],
+                mean_predicted: self.predicted[b] / self.count[b] as f64,
+                observed: self.hits[b] as f64 / self.count[b] as f64,
+                observed_interval: with_interval.then(|| super::wilson::interval(self.hits[b], self.count[b], super::wilson::Z95)),
+            })
+            .collect()
+    }
+
+    /// The expected calibration error of the table over `rows` rows: the bits of
+    /// [`expected_calibration_error`] of the same rows in the same order.
+    pub fn ece(&self, rows: usize) -> Option<f64> {
+        (rows > 0 && !self.count.is_empty()).then(|| ece_from_table(&self.table(false), rows))
+    }
 }
 
 /// One table from (predicted value, hit) points: per non-empty bin of the predicted value, its
 /// rows, mean predicted value and share of hits, with the share's Wilson interval when asked.
 fn table(points: impl Iterator<Item = (f64, bool)>, bins: usize, with_interval: bool) -> Vec<ReliabilityBin> {
-    let mut count = vec![0usize; bins];
-    let mut predicted = vec![0.0; bins];
-    let mut hits = vec![0usize; bins];
+    let mut sums = BinSums::new(bins);
     for (p, hit) in points {
-        let b = bin_of(p, bins);
-        count[b] += 1;
-        predicted[b] += p;
-        hits[b] += hit as usize;
+        sums.add(bin_of(p, bins), p, hit);
     }
-    (0..bins)
-        .filter(|&b| count[b] > 0)
-        .map(|b| ReliabilityBin {
-            lower: b as f64 / bins as f64,
-            upper: (b + 1) as f64 / bins as f64,
-            count: count[b],
-            mean_predicted: predicted[b] / count[b] as f64,
-            observed: hits[b] as f64 / count[b] as f64,
-            observed_interval: with_interval.then(|| super::wilson::interval(hits[b], count[b], super::wilson::Z95)),
-        })
-        .collect()
+    sums.table(with_interval)
 }
 
 /// The expected calibration error of a reliability table over `rows` rows: each bin's

@@ -45,7 +45,12 @@ pub fn accuracy(labels: &[usize], predicted: &[usize]) -> Option<f64> {
 
 /// Mean recall over the classes present in `labels`.
 pub fn balanced_accuracy(labels: &[usize], predicted: &[usize], k: usize) -> Option<f64> {
-    let m = confusion_matrix(labels, predicted, k);
+    balanced_accuracy_of(&confusion_matrix(labels, predicted, k))
+}
+
+/// Balanced accuracy from the confusion matrix `m[true][predicted]`.
+pub fn balanced_accuracy_of(m: &[Vec<usize>]) -> Option<f64> {
+    let k = m.len();
     let recalls: Vec<f64> = (0..k)
         .filter_map(|c| {
             let support: usize = m[c].iter().sum();
@@ -77,14 +82,27 @@ pub fn log_loss(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
     if labels.is_empty() {
         return None;
     }
+    log_loss_of_terms(probs.chunks_exact(k).zip(labels).map(|(row, &y)| log_loss_term(row, y)), labels.len())
+}
+
+/// One row's log-loss term: the natural log of the clipped probability of class `y` over the sum
+/// of the row's clipped probabilities (minus the row's loss).
+pub fn log_loss_term(row: &[f64], y: usize) -> f64 {
     let eps = f64::EPSILON;
-    let mut total = 0.0;
-    for (row, &y) in probs.chunks_exact(k).zip(labels) {
-        let clipped: Vec<f64> = row.iter().map(|p| p.clamp(eps, 1.0 - eps)).collect();
-        let sum: f64 = clipped.iter().sum();
-        total -= libm::log(clipped[y] / sum);
+    let sum: f64 = row.iter().map(|p| p.clamp(eps, 1.0 - eps)).sum();
+    libm::log(row[y].clamp(eps, 1.0 - eps) / sum)
+}
+
+/// Log loss of `rows` rows from their [`log_loss_term`]s, subtracted in the order given.
+pub fn log_loss_of_terms(terms: impl Iterator<Item = f64>, rows: usize) -> Option<f64> {
+    if rows == 0 {
+        return None;
     }
-    Some(total / labels.len() as f64)
+    let mut total = 0.0;
+    for term in terms {
+        total -= term;
+    }
+    Some(total / rows as f64)
 }
 
 /// Brier score: for two classes the mean of (p - y)^2 on the positive class; for more, the mean
@@ -93,16 +111,18 @@ pub fn brier(labels: &[usize], probs: &[f64], k: usize) -> Option<f64> {
     if labels.is_empty() {
         return None;
     }
-    let total: f64 = if k == 2 {
-        probs.chunks_exact(2).zip(labels).map(|(r, &y)| (r[1] - (y == 1) as u8 as f64).powi(2)).sum()
-    } else {
-        probs
-            .chunks_exact(k)
-            .zip(labels)
-            .map(|(r, &y)| r.iter().enumerate().map(|(c, p)| (p - (c == y) as u8 as f64).powi(2)).sum::<f64>())
-            .sum()
-    };
+    let total: f64 = probs.chunks_exact(k).zip(labels).map(|(r, &y)| brier_term(r, y)).sum();
     Some(total / labels.len() as f64)
+}
+
+/// One row's Brier term: for two classes (p - y)^2 on the positive class; for more, the squared
+/// distance between the row's probabilities and the one-hot label.
+pub fn brier_term(row: &[f64], y: usize) -> f64 {
+    if row.len() == 2 {
+        (row[1] - (y == 1) as u8 as f64).powi(2)
+    } else {
+        row.iter().enumerate().map(|(c, p)| (p - (c == y) as u8 as f64).powi(2)).sum::<f64>()
+    }
 }
 
 /// Ranks 1..n of `scores`, tied scores sharing their average rank.

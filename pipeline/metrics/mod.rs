@@ -5,9 +5,11 @@
 pub(crate) mod bootstrap;
 pub mod calibration;
 pub mod classification;
+pub mod order_statistics;
 pub mod ranked;
 pub mod registry;
 pub mod regression;
+pub mod resample;
 pub mod wilson;
 
 use std::collections::BTreeMap;

@@ -5,8 +5,8 @@
 
 use super::calibration::expected_calibration_error;
 use super::classification as c;
-use super::ranked::ClassRankings;
 use super::regression as r;
+use super::resample::Resample;
 use super::MetricSet;
 use crate::task::Task;
 
@@ -39,22 +39,12 @@ pub enum Scale {
 }
 
 /// What a metric is computed from: class probabilities (row-major, `k` per row) with their
-/// labels and arg-max predictions, or predicted and true values. A bootstrap resample may bring
-/// its sample's rankings and its row counts (`ranks`), so its rank metrics take linear time.
+/// labels and arg-max predictions, or predicted and true values; or a bootstrap resample of a
+/// prepared classified sample, scored in linear time with the bits of its rows (`resample`).
 pub enum Scored<'a> {
-    Classes {
-        labels: &'a [usize],
-        probs: &'a [f64],
-        k: usize,
-        predicted: &'a [usize],
-        is_positive: &'a [bool],
-        p_positive: &'a [f64],
-        ranks: Option<(&'a ClassRankings, &'a [u32])>,
-    },
-    Values {
-        truth: &'a [f64],
-        predicted: &'a [f64],
-    },
+    Classes { labels: &'a [usize], probs: &'a [f64], k: usize, predicted: &'a [usize], is_positive: &'a [bool], p_positive: &'a [f64] },
+    Values { truth: &'a [f64], predicted: &'a [f64] },
+    Resample(&'a Resample<'a>),
 }
 
 pub struct Metric {
@@ -69,29 +59,29 @@ pub struct Metric {
 fn classes(s: &Scored, f: impl Fn(&[usize], &[f64], usize, &[usize]) -> Option<f64>) -> Option<f64> {
     match s {
         Scored::Classes { labels, probs, k, predicted, .. } => f(labels, probs, *k, predicted),
-        Scored::Values { .. } => None,
+        Scored::Values { .. } | Scored::Resample(_) => None,
     }
 }
 
 fn positives(s: &Scored, f: impl Fn(&[bool], &[f64]) -> Option<f64>) -> Option<f64> {
     match s {
         Scored::Classes { is_positive, p_positive, .. } => f(is_positive, p_positive),
-        Scored::Values { .. } => None,
+        Scored::Values { .. } | Scored::Resample(_) => None,
     }
 }
 
 fn values(s: &Scored, f: impl Fn(&[f64], &[f64]) -> Option<f64>) -> Option<f64> {
     match s {
         Scored::Values { truth, predicted } => f(truth, predicted),
-        Scored::Classes { .. } => None,
+        Scored::Classes { .. } | Scored::Resample(_) => None,
     }
 }
 
-/// A rank metric: from the resample's counts when the sample was ranked, else by sorting.
-fn ranked(s: &Scored, counted: fn(&ClassRankings, &[u32]) -> Option<f64>, sorted: fn(&Scored) -> Option<f64>) -> Option<f64> {
+/// A classification metric: of a resample from its prepared sample, else of the rows given.
+fn classified(s: &Scored, resampled: impl Fn(&Resample) -> Option<f64>, rows: fn(&Scored) -> Option<f64>) -> Option<f64> {
     match s {
-        Scored::Classes { ranks: Some((rankings, counts)), .. } => counted(rankings, counts),
-        _ => sorted(s),
+        Scored::Resample(r) => resampled(r),
+        _ => rows(s),
     }
 }
 
@@ -101,18 +91,20 @@ const fn metric(name: &'static str, direction: Direction, on_card: bool, scale: 
 
 use Direction::{Maximise, Minimise};
 
-const ACCURACY: fn(&Scored) -> Option<f64> = |s| classes(s, |l, _, _, p| c::accuracy(l, p));
-const BALANCED_ACCURACY: fn(&Scored) -> Option<f64> = |s| classes(s, |l, _, k, p| c::balanced_accuracy(l, p, k));
-const LOG_LOSS: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| c::log_loss(l, pr, k));
-const BRIER: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| c::brier(l, pr, k));
+const ACCURACY: fn(&Scored) -> Option<f64> = |s| classified(s, |r| r.accuracy(), |s| classes(s, |l, _, _, p| c::accuracy(l, p)));
+const BALANCED_ACCURACY: fn(&Scored) -> Option<f64> =
+    |s| classified(s, |r| r.balanced_accuracy(), |s| classes(s, |l, _, k, p| c::balanced_accuracy(l, p, k)));
+const LOG_LOSS: fn(&Scored) -> Option<f64> = |s| classified(s, |r| r.log_loss(), |s| classes(s, |l, pr, k, _| c::log_loss(l, pr, k)));
+const BRIER: fn(&Scored) -> Option<f64> = |s| classified(s, |r| r.brier(), |s| classes(s, |l, pr, k, _| c::brier(l, pr, k)));
 /// Top-label ECE, 10 equal-width bins closed on the right (see `calibration`).
-const ECE: fn(&Scored) -> Option<f64> = |s| classes(s, |l, pr, k, _| expected_calibration_error(l, pr, k, 10));
+const ECE: fn(&Scored) -> Option<f64> =
+    |s| classified(s, |r| r.ece(), |s| classes(s, |l, pr, k, _| expected_calibration_error(l, pr, k, 10)));
 
 /// Binary, in card column order; the first is the default selection metric.
 const BINARY: &[Metric] = &[
-    metric("roc_auc", Maximise, true, Scale::Unit, |s| ranked(s, ClassRankings::roc_auc, |s| positives(s, c::roc_auc))),
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| classified(s, |r| r.roc_auc(), |s| positives(s, c::roc_auc))),
     metric("average_precision", Maximise, true, Scale::Unit, |s| {
-        ranked(s, ClassRankings::average_precision, |s| positives(s, c::average_precision))
+        classified(s, |r| r.average_precision(), |s| positives(s, c::average_precision))
     }),
     metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
     metric("brier", Minimise, true, Scale::Unit, BRIER),
@@ -126,7 +118,7 @@ const MULTICLASS: &[Metric] = &[
     metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
     metric("balanced_accuracy", Maximise, true, Scale::Unit, BALANCED_ACCURACY),
     metric("roc_auc", Maximise, true, Scale::Unit, |s| {
-        ranked(s, ClassRankings::roc_auc, |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k)))
+        classified(s, |r| r.roc_auc(), |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k)))
     }),
     metric("ece", Minimise, true, Scale::Unit, ECE),
     metric("brier", Minimise, false, Scale::Unit, BRIER),
@@ -198,23 +190,18 @@ pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
 /// Every classification metric of the table (binary when `k == 2`) of class probabilities
 /// (`k` per row) against class indices, by name.
 pub fn classification_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
-    classification_metrics_ranked(labels, probs, k, None)
+    let predicted = super::classification::predicted_classes(probs, k);
+    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
+        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+    let task = if k == 2 { Task::Binary } else { Task::Multiclass };
+    scalar_metrics(task, &Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive })
 }
 
-/// [`classification_metrics`] of a bootstrap resample given as its rows (`labels`, `probs`) and,
-/// when its sample was ranked, as that ranking with the resample's count of each sample row: the
-/// same bits, with the rank metrics in linear time (`ranked`).
-pub fn classification_metrics_ranked(labels: &[usize], probs: &[f64], k: usize, ranks: Option<(&ClassRankings, &[u32])>) -> MetricSet {
-    let predicted = super::classification::predicted_classes(probs, k);
-    // With a ranking, the rank metrics never read the positive-class columns.
-    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) = if k == 2 && ranks.is_none() {
-        labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip()
-    } else {
-        (Vec::new(), Vec::new())
-    };
-    let task = if k == 2 { Task::Binary } else { Task::Multiclass };
-    let scored = Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive, ranks };
-    scalar_metrics(task, &scored)
+/// [`classification_metrics`] of a bootstrap resample of a prepared sample: the same bits, in
+/// linear time (`resample`).
+pub fn resample_metrics(resample: &Resample) -> MetricSet {
+    let task = if resample.classes() == 2 { Task::Binary } else { Task::Multiclass };
+    scalar_metrics(task, &Scored::Resample(resample))
 }
 
 /// Every regression metric of the table, by name.

@@ -61,7 +61,7 @@ pub fn compare(reference: &[u64], batch: &[u64]) -> Stability {
 /// Reference and batch counts of two samples of one number over decile bins of the reference
 /// sample, as `profile.json` bins a feature: what the size of the chi-square test is measured on.
 pub fn decile_counts(reference: &[f64], batch: &[f64]) -> (Vec<u64>, Vec<u64>) {
-    let bins = crate::analysis::profile::numeric_bins(reference.to_vec());
+    let bins = crate::analysis::profile::numeric_bins(reference);
     let count = |values: &[f64]| {
         let mut counts = vec![0u64; bins.len()];
         for &v in values {

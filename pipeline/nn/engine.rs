@@ -23,6 +23,7 @@ use crate::rng::Stream;
 
 /// One affine layer with what follows it: batch norm, activation, dropout, residual (hidden
 /// layers), or nothing (the head).
+#[derive(Clone)]
 struct Dense<T> {
     name: String,
     inputs: usize,
@@ -79,6 +80,7 @@ enum Pass<'a, T> {
     Evaluation { running_std: &'a [Option<Vec<T>>] },
 }
 
+#[derive(Clone)]
 pub struct Engine<T> {
     activation: Activation,
     dropout: f64,
@@ -242,19 +244,42 @@ impl<T: Real> Engine<T> {
     }
 
     /// Raw outputs (rows x outputs, as f32) of every row of `x` in evaluation mode: running
-    /// statistics for batch norm, no dropout, no noise; in blocks of [`EVAL_BLOCK`] rows.
+    /// statistics for batch norm, no dropout, no noise; in blocks of [`EVAL_BLOCK`] rows. On a
+    /// pool's thread, runs of whole blocks go to the pool's threads, each on a copy of the engine:
+    /// a row's outputs never depend on the rows scored with it, so the bits are those of one thread.
     pub fn evaluate(&mut self, x: &Matrix) -> Vec<f32> {
+        use rayon::prelude::*;
         assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
+        let blocks = x.rows.div_ceil(EVAL_BLOCK);
+        let per_row: usize = self.layers.iter().map(|l| l.inputs * l.outputs).sum();
+        let threads = super::spread::threads_here().min(blocks);
+        if threads < 2 || EVAL_BLOCK * per_row < super::spread::piece_work() {
+            return self.evaluate_rows(&x.data, x.rows);
+        }
+        let run = blocks.div_ceil(threads) * EVAL_BLOCK * self.inputs;
+        let mut engines: Vec<Engine<T>> = (1..x.data.chunks(run).len()).map(|_| self.clone()).collect();
+        engines.push(self.clone());
+        let parts: Vec<Vec<f32>> = x
+            .data
+            .par_chunks(run)
+            .zip(engines.par_iter_mut())
+            .map(|(rows, engine)| engine.evaluate_rows(rows, rows.len() / engine.inputs))
+            .collect();
+        parts.concat()
+    }
+
+    /// [`Engine::evaluate`] of `rows` rows of `data` on this thread.
+    fn evaluate_rows(&mut self, data: &[f32], rows: usize) -> Vec<f32> {
         let outputs = self.layers.last().map_or(0, |l| l.outputs);
-        let mut result = Vec::with_capacity(x.rows * outputs);
+        let mut result = Vec::with_capacity(rows * outputs);
         let d = self.inputs;
         let eps = T::narrow(BN_EPS);
         // sqrt(running_var + eps) per batch-norm layer, once per call rather than per block.
         let running_std: Vec<Option<Vec<T>>> =
             self.layers.iter().map(|l| l.norm.as_ref().map(|n| n.running_var.iter().map(|&v| (v + eps).sqrt()).collect())).collect();
-        for start in (0..x.rows).step_by(EVAL_BLOCK) {
-            let b = (x.rows - start).min(EVAL_BLOCK);
-            for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
+        for start in (0..rows).step_by(EVAL_BLOCK) {
+            let b = (rows - start).min(EVAL_BLOCK);
+            for (v, &s) in self.input[..b * d].iter_mut().zip(&data[start * d..(start + b) * d]) {
                 *v = T::narrow(f64::from(s));
             }
             self.walk_layers(b, Pass::Evaluation { running_std: &running_std });

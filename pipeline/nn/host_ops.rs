@@ -32,6 +32,7 @@ fn part<T>(values: &[T], start: usize, len: usize) -> &[T] {
 }
 
 /// Batch normalisation's parameters, running statistics and per-batch state.
+#[derive(Clone)]
 pub(super) struct Norm<T> {
     pub(super) gamma: Vec<T>,
     pub(super) beta: Vec<T>,

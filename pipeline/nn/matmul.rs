@@ -91,6 +91,7 @@ impl<'a, T: Copy> View<'a, T> {
 }
 
 /// One thread's packing buffers.
+#[derive(Clone)]
 struct Scratch<T> {
     packed_a: Vec<T>,
     packed_b: Vec<T>,
@@ -100,6 +101,7 @@ struct Scratch<T> {
 /// The kernels of one dispatch level, packing buffers for each piece a product may be split into,
 /// and the [`Spread`] that decides the pieces, for one engine; the buffers grow on first use, so
 /// that repeated products of the same shapes allocate nothing.
+#[derive(Clone)]
 pub struct Workspace<T> {
     kernels: Kernels<T>,
     scratch: Vec<Scratch<T>>,

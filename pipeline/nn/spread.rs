@@ -20,7 +20,7 @@ pub const PIECE_WORK: usize = 1 << 13;
 pub const SPLIT_SMALL_ENV: &str = "TABCARD_TEST_SPLIT_SMALL";
 
 /// [`PIECE_WORK`], or 1 under [`SPLIT_SMALL_ENV`]; read once.
-fn piece_work() -> usize {
+pub(super) fn piece_work() -> usize {
     static WORK: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
     *WORK.get_or_init(|| if std::env::var_os(SPLIT_SMALL_ENV).is_some() { 1 } else { PIECE_WORK })
 }
@@ -34,6 +34,13 @@ pub struct Spread {
     /// piece of a pass is held by a thread of its own.
     #[cfg(test)]
     rendezvous: Option<(std::sync::atomic::AtomicUsize, usize)>,
+}
+
+impl Clone for Spread {
+    /// A spread of as many pieces, no thread yet noted.
+    fn clone(&self) -> Self {
+        Spread::new(self.parts)
+    }
 }
 
 impl Spread {

@@ -19,9 +19,10 @@ use crate::experiment::prepared::Prepared;
 use crate::manifest::{CalibrationSpec, DecisionSpec, SelectionRule, ThresholdRule};
 use crate::metrics::bootstrap::{percentile_intervals, Interval};
 use crate::metrics::calibration::{class_table, reliability_bins, top_label_table, ReliabilityBin};
-use crate::metrics::classification::{accuracy, balanced_accuracy, confusion_matrix, per_class, predicted_classes, ClassReport};
+use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::classification::{operating_point_at, youden_threshold};
 use crate::metrics::registry::{better, direction, Direction};
+use crate::metrics::resample::decision_metrics;
 use crate::metrics::MetricSet;
 use crate::selection::deployed::{
     fit_interval, mean_outputs, CalibrationReport, EnsembleReport, IntervalReport, CALIBRATION_FROM, CALIBRATION_METRICS,
@@ -485,12 +486,8 @@ pub(crate) fn evaluate_test(
                 let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
                 let metrics = if current {
                     percentile_intervals(rows.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-                        let y: Vec<usize> = idx.iter().map(|&i| rows[i]).collect();
-                        let decided: Vec<usize> = idx.iter().map(|&i| predicted[i]).collect();
-                        MetricSet::from([
-                            ("accuracy".to_string(), accuracy(&y, &decided)),
-                            ("balanced_accuracy".to_string(), balanced_accuracy(&y, &decided, 2)),
-                        ])
+                        let (accuracy, balanced_accuracy) = decision_metrics(rows, &predicted, 2, idx);
+                        MetricSet::from([("accuracy".to_string(), accuracy), ("balanced_accuracy".to_string(), balanced_accuracy)])
                     })
                 } else {
                     BTreeMap::new()
@@ -533,9 +530,9 @@ pub(crate) fn evaluate_test(
     };
     let calibration = match (&map, test_y) {
         (Some(map), Labels::Classes { rows, classes }) => {
+            let raw_scorer = ResampleScorer::new(head, &raw_outputs, test_y);
             let before = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-                let (sub_out, sub_y) = subset(&raw_outputs, idx);
-                let mut m = head.metrics(&sub_out, &sub_y);
+                let mut m = raw_scorer.metrics(idx);
                 m.retain(|name, _| CALIBRATION_METRICS.contains(&name.as_str()));
                 m
             });
@@ -559,10 +556,10 @@ pub(crate) fn evaluate_test(
     let ensemble = ensemble.then(|| EnsembleReport {
         members: members.iter().map(|m| m.run_id.clone()).collect(),
         maps: members.iter().filter_map(|m| m.map.clone()).collect(),
-        single_run: percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-            let (sub_out, sub_y) = subset(&members[chosen].outputs, idx);
-            head.metrics(&sub_out, &sub_y)
-        }),
+        single_run: {
+            let single = ResampleScorer::new(head, &members[chosen].outputs, test_y);
+            percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| single.metrics(idx))
+        },
     });
     let test = TestEvaluation {
         run_id: selected_run.to_string(),
@@ -593,6 +590,8 @@ pub(crate) struct Derived {
     pub test_predictions: String,
     /// The deployed model's outputs on the test rows (k per row), in test-row order.
     pub test_outputs: Vec<f64>,
+    /// The test rows encoded by the preprocessor, built once for every analysis after selection.
+    pub test_x: Matrix,
 }
 
 /// Each named group column's label for every test row.
@@ -650,5 +649,5 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         interval: evaluated.interval,
         ensemble: evaluated.ensemble,
     };
-    Ok(Derived { selection, test_predictions, test_outputs: evaluated.outputs })
+    Ok(Derived { selection, test_predictions, test_outputs: evaluated.outputs, test_x })
 }

@@ -39,6 +39,21 @@ pub(crate) struct TimingRecord {
 pub(crate) struct Phase {
     pub name: String,
     pub seconds: f64,
+    /// The phase this one is a part of (absent for the top-level phases, and before tabcard 0.12).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub within: Option<String>,
+}
+
+impl Phase {
+    /// A top-level phase.
+    pub(crate) fn top(name: &str, seconds: f64) -> Self {
+        Phase { name: name.into(), seconds, within: None }
+    }
+
+    /// A part of the phase `within`.
+    pub(crate) fn part(name: &str, within: &str, seconds: f64) -> Self {
+        Phase { name: name.into(), seconds, within: Some(within.into()) }
+    }
 }
 
 /// Names of the phases `train` times.
@@ -48,8 +63,15 @@ pub(crate) mod phase {
     /// The second pass: the training and validation matrices.
     pub(crate) const MATRICES: &str = "build the training and validation matrices";
     pub(crate) const SWEEP: &str = "train the runs";
-    /// Test matrix, selection and the test evaluation.
+    /// Test matrix, selection and the test evaluation, then the analyses of the selected model
+    /// (each timed as a part of this phase).
     pub(crate) const SELECT: &str = "select and test";
+    /// Parts of `SELECT`.
+    pub(crate) const EVALUATE: &str = "selection and the test evaluation with its bootstrap";
+    pub(crate) const FAIRNESS: &str = "fairness";
+    pub(crate) const IMPORTANCE: &str = "permutation importance";
+    pub(crate) const SENSITIVITY: &str = "sensitivity, attributions and curves";
+    pub(crate) const PROFILE: &str = "monitoring profile";
 }
 
 impl TimingRecord {

@@ -5,7 +5,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::manifest::{RegressionLoss, Task};
-use crate::metrics::ranked::ClassRankings;
+use crate::metrics::resample::ClassifiedSample;
 use crate::metrics::{registry, MetricSet};
 
 /// Targets aligned with the rows of a matrix.
@@ -40,36 +40,32 @@ pub(crate) fn rows_of(outputs: &[f64], labels: &Labels, k: usize, idx: &[usize])
 }
 
 /// Scores bootstrap resamples of one sample (outputs, `k` per row, and labels) with the bits of
-/// [`Head::metrics`] on each resample's rows; the sample is ranked once, so a classifier's rank
-/// metrics cost linear time per resample instead of a sort (`metrics::ranked`).
+/// [`Head::metrics`] on each resample's rows; a classified sample is prepared once, so each
+/// resample costs linear time and no copy of its rows (`metrics::resample`).
 pub(crate) struct ResampleScorer<'a> {
     head: Head,
     outputs: &'a [f64],
     labels: &'a Labels,
-    rankings: Option<ClassRankings>,
+    classified: Option<ClassifiedSample<'a>>,
 }
 
 impl<'a> ResampleScorer<'a> {
     pub(crate) fn new(head: Head, outputs: &'a [f64], labels: &'a Labels) -> Self {
-        let rankings = match labels {
-            Labels::Classes { rows, classes } => ClassRankings::new(rows, outputs, *classes),
+        let classified = match labels {
+            Labels::Classes { rows, classes } => Some(ClassifiedSample::new(rows, outputs, *classes)),
             Labels::Values(_) => None,
         };
-        ResampleScorer { head, outputs, labels, rankings }
+        ResampleScorer { head, outputs, labels, classified }
     }
 
     /// Every metric of the resample `idx` (sample rows, repeats allowed).
     pub(crate) fn metrics(&self, idx: &[usize]) -> MetricSet {
-        let (out, labels) = rows_of(self.outputs, self.labels, self.head.values_per_row(), idx);
-        match (&labels, &self.rankings) {
-            (Labels::Classes { rows, classes }, Some(rankings)) => {
-                let mut counts = vec![0u32; self.labels.len()];
-                for &i in idx {
-                    counts[i] += 1;
-                }
-                registry::classification_metrics_ranked(rows, &out, *classes, Some((rankings, &counts)))
+        match &self.classified {
+            Some(sample) => registry::resample_metrics(&sample.resample(idx)),
+            None => {
+                let (out, labels) = rows_of(self.outputs, self.labels, self.head.values_per_row(), idx);
+                self.head.metrics(&out, &labels)
             }
-            _ => self.head.metrics(&out, &labels),
         }
     }
 }
