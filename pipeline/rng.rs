@@ -97,6 +97,21 @@ impl Stream {
         }
     }
 
+    /// Fills `out` with draws of [`Stream::below`]`(n)`: the same values, the rejection zone
+    /// computed once.
+    pub fn fill_below(&mut self, n: u64, out: &mut [usize]) {
+        debug_assert!(n > 0);
+        let zone = u64::MAX - (u64::MAX % n);
+        for v in out {
+            *v = loop {
+                let x = self.next_u64();
+                if x < zone {
+                    break (x % n) as usize;
+                }
+            };
+        }
+    }
+
     /// Standard normal draw (Box-Muller with the pure-Rust `libm`, so it is the same everywhere).
     pub fn normal(&mut self) -> f64 {
         if let Some(z) = self.spare_normal.take() {
@@ -145,6 +160,17 @@ mod tests {
         let first = |seed, p| Stream::new(seed, p).next_u64();
         assert_ne!(first(7, Purpose::Init), first(7, Purpose::Shuffle));
         assert_ne!(first(7, Purpose::Init), first(8, Purpose::Init));
+    }
+
+    #[test]
+    fn filled_draws_are_the_draws_one_at_a_time() {
+        let (mut a, mut b) = (Stream::new(3, Purpose::Bootstrap), Stream::new(3, Purpose::Bootstrap));
+        for n in [1u64, 2, 7, 1 << 40, u64::MAX / 3 + 7] {
+            let mut filled = vec![0usize; 500];
+            a.fill_below(n, &mut filled);
+            let single: Vec<usize> = (0..500).map(|_| b.below(n) as usize).collect();
+            assert_eq!(filled, single, "n = {n}");
+        }
     }
 
     #[test]

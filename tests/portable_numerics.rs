@@ -168,8 +168,17 @@ fn first_difference(want: &BTreeMap<String, BTreeMap<String, String>>, got: &BTr
     None
 }
 
+/// Held by the tests that train here, so that none competes for the cores while another checks
+/// that its runs' work went to more than one thread (an idle thread must be free to take a piece).
+static TRAINING_ALONE: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+fn training_alone() -> std::sync::MutexGuard<'static, ()> {
+    TRAINING_ALONE.lock().unwrap_or_else(|poisoned| poisoned.into_inner())
+}
+
 #[test]
 fn the_golden_experiment_reproduces_at_every_level_worker_count_and_cpu_restriction() {
+    let _alone = training_alone();
     let dir = tempfile::tempdir().unwrap();
     let manifest = golden_experiment(dir.path());
     let levels = Level::available_levels();
@@ -274,6 +283,7 @@ fn thread_cases(threads: &[&'static str]) -> Vec<(String, Command, &'static str,
 
 #[test]
 fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level_and_thread_count() {
+    let _alone = training_alone();
     // Every level with 2 workers, then the fastest level on 1, 3 and 4 threads per run.
     let mut cases: Vec<(String, Command, &str, Level)> =
         Level::available_levels().into_iter().rev().map(|l| (l.name().to_string(), bin(), "2", l)).collect();
@@ -283,6 +293,7 @@ fn the_demo_lease_sweep_is_identical_at_every_forced_dispatch_level_and_thread_c
 
 #[test]
 fn the_demo_greenhouse_sweep_is_identical_at_every_thread_count() {
+    let _alone = training_alone();
     demo_is_identical_across(&repo_path("experiments/greenhouse-yield.toml"), thread_cases(&["1", "2", "3", "4"]));
 }
 

@@ -35,44 +35,89 @@ pub(crate) fn percentile_intervals(
     seed: u64,
     metrics: impl Fn(&[usize]) -> MetricSet + Sync,
 ) -> BTreeMap<String, Interval> {
+    let scorer: &Scorer = &metrics;
+    shared_percentile_intervals(n, resamples, level, seed, &[scorer]).pop().unwrap_or_default()
+}
+
+/// One set of metrics of an index sample.
+pub(crate) type Scorer<'a> = dyn Fn(&[usize]) -> MetricSet + Sync + 'a;
+
+/// [`percentile_intervals`] for several sets of metrics of the same rows: each resample is drawn
+/// once and scored by every set, so each set's intervals are the ones its own call would give.
+pub(crate) fn shared_percentile_intervals(
+    n: usize,
+    resamples: usize,
+    level: f64,
+    seed: u64,
+    scorers: &[&Scorer],
+) -> Vec<BTreeMap<String, Interval>> {
     use rayon::prelude::*;
     let all: Vec<usize> = (0..n).collect();
-    let estimates: Vec<(String, f64)> = metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect();
-    let mut out = BTreeMap::new();
-    if n == 0 || resamples == 0 || estimates.is_empty() {
-        return out;
+    let estimates: Vec<Vec<(String, f64)>> =
+        scorers.iter().map(|metrics| metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect()).collect();
+    if n == 0 || resamples == 0 || estimates.iter().all(Vec::is_empty) {
+        return vec![BTreeMap::new(); scorers.len()];
     }
     let mut stream = Stream::new(seed, Purpose::Bootstrap);
-    let mut values: Vec<Vec<f64>> = vec![Vec::with_capacity(resamples); estimates.len()];
-    // Resamples are drawn in order from the one stream, then scored a batch at a time on the
-    // current rayon pool and kept in draw order: the same values whatever the thread count.
-    let batch = rayon::current_num_threads().max(1);
-    let mut drawn = 0;
-    while drawn < resamples {
-        let draws: Vec<Vec<usize>> =
-            (0..batch.min(resamples - drawn)).map(|_| (0..n).map(|_| stream.below(n as u64) as usize).collect()).collect();
-        drawn += draws.len();
-        let samples: Vec<MetricSet> = draws.par_iter().map(|idx| metrics(idx)).collect();
-        for sample in samples {
-            for ((name, _), v) in estimates.iter().zip(values.iter_mut()) {
-                if let Some(Some(x)) = sample.get(name) {
-                    v.push(*x);
+    let mut values: Vec<Vec<Vec<f64>>> = estimates.iter().map(|e| vec![Vec::with_capacity(resamples); e.len()]).collect();
+    // Resamples are drawn in order from the one stream and scored a batch at a time on the
+    // current rayon pool, kept in draw order: the same values whatever the thread count. The next
+    // batch is drawn while the current one is scored.
+    let batch = 2 * rayon::current_num_threads().max(1);
+    let mut draw = |count: usize| -> Vec<Vec<usize>> {
+        (0..count)
+            .map(|_| {
+                let mut idx = vec![0usize; n];
+                stream.fill_below(n as u64, &mut idx);
+                idx
+            })
+            .collect()
+    };
+    let mut current = draw(batch.min(resamples));
+    let mut drawn = current.len();
+    while !current.is_empty() {
+        let next_count = batch.min(resamples - drawn);
+        let (next, scored) = rayon::join(
+            || draw(next_count),
+            || current.par_iter().map(|idx| scorers.iter().map(|metrics| metrics(idx)).collect::<Vec<_>>()).collect::<Vec<_>>(),
+        );
+        drawn += next.len();
+        for per_scorer in scored {
+            for ((sample, names), v) in per_scorer.iter().zip(&estimates).zip(values.iter_mut()) {
+                for ((name, _), v) in names.iter().zip(v.iter_mut()) {
+                    if let Some(Some(x)) = sample.get(name) {
+                        v.push(*x);
+                    }
                 }
             }
         }
+        current = next;
     }
     let tail = (1.0 - level) / 2.0;
-    for ((name, estimate), mut v) in estimates.into_iter().zip(values) {
-        if v.is_empty() {
-            continue;
-        }
-        v.sort_by(f64::total_cmp);
-        out.insert(
-            name,
-            Interval { estimate, lower: quantile_sorted(&v, tail), upper: quantile_sorted(&v, 1.0 - tail), level, resamples: v.len() },
-        );
-    }
-    out
+    estimates
+        .into_iter()
+        .zip(values)
+        .map(|(names, values)| {
+            let mut out = BTreeMap::new();
+            for ((name, estimate), mut v) in names.into_iter().zip(values) {
+                if v.is_empty() {
+                    continue;
+                }
+                v.sort_by(f64::total_cmp);
+                out.insert(
+                    name,
+                    Interval {
+                        estimate,
+                        lower: quantile_sorted(&v, tail),
+                        upper: quantile_sorted(&v, 1.0 - tail),
+                        level,
+                        resamples: v.len(),
+                    },
+                );
+            }
+            out
+        })
+        .collect()
 }
 
 #[cfg(test)]

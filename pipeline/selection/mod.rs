@@ -17,7 +17,7 @@ use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
 use crate::manifest::{CalibrationSpec, DecisionSpec, SelectionRule, ThresholdRule};
-use crate::metrics::bootstrap::{percentile_intervals, Interval};
+use crate::metrics::bootstrap::{percentile_intervals, shared_percentile_intervals, Interval, Scorer};
 use crate::metrics::calibration::{class_table, reliability_bins, top_label_table, ReliabilityBin};
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::classification::{operating_point_at, youden_threshold};
@@ -469,12 +469,11 @@ pub(crate) fn evaluate_test(
             });
         }
     }
-    let scorer = ResampleScorer::new(head, &outputs, test_y);
-    let intervals = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| scorer.metrics(idx));
     let validation_y = inputs.validation.1;
     let decision = inputs.decision;
-    let chosen_threshold = match (test_y, validation_y) {
-        (Labels::Classes { rows, classes: 2 }, Labels::Classes { rows: val_rows, .. }) => {
+    // The deployed threshold (binary): chosen on the validation outputs, then the test rows decided.
+    let decided = match (test_y, validation_y) {
+        (Labels::Classes { classes: 2, .. }, Labels::Classes { rows: val_rows, .. }) => {
             let val_out = validation_outputs()?;
             let val_pos: Vec<bool> = val_rows.iter().map(|&y| y == 1).collect();
             let val_p: Vec<f64> = val_out.chunks_exact(2).map(|r| r[1]).collect();
@@ -484,25 +483,66 @@ pub(crate) fn evaluate_test(
             };
             point.map(|point| {
                 let predicted: Vec<usize> = outputs.chunks_exact(2).map(|r| (r[1] >= point.threshold) as usize).collect();
-                let metrics = if current {
-                    percentile_intervals(rows.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-                        let (accuracy, balanced_accuracy) = decision_metrics(rows, &predicted, 2, idx);
-                        MetricSet::from([("accuracy".to_string(), accuracy), ("balanced_accuracy".to_string(), balanced_accuracy)])
-                    })
-                } else {
-                    BTreeMap::new()
-                };
-                ThresholdReport {
-                    rule: decision.threshold,
-                    threshold: point.threshold,
-                    validation_tpr: point.true_positive_rate,
-                    validation_fpr: point.false_positive_rate,
-                    confusion: confusion_matrix(rows, &predicted, 2),
-                    per_class: per_class(rows, &predicted, 2),
-                    cost_false_positive: decision.cost_false_positive.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
-                    cost_false_negative: decision.cost_false_negative.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
-                    metrics,
-                }
+                (point, predicted)
+            })
+        }
+        _ => None,
+    };
+    let interval = match (test_y, validation_y) {
+        (Labels::Values(test_v), Labels::Values(val_v)) if current => {
+            let val_out = validation_outputs()?;
+            Some(fit_interval((&val_out, val_v), (&outputs, test_v), inputs.calibration.coverage())?)
+        }
+        _ => None,
+    };
+    // Every bootstrap of the whole test split (the deployed model's metrics, its decisions at the
+    // threshold, the uncalibrated outputs, the single run of an ensemble) scores the same
+    // resamples, each drawn once.
+    let scorer = ResampleScorer::new(head, &outputs, test_y);
+    let decision_scorer = |idx: &[usize]| -> MetricSet {
+        match (test_y, &decided) {
+            (Labels::Classes { rows, .. }, Some((_, predicted))) => {
+                let (accuracy, balanced_accuracy) = decision_metrics(rows, predicted, 2, idx);
+                MetricSet::from([("accuracy".to_string(), accuracy), ("balanced_accuracy".to_string(), balanced_accuracy)])
+            }
+            _ => MetricSet::new(),
+        }
+    };
+    let with_calibration = map.is_some() && matches!(test_y, Labels::Classes { .. });
+    let raw_scorer = with_calibration.then(|| ResampleScorer::new(head, &raw_outputs, test_y));
+    let before_scorer = |idx: &[usize]| -> MetricSet {
+        let mut m = raw_scorer.as_ref().map(|s| s.metrics(idx)).unwrap_or_default();
+        m.retain(|name, _| CALIBRATION_METRICS.contains(&name.as_str()));
+        m
+    };
+    let single_scorer = ensemble.then(|| ResampleScorer::new(head, &members[chosen].outputs, test_y));
+    let single = |idx: &[usize]| single_scorer.as_ref().map(|s| s.metrics(idx)).unwrap_or_default();
+    let main = |idx: &[usize]| scorer.metrics(idx);
+    let mut asked: Vec<&Scorer> = vec![&main];
+    if decided.is_some() && current {
+        asked.push(&decision_scorer);
+    }
+    if with_calibration {
+        asked.push(&before_scorer);
+    }
+    if ensemble {
+        asked.push(&single);
+    }
+    let mut found = shared_percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, &asked).into_iter();
+    let intervals = found.next().unwrap_or_default();
+    let chosen_threshold = match (test_y, decided) {
+        (Labels::Classes { rows, .. }, Some((point, predicted))) => {
+            let metrics = if current { found.next().unwrap_or_default() } else { BTreeMap::new() };
+            Some(ThresholdReport {
+                rule: decision.threshold,
+                threshold: point.threshold,
+                validation_tpr: point.true_positive_rate,
+                validation_fpr: point.false_positive_rate,
+                confusion: confusion_matrix(rows, &predicted, 2),
+                per_class: per_class(rows, &predicted, 2),
+                cost_false_positive: decision.cost_false_positive.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
+                cost_false_negative: decision.cost_false_negative.filter(|_| decision.threshold == ThresholdRule::ExpectedCost),
+                metrics,
             })
         }
         _ => None,
@@ -529,37 +569,19 @@ pub(crate) fn evaluate_test(
         Labels::Values(_) => (Vec::new(), Vec::new(), Vec::new(), Vec::new()),
     };
     let calibration = match (&map, test_y) {
-        (Some(map), Labels::Classes { rows, classes }) => {
-            let raw_scorer = ResampleScorer::new(head, &raw_outputs, test_y);
-            let before = percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| {
-                let mut m = raw_scorer.metrics(idx);
-                m.retain(|name, _| CALIBRATION_METRICS.contains(&name.as_str()));
-                m
-            });
-            Some(CalibrationReport {
-                map: map.clone(),
-                fitted_on: FITTED_ON_VALIDATION.into(),
-                rows: validation_y.len(),
-                before,
-                reliability_before: top_label_table(rows, &raw_outputs, *classes, 10),
-            })
-        }
-        _ => None,
-    };
-    let interval = match (test_y, validation_y) {
-        (Labels::Values(test_v), Labels::Values(val_v)) if current => {
-            let val_out = validation_outputs()?;
-            Some(fit_interval((&val_out, val_v), (&outputs, test_v), inputs.calibration.coverage())?)
-        }
+        (Some(map), Labels::Classes { rows, classes }) => Some(CalibrationReport {
+            map: map.clone(),
+            fitted_on: FITTED_ON_VALIDATION.into(),
+            rows: validation_y.len(),
+            before: found.next().unwrap_or_default(),
+            reliability_before: top_label_table(rows, &raw_outputs, *classes, 10),
+        }),
         _ => None,
     };
     let ensemble = ensemble.then(|| EnsembleReport {
         members: members.iter().map(|m| m.run_id.clone()).collect(),
         maps: members.iter().filter_map(|m| m.map.clone()).collect(),
-        single_run: {
-            let single = ResampleScorer::new(head, &members[chosen].outputs, test_y);
-            percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, |idx| single.metrics(idx))
-        },
+        single_run: found.next().unwrap_or_default(),
     });
     let test = TestEvaluation {
         run_id: selected_run.to_string(),
