@@ -16,6 +16,7 @@ use crate::metrics::bootstrap::quantile_sorted;
 use crate::metrics::registry::{direction, Direction};
 use crate::rng::{Purpose, Stream};
 use crate::selection::serving::Deployed;
+use crate::training::head::ResampleScorer;
 use crate::training::Labels;
 
 /// One raw feature's importance.
@@ -44,19 +45,27 @@ pub(crate) struct ImportanceReport {
     pub features: Vec<FeatureImportance>,
 }
 
-/// The metric of `outputs` (k per row) on the rows `idx`, oriented so that larger is better.
-fn oriented(head: &crate::training::Head, outputs: &[f64], y: &Labels, idx: &[usize], metric: &str, sign: f64) -> Option<f64> {
-    let k = head.values_per_row();
-    let sub: Vec<f64> = idx.iter().flat_map(|&i| outputs[i * k..(i + 1) * k].iter().copied()).collect();
-    let sub_y = match y {
-        Labels::Classes { rows, classes } => Labels::Classes { rows: idx.iter().map(|&i| rows[i]).collect(), classes: *classes },
-        Labels::Values(v) => Labels::Values(idx.iter().map(|&i| v[i]).collect()),
-    };
-    head.metrics(&sub, &sub_y).get(metric).copied().flatten().map(|v| sign * v)
+/// The metric of `outputs` (k per row) on all rows and on the resample `sample`, each oriented so
+/// that larger is better: from one prepared sample, with the bits of the metric on those rows.
+fn oriented(
+    head: crate::training::Head,
+    outputs: &[f64],
+    y: &Labels,
+    sample: &[usize],
+    metric: &str,
+    sign: f64,
+) -> (Option<f64>, Option<f64>) {
+    let scorer = ResampleScorer::new(head, outputs, y);
+    let all: Vec<usize> = (0..y.len()).collect();
+    let of = |idx: &[usize]| scorer.metrics(idx).get(metric).copied().flatten().map(|v| sign * v);
+    (of(&all), of(sample))
 }
 
 /// Permutation importance of every raw feature of `test_x` (whose columns follow `features`,
-/// each `(name, inputs)` in order) for `model` on the selection metric.
+/// each `(name, inputs)` in order) for `model` on the selection metric. Each repeat draws its
+/// resample and every feature's permutation from the stream in order, then scores the features
+/// in parallel on the current rayon pool, each on its own copy of the model: the same values on
+/// any number of threads.
 pub(crate) fn permutation_importance(
     model: &mut Deployed,
     test_x: &Matrix,
@@ -66,41 +75,53 @@ pub(crate) fn permutation_importance(
     repeats: usize,
     seed: u64,
 ) -> Result<Option<ImportanceReport>> {
+    use rayon::prelude::*;
     let head = model.head();
     let sign = if direction(task, metric) == Some(Direction::Minimise) { -1.0 } else { 1.0 };
     let n = test_x.rows;
-    let all: Vec<usize> = (0..n).collect();
     let base = model.score(test_x)?;
-    let Some(base_all) = oriented(&head, &base, test_y, &all, metric, sign) else { return Ok(None) };
     let mut stream = Stream::new(seed, Purpose::Permutation);
+    let offsets: Vec<usize> = features.iter().scan(0, |at, (_, width)| Some(std::mem::replace(at, *at + width))).collect();
     let mut losses: Vec<Vec<f64>> = vec![Vec::with_capacity(repeats); features.len()];
     let mut resampled: Vec<Vec<f64>> = vec![Vec::with_capacity(repeats); features.len()];
-    let mut permuted = test_x.clone();
+    let mut base_all = None;
     for _ in 0..repeats {
         let sample: Vec<usize> = (0..n).map(|_| stream.below(n as u64) as usize).collect();
-        let base_sample = oriented(&head, &base, test_y, &sample, metric, sign);
-        let mut first = 0;
-        for (f, (_, width)) in features.iter().enumerate() {
-            let mut order: Vec<usize> = (0..n).collect();
-            stream.shuffle(&mut order);
-            for (i, &from) in order.iter().enumerate() {
-                let (dst, src) = (i * test_x.cols + first, from * test_x.cols + first);
-                permuted.data[dst..dst + width].copy_from_slice(&test_x.data[src..src + width]);
+        let (all, base_sample) = oriented(head, &base, test_y, &sample, metric, sign);
+        let Some(all) = all else { return Ok(None) };
+        base_all = Some(all);
+        let orders: Vec<Vec<usize>> = features
+            .iter()
+            .map(|_| {
+                let mut order: Vec<usize> = (0..n).collect();
+                stream.shuffle(&mut order);
+                order
+            })
+            .collect();
+        let scored: Vec<(Option<f64>, Option<f64>)> = features
+            .par_iter()
+            .zip(&offsets)
+            .zip(&orders)
+            .map(|(((_, width), &first), order)| -> Result<(Option<f64>, Option<f64>)> {
+                let mut permuted = test_x.clone();
+                for (i, &from) in order.iter().enumerate() {
+                    let (dst, src) = (i * test_x.cols + first, from * test_x.cols + first);
+                    permuted.data[dst..dst + width].copy_from_slice(&test_x.data[src..src + width]);
+                }
+                let outputs = model.clone().score(&permuted)?;
+                Ok(oriented(head, &outputs, test_y, &sample, metric, sign))
+            })
+            .collect::<Result<_>>()?;
+        for (f, (v, r)) in scored.into_iter().enumerate() {
+            if let Some(v) = v {
+                losses[f].push(all - v);
             }
-            let outputs = model.score(&permuted)?;
-            for i in 0..n {
-                let at = i * test_x.cols + first;
-                permuted.data[at..at + width].copy_from_slice(&test_x.data[at..at + width]);
+            if let (Some(b), Some(r)) = (base_sample, r) {
+                resampled[f].push(b - r);
             }
-            if let Some(v) = oriented(&head, &outputs, test_y, &all, metric, sign) {
-                losses[f].push(base_all - v);
-            }
-            if let (Some(b), Some(v)) = (base_sample, oriented(&head, &outputs, test_y, &sample, metric, sign)) {
-                resampled[f].push(b - v);
-            }
-            first += width;
         }
     }
+    let Some(base_all) = base_all else { return Ok(None) };
     let mut out: Vec<FeatureImportance> = features
         .iter()
         .zip(losses)

@@ -12,6 +12,7 @@ use crate::rng::{Purpose, Stream};
 use crate::store::run::StoredRun;
 use crate::training::{Head, TargetScaling};
 
+#[derive(Clone)]
 pub(crate) struct ScoringModel {
     pub head: Head,
     pub preprocessor: Preprocessor,

@@ -12,6 +12,7 @@ use crate::training::Head;
 /// The deployed model: the selected run through its calibration map, or a seed ensemble's members
 /// each through its own, averaged as `derive` averages them, so its outputs on the test rows are
 /// the stored test predictions bit for bit.
+#[derive(Clone)]
 pub(crate) struct Deployed {
     members: Vec<(ScoringModel, Option<CalibrationMap>)>,
 }

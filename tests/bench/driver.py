@@ -296,7 +296,15 @@ def whole_command_memory(report, w, rows, cols, jobs="2", keep=False):
     timing = [os.path.join(results, d, "timing.json") for d in os.listdir(results) if os.path.isdir(os.path.join(results, d))]
     with open(timing[0]) as f:
         record = json.load(f)
-    phases = ", ".join(f"{p['name']} {p['seconds']:.1f} s" for p in record.get("phases", []))
+    top = [p for p in record.get("phases", []) if not p.get("within")]
+
+    def described(p):
+        parts = [q for q in record.get("phases", []) if q.get("within") == p["name"]]
+        listed = ", ".join("%s %.1f s" % (q["name"], q["seconds"]) for q in parts)
+        inside = f" ({listed})" if parts else ""
+        return f"{p['name']} {p['seconds']:.1f} s{inside}"
+
+    phases = ", ".join(described(p) for p in top)
     report(f"     where the time goes: {phases} (the timing record's wall time, {record['wall_seconds']:.1f} s, ends before the card is written)")
     if not keep:
         os.remove(data)
