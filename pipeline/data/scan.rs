@@ -99,12 +99,26 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
     let mut constant: std::collections::HashSet<&str> = std::collections::HashSet::new();
     let mut crossings: HashMap<&str, KeyCrossing> = HashMap::new();
     let per_read = super::source::columns_per_read(rows, rayon::current_num_threads());
-    for window in names.chunks(per_read) {
-        let wanted: Vec<&str> = window.iter().map(String::as_str).collect();
-        let columns = source.columns(&wanted)?;
-        let (_, findings) = rayon::join(
-            || columns.iter().for_each(|col| hasher.add(col)),
-            || columns.par_iter().map(|col| findings_of(col, &roles, &keys, &splits, file)).collect::<Vec<_>>(),
+    let windows: Vec<&[String]> = names.chunks(per_read).collect();
+    let read = |window: Option<&&[String]>| -> Result<Vec<_>> {
+        match window {
+            Some(window) => source.columns(&window.iter().map(String::as_str).collect::<Vec<_>>()),
+            None => Ok(Vec::new()),
+        }
+    };
+    // The next window is read (one read at a time, in table order) while this one is hashed and
+    // examined.
+    let mut next = read(windows.first())?;
+    for (i, window) in windows.iter().enumerate() {
+        let columns = std::mem::take(&mut next);
+        let (read_next, (_, findings)) = rayon::join(
+            || read(windows.get(i + 1)),
+            || {
+                rayon::join(
+                    || columns.iter().for_each(|col| hasher.add(col)),
+                    || columns.par_iter().map(|col| findings_of(col, &roles, &keys, &splits, file)).collect::<Vec<_>>(),
+                )
+            },
         );
         for (name, found) in window.iter().zip(findings) {
             let found = found?;
@@ -119,6 +133,8 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
             }
             summaries.push(found.summary);
         }
+        // After this window's findings, so that the first error in table order is reported.
+        next = read_next?;
     }
 
     // Then the rows, a chunk at a time, for their digests over the features and the target.
@@ -128,8 +144,9 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
         digests.extend(leakage::row_digests(chunk, &roles));
         Ok(())
     })?;
-    let (test_rows_duplicating_training, validation_rows_duplicating_training) = leakage::rows_duplicating_training(&splits, &digests);
-    let mut summary = assemble(rows, summaries, &roles, &target, leakage::duplicate_rows(&digests));
+    let ((test_rows_duplicating_training, validation_rows_duplicating_training), duplicates) =
+        rayon::join(|| leakage::rows_duplicating_training(&splits, &digests), || leakage::duplicate_rows(&digests));
+    let mut summary = assemble(rows, summaries, &roles, &target, duplicates);
     drop(digests);
     summary.split_checks = Some(SplitChecks {
         test_rows_duplicating_training,

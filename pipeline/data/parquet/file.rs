@@ -17,6 +17,21 @@ use crate::error::{Error, Result};
 /// holding the whole decoded table. The file stays open, so a file replaced by rename between two
 /// reads is still read as it was; a file changed in place (length or modification time) is an
 /// error, never silently mixed.
+/// A reader of the open file from a position of its own: positioned reads leave the file's shared
+/// offset alone, so the whole-file hash can run beside the column reads of the first pass.
+struct Positioned<'a> {
+    file: &'a std::fs::File,
+    at: u64,
+}
+
+impl std::io::Read for Positioned<'_> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = std::os::unix::fs::FileExt::read_at(self.file, buf, self.at)?;
+        self.at += n as u64;
+        Ok(n)
+    }
+}
+
 pub struct ParquetSource {
     path: std::path::PathBuf,
     file: std::fs::File,
@@ -57,11 +72,7 @@ impl ParquetSource {
 
     /// SHA-256 of the file's bytes, read through the handle every later read uses, and its length.
     pub fn file_sha256(&self) -> Result<(String, u64)> {
-        use std::io::Seek;
-        let io = |e| Error::io(&self.path, "read the data file", e);
-        let mut file = self.file.try_clone().map_err(io)?;
-        file.rewind().map_err(io)?;
-        let (digest, bytes) = crate::fingerprint::reader_sha256(file, &self.path)?;
+        let (digest, bytes) = crate::fingerprint::reader_sha256(Positioned { file: &self.file, at: 0 }, &self.path)?;
         if bytes != self.identity.0 {
             return Err(self.changed());
         }
