@@ -2,6 +2,7 @@
 //! target, the data summary, the split and what it lets through, and preprocessing; `scan` is the
 //! first pass over a file, one column (or one chunk of rows) at a time.
 
+pub(crate) mod bins;
 pub(crate) mod csv;
 pub mod leakage;
 pub(crate) mod order;

@@ -9,6 +9,7 @@ use rayon::prelude::*;
 use std::collections::HashMap;
 use std::path::Path;
 
+use super::bins::{binned_training_column, BinnedColumn};
 use super::leakage::{self, KeyCrossing, SplitChecks};
 use super::prep::{fit_feature, InputEncoding, Preprocessor};
 use super::roles::{check_feature, encode_target, resolve_names, Roles, Target};
@@ -32,13 +33,16 @@ pub(crate) struct Scan {
     pub splits: Splits,
     /// Fitted on the training rows.
     pub preprocessor: Preprocessor,
+    /// Every input's bins and counts on the training rows, in input order: the features of the
+    /// monitoring profile (`bins.rs`), binned while each column is in memory.
+    pub training_profile: Vec<BinnedColumn>,
 }
 
 /// What one column contributes.
 struct Findings {
     summary: ColumnSummary,
-    /// Features only.
-    encoding: Option<InputEncoding>,
+    /// Features only, with its bins on the training rows.
+    encoding: Option<(InputEncoding, BinnedColumn)>,
     constant_on_training: bool,
     /// Key columns only, when a value repeats.
     crossing: Option<KeyCrossing>,
@@ -55,7 +59,9 @@ fn findings_of(col: &Column, roles: &Roles, keys: &[String], splits: &Splits, fi
     if let Some(f) = feature {
         check_feature(col, file)?;
         found.constant_on_training = leakage::constant_on_training(col, &splits.train);
-        found.encoding = Some(fit_feature(col, f, &splits.train, file)?);
+        let encoding = fit_feature(col, f, &splits.train, file)?;
+        let binned = binned_training_column(&encoding, col, &splits.train);
+        found.encoding = Some((encoding, binned));
     }
     if keys.contains(&col.name) {
         found.crossing = leakage::key_crossing(col, splits);
@@ -95,7 +101,7 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
     let keys = leakage::key_columns(&roles);
     let mut hasher = ContentHasher::new(rows, names.len());
     let mut summaries = Vec::with_capacity(names.len());
-    let mut encodings: HashMap<&str, InputEncoding> = HashMap::new();
+    let mut encodings: HashMap<&str, (InputEncoding, BinnedColumn)> = HashMap::new();
     let mut constant: std::collections::HashSet<&str> = std::collections::HashSet::new();
     let mut crossings: HashMap<&str, KeyCrossing> = HashMap::new();
     let per_read = super::source::columns_per_read(rows, rayon::current_num_threads());
@@ -155,11 +161,13 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
         constant_on_training: roles.features.iter().filter(|f| constant.contains(&f.name.as_str())).map(|f| f.name.clone()).collect(),
         repeated_keys: keys.iter().filter_map(|k| crossings.remove(k.as_str())).collect(),
     });
-    let inputs = roles
+    let (inputs, training_profile): (Vec<InputEncoding>, Vec<BinnedColumn>) = roles
         .features
         .iter()
-        .map(|f| encodings.get(f.name.as_str()).cloned().ok_or_else(|| Error::data(file, Some(&f.name), "is not in the file")))
-        .collect::<Result<Vec<_>>>()?;
+        .map(|f| encodings.remove(f.name.as_str()).ok_or_else(|| Error::data(file, Some(&f.name), "is not in the file")))
+        .collect::<Result<Vec<_>>>()?
+        .into_iter()
+        .unzip();
     Ok(Scan {
         rows,
         columns: names.len(),
@@ -169,5 +177,6 @@ fn scan_in(m: &Manifest, source: &(dyn ColumnSource + Sync)) -> Result<Scan> {
         summary,
         splits,
         preprocessor: Preprocessor::from_inputs(inputs),
+        training_profile,
     })
 }

@@ -89,6 +89,9 @@ pub struct Experiment {
     pub splits: Splits,
     /// Fitted on the training rows.
     pub preprocessor: Preprocessor,
+    /// Every input's bins and counts on the training rows (the monitoring profile's features),
+    /// from the first pass.
+    pub(crate) training_profile: Vec<crate::data::bins::BinnedColumn>,
     /// Manifest keys the grid overrides, for `check` and `train` to report.
     pub overridden_by_grid: Vec<String>,
     /// SHA-256 of the three row lists' JSON, hashed once (the lists hold every row).
@@ -168,6 +171,7 @@ pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Expe
         summary: scanned.summary,
         splits: scanned.splits,
         preprocessor: scanned.preprocessor,
+        training_profile: scanned.training_profile,
         overridden_by_grid: loaded.overridden_by_grid,
         split_sha256: String::new(),
         run_inputs_sha256: String::new(),
