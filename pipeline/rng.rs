@@ -24,6 +24,8 @@ pub enum Purpose {
     Permutation,
     /// The sample of test rows the heavier analyses after training compute on (`analysis/sample.rs`).
     AnalysisRows,
+    /// The sample of training rows the threshold reference row is chosen from (`analysis/sample.rs`).
+    ReferenceRows,
 }
 
 impl Purpose {
@@ -39,6 +41,7 @@ impl Purpose {
             Purpose::GroupBootstrap => "group-bootstrap",
             Purpose::Permutation => "permutation",
             Purpose::AnalysisRows => "analysis-rows",
+            Purpose::ReferenceRows => "reference-rows",
         }
     }
 }

@@ -40,6 +40,10 @@ pub(crate) struct References {
     /// Binary models only.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub threshold: Option<ThresholdReference>,
+    /// How many training rows the threshold reference was chosen from, when a sample of them
+    /// (results layout 9 on, `analysis/sample.rs`); the median row always uses every row.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub threshold_sampled_rows: Option<usize>,
 }
 
 /// Whether each encoded input is an indicator (0 or 1): one-hot levels, the unseen bucket and

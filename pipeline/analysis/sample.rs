@@ -19,12 +19,38 @@ pub(crate) const SAMPLED_FROM: u32 = 8;
 /// Positions in the test split (increasing) that the heavier analyses of a folder of layout
 /// `layout_version` compute on, for a test split of `test_rows` rows and the experiment's `seed`.
 pub(crate) fn positions(test_rows: usize, seed: u64, layout_version: u32) -> Vec<usize> {
-    let mut order: Vec<usize> = (0..test_rows).collect();
-    if test_rows <= MAX_ROWS || layout_version < SAMPLED_FROM {
+    if layout_version < SAMPLED_FROM {
+        return (0..test_rows).collect();
+    }
+    drawn(test_rows, MAX_ROWS, Stream::new(seed, Purpose::AnalysisRows))
+}
+
+/// The most training rows the threshold reference row is chosen from (results layout 9 on): the
+/// reference averages the few rows scored just above the deployed threshold, and scoring every
+/// training row of a large table for it cost seconds per million rows.
+pub(crate) const MAX_REFERENCE_ROWS: usize = 100_000;
+
+/// The first results layout whose threshold reference is chosen from a sample of training rows.
+pub(crate) const REFERENCE_SAMPLED_FROM: u32 = 9;
+
+/// Positions in the training split (increasing) the threshold reference of a folder of layout
+/// `layout_version` is chosen from: `None` for every row (up to [`MAX_REFERENCE_ROWS`], or an
+/// older layout), else a sample of that many drawn without replacement from the experiment's
+/// `reference-rows` stream.
+pub(crate) fn reference_positions(training_rows: usize, seed: u64, layout_version: u32) -> Option<Vec<usize>> {
+    (training_rows > MAX_REFERENCE_ROWS && layout_version >= REFERENCE_SAMPLED_FROM)
+        .then(|| drawn(training_rows, MAX_REFERENCE_ROWS, Stream::new(seed, Purpose::ReferenceRows)))
+}
+
+/// `0..len` when it holds at most `at_most`, else `at_most` of them drawn without replacement
+/// from `stream`, increasing.
+fn drawn(len: usize, at_most: usize, mut stream: Stream) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..len).collect();
+    if len <= at_most {
         return order;
     }
-    Stream::new(seed, Purpose::AnalysisRows).shuffle(&mut order);
-    order.truncate(MAX_ROWS);
+    stream.shuffle(&mut order);
+    order.truncate(at_most);
     order.sort_unstable();
     order
 }
@@ -34,15 +60,27 @@ pub(crate) fn rows(test: &[usize], positions: &[usize]) -> Vec<usize> {
     positions.iter().map(|&p| test[p]).collect()
 }
 
-/// The rows at `positions` of the encoded test matrix `test_x`, in that order.
-pub(crate) fn matrix_rows(test_x: &Matrix, positions: &[usize]) -> Matrix {
-    let data = positions.iter().flat_map(|&p| test_x.row(p).iter().copied()).collect();
-    Matrix { rows: positions.len(), cols: test_x.cols, data }
+/// The rows at `positions` of the encoded matrix `x`, in that order.
+pub(crate) fn matrix_rows(x: &Matrix, positions: &[usize]) -> Matrix {
+    let data = positions.iter().flat_map(|&p| x.row(p).iter().copied()).collect();
+    Matrix { rows: positions.len(), cols: x.cols, data }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_threshold_reference_samples_large_training_splits_from_layout_9() {
+        assert_eq!(reference_positions(MAX_REFERENCE_ROWS, 1, 9), None);
+        assert_eq!(reference_positions(MAX_REFERENCE_ROWS + 1, 1, 8), None, "layout 8 chose among every row");
+        let a = reference_positions(250_000, 5, 9).unwrap();
+        assert_eq!(a.len(), MAX_REFERENCE_ROWS);
+        assert!(a.windows(2).all(|w| w[0] < w[1]) && *a.last().unwrap() < 250_000);
+        assert_eq!(Some(&a), reference_positions(250_000, 5, 9).as_ref(), "seeded");
+        // Its own stream: not the test rows' sample of the same length and seed.
+        assert_ne!(a[..MAX_ROWS], positions(250_000, 5, 9)[..]);
+    }
 
     #[test]
     fn small_splits_and_older_layouts_keep_every_row_and_large_ones_a_seeded_sample() {

@@ -108,14 +108,18 @@ fn derive_here(
     let k = model.head().values_per_row();
     let inputs = &exp.preprocessor.inputs;
     let median = median_row(train_x, &indicator_inputs(inputs));
+    let reference_positions = super::sample::reference_positions(train_x.rows, m.split.seed, layout_version);
     let threshold = match task {
         Task::Binary => {
             let t = derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value;
-            let scores: Vec<f64> = model.score(train_x)?.chunks_exact(k).map(|r| r[1]).collect();
-            Some(threshold_row(train_x, &scores, t, analysis.reference_rows()))
+            let sampled = reference_positions.as_ref().map(|p| super::sample::matrix_rows(train_x, p));
+            let from = sampled.as_ref().unwrap_or(train_x);
+            let scores: Vec<f64> = model.score(from)?.chunks_exact(k).map(|r| r[1]).collect();
+            Some(threshold_row(from, &scores, t, analysis.reference_rows()))
         }
         _ => None,
     };
+    let threshold_sampled_rows = threshold.as_ref().and(reference_positions.as_ref()).map(Vec::len);
     let outputs: Vec<f64> = positions.iter().flat_map(|&p| derived.test_outputs[p * k..(p + 1) * k].iter().copied()).collect();
     let classes = explained_classes(task, &outputs, k);
     let shifts = super::shifts::table(&mut model, task, inputs, &test_x, &classes)?;
@@ -176,7 +180,7 @@ fn derive_here(
     let curves = super::curves::curves(&mut model, task, inputs, &test_x, &chosen, &training_column)?;
     Ok(SensitivityReport {
         curves,
-        references: References { median, threshold },
+        references: References { median, threshold, threshold_sampled_rows },
         target_std: if task == Task::Regression { model.target_std() } else { None },
         shifts,
         attributions,

@@ -19,11 +19,12 @@ use crate::error::{Error, Result};
 /// (`experiment.json`'s `run_inputs_sha256` with each run's settings and seed) rather than by the
 /// experiment fingerprint, so a run folder may be a copy of another experiment's identical run,
 /// and its heavier analyses (importance, sensitivity) use at most 10,000 test rows, a seeded
-/// sample above that (`analysis/sample.rs`).
-pub const FORMAT_VERSION: u32 = 8;
+/// sample above that (`analysis/sample.rs`). Version 9 chooses the threshold reference row from
+/// at most 100,000 training rows, a seeded sample above that (`analysis/sample.rs`).
+pub const FORMAT_VERSION: u32 = 9;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7, 8];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7, 8, 9];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]

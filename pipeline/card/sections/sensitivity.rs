@@ -73,13 +73,16 @@ pub(crate) fn sensitivity(st: &StoredResults, curve_figures: &crate::card::figur
     let a = &s.attributions;
     let threshold = match &s.references.threshold {
         Some(ThresholdReference::Available { threshold, rows, highest_score, .. }) => format!(
-            " `predict --reasons --reference threshold` measures from the mean of the {rows} training rows scored at or just above the deployed threshold {} (up to {}; the comparison US Regulation B's official comment 9(b)(2)-5 describes).",
+            " `predict --reasons --reference threshold` measures from the mean of the {rows} training rows{} scored at or just above the deployed threshold {} (up to {}; the comparison US Regulation B's official comment 9(b)(2)-5 describes).",
+            s.references.threshold_sampled_rows.map(|n| format!(", among a seeded sample of {n} of the training rows,")).unwrap_or_default(),
             sig(*threshold, 4),
             sig(*highest_score, 4)
         ),
-        Some(ThresholdReference::Unavailable { reason }) => {
-            format!(" There is no threshold reference: {} (band {THRESHOLD_BAND}).", md(reason))
-        }
+        Some(ThresholdReference::Unavailable { reason }) => format!(
+            " There is no threshold reference: {} (band {THRESHOLD_BAND}{}).",
+            md(reason),
+            s.references.threshold_sampled_rows.map(|n| format!("; among a seeded sample of {n} of the training rows")).unwrap_or_default()
+        ),
         None => String::new(),
     };
     let summary = format!(
