@@ -243,13 +243,13 @@ fn input_gradients_match_autograd(model_spec: ModelSpec, outputs: usize) {
     let autograd = objective.backward().unwrap().get(x.as_tensor()).unwrap().flatten_all().unwrap().to_vec1::<f64>().unwrap();
 
     let mut exact = Engine::<f64>::from_model(&model, n).unwrap();
-    let (_, mine) = exact.input_gradients(&matrix, &mut |_, g| g.copy_from_slice(&weights));
+    let (_, mine) = exact.input_gradients(&matrix, &|_, _, g| g.copy_from_slice(&weights));
     let mut model32 = Mlp::new(&model_spec, d, outputs, &mut Stream::new(3, Purpose::Init), DType::F32).unwrap();
     let values32: Vec<(String, Vec<f32>)> = trainer.values().into_iter().map(|(k, v)| (k, v.iter().map(|&x| x as f32).collect())).collect();
     model32.set_host_values(&values32).unwrap();
     let mut single = Engine::<f32>::from_model(&model32, n).unwrap();
     let weights32: Vec<f32> = weights.iter().map(|&v| v as f32).collect();
-    let (_, mine32) = single.input_gradients(&matrix, &mut |_, g| g.copy_from_slice(&weights32));
+    let (_, mine32) = single.input_gradients(&matrix, &|_, _, g| g.copy_from_slice(&weights32));
     assert_eq!(mine.len(), autograd.len());
     for (i, ((a, b), c)) in mine.iter().zip(&autograd).zip(&mine32).enumerate() {
         assert!(
@@ -477,4 +477,33 @@ fn a_diverging_run_is_reported_with_its_epoch_and_no_model() {
         other => panic!("expected divergence, got {other:?}"),
     }
     assert!(r.tensors.is_empty());
+}
+
+/// Scoring and input gradients on a pool send runs of whole blocks to its threads, each on a copy
+/// of the engine: on 2, 3 and 4 threads the outputs and gradients are those of one thread, bit for
+/// bit, and each row's output weights see the row's own index (here, the weight is the index).
+#[test]
+fn evaluation_and_input_gradients_on_a_pool_equal_one_thread() {
+    let (n, d) = (3001, 32);
+    let mut s = Stream::new(5, Purpose::InputNoise);
+    let matrix = Matrix { rows: n, cols: d, data: (0..n * d).map(|_| s.normal() as f32).collect() };
+    let model_spec = ModelSpec { batch_norm: true, ..spec(vec![64, 64], Activation::Relu) };
+    let model = Mlp::new(&model_spec, d, 2, &mut Stream::new(3, Purpose::Init), DType::F32).unwrap();
+    let weights = |row: usize, _: &[f32], g: &mut [f32]| {
+        g[0] = row as f32;
+        g[1] = -1.0;
+    };
+    let alone = Engine::<f32>::from_model(&model, 256).unwrap().evaluate(&matrix);
+    let (logits, gradients) = Engine::<f32>::from_model(&model, 256).unwrap().input_gradients(&matrix, &weights);
+    assert_eq!(logits, alone);
+    for threads in 2..=4 {
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+        let (spread, spread_gradients) = pool.install(|| {
+            let mut engine = Engine::<f32>::from_model(&model, 256).unwrap();
+            (engine.evaluate(&matrix), engine.input_gradients(&matrix, &weights).1)
+        });
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&spread), bits(&alone), "{threads} threads: outputs");
+        assert_eq!(bits(&spread_gradients), bits(&gradients), "{threads} threads: input gradients");
+    }
 }

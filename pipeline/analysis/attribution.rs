@@ -163,11 +163,7 @@ fn integrate(
                 }
             }
         }
-        let mut point = 0usize;
-        let (_, gradients) = model.input_gradients(&points, &mut |z, g| {
-            explained.seed(z, classes[chunk[point / points_per_row]], g);
-            point += 1;
-        });
+        let (_, gradients) = model.input_gradients(&points, &|point, z, g| explained.seed(z, classes[chunk[point / points_per_row]], g));
         for (i, &r) in chunk.iter().enumerate() {
             let at = (chunk_index * per_call + i) * d;
             let (f, c) = (&mut fine[at..at + d], &mut coarse[at..at + d]);

@@ -111,6 +111,9 @@ fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) ->
 /// Named host values of every parameter and running statistic ([`Engine::values`]).
 pub type Values<T> = Vec<(String, Vec<T>)>;
 
+/// Sets the weights of one row's outputs for [`Engine::input_gradients`]: `(row, outputs, weights)`.
+pub type OutputWeights<'a, T> = dyn Fn(usize, &[T], &mut [T]) + Sync + 'a;
+
 /// Rows per block in evaluation mode. Fixed, so that a row's outputs never depend on how many
 /// rows were scored with it (training-time validation and `predict` give the same bits).
 pub const EVAL_BLOCK: usize = 256;
@@ -296,12 +299,38 @@ impl<T: Real> Engine<T> {
     /// (for instance 1 on the one logit of a binary head), and the row's gradient is that of
     /// sum_j weight_j output_j with respect to its inputs. Returns (outputs, rows x outputs;
     /// gradients, rows x inputs) in the engine's precision. Parameter gradients are not touched.
-    pub fn input_gradients(&mut self, x: &Matrix, seed: &mut dyn FnMut(&[T], &mut [T])) -> (Vec<T>, Vec<T>) {
+    /// On a pool's thread, runs of whole blocks go to the pool's threads as in
+    /// [`Engine::evaluate`], each on a copy of the engine: the same bits as one thread. `seed`
+    /// is given each row's index in `x`.
+    pub fn input_gradients(&mut self, x: &Matrix, seed: &OutputWeights<'_, T>) -> (Vec<T>, Vec<T>) {
+        use rayon::prelude::*;
         assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
+        let blocks = x.rows.div_ceil(EVAL_BLOCK);
+        let per_row: usize = self.layers.iter().map(|l| l.inputs * l.outputs).sum();
+        let threads = super::spread::threads_here().min(blocks);
+        if threads < 2 || 2 * EVAL_BLOCK * per_row < super::spread::piece_work() {
+            return self.input_gradients_rows(&x.data, x.rows, 0, seed);
+        }
+        let run_rows = blocks.div_ceil(threads) * EVAL_BLOCK;
+        let runs: Vec<&[f32]> = x.data.chunks(run_rows * self.inputs).collect();
+        let mut engines: Vec<Engine<T>> = runs.iter().map(|_| self.clone()).collect();
+        let parts: Vec<(Vec<T>, Vec<T>)> = runs
+            .par_iter()
+            .zip(engines.par_iter_mut())
+            .enumerate()
+            .map(|(i, (rows, engine))| engine.input_gradients_rows(rows, rows.len() / engine.inputs, i * run_rows, seed))
+            .collect();
+        let (outputs, gradients): (Vec<Vec<T>>, Vec<Vec<T>>) = parts.into_iter().unzip();
+        (outputs.concat(), gradients.concat())
+    }
+
+    /// [`Engine::input_gradients`] of `rows` rows of `data`, the first being row `first` of the
+    /// whole, on this thread.
+    fn input_gradients_rows(&mut self, data: &[f32], rows: usize, first: usize, seed: &OutputWeights<'_, T>) -> (Vec<T>, Vec<T>) {
         let k = self.layers.last().map_or(0, |l| l.outputs);
         let d = self.inputs;
-        let mut outputs = Vec::with_capacity(x.rows * k);
-        let mut gradients = Vec::with_capacity(x.rows * d);
+        let mut outputs = Vec::with_capacity(rows * k);
+        let mut gradients = Vec::with_capacity(rows * d);
         let eps = T::narrow(BN_EPS);
         // d/dz of gamma (z - mean) / std + beta, per batch-norm layer.
         let running_std: Vec<Option<Vec<T>>> =
@@ -312,17 +341,17 @@ impl<T: Real> Engine<T> {
             .zip(&running_std)
             .map(|(l, std)| l.norm.as_ref().zip(std.as_ref()).map(|(n, s)| n.gamma.iter().zip(s).map(|(&g, &s)| g / s).collect()))
             .collect();
-        for start in (0..x.rows).step_by(EVAL_BLOCK) {
-            let b = (x.rows - start).min(EVAL_BLOCK);
-            for (v, &s) in self.input[..b * d].iter_mut().zip(&x.data[start * d..(start + b) * d]) {
+        for start in (0..rows).step_by(EVAL_BLOCK) {
+            let b = (rows - start).min(EVAL_BLOCK);
+            for (v, &s) in self.input[..b * d].iter_mut().zip(&data[start * d..(start + b) * d]) {
                 *v = T::narrow(f64::from(s));
             }
             self.walk_layers(b, Pass::Evaluation { running_std: &running_std });
             if let Some(head) = self.layers.last() {
                 let logits = &head.out[..b * k];
                 outputs.extend_from_slice(logits);
-                for (row, g) in logits.chunks_exact(k).zip(self.grad_out[..b * k].chunks_exact_mut(k)) {
-                    seed(row, g);
+                for (i, (row, g)) in logits.chunks_exact(k).zip(self.grad_out[..b * k].chunks_exact_mut(k)).enumerate() {
+                    seed(first + start + i, row, g);
                 }
             }
             for l in (0..self.layers.len()).rev() {

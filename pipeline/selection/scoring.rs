@@ -59,8 +59,8 @@ impl ScoringModel {
 
 impl ScoringModel {
     /// Evaluation-mode raw outputs and input gradients of every row of `x`, the gradient of the
-    /// outputs weighted by `seed` per row ([`Engine::input_gradients`]).
-    pub(crate) fn input_gradients(&mut self, x: &Matrix, seed: &mut dyn FnMut(&[f32], &mut [f32])) -> (Vec<f32>, Vec<f32>) {
+    /// outputs weighted by `seed(row, outputs, weights)` per row ([`Engine::input_gradients`]).
+    pub(crate) fn input_gradients(&mut self, x: &Matrix, seed: &crate::nn::engine::OutputWeights<'_, f32>) -> (Vec<f32>, Vec<f32>) {
         crate::numerics::prepare_process();
         self.engine.input_gradients(x, seed)
     }
