@@ -18,6 +18,11 @@ pub fn limit_to(threads: usize) {
     LIMIT.store(threads.max(1), Ordering::Relaxed);
 }
 
+/// The threads the process may use at once: the cores, capped by [`limit_to`].
+pub fn allowed() -> usize {
+    std::thread::available_parallelism().map_or(1, |n| n.get()).min(LIMIT.load(Ordering::Relaxed)).max(1)
+}
+
 /// The share of the memory still available that a helper pool's working copies may take.
 const HELPER_MEMORY_SHARE: u64 = 4;
 
@@ -26,10 +31,9 @@ const HELPER_MEMORY_SHARE: u64 = 4;
 /// available ([`crate::memory::available_bytes`]; no memory cap where the system does not say);
 /// `what` names the work in the error when threads cannot start.
 pub fn helper_pool(bytes_per_thread: u64, what: &str) -> Result<rayon::ThreadPool> {
-    let available = std::thread::available_parallelism().map_or(1, |n| n.get());
     let by_memory = crate::memory::available_bytes()
         .map_or(usize::MAX, |bytes| usize::try_from(bytes / HELPER_MEMORY_SHARE / bytes_per_thread.max(1)).unwrap_or(usize::MAX));
-    let threads = available.min(LIMIT.load(Ordering::Relaxed)).min(by_memory).max(1);
+    let threads = allowed().min(by_memory).max(1);
     rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()

@@ -142,15 +142,20 @@ pub fn open_loaded(loaded: LoadedManifest) -> Result<Experiment> {
 /// As [`open_loaded`], with the data file given explicitly (verification of stored results).
 pub fn open_with_data(loaded: LoadedManifest, data_path: PathBuf) -> Result<Experiment> {
     let source = ParquetSource::open(&data_path)?;
-    // The file's hash on a thread of its own while the first pass reads its columns (each read
-    // positioned, so neither moves the other's place in the file).
-    let (hashed, scanned) = std::thread::scope(|scope| {
-        let hashing = scope.spawn(|| source.file_sha256());
-        let scanned = scan(&loaded.manifest, &source);
-        (hashing.join(), scanned)
-    });
-    let (file_hash, bytes) = hashed.map_err(|_| crate::error::Error::Internal("the file hash stopped".into()))??;
-    let scanned = scanned?;
+    // Where more than one thread is allowed, the file's hash runs on a thread of its own while the
+    // first pass reads the columns (each read positioned, so neither moves the other's place).
+    let (file_hash, bytes, scanned) = if crate::threads::allowed() > 1 {
+        let (hashed, scanned) = std::thread::scope(|scope| {
+            let hashing = scope.spawn(|| source.file_sha256());
+            let scanned = scan(&loaded.manifest, &source);
+            (hashing.join(), scanned)
+        });
+        let (file_hash, bytes) = hashed.map_err(|_| crate::error::Error::Internal("the file hash stopped".into()))??;
+        (file_hash, bytes, scanned?)
+    } else {
+        let (file_hash, bytes) = source.file_sha256()?;
+        (file_hash, bytes, scan(&loaded.manifest, &source)?)
+    };
     let manifest_sha256 = manifest::canonical_hash(&loaded.manifest);
     let content = scanned.content_sha256;
     let fingerprint = experiment_fingerprint(&manifest_sha256, &content, TOOL_VERSION);
