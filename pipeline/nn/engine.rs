@@ -251,24 +251,40 @@ impl<T: Real> Engine<T> {
     /// pool's thread, runs of whole blocks go to the pool's threads, each on a copy of the engine:
     /// a row's outputs never depend on the rows scored with it, so the bits are those of one thread.
     pub fn evaluate(&mut self, x: &Matrix) -> Vec<f32> {
+        let per_row = self.work_per_row();
+        self.over_row_runs(x, per_row, |engine, data, rows, _| engine.evaluate_rows(data, rows)).concat()
+    }
+
+    /// Multiply-adds of one row's forward pass.
+    fn work_per_row(&self) -> usize {
+        self.layers.iter().map(|l| l.inputs * l.outputs).sum()
+    }
+
+    /// `work(engine, data, rows, first)` over the rows of `x`, in row order: on a pool's thread,
+    /// runs of whole [`EVAL_BLOCK`]s go to the pool's threads, each on a copy of this engine
+    /// (`first` is the run's first row in `x`), when a block holds enough work (`work_per_row`
+    /// multiply-adds a row) to be worth a piece; else all of `x` on this engine, here.
+    fn over_row_runs<R: Send>(
+        &mut self,
+        x: &Matrix,
+        work_per_row: usize,
+        work: impl Fn(&mut Engine<T>, &[f32], usize, usize) -> R + Sync,
+    ) -> Vec<R> {
         use rayon::prelude::*;
         assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
         let blocks = x.rows.div_ceil(EVAL_BLOCK);
-        let per_row: usize = self.layers.iter().map(|l| l.inputs * l.outputs).sum();
         let threads = super::spread::threads_here().min(blocks);
-        if threads < 2 || EVAL_BLOCK * per_row < super::spread::piece_work() {
-            return self.evaluate_rows(&x.data, x.rows);
+        if threads < 2 || EVAL_BLOCK * work_per_row < super::spread::piece_work() {
+            return vec![work(self, &x.data, x.rows, 0)];
         }
-        let run = blocks.div_ceil(threads) * EVAL_BLOCK * self.inputs;
-        let mut engines: Vec<Engine<T>> = (1..x.data.chunks(run).len()).map(|_| self.clone()).collect();
-        engines.push(self.clone());
-        let parts: Vec<Vec<f32>> = x
-            .data
-            .par_chunks(run)
+        let run_rows = blocks.div_ceil(threads) * EVAL_BLOCK;
+        let runs: Vec<&[f32]> = x.data.chunks(run_rows * self.inputs).collect();
+        let mut engines: Vec<Engine<T>> = runs.iter().map(|_| self.clone()).collect();
+        runs.par_iter()
             .zip(engines.par_iter_mut())
-            .map(|(rows, engine)| engine.evaluate_rows(rows, rows.len() / engine.inputs))
-            .collect();
-        parts.concat()
+            .enumerate()
+            .map(|(i, (data, engine))| work(engine, data, data.len() / x.cols, i * run_rows))
+            .collect()
     }
 
     /// [`Engine::evaluate`] of `rows` rows of `data` on this thread.
@@ -303,23 +319,9 @@ impl<T: Real> Engine<T> {
     /// [`Engine::evaluate`], each on a copy of the engine: the same bits as one thread. `seed`
     /// is given each row's index in `x`.
     pub fn input_gradients(&mut self, x: &Matrix, seed: &OutputWeights<'_, T>) -> (Vec<T>, Vec<T>) {
-        use rayon::prelude::*;
-        assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
-        let blocks = x.rows.div_ceil(EVAL_BLOCK);
-        let per_row: usize = self.layers.iter().map(|l| l.inputs * l.outputs).sum();
-        let threads = super::spread::threads_here().min(blocks);
-        if threads < 2 || 2 * EVAL_BLOCK * per_row < super::spread::piece_work() {
-            return self.input_gradients_rows(&x.data, x.rows, 0, seed);
-        }
-        let run_rows = blocks.div_ceil(threads) * EVAL_BLOCK;
-        let runs: Vec<&[f32]> = x.data.chunks(run_rows * self.inputs).collect();
-        let mut engines: Vec<Engine<T>> = runs.iter().map(|_| self.clone()).collect();
-        let parts: Vec<(Vec<T>, Vec<T>)> = runs
-            .par_iter()
-            .zip(engines.par_iter_mut())
-            .enumerate()
-            .map(|(i, (rows, engine))| engine.input_gradients_rows(rows, rows.len() / engine.inputs, i * run_rows, seed))
-            .collect();
+        // A forward and a backward pass per row.
+        let per_row = 2 * self.work_per_row();
+        let parts = self.over_row_runs(x, per_row, |engine, data, rows, first| engine.input_gradients_rows(data, rows, first, seed));
         let (outputs, gradients): (Vec<Vec<T>>, Vec<Vec<T>>) = parts.into_iter().unzip();
         (outputs.concat(), gradients.concat())
     }
