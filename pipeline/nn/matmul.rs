@@ -27,6 +27,9 @@ const KC: usize = 256;
 const MC: usize = 144;
 /// Columns of `b` packed at a time (a multiple of every tile's column count: 4, 8, 16 and 32).
 const NC: usize = 512;
+/// Products with at most this many rows of `a` read `b` in place where its columns lie side by
+/// side (packing costs a copy of `b` per product, which few rows do not repay).
+const B_IN_PLACE_ROWS: usize = 64;
 
 /// A matrix in a slice with a row stride and a column stride: a row-major matrix read as itself
 /// ([`View::new`]), as its transpose ([`View::t`]), or a band of either's rows or columns.
@@ -221,14 +224,22 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
     let (a_rs, a_cs) = a.strides();
     let (b_rs, b_cs) = b.strides();
     let Tile { rows: tr, cols: tc, compute } = kernels.tile;
+    // With few rows of `a`, each packed panel of `b` would serve only a few tiles: where `b`'s
+    // columns lie side by side, whole panels are read where they lie and only a last panel
+    // narrower than the tile is packed.
+    let b_in_place = b_cs == 1 && m <= B_IN_PLACE_ROWS;
     for jc in (0..n).step_by(NC) {
         let nc = NC.min(n - jc);
         let panels_b = nc.div_ceil(tc);
+        let whole_b = if b_in_place { nc / tc * tc } else { 0 };
         for pc in (0..k).step_by(KC) {
             let kc = KC.min(k - pc);
             // After the first inner block every chain continues from its stored partial value.
             let load = accumulate || pc > 0;
-            pack(&mut ws.packed_b, Source { data: b.data, origin: pc * b_rs + jc * b_cs, step: b_rs, lane: b_cs }, nc, tc, kc);
+            if whole_b < nc {
+                let origin = pc * b_rs + (jc + whole_b) * b_cs;
+                pack(&mut ws.packed_b, Source { data: b.data, origin, step: b_rs, lane: b_cs }, nc - whole_b, tc, kc);
+            }
             for ic in (0..m).step_by(MC) {
                 let mc = MC.min(m - ic);
                 // Whole panels of `a` are read in place through its strides (the tile broadcasts
@@ -247,7 +258,12 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
                 for jp in 0..panels_b {
                     let j0 = jp * tc;
                     let cols = tc.min(nc - j0);
-                    let bp = ws.packed_b[jp * kc * tc..(jp + 1) * kc * tc].as_ptr();
+                    let (bp, ldb) = if j0 < whole_b {
+                        (b.data[pc * b_rs + jc + j0..].as_ptr(), b_rs)
+                    } else {
+                        let panel = (j0 - whole_b) / tc;
+                        (ws.packed_b[panel * kc * tc..(panel + 1) * kc * tc].as_ptr(), tc)
+                    };
                     for i0 in (0..mc).step_by(tr) {
                         let rows = tr.min(mc - i0);
                         let (ap, a_strides) = if i0 < whole {
@@ -261,11 +277,12 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
                             let block = &mut data[origin..origin + (tr - 1) * row_stride + tc];
                             // SAFETY: `ap` with `a_strides` spans rows x kc values of `a` (a
                             // whole panel inside the view, checked in `View::new`) or of the
-                            // packed edge panel (kc x tr values); `bp` holds kc x tc (packed
-                            // above); `block` spans the tr x tc destination block with row stride
+                            // packed edge panel (kc x tr values); `bp` with `ldb` spans kc x tc
+                            // values (packed above, or a whole panel of `b` inside its view);
+                            // `block` spans the tr x tc destination block with row stride
                             // `row_stride`; the workspace's tile is of a level the CPU runs
                             // (checked in `Workspace::new`).
-                            unsafe { compute(kc, ap, a_strides, bp, block.as_mut_ptr(), row_stride, load) };
+                            unsafe { compute(kc, ap, a_strides, (bp, ldb), block.as_mut_ptr(), row_stride, load) };
                         } else {
                             let edge = &mut ws.edge;
                             if load {
@@ -276,7 +293,7 @@ fn blocked<T: Real>(out: Out<'_, T>, a: View<'_, T>, b: View<'_, T>, accumulate:
                                 }
                             }
                             // SAFETY: as above, with `edge` a full tr x tc block of row stride tc.
-                            unsafe { compute(kc, ap, a_strides, bp, edge.as_mut_ptr(), tc, load) };
+                            unsafe { compute(kc, ap, a_strides, (bp, ldb), edge.as_mut_ptr(), tc, load) };
                             for r in 0..rows {
                                 for j in 0..cols {
                                     data[origin + r * row_stride + j * col_stride] = edge[r * tc + j];
@@ -315,11 +332,12 @@ fn matrix_vector<T: Real>(out: &mut [T], mat: Strided<'_, T>, x: &[T], load: boo
             done += width;
         }
     } else if step == 1 {
-        let group = kernels.along_rows;
-        while done + group <= rows {
-            // SAFETY: as above; the group's last value is (done + group - 1) row_stride + k - 1.
-            unsafe { (kernels.along)(k, data[done * row_stride..].as_ptr(), row_stride, x.as_ptr(), out[done..].as_mut_ptr(), load) };
-            done += group;
+        for (along, group) in [(kernels.along, kernels.along_rows), (kernels.along_few, kernels.along_few_rows)] {
+            while done + group <= rows {
+                // SAFETY: as above; the group's last value is (done + group - 1) row_stride + k - 1.
+                unsafe { along(k, data[done * row_stride..].as_ptr(), row_stride, x.as_ptr(), out[done..].as_mut_ptr(), load) };
+                done += group;
+            }
         }
     }
     for r in done..rows {

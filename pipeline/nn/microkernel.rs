@@ -32,6 +32,10 @@ pub struct Kernels<T> {
     /// runs the level.
     pub along: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
     pub along_rows: usize,
+    /// As `along`, for fewer rows (`along_few_rows`): what the rows left over by `along` use
+    /// before single chains.
+    pub along_few: unsafe fn(usize, *const T, usize, *const T, *mut T, bool),
+    pub along_few_rows: usize,
     /// `one(k, mat, step, x, out, load)`: `out[0] = fma(mat[(k-1) step], x[k-1], ... fma(mat[0],
     /// x[0], o0))`, the single chains left over by `across` and `along`.
     ///
@@ -41,21 +45,22 @@ pub struct Kernels<T> {
 }
 
 /// The signature of a tile's kernel (see [`Tile::compute`]).
-pub(crate) type TileFn<T> = unsafe fn(usize, *const T, (usize, usize), *const T, *mut T, usize, bool);
+pub(crate) type TileFn<T> = unsafe fn(usize, *const T, (usize, usize), (*const T, usize), *mut T, usize, bool);
 
 /// One level's tile for element type `T`: its shape and the function that computes it.
 #[derive(Clone, Copy)]
 pub struct Tile<T> {
     pub rows: usize,
     pub cols: usize,
-    /// `compute(kc, a, (ars, acs), b, c, ldc, load)`: for r < rows, j < cols, with
-    /// A(r, p) = `a[r ars + p acs]` and B(p, j) = `b[p cols + j]` (a packed panel),
+    /// `compute(kc, a, (ars, acs), (b, ldb), c, ldc, load)`: for r < rows, j < cols, with
+    /// A(r, p) = `a[r ars + p acs]` and B(p, j) = `b[p ldb + j]` (a packed panel, ldb = cols, or
+    /// the right operand in place when its columns lie side by side),
     /// `c[r ldc + j] = fma(A(r, kc-1), B(kc-1, j), ... fma(A(r, 0), B(0, j), c0))` with
     /// `c0 = c[r ldc + j]` when `load`, else +0. The left operand is read where it lies (rows or
-    /// steps contiguous, or a packed edge panel); only the right one is always packed.
+    /// steps contiguous, or a packed edge panel), and so may the right one.
     ///
     /// # Safety
-    /// `a` spans every A(r, p) for r < rows, p < kc; `b` holds `kc cols` values; `c` a
+    /// `a` spans every A(r, p) for r < rows, p < kc; `b` every B(p, j) for p < kc, j < cols; `c` a
     /// `rows x cols` block with row stride `ldc`; and the CPU runs the tile's level.
     pub compute: TileFn<T>,
 }
@@ -82,7 +87,7 @@ unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(
     kc: usize,
     a: *const V::Elem,
     (ars, acs): (usize, usize),
-    b: *const V::Elem,
+    (b, ldb): (*const V::Elem, usize),
     c: *mut V::Elem,
     ldc: usize,
     load: bool,
@@ -97,7 +102,7 @@ unsafe fn tile<V: Lanes, const MR: usize, const NV: usize>(
         }
     }
     for p in 0..kc {
-        let bp = b.add(p * NV * V::WIDTH);
+        let bp = b.add(p * ldb);
         let mut bv = [V::zero(); NV];
         for (v, lane) in bv.iter_mut().enumerate() {
             *lane = V::load(bp.add(v * V::WIDTH));
@@ -205,8 +210,16 @@ const SCALAR_COLS: usize = 4;
 /// Interleaved chains of the matrix-vector kernels (enough to hide the FMA latency).
 const CHAINS: usize = 8;
 
-unsafe fn scalar_tile<T: Lanes<Elem = T>>(kc: usize, a: *const T, strides: (usize, usize), b: *const T, c: *mut T, ldc: usize, load: bool) {
-    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, strides, b, c, ldc, load)
+unsafe fn scalar_tile<T: Lanes<Elem = T>>(
+    kc: usize,
+    a: *const T,
+    strides: (usize, usize),
+    (b, ldb): (*const T, usize),
+    c: *mut T,
+    ldc: usize,
+    load: bool,
+) {
+    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, strides, (b, ldb), c, ldc, load)
 }
 
 unsafe fn scalar_across<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x: *const T, out: *mut T, load: bool) {
@@ -229,6 +242,8 @@ pub(crate) fn scalar<T: Lanes<Elem = T>>() -> Kernels<T> {
         across_width: CHAINS,
         along: scalar_along::<T>,
         along_rows: CHAINS,
+        along_few: scalar_along::<T>,
+        along_few_rows: CHAINS,
         one: scalar_one::<T>,
     }
 }
@@ -322,6 +337,115 @@ mod x86 {
         super::along::<Fma1, ALONG_ROWS>(k, mat, stride, x, out, load)
     }
 
+    /// Row groups of the transposing matrix-vector kernels: two groups of one vector's rows each,
+    /// so that two independent chains of vector FMAs are in flight.
+    const ALONG_GROUPS: usize = 2;
+    pub(super) const AVX2_ALONG_ROWS: usize = ALONG_GROUPS * 8;
+    pub(super) const AVX512_ALONG_ROWS: usize = ALONG_GROUPS * 16;
+
+    /// A vector whose lanes can each take one row of a matrix-vector product: four steps of
+    /// `WIDTH` rows gathered into four vectors by an in-register transpose.
+    trait AcrossRows: Lanes<Elem = f32> {
+        /// Input j: the 128-bit part h holds row j + 4h, steps p..p+3 (`first` points at row 0,
+        /// step p; rows are `stride` apart).
+        unsafe fn rows4(first: *const f32, stride: usize, j: usize) -> Self;
+        /// Pairs of rows interleaved: (low, high) of `unpacklo_ps` and `unpackhi_ps`.
+        unsafe fn interleave(a: Self, b: Self) -> (Self, Self);
+        /// `shuffle_ps` with 0x44 (steps 0 and 2 of the pairs) and 0xEE (steps 1 and 3).
+        unsafe fn pick(a: Self, b: Self) -> (Self, Self);
+    }
+
+    impl AcrossRows for Ymm {
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn rows4(first: *const f32, stride: usize, j: usize) -> Self {
+            Ymm(_mm256_loadu2_m128(first.add((j + 4) * stride), first.add(j * stride)))
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn interleave(a: Self, b: Self) -> (Self, Self) {
+            (Ymm(_mm256_unpacklo_ps(a.0, b.0)), Ymm(_mm256_unpackhi_ps(a.0, b.0)))
+        }
+        #[inline]
+        #[target_feature(enable = "avx2,fma")]
+        unsafe fn pick(a: Self, b: Self) -> (Self, Self) {
+            (Ymm(_mm256_shuffle_ps::<0x44>(a.0, b.0)), Ymm(_mm256_shuffle_ps::<0xEE>(a.0, b.0)))
+        }
+    }
+
+    impl AcrossRows for Zmm {
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn rows4(first: *const f32, stride: usize, j: usize) -> Self {
+            let part = |h: usize| _mm_loadu_ps(first.add((j + 4 * h) * stride));
+            let v = _mm512_broadcast_f32x4(part(0));
+            let v = _mm512_mask_broadcast_f32x4(v, 0x00F0, part(1));
+            let v = _mm512_mask_broadcast_f32x4(v, 0x0F00, part(2));
+            Zmm(_mm512_mask_broadcast_f32x4(v, 0xF000, part(3)))
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn interleave(a: Self, b: Self) -> (Self, Self) {
+            (Zmm(_mm512_unpacklo_ps(a.0, b.0)), Zmm(_mm512_unpackhi_ps(a.0, b.0)))
+        }
+        #[inline]
+        #[target_feature(enable = "avx512f")]
+        unsafe fn pick(a: Self, b: Self) -> (Self, Self) {
+            (Zmm(_mm512_shuffle_ps::<0x44>(a.0, b.0)), Zmm(_mm512_shuffle_ps::<0xEE>(a.0, b.0)))
+        }
+    }
+
+    /// `along` with vectors across rows: `ALONG_GROUPS` groups of `V::WIDTH` rows, each step's
+    /// values of a group gathered into one vector (lane l holds row l) by an in-register
+    /// transpose of 4 steps at a time, so each lane is still one row's chain over the steps in
+    /// increasing order.
+    #[inline(always)]
+    unsafe fn along_across_rows<V: AcrossRows>(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+        let width = V::WIDTH;
+        let mut acc = [V::zero(); ALONG_GROUPS];
+        if load {
+            for (g, a) in acc.iter_mut().enumerate() {
+                *a = V::load(out.add(g * width));
+            }
+        }
+        let mut p = 0;
+        while p + 4 <= k {
+            for (g, a) in acc.iter_mut().enumerate() {
+                let first = mat.add(g * width * stride + p);
+                let r: [V; 4] = std::array::from_fn(|j| V::rows4(first, stride, j));
+                let ((lo01, hi01), (lo23, hi23)) = (V::interleave(r[0], r[1]), V::interleave(r[2], r[3]));
+                let ((s0, s1), (s2, s3)) = (V::pick(lo01, lo23), V::pick(hi01, hi23));
+                for (t, v) in [s0, s1, s2, s3].into_iter().enumerate() {
+                    *a = V::fma(v, V::splat(*x.add(p + t)), *a);
+                }
+            }
+            p += 4;
+        }
+        while p < k {
+            for (g, a) in acc.iter_mut().enumerate() {
+                let mut step = [0f32; 16];
+                for (l, v) in step[..width].iter_mut().enumerate() {
+                    *v = *mat.add((g * width + l) * stride + p);
+                }
+                *a = V::fma(V::load(step.as_ptr()), V::splat(*x.add(p)), *a);
+            }
+            p += 1;
+        }
+        for (g, a) in acc.iter().enumerate() {
+            a.store(out.add(g * width));
+        }
+    }
+
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) unsafe fn avx2_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+        along_across_rows::<Ymm>(k, mat, stride, x, out, load)
+    }
+
+    #[target_feature(enable = "avx512f")]
+    pub(super) unsafe fn avx512_along(k: usize, mat: *const f32, stride: usize, x: *const f32, out: *mut f32, load: bool) {
+        along_across_rows::<Zmm>(k, mat, stride, x, out, load)
+    }
+
     #[target_feature(enable = "fma")]
     pub(super) unsafe fn fma_one(k: usize, mat: *const f32, step: usize, x: *const f32, out: *mut f32, load: bool) {
         super::chain::<Fma1>(k, mat, step, x, out, load)
@@ -343,8 +467,16 @@ mod x86 {
     pub(super) const AVX512_VECTORS: usize = 2;
 
     #[target_feature(enable = "avx2,fma")]
-    pub(super) unsafe fn avx2_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
-        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, b, c, ldc, load)
+    pub(super) unsafe fn avx2_tile(
+        kc: usize,
+        a: *const f32,
+        strides: (usize, usize),
+        (b, ldb): (*const f32, usize),
+        c: *mut f32,
+        ldc: usize,
+        load: bool,
+    ) {
+        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
     }
 
     #[target_feature(enable = "avx512f")]
@@ -352,12 +484,12 @@ mod x86 {
         kc: usize,
         a: *const f32,
         strides: (usize, usize),
-        b: *const f32,
+        (b, ldb): (*const f32, usize),
         c: *mut f32,
         ldc: usize,
         load: bool,
     ) {
-        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, b, c, ldc, load)
+        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
     }
 }
 
@@ -437,8 +569,16 @@ mod arm {
     pub(super) const ACROSS_VECTORS: usize = 4;
 
     #[target_feature(enable = "neon")]
-    pub(super) unsafe fn neon_tile(kc: usize, a: *const f32, strides: (usize, usize), b: *const f32, c: *mut f32, ldc: usize, load: bool) {
-        tile::<Quad, ROWS, VECTORS>(kc, a, strides, b, c, ldc, load)
+    pub(super) unsafe fn neon_tile(
+        kc: usize,
+        a: *const f32,
+        strides: (usize, usize),
+        (b, ldb): (*const f32, usize),
+        c: *mut f32,
+        ldc: usize,
+        load: bool,
+    ) {
+        tile::<Quad, ROWS, VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
     }
 
     #[target_feature(enable = "neon")]
@@ -464,8 +604,10 @@ pub(crate) fn f32_kernels(level: Level) -> Kernels<f32> {
             tile: Tile { rows: x86::AVX2_ROWS, cols: x86::AVX2_VECTORS * 8, compute: x86::avx2_tile },
             across: x86::avx2_across,
             across_width: x86::ACROSS_VECTORS * 8,
-            along: x86::fma_along,
-            along_rows: x86::ALONG_ROWS,
+            along: x86::avx2_along,
+            along_rows: x86::AVX2_ALONG_ROWS,
+            along_few: x86::fma_along,
+            along_few_rows: x86::ALONG_ROWS,
             one: x86::fma_one,
         },
         #[cfg(target_arch = "x86_64")]
@@ -473,8 +615,10 @@ pub(crate) fn f32_kernels(level: Level) -> Kernels<f32> {
             tile: Tile { rows: x86::AVX512_ROWS, cols: x86::AVX512_VECTORS * 16, compute: x86::avx512_tile },
             across: x86::avx512_across,
             across_width: x86::ACROSS_VECTORS * 16,
-            along: x86::fma_along,
-            along_rows: x86::ALONG_ROWS,
+            along: x86::avx512_along,
+            along_rows: x86::AVX512_ALONG_ROWS,
+            along_few: x86::fma_along,
+            along_few_rows: x86::ALONG_ROWS,
             one: x86::fma_one,
         },
         #[cfg(target_arch = "aarch64")]
@@ -484,6 +628,8 @@ pub(crate) fn f32_kernels(level: Level) -> Kernels<f32> {
             across_width: arm::ACROSS_VECTORS * 4,
             along: arm::fmadd_along,
             along_rows: arm::ALONG_ROWS,
+            along_few: arm::fmadd_along,
+            along_few_rows: arm::ALONG_ROWS,
             one: arm::fmadd_one,
         },
         // Levels of another architecture are never available here (`Level::available`).
