@@ -471,12 +471,12 @@ mod x86 {
         kc: usize,
         a: *const f32,
         strides: (usize, usize),
-        (b, ldb): (*const f32, usize),
+        b: (*const f32, usize),
         c: *mut f32,
         ldc: usize,
         load: bool,
     ) {
-        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
+        tile::<Ymm, AVX2_ROWS, AVX2_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 
     #[target_feature(enable = "avx512f")]
@@ -484,12 +484,12 @@ mod x86 {
         kc: usize,
         a: *const f32,
         strides: (usize, usize),
-        (b, ldb): (*const f32, usize),
+        b: (*const f32, usize),
         c: *mut f32,
         ldc: usize,
         load: bool,
     ) {
-        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
+        tile::<Zmm, AVX512_ROWS, AVX512_VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 }
 
