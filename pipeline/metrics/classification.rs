@@ -125,23 +125,75 @@ pub fn brier_term(row: &[f64], y: usize) -> f64 {
     }
 }
 
+/// An index into the scores: `u32` where every row fits (half the memory of `usize` over
+/// millions of rows), `usize` otherwise.
+trait RowIndex: Copy {
+    fn of(i: usize) -> Self;
+    fn at(self) -> usize;
+}
+
+impl RowIndex for u32 {
+    fn of(i: usize) -> Self {
+        i as u32
+    }
+    fn at(self) -> usize {
+        self as usize
+    }
+}
+
+impl RowIndex for usize {
+    fn of(i: usize) -> Self {
+        i
+    }
+    fn at(self) -> usize {
+        self
+    }
+}
+
+/// The row indices in the stable order of `scores` (ascending, or descending), passed to
+/// `walk`: the same permutation whatever the index type.
+fn with_order<R>(scores: &[f64], descending: bool, walk: impl FnOnce(&mut dyn Iterator<Item = usize>) -> R) -> R {
+    fn sorted<I: RowIndex>(scores: &[f64], descending: bool) -> Vec<I> {
+        let mut order: Vec<I> = (0..scores.len()).map(I::of).collect();
+        if descending {
+            order.sort_by(|&a, &b| scores[b.at()].total_cmp(&scores[a.at()]));
+        } else {
+            order.sort_by(|&a, &b| scores[a.at()].total_cmp(&scores[b.at()]));
+        }
+        order
+    }
+    if u32::try_from(scores.len()).is_ok() {
+        walk(&mut sorted::<u32>(scores, descending).into_iter().map(RowIndex::at))
+    } else {
+        walk(&mut sorted::<usize>(scores, descending).into_iter())
+    }
+}
+
 /// Ranks 1..n of `scores`, tied scores sharing their average rank.
 fn average_ranks(scores: &[f64]) -> Vec<f64> {
-    let mut order: Vec<usize> = (0..scores.len()).collect();
-    order.sort_by(|&a, &b| scores[a].total_cmp(&scores[b]));
     let mut ranks = vec![0.0; scores.len()];
-    let mut i = 0;
-    while i < order.len() {
-        let mut j = i;
-        while j + 1 < order.len() && scores[order[j + 1]] == scores[order[i]] {
-            j += 1;
+    with_order(scores, false, |order| {
+        // Each run of tied scores gets the mean of the positions it spans.
+        let mut run: Vec<usize> = Vec::new();
+        let mut start = 0;
+        let mut close = |run: &mut Vec<usize>, start: usize| {
+            let rank = (start + start + run.len() - 1) as f64 / 2.0 + 1.0;
+            for &idx in run.iter() {
+                ranks[idx] = rank;
+            }
+            run.clear();
+        };
+        for (position, idx) in order.enumerate() {
+            if run.first().is_some_and(|&first| scores[idx] != scores[first]) {
+                close(&mut run, start);
+                start = position;
+            }
+            run.push(idx);
         }
-        let rank = (i + j) as f64 / 2.0 + 1.0;
-        for &idx in &order[i..=j] {
-            ranks[idx] = rank;
+        if !run.is_empty() {
+            close(&mut run, start);
         }
-        i = j + 1;
-    }
+    });
     ranks
 }
 
@@ -168,26 +220,29 @@ pub struct ThresholdStep {
     pub false_positives: usize,
 }
 
-/// One [`ThresholdStep`] per distinct score, highest first; tied scores enter together.
-pub fn threshold_steps(is_positive: &[bool], scores: &[f64]) -> Vec<ThresholdStep> {
-    let mut order: Vec<usize> = (0..scores.len()).collect();
-    order.sort_by(|&a, &b| scores[b].total_cmp(&scores[a]));
-    let (mut tp, mut fp) = (0usize, 0usize);
-    let mut steps = Vec::new();
-    let mut i = 0;
-    while i < order.len() {
-        let threshold = scores[order[i]];
-        while i < order.len() && scores[order[i]] == threshold {
-            if is_positive[order[i]] {
+/// One [`ThresholdStep`] per distinct score, highest first, tied scores entering together,
+/// handed to `each` one at a time (no list of them is kept: over millions of distinct scores it
+/// would outweigh the scores).
+pub fn walk_threshold_steps(is_positive: &[bool], scores: &[f64], mut each: impl FnMut(ThresholdStep)) {
+    with_order(scores, true, |order| {
+        let (mut tp, mut fp) = (0usize, 0usize);
+        let mut current: Option<f64> = None;
+        for idx in order {
+            let score = scores[idx];
+            if let Some(threshold) = current.filter(|&t| t != score) {
+                each(ThresholdStep { threshold, true_positives: tp, false_positives: fp });
+            }
+            current = Some(score);
+            if is_positive[idx] {
                 tp += 1;
             } else {
                 fp += 1;
             }
-            i += 1;
         }
-        steps.push(ThresholdStep { threshold, true_positives: tp, false_positives: fp });
-    }
-    steps
+        if let Some(threshold) = current {
+            each(ThresholdStep { threshold, true_positives: tp, false_positives: fp });
+        }
+    });
 }
 
 /// Average precision: sum over distinct thresholds (descending) of (R_i - R_{i-1}) * P_i, the
@@ -198,12 +253,12 @@ pub fn average_precision(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
         return None;
     }
     let (mut last_recall, mut ap) = (0.0, 0.0);
-    for step in threshold_steps(is_positive, scores) {
+    walk_threshold_steps(is_positive, scores, |step| {
         let recall = step.true_positives as f64 / n_pos as f64;
         let precision = step.true_positives as f64 / (step.true_positives + step.false_positives) as f64;
         ap += (recall - last_recall) * precision;
         last_recall = recall;
-    }
+    });
     Some(ap)
 }
 
@@ -237,12 +292,12 @@ pub fn youden_threshold(is_positive: &[bool], scores: &[f64]) -> Option<Operatin
         return None;
     }
     let mut best: Option<(f64, OperatingPoint)> = None;
-    for step in threshold_steps(is_positive, scores) {
+    walk_threshold_steps(is_positive, scores, |step| {
         let (tpr, fpr) = (step.true_positives as f64 / n_pos as f64, step.false_positives as f64 / n_neg as f64);
         if best.is_none_or(|(j, _)| tpr - fpr > j) {
             best = Some((tpr - fpr, OperatingPoint { threshold: step.threshold, true_positive_rate: tpr, false_positive_rate: fpr }));
         }
-    }
+    });
     best.map(|(_, point)| point)
 }
 

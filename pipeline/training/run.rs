@@ -205,12 +205,18 @@ fn train_in<T: Real>(head: Head, config: &RunConfig, seed: u64, data: &RunData<'
         _ => history.len(),
     };
     model.set_host_values(&engine.values())?;
-    let raw_train = engine.evaluate(data.train_x);
+    // The training rows' raw outputs give the loss and the predictions and are dropped before
+    // the metrics, which hold their own per-row vectors (over millions of rows this pass sets
+    // the run's peak memory).
+    let (train_loss, train_outputs) = {
+        let raw_train = engine.evaluate(data.train_x);
+        (head.host_loss(&raw_train, data.train_y, scaling), head.predictions(&raw_train, scaling))
+    };
     let raw_val = engine.evaluate(data.validation_x);
-    let train_outputs = head.predictions(&raw_train, scaling);
     let validation_outputs = head.predictions(&raw_val, scaling);
     let mut train_metrics = head.metrics(&train_outputs, data.train_y);
-    train_metrics.insert(OBJECTIVE.into(), Some(head.host_loss(&raw_train, data.train_y, scaling)));
+    drop(train_outputs);
+    train_metrics.insert(OBJECTIVE.into(), Some(train_loss));
     let mut validation_metrics = head.metrics(&validation_outputs, data.validation_y);
     validation_metrics.insert(OBJECTIVE.into(), Some(head.host_loss(&raw_val, data.validation_y, scaling)));
     Ok(RunResult {
