@@ -162,7 +162,7 @@ fn shard_outcome(exp: &Experiment, plan: &Plan, shard: Shard, report: &sweep::Sw
 /// Selects and tests from the stored runs, then writes `selection.json`, the timing record and the
 /// card (which seals the folder). Returns the selection and the results digest.
 fn select_and_record(
-    prepared: &Prepared,
+    prepared: &mut Prepared,
     layout: &Layout,
     git: &GitState,
     (jobs, threads): (usize, usize),
@@ -178,7 +178,10 @@ fn select_and_record(
     };
     let mut since = Instant::now();
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
+    prepared.release_validation_matrix();
+    crate::experiment::feasibility::return_freed_memory();
     timed(phase::EVALUATE, &mut since);
+    let prepared = &*prepared;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
     timed(phase::FAIRNESS, &mut since);
     let importance = crate::analysis::importance::derive(prepared, &derived, &runs, crate::store::FORMAT_VERSION)?;
@@ -337,7 +340,7 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     crate::experiment::feasibility::return_freed_memory();
     let mut phases = vec![Phase::top(phase::SCAN, started.elapsed().as_secs_f64())];
     let building = Instant::now();
-    let prepared = Prepared::new(exp)?;
+    let mut prepared = Prepared::new(exp)?;
     crate::experiment::feasibility::return_freed_memory();
     phases.push(Phase::top(phase::MATRICES, building.elapsed().as_secs_f64()));
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
@@ -413,12 +416,16 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
             exp.splits.test.len(),
             exp.manifest.selection.bootstrap
         )));
-        let recorded = select_and_record(&prepared, &layout, &git, (options.jobs, threads), started, phases)?;
+        let recorded = select_and_record(&mut prepared, &layout, &git, (options.jobs, threads), started, phases)?;
+        let (exp, plan) = (&prepared.exp, &prepared.plan);
+        let m = &exp.manifest;
         // One ledger line per completed selection: an invocation that trained nothing adds none.
         ledger::append(&options.results_root, &ledger_entry(exp, plan, &layout, &report, &recorded.0, &recorded.1, &git))?;
         replaced_note = compare_with_replaced(&m.experiment.replaces, &options.results_root, &layout)?;
         recorded
     };
+    let (exp, plan) = (&prepared.exp, &prepared.plan);
+    let m = &exp.manifest;
     let mut out = summary(exp, plan, &layout, &report, &selection, &results_digest, nothing_new, options.jobs);
     out.push_str(&replaced_note);
     let json = serde_json::json!({

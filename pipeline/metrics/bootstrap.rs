@@ -63,7 +63,7 @@ pub(crate) fn shared_percentile_intervals(
     // Resamples are drawn in order from the one stream and scored a batch at a time on the
     // current rayon pool, kept in draw order: the same values whatever the thread count. The next
     // batch is drawn while the current one is scored.
-    let batch = 2 * rayon::current_num_threads().max(1);
+    let batch = rayon::current_num_threads().max(1);
     let mut draw = |count: usize| -> Vec<Vec<usize>> {
         (0..count)
             .map(|_| {

@@ -172,29 +172,37 @@ fn with_order<R>(scores: &[f64], descending: bool, walk: impl FnOnce(&mut dyn It
 /// Ranks 1..n of `scores`, tied scores sharing their average rank.
 fn average_ranks(scores: &[f64]) -> Vec<f64> {
     let mut ranks = vec![0.0; scores.len()];
+    walk_tie_groups(scores, |start, group| {
+        let rank = group_rank(start, group.len());
+        for &idx in group {
+            ranks[idx] = rank;
+        }
+    });
+    ranks
+}
+
+/// The average of ranks start+1 ..= start+len: the rank each of a tie group's rows gets.
+fn group_rank(start: usize, len: usize) -> f64 {
+    (start + start + len - 1) as f64 / 2.0 + 1.0
+}
+
+/// Each run of tied scores in ascending order, as (its first position, its row indices).
+fn walk_tie_groups(scores: &[f64], mut each: impl FnMut(usize, &[usize])) {
     with_order(scores, false, |order| {
-        // Each run of tied scores gets the mean of the positions it spans.
         let mut run: Vec<usize> = Vec::new();
         let mut start = 0;
-        let mut close = |run: &mut Vec<usize>, start: usize| {
-            let rank = (start + start + run.len() - 1) as f64 / 2.0 + 1.0;
-            for &idx in run.iter() {
-                ranks[idx] = rank;
-            }
-            run.clear();
-        };
         for (position, idx) in order.enumerate() {
             if run.first().is_some_and(|&first| scores[idx] != scores[first]) {
-                close(&mut run, start);
+                each(start, &run);
+                run.clear();
                 start = position;
             }
             run.push(idx);
         }
         if !run.is_empty() {
-            close(&mut run, start);
+            each(start, &run);
         }
     });
-    ranks
 }
 
 /// ROC AUC as the Mann-Whitney U statistic over (positive, negative) pairs, ties counting one half.
@@ -205,8 +213,18 @@ pub fn roc_auc(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
     if n_pos == 0 || n_neg == 0 {
         return None;
     }
-    let ranks = average_ranks(scores);
-    let rank_sum: f64 = ranks.iter().zip(is_positive).filter(|(_, &p)| p).map(|(r, _)| r).sum();
+    let rank_sum: f64 = if scores.len() <= super::ranked::MAX_ROWS {
+        // Every rank is half a whole number and every partial sum stays below 2^53, so each sum
+        // is exact and its order does not matter: the tie groups' sums, walked in score order,
+        // give the bits of the sum in row order without a rank per row.
+        let mut sum = 0.0;
+        walk_tie_groups(scores, |start, group| {
+            sum += group_rank(start, group.len()) * group.iter().filter(|&&idx| is_positive[idx]).count() as f64;
+        });
+        sum
+    } else {
+        average_ranks(scores).iter().zip(is_positive).filter(|(_, &p)| p).map(|(r, _)| r).sum()
+    };
     let u = rank_sum - (n_pos * (n_pos + 1)) as f64 / 2.0;
     Some(u / (n_pos as f64 * n_neg as f64))
 }
@@ -325,6 +343,34 @@ pub fn operating_point_at(is_positive: &[bool], scores: &[f64], threshold: f64) 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// ROC AUC from its tie groups has the bits of the rank sum taken row by row (the form it
+    /// replaced), on scores with many ties and both zeros.
+    #[test]
+    fn auc_from_tie_groups_has_the_bits_of_the_row_order_rank_sum() {
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut next = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        for n in [2usize, 3, 10, 257, 5_000, 60_000] {
+            let scores: Vec<f64> = (0..n)
+                .map(|_| match next() % 5 {
+                    0 => 0.0,
+                    1 => -0.0,
+                    2 => (next() % 7) as f64 / 7.0,
+                    _ => (next() >> 11) as f64 / (1u64 << 53) as f64,
+                })
+                .collect();
+            let positive: Vec<bool> = (0..n).map(|i| i == 0 || (i > 1 && next() % 3 == 0)).collect();
+            let n_pos = positive.iter().filter(|&&p| p).count();
+            let rank_sum: f64 = average_ranks(&scores).iter().zip(&positive).filter(|(_, &p)| p).map(|(r, _)| r).sum();
+            let want = (rank_sum - (n_pos * (n_pos + 1)) as f64 / 2.0) / (n_pos as f64 * (n - n_pos) as f64);
+            assert_eq!(roc_auc(&positive, &scores).map(f64::to_bits), Some(want.to_bits()), "{n} rows");
+        }
+    }
 
     #[test]
     fn single_class_auc_is_undefined_not_a_panic() {
