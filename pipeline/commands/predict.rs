@@ -240,17 +240,22 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
     check_schema(&table, &summary, &model.preprocessor.inputs, input)?;
     let rows: Vec<usize> = (0..table.rows).collect();
     let (x, report) = model.preprocessor.transform(&table, &rows, input)?;
-    let outputs = match ensemble {
-        Some(e) => {
-            let mut scored = Vec::with_capacity(e.members.len());
-            for id in &e.members {
-                let mut member = ScoringModel::from_stored(&folder.run(id)?)?;
-                scored.push(member.score_calibrated(&x, member_map(id))?);
+    // Scoring and the reasons' integrated gradients run on every core the process may use: a
+    // row's outputs and gradients do not depend on the rows computed with it (nor on the thread).
+    let pool = crate::threads::helper_pool(crate::analysis::SCORING_BYTES_PER_THREAD, "score the rows")?;
+    let outputs = pool.install(|| -> Result<Vec<f64>> {
+        Ok(match ensemble {
+            Some(e) => {
+                let mut scored = Vec::with_capacity(e.members.len());
+                for id in &e.members {
+                    let mut member = ScoringModel::from_stored(&folder.run(id)?)?;
+                    scored.push(member.score_calibrated(&x, member_map(id))?);
+                }
+                mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>())
             }
-            mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>())
-        }
-        None => model.score_calibrated(&x, map)?,
-    };
+            None => model.score_calibrated(&x, map)?,
+        })
+    })?;
     let mut columns: Vec<(String, ArrayRef)> = Vec::new();
     for id in &record.ids {
         if let Some(col) = table.column(id) {
@@ -341,7 +346,7 @@ pub fn score(target: &Path, input: &Path, options: &PredictOptions) -> Result<Sc
             None => vec![run_id.clone()],
         };
         let classes = crate::analysis::sensitivity::explained_classes(record.task, &outputs, k);
-        let (mut cols, meta, line) = reason_columns(&folder, &manifest, &members, model, &x, &classes, n, choice)?;
+        let (mut cols, meta, line) = pool.install(|| reason_columns(&folder, &manifest, &members, model, &x, &classes, n, choice))?;
         columns.append(&mut cols);
         reasons_meta = Some(meta);
         reasons_line = line;
