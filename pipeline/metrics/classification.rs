@@ -2,6 +2,8 @@
 //! `[1 - p, p]`); labels are class indices. The predicted class is the arg-max, first index winning
 //! ties, so a binary prediction is positive when p > 0.5.
 
+use super::ranked::{stable_order, RowIndex};
+
 /// Per-class precision, recall, F1 and support; a zero denominator gives 0 (as scikit-learn's
 /// `zero_division=0`).
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -125,47 +127,12 @@ pub fn brier_term(row: &[f64], y: usize) -> f64 {
     }
 }
 
-/// An index into the scores: `u32` where every row fits (half the memory of `usize` over
-/// millions of rows), `usize` otherwise.
-trait RowIndex: Copy {
-    fn of(i: usize) -> Self;
-    fn at(self) -> usize;
-}
-
-impl RowIndex for u32 {
-    fn of(i: usize) -> Self {
-        i as u32
-    }
-    fn at(self) -> usize {
-        self as usize
-    }
-}
-
-impl RowIndex for usize {
-    fn of(i: usize) -> Self {
-        i
-    }
-    fn at(self) -> usize {
-        self
-    }
-}
-
-/// The row indices in the stable order of `scores` (ascending, or descending), passed to
-/// `walk`: the same permutation whatever the index type.
+/// [`stable_order`] passed to `walk`, in `u32` indices where every row fits.
 fn with_order<R>(scores: &[f64], descending: bool, walk: impl FnOnce(&mut dyn Iterator<Item = usize>) -> R) -> R {
-    fn sorted<I: RowIndex>(scores: &[f64], descending: bool) -> Vec<I> {
-        let mut order: Vec<I> = (0..scores.len()).map(I::of).collect();
-        if descending {
-            order.sort_by(|&a, &b| scores[b.at()].total_cmp(&scores[a.at()]));
-        } else {
-            order.sort_by(|&a, &b| scores[a.at()].total_cmp(&scores[b.at()]));
-        }
-        order
-    }
     if u32::try_from(scores.len()).is_ok() {
-        walk(&mut sorted::<u32>(scores, descending).into_iter().map(RowIndex::at))
+        walk(&mut stable_order::<u32>(scores, descending).into_iter().map(RowIndex::at))
     } else {
-        walk(&mut sorted::<usize>(scores, descending).into_iter())
+        walk(&mut stable_order::<usize>(scores, descending).into_iter())
     }
 }
 

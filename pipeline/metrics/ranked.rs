@@ -11,6 +11,45 @@
 //!   refuses samples where it could exceed that (about 94 million rows), and the caller sorts.
 //! - Average precision walks the distinct scores from the highest, with whole-number counts, in
 //!   the order the sorting form walks them, and does the same floating-point operations.
+//!
+//! The order of a sample by score ([`stable_order`]) is the one the sorting forms use too.
+
+/// An index into the scores: `u32` where every row fits (half the memory of `usize` over
+/// millions of rows), `usize` otherwise.
+pub(crate) trait RowIndex: Copy {
+    fn of(i: usize) -> Self;
+    fn at(self) -> usize;
+}
+
+impl RowIndex for u32 {
+    fn of(i: usize) -> Self {
+        i as u32
+    }
+    fn at(self) -> usize {
+        self as usize
+    }
+}
+
+impl RowIndex for usize {
+    fn of(i: usize) -> Self {
+        i
+    }
+    fn at(self) -> usize {
+        self
+    }
+}
+
+/// The row indices in the stable order of `scores` by `f64::total_cmp` (ascending, or
+/// descending): the same permutation whatever the index type. `I` must hold every index.
+pub(crate) fn stable_order<I: RowIndex>(scores: &[f64], descending: bool) -> Vec<I> {
+    let mut order: Vec<I> = (0..scores.len()).map(I::of).collect();
+    if descending {
+        order.sort_by(|&a, &b| scores[b.at()].total_cmp(&scores[a.at()]));
+    } else {
+        order.sort_by(|&a, &b| scores[a.at()].total_cmp(&scores[b.at()]));
+    }
+    order
+}
 
 /// One sample's rows ordered by score, with its tie groups (runs of equal scores).
 #[derive(Debug, Clone)]
@@ -32,8 +71,7 @@ impl Ranking {
         if scores.len() > MAX_ROWS || positive.len() != scores.len() {
             return None;
         }
-        let mut order: Vec<u32> = (0..scores.len() as u32).collect();
-        order.sort_by(|&a, &b| scores[a as usize].total_cmp(&scores[b as usize]));
+        let order: Vec<u32> = stable_order(scores, false);
         let mut starts = Vec::new();
         let mut i = 0;
         while i < order.len() {

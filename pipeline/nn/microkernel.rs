@@ -214,12 +214,12 @@ unsafe fn scalar_tile<T: Lanes<Elem = T>>(
     kc: usize,
     a: *const T,
     strides: (usize, usize),
-    (b, ldb): (*const T, usize),
+    b: (*const T, usize),
     c: *mut T,
     ldc: usize,
     load: bool,
 ) {
-    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, strides, (b, ldb), c, ldc, load)
+    tile::<T, SCALAR_ROWS, SCALAR_COLS>(kc, a, strides, b, c, ldc, load)
 }
 
 unsafe fn scalar_across<T: Lanes<Elem = T>>(k: usize, mat: *const T, step: usize, x: *const T, out: *mut T, load: bool) {
@@ -573,12 +573,12 @@ mod arm {
         kc: usize,
         a: *const f32,
         strides: (usize, usize),
-        (b, ldb): (*const f32, usize),
+        b: (*const f32, usize),
         c: *mut f32,
         ldc: usize,
         load: bool,
     ) {
-        tile::<Quad, ROWS, VECTORS>(kc, a, strides, (b, ldb), c, ldc, load)
+        tile::<Quad, ROWS, VECTORS>(kc, a, strides, b, c, ldc, load)
     }
 
     #[target_feature(enable = "neon")]

@@ -352,13 +352,25 @@ impl GemmProduct<'_> {
         use tabcard::nn::dispatch::Level;
         let GemmProduct { m, n, k, a, a_strides: (a_cs, a_rs), b, b_strides: (b_cs, b_rs) } = *self;
         assert!(c.len() >= m * n);
+        // Every gemm entry point takes the product as these arguments, between its own leading
+        // and trailing ones.
+        macro_rules! with_operands {
+            ($f:expr, [$($head:expr),*], [$($tail:expr),*]) => {
+                // SAFETY: every index gemm touches is inside a (m x k), b (k x n) and c (m x n)
+                // as laid out by the strides; c does not alias a or b; the CPU runs the level
+                // (checked by the caller: a simd token was created, or the feature detected).
+                unsafe {
+                    ($f)(
+                        $($head,)* m, n, k, c.as_mut_ptr(), 1, n as isize, false, a.as_ptr(), a_cs, a_rs, b.as_ptr(), b_cs, b_rs,
+                        1.0f32, 1.0f32, false, false, false, $($tail),*
+                    )
+                }
+            };
+        }
         macro_rules! call {
             ($simd:expr, $kernels:path, $lanes:expr) => {{
                 use $kernels as kernels;
-                // SAFETY: every index gemm touches is inside a (m x k), b (k x n) and c (m x n)
-                // as laid out by the strides; c does not alias a or b; the CPU runs the level
-                // (its simd token was created, which checks).
-                unsafe {
+                with_operands!(
                     gemm_basic_generic::<
                         _,
                         f32,
@@ -368,33 +380,10 @@ impl GemmProduct<'_> {
                         { kernels::MR_DIV_N },
                         { kernels::H_M },
                         { kernels::H_N },
-                    >(
-                        $simd,
-                        m,
-                        n,
-                        k,
-                        c.as_mut_ptr(),
-                        1,
-                        n as isize,
-                        false,
-                        a.as_ptr(),
-                        a_cs,
-                        a_rs,
-                        b.as_ptr(),
-                        b_cs,
-                        b_rs,
-                        1.0f32,
-                        1.0f32,
-                        false,
-                        false,
-                        false,
-                        |x, y, z| x * y + z,
-                        &kernels::UKR,
-                        &kernels::H_UKR,
-                        false,
-                        gemm::Parallelism::None,
-                    )
-                }
+                    >,
+                    [$simd],
+                    [|x, y, z| x * y + z, &kernels::UKR, &kernels::H_UKR, false, gemm::Parallelism::None]
+                )
             }};
         }
         match level {
@@ -405,30 +394,7 @@ impl GemmProduct<'_> {
             #[cfg(target_arch = "x86_64")]
             Level::Avx512 => {
                 assert!(std::arch::is_x86_feature_detected!("avx512f"));
-                // SAFETY: as above.
-                unsafe {
-                    gemm::gemm(
-                        m,
-                        n,
-                        k,
-                        c.as_mut_ptr(),
-                        1,
-                        n as isize,
-                        false,
-                        a.as_ptr(),
-                        a_cs,
-                        a_rs,
-                        b.as_ptr(),
-                        b_cs,
-                        b_rs,
-                        1.0f32,
-                        1.0f32,
-                        false,
-                        false,
-                        false,
-                        gemm::Parallelism::None,
-                    )
-                }
+                with_operands!(gemm::gemm, [], [gemm::Parallelism::None])
             }
             #[cfg(target_arch = "x86_64")]
             Level::Avx2 => call!(V3::try_new().expect("AVX2 and FMA"), gemm_f32::microkernel::fma::f32, 8),
