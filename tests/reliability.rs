@@ -198,7 +198,7 @@ fn tampered_or_foreign_results_fail_clearly() {
         let o = run_in(dir.path(), &args);
         no_panic(&o);
         let expected = format!(
-            "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads versions [2, 3, 4, 5, 6, 7, 8, 9]",
+            "error: newer/format.json: results layout version 99 written by tabcard 9.0.0; this tabcard {} reads versions [2, 3, 4, 5, 6, 7, 8, 9, 10]",
             env!("CARGO_PKG_VERSION")
         );
         assert_eq!(stderr(&o).trim_end(), expected, "{args:?}");

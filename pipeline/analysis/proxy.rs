@@ -8,7 +8,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::data::prep::Matrix;
-use crate::metrics::bootstrap::percentile_intervals;
+use crate::metrics::bootstrap::{percentile_intervals, ResampleOrder};
 use crate::metrics::classification::{macro_ovr_auc, roc_auc};
 use crate::metrics::MetricSet;
 
@@ -168,7 +168,9 @@ pub(crate) fn check(
     };
     let all: Vec<usize> = (0..test_labels.len()).collect();
     if let Some(Some(value)) = auc(&all).get("roc_auc") {
-        let interval = percentile_intervals(test_labels.len(), resamples, 0.95, seed, auc);
+        // Row order gives the draw order's bits: below `ranked::MAX_ROWS` rows ROC AUC sums each
+        // tie group's exact ranks, whatever order the rows come in.
+        let interval = percentile_intervals(test_labels.len(), resamples, 0.95, seed, ResampleOrder::Rows, auc);
         let (lower, upper) = interval.get("roc_auc").map_or((*value, *value), |i| (i.lower, i.upper));
         out.roc_auc = Some(super::estimate::Estimate { value: *value, lower, upper });
     }

@@ -165,6 +165,8 @@ pub fn run(target: &Path, batch: &Path, options: &MonitorOptions) -> Result<Moni
             manifest.selection.bootstrap,
             seed,
             thresholds.alpha,
+            // The folder's own order, so a batch monitored again reproduces its record.
+            crate::metrics::bootstrap::ResampleOrder::of_layout(folder.layout_version),
         )
     });
     let id = Identity {

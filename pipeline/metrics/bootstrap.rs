@@ -7,7 +7,7 @@ use crate::rng::{Purpose, Stream};
 
 /// A point estimate with a two-sided percentile interval.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
-pub(crate) struct Interval {
+pub struct Interval {
     pub estimate: f64,
     pub lower: f64,
     pub upper: f64,
@@ -17,38 +17,114 @@ pub(crate) struct Interval {
 }
 
 /// Linear-interpolated quantile of sorted values (numpy's default "linear" method).
-pub(crate) fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
+pub fn quantile_sorted(sorted: &[f64], q: f64) -> f64 {
     let pos = q * (sorted.len() - 1) as f64;
     let lo = pos.floor() as usize;
     let hi = pos.ceil() as usize;
     sorted[lo] + (sorted[hi] - sorted[lo]) * (pos - lo as f64)
 }
 
+/// The order a drawn resample's rows are handed to its scorers in. The rows and their repeats are
+/// the same either way; what differs is the order a metric's sums add them in, and so its last
+/// bits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ResampleOrder {
+    /// In the order drawn (results layouts up to 9): a scorer reads the sample's rows at random.
+    Drawn,
+    /// In sample-row order, each row as often as it was drawn (results layout 10 on): a scorer
+    /// reads the sample front to back, a linear pass over memory.
+    Rows,
+}
+
+/// Results layout from which resamples are scored in row order.
+const ROW_ORDER_FROM: u32 = 10;
+
+impl ResampleOrder {
+    /// The order results layout `layout_version` scores its resamples in.
+    pub fn of_layout(layout_version: u32) -> Self {
+        if layout_version >= ROW_ORDER_FROM {
+            ResampleOrder::Rows
+        } else {
+            ResampleOrder::Drawn
+        }
+    }
+
+    /// Puts a drawn resample (indices below `n`) in this order.
+    fn arrange(self, idx: &mut [usize], n: usize) {
+        if self == ResampleOrder::Drawn {
+            return;
+        }
+        // A counting sort: how often each row was drawn, then the rows listed that often. A
+        // byte per row holds every count but a row drawn 256 times or more (of a million draws,
+        // the most drawn row comes about ten times), and keeps the table a quarter of the size
+        // in cache; should a count wrap, the rows are counted again in 32 bits.
+        let mut counts = vec![0u8; n];
+        let mut wrapped = false;
+        for &i in idx.iter() {
+            let count = &mut counts[i];
+            *count = count.wrapping_add(1);
+            wrapped |= *count == 0;
+        }
+        if wrapped {
+            let mut wide = vec![0u32; n];
+            for &i in idx.iter() {
+                wide[i] += 1;
+            }
+            list_rows(&wide, idx);
+        } else {
+            list_rows(&counts, idx);
+        }
+    }
+}
+
+/// Writes each row of `counts` into `slots` as often as it counts, in row order; the counts
+/// add up to `slots.len()`.
+fn list_rows<C: Copy + Into<u32>>(counts: &[C], slots: &mut [usize]) {
+    /// Most rows are drawn at most this often: each is written this many times, unconditionally,
+    /// and the next row overwrites what lies past its own count. That leaves no branch on the
+    /// count for the draws to make unpredictable.
+    const AT_ONCE: usize = 4;
+    let len = slots.len();
+    let mut at = 0;
+    for (row, &count) in counts.iter().enumerate() {
+        let count = count.into() as usize;
+        if count <= AT_ONCE && at + AT_ONCE <= len {
+            slots[at..at + AT_ONCE].fill(row);
+        } else {
+            slots[at..at + count].fill(row);
+        }
+        at += count;
+    }
+}
+
 /// Resamples `n` rows with replacement `resamples` times from the stream `(seed, bootstrap)` and
 /// evaluates every metric of `metrics` on each index sample, in one pass: each resample is drawn
 /// and scored once, whatever the number of metrics. A metric gets an interval when it is defined
 /// on the full sample and on at least one resample (only those resamples enter its interval).
-pub(crate) fn percentile_intervals(
+/// `order` is the order each resample's rows reach `metrics` in.
+pub fn percentile_intervals(
     n: usize,
     resamples: usize,
     level: f64,
     seed: u64,
+    order: ResampleOrder,
     metrics: impl Fn(&[usize]) -> MetricSet + Sync,
 ) -> BTreeMap<String, Interval> {
     let scorer: &Scorer = &metrics;
-    shared_percentile_intervals(n, resamples, level, seed, &[scorer]).pop().unwrap_or_default()
+    shared_percentile_intervals(n, resamples, level, seed, order, &[scorer]).pop().unwrap_or_default()
 }
 
 /// One set of metrics of an index sample.
-pub(crate) type Scorer<'a> = dyn Fn(&[usize]) -> MetricSet + Sync + 'a;
+pub type Scorer<'a> = dyn Fn(&[usize]) -> MetricSet + Sync + 'a;
 
 /// [`percentile_intervals`] for several sets of metrics of the same rows: each resample is drawn
 /// once and scored by every set, so each set's intervals are the ones its own call would give.
-pub(crate) fn shared_percentile_intervals(
+pub fn shared_percentile_intervals(
     n: usize,
     resamples: usize,
     level: f64,
     seed: u64,
+    order: ResampleOrder,
     scorers: &[&Scorer],
 ) -> Vec<BTreeMap<String, Interval>> {
     use rayon::prelude::*;
@@ -62,7 +138,8 @@ pub(crate) fn shared_percentile_intervals(
     let mut values: Vec<Vec<Vec<f64>>> = estimates.iter().map(|e| vec![Vec::with_capacity(resamples); e.len()]).collect();
     // Resamples are drawn in order from the one stream and scored a batch at a time on the
     // current rayon pool, kept in draw order: the same values whatever the thread count. The next
-    // batch is drawn while the current one is scored.
+    // batch is drawn while the current one is scored; each scoring thread puts its own resample
+    // in `order` first.
     let batch = rayon::current_num_threads().max(1);
     let mut draw = |count: usize| -> Vec<Vec<usize>> {
         (0..count)
@@ -79,7 +156,15 @@ pub(crate) fn shared_percentile_intervals(
         let next_count = batch.min(resamples - drawn);
         let (next, scored) = rayon::join(
             || draw(next_count),
-            || current.par_iter().map(|idx| scorers.iter().map(|metrics| metrics(idx)).collect::<Vec<_>>()).collect::<Vec<_>>(),
+            || {
+                current
+                    .par_iter_mut()
+                    .map(|idx| {
+                        order.arrange(idx, n);
+                        scorers.iter().map(|metrics| metrics(idx)).collect::<Vec<_>>()
+                    })
+                    .collect::<Vec<_>>()
+            },
         );
         drawn += next.len();
         for per_scorer in scored {
@@ -129,15 +214,77 @@ mod tests {
         let data: Vec<f64> = (0..200).map(|i| (i % 10) as f64).collect();
         let mean =
             |idx: &[usize]| MetricSet::from([("mean".to_string(), Some(idx.iter().map(|&i| data[i]).sum::<f64>() / idx.len() as f64))]);
-        let a = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
-        let b = percentile_intervals(data.len(), 500, 0.95, 9, mean).remove("mean").unwrap();
-        assert_eq!(a, b);
-        // Scored on 3 threads, batches of 3 resamples: the same bits as one at a time.
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().unwrap();
-        let c = pool.install(|| percentile_intervals(data.len(), 500, 0.95, 9, mean)).remove("mean").unwrap();
-        assert_eq!((a.lower.to_bits(), a.upper.to_bits()), (c.lower.to_bits(), c.upper.to_bits()));
+        for order in [ResampleOrder::Drawn, ResampleOrder::Rows] {
+            let a = percentile_intervals(data.len(), 500, 0.95, 9, order, mean).remove("mean").unwrap();
+            let b = percentile_intervals(data.len(), 500, 0.95, 9, order, mean).remove("mean").unwrap();
+            assert_eq!(a, b);
+            // Scored on 3 threads, batches of 3 resamples: the same bits as one at a time.
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().unwrap();
+            let c = pool.install(|| percentile_intervals(data.len(), 500, 0.95, 9, order, mean)).remove("mean").unwrap();
+            assert_eq!((a.lower.to_bits(), a.upper.to_bits()), (c.lower.to_bits(), c.upper.to_bits()));
+        }
+        let a = percentile_intervals(data.len(), 500, 0.95, 9, ResampleOrder::Rows, mean).remove("mean").unwrap();
         assert!(a.lower < 4.5 && 4.5 < a.upper);
         // Standard error of the mean is sd/sqrt(n) = 2.87/14.1 ~ 0.20; a 95% interval is ~ +-0.4.
         assert!((a.upper - a.lower) > 0.5 && (a.upper - a.lower) < 1.2, "{a:?}");
+    }
+
+    /// Row order hands each scorer the rows drawn, each as often as drawn, sorted; draw order the
+    /// draws themselves. So the two see the same multiset of rows in every resample.
+    #[test]
+    fn row_order_is_the_drawn_rows_sorted() {
+        use std::sync::Mutex;
+        let seen = |order| {
+            let resamples = Mutex::new(Vec::new());
+            let record = |idx: &[usize]| {
+                resamples.lock().unwrap().push(idx.to_vec());
+                MetricSet::from([("rows".to_string(), Some(idx.len() as f64))])
+            };
+            // One thread, so the resamples are recorded in draw order.
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+            pool.install(|| percentile_intervals(37, 25, 0.9, 4, order, record));
+            resamples.into_inner().unwrap()
+        };
+        let (drawn, rows) = (seen(ResampleOrder::Drawn), seen(ResampleOrder::Rows));
+        // The whole sample first (in row order either way), then the resamples in draw order.
+        assert_eq!(drawn.len(), 26);
+        assert_eq!(drawn[0], (0..37).collect::<Vec<_>>());
+        for (d, r) in drawn.iter().zip(&rows) {
+            let mut sorted = d.clone();
+            sorted.sort_unstable();
+            assert_eq!(&sorted, r);
+        }
+        assert!(drawn[1..].iter().any(|d| d.windows(2).any(|w| w[0] > w[1])), "the draws are not already sorted");
+        assert!(drawn[1..].iter().any(|d| d.windows(2).any(|w| w[0] == w[1])), "some row is drawn twice");
+    }
+
+    /// The counting sort against a comparison sort: rows drawn once to 300 times (past a byte's
+    /// count), rows not drawn, runs at the end of the slots.
+    #[test]
+    fn arranging_rows_sorts_them_whatever_their_counts() {
+        let mut stream = Stream::new(3, Purpose::Bootstrap);
+        let mut cases: Vec<(usize, Vec<usize>)> =
+            vec![(3, [vec![1; 300], vec![2; 5], vec![0; 7]].concat()), (5, vec![4, 4, 4, 4, 4, 4, 0]), (4, vec![3, 2, 1, 0]), (1, vec![0])];
+        for n in [2usize, 9, 100, 1000] {
+            for draws in [1, n / 2 + 1, n, 3 * n] {
+                cases.push((n, (0..draws).map(|_| stream.below(n as u64) as usize).collect()));
+            }
+        }
+        for (n, drawn) in cases {
+            let mut arranged = drawn.clone();
+            ResampleOrder::Rows.arrange(&mut arranged, n);
+            let mut sorted = drawn.clone();
+            sorted.sort_unstable();
+            assert_eq!(arranged, sorted, "{n} rows");
+            let mut kept = drawn.clone();
+            ResampleOrder::Drawn.arrange(&mut kept, n);
+            assert_eq!(kept, drawn);
+        }
+    }
+
+    #[test]
+    fn each_layout_scores_in_its_order() {
+        assert_eq!(ResampleOrder::of_layout(9), ResampleOrder::Drawn);
+        assert_eq!(ResampleOrder::of_layout(10), ResampleOrder::Rows);
     }
 }

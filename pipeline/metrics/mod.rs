@@ -2,7 +2,7 @@
 //! bootstrap intervals. Undefined values (AUC with a single class present, say) are `None`, never a
 //! panic or a NaN.
 
-pub(crate) mod bootstrap;
+pub mod bootstrap;
 pub mod calibration;
 pub mod classification;
 pub mod order_statistics;

@@ -1,8 +1,8 @@
 //! Rank metrics of bootstrap resamples in linear time. A resample draws rows of one sample with
 //! replacement, so it is the sample's rows with counts; sorting the sample's scores once gives
-//! every resample's order. ROC AUC and average precision of a resample then walk the sample's
-//! tie groups in that order, weighting each by the resample's counts, instead of sorting the
-//! resample's scores again.
+//! every resample's order. A resample's rows are counted straight into their places in that
+//! order ([`Ranking::place`]), and ROC AUC and average precision walk the sample's tie groups
+//! front to back, weighting each by those counts, instead of sorting the resample's scores again.
 //!
 //! The bits are those of [`super::classification::roc_auc`] and
 //! [`super::classification::average_precision`] on the resample's rows:
@@ -54,10 +54,12 @@ pub(crate) fn stable_order<I: RowIndex>(scores: &[f64], descending: bool) -> Vec
 /// One sample's rows ordered by score, with its tie groups (runs of equal scores).
 #[derive(Debug, Clone)]
 pub struct Ranking {
-    /// Row indices by ascending score (`f64::total_cmp`, as the sorting forms order them).
-    order: Vec<u32>,
-    /// Where each tie group starts in `order`, then `order.len()`.
+    /// Each row's place in the order by ascending score (`f64::total_cmp`, as the sorting forms
+    /// order them).
+    place_of_row: Vec<u32>,
+    /// Where each tie group starts in that order, then the number of rows.
     starts: Vec<u32>,
+    /// Whether the row at each place is positive.
     positive: Vec<bool>,
 }
 
@@ -83,38 +85,68 @@ impl Ranking {
             }
         }
         starts.push(order.len() as u32);
-        Some(Ranking { order, starts, positive })
+        let mut place_of_row = vec![0u32; order.len()];
+        for (place, &row) in order.iter().enumerate() {
+            place_of_row[row as usize] = place as u32;
+        }
+        let positive = order.iter().map(|&row| positive[row as usize]).collect();
+        Some(Ranking { place_of_row, starts, positive })
     }
 
-    /// Each tie group's (rows, positives) in the resample with `counts` per sample row, lowest
-    /// scores first; groups the resample does not draw are left out.
-    fn groups<'a>(&'a self, counts: &'a [u32]) -> impl DoubleEndedIterator<Item = (u64, u64)> + 'a {
-        self.starts.windows(2).filter_map(move |w| {
-            let (mut rows, mut positives) = (0u64, 0u64);
-            for &r in &self.order[w[0] as usize..w[1] as usize] {
-                let c = counts[r as usize] as u64;
-                rows += c;
-                if self.positive[r as usize] {
-                    positives += c;
-                }
+    /// How often the resample `rows` (sample rows, repeats allowed) holds the row at each place of
+    /// the ranking: what [`Ranking::roc_auc`] and [`Ranking::average_precision`] read.
+    pub fn place(&self, rows: &[usize]) -> Vec<u32> {
+        let mut counts = vec![0u32; self.place_of_row.len()];
+        for &r in rows {
+            counts[self.place_of_row[r] as usize] += 1;
+        }
+        counts
+    }
+
+    /// Calls `f` with each tie group's (rows, positives) in the resample with `counts` per place,
+    /// lowest scores first (or highest, `descending`). Groups the resample does not draw come as
+    /// (0, 0): the walks below add exact zeros for them, so they need no branch that the draws
+    /// would make unpredictable.
+    fn each_group(&self, counts: &[u32], descending: bool, mut f: impl FnMut(u64, u64)) {
+        let positives = |c: u32, positive: bool| if positive { c as u64 } else { 0 };
+        if self.starts.len() == counts.len() + 1 {
+            // No ties: each place is a group of its own.
+            let groups = counts.iter().zip(&self.positive).map(|(&c, &p)| (c as u64, positives(c, p)));
+            if descending {
+                groups.rev().for_each(|(rows, pos)| f(rows, pos));
+            } else {
+                groups.for_each(|(rows, pos)| f(rows, pos));
             }
-            (rows > 0).then_some((rows, positives))
-        })
+            return;
+        }
+        let groups = self.starts.windows(2).map(|w| {
+            let group = w[0] as usize..w[1] as usize;
+            counts[group.clone()]
+                .iter()
+                .zip(&self.positive[group])
+                .fold((0u64, 0u64), |(rows, pos), (&c, &p)| (rows + c as u64, pos + positives(c, p)))
+        });
+        if descending {
+            groups.rev().for_each(|(rows, pos)| f(rows, pos));
+        } else {
+            groups.for_each(|(rows, pos)| f(rows, pos));
+        }
     }
 
-    /// ROC AUC of the resample, as [`super::classification::roc_auc`] gives it on its rows.
+    /// ROC AUC of the resample with `counts` per place ([`Ranking::place`]), as
+    /// [`super::classification::roc_auc`] gives it on its rows.
     pub fn roc_auc(&self, counts: &[u32]) -> Option<f64> {
         let (mut before, mut rank_sum, mut n_pos) = (0u64, 0.0f64, 0u64);
-        let mut n = 0u64;
-        for (rows, positives) in self.groups(counts) {
-            // The group holds ranks before+1 ..= before+rows; each of its rows gets their mean.
-            let rank = (before + before + rows - 1) as f64 / 2.0 + 1.0;
+        self.each_group(counts, false, |rows, positives| {
+            // The group holds ranks before+1 ..= before+rows; each of its rows gets their mean,
+            // before + (rows + 1)/2: half a whole number, exact, as is every product and partial
+            // sum below (see MAX_ROWS), so an empty group adds an exact zero.
+            let rank = (2 * before + rows + 1) as f64 * 0.5;
             rank_sum += rank * positives as f64;
             before += rows;
             n_pos += positives;
-            n += rows;
-        }
-        let n_neg = n - n_pos;
+        });
+        let n_neg = before - n_pos;
         if n_pos == 0 || n_neg == 0 {
             return None;
         }
@@ -123,22 +155,25 @@ impl Ranking {
         Some(u / (n_pos as f64 * n_neg as f64))
     }
 
-    /// Average precision of the resample, as [`super::classification::average_precision`] gives it.
+    /// Average precision of the resample with `counts` per place ([`Ranking::place`]), as
+    /// [`super::classification::average_precision`] gives it.
     pub fn average_precision(&self, counts: &[u32]) -> Option<f64> {
-        let n_pos: u64 = self.order.iter().filter(|&&r| self.positive[r as usize]).map(|&r| counts[r as usize] as u64).sum();
+        let n_pos: u64 = counts.iter().zip(&self.positive).filter(|(_, &positive)| positive).map(|(&c, _)| c as u64).sum();
         if n_pos == 0 {
             return None;
         }
-        let (mut tp, mut fp) = (0usize, 0usize);
-        let (mut last_recall, mut ap) = (0.0, 0.0);
-        for (rows, positives) in self.groups(counts).rev() {
-            tp += positives as usize;
-            fp += (rows - positives) as usize;
-            let recall = tp as f64 / n_pos as usize as f64;
-            let precision = tp as f64 / (tp + fp) as f64;
+        let (mut tp, mut fp) = (0u64, 0u64);
+        let (mut last_recall, mut ap) = (0.0f64, 0.0f64);
+        self.each_group(counts, true, |rows, positives| {
+            tp += positives;
+            fp += rows - positives;
+            // An empty group leaves the recall as it was, so it adds (0.0 x precision) = 0.0;
+            // before the first drawn group tp + fp is 0, and the precision's divisor 1.
+            let recall = tp as f64 / n_pos as f64;
+            let precision = tp as f64 / (tp + fp).max(1) as f64;
             ap += (recall - last_recall) * precision;
             last_recall = recall;
-        }
+        });
         Some(ap)
     }
 }
@@ -165,19 +200,24 @@ impl ClassRankings {
         Some(ClassRankings { k, per_class })
     }
 
+    /// The resample `rows` counted into each ranking's places ([`Ranking::place`]).
+    pub fn place(&self, rows: &[usize]) -> Vec<Vec<u32>> {
+        self.per_class.iter().map(|r| r.place(rows)).collect()
+    }
+
     /// Binary ROC AUC, or the macro one-vs-rest mean over the classes where it is defined (as
-    /// [`super::classification::macro_ovr_auc`]).
-    pub fn roc_auc(&self, counts: &[u32]) -> Option<f64> {
+    /// [`super::classification::macro_ovr_auc`]), of the resample `placed` by [`ClassRankings::place`].
+    pub fn roc_auc(&self, placed: &[Vec<u32>]) -> Option<f64> {
         if self.k == 2 {
-            return self.per_class[0].roc_auc(counts);
+            return self.per_class[0].roc_auc(&placed[0]);
         }
-        let aucs: Vec<f64> = self.per_class.iter().filter_map(|r| r.roc_auc(counts)).collect();
+        let aucs: Vec<f64> = self.per_class.iter().zip(placed).filter_map(|(r, counts)| r.roc_auc(counts)).collect();
         (!aucs.is_empty()).then(|| aucs.iter().sum::<f64>() / aucs.len() as f64)
     }
 
     /// Binary average precision (`None` for more classes, which have none).
-    pub fn average_precision(&self, counts: &[u32]) -> Option<f64> {
-        (self.k == 2).then(|| self.per_class[0].average_precision(counts)).flatten()
+    pub fn average_precision(&self, placed: &[Vec<u32>]) -> Option<f64> {
+        (self.k == 2).then(|| self.per_class[0].average_precision(&placed[0])).flatten()
     }
 }
 
@@ -202,13 +242,28 @@ mod tests {
         for _ in 0..200 {
             let draw = 1 + stream.below(n as u64) as usize;
             let idx: Vec<usize> = (0..draw).map(|_| stream.below(n as u64) as usize).collect();
-            let mut counts = vec![0u32; n];
-            for &i in &idx {
-                counts[i] += 1;
-            }
+            let counts = ranking.place(&idx);
             let (p, s): (Vec<bool>, Vec<f64>) = idx.iter().map(|&i| (positive[i], scores[i])).unzip();
             assert_eq!(ranking.roc_auc(&counts).map(f64::to_bits), roc_auc(&p, &s).map(f64::to_bits));
             assert_eq!(ranking.average_precision(&counts).map(f64::to_bits), average_precision(&p, &s).map(f64::to_bits));
+        }
+        // Distinct scores: every place is a group of its own (the walk without tie groups), and
+        // small resamples leave most places empty.
+        let distinct: Vec<f64> = (0..n).map(|_| stream.uniform()).collect();
+        let ranking = Ranking::new(positive.clone(), &distinct).unwrap();
+        assert_eq!(ranking.starts.len(), n + 1, "no ties");
+        for draw in [1usize, 2, 3, 10, 50, n, 3 * n] {
+            for _ in 0..20 {
+                let idx: Vec<usize> = (0..draw).map(|_| stream.below(n as u64) as usize).collect();
+                let counts = ranking.place(&idx);
+                let (p, s): (Vec<bool>, Vec<f64>) = idx.iter().map(|&i| (positive[i], distinct[i])).unzip();
+                assert_eq!(ranking.roc_auc(&counts).map(f64::to_bits), roc_auc(&p, &s).map(f64::to_bits), "{draw} rows");
+                assert_eq!(
+                    ranking.average_precision(&counts).map(f64::to_bits),
+                    average_precision(&p, &s).map(f64::to_bits),
+                    "{draw} rows"
+                );
+            }
         }
         // Multiclass: three classes' probabilities, macro one-vs-rest.
         let k = 3;
@@ -224,18 +279,15 @@ mod tests {
         let rankings = ClassRankings::new(&classes, &probs, k).unwrap();
         for _ in 0..100 {
             let idx: Vec<usize> = (0..n).map(|_| stream.below(n as u64) as usize).collect();
-            let mut counts = vec![0u32; n];
-            for &i in &idx {
-                counts[i] += 1;
-            }
+            let counts = rankings.place(&idx);
             let y: Vec<usize> = idx.iter().map(|&i| classes[i]).collect();
             let pr: Vec<f64> = idx.iter().flat_map(|&i| probs[i * k..(i + 1) * k].to_vec()).collect();
             assert_eq!(rankings.roc_auc(&counts).map(f64::to_bits), macro_ovr_auc(&y, &pr, k).map(f64::to_bits));
             assert_eq!(rankings.average_precision(&counts), None);
         }
         // A resample of one class has no ROC AUC, and none without positives has no precision.
-        let mut only_negatives = vec![0u32; n];
-        only_negatives[labels.iter().position(|&y| y == 0).unwrap()] = 3;
+        let negative = labels.iter().position(|&y| y == 0).unwrap();
+        let only_negatives = ranking.place(&[negative, negative, negative]);
         assert_eq!(ranking.roc_auc(&only_negatives), None);
         assert_eq!(ranking.average_precision(&only_negatives), None);
     }

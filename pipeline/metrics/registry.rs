@@ -204,6 +204,14 @@ pub fn resample_metrics(resample: &Resample) -> MetricSet {
     scalar_metrics(task, &Scored::Resample(resample))
 }
 
+/// The metrics of the table named in `names` of a bootstrap resample, with the bits
+/// [`resample_metrics`] gives them; the others are not computed.
+pub fn named_resample_metrics(resample: &Resample, names: &[&str]) -> MetricSet {
+    let task = if resample.classes() == 2 { Task::Binary } else { Task::Multiclass };
+    let scored = Scored::Resample(resample);
+    table(task).iter().filter(|m| names.contains(&m.name)).map(|m| (m.name.to_string(), (m.compute)(&scored))).collect()
+}
+
 /// Every regression metric of the table, by name.
 pub fn regression_metrics(truth: &[f64], predicted: &[f64]) -> MetricSet {
     scalar_metrics(Task::Regression, &Scored::Values { truth, predicted })

@@ -3,10 +3,11 @@
 //! resample (its rows as indices into the sample, repeats allowed) is scored in linear time with
 //! the bits of the whole-sample metrics on its rows. Sums run over the resample's rows in its
 //! order, as the whole-sample functions run over theirs, so every addition is the same; counts are
-//! integers; the rank metrics read the resample's row counts along the sample's ranking
-//! (`ranked`).
+//! integers; the rank metrics read the resample's rows counted into the places of the sample's
+//! ranking (`ranked`).
 
 use std::cell::OnceCell;
+use std::sync::OnceLock;
 
 use super::calibration::{bin_of, top_label_point, BinSums};
 use super::classification as c;
@@ -35,8 +36,9 @@ pub struct ClassifiedSample<'a> {
     probs: &'a [f64],
     k: usize,
     rows: Vec<RowTerms>,
-    /// `None` for a sample too large to rank exactly; its rank metrics then sort each resample.
-    rankings: Option<ClassRankings>,
+    /// Ranked when a rank metric is first asked for; `None` for a sample too large to rank
+    /// exactly, whose rank metrics then sort each resample.
+    rankings: OnceLock<Option<ClassRankings>>,
 }
 
 impl<'a> ClassifiedSample<'a> {
@@ -57,12 +59,16 @@ impl<'a> ClassifiedSample<'a> {
                 }
             })
             .collect();
-        ClassifiedSample { labels, probs, k, rows, rankings: ClassRankings::new(labels, probs, k) }
+        ClassifiedSample { labels, probs, k, rows, rankings: OnceLock::new() }
+    }
+
+    fn rankings(&self) -> Option<&ClassRankings> {
+        self.rankings.get_or_init(|| ClassRankings::new(self.labels, self.probs, self.k)).as_ref()
     }
 
     /// The resample of rows `idx` (indices into the sample).
     pub fn resample<'s>(&'s self, idx: &'s [usize]) -> Resample<'s> {
-        Resample { sample: self, idx, counts: OnceCell::new(), totals: OnceCell::new() }
+        Resample { sample: self, idx, placed: OnceCell::new(), totals: OnceCell::new() }
     }
 }
 
@@ -75,12 +81,12 @@ struct Totals {
     confusion: Vec<Vec<usize>>,
 }
 
-/// One resample of a [`ClassifiedSample`]; its sums and row counts are computed once, when a
-/// metric first needs them.
+/// One resample of a [`ClassifiedSample`]; its sums and its counts in the ranking's places are
+/// computed once, when a metric first needs them.
 pub struct Resample<'s> {
     sample: &'s ClassifiedSample<'s>,
     idx: &'s [usize],
-    counts: OnceCell<Vec<u32>>,
+    placed: OnceCell<Vec<Vec<u32>>>,
     totals: OnceCell<Totals>,
 }
 
@@ -105,14 +111,9 @@ impl Resample<'_> {
         })
     }
 
-    fn counts(&self) -> &[u32] {
-        self.counts.get_or_init(|| {
-            let mut counts = vec![0u32; self.sample.rows.len()];
-            for &i in self.idx {
-                counts[i] += 1;
-            }
-            counts
-        })
+    /// The resample counted into the places of `rankings`.
+    fn placed(&self, rankings: &ClassRankings) -> &[Vec<u32>] {
+        self.placed.get_or_init(|| rankings.place(self.idx))
     }
 
     fn rows(&self) -> Option<f64> {
@@ -142,8 +143,8 @@ impl Resample<'_> {
 
     /// Binary ROC AUC, or the macro one-vs-rest mean for more classes.
     pub fn roc_auc(&self) -> Option<f64> {
-        match &self.sample.rankings {
-            Some(r) => r.roc_auc(self.counts()),
+        match self.sample.rankings() {
+            Some(r) => r.roc_auc(self.placed(r)),
             None => {
                 let (labels, probs) = self.labels_and_probs();
                 if self.sample.k == 2 {
@@ -159,8 +160,8 @@ impl Resample<'_> {
 
     /// Binary average precision (`None` for more classes).
     pub fn average_precision(&self) -> Option<f64> {
-        match &self.sample.rankings {
-            Some(r) => r.average_precision(self.counts()),
+        match self.sample.rankings() {
+            Some(r) => r.average_precision(self.placed(r)),
             None if self.sample.k == 2 => {
                 let (labels, probs) = self.labels_and_probs();
                 let (positive, p): (Vec<bool>, Vec<f64>) = labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip();

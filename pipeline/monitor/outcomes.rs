@@ -20,7 +20,7 @@ use super::batch::Observed;
 use super::status::{Status, Verdict};
 use crate::analysis::profile::{calibration_summaries, CalibrationSummary};
 use crate::format::sig;
-use crate::metrics::bootstrap::{percentile_intervals, Interval};
+use crate::metrics::bootstrap::{percentile_intervals, Interval, ResampleOrder};
 use crate::metrics::registry::{self, Direction};
 use crate::selection::Selection;
 use crate::training::Head;
@@ -129,10 +129,11 @@ pub(crate) fn judge(
     resamples: usize,
     seed: u64,
     alpha: f64,
+    order: ResampleOrder,
 ) -> Outcomes {
     let n = observed.labels.len();
     let scorer = crate::training::head::ResampleScorer::new(head, &observed.outputs, &observed.labels);
-    let bootstrap = || percentile_intervals(n, resamples, 0.95, seed, |idx| scorer.metrics(idx));
+    let bootstrap = || percentile_intervals(n, resamples, 0.95, seed, order, |idx| scorer.metrics(idx));
     // The resamples are scored on helper threads; the intervals are the same at any count.
     let per_thread = crate::selection::BOOTSTRAP_BYTES_PER_ROW.saturating_mul(n as u64);
     let intervals = match crate::threads::helper_pool(per_thread, "score bootstrap resamples") {

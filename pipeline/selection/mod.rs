@@ -17,7 +17,7 @@ use crate::error::{Error, Result};
 use crate::experiment::plan::Plan;
 use crate::experiment::prepared::Prepared;
 use crate::manifest::{CalibrationSpec, DecisionSpec, SelectionRule, ThresholdRule};
-use crate::metrics::bootstrap::{percentile_intervals, shared_percentile_intervals, Interval, Scorer};
+use crate::metrics::bootstrap::{percentile_intervals, shared_percentile_intervals, Interval, ResampleOrder, Scorer};
 use crate::metrics::calibration::{class_table, reliability_bins, top_label_table, ReliabilityBin};
 use crate::metrics::classification::{confusion_matrix, per_class, predicted_classes, ClassReport};
 use crate::metrics::classification::{operating_point_at, youden_threshold};
@@ -443,6 +443,7 @@ pub(crate) fn evaluate_test(
     let k = head.values_per_row();
     let subset = |out: &[f64], idx: &[usize]| crate::training::head::rows_of(out, test_y, k, idx);
     let (bootstrap, bootstrap_seed) = (inputs.bootstrap, inputs.bootstrap_seed);
+    let order = ResampleOrder::of_layout(inputs.layout_version);
     let mut groups = Vec::new();
     for g in inputs.group_columns {
         let mut levels: BTreeMap<String, Vec<usize>> = BTreeMap::new();
@@ -458,7 +459,7 @@ pub(crate) fn evaluate_test(
             };
             // The level's rows in level order: a resample of them is the same rows as before.
             let scorer = ResampleScorer::new(head, &o, &y);
-            let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, |within| scorer.metrics(within));
+            let intervals = percentile_intervals(idx.len(), bootstrap, 0.95, bootstrap_seed, order, |within| scorer.metrics(within));
             groups.push(GroupMetrics {
                 column: g.name.clone(),
                 level,
@@ -510,11 +511,8 @@ pub(crate) fn evaluate_test(
     };
     let with_calibration = map.is_some() && matches!(test_y, Labels::Classes { .. });
     let raw_scorer = with_calibration.then(|| ResampleScorer::new(head, &raw_outputs, test_y));
-    let before_scorer = |idx: &[usize]| -> MetricSet {
-        let mut m = raw_scorer.as_ref().map(|s| s.metrics(idx)).unwrap_or_default();
-        m.retain(|name, _| CALIBRATION_METRICS.contains(&name.as_str()));
-        m
-    };
+    let before_scorer =
+        |idx: &[usize]| -> MetricSet { raw_scorer.as_ref().map(|s| s.named_metrics(idx, &CALIBRATION_METRICS)).unwrap_or_default() };
     let single_scorer = ensemble.then(|| ResampleScorer::new(head, &members[chosen].outputs, test_y));
     let single = |idx: &[usize]| single_scorer.as_ref().map(|s| s.metrics(idx)).unwrap_or_default();
     let main = |idx: &[usize]| scorer.metrics(idx);
@@ -528,7 +526,7 @@ pub(crate) fn evaluate_test(
     if ensemble {
         asked.push(&single);
     }
-    let mut found = shared_percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, &asked).into_iter();
+    let mut found = shared_percentile_intervals(test_y.len(), bootstrap, 0.95, bootstrap_seed, order, &asked).into_iter();
     let intervals = found.next().unwrap_or_default();
     let chosen_threshold = match (test_y, decided) {
         (Labels::Classes { rows, .. }, Some((point, predicted))) => {

@@ -20,11 +20,14 @@ use crate::error::{Error, Result};
 /// experiment fingerprint, so a run folder may be a copy of another experiment's identical run,
 /// and its heavier analyses (importance, sensitivity) use at most 10,000 test rows, a seeded
 /// sample above that (`analysis/sample.rs`). Version 9 chooses the threshold reference row from
-/// at most 100,000 training rows, a seeded sample above that (`analysis/sample.rs`).
-pub const FORMAT_VERSION: u32 = 9;
+/// at most 100,000 training rows, a seeded sample above that (`analysis/sample.rs`). Version 10
+/// scores each bootstrap resample's rows in row order rather than in the order drawn
+/// (`metrics::bootstrap::ResampleOrder`): the same resamples, with the last bits of their sums
+/// (log loss, Brier, ECE, the regression metrics) moved.
+pub const FORMAT_VERSION: u32 = 10;
 
 /// The layout versions this tool reads (a version-2 folder under its own file names).
-pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7, 8, 9];
+pub const READABLE_VERSIONS: &[u32] = &[2, 3, 4, 5, 6, 7, 8, 9, 10];
 
 /// Identifies a results folder and the tool that wrote it.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]

@@ -68,6 +68,19 @@ impl<'a> ResampleScorer<'a> {
             }
         }
     }
+
+    /// The metrics named in `names` of the resample `idx`, with the bits [`Self::metrics`] gives
+    /// them; a classified sample computes no other.
+    pub(crate) fn named_metrics(&self, idx: &[usize], names: &[&str]) -> MetricSet {
+        match &self.classified {
+            Some(sample) => registry::named_resample_metrics(&sample.resample(idx), names),
+            None => {
+                let mut all = self.metrics(idx);
+                all.retain(|name, _| names.contains(&name.as_str()));
+                all
+            }
+        }
+    }
 }
 
 /// Regression targets are standardised with the training rows' mean and standard deviation.

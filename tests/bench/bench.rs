@@ -11,6 +11,10 @@
 //! bench scale ROWS COLS                     one epoch of the reference MLP on an in-memory matrix, peak RSS
 //! bench matmul [--level NAME]               the portable kernels' rate per dispatch level (or one),
 //!                                           and gemm's, on the reference MLP's products
+//! bench bootstrap ROWS [--resamples R] [--order drawn|rows] [--threads N]
+//!                                           a binary test split's bootstrap (the deployed model's
+//!                                           metrics, its decisions, the uncalibrated outputs) with
+//!                                           resamples scored in draw order and in row order
 //! ```
 
 use std::path::Path;
@@ -246,6 +250,57 @@ fn bench_scale(args: &[String]) {
     );
 }
 
+/// The bootstrap of a binary test split as `selection::evaluate_test` runs it with a calibration
+/// map and a threshold: every metric of the deployed outputs, the decisions' accuracy and
+/// balanced accuracy, and the uncalibrated outputs' metrics, scored on the same resamples, on the
+/// global rayon pool. Timed once per order; the timer covers preparing the samples and the
+/// resamples, as the command's does.
+fn bench_bootstrap(args: &[String]) {
+    use tabcard::metrics::bootstrap::{shared_percentile_intervals, ResampleOrder, Scorer};
+    use tabcard::metrics::registry::{named_resample_metrics, resample_metrics};
+    use tabcard::metrics::resample::{decision_metrics, ClassifiedSample};
+    use tabcard::metrics::MetricSet;
+    let rows: usize = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(1_000_000);
+    let resamples: usize = arg(args, "--resamples", 200);
+    let mut stream = Stream::new(2026, Purpose::DemoData);
+    let labels: Vec<usize> = (0..rows).map(|_| stream.below(2) as usize).collect();
+    // Scores that lean towards the label, with a calibration-like squeeze for the raw outputs.
+    let probs: Vec<f64> = labels
+        .iter()
+        .flat_map(|&y| {
+            let p = (0.35 * y as f64 + 0.65 * stream.uniform()).clamp(1e-6, 1.0 - 1e-6);
+            [1.0 - p, p]
+        })
+        .collect();
+    let raw: Vec<f64> = probs.iter().map(|p| 0.5 + (p - 0.5) * 0.8).collect();
+    let decided: Vec<usize> = probs.chunks_exact(2).map(|r| usize::from(r[1] >= 0.5)).collect();
+    let only: String = arg(args, "--order", String::new());
+    let threads: usize = arg(args, "--threads", 1);
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("a thread pool");
+    for order in [ResampleOrder::Drawn, ResampleOrder::Rows] {
+        if !only.is_empty() && !format!("{order:?}").eq_ignore_ascii_case(&only) {
+            continue;
+        }
+        let started = Instant::now();
+        let (deployed, uncalibrated) = (ClassifiedSample::new(&labels, &probs, 2), ClassifiedSample::new(&labels, &raw, 2));
+        let main = |idx: &[usize]| resample_metrics(&deployed.resample(idx));
+        let decisions = |idx: &[usize]| {
+            let (a, b) = decision_metrics(&labels, &decided, 2, idx);
+            MetricSet::from([("accuracy".to_string(), a), ("balanced_accuracy".to_string(), b)])
+        };
+        // Before calibration, only the calibration metrics (as the test split's report keeps them).
+        let before = |idx: &[usize]| named_resample_metrics(&uncalibrated.resample(idx), &["ece", "brier", "log_loss"]);
+        let scorers: [&Scorer; 3] = [&main, &decisions, &before];
+        let intervals = pool.install(|| shared_percentile_intervals(rows, resamples, 0.95, 7, order, &scorers));
+        let seconds = started.elapsed().as_secs_f64();
+        let auc = intervals[0].get("roc_auc").map_or(f64::NAN, |i| i.lower);
+        println!(
+            "{{\"rows\": {rows}, \"resamples\": {resamples}, \"order\": \"{order:?}\", \"threads\": {}, \"seconds\": {seconds:.3}, \"roc_auc_lower\": {auc}}}",
+            pool.current_num_threads()
+        );
+    }
+}
+
 /// How a product reads its operands, as the engine's three products do.
 #[derive(Clone, Copy)]
 enum Orientation {
@@ -416,8 +471,9 @@ fn main() {
         Some("load") => bench_load(&args),
         Some("scale") => bench_scale(&args),
         Some("matmul") => bench_matmul(&args),
+        Some("bootstrap") => bench_bootstrap(&args),
         _ => {
-            eprintln!("usage: bench data|train|hash|load|scale ... (see tests/bench/bench.rs)");
+            eprintln!("usage: bench data|train|hash|load|scale|matmul|bootstrap ... (see tests/bench/bench.rs)");
             std::process::exit(2);
         }
     }
