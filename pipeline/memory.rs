@@ -1,5 +1,6 @@
 //! The memory this process may still use, as the system states it: what sizes the first pass's and
-//! the bootstrap's thread pools, and what the feasibility estimate is judged against.
+//! the bootstrap's thread pools, and what the feasibility estimate is judged against; and handing
+//! freed memory back to the system between phases.
 
 fn first_number(text: &str, key: &str) -> Option<u64> {
     text.lines().find_map(|l| l.strip_prefix(key)).and_then(|rest| rest.split_whitespace().next()).and_then(|v| v.parse().ok())
@@ -27,4 +28,22 @@ pub fn available_bytes() -> Option<u64> {
         limits.extend(text.trim().parse::<u64>().ok());
     }
     limits.into_iter().min()
+}
+
+/// Hands memory freed by a finished phase back to the system before the next phase allocates its
+/// own. glibc's allocator keeps freed blocks below its mmap threshold (which rises to 32 MiB as
+/// large blocks are freed) in its heaps, so the first pass's column buffers would otherwise stay
+/// resident beside the matrices. Elsewhere a no-op.
+pub fn return_freed_memory() {
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    {
+        extern "C" {
+            fn malloc_trim(pad: usize) -> std::ffi::c_int;
+        }
+        // SAFETY: malloc_trim only releases free memory of glibc's own heaps; it touches no live
+        // allocation and is safe to call from any thread at any time.
+        unsafe {
+            malloc_trim(0);
+        }
+    }
 }

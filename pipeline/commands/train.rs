@@ -179,7 +179,7 @@ fn select_and_record(
     let mut since = Instant::now();
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
     prepared.release_validation_matrix();
-    crate::experiment::feasibility::return_freed_memory();
+    crate::memory::return_freed_memory();
     timed(phase::EVALUATE, &mut since);
     let prepared = &*prepared;
     let fairness = crate::analysis::fairness::derive(prepared, &derived)?;
@@ -337,11 +337,11 @@ pub fn run(manifest_path: &Path, options: &TrainOptions, on_event: &(dyn Fn(Even
     // First, so that an unusable TABCARD_KERNEL stops the command before anything is written.
     let environment = crate::numerics::current()?;
     let exp = open(manifest_path)?;
-    crate::experiment::feasibility::return_freed_memory();
+    crate::memory::return_freed_memory();
     let mut phases = vec![Phase::top(phase::SCAN, started.elapsed().as_secs_f64())];
     let building = Instant::now();
     let mut prepared = Prepared::new(exp)?;
-    crate::experiment::feasibility::return_freed_memory();
+    crate::memory::return_freed_memory();
     phases.push(Phase::top(phase::MATRICES, building.elapsed().as_secs_f64()));
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;

@@ -6,6 +6,7 @@
 //! work one feature column at a time, so the matrices can be built from a file read column by
 //! column ([`Preprocessor::transform_source`]).
 
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::{BTreeMap, HashMap};
 use std::path::Path;
@@ -219,18 +220,64 @@ impl Preprocessor {
     /// Encodes each row list of `parts` into its own matrix, reading `source` a few feature columns
     /// at a time (`columns_per_read`): only the matrices and those decoded columns are ever held. Bit for bit what
     /// [`Preprocessor::transform`] gives for each part on the whole table.
-    pub fn transform_source(&self, source: &dyn ColumnSource, parts: &[&[usize]]) -> Result<Vec<(Matrix, TransformReport)>> {
+    ///
+    /// Windows of columns are read and encoded on a helper pool, as many at once as it has
+    /// threads (each into blocks of its own columns), then copied into place in column order; the
+    /// matrices and reports are the ones a window-by-window pass gives, and an error is the first
+    /// in column order.
+    pub fn transform_source(&self, source: &(dyn ColumnSource + Sync), parts: &[&[usize]]) -> Result<Vec<(Matrix, TransformReport)>> {
+        let per_read = super::source::columns_per_read(source.rows(), 1);
+        // A thread holds a window's decoded columns (f64 values and validity) and its blocks.
+        let part_rows: usize = parts.iter().map(|p| p.len()).sum();
+        let widest = self.inputs.chunks(per_read).map(|w| w.iter().map(InputEncoding::width).sum::<usize>()).max().unwrap_or(0);
+        let per_thread = (source.rows() as u64 * 16).saturating_mul(per_read as u64) + (part_rows as u64) * (4 * widest as u64 + 1);
+        let pool = crate::threads::helper_pool(per_thread, "encode the matrices' columns")?;
+        let matrices = self.transform_source_on(&pool, source, parts);
+        // The threads' decoded columns were freed into their own heaps; hand them back before
+        // the matrices are put to work.
+        crate::memory::return_freed_memory();
+        matrices
+    }
+
+    /// [`Preprocessor::transform_source`] on `pool`.
+    fn transform_source_on(
+        &self,
+        pool: &rayon::ThreadPool,
+        source: &(dyn ColumnSource + Sync),
+        parts: &[&[usize]],
+    ) -> Result<Vec<(Matrix, TransformReport)>> {
         let width = self.width();
         let mut outs: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(width, rows)).collect();
-        let mut offset = 0;
-        for window in self.inputs.chunks(super::source::columns_per_read(source.rows(), 1)) {
+        let per_read = super::source::columns_per_read(source.rows(), 1);
+        let windows: Vec<(usize, &[InputEncoding])> = self
+            .inputs
+            .chunks(per_read)
+            .scan(0, |offset, window| {
+                let at = *offset;
+                *offset += window.iter().map(InputEncoding::width).sum::<usize>();
+                Some((at, window))
+            })
+            .collect();
+        let encode_window = |window: &[InputEncoding]| -> Result<Vec<Encoded>> {
             let names: Vec<&str> = window.iter().map(InputEncoding::name).collect();
             let columns = source.columns(&names)?;
+            let block_width = window.iter().map(InputEncoding::width).sum();
+            let mut blocks: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(block_width, rows)).collect();
+            let mut at = 0;
             for (enc, col) in window.iter().zip(&columns) {
-                for out in &mut outs {
-                    out.encode(enc, col, offset, source.path())?;
+                for block in &mut blocks {
+                    block.encode(enc, col, at, source.path())?;
                 }
-                offset += enc.width();
+                at += enc.width();
+            }
+            Ok(blocks)
+        };
+        for batch in windows.chunks(pool.current_num_threads()) {
+            let encoded: Vec<Result<Vec<Encoded>>> = pool.install(|| batch.par_iter().map(|(_, window)| encode_window(window)).collect());
+            for (&(offset, _), blocks) in batch.iter().zip(encoded) {
+                for (out, block) in outs.iter_mut().zip(blocks?) {
+                    pool.install(|| out.absorb(block, offset));
+                }
             }
         }
         Ok(outs.into_iter().map(Encoded::finish).collect())
@@ -251,6 +298,26 @@ impl<'a> Encoded<'a> {
             m: Matrix::zeros(rows.len(), width),
             report: TransformReport { out_of_range: vec![false; rows.len()], ..Default::default() },
         }
+    }
+
+    /// Takes in `block`, the same rows encoded for the columns from `offset` on: its values copied
+    /// into place (row bands in parallel on the current pool, so the fresh pages they touch are
+    /// faulted in on every thread), its flags and counts merged.
+    fn absorb(&mut self, block: Encoded, offset: usize) {
+        let (width, block_width) = (self.m.cols, block.m.cols);
+        if block_width > 0 {
+            const BAND_ROWS: usize = 4096;
+            self.m.data.par_chunks_mut(BAND_ROWS * width).zip(block.m.data.par_chunks(BAND_ROWS * block_width)).for_each(|(out, from)| {
+                for (row, values) in out.chunks_exact_mut(width).zip(from.chunks_exact(block_width)) {
+                    row[offset..offset + block_width].copy_from_slice(values);
+                }
+            });
+        }
+        for (flag, &out_of_range) in self.report.out_of_range.iter_mut().zip(&block.report.out_of_range) {
+            *flag |= out_of_range;
+        }
+        self.report.unseen_levels.extend(block.report.unseen_levels);
+        self.report.imputed_unseen_missing.extend(block.report.imputed_unseen_missing);
     }
 
     fn finish(mut self) -> (Matrix, TransformReport) {
@@ -360,6 +427,97 @@ impl<'a> Encoded<'a> {
 mod tests {
     use super::*;
     use crate::metrics::bootstrap::quantile_sorted;
+
+    /// A Parquet file of 160,000 rows: 26 numeric columns (some with missing values, some with
+    /// values beyond the first rows' range, `nan_in` holding a NaN in row 99,999) and two text
+    /// columns (missing values, and a level the first rows never hold). At this length a read
+    /// takes 13 whole columns, so the 28 columns are three windows.
+    fn mixed_file(dir: &Path, nan_in: &[usize]) -> (std::path::PathBuf, Vec<Feature>) {
+        use arrow::array::{ArrayRef, Float64Array, StringArray};
+        use std::sync::Arc;
+        let rows = 160_000;
+        let mut stream = crate::rng::Stream::new(8, crate::rng::Purpose::DemoData);
+        let mut columns: Vec<(String, ArrayRef)> = Vec::new();
+        let mut features = Vec::new();
+        for c in 0..26 {
+            let values: Vec<Option<f64>> = (0..rows)
+                .map(|r| {
+                    let v = stream.normal() * (c + 1) as f64;
+                    match r {
+                        99_999 if nan_in.contains(&c) => Some(f64::NAN),
+                        _ if c % 3 == 0 && r % 17 == 5 => None,
+                        _ if r > 100_000 && r % 1_001 == 0 => Some(v * 50.0),
+                        _ => Some(v),
+                    }
+                })
+                .collect();
+            columns.push((format!("n{c:02}"), Arc::new(Float64Array::from(values)) as ArrayRef));
+            features.push(Feature { name: format!("n{c:02}"), categorical: false });
+        }
+        for c in 0..2 {
+            let labels: Vec<Option<&str>> = (0..rows)
+                .map(|r| match (r % 13, stream.below(3)) {
+                    (4, _) => None,
+                    _ if r > 120_000 && r % 7 == c => Some("unseen"),
+                    (_, 0) => Some("a"),
+                    (_, 1) => Some("b"),
+                    _ => Some("c"),
+                })
+                .collect();
+            columns.push((format!("c{c}"), Arc::new(StringArray::from(labels)) as ArrayRef));
+            features.push(Feature { name: format!("c{c}"), categorical: true });
+        }
+        let path = dir.join("mixed.parquet");
+        std::fs::write(&path, super::super::parquet::encode(columns, Default::default()).unwrap()).unwrap();
+        (path, features)
+    }
+
+    /// Built column window by column window on pools of 1 to 3 threads, the matrices and reports
+    /// are the ones the one-table transform gives, bit for bit.
+    #[test]
+    fn matrices_from_the_file_on_any_pool_equal_the_whole_table_transform() {
+        let dir = tempfile::tempdir().unwrap();
+        let (path, features) = mixed_file(dir.path(), &[]);
+        let table = super::super::parquet::read_table(&path).unwrap();
+        let first: Vec<usize> = (0..100_000).collect();
+        let rest: Vec<usize> = (100_000..160_000).rev().chain([3, 5, 5]).collect();
+        let pre = Preprocessor::fit(&table, &features, &first, &path).unwrap();
+        let source = super::super::parquet::ParquetSource::open(&path).unwrap();
+        assert_eq!(super::super::source::columns_per_read(source.rows(), 1), 13, "three windows");
+        let wanted: Vec<(Matrix, TransformReport)> =
+            [&first, &rest].iter().map(|rows| pre.transform(&table, rows, &path).unwrap()).collect();
+        assert!(wanted[1].1.out_of_range_rows > 0 && !wanted[1].1.unseen_levels.is_empty() && wanted[0].1.unseen_levels.is_empty());
+        for threads in 1..=3 {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            let got = pre.transform_source_on(&pool, &source, &[&first, &rest]).unwrap();
+            for ((m, report), (want_m, want_report)) in got.iter().zip(&wanted) {
+                assert_eq!((m.rows, m.cols), (want_m.rows, want_m.cols));
+                assert!(m.data.iter().zip(&want_m.data).all(|(a, b)| a.to_bits() == b.to_bits()), "{threads} threads");
+                assert_eq!(report.out_of_range, want_report.out_of_range);
+                assert_eq!(report.out_of_range_rows, want_report.out_of_range_rows);
+                assert_eq!(report.unseen_levels, want_report.unseen_levels);
+                assert_eq!(report.imputed_unseen_missing, want_report.imputed_unseen_missing);
+            }
+        }
+    }
+
+    /// Two bad columns in different windows: the error names the first in column order, on
+    /// any pool.
+    #[test]
+    fn the_first_bad_column_is_the_one_reported_on_any_pool() {
+        let dir = tempfile::tempdir().unwrap();
+        let (path, features) = mixed_file(dir.path(), &[20, 4]);
+        let first: Vec<usize> = (0..1_000).collect();
+        let table = super::super::parquet::read_table(&path).unwrap();
+        let pre = Preprocessor::fit(&table, &features, &first, &path).unwrap();
+        let source = super::super::parquet::ParquetSource::open(&path).unwrap();
+        let all: Vec<usize> = (0..source.rows()).collect();
+        for threads in 1..=3 {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            let message = pre.transform_source_on(&pool, &source, &[&all]).unwrap_err().to_string();
+            assert!(message.contains("n04") && message.contains("row 99999"), "{threads} threads: {message}");
+        }
+    }
 
     #[test]
     fn selection_gives_the_sorted_order_statistics() {

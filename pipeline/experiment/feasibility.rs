@@ -201,21 +201,3 @@ fn advice(e: &MemoryEstimate) -> String {
         _ => "reduce `model.hidden` (or its grid values) or --jobs".into(),
     }
 }
-
-/// Hands memory freed by a finished phase back to the system before the next phase allocates its
-/// own. glibc's allocator keeps freed blocks below its mmap threshold (which rises to 32 MiB as
-/// large blocks are freed) in its heaps, so the first pass's column buffers would otherwise stay
-/// resident beside the matrices. Elsewhere a no-op.
-pub fn return_freed_memory() {
-    #[cfg(all(target_os = "linux", target_env = "gnu"))]
-    {
-        extern "C" {
-            fn malloc_trim(pad: usize) -> std::ffi::c_int;
-        }
-        // SAFETY: malloc_trim only releases free memory of glibc's own heaps; it touches no live
-        // allocation and is safe to call from any thread at any time.
-        unsafe {
-            malloc_trim(0);
-        }
-    }
-}

@@ -128,9 +128,10 @@ pub fn shared_percentile_intervals(
     scorers: &[&Scorer],
 ) -> Vec<BTreeMap<String, Interval>> {
     use rayon::prelude::*;
-    let all: Vec<usize> = (0..n).collect();
-    let estimates: Vec<Vec<(String, f64)>> =
-        scorers.iter().map(|metrics| metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect()).collect();
+    let estimates: Vec<Vec<(String, f64)>> = {
+        let all: Vec<usize> = (0..n).collect();
+        scorers.iter().map(|metrics| metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect()).collect()
+    };
     if n == 0 || resamples == 0 || estimates.iter().all(Vec::is_empty) {
         return vec![BTreeMap::new(); scorers.len()];
     }

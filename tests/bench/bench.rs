@@ -15,6 +15,8 @@
 //!                                           a binary test split's bootstrap (the deployed model's
 //!                                           metrics, its decisions, the uncalibrated outputs) with
 //!                                           resamples scored in draw order and in row order
+//! bench medians ROWS COLS [--threads N]     every column's median of a row-major f32 matrix of
+//!                                           standard-normal values (the median reference row)
 //! ```
 
 use std::path::Path;
@@ -301,6 +303,26 @@ fn bench_bootstrap(args: &[String]) {
     }
 }
 
+/// The exact median of every column of a `ROWS x COLS` row-major f32 matrix, as the sensitivity
+/// analysis's median reference row finds it (`column_values_at_ranks`), on a pool of N threads.
+/// The timer covers the selection only (the matrix is filled outside it); best of 3.
+fn bench_medians(args: &[String]) {
+    use tabcard::metrics::order_statistics::{column_values_at_ranks, linear_ranks};
+    let rows: usize = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(8_000_000);
+    let cols: usize = args.get(3).and_then(|s| s.parse().ok()).unwrap_or(64);
+    let threads: usize = arg(args, "--threads", 1);
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("a thread pool");
+    let mut stream = Stream::new(2026, Purpose::DemoData);
+    let data: Vec<f32> = (0..rows * cols).map(|_| stream.normal() as f32).collect();
+    let columns: Vec<usize> = (0..cols).collect();
+    let ranks = linear_ranks(rows - 1, 0.5);
+    let (seconds, found) = best_of(3, || pool.install(|| column_values_at_ranks(&data, cols, &columns, &ranks)));
+    println!(
+        "{{\"rows\": {rows}, \"cols\": {cols}, \"threads\": {threads}, \"seconds\": {seconds:.3}, \"first_median\": {}}}",
+        found[0][0]
+    );
+}
+
 /// How a product reads its operands, as the engine's three products do.
 #[derive(Clone, Copy)]
 enum Orientation {
@@ -472,8 +494,9 @@ fn main() {
         Some("scale") => bench_scale(&args),
         Some("matmul") => bench_matmul(&args),
         Some("bootstrap") => bench_bootstrap(&args),
+        Some("medians") => bench_medians(&args),
         _ => {
-            eprintln!("usage: bench data|train|hash|load|scale|matmul|bootstrap ... (see tests/bench/bench.rs)");
+            eprintln!("usage: bench data|train|hash|load|scale|matmul|bootstrap|medians ... (see tests/bench/bench.rs)");
             std::process::exit(2);
         }
     }

@@ -32,9 +32,48 @@ impl std::io::Read for Positioned<'_> {
     }
 }
 
+/// The open file as the Parquet reader's source, read only by positioned reads: the reader
+/// parquet implements for `File` seeks the offset every clone of the handle shares, so two
+/// decodes at once would read each other's places. With this one, any number of threads decode
+/// columns of the same file at once.
+struct PositionedSource(std::sync::Arc<std::fs::File>);
+
+/// A [`PositionedSource`] reader from one position.
+struct OwnedPositioned {
+    file: std::sync::Arc<std::fs::File>,
+    at: u64,
+}
+
+impl std::io::Read for OwnedPositioned {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        Positioned { file: &self.file, at: self.at }.read(buf).inspect(|&n| self.at += n as u64)
+    }
+}
+
+impl parquet::file::reader::Length for PositionedSource {
+    fn len(&self) -> u64 {
+        self.0.metadata().map_or(0, |m| m.len())
+    }
+}
+
+impl parquet::file::reader::ChunkReader for PositionedSource {
+    type T = std::io::BufReader<OwnedPositioned>;
+
+    fn get_read(&self, start: u64) -> parquet::errors::Result<Self::T> {
+        Ok(std::io::BufReader::new(OwnedPositioned { file: self.0.clone(), at: start }))
+    }
+
+    fn get_bytes(&self, start: u64, length: usize) -> parquet::errors::Result<bytes::Bytes> {
+        let mut buffer = vec![0u8; length];
+        std::os::unix::fs::FileExt::read_exact_at(self.0.as_ref(), &mut buffer, start)
+            .map_err(|e| parquet::errors::ParquetError::External(Box::new(e)))?;
+        Ok(buffer.into())
+    }
+}
+
 pub struct ParquetSource {
     path: std::path::PathBuf,
-    file: std::fs::File,
+    file: std::sync::Arc<std::fs::File>,
     /// The footer, parsed once: every later read reuses it, so a read of a few columns costs the
     /// same on a 10,000-column file as on a 10-column one.
     metadata: ArrowReaderMetadata,
@@ -63,7 +102,7 @@ impl ParquetSource {
             Ok((metadata, builder.schema().fields().iter().map(|f| f.as_ref().clone()).collect::<Vec<_>>(), rows))
         })?;
         let index = fields.iter().enumerate().map(|(i, f)| (f.name().clone(), i)).collect();
-        Ok(ParquetSource { path: path.to_path_buf(), file, metadata, fields, index, rows, identity })
+        Ok(ParquetSource { path: path.to_path_buf(), file: std::sync::Arc::new(file), metadata, fields, index, rows, identity })
     }
 
     pub fn path(&self) -> &Path {
@@ -98,12 +137,11 @@ impl ParquetSource {
         Error::data(&self.path, None, "changed while tabcard was reading it; run again on a file that stays put")
     }
 
-    fn reader(&self) -> Result<ParquetRecordBatchReaderBuilder<std::fs::File>> {
+    fn reader(&self) -> Result<ParquetRecordBatchReaderBuilder<PositionedSource>> {
         if identity_of(&self.file) != self.identity {
             return Err(self.changed());
         }
-        let file = self.file.try_clone().map_err(|e| Error::io(&self.path, "open the data file", e))?;
-        Ok(ParquetRecordBatchReaderBuilder::new_with_metadata(file, self.metadata.clone()))
+        Ok(ParquetRecordBatchReaderBuilder::new_with_metadata(PositionedSource(self.file.clone()), self.metadata.clone()))
     }
 
     /// The named columns (in file order) across every row group.
