@@ -48,7 +48,8 @@ impl Series for Slice<'_> {
     }
 }
 
-/// Some columns of a row-major f32 matrix, read row by row.
+/// Some columns of a row-major f32 matrix, read a band of rows at a time, one column after
+/// another within the band: the band stays in cache while each column's counts do too.
 struct Columns<'a> {
     data: &'a [f32],
     cols: usize,
@@ -60,9 +61,13 @@ impl Series for Columns<'_> {
         self.columns.len()
     }
     fn each(&self, mut visit: impl FnMut(usize, f64)) {
-        for row in self.data.chunks_exact(self.cols) {
+        /// Rows of a band: 256 rows of 64 f32 columns are 64 KiB (1,024 rows and 4,096 were slower).
+        const BAND_ROWS: usize = 256;
+        for band in self.data.chunks(BAND_ROWS * self.cols) {
             for (s, &j) in self.columns.iter().enumerate() {
-                visit(s, f64::from(row[j]));
+                for row in band.chunks_exact(self.cols) {
+                    visit(s, f64::from(row[j]));
+                }
             }
         }
     }
