@@ -177,8 +177,8 @@ fn select_and_record(
         *since = Instant::now();
     };
     let mut since = Instant::now();
+    // Frees the validation matrix before the test bootstrap (its last use is the threshold).
     let derived = crate::selection::derive(prepared, &runs, crate::store::FORMAT_VERSION)?;
-    prepared.release_validation_matrix();
     crate::memory::return_freed_memory();
     timed(phase::EVALUATE, &mut since);
     let prepared = &*prepared;

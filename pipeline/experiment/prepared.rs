@@ -36,13 +36,6 @@ impl Prepared {
         Ok(Prepared { exp, plan, train_x, validation_x, train_y, validation_y })
     }
 
-    /// Frees the validation matrix once the test evaluation (whose calibration scores the
-    /// validation rows) is done: no later analysis reads it, and over millions of rows it would
-    /// stay in memory through them.
-    pub fn release_validation_matrix(&mut self) {
-        self.validation_x = Matrix::default();
-    }
-
     pub fn run_data(&self) -> RunData<'_> {
         RunData { train_x: &self.train_x, train_y: &self.train_y, validation_x: &self.validation_x, validation_y: &self.validation_y }
     }

@@ -54,6 +54,22 @@ pub struct Metric {
     pub on_card: bool,
     pub scale: Scale,
     pub compute: fn(&Scored) -> Option<f64>,
+    /// The per-row copy of a classifier's outputs it reads besides the labels and probabilities.
+    pub reads: Reads,
+}
+
+/// What a classification metric reads of [`Scored::Classes`] besides `labels`, `probs` and `k`,
+/// so that [`classification_metrics`] holds one per-row copy at a time: over millions of rows,
+/// the decided classes (8 bytes a row) and the positive-class scores (9) would otherwise coexist
+/// and set a run's peak memory.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Reads {
+    /// Nothing more (and every regression metric).
+    Outputs,
+    /// `predicted`, the arg-max classes.
+    Decisions,
+    /// `is_positive` and `p_positive` (binary).
+    Positives,
 }
 
 fn classes(s: &Scored, f: impl Fn(&[usize], &[f64], usize, &[usize]) -> Option<f64>) -> Option<f64> {
@@ -86,7 +102,13 @@ fn classified(s: &Scored, resampled: impl Fn(&Resample) -> Option<f64>, rows: fn
 }
 
 const fn metric(name: &'static str, direction: Direction, on_card: bool, scale: Scale, compute: fn(&Scored) -> Option<f64>) -> Metric {
-    Metric { name, direction, on_card, scale, compute }
+    Metric { name, direction, on_card, scale, compute, reads: Reads::Outputs }
+}
+
+impl Metric {
+    const fn reading(self, reads: Reads) -> Metric {
+        Metric { reads, ..self }
+    }
 }
 
 use Direction::{Maximise, Minimise};
@@ -102,21 +124,23 @@ const ECE: fn(&Scored) -> Option<f64> =
 
 /// Binary, in card column order; the first is the default selection metric.
 const BINARY: &[Metric] = &[
-    metric("roc_auc", Maximise, true, Scale::Unit, |s| classified(s, |r| r.roc_auc(), |s| positives(s, c::roc_auc))),
+    metric("roc_auc", Maximise, true, Scale::Unit, |s| classified(s, |r| r.roc_auc(), |s| positives(s, c::roc_auc)))
+        .reading(Reads::Positives),
     metric("average_precision", Maximise, true, Scale::Unit, |s| {
         classified(s, |r| r.average_precision(), |s| positives(s, c::average_precision))
-    }),
+    })
+    .reading(Reads::Positives),
     metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
     metric("brier", Minimise, true, Scale::Unit, BRIER),
     metric("ece", Minimise, true, Scale::Unit, ECE),
-    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
-    metric("balanced_accuracy", Maximise, false, Scale::Unit, BALANCED_ACCURACY),
+    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY).reading(Reads::Decisions),
+    metric("balanced_accuracy", Maximise, false, Scale::Unit, BALANCED_ACCURACY).reading(Reads::Decisions),
 ];
 
 const MULTICLASS: &[Metric] = &[
     metric("log_loss", Minimise, true, Scale::ClassPriorLogLoss, LOG_LOSS),
-    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY),
-    metric("balanced_accuracy", Maximise, true, Scale::Unit, BALANCED_ACCURACY),
+    metric("accuracy", Maximise, true, Scale::Unit, ACCURACY).reading(Reads::Decisions),
+    metric("balanced_accuracy", Maximise, true, Scale::Unit, BALANCED_ACCURACY).reading(Reads::Decisions),
     metric("roc_auc", Maximise, true, Scale::Unit, |s| {
         classified(s, |r| r.roc_auc(), |s| classes(s, |l, pr, k, _| c::macro_ovr_auc(l, pr, k)))
     }),
@@ -189,12 +213,23 @@ pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
 
 /// Every classification metric of the table (binary when `k == 2`) of class probabilities
 /// (`k` per row) against class indices, by name.
+/// Each metric gets the per-row copy it reads ([`Reads`]), built for its group and dropped
+/// before the next group's.
 pub fn classification_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
-    let predicted = super::classification::predicted_classes(probs, k);
-    let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
-        if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
     let task = if k == 2 { Task::Binary } else { Task::Multiclass };
-    scalar_metrics(task, &Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &is_positive, p_positive: &p_positive })
+    let mut out = MetricSet::new();
+    let mut group = |reads: Reads, scored: &Scored| {
+        out.extend(table(task).iter().filter(|m| m.reads == reads).map(|m| (m.name.to_string(), (m.compute)(scored))));
+    };
+    group(Reads::Outputs, &Scored::Classes { labels, probs, k, predicted: &[], is_positive: &[], p_positive: &[] });
+    {
+        let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
+            if k == 2 { labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip() } else { (Vec::new(), Vec::new()) };
+        group(Reads::Positives, &Scored::Classes { labels, probs, k, predicted: &[], is_positive: &is_positive, p_positive: &p_positive });
+    }
+    let predicted = super::classification::predicted_classes(probs, k);
+    group(Reads::Decisions, &Scored::Classes { labels, probs, k, predicted: &predicted, is_positive: &[], p_positive: &[] });
+    out
 }
 
 /// [`classification_metrics`] of a bootstrap resample of a prepared sample: the same bits, in
@@ -220,6 +255,46 @@ pub fn regression_metrics(truth: &[f64], predicted: &[f64]) -> MetricSet {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Each metric declares what it reads: computed group by group, with only that copy present,
+    /// every metric has the bits it has with every copy present.
+    #[test]
+    fn metrics_by_what_they_read_equal_metrics_with_everything_present() {
+        let mut stream = crate::rng::Stream::new(4, crate::rng::Purpose::DemoData);
+        for k in [2usize, 3] {
+            let n = 500;
+            let probs: Vec<f64> = (0..n)
+                .flat_map(|_| {
+                    let w: Vec<f64> = (0..k).map(|_| 1.0 + stream.below(7) as f64).collect();
+                    let total: f64 = w.iter().sum();
+                    w.into_iter().map(move |v| v / total)
+                })
+                .collect();
+            let labels: Vec<usize> = (0..n).map(|_| stream.below(k as u64) as usize).collect();
+            let predicted = super::super::classification::predicted_classes(&probs, k);
+            let (is_positive, p_positive): (Vec<bool>, Vec<f64>) = if k == 2 {
+                labels.iter().map(|&y| y == 1).zip(probs.chunks_exact(2).map(|r| r[1])).unzip()
+            } else {
+                (Vec::new(), Vec::new())
+            };
+            let task = if k == 2 { Task::Binary } else { Task::Multiclass };
+            let everything = Scored::Classes {
+                labels: &labels,
+                probs: &probs,
+                k,
+                predicted: &predicted,
+                is_positive: &is_positive,
+                p_positive: &p_positive,
+            };
+            let want = scalar_metrics(task, &everything);
+            let got = classification_metrics(&labels, &probs, k);
+            assert_eq!(want.keys().collect::<Vec<_>>(), got.keys().collect::<Vec<_>>());
+            for (name, v) in &want {
+                assert!(v.is_some(), "{name} is defined here");
+                assert_eq!(v.map(f64::to_bits), got[name].map(f64::to_bits), "k {k}: {name}");
+            }
+        }
+    }
 
     #[test]
     fn every_task_table_has_unique_names_and_a_default_first() {

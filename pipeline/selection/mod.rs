@@ -337,7 +337,7 @@ pub(crate) struct EvaluationInputs<'a> {
     pub bootstrap: usize,
     pub bootstrap_seed: u64,
     pub group_columns: &'a [GroupColumn],
-    pub validation: (&'a Matrix, &'a Labels),
+    pub validation_y: &'a Labels,
     pub decision: &'a DecisionSpec,
     pub calibration: &'a CalibrationSpec,
     /// The results layout derived for: calibration, intervals, ensembles and top-label tables
@@ -398,20 +398,27 @@ fn score_seed(run: &StoredRun, test_x: &Matrix, validation: (&Matrix, &Labels), 
 /// Scores the test rows with every seed of the selected configuration as deployed (each seed
 /// with its own calibration map when the manifest asks for one); bootstrap intervals for the
 /// selected run, seeded by `bootstrap_seed`; the regression interval of the selected run.
+///
+/// `validation_x` holds the validation rows' matrix, which the calibration maps, the deployed
+/// threshold and the regression interval score; it is dropped (set to `None`) once they are
+/// done, before the bootstrap, which over a million test rows is the evaluation's largest
+/// working set.
 pub(crate) fn evaluate_test(
     runs: &[StoredRun],
     selected_config: &str,
     selected_run: &str,
-    test_x: &Matrix,
-    test_y: &Labels,
+    (test_x, test_y): (&Matrix, &Labels),
+    validation_x: &mut Option<Matrix>,
     inputs: &EvaluationInputs,
 ) -> Result<Evaluated> {
+    let validation_matrix = validation_x.as_ref().ok_or_else(|| Error::Internal("the validation matrix was already released".into()))?;
+    let validation = (validation_matrix, inputs.validation_y);
     let current = inputs.layout_version >= CALIBRATION_FROM;
     let method = if current { inputs.calibration.method } else { CalibrationMethod::None };
     let mut per_seed: Vec<MetricSet> = Vec::new();
     let mut members: Vec<SeedScores> = Vec::new();
     for r in runs.iter().filter(|r| r.record.config_id == selected_config && r.record.outcome.is_completed()) {
-        let scores = score_seed(r, test_x, inputs.validation, method)?;
+        let scores = score_seed(r, test_x, validation, method)?;
         per_seed.push(scores.model.head.metrics(&scores.outputs, test_y));
         members.push(scores);
     }
@@ -432,10 +439,10 @@ pub(crate) fn evaluate_test(
     // The deployed model's outputs on the validation rows (each member through its own map).
     let mut validation_outputs = || -> Result<Vec<f64>> {
         let scored: Vec<Vec<f64>> = if ensemble {
-            members.iter_mut().map(|m| m.model.score_calibrated(inputs.validation.0, m.map.as_ref())).collect::<Result<_>>()?
+            members.iter_mut().map(|m| m.model.score_calibrated(validation_matrix, m.map.as_ref())).collect::<Result<_>>()?
         } else {
             let m = &mut members[chosen];
-            return m.model.score_calibrated(inputs.validation.0, m.map.as_ref());
+            return m.model.score_calibrated(validation_matrix, m.map.as_ref());
         };
         Ok(mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>()))
     };
@@ -470,7 +477,7 @@ pub(crate) fn evaluate_test(
             });
         }
     }
-    let validation_y = inputs.validation.1;
+    let validation_y = inputs.validation_y;
     let decision = inputs.decision;
     // The deployed threshold (binary): chosen on the validation outputs, then the test rows decided.
     let decided = match (test_y, validation_y) {
@@ -496,6 +503,8 @@ pub(crate) fn evaluate_test(
         }
         _ => None,
     };
+    // The validation rows' last use was the threshold or the interval.
+    *validation_x = None;
     // Every bootstrap of the whole test split (the deployed model's metrics, its decisions at the
     // threshold, the uncalibrated outputs, the single run of an ensemble) scores the same
     // resamples, each drawn once.
@@ -627,8 +636,14 @@ pub(crate) fn group_columns(names: &[String], exp: &crate::experiment::Experimen
 
 /// The selection of a configuration from the stored runs and the one evaluation of its selected
 /// run on the test split: what `train` records in `selection.json` and `test-predictions.csv`, and
-/// `verify` re-derives, as results layout `layout_version` records them.
-pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u32) -> Result<Derived> {
+/// `verify` re-derives, as results layout `layout_version` records them. The validation matrix is
+/// taken from `prepared` and freed once the evaluation's last use of it is done: no analysis after
+/// selection reads it, and over millions of rows it would stay in memory through them.
+pub(crate) fn derive(prepared: &mut Prepared, runs: &[StoredRun], layout_version: u32) -> Result<Derived> {
+    if prepared.validation_x.rows != prepared.validation_y.len() {
+        return Err(crate::error::Error::Internal("the validation matrix was already released by an earlier derivation".into()));
+    }
+    let mut validation_x = Some(std::mem::take(&mut prepared.validation_x));
     let (exp, plan, preprocessor) = (&prepared.exp, &prepared.plan, &prepared.exp.preprocessor);
     let m = &exp.manifest;
     let picked = select(m.data.task, plan, runs, &m.selection.metric, m.selection.rule)?;
@@ -643,7 +658,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
         bootstrap: m.selection.bootstrap,
         bootstrap_seed: m.split.seed,
         group_columns: &groups,
-        validation: (&prepared.validation_x, &prepared.validation_y),
+        validation_y: &prepared.validation_y,
         decision: &m.decision.clone().unwrap_or_default(),
         calibration: &calibration,
         layout_version,
@@ -651,7 +666,7 @@ pub(crate) fn derive(prepared: &Prepared, runs: &[StoredRun], layout_version: u3
     };
     let per_thread = BOOTSTRAP_BYTES_PER_ROW.saturating_mul(test_x.rows as u64);
     let evaluated = crate::threads::helper_pool(per_thread, "score bootstrap resamples")?
-        .install(|| evaluate_test(runs, &picked.selected_config, &picked.selected_run, &test_x, &test_y, &inputs))?;
+        .install(|| evaluate_test(runs, &picked.selected_config, &picked.selected_run, (&test_x, &test_y), &mut validation_x, &inputs))?;
     let per_row = exp.head().values_per_row();
     let test_predictions = crate::store::run::predictions_csv(&exp.splits.test, &evaluated.outputs, per_row);
     let selection = Selection {

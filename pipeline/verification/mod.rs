@@ -283,7 +283,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
         Some(inputs) => RunNaming::Inputs(inputs.clone()),
         None => RunNaming::Fingerprint(record.fingerprint.clone()),
     };
-    let prepared = Prepared::with_naming(exp, &naming)?;
+    let mut prepared = Prepared::with_naming(exp, &naming)?;
     let stored_plan: Plan = sealed.plan()?;
     if stored_plan != prepared.plan {
         return Err(Error::store(layout.plan(), "differs from the plan the manifest expands to"));
@@ -351,7 +351,7 @@ pub(crate) fn verify(folder: &Path, request: &VerifyRequest, on_event: &(dyn Fn(
     // The selection and its one test evaluation, re-derived from the stored runs.
     let stored_runs = sealed.runs(&prepared.plan);
     let derived = match &stored_runs {
-        Ok(runs) => crate::selection::derive(&prepared, runs, sealed.layout_version),
+        Ok(runs) => crate::selection::derive(&mut prepared, runs, sealed.layout_version),
         // Shown as the reason the selection cannot be re-derived, as the error itself would be.
         Err(e) => Err(Error::Usage(e.to_string())),
     };
