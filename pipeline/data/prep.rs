@@ -229,7 +229,7 @@ impl Preprocessor {
         let per_read = super::source::columns_per_read(source.rows(), 1);
         // A thread holds a window's decoded columns (f64 values and validity) and its blocks.
         let part_rows: usize = parts.iter().map(|p| p.len()).sum();
-        let widest = self.inputs.chunks(per_read).map(|w| w.iter().map(InputEncoding::width).sum::<usize>()).max().unwrap_or(0);
+        let widest = self.windows(per_read).iter().map(|w| w.width).max().unwrap_or(0);
         let per_thread = (source.rows() as u64 * 16).saturating_mul(per_read as u64) + (part_rows as u64) * (4 * widest as u64 + 1);
         let pool = crate::threads::helper_pool(per_thread, "encode the matrices' columns")?;
         let matrices = self.transform_source_on(&pool, source, parts);
@@ -248,23 +248,13 @@ impl Preprocessor {
     ) -> Result<Vec<(Matrix, TransformReport)>> {
         let width = self.width();
         let mut outs: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(width, rows)).collect();
-        let per_read = super::source::columns_per_read(source.rows(), 1);
-        let windows: Vec<(usize, &[InputEncoding])> = self
-            .inputs
-            .chunks(per_read)
-            .scan(0, |offset, window| {
-                let at = *offset;
-                *offset += window.iter().map(InputEncoding::width).sum::<usize>();
-                Some((at, window))
-            })
-            .collect();
-        let encode_window = |window: &[InputEncoding]| -> Result<Vec<Encoded>> {
-            let names: Vec<&str> = window.iter().map(InputEncoding::name).collect();
+        let windows = self.windows(super::source::columns_per_read(source.rows(), 1));
+        let encode_window = |window: &Window| -> Result<Vec<Encoded>> {
+            let names: Vec<&str> = window.inputs.iter().map(InputEncoding::name).collect();
             let columns = source.columns(&names)?;
-            let block_width = window.iter().map(InputEncoding::width).sum();
-            let mut blocks: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(block_width, rows)).collect();
+            let mut blocks: Vec<Encoded> = parts.iter().map(|rows| Encoded::new(window.width, rows)).collect();
             let mut at = 0;
-            for (enc, col) in window.iter().zip(&columns) {
+            for (enc, col) in window.inputs.iter().zip(&columns) {
                 for block in &mut blocks {
                     block.encode(enc, col, at, source.path())?;
                 }
@@ -273,15 +263,36 @@ impl Preprocessor {
             Ok(blocks)
         };
         for batch in windows.chunks(pool.current_num_threads()) {
-            let encoded: Vec<Result<Vec<Encoded>>> = pool.install(|| batch.par_iter().map(|(_, window)| encode_window(window)).collect());
-            for (&(offset, _), blocks) in batch.iter().zip(encoded) {
+            let encoded: Vec<Result<Vec<Encoded>>> = pool.install(|| batch.par_iter().map(encode_window).collect());
+            for (window, blocks) in batch.iter().zip(encoded) {
                 for (out, block) in outs.iter_mut().zip(blocks?) {
-                    pool.install(|| out.absorb(block, offset));
+                    pool.install(|| out.absorb(block, window.offset));
                 }
             }
         }
         Ok(outs.into_iter().map(Encoded::finish).collect())
     }
+
+    /// The inputs in windows of `per_read` columns (one read each), with where each window's
+    /// outputs start and how many there are.
+    fn windows(&self, per_read: usize) -> Vec<Window<'_>> {
+        self.inputs
+            .chunks(per_read)
+            .scan(0, |offset, inputs| {
+                let width = inputs.iter().map(InputEncoding::width).sum::<usize>();
+                let window = Window { offset: *offset, width, inputs };
+                *offset += width;
+                Some(window)
+            })
+            .collect()
+    }
+}
+
+/// Feature columns read together, and the outputs they fill.
+struct Window<'a> {
+    offset: usize,
+    width: usize,
+    inputs: &'a [InputEncoding],
 }
 
 /// A matrix being filled one input encoding (one column's block of outputs) at a time.

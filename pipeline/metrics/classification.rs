@@ -2,7 +2,7 @@
 //! `[1 - p, p]`); labels are class indices. The predicted class is the arg-max, first index winning
 //! ties, so a binary prediction is positive when p > 0.5.
 
-use super::ranked::{stable_order, RowIndex};
+use super::ranked::{group_rank, stable_order, RowIndex};
 
 /// Per-class precision, recall, F1 and support; a zero denominator gives 0 (as scikit-learn's
 /// `zero_division=0`).
@@ -140,17 +140,12 @@ fn with_order<R>(scores: &[f64], descending: bool, walk: impl FnOnce(&mut dyn It
 fn average_ranks(scores: &[f64]) -> Vec<f64> {
     let mut ranks = vec![0.0; scores.len()];
     walk_tie_groups(scores, |start, group| {
-        let rank = group_rank(start, group.len());
+        let rank = group_rank(start as u64, group.len() as u64);
         for &idx in group {
             ranks[idx] = rank;
         }
     });
     ranks
-}
-
-/// The average of ranks start+1 ..= start+len: the rank each of a tie group's rows gets.
-fn group_rank(start: usize, len: usize) -> f64 {
-    (start + start + len - 1) as f64 / 2.0 + 1.0
 }
 
 /// Each run of tied scores in ascending order, as (its first position, its row indices).
@@ -186,7 +181,7 @@ pub fn roc_auc(is_positive: &[bool], scores: &[f64]) -> Option<f64> {
         // give the bits of the sum in row order without a rank per row.
         let mut sum = 0.0;
         walk_tie_groups(scores, |start, group| {
-            sum += group_rank(start, group.len()) * group.iter().filter(|&&idx| is_positive[idx]).count() as f64;
+            sum += group_rank(start as u64, group.len() as u64) * group.iter().filter(|&&idx| is_positive[idx]).count() as f64;
         });
         sum
     } else {

@@ -51,6 +51,13 @@ pub(crate) fn stable_order<I: RowIndex>(scores: &[f64], descending: bool) -> Vec
     order
 }
 
+/// The average of ranks `start + 1 ..= start + len`, the rank each row of a tie group gets:
+/// `start + (len + 1) / 2`, half a whole number, exact below 2^53 (an empty group gives
+/// `start + 1/2`, which the walks below multiply by no rows).
+pub(crate) fn group_rank(start: u64, len: u64) -> f64 {
+    (2 * start + len + 1) as f64 * 0.5
+}
+
 /// One sample's rows ordered by score, with its tie groups (runs of equal scores).
 #[derive(Debug, Clone)]
 pub struct Ranking {
@@ -107,29 +114,27 @@ impl Ranking {
     /// lowest scores first (or highest, `descending`). Groups the resample does not draw come as
     /// (0, 0): the walks below add exact zeros for them, so they need no branch that the draws
     /// would make unpredictable.
-    fn each_group(&self, counts: &[u32], descending: bool, mut f: impl FnMut(u64, u64)) {
-        let positives = |c: u32, positive: bool| if positive { c as u64 } else { 0 };
-        if self.starts.len() == counts.len() + 1 {
-            // No ties: each place is a group of its own.
-            let groups = counts.iter().zip(&self.positive).map(|(&c, &p)| (c as u64, positives(c, p)));
+    fn each_group(&self, counts: &[u32], descending: bool, f: impl FnMut(u64, u64)) {
+        fn walk(groups: impl DoubleEndedIterator<Item = (u64, u64)>, descending: bool, mut f: impl FnMut(u64, u64)) {
             if descending {
                 groups.rev().for_each(|(rows, pos)| f(rows, pos));
             } else {
                 groups.for_each(|(rows, pos)| f(rows, pos));
             }
-            return;
         }
-        let groups = self.starts.windows(2).map(|w| {
-            let group = w[0] as usize..w[1] as usize;
-            counts[group.clone()]
-                .iter()
-                .zip(&self.positive[group])
-                .fold((0u64, 0u64), |(rows, pos), (&c, &p)| (rows + c as u64, pos + positives(c, p)))
-        });
-        if descending {
-            groups.rev().for_each(|(rows, pos)| f(rows, pos));
+        let positives = |c: u32, positive: bool| if positive { c as u64 } else { 0 };
+        if self.starts.len() == counts.len() + 1 {
+            // No ties: each place is a group of its own.
+            walk(counts.iter().zip(&self.positive).map(|(&c, &p)| (c as u64, positives(c, p))), descending, f);
         } else {
-            groups.for_each(|(rows, pos)| f(rows, pos));
+            let groups = self.starts.windows(2).map(|w| {
+                let group = w[0] as usize..w[1] as usize;
+                counts[group.clone()]
+                    .iter()
+                    .zip(&self.positive[group])
+                    .fold((0u64, 0u64), |(rows, pos), (&c, &p)| (rows + c as u64, pos + positives(c, p)))
+            });
+            walk(groups, descending, f);
         }
     }
 
@@ -138,11 +143,9 @@ impl Ranking {
     pub fn roc_auc(&self, counts: &[u32]) -> Option<f64> {
         let (mut before, mut rank_sum, mut n_pos) = (0u64, 0.0f64, 0u64);
         self.each_group(counts, false, |rows, positives| {
-            // The group holds ranks before+1 ..= before+rows; each of its rows gets their mean,
-            // before + (rows + 1)/2: half a whole number, exact, as is every product and partial
-            // sum below (see MAX_ROWS), so an empty group adds an exact zero.
-            let rank = (2 * before + rows + 1) as f64 * 0.5;
-            rank_sum += rank * positives as f64;
+            // Every product and partial sum is exact (see MAX_ROWS), so an empty group adds an
+            // exact zero.
+            rank_sum += group_rank(before, rows) * positives as f64;
             before += rows;
             n_pos += positives;
         });

@@ -208,7 +208,12 @@ pub fn better(direction: Direction, a: f64, b: f64) -> bool {
 
 /// Every metric of `task` on `scored`, by name.
 pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
-    table(task).iter().map(|m| (m.name.to_string(), (m.compute)(scored))).collect()
+    metrics_where(task, scored, |_| true)
+}
+
+/// The metrics of `task`'s table that `keep` keeps, on `scored`, by name.
+fn metrics_where(task: Task, scored: &Scored, keep: impl Fn(&Metric) -> bool) -> MetricSet {
+    table(task).iter().filter(|m| keep(m)).map(|m| (m.name.to_string(), (m.compute)(scored))).collect()
 }
 
 /// Every classification metric of the table (binary when `k == 2`) of class probabilities
@@ -218,9 +223,7 @@ pub fn scalar_metrics(task: Task, scored: &Scored) -> MetricSet {
 pub fn classification_metrics(labels: &[usize], probs: &[f64], k: usize) -> MetricSet {
     let task = if k == 2 { Task::Binary } else { Task::Multiclass };
     let mut out = MetricSet::new();
-    let mut group = |reads: Reads, scored: &Scored| {
-        out.extend(table(task).iter().filter(|m| m.reads == reads).map(|m| (m.name.to_string(), (m.compute)(scored))));
-    };
+    let mut group = |reads: Reads, scored: &Scored| out.extend(metrics_where(task, scored, |m| m.reads == reads));
     group(Reads::Outputs, &Scored::Classes { labels, probs, k, predicted: &[], is_positive: &[], p_positive: &[] });
     {
         let (is_positive, p_positive): (Vec<bool>, Vec<f64>) =
@@ -243,8 +246,7 @@ pub fn resample_metrics(resample: &Resample) -> MetricSet {
 /// [`resample_metrics`] gives them; the others are not computed.
 pub fn named_resample_metrics(resample: &Resample, names: &[&str]) -> MetricSet {
     let task = if resample.classes() == 2 { Task::Binary } else { Task::Multiclass };
-    let scored = Scored::Resample(resample);
-    table(task).iter().filter(|m| names.contains(&m.name)).map(|m| (m.name.to_string(), (m.compute)(&scored))).collect()
+    metrics_where(task, &Scored::Resample(resample), |m| names.contains(&m.name))
 }
 
 /// Every regression metric of the table, by name.
