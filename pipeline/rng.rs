@@ -101,18 +101,41 @@ impl Stream {
     }
 
     /// Fills `out` with draws of [`Stream::below`]`(n)`: the same values, the rejection zone
-    /// computed once.
-    pub fn fill_below(&mut self, n: u64, out: &mut [usize]) {
+    /// computed once. Returns how many 64-bit draws were rejected on the way (each draw takes two
+    /// 32-bit words of the stream).
+    pub fn fill_below(&mut self, n: u64, out: &mut [usize]) -> u64 {
         debug_assert!(n > 0);
         let zone = u64::MAX - (u64::MAX % n);
+        let mut rejected = 0;
         for v in out {
             *v = loop {
                 let x = self.next_u64();
                 if x < zone {
                     break (x % n) as usize;
                 }
+                rejected += 1;
             };
         }
+        rejected
+    }
+
+    /// How far the stream has gone, in 32-bit words from its start.
+    pub fn word_position(&self) -> u128 {
+        self.rng.get_word_pos()
+    }
+
+    /// This stream as it stands `position` 32-bit words from its start, so that a later part of
+    /// it can be drawn on another thread: the same values as drawing up to there.
+    pub fn at_word(&self, position: u128) -> Stream {
+        let mut rng = self.rng.clone();
+        rng.set_word_pos(position);
+        Stream { rng, spare_normal: None }
+    }
+
+    /// Moves this stream to `position` 32-bit words from its start.
+    pub fn seek_word(&mut self, position: u128) {
+        self.rng.set_word_pos(position);
+        self.spare_normal = None;
     }
 
     /// Standard normal draw (Box-Muller with the pure-Rust `libm`, so it is the same everywhere).
@@ -163,6 +186,31 @@ mod tests {
         let first = |seed, p| Stream::new(seed, p).next_u64();
         assert_ne!(first(7, Purpose::Init), first(7, Purpose::Shuffle));
         assert_ne!(first(7, Purpose::Init), first(8, Purpose::Init));
+    }
+
+    #[test]
+    fn a_stream_taken_up_at_a_word_draws_what_follows_there() {
+        // Below 2^63 + 1 about half of all 64-bit draws are rejected.
+        let n = (1u64 << 63) + 1;
+        let mut whole = Stream::new(5, Purpose::Bootstrap);
+        let mut first = vec![0usize; 333];
+        let rejected = whole.fill_below(n, &mut first);
+        assert!(rejected > 100, "{rejected} rejected");
+        assert_eq!(whole.word_position(), 2 * (333 + u128::from(rejected)), "two words a draw, rejected or not");
+        let mut resumed = Stream::new(5, Purpose::Bootstrap).at_word(whole.word_position());
+        let mut sought = Stream::new(5, Purpose::Bootstrap);
+        sought.seek_word(whole.word_position());
+        for _ in 0..100 {
+            let v = whole.next_u64();
+            assert_eq!((resumed.next_u64(), sought.next_u64()), (v, v));
+        }
+        // An odd word: a 64-bit draw across the generator's blocks.
+        let mut whole = Stream::new(5, Purpose::Bootstrap);
+        for _ in 0..63 {
+            whole.next_u32();
+        }
+        let mut resumed = Stream::new(5, Purpose::Bootstrap).at_word(63);
+        assert_eq!(resumed.next_u64(), whole.next_u64());
     }
 
     #[test]

@@ -127,7 +127,6 @@ pub fn shared_percentile_intervals(
     order: ResampleOrder,
     scorers: &[&Scorer],
 ) -> Vec<BTreeMap<String, Interval>> {
-    use rayon::prelude::*;
     let estimates: Vec<Vec<(String, f64)>> = {
         let all: Vec<usize> = (0..n).collect();
         scorers.iter().map(|metrics| metrics(&all).into_iter().filter_map(|(name, v)| Some((name, v?))).collect()).collect()
@@ -137,47 +136,21 @@ pub fn shared_percentile_intervals(
     }
     let mut stream = Stream::new(seed, Purpose::Bootstrap);
     let mut values: Vec<Vec<Vec<f64>>> = estimates.iter().map(|e| vec![Vec::with_capacity(resamples); e.len()]).collect();
-    // Resamples are drawn in order from the one stream and scored a batch at a time on the
-    // current rayon pool, kept in draw order: the same values whatever the thread count. The next
-    // batch is drawn while the current one is scored; each scoring thread puts its own resample
-    // in `order` first.
-    let batch = rayon::current_num_threads().max(1);
-    let mut draw = |count: usize| -> Vec<Vec<usize>> {
-        (0..count)
-            .map(|_| {
-                let mut idx = vec![0usize; n];
-                stream.fill_below(n as u64, &mut idx);
-                idx
-            })
-            .collect()
-    };
-    let mut current = draw(batch.min(resamples));
-    let mut drawn = current.len();
-    while !current.is_empty() {
-        let next_count = batch.min(resamples - drawn);
-        let (next, scored) = rayon::join(
-            || draw(next_count),
-            || {
-                current
-                    .par_iter_mut()
-                    .map(|idx| {
-                        order.arrange(idx, n);
-                        scorers.iter().map(|metrics| metrics(idx)).collect::<Vec<_>>()
-                    })
-                    .collect::<Vec<_>>()
-            },
-        );
-        drawn += next.len();
-        for per_scorer in scored {
-            for ((sample, names), v) in per_scorer.iter().zip(&estimates).zip(values.iter_mut()) {
-                for ((name, _), v) in names.iter().zip(v.iter_mut()) {
-                    if let Some(Some(x)) = sample.get(name) {
-                        v.push(*x);
-                    }
+    // Each resample is drawn and scored on a thread of the current rayon pool from its place in
+    // the one stream, and the results are kept in draw order: the same values whatever the
+    // thread count. Each scoring thread puts its own resample in `order` first.
+    let scored = draw_and_score(&mut stream, n as u64, n, resamples, |mut idx| {
+        order.arrange(&mut idx, n);
+        scorers.iter().map(|metrics| metrics(&idx)).collect::<Vec<_>>()
+    });
+    for per_scorer in scored {
+        for ((sample, names), v) in per_scorer.iter().zip(&estimates).zip(values.iter_mut()) {
+            for ((name, _), v) in names.iter().zip(v.iter_mut()) {
+                if let Some(Some(x)) = sample.get(name) {
+                    v.push(*x);
                 }
             }
         }
-        current = next;
     }
     let tail = (1.0 - level) / 2.0;
     estimates
@@ -206,6 +179,41 @@ pub fn shared_percentile_intervals(
         .collect()
 }
 
+/// `count` resamples of `len` draws below `bound` from `stream`, each handed to `score`, the
+/// results in draw order: the values of drawing them one after another. Resamples are drawn on
+/// the current rayon pool's threads, each from its own place in the stream: a draw takes two
+/// 32-bit words, so resample j of a run starts 2 * len * j words on if no draw before it was
+/// rejected (for `bound` below 2^32 a draw is rejected with probability under 2^-32). Where one
+/// was, the resamples after it are drawn again from their true places. The stream is left after
+/// the last resample.
+fn draw_and_score<R: Send>(stream: &mut Stream, bound: u64, len: usize, count: usize, score: impl Fn(Vec<usize>) -> R + Sync) -> Vec<R> {
+    use rayon::prelude::*;
+    let words = 2 * len as u128;
+    let mut out = Vec::with_capacity(count);
+    while out.len() < count {
+        let start = stream.word_position();
+        let drawn: Vec<(u64, R)> = (0..count - out.len())
+            .into_par_iter()
+            .map(|j| {
+                let mut own = stream.at_word(start + words * j as u128);
+                let mut idx = vec![0usize; len];
+                let rejected = own.fill_below(bound, &mut idx);
+                (rejected, score(idx))
+            })
+            .collect();
+        let mut position = start;
+        for (rejected, result) in drawn {
+            out.push(result);
+            position += words + 2 * u128::from(rejected);
+            if rejected > 0 {
+                break;
+            }
+        }
+        stream.seek_word(position);
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -228,6 +236,29 @@ mod tests {
         assert!(a.lower < 4.5 && 4.5 < a.upper);
         // Standard error of the mean is sd/sqrt(n) = 2.87/14.1 ~ 0.20; a 95% interval is ~ +-0.4.
         assert!((a.upper - a.lower) > 0.5 && (a.upper - a.lower) < 1.2, "{a:?}");
+    }
+
+    #[test]
+    fn resamples_drawn_in_parallel_are_the_resamples_drawn_one_after_another() {
+        // Below 2^63 + 1 about half of all draws are rejected, so most resamples start somewhere
+        // other than their first guess; below 1000 none is.
+        for bound in [(1u64 << 63) + 1, 1000] {
+            let mut serial = Stream::new(4, Purpose::Bootstrap);
+            let expected: Vec<Vec<usize>> = (0..40)
+                .map(|_| {
+                    let mut idx = vec![0usize; 7];
+                    serial.fill_below(bound, &mut idx);
+                    idx
+                })
+                .collect();
+            for threads in [1, 2, 3] {
+                let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+                let mut stream = Stream::new(4, Purpose::Bootstrap);
+                let drawn = pool.install(|| draw_and_score(&mut stream, bound, 7, 40, |idx| idx));
+                assert_eq!(drawn, expected, "bound {bound}, {threads} threads");
+                assert_eq!(stream.word_position(), serial.word_position(), "the stream is left after the last resample");
+            }
+        }
     }
 
     /// Row order hands each scorer the rows drawn, each as often as drawn, sorted; draw order the
