@@ -366,6 +366,21 @@ struct SeedScores {
     /// The network's own outputs on the test rows, and the deployed ones.
     raw_outputs: Vec<f64>,
     outputs: Vec<f64>,
+    /// The network's raw outputs on the validation rows, when its calibration map was fitted on
+    /// them, so the deployed validation outputs do not score those rows again.
+    raw_validation: Option<Vec<f32>>,
+}
+
+impl SeedScores {
+    /// The deployed outputs on the validation rows `x`: through the map when there is one, with
+    /// the bits of [`ScoringModel::score_calibrated`].
+    fn validation_outputs(&mut self, x: &Matrix) -> Result<Vec<f64>> {
+        let Some(raw) = self.raw_validation.take() else { return self.model.score_calibrated(x, self.map.as_ref()) };
+        Ok(match &self.map {
+            Some(map) => map.apply(&raw.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), self.model.head.classes),
+            None => self.model.head.predictions(&raw, self.model.scaling),
+        })
+    }
 }
 
 fn class_rows(labels: &Labels) -> Option<(&[usize], usize)> {
@@ -381,18 +396,20 @@ fn score_seed(run: &StoredRun, test_x: &Matrix, validation: (&Matrix, &Labels), 
     let mut model = ScoringModel::from_stored(run)?;
     let raw_test: Vec<f32> = model.raw(test_x);
     let raw_outputs = model.head.predictions(&raw_test, model.scaling);
-    let map = match class_rows(validation.1) {
+    let (map, raw_validation) = match class_rows(validation.1) {
         Some((rows, classes)) if method != CalibrationMethod::None => {
-            let raw_val: Vec<f64> = model.raw(validation.0).into_iter().map(f64::from).collect();
-            calibrate::fit(method, &raw_val, rows, classes).map_err(|e| Error::Usage(format!("[calibration] method: {e}")))?
+            let raw_val = model.raw(validation.0);
+            let wide: Vec<f64> = raw_val.iter().map(|&z| f64::from(z)).collect();
+            let map = calibrate::fit(method, &wide, rows, classes).map_err(|e| Error::Usage(format!("[calibration] method: {e}")))?;
+            (map, Some(raw_val))
         }
-        _ => None,
+        _ => (None, None),
     };
     let outputs = match &map {
         Some(m) => m.apply(&raw_test.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), model.head.classes),
         None => raw_outputs.clone(),
     };
-    Ok(SeedScores { seed: run.record.seed, run_id: run.record.run_id.clone(), model, map, raw_outputs, outputs })
+    Ok(SeedScores { seed: run.record.seed, run_id: run.record.run_id.clone(), model, map, raw_outputs, outputs, raw_validation })
 }
 
 /// Scores the test rows with every seed of the selected configuration as deployed (each seed
@@ -439,10 +456,10 @@ pub(crate) fn evaluate_test(
     // The deployed model's outputs on the validation rows (each member through its own map).
     let mut validation_outputs = || -> Result<Vec<f64>> {
         let scored: Vec<Vec<f64>> = if ensemble {
-            members.iter_mut().map(|m| m.model.score_calibrated(validation_matrix, m.map.as_ref())).collect::<Result<_>>()?
+            members.iter_mut().map(|m| m.validation_outputs(validation_matrix)).collect::<Result<_>>()?
         } else {
             let m = &mut members[chosen];
-            return m.model.score_calibrated(validation_matrix, m.map.as_ref());
+            return m.validation_outputs(validation_matrix);
         };
         Ok(mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>()))
     };

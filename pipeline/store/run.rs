@@ -134,19 +134,36 @@ pub fn parse_history_csv(text: &str, path: &Path) -> Result<Vec<EpochRecord>> {
     Ok(out)
 }
 
+/// The predictions file: a `row` column (the table row) and `output_c` per value, one line per
+/// row, each value in Rust's shortest form that reads back to the same bits.
 pub fn predictions_csv(rows: &[usize], outputs: &[f64], per_row: usize) -> String {
+    use rayon::prelude::*;
+    use std::fmt::Write;
+    // Bands of rows are written on the pool's threads and joined in order: the same text.
+    const BAND: usize = 16_384;
+    let width = per_row.max(1);
     let mut s = String::from("row");
     for c in 0..per_row {
-        s.push_str(&format!(",output_{c}"));
+        let _ = write!(s, ",output_{c}");
     }
     s.push('\n');
-    for (r, chunk) in rows.iter().zip(outputs.chunks_exact(per_row.max(1))) {
-        s.push_str(&r.to_string());
-        for v in chunk {
-            s.push_str(&format!(",{v:?}"));
-        }
-        s.push('\n');
-    }
+    let bands: Vec<String> = rows
+        .par_chunks(BAND)
+        .zip(outputs.par_chunks(BAND * width))
+        .map(|(rows, outputs)| {
+            let mut band = String::with_capacity(rows.len() * (8 + 24 * per_row));
+            for (r, chunk) in rows.iter().zip(outputs.chunks_exact(width)) {
+                let _ = write!(band, "{r}");
+                for v in chunk {
+                    let _ = write!(band, ",{v:?}");
+                }
+                band.push('\n');
+            }
+            band
+        })
+        .collect();
+    s.reserve(bands.iter().map(String::len).sum());
+    bands.iter().for_each(|b| s.push_str(b));
     s
 }
 
@@ -388,5 +405,30 @@ pub fn sweep_stale_partials(layout: &Layout) {
         if stale {
             let _ = std::fs::remove_dir_all(entry.path());
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn predictions_written_in_bands_read_as_one_line_per_row() {
+        // Three bands and a part, two values a row, on a pool of 3 threads.
+        let rows: Vec<usize> = (0..40_000).map(|r| r * 3 + 1).collect();
+        let outputs: Vec<f64> = (0..80_000).map(|i| (i as f64).sqrt() / 7.0 - 3.0).collect();
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().expect("a pool");
+        let text = pool.install(|| predictions_csv(&rows, &outputs, 2));
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines[0], "row,output_0,output_1");
+        assert_eq!(lines.len(), rows.len() + 1);
+        for (i, line) in lines[1..].iter().enumerate() {
+            let fields: Vec<&str> = line.split(',').collect();
+            assert_eq!(fields[0].parse::<usize>().ok(), Some(rows[i]));
+            for c in 0..2 {
+                assert_eq!(fields[1 + c].parse::<f64>().map(f64::to_bits).ok(), Some(outputs[i * 2 + c].to_bits()), "row {i}");
+            }
+        }
+        assert_eq!(text, predictions_csv(&rows, &outputs, 2), "the same text off the pool");
     }
 }
