@@ -133,41 +133,78 @@ impl Attributions {
     }
 }
 
+/// The gradients of rows at every point of an earlier, coarser integration of them: rows x
+/// (`steps` + 1) x inputs, in the order of the rows integrated now.
+struct Known<'a> {
+    gradients: &'a [f32],
+    steps: usize,
+}
+
+/// One integration of some rows: (x - x') times the mean gradient per input by the trapezoid rule
+/// on all points (`fine`) and on every other point (`coarse`), rows x inputs each in f64; and the
+/// gradients at every point, rows x (steps + 1) x inputs, for a finer integration to reuse (empty
+/// when none will).
+struct Integrated {
+    fine: Vec<f64>,
+    coarse: Vec<f64>,
+    gradients: Vec<f32>,
+}
+
 /// The trapezoid-rule integral for `rows` of `x` over `steps` + 1 evenly spaced points of the
-/// path (`steps` even): (x - x') times the mean gradient, per input, in f64; and the same rule on
-/// every other point (`steps` / 2 intervals), whose difference from the first estimates its error
-/// at no extra cost. Returns (fine, coarse), rows x inputs each.
+/// path (`steps` even), and the same rule on every other point (`steps` / 2 intervals), whose
+/// difference from the first estimates its error at no extra cost. With `known`, the points of
+/// that coarser integration (every (steps / known.steps)-th point: the same point, so the same
+/// gradient bits) are not computed again; the sums add the points in the same order either way.
 fn integrate(
     model: &mut ScoringModel,
     explained: Explained,
-    x: &Matrix,
-    reference: &[f32],
-    classes: &[usize],
+    (x, reference, classes): (&Matrix, &[f32], &[usize]),
     rows: &[usize],
     steps: usize,
-) -> (Vec<f64>, Vec<f64>) {
+    (known, keep): (Option<&Known<'_>>, bool),
+) -> Integrated {
     let d = x.cols;
     let points_per_row = steps + 1;
+    let reused = known.map(|k| steps / k.steps.max(1));
+    // The points whose gradients are computed here.
+    let fresh: Vec<usize> = (0..points_per_row).filter(|&k| reused.is_none_or(|r| k % r != 0)).collect();
     let mut fine = vec![0.0; rows.len() * d];
     let mut coarse = vec![0.0; rows.len() * d];
-    let per_call = (POINTS_PER_CALL / points_per_row).max(1);
+    let mut all_gradients = if keep { vec![0.0f32; rows.len() * points_per_row * d] } else { Vec::new() };
+    let per_call = (POINTS_PER_CALL / fresh.len().max(1)).max(1);
     for (chunk_index, chunk) in rows.chunks(per_call).enumerate() {
-        let mut points = Matrix::zeros(chunk.len() * points_per_row, d);
+        let mut points = Matrix::zeros(chunk.len() * fresh.len(), d);
         for (i, &r) in chunk.iter().enumerate() {
             let row = x.row(r);
-            for k in 0..points_per_row {
+            for (j, &k) in fresh.iter().enumerate() {
                 let alpha = (k as f64 / steps as f64) as f32;
-                let dst = &mut points.data[(i * points_per_row + k) * d..(i * points_per_row + k + 1) * d];
+                let dst = &mut points.data[(i * fresh.len() + j) * d..(i * fresh.len() + j + 1) * d];
                 for ((p, &xv), &rv) in dst.iter_mut().zip(row).zip(reference) {
                     *p = rv + alpha * (xv - rv);
                 }
             }
         }
-        let (_, gradients) = model.input_gradients(&points, &|point, z, g| explained.seed(z, classes[chunk[point / points_per_row]], g));
+        let (_, gradients) = model.input_gradients(&points, &|point, z, g| explained.seed(z, classes[chunk[point / fresh.len()]], g));
         for (i, &r) in chunk.iter().enumerate() {
-            let at = (chunk_index * per_call + i) * d;
+            let row_index = chunk_index * per_call + i;
+            let at = row_index * d;
             let (f, c) = (&mut fine[at..at + d], &mut coarse[at..at + d]);
+            let mut next_fresh = 0;
             for k in 0..points_per_row {
+                let g = match (known, reused) {
+                    (Some(known), Some(r)) if k % r == 0 => {
+                        let at = (row_index * (known.steps + 1) + k / r) * d;
+                        &known.gradients[at..at + d]
+                    }
+                    _ => {
+                        let at = (i * fresh.len() + next_fresh) * d;
+                        next_fresh += 1;
+                        &gradients[at..at + d]
+                    }
+                };
+                if keep {
+                    all_gradients[(row_index * points_per_row + k) * d..(row_index * points_per_row + k + 1) * d].copy_from_slice(g);
+                }
                 let end = k == 0 || k == steps;
                 let weight_fine = if end { 0.5 } else { 1.0 };
                 let weight_coarse = if end {
@@ -177,7 +214,6 @@ fn integrate(
                 } else {
                     0.0
                 };
-                let g = &gradients[(i * points_per_row + k) * d..(i * points_per_row + k + 1) * d];
                 for ((a, b), &g) in f.iter_mut().zip(c.iter_mut()).zip(g) {
                     *a += weight_fine * f64::from(g);
                     *b += weight_coarse * f64::from(g);
@@ -190,7 +226,7 @@ fn integrate(
             }
         }
     }
-    (fine, coarse)
+    Integrated { fine, coarse, gradients: all_gradients }
 }
 
 /// The largest |fine - coarse| over the features of one row (`widths` inputs each).
@@ -206,8 +242,13 @@ fn error_estimate(fine: &[f64], coarse: &[f64], widths: &[usize]) -> f64 {
         .fold(0.0, f64::max)
 }
 
+/// Rows integrated together through every refinement, on one thread of the pool.
+const ROWS_PER_JOB: usize = 64;
+
 /// Integrated gradients of every row of `x` from `reference` for one model; `classes` gives the
-/// explained class per row (multiclass; ignored otherwise).
+/// explained class per row (multiclass; ignored otherwise). Runs of rows go to the current rayon
+/// pool's threads, each on its own copy of the model: a row's attributions depend on that row
+/// alone, so the bits are those of one thread.
 pub(crate) fn integrated_gradients(
     model: &mut ScoringModel,
     explained: Explained,
@@ -217,6 +258,7 @@ pub(crate) fn integrated_gradients(
     widths: &[usize],
     steps: usize,
 ) -> Result<Attributions> {
+    use rayon::prelude::*;
     let d = x.cols;
     let k = model.head.outputs();
     let at_x = model.raw(x);
@@ -224,29 +266,94 @@ pub(crate) fn integrated_gradients(
     let difference: Vec<f64> =
         (0..x.rows).map(|r| explained.value(&at_x[r * k..(r + 1) * k], classes[r]) - explained.value(&at_reference, classes[r])).collect();
     let all: Vec<usize> = (0..x.rows).collect();
-    let (mut per_input, coarse) = integrate(model, explained, x, reference, classes, &all, steps);
-    let gap_of = |row: &[f64], diff: f64| (row.iter().sum::<f64>() - diff).abs();
-    let mut gap: Vec<f64> = per_input.chunks_exact(d.max(1)).zip(&difference).map(|(row, &diff)| gap_of(row, diff)).collect();
-    let mut estimate: Vec<f64> =
-        per_input.chunks_exact(d.max(1)).zip(coarse.chunks_exact(d.max(1))).map(|(f, c)| error_estimate(f, c, widths)).collect();
-    let mut used = vec![steps; x.rows];
-    let tolerance = explained.tolerance();
-    for factor in REFINEMENTS {
-        let missed: Vec<usize> = (0..x.rows).filter(|&r| gap[r].max(estimate[r]) > row_tolerance(tolerance, difference[r])).collect();
-        if missed.is_empty() {
-            break;
-        }
-        let (again, again_coarse) = integrate(model, explained, x, reference, classes, &missed, steps * factor);
-        for (i, &r) in missed.iter().enumerate() {
-            let row = &again[i * d..(i + 1) * d];
-            // Keep the finer integral; it is closer to the exact one whatever its gap.
-            gap[r] = gap_of(row, difference[r]);
-            estimate[r] = error_estimate(row, &again_coarse[i * d..(i + 1) * d], widths);
-            per_input[r * d..(r + 1) * d].copy_from_slice(row);
-            used[r] = steps * factor;
-        }
+    let shared: &ScoringModel = model;
+    let job = Job { explained, path: (x, reference, classes), widths, steps, difference: &difference };
+    let parts: Vec<Attributions> = all
+        .par_chunks(ROWS_PER_JOB)
+        .map_init(
+            || {
+                let mut own = shared.clone();
+                own.keep_rows_on_this_thread();
+                own
+            },
+            |own, rows| job.rows(own, rows),
+        )
+        .collect::<Result<_>>()?;
+    let mut whole =
+        Attributions { per_input: Vec::with_capacity(x.rows * d), difference, gap: Vec::new(), estimate: Vec::new(), steps: Vec::new() };
+    for part in parts {
+        whole.per_input.extend(part.per_input);
+        whole.gap.extend(part.gap);
+        whole.estimate.extend(part.estimate);
+        whole.steps.extend(part.steps);
     }
-    Ok(Attributions { per_input, difference, gap, estimate, steps: used })
+    Ok(whole)
+}
+
+/// What every run of rows of one integration shares.
+struct Job<'a> {
+    explained: Explained,
+    path: (&'a Matrix, &'a [f32], &'a [usize]),
+    widths: &'a [usize],
+    steps: usize,
+    /// f(x) - f(x') of every row of x.
+    difference: &'a [f64],
+}
+
+impl Job<'_> {
+    /// The attributions of `rows` (their `difference` left empty): integrated with the job's
+    /// steps, then each row that misses the tolerance again with 4, 16 and 64 times as many,
+    /// each finer integration reusing the gradients of the coarser one.
+    fn rows(&self, model: &mut ScoringModel, rows: &[usize]) -> Result<Attributions> {
+        let d = self.path.0.cols;
+        let difference = |i: usize| self.difference[rows[i]];
+        let gap_of = |row: &[f64], diff: f64| (row.iter().sum::<f64>() - diff).abs();
+        let first = integrate(model, self.explained, self.path, rows, self.steps, (None, true));
+        let mut per_input = first.fine;
+        let mut gap: Vec<f64> = per_input.chunks_exact(d.max(1)).enumerate().map(|(i, row)| gap_of(row, difference(i))).collect();
+        let mut estimate: Vec<f64> = per_input
+            .chunks_exact(d.max(1))
+            .zip(first.coarse.chunks_exact(d.max(1)))
+            .map(|(f, c)| error_estimate(f, c, self.widths))
+            .collect();
+        let mut used = vec![self.steps; rows.len()];
+        let tolerance = self.explained.tolerance();
+        // The rows (positions in `rows`) of the last integration, its steps and gradients.
+        let (mut last_rows, mut last_steps, mut last_gradients): (Vec<usize>, usize, Vec<f32>) =
+            ((0..rows.len()).collect(), self.steps, first.gradients);
+        for factor in REFINEMENTS {
+            let missed: Vec<usize> =
+                (0..rows.len()).filter(|&i| gap[i].max(estimate[i]) > row_tolerance(tolerance, difference(i))).collect();
+            if missed.is_empty() {
+                break;
+            }
+            // A row within the tolerance is not integrated again and stays within it, so every
+            // row missed now was in the last integration.
+            let per_row = (last_steps + 1) * d;
+            let mut known = Vec::with_capacity(missed.len() * per_row);
+            for &i in &missed {
+                let j = last_rows
+                    .binary_search(&i)
+                    .map_err(|_| crate::error::Error::Internal(format!("row {} missed the tolerance without being integrated", rows[i])))?;
+                known.extend_from_slice(&last_gradients[j * per_row..(j + 1) * per_row]);
+            }
+            let missed_rows: Vec<usize> = missed.iter().map(|&i| rows[i]).collect();
+            let steps = self.steps * factor;
+            let finest = factor == REFINEMENTS[REFINEMENTS.len() - 1];
+            let known = Known { gradients: &known, steps: last_steps };
+            let again = integrate(model, self.explained, self.path, &missed_rows, steps, (Some(&known), !finest));
+            for (m, &i) in missed.iter().enumerate() {
+                let row = &again.fine[m * d..(m + 1) * d];
+                // Keep the finer integral; it is closer to the exact one whatever its gap.
+                gap[i] = gap_of(row, difference(i));
+                estimate[i] = error_estimate(row, &again.coarse[m * d..(m + 1) * d], self.widths);
+                per_input[i * d..(i + 1) * d].copy_from_slice(row);
+                used[i] = steps;
+            }
+            (last_rows, last_steps, last_gradients) = (missed, steps, again.gradients);
+        }
+        Ok(Attributions { per_input, difference: Vec::new(), gap, estimate, steps: used })
+    }
 }
 
 /// The mean of several models' attributions (a seed ensemble: each member explains its own
@@ -310,4 +417,64 @@ pub(crate) fn of_networks<'a>(
     let mut parts =
         networks.map(|m| integrated_gradients(m, explained, x, reference, classes, widths, steps)).collect::<Result<Vec<_>>>()?;
     Ok(if parts.len() == 1 { parts.remove(0) } else { mean(parts) })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn model() -> ScoringModel {
+        let spec = crate::manifest::ModelSpec { hidden: vec![16, 16], ..Default::default() };
+        let head = Head { task: crate::manifest::Task::Binary, classes: 2, loss: crate::manifest::RegressionLoss::Mse, huber_delta: 1.0 };
+        ScoringModel::for_tests(&spec, 5, head, 11)
+    }
+
+    /// `rows` rows of 5 inputs spread over [-3, 3], a value per row and input.
+    fn rows(rows: usize) -> Matrix {
+        let data = (0..rows * 5).map(|i| ((i * 37 % 101) as f32 / 101.0 - 0.5) * 6.0).collect();
+        Matrix { rows, cols: 5, data }
+    }
+
+    fn bits(v: &[f64]) -> Vec<u64> {
+        v.iter().map(|x| x.to_bits()).collect()
+    }
+
+    #[test]
+    fn a_finer_integration_reusing_coarser_gradients_has_the_bits_of_one_from_scratch() {
+        let (mut m, x) = (model(), rows(9));
+        let (reference, classes) = (vec![0.25f32; 5], vec![0usize; 9]);
+        let path = (&x, &reference[..], &classes[..]);
+        let some: Vec<usize> = vec![1, 4, 5, 8];
+        let coarse = integrate(&mut m, Explained::Logit, path, &some, 8, (None, true));
+        assert_eq!(coarse.gradients.len(), some.len() * 9 * 5);
+        let known = Known { gradients: &coarse.gradients, steps: 8 };
+        let reused = integrate(&mut m, Explained::Logit, path, &some, 32, (Some(&known), true));
+        let scratch = integrate(&mut m, Explained::Logit, path, &some, 32, (None, true));
+        assert_eq!(bits(&reused.fine), bits(&scratch.fine));
+        assert_eq!(bits(&reused.coarse), bits(&scratch.coarse));
+        assert_eq!(reused.gradients, scratch.gradients);
+        let unkept = integrate(&mut m, Explained::Logit, path, &some, 32, (Some(&known), false));
+        assert!(unkept.gradients.is_empty());
+        assert_eq!(bits(&unkept.fine), bits(&scratch.fine));
+    }
+
+    #[test]
+    fn attributions_are_the_same_bits_on_any_pool_and_rows_are_refined() {
+        // More rows than one job takes, so runs of rows go to different threads.
+        let (mut m, x) = (model(), rows(3 * ROWS_PER_JOB + 5));
+        let (reference, classes) = (vec![0.0f32; 5], vec![0usize; x.rows]);
+        let of = |threads: usize, m: &mut ScoringModel| {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("a pool");
+            pool.install(|| integrated_gradients(m, Explained::Logit, &x, &reference, &classes, &[2, 3], 2)).expect("attributions")
+        };
+        let one = of(1, &mut m);
+        assert!(one.steps.iter().any(|&s| s > 2), "two steps leave some rows over the tolerance");
+        assert!(one.steps.contains(&(2 * 64)), "and some go to the finest refinement");
+        for threads in [2, 3] {
+            let many = of(threads, &mut m);
+            assert_eq!(bits(&many.per_input), bits(&one.per_input), "{threads} threads");
+            assert_eq!((bits(&many.gap), bits(&many.estimate), &many.steps), (bits(&one.gap), bits(&one.estimate), &one.steps));
+            assert_eq!(bits(&many.difference), bits(&one.difference));
+        }
+    }
 }

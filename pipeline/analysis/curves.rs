@@ -73,43 +73,22 @@ pub(crate) fn curves(
     inputs: &[InputEncoding],
     x: &Matrix,
     features: &[usize],
-    train: &dyn Fn(&str) -> Result<TrainingColumn>,
+    train: &(dyn Fn(&str) -> Result<TrainingColumn> + Sync),
 ) -> Result<Vec<Curve>> {
     let k = model.head().values_per_row();
     let offsets: Vec<usize> = inputs.iter().scan(0, |at, e| Some(std::mem::replace(at, *at + e.width()))).collect();
     let ice_rows: Vec<usize> = if task == Task::Multiclass { Vec::new() } else { (0..x.rows.min(ICE_ROWS)).collect() };
+    // Each feature's grid from its training values, the features read on the pool's threads (an
+    // error is the first in feature order).
+    let grids: Vec<Grid> = {
+        use rayon::prelude::*;
+        features.par_iter().map(|&f| grid(&inputs[f], train)).collect::<Vec<_>>().into_iter().collect::<Result<_>>()?
+    };
     let mut out = Vec::with_capacity(features.len());
     let mut moved = x.clone();
-    for &f in features {
+    for (&f, Grid { grid, levels, training_rows, points }) in features.iter().zip(grids) {
         let enc = &inputs[f];
         let (first, width) = (offsets[f], enc.width());
-        // Each grid point as the values of the feature's inputs.
-        let (grid, levels, training_rows, points): (Vec<f64>, Vec<String>, Vec<usize>, Vec<Vec<f32>>) = match (enc, train(enc.name())?) {
-            (InputEncoding::Numeric { mean, scale, .. }, TrainingColumn::Values(values)) => {
-                let (grid, counts) = numeric_grid(&values);
-                let points = grid
-                    .iter()
-                    .map(|&v| {
-                        let mut p = vec![0.0f32; width];
-                        p[0] = ((v - mean) / scale) as f32;
-                        p
-                    })
-                    .collect();
-                (grid, Vec::new(), counts, points)
-            }
-            (InputEncoding::Categorical { levels, .. }, TrainingColumn::Labels(labels)) => {
-                let counts = levels.iter().map(|l| labels.iter().filter(|x| x.as_deref() == Some(l.as_str())).count()).collect();
-                let points = (0..levels.len())
-                    .map(|l| {
-                        let mut p = vec![0.0f32; width];
-                        p[l] = 1.0;
-                        p
-                    })
-                    .collect();
-                (Vec::new(), levels.clone(), counts, points)
-            }
-            _ => return Err(crate::error::Error::Internal(format!("feature {} read as the wrong kind", enc.name()))),
-        };
         let curves_out = if task == Task::Multiclass { k } else { 1 };
         let mut average = vec![Vec::with_capacity(points.len()); curves_out];
         let mut ice = vec![Vec::with_capacity(points.len()); ice_rows.len()];
@@ -138,6 +117,46 @@ pub(crate) fn curves(
         out.push(Curve { feature: enc.name().to_string(), grid, levels, training_rows, average, ice_rows: ice_rows.clone(), ice });
     }
     Ok(out)
+}
+
+/// A feature's grid: its values (numeric) or levels, the training rows each stands for, and each
+/// grid point as the values of the feature's network inputs.
+struct Grid {
+    grid: Vec<f64>,
+    levels: Vec<String>,
+    training_rows: Vec<usize>,
+    points: Vec<Vec<f32>>,
+}
+
+/// The grid of the feature encoded by `enc`, from its training values (`train`).
+fn grid(enc: &InputEncoding, train: &(dyn Fn(&str) -> Result<TrainingColumn> + Sync)) -> Result<Grid> {
+    let width = enc.width();
+    Ok(match (enc, train(enc.name())?) {
+        (InputEncoding::Numeric { mean, scale, .. }, TrainingColumn::Values(values)) => {
+            let (grid, training_rows) = numeric_grid(&values);
+            let points = grid
+                .iter()
+                .map(|&v| {
+                    let mut p = vec![0.0f32; width];
+                    p[0] = ((v - mean) / scale) as f32;
+                    p
+                })
+                .collect();
+            Grid { grid, levels: Vec::new(), training_rows, points }
+        }
+        (InputEncoding::Categorical { levels, .. }, TrainingColumn::Labels(labels)) => {
+            let training_rows = levels.iter().map(|l| labels.iter().filter(|x| x.as_deref() == Some(l.as_str())).count()).collect();
+            let points = (0..levels.len())
+                .map(|l| {
+                    let mut p = vec![0.0f32; width];
+                    p[l] = 1.0;
+                    p
+                })
+                .collect();
+            Grid { grid: Vec::new(), levels: levels.clone(), training_rows, points }
+        }
+        _ => return Err(crate::error::Error::Internal(format!("feature {} read as the wrong kind", enc.name()))),
+    })
 }
 
 /// A feature's training values: numbers (missing ones left out) or labels.

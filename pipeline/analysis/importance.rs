@@ -46,7 +46,8 @@ pub(crate) struct ImportanceReport {
 }
 
 /// The metric of `outputs` (k per row) on all rows and on the resample `sample`, each oriented so
-/// that larger is better: from one prepared sample, with the bits of the metric on those rows.
+/// that larger is better: from one prepared sample, with the bits of the metric on those rows;
+/// no other metric is computed.
 fn oriented(
     head: crate::training::Head,
     outputs: &[f64],
@@ -57,15 +58,15 @@ fn oriented(
 ) -> (Option<f64>, Option<f64>) {
     let scorer = ResampleScorer::new(head, outputs, y);
     let all: Vec<usize> = (0..y.len()).collect();
-    let of = |idx: &[usize]| scorer.metrics(idx).get(metric).copied().flatten().map(|v| sign * v);
+    let of = |idx: &[usize]| scorer.named_metrics(idx, &[metric]).get(metric).copied().flatten().map(|v| sign * v);
     (of(&all), of(sample))
 }
 
 /// Permutation importance of every raw feature of `test_x` (whose columns follow `features`,
 /// each `(name, inputs)` in order) for `model` on the selection metric. Each repeat draws its
 /// resample and every feature's permutation from the stream in order, then scores the features
-/// in parallel on the current rayon pool, each on its own copy of the model: the same values on
-/// any number of threads.
+/// in parallel on the current rayon pool, each job on its own copy of the model: the same values
+/// on any number of threads.
 pub(crate) fn permutation_importance(
     model: &mut Deployed,
     test_x: &Matrix,
@@ -98,19 +99,29 @@ pub(crate) fn permutation_importance(
                 order
             })
             .collect();
+        // Each job of the pool scores its features on its own copy of the model and of the rows,
+        // the permuted inputs put back after each feature.
+        let shared: &Deployed = model;
         let scored: Vec<(Option<f64>, Option<f64>)> = features
             .par_iter()
             .zip(&offsets)
             .zip(&orders)
-            .map(|(((_, width), &first), order)| -> Result<(Option<f64>, Option<f64>)> {
-                let mut permuted = test_x.clone();
-                for (i, &from) in order.iter().enumerate() {
-                    let (dst, src) = (i * test_x.cols + first, from * test_x.cols + first);
-                    permuted.data[dst..dst + width].copy_from_slice(&test_x.data[src..src + width]);
-                }
-                let outputs = model.clone().score(&permuted)?;
-                Ok(oriented(head, &outputs, test_y, &sample, metric, sign))
-            })
+            .map_init(
+                || (shared.clone().on_this_thread(), test_x.clone()),
+                |(model, permuted), (((_, width), &first), order)| -> Result<(Option<f64>, Option<f64>)> {
+                    let cols = test_x.cols;
+                    for (i, &from) in order.iter().enumerate() {
+                        let (dst, src) = (i * cols + first, from * cols + first);
+                        permuted.data[dst..dst + width].copy_from_slice(&test_x.data[src..src + width]);
+                    }
+                    let outputs = model.score(permuted);
+                    for i in 0..n {
+                        let at = i * cols + first;
+                        permuted.data[at..at + width].copy_from_slice(&test_x.data[at..at + width]);
+                    }
+                    Ok(oriented(head, &outputs?, test_y, &sample, metric, sign))
+                },
+            )
             .collect::<Result<_>>()?;
         for (f, (v, r)) in scored.into_iter().enumerate() {
             if let Some(v) = v {

@@ -134,14 +134,21 @@ fn derive_here(
     let favourable = m.decision.as_ref().and_then(|d| d.favourable.as_ref());
     let toward = Toward::of(task, labels, favourable);
     let rows = per_feature.len().max(1) as f64;
+    // Rows giving each feature among their principal reasons: each row's reasons found once.
+    let mut reason_rows = vec![0usize; inputs.len()];
+    for row in &per_feature {
+        for (f, _) in principal(row, toward, DEFAULT_REASONS) {
+            reason_rows[f] += 1;
+        }
+    }
     let mut features: Vec<FeatureAttribution> = inputs
         .iter()
+        .zip(&reason_rows)
         .enumerate()
-        .map(|(f, e)| FeatureAttribution {
+        .map(|(f, (e, &reasons))| FeatureAttribution {
             feature: e.name().to_string(),
             mean_size: per_feature.iter().map(|r| r[f].abs()).sum::<f64>() / rows,
-            reason_share: per_feature.iter().filter(|r| principal(r, toward, DEFAULT_REASONS).iter().any(|&(g, _)| g == f)).count() as f64
-                / rows,
+            reason_share: reasons as f64 / rows,
         })
         .collect();
     features.sort_by(|a, b| b.mean_size.total_cmp(&a.mean_size));

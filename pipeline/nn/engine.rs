@@ -97,6 +97,9 @@ pub struct Engine<T> {
     rows: usize,
     /// Packing buffers and the dispatch level of every matrix product.
     workspace: Workspace<T>,
+    /// Whether evaluation may hand runs of rows to the pool's other threads ([`Engine::evaluate`]);
+    /// speed only, never the bits.
+    splits_rows: bool,
 }
 
 fn take<T: Clone>(values: &mut Vec<(String, Vec<T>)>, name: &str, len: usize) -> Result<Vec<T>> {
@@ -203,7 +206,15 @@ impl<T: Real> Engine<T> {
             draws: if spec.dropout > 0.0 { vec![0; capacity * widest] } else { Vec::new() },
             rows: 0,
             workspace: Workspace::spread_over(level, threads),
+            splits_rows: true,
         })
+    }
+
+    /// Keeps every row this engine evaluates on the calling thread, for a caller that already
+    /// spreads whole evaluations across the pool's threads (each then needs no copies of the
+    /// engine). Speed only: a row's outputs never depend on where it was computed.
+    pub fn keep_rows_on_this_thread(&mut self) {
+        self.splits_rows = false;
     }
 
     /// How many threads computed pieces of this engine's work so far (1 when nothing was split).
@@ -261,9 +272,10 @@ impl<T: Real> Engine<T> {
     }
 
     /// `work(engine, data, rows, first)` over the rows of `x`, in row order: on a pool's thread,
-    /// runs of whole [`EVAL_BLOCK`]s go to the pool's threads, each on a copy of this engine
-    /// (`first` is the run's first row in `x`), when a block holds enough work (`work_per_row`
-    /// multiply-adds a row) to be worth a piece; else all of `x` on this engine, here.
+    /// runs of whole [`EVAL_BLOCK`]s go to the pool's threads, the first on this engine and each
+    /// other on a copy of it (`first` is the run's first row in `x`), when a block holds enough
+    /// work (`work_per_row` multiply-adds a row) to be worth a piece and the engine may split its
+    /// rows; else all of `x` on this engine, here.
     fn over_row_runs<R: Send>(
         &mut self,
         x: &Matrix,
@@ -274,17 +286,25 @@ impl<T: Real> Engine<T> {
         assert_eq!(x.cols, self.inputs, "{} input columns for an engine of {}", x.cols, self.inputs);
         let blocks = x.rows.div_ceil(EVAL_BLOCK);
         let threads = super::spread::threads_here().min(blocks);
-        if threads < 2 || EVAL_BLOCK * work_per_row < super::spread::piece_work() {
+        if threads < 2 || !self.splits_rows || EVAL_BLOCK * work_per_row < super::spread::piece_work() {
             return vec![work(self, &x.data, x.rows, 0)];
         }
         let run_rows = blocks.div_ceil(threads) * EVAL_BLOCK;
         let runs: Vec<&[f32]> = x.data.chunks(run_rows * self.inputs).collect();
-        let mut engines: Vec<Engine<T>> = runs.iter().map(|_| self.clone()).collect();
-        runs.par_iter()
-            .zip(engines.par_iter_mut())
-            .enumerate()
-            .map(|(i, (data, engine))| work(engine, data, data.len() / x.cols, i * run_rows))
-            .collect()
+        let Some((&own, others)) = runs.split_first() else { return Vec::new() };
+        let mut copies: Vec<Engine<T>> = others.iter().map(|_| self.clone()).collect();
+        let (first, rest) = rayon::join(
+            || work(self, own, own.len() / x.cols, 0),
+            || {
+                others
+                    .par_iter()
+                    .zip(copies.par_iter_mut())
+                    .enumerate()
+                    .map(|(i, (data, engine))| work(engine, data, data.len() / x.cols, (i + 1) * run_rows))
+                    .collect::<Vec<_>>()
+            },
+        );
+        std::iter::once(first).chain(rest).collect()
     }
 
     /// [`Engine::evaluate`] of `rows` rows of `data` on this thread.

@@ -33,6 +33,19 @@ impl ScoringModel {
         Ok(ScoringModel { head, preprocessor, scaling: run.record.target_scaling, engine })
     }
 
+    /// A model of `spec` with `inputs` inputs and initial weights from `seed`, for tests.
+    #[cfg(test)]
+    pub(crate) fn for_tests(spec: &crate::manifest::ModelSpec, inputs: usize, head: Head, seed: u64) -> Self {
+        let network = Mlp::new(spec, inputs, head.outputs(), &mut Stream::new(seed, Purpose::Init), DType::F32).expect("a model");
+        let preprocessor = Preprocessor { inputs: Vec::new(), output_names: Vec::new() };
+        ScoringModel { head, preprocessor, scaling: None, engine: Engine::from_model(&network, EVAL_BLOCK).expect("an engine") }
+    }
+
+    /// Keeps the rows of every evaluation on the calling thread ([`Engine::keep_rows_on_this_thread`]).
+    pub(crate) fn keep_rows_on_this_thread(&mut self) {
+        self.engine.keep_rows_on_this_thread();
+    }
+
     /// Class probabilities (k per row) or predictions for every row of `x`.
     pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         let raw = self.raw(x);

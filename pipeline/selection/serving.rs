@@ -52,6 +52,13 @@ impl Deployed {
         self.members[0].0.head
     }
 
+    /// This model with every evaluation kept on the calling thread, for a caller that spreads
+    /// whole evaluations across the pool's threads itself. Speed only, never the bits.
+    pub(crate) fn on_this_thread(mut self) -> Self {
+        self.networks().for_each(ScoringModel::keep_rows_on_this_thread);
+        self
+    }
+
     /// The deployed outputs for every row of `x`.
     pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         if self.members.len() == 1 {
