@@ -73,20 +73,17 @@ pub(crate) fn curves(
     inputs: &[InputEncoding],
     x: &Matrix,
     features: &[usize],
-    train: &(dyn Fn(&str) -> Result<TrainingColumn> + Sync),
+    train: &dyn Fn(&str) -> Result<TrainingColumn>,
 ) -> Result<Vec<Curve>> {
     let k = model.head().values_per_row();
     let offsets: Vec<usize> = inputs.iter().scan(0, |at, e| Some(std::mem::replace(at, *at + e.width()))).collect();
     let ice_rows: Vec<usize> = if task == Task::Multiclass { Vec::new() } else { (0..x.rows.min(ICE_ROWS)).collect() };
-    // Each feature's grid from its training values, the features read on the pool's threads (an
-    // error is the first in feature order).
-    let grids: Vec<Grid> = {
-        use rayon::prelude::*;
-        features.par_iter().map(|&f| grid(&inputs[f], train)).collect::<Vec<_>>().into_iter().collect::<Result<_>>()?
-    };
     let mut out = Vec::with_capacity(features.len());
     let mut moved = x.clone();
-    for (&f, Grid { grid, levels, training_rows, points }) in features.iter().zip(grids) {
+    for &f in features {
+        // One feature's training values at a time (8 bytes a training row, 64 MB at 8M rows),
+        // beside the training matrix still held.
+        let Grid { grid, levels, training_rows, points } = grid(&inputs[f], train)?;
         let enc = &inputs[f];
         let (first, width) = (offsets[f], enc.width());
         let curves_out = if task == Task::Multiclass { k } else { 1 };
@@ -129,7 +126,7 @@ struct Grid {
 }
 
 /// The grid of the feature encoded by `enc`, from its training values (`train`).
-fn grid(enc: &InputEncoding, train: &(dyn Fn(&str) -> Result<TrainingColumn> + Sync)) -> Result<Grid> {
+fn grid(enc: &InputEncoding, train: &dyn Fn(&str) -> Result<TrainingColumn>) -> Result<Grid> {
     let width = enc.width();
     Ok(match (enc, train(enc.name())?) {
         (InputEncoding::Numeric { mean, scale, .. }, TrainingColumn::Values(values)) => {
