@@ -103,9 +103,71 @@ pub fn each_on_workers<I: Sync, R: Send>(threads: usize, workers: usize, items: 
     Ok(done.into_iter().map(|(_, r)| r).collect())
 }
 
+/// One working value per thread of the current rayon pool, made once each (a model to score with,
+/// a copy of rows to change), for work that the pool's threads take an item at a time. Which
+/// thread takes which item never shows in a result: each item leaves its thread's value as it
+/// found it, or the value does not enter the result (a model's scratch buffers).
+pub struct PerThread<T> {
+    slots: Vec<Mutex<Option<T>>>,
+}
+
+impl<T> PerThread<T> {
+    /// Empty slots for the threads of the current pool (one off any pool); each is made on first use.
+    pub fn new() -> Self {
+        PerThread { slots: (0..rayon::current_num_threads().max(1)).map(|_| Mutex::new(None)).collect() }
+    }
+
+    /// `work` on this thread's value, made by `make` on its first use. A thread that reaches here
+    /// again while its value is in use (work nested in work) gets a fresh value of its own.
+    pub fn with<R>(&self, make: impl Fn() -> T, work: impl FnOnce(&mut T) -> R) -> R {
+        let slot = &self.slots[rayon::current_thread_index().unwrap_or(0) % self.slots.len()];
+        match slot.try_lock() {
+            Ok(mut held) => work(held.get_or_insert_with(make)),
+            Err(_) => work(&mut make()),
+        }
+    }
+}
+
+impl<T> Default for PerThread<T> {
+    fn default() -> Self {
+        PerThread::new()
+    }
+}
+
 #[cfg(test)]
 mod worker_tests {
     use super::*;
+
+    #[test]
+    fn each_thread_makes_its_value_once_and_work_nested_in_work_gets_its_own() {
+        use rayon::prelude::*;
+        let made = std::sync::atomic::AtomicUsize::new(0);
+        let make = || {
+            made.fetch_add(1, Ordering::SeqCst);
+            Vec::<usize>::new()
+        };
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(3).build().unwrap();
+        let sums: Vec<usize> = pool.install(|| {
+            let values = PerThread::new();
+            (0..200usize)
+                .into_par_iter()
+                .with_max_len(1)
+                .map(|i| {
+                    values.with(make, |v| {
+                        v.push(i);
+                        let sum = v.iter().sum::<usize>();
+                        v.pop();
+                        sum
+                    })
+                })
+                .collect()
+        });
+        assert_eq!(sums, (0..200).collect::<Vec<_>>(), "each item found its thread's value as the last left it");
+        assert!(made.load(Ordering::SeqCst) <= 3, "{} values made for 3 threads", made.load(Ordering::SeqCst));
+        let values = PerThread::new();
+        let nested = values.with(|| 1, |outer| values.with(|| 10, |inner| *outer + *inner));
+        assert_eq!(nested, 11, "the inner call got a fresh value rather than waiting on its own");
+    }
 
     #[test]
     fn workers_are_capped_by_runs_and_cores_and_zero_is_refused() {

@@ -247,8 +247,8 @@ const ROWS_PER_JOB: usize = 64;
 
 /// Integrated gradients of every row of `x` from `reference` for one model; `classes` gives the
 /// explained class per row (multiclass; ignored otherwise). Runs of rows go to the current rayon
-/// pool's threads, each on its own copy of the model: a row's attributions depend on that row
-/// alone, so the bits are those of one thread.
+/// pool's threads, each thread on its own copy of the model: a row's attributions depend on that
+/// row alone, so the bits are those of one thread.
 pub(crate) fn integrated_gradients(
     model: &mut ScoringModel,
     explained: Explained,
@@ -268,17 +268,16 @@ pub(crate) fn integrated_gradients(
     let all: Vec<usize> = (0..x.rows).collect();
     let shared: &ScoringModel = model;
     let job = Job { explained, path: (x, reference, classes), widths, steps, difference: &difference };
-    let parts: Vec<Attributions> = all
-        .par_chunks(ROWS_PER_JOB)
-        .map_init(
-            || {
-                let mut own = shared.clone();
-                own.keep_rows_on_this_thread();
-                own
-            },
-            |own, rows| job.rows(own, rows),
-        )
-        .collect::<Result<_>>()?;
+    // Runs of rows go to the threads one at a time: a run whose rows need finer integrations
+    // costs many times another.
+    let copies = crate::threads::PerThread::new();
+    let own = || {
+        let mut own = shared.clone();
+        own.keep_rows_on_this_thread();
+        own
+    };
+    let parts: Vec<Attributions> =
+        all.par_chunks(ROWS_PER_JOB).with_max_len(1).map(|rows| copies.with(own, |model| job.rows(model, rows))).collect::<Result<_>>()?;
     let mut whole =
         Attributions { per_input: Vec::with_capacity(x.rows * d), difference, gap: Vec::new(), estimate: Vec::new(), steps: Vec::new() };
     for part in parts {

@@ -65,8 +65,8 @@ fn oriented(
 /// Permutation importance of every raw feature of `test_x` (whose columns follow `features`,
 /// each `(name, inputs)` in order) for `model` on the selection metric. Each repeat draws its
 /// resample and every feature's permutation from the stream in order, then scores the features
-/// in parallel on the current rayon pool, each job on its own copy of the model: the same values
-/// on any number of threads.
+/// in parallel on the current rayon pool, each thread on its own copy of the model: the same
+/// values on any number of threads.
 pub(crate) fn permutation_importance(
     model: &mut Deployed,
     test_x: &Matrix,
@@ -86,6 +86,8 @@ pub(crate) fn permutation_importance(
     let mut losses: Vec<Vec<f64>> = vec![Vec::with_capacity(repeats); features.len()];
     let mut resampled: Vec<Vec<f64>> = vec![Vec::with_capacity(repeats); features.len()];
     let mut base_all = None;
+    let shared: &Deployed = model;
+    let copies = crate::threads::PerThread::new();
     for _ in 0..repeats {
         let sample: Vec<usize> = (0..n).map(|_| stream.below(n as u64) as usize).collect();
         let (all, base_sample) = oriented(head, &base, test_y, &sample, metric, sign);
@@ -99,29 +101,39 @@ pub(crate) fn permutation_importance(
                 order
             })
             .collect();
-        // Each job of the pool scores its features on its own copy of the model and of the rows,
-        // the permuted inputs put back after each feature.
-        let shared: &Deployed = model;
+        // The features go to the pool's threads one at a time (their costs differ: a binary
+        // feature's permutation changes about half the rows), each thread scoring on its own copy
+        // of the model and of the rows, the permuted inputs put back after each feature.
         let scored: Vec<(Option<f64>, Option<f64>)> = features
             .par_iter()
             .zip(&offsets)
             .zip(&orders)
-            .map_init(
-                || (shared.clone().on_this_thread(), test_x.clone()),
-                |(model, permuted), (((_, width), &first), order)| -> Result<(Option<f64>, Option<f64>)> {
-                    let cols = test_x.cols;
-                    for (i, &from) in order.iter().enumerate() {
-                        let (dst, src) = (i * cols + first, from * cols + first);
-                        permuted.data[dst..dst + width].copy_from_slice(&test_x.data[src..src + width]);
-                    }
-                    let outputs = model.score(permuted);
-                    for i in 0..n {
-                        let at = i * cols + first;
-                        permuted.data[at..at + width].copy_from_slice(&test_x.data[at..at + width]);
-                    }
-                    Ok(oriented(head, &outputs?, test_y, &sample, metric, sign))
-                },
-            )
+            .with_max_len(1)
+            .map(|(((_, width), &first), order)| -> Result<(Option<f64>, Option<f64>)> {
+                copies.with(
+                    || (shared.clone().on_this_thread(), test_x.clone()),
+                    |(model, permuted)| {
+                        let cols = test_x.cols;
+                        // Rows given their own values back (or equal ones: a binary or categorical
+                        // feature's) keep their outputs and are not scored again.
+                        let mut changed = Vec::with_capacity(n);
+                        for (i, &from) in order.iter().enumerate() {
+                            let (dst, src) = (i * cols + first, from * cols + first);
+                            let (own, given) = (&test_x.data[dst..dst + width], &test_x.data[src..src + width]);
+                            if own.iter().zip(given).any(|(a, b)| a.to_bits() != b.to_bits()) {
+                                changed.push(i);
+                            }
+                            permuted.data[dst..dst + width].copy_from_slice(given);
+                        }
+                        let outputs = model.score_changed(permuted, &changed, &base);
+                        for i in 0..n {
+                            let at = i * cols + first;
+                            permuted.data[at..at + width].copy_from_slice(&test_x.data[at..at + width]);
+                        }
+                        Ok(oriented(head, &outputs?, test_y, &sample, metric, sign))
+                    },
+                )
+            })
             .collect::<Result<_>>()?;
         for (f, (v, r)) in scored.into_iter().enumerate() {
             if let Some(v) = v {

@@ -72,7 +72,8 @@ pub(crate) fn table(
     classes: &[usize],
 ) -> Result<Vec<FeatureShifts>> {
     let k = model.head().values_per_row();
-    let before = scores(task, &model.score(x)?, k, classes);
+    let unmoved = model.score(x)?;
+    let before = scores(task, &unmoved, k, classes);
     let all: Vec<usize> = (0..x.rows).collect();
     let mut out = Vec::with_capacity(inputs.len());
     let mut first = 0;
@@ -100,13 +101,18 @@ pub(crate) fn table(
             InputEncoding::Categorical { levels, .. } => {
                 for (l, level) in levels.iter().enumerate() {
                     let rows: Vec<usize> = (0..x.rows).filter(|&r| x.data[r * x.cols + first + l] != 1.0).collect();
+                    let mut changed = Vec::with_capacity(rows.len());
                     for r in 0..x.rows {
                         // The level's one-hot input on, every other input of the feature (the
                         // other levels, the unseen bucket, a missing flag) off.
                         let at = r * x.cols + first;
                         moved.data[at..at + width].iter_mut().enumerate().for_each(|(j, v)| *v = if j == l { 1.0 } else { 0.0 });
+                        if moved.data[at..at + width].iter().zip(&x.data[at..at + width]).any(|(a, b)| a.to_bits() != b.to_bits()) {
+                            changed.push(r);
+                        }
                     }
-                    let after = scores(task, &model.score(&moved)?, k, classes);
+                    // Rows already at the level keep their outputs and are not scored again.
+                    let after = scores(task, &model.score_changed(&moved, &changed, &unmoved)?, k, classes);
                     effects.push(effect(format!("= {level}"), &before, &after, &rows));
                     restore(&mut moved);
                 }

@@ -59,6 +59,26 @@ impl Deployed {
         self
     }
 
+    /// The deployed outputs of `moved`, a copy of rows whose outputs `unmoved` holds (as
+    /// [`Deployed::score`] gave them, k per row) with only the rows `changed` (increasing) set to
+    /// other inputs: only those rows are scored, and every other row keeps its outputs. A row's
+    /// outputs depend on that row's inputs alone, so the bits are those of scoring every row;
+    /// when nearly every row changed, every row is scored.
+    pub(crate) fn score_changed(&mut self, moved: &Matrix, changed: &[usize], unmoved: &[f64]) -> Result<Vec<f64>> {
+        if changed.len() * 10 >= moved.rows * 9 {
+            return self.score(moved);
+        }
+        let k = unmoved.len() / moved.rows.max(1);
+        let rows =
+            Matrix { rows: changed.len(), cols: moved.cols, data: changed.iter().flat_map(|&r| moved.row(r).iter().copied()).collect() };
+        let scored = self.score(&rows)?;
+        let mut outputs = unmoved.to_vec();
+        for (&r, values) in changed.iter().zip(scored.chunks_exact(k.max(1))) {
+            outputs[r * k..(r + 1) * k].copy_from_slice(values);
+        }
+        Ok(outputs)
+    }
+
     /// The deployed outputs for every row of `x`.
     pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         if self.members.len() == 1 {
@@ -67,5 +87,35 @@ impl Deployed {
         }
         let scored: Vec<Vec<f64>> = self.members.iter_mut().map(|(m, map)| m.score_calibrated(x, map.as_ref())).collect::<Result<_>>()?;
         Ok(crate::selection::deployed::mean_outputs(&scored.iter().map(Vec::as_slice).collect::<Vec<_>>()))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scoring_only_the_changed_rows_gives_the_bits_of_scoring_them_all() {
+        let spec = crate::manifest::ModelSpec { hidden: vec![12, 12], ..Default::default() };
+        let head =
+            Head { task: crate::manifest::Task::Multiclass, classes: 3, loss: crate::manifest::RegressionLoss::Mse, huber_delta: 1.0 };
+        let mut model = Deployed { members: vec![(ScoringModel::for_tests(&spec, 4, head, 5), None)] };
+        // More rows than one evaluation block, so changed rows land at other places in the blocks.
+        let x = Matrix { rows: 700, cols: 4, data: (0..2800).map(|i| ((i * 29 % 97) as f32 / 97.0 - 0.5) * 4.0).collect() };
+        let unmoved = model.score(&x).expect("scores");
+        for every in [3, 1] {
+            let mut moved = x.clone();
+            let changed: Vec<usize> = (0..x.rows).filter(|r| r % every == 0).collect();
+            for &r in &changed {
+                moved.data[r * 4 + 2] += 0.75;
+            }
+            let whole = model.score(&moved).expect("scores");
+            let part = model.score_changed(&moved, &changed, &unmoved).expect("scores");
+            assert_eq!(
+                part.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+                whole.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+                "every {every}"
+            );
+        }
     }
 }

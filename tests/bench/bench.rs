@@ -1,7 +1,9 @@
 //! Benchmark measurements (not tests), called by `tests/bench/run.sh`; each prints one JSON line.
 //!
 //! ```text
-//! bench data ROWS COLS OUT.parquet [--no-target]  synthetic table: x00.. float32 features, y = 0/1 (seed 2026)
+//! bench data ROWS COLS OUT.parquet [--no-target] [--binary K]
+//!                                           synthetic table: x00.. float32 features, y = 0/1 (seed
+//!                                           2026); the last K features as 0/1 flags (x > 0)
 //! bench train DATA --hidden 256,256 --batch 256 --epochs 3 [--dropout P] [--bn] [--cols K]
 //!       [--train-rows N] [--regression]    one single-threaded run, the reference AdamW settings;
 //!                                           timed: `--epochs` epochs after one warm-up epoch
@@ -56,10 +58,12 @@ fn synthetic(rows: usize, cols: usize) -> (Vec<f32>, Vec<usize>) {
     (x, y)
 }
 
-fn write_data(rows: usize, cols: usize, out: &Path, with_target: bool) {
+fn write_data(rows: usize, cols: usize, out: &Path, with_target: bool, binary: usize) {
     let (x, y) = synthetic(rows, cols);
+    // The last `binary` features as flags, as many tables hold them (the target keeps its rule).
+    let value = |r: usize, c: usize| if c + binary >= cols { f32::from(u8::from(x[r * cols + c] > 0.0)) } else { x[r * cols + c] };
     let mut columns: Vec<(String, ArrayRef)> = (0..cols)
-        .map(|c| (format!("x{c:02}"), Arc::new(Float32Array::from((0..rows).map(|r| x[r * cols + c]).collect::<Vec<f32>>())) as ArrayRef))
+        .map(|c| (format!("x{c:02}"), Arc::new(Float32Array::from((0..rows).map(|r| value(r, c)).collect::<Vec<f32>>())) as ArrayRef))
         .collect();
     if with_target {
         columns.push(("y".into(), Arc::new(Int64Array::from(y.iter().map(|&v| v as i64).collect::<Vec<i64>>()))));
@@ -486,7 +490,14 @@ fn main() {
     let args: Vec<String> = std::env::args().collect();
     match args.get(1).map(String::as_str) {
         Some("data") => {
-            write_data(args[2].parse().expect("rows"), args[3].parse().expect("cols"), Path::new(&args[4]), !flag(&args, "--no-target"))
+            let binary = arg(&args, "--binary", 0usize);
+            write_data(
+                args[2].parse().expect("rows"),
+                args[3].parse().expect("cols"),
+                Path::new(&args[4]),
+                !flag(&args, "--no-target"),
+                binary,
+            )
         }
         Some("train") => bench_train(&args),
         Some("hash") => bench_hash(&args),
