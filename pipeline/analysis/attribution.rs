@@ -329,17 +329,17 @@ impl Job<'_> {
             // A row within the tolerance is not integrated again and stays within it, so every
             // row missed now was in the last integration.
             let per_row = (last_steps + 1) * d;
-            let mut known = Vec::with_capacity(missed.len() * per_row);
+            let mut coarser = Vec::with_capacity(missed.len() * per_row);
             for &i in &missed {
                 let j = last_rows
                     .binary_search(&i)
                     .map_err(|_| crate::error::Error::Internal(format!("row {} missed the tolerance without being integrated", rows[i])))?;
-                known.extend_from_slice(&last_gradients[j * per_row..(j + 1) * per_row]);
+                coarser.extend_from_slice(&last_gradients[j * per_row..(j + 1) * per_row]);
             }
             let missed_rows: Vec<usize> = missed.iter().map(|&i| rows[i]).collect();
             let steps = self.steps * factor;
             let finest = factor == REFINEMENTS[REFINEMENTS.len() - 1];
-            let known = Known { gradients: &known, steps: last_steps };
+            let known = Known { gradients: &coarser, steps: last_steps };
             let again = integrate(model, self.explained, self.path, &missed_rows, steps, (Some(&known), !finest));
             for (m, &i) in missed.iter().enumerate() {
                 let row = &again.fine[m * d..(m + 1) * d];
