@@ -120,7 +120,7 @@ pub(crate) fn permutation_importance(
                         for (i, &from) in order.iter().enumerate() {
                             let (dst, src) = (i * cols + first, from * cols + first);
                             let (own, given) = (&test_x.data[dst..dst + width], &test_x.data[src..src + width]);
-                            if own.iter().zip(given).any(|(a, b)| a.to_bits() != b.to_bits()) {
+                            if crate::data::prep::bits_differ(own, given) {
                                 changed.push(i);
                             }
                             permuted.data[dst..dst + width].copy_from_slice(given);
@@ -179,7 +179,7 @@ pub(crate) fn derive(
     let test = &exp.splits.test;
     let positions = super::sample::positions(test.len(), m.split.seed, layout_version);
     let rows = super::sample::rows(test, &positions);
-    let test_x = super::sample::matrix_rows(&derived.test_x, &positions);
+    let test_x = derived.test_x.rows_at(&positions);
     let features: Vec<(String, usize)> = exp.preprocessor.inputs.iter().map(|e| (e.name().to_string(), e.width())).collect();
     let mut model = Deployed::load(&derived.selection, runs)?;
     let repeats = m.analysis.clone().unwrap_or_default().permutation_repeats;

@@ -7,7 +7,6 @@
 //! methods (scikit-learn's `permutation_importance` offers `max_samples` for the same reason);
 //! the intervals of the importance repeats then also carry the sample's noise.
 
-use crate::data::prep::Matrix;
 use crate::rng::{Purpose, Stream};
 
 /// The most test rows the heavier analyses compute on (results layout 8 on).
@@ -58,12 +57,6 @@ fn drawn(len: usize, at_most: usize, mut stream: Stream) -> Vec<usize> {
 /// The table rows at `positions` of the test split `test`.
 pub(crate) fn rows(test: &[usize], positions: &[usize]) -> Vec<usize> {
     positions.iter().map(|&p| test[p]).collect()
-}
-
-/// The rows at `positions` of the encoded matrix `x`, in that order.
-pub(crate) fn matrix_rows(x: &Matrix, positions: &[usize]) -> Matrix {
-    let data = positions.iter().flat_map(|&p| x.row(p).iter().copied()).collect();
-    Matrix { rows: positions.len(), cols: x.cols, data }
 }
 
 #[cfg(test)]

@@ -103,7 +103,7 @@ fn derive_here(
     let positions = super::sample::positions(test.len(), m.split.seed, layout_version);
     let analysed = super::sample::rows(test, &positions);
     let train_x = &prepared.train_x;
-    let test_x = super::sample::matrix_rows(&derived.test_x, &positions);
+    let test_x = derived.test_x.rows_at(&positions);
     let mut model = Deployed::load(&derived.selection, runs)?;
     let k = model.head().values_per_row();
     let inputs = &exp.preprocessor.inputs;
@@ -112,7 +112,7 @@ fn derive_here(
     let threshold = match task {
         Task::Binary => {
             let t = derived.selection.deployed_threshold(crate::store::FORMAT_VERSION).value;
-            let sampled = reference_positions.as_ref().map(|p| super::sample::matrix_rows(train_x, p));
+            let sampled = reference_positions.as_ref().map(|p| train_x.rows_at(p));
             let from = sampled.as_ref().unwrap_or(train_x);
             let scores: Vec<f64> = model.score(from)?.chunks_exact(k).map(|r| r[1]).collect();
             Some(threshold_row(from, &scores, t, analysis.reference_rows()))

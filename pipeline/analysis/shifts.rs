@@ -107,7 +107,7 @@ pub(crate) fn table(
                         // other levels, the unseen bucket, a missing flag) off.
                         let at = r * x.cols + first;
                         moved.data[at..at + width].iter_mut().enumerate().for_each(|(j, v)| *v = if j == l { 1.0 } else { 0.0 });
-                        if moved.data[at..at + width].iter().zip(&x.data[at..at + width]).any(|(a, b)| a.to_bits() != b.to_bits()) {
+                        if crate::data::prep::bits_differ(&moved.data[at..at + width], &x.data[at..at + width]) {
                             changed.push(r);
                         }
                     }

@@ -32,6 +32,17 @@ impl Matrix {
     pub fn row(&self, r: usize) -> &[f32] {
         &self.data[r * self.cols..(r + 1) * self.cols]
     }
+
+    /// The rows at `positions`, in that order.
+    pub fn rows_at(&self, positions: &[usize]) -> Matrix {
+        let data = positions.iter().flat_map(|&p| self.row(p).iter().copied()).collect();
+        Matrix { rows: positions.len(), cols: self.cols, data }
+    }
+}
+
+/// Whether two runs of inputs differ in any bit (a row whose inputs do not keeps its outputs).
+pub fn bits_differ(a: &[f32], b: &[f32]) -> bool {
+    a.iter().zip(b).any(|(x, y)| x.to_bits() != y.to_bits())
 }
 
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

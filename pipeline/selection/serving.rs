@@ -69,9 +69,7 @@ impl Deployed {
             return self.score(moved);
         }
         let k = unmoved.len() / moved.rows.max(1);
-        let rows =
-            Matrix { rows: changed.len(), cols: moved.cols, data: changed.iter().flat_map(|&r| moved.row(r).iter().copied()).collect() };
-        let scored = self.score(&rows)?;
+        let scored = self.score(&moved.rows_at(changed))?;
         let mut outputs = unmoved.to_vec();
         for (&r, values) in changed.iter().zip(scored.chunks_exact(k.max(1))) {
             outputs[r * k..(r + 1) * k].copy_from_slice(values);
