@@ -271,11 +271,7 @@ pub(crate) fn integrated_gradients(
     // Runs of rows go to the threads one at a time: a run whose rows need finer integrations
     // costs many times another.
     let copies = crate::threads::PerThread::new();
-    let own = || {
-        let mut own = shared.clone();
-        own.keep_rows_on_this_thread();
-        own
-    };
+    let own = || shared.clone().on_this_thread();
     let parts: Vec<Attributions> =
         all.par_chunks(ROWS_PER_JOB).with_max_len(1).map(|rows| copies.with(own, |model| job.rows(model, rows))).collect::<Result<_>>()?;
     let mut whole =

@@ -184,15 +184,17 @@ pub fn shared_percentile_intervals(
 /// the current rayon pool's threads, each from its own place in the stream: a draw takes two
 /// 32-bit words, so resample j of a run starts 2 * len * j words on if no draw before it was
 /// rejected (for `bound` below 2^32 a draw is rejected with probability under 2^-32). Where one
-/// was, the resamples after it are drawn again from their true places. The stream is left after
-/// the last resample.
+/// was, the resamples after it are drawn again from their true places, a pool's width at a
+/// time until a batch passes without a rejection (the width doubling after each), so a rejection
+/// wastes at most a batch. The stream is left after the last resample.
 fn draw_and_score<R: Send>(stream: &mut Stream, bound: u64, len: usize, count: usize, score: impl Fn(Vec<usize>) -> R + Sync) -> Vec<R> {
     use rayon::prelude::*;
     let words = 2 * len as u128;
     let mut out = Vec::with_capacity(count);
+    let mut batch = count;
     while out.len() < count {
         let start = stream.word_position();
-        let drawn: Vec<(u64, R)> = (0..count - out.len())
+        let drawn: Vec<(u64, R)> = (0..batch.min(count - out.len()))
             .into_par_iter()
             .map(|j| {
                 let mut own = stream.at_word(start + words * j as u128);
@@ -202,13 +204,16 @@ fn draw_and_score<R: Send>(stream: &mut Stream, bound: u64, len: usize, count: u
             })
             .collect();
         let mut position = start;
+        let mut clean = true;
         for (rejected, result) in drawn {
             out.push(result);
             position += words + 2 * u128::from(rejected);
             if rejected > 0 {
+                clean = false;
                 break;
             }
         }
+        batch = if clean { batch.saturating_mul(2) } else { rayon::current_num_threads() };
         stream.seek_word(position);
     }
     out
@@ -254,9 +259,22 @@ mod tests {
             for threads in [1, 2, 3] {
                 let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
                 let mut stream = Stream::new(4, Purpose::Bootstrap);
-                let drawn = pool.install(|| draw_and_score(&mut stream, bound, 7, 40, |idx| idx));
+                let scored = std::sync::atomic::AtomicUsize::new(0);
+                let count = |idx| {
+                    scored.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                    idx
+                };
+                let drawn = pool.install(|| draw_and_score(&mut stream, bound, 7, 40, count));
                 assert_eq!(drawn, expected, "bound {bound}, {threads} threads");
                 assert_eq!(stream.word_position(), serial.word_position(), "the stream is left after the last resample");
+                // The first batch is all 40; after a rejection at most a pool's width is wasted a
+                // resample (redrawing all the rest each time would score hundreds).
+                let scored = scored.into_inner();
+                if bound == 1000 {
+                    assert_eq!(scored, 40, "no rejection, nothing drawn twice");
+                } else {
+                    assert!(scored <= 40 + 40 * threads, "{scored} resamples scored for 40 on {threads} threads");
+                }
             }
         }
     }

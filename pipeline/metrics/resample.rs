@@ -35,7 +35,7 @@ pub struct ClassifiedSample<'a> {
     labels: &'a [usize],
     probs: &'a [f64],
     k: usize,
-    rows: Vec<RowTerms>,
+    terms: OnceLock<Vec<RowTerms>>,
     /// Ranked when a rank metric is first asked for; `None` for a sample too large to rank
     /// exactly, whose rank metrics then sort each resample.
     rankings: OnceLock<Option<ClassRankings>>,
@@ -43,23 +43,30 @@ pub struct ClassifiedSample<'a> {
 
 impl<'a> ClassifiedSample<'a> {
     pub fn new(labels: &'a [usize], probs: &'a [f64], k: usize) -> Self {
-        let rows = probs
-            .chunks_exact(k)
-            .zip(labels)
-            .map(|(r, &y)| {
-                let (confidence, hit) = top_label_point(r, y);
-                RowTerms {
-                    log_loss: c::log_loss_term(r, y),
-                    brier: c::brier_term(r, y),
-                    confidence,
-                    bin: bin_of(confidence, ECE_BINS) as u8,
-                    hit,
-                    label: y as u32,
-                    predicted: c::argmax(r) as u32,
-                }
-            })
-            .collect();
-        ClassifiedSample { labels, probs, k, rows, rankings: OnceLock::new() }
+        ClassifiedSample { labels, probs, k, terms: OnceLock::new(), rankings: OnceLock::new() }
+    }
+
+    /// Each row's terms, computed when a metric that adds them is first asked for (a rank metric
+    /// alone never needs them).
+    fn terms(&self) -> &[RowTerms] {
+        self.terms.get_or_init(|| {
+            self.probs
+                .chunks_exact(self.k)
+                .zip(self.labels)
+                .map(|(r, &y)| {
+                    let (confidence, hit) = top_label_point(r, y);
+                    RowTerms {
+                        log_loss: c::log_loss_term(r, y),
+                        brier: c::brier_term(r, y),
+                        confidence,
+                        bin: bin_of(confidence, ECE_BINS) as u8,
+                        hit,
+                        label: y as u32,
+                        predicted: c::argmax(r) as u32,
+                    }
+                })
+                .collect()
+        })
     }
 
     fn rankings(&self) -> Option<&ClassRankings> {
@@ -99,8 +106,9 @@ impl Resample<'_> {
         self.totals.get_or_init(|| {
             let k = self.sample.k;
             let mut t = Totals { log_loss: 0.0, brier: 0.0, calibration: BinSums::new(ECE_BINS), confusion: vec![vec![0; k]; k] };
+            let terms = self.sample.terms();
             for &i in self.idx {
-                let row = &self.sample.rows[i];
+                let row = &terms[i];
                 // As log_loss and brier add their rows' terms: the same operations in the same order.
                 t.log_loss -= row.log_loss;
                 t.brier += row.brier;

@@ -376,10 +376,7 @@ impl SeedScores {
     /// the bits of [`ScoringModel::score_calibrated`].
     fn validation_outputs(&mut self, x: &Matrix) -> Result<Vec<f64>> {
         let Some(raw) = self.raw_validation.take() else { return self.model.score_calibrated(x, self.map.as_ref()) };
-        Ok(match &self.map {
-            Some(map) => map.apply(&raw.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), self.model.head.classes),
-            None => self.model.head.predictions(&raw, self.model.scaling),
-        })
+        Ok(self.model.deployed_outputs(&raw, self.map.as_ref()))
     }
 }
 
@@ -405,10 +402,7 @@ fn score_seed(run: &StoredRun, test_x: &Matrix, validation: (&Matrix, &Labels), 
         }
         _ => (None, None),
     };
-    let outputs = match &map {
-        Some(m) => m.apply(&raw_test.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), model.head.classes),
-        None => raw_outputs.clone(),
-    };
+    let outputs = if map.is_some() { model.deployed_outputs(&raw_test, map.as_ref()) } else { raw_outputs.clone() };
     Ok(SeedScores { seed: run.record.seed, run_id: run.record.run_id.clone(), model, map, raw_outputs, outputs, raw_validation })
 }
 

@@ -41,15 +41,12 @@ impl ScoringModel {
         ScoringModel { head, preprocessor, scaling: None, engine: Engine::from_model(&network, EVAL_BLOCK).expect("an engine") }
     }
 
-    /// Keeps the rows of every evaluation on the calling thread ([`Engine::keep_rows_on_this_thread`]).
-    pub(crate) fn keep_rows_on_this_thread(&mut self) {
+    /// This model with every evaluation kept on the calling thread
+    /// ([`Engine::keep_rows_on_this_thread`]), for a caller that spreads whole evaluations across
+    /// the pool's threads itself. Speed only, never the bits.
+    pub(crate) fn on_this_thread(mut self) -> Self {
         self.engine.keep_rows_on_this_thread();
-    }
-
-    /// Class probabilities (k per row) or predictions for every row of `x`.
-    pub(crate) fn score(&mut self, x: &Matrix) -> Result<Vec<f64>> {
-        let raw = self.raw(x);
-        Ok(self.head.predictions(&raw, self.scaling))
+        self
     }
 
     /// The network's raw outputs (logits, or the standardised prediction) for every row of `x`.
@@ -58,14 +55,19 @@ impl ScoringModel {
         self.engine.evaluate(x)
     }
 
-    /// Probabilities through `map` when one is given, else as [`ScoringModel::score`].
+    /// Probabilities through `map` when one is given, else the head's class probabilities (k per
+    /// row) or predictions, for every row of `x`.
     pub(crate) fn score_calibrated(&mut self, x: &Matrix, map: Option<&CalibrationMap>) -> Result<Vec<f64>> {
+        let raw = self.raw(x);
+        Ok(self.deployed_outputs(&raw, map))
+    }
+
+    /// What [`ScoringModel::score_calibrated`] gives for rows whose raw outputs are `raw`:
+    /// through `map` when one is given, else the head's predictions.
+    pub(crate) fn deployed_outputs(&self, raw: &[f32], map: Option<&CalibrationMap>) -> Vec<f64> {
         match map {
-            Some(map) => {
-                let raw: Vec<f64> = self.raw(x).into_iter().map(f64::from).collect();
-                Ok(map.apply(&raw, self.head.classes))
-            }
-            None => self.score(x),
+            Some(map) => map.apply(&raw.iter().map(|&z| f64::from(z)).collect::<Vec<_>>(), self.head.classes),
+            None => self.head.predictions(raw, self.scaling),
         }
     }
 }

@@ -55,7 +55,7 @@ impl Deployed {
     /// This model with every evaluation kept on the calling thread, for a caller that spreads
     /// whole evaluations across the pool's threads itself. Speed only, never the bits.
     pub(crate) fn on_this_thread(mut self) -> Self {
-        self.networks().for_each(ScoringModel::keep_rows_on_this_thread);
+        self.members = self.members.into_iter().map(|(model, map)| (model.on_this_thread(), map)).collect();
         self
     }
 
