@@ -68,10 +68,10 @@ impl Deployed {
         if changed.len() * 10 >= moved.rows * 9 {
             return self.score(moved);
         }
-        let k = unmoved.len() / moved.rows.max(1);
+        let k = self.head().values_per_row();
         let scored = self.score(&moved.rows_at(changed))?;
         let mut outputs = unmoved.to_vec();
-        for (&r, values) in changed.iter().zip(scored.chunks_exact(k.max(1))) {
+        for (&r, values) in changed.iter().zip(scored.chunks_exact(k)) {
             outputs[r * k..(r + 1) * k].copy_from_slice(values);
         }
         Ok(outputs)
